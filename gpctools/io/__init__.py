@@ -1,0 +1,17 @@
+"""Readers: slice exports (chromatograms) and user sheets, turned into plain data.
+
+Readers only turn a file dialect into plain data (arrays, a DataFrame); meaning is checked
+by the callers. Every problem with a file raises
+:class:`gpctools.errors.InputFormatError` naming the file, the line/row and what to change.
+
+Public API
+----------
+read_sheet(path, *, sheet=None) -> pandas.DataFrame
+sheet_row_number(df, label) -> int
+"""
+
+from __future__ import annotations
+
+from gpctools.io.sheets import read_sheet, sheet_row_number
+
+__all__ = ["read_sheet", "sheet_row_number"]
