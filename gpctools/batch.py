@@ -1,0 +1,648 @@
+"""A whole batch: one batch sheet plus one method gives one result row per injection.
+
+The batch sheet (CSV or XLSX) has one row per injection:
+
+=====================  ==========================================================
+column                 meaning
+=====================  ==========================================================
+``sample_id``          required; repeated ids are replicate injections
+``file``               required; slice export, path relative to the sheet
+``role``               optional: ``sample`` (default), ``check_standard``, ``blank``
+``flow marker [mL]``   optional: observed marker position of that injection
+anything else          free metadata (``product``, ``batch``, ``sequence``,
+                       ``assigned Mw [g/mol]``, ...), copied to the results
+=====================  ==========================================================
+
+One failing injection does not stop the batch: it gets a row with ``status = "error"``
+and its message, and :attr:`BatchResult.failed` counts it. Inputs are only read; every
+output is written atomically (:mod:`gpctools._atomic`).
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import warnings
+from collections.abc import Callable, Iterable, Iterator
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from .distribution import Distribution, averages, compute_distribution, peak_position
+from .errors import DataError, GpcError, GpcWarning, InputFormatError
+from .method import Method
+from .signal import CorrectedSignal, correct_signal
+
+__all__ = [
+    "InjectionResult",
+    "BatchEntry",
+    "BatchResult",
+    "process_injection",
+    "process_trace",
+    "read_batch_sheet",
+    "run_batch",
+    "RESULT_COLUMNS",
+]
+
+ROLES = ("sample", "check_standard", "blank")
+
+#: Result columns in order (metadata columns of the sheet are inserted after ``role``).
+RESULT_COLUMNS = (
+    "status",
+    "Mn [g/mol]",
+    "Mw [g/mol]",
+    "Mz [g/mol]",
+    "Mz+1 [g/mol]",
+    "Mp [g/mol]",
+    "Mp (dw/dlogM) [g/mol]",
+    "dispersity [-]",
+    "outside calibration [% mass]",
+    "baseline windows [mL]",
+    "limits [mL]",
+    "flow marker [mL]",
+    "flow correction factor [-]",
+    "Mn shift, low-M limit -0.2 mL [%]",
+    "Mw shift, low-M limit -0.2 mL [%]",
+    "molar-mass scale",
+    "warnings",
+    "error",
+)
+
+
+@dataclass(frozen=True)
+class InjectionResult:
+    """Everything computed for one injection.
+
+    Attributes
+    ----------
+    sample_id, file : str
+    distribution : Distribution
+    corrected : CorrectedSignal
+        Baseline-corrected trace on the flow-corrected volume axis.
+    marker_observed : float or None
+        Observed flow-marker position [mL] (from the sheet or found in the search window).
+    flow_factor : float
+        Volume correction factor reference/observed [-] (1 without a marker).
+    Mn_shift_pct, Mw_shift_pct : float
+        Change of Mn and Mw when the low-M (high-volume) integration limit is moved
+        ``limit_shift`` mL earlier [%]; a large Mn change with a small Mw change points
+        to a low-M tail or system peak inside the limits (SCIENCE.md section 9).
+    scale : str
+        Molar-mass scale (absolute or standard-equivalent).
+    warnings : tuple of str
+    metadata : dict
+        Free-text metadata of the export file.
+    """
+
+    sample_id: str
+    file: str
+    distribution: Distribution
+    corrected: CorrectedSignal
+    marker_observed: float | None
+    flow_factor: float
+    Mn_shift_pct: float
+    Mw_shift_pct: float
+    limit_shift: float
+    scale: str
+    warnings: tuple[str, ...] = ()
+    metadata: dict[str, str] = field(default_factory=dict)
+
+    def row(self) -> dict[str, Any]:
+        """Result-table row with unit-named columns."""
+        d = self.distribution
+        bw = self.corrected.baseline.windows
+        lim = self.corrected.limits
+        shift = f"{self.limit_shift:g}"
+        return {
+            "sample_id": self.sample_id,
+            "file": self.file,
+            "status": "ok",
+            "Mn [g/mol]": d.Mn,
+            "Mw [g/mol]": d.Mw,
+            "Mz [g/mol]": d.Mz,
+            "Mz+1 [g/mol]": d.Mz1,
+            "Mp [g/mol]": d.Mp,
+            "Mp (dw/dlogM) [g/mol]": d.Mp_dwdlogM,
+            "dispersity [-]": d.dispersity,
+            "outside calibration [% mass]": 100.0 * d.outside_fraction,
+            "baseline windows [mL]": (
+                f"{bw[0][0]:.3f}-{bw[0][1]:.3f}; {bw[1][0]:.3f}-{bw[1][1]:.3f}"
+                + (" (auto)" if self.corrected.baseline.automatic else "")
+            ),
+            "limits [mL]": f"{lim[0]:.3f}-{lim[1]:.3f}" + (" (auto)" if self.corrected.automatic_limits else ""),
+            "flow marker [mL]": self.marker_observed if self.marker_observed is not None else float("nan"),
+            "flow correction factor [-]": self.flow_factor,
+            f"Mn shift, low-M limit -{shift} mL [%]": self.Mn_shift_pct,
+            f"Mw shift, low-M limit -{shift} mL [%]": self.Mw_shift_pct,
+            "molar-mass scale": self.scale,
+            "warnings": "; ".join(self.warnings),
+            "error": "",
+        }
+
+    def summary(self) -> dict[str, Any]:
+        return {
+            "sample_id": self.sample_id,
+            "file": self.file,
+            "distribution": self.distribution.summary(),
+            "signal": self.corrected.summary(),
+            "flow marker [mL]": self.marker_observed,
+            "flow correction factor [-]": self.flow_factor,
+            "Mn shift [%]": self.Mn_shift_pct,
+            "Mw shift [%]": self.Mw_shift_pct,
+            "molar-mass scale": self.scale,
+            "warnings": list(self.warnings),
+        }
+
+
+def _find_marker(volume: np.ndarray, signal: np.ndarray, window: tuple[float, float]) -> float:
+    """Flow-marker peak position inside ``window`` [mL].
+
+    A straight line through the window's end points is removed and the largest
+    deviation (positive or negative: refractive-index markers are often negative) is
+    refined with a parabola.
+    """
+    m = (volume >= window[0]) & (volume <= window[1])
+    if m.sum() < 5:
+        raise DataError(
+            f"flow-marker search window {window[0]:g}-{window[1]:g} mL holds too few slices; "
+            "set flow_marker.search around the marker peak"
+        )
+    V = volume[m]
+    h = signal[m]
+    k = max(1, V.size // 20)
+    line = np.interp(V, [V[:k].mean(), V[-k:].mean()], [h[:k].mean(), h[-k:].mean()])
+    dev = h - line
+    if abs(dev.min()) > abs(dev.max()):
+        dev = -dev
+    return peak_position(V, dev)
+
+
+def process_trace(
+    volume: Any,
+    signal: Any,
+    method: Method,
+    *,
+    sample_id: str = "",
+    file: str = "",
+    marker_observed: float | None = None,
+    metadata: dict[str, str] | None = None,
+) -> InjectionResult:
+    """Process one trace already on the volume axis (see :func:`process_injection`)."""
+    V = np.asarray(volume, dtype=float)
+    h = np.asarray(signal, dtype=float)
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always", GpcWarning)
+        factor = 1.0
+        if marker_observed is None and method.marker_search is not None:
+            marker_observed = _find_marker(V, h, method.marker_search)
+        if marker_observed is not None:
+            if method.marker_reference is None:
+                raise DataError(
+                    "a flow-marker position was given but the method has no flow_marker.reference"
+                )
+            if not (math.isfinite(marker_observed) and marker_observed > 0):
+                raise DataError(f"flow-marker position must be a positive volume, got {marker_observed!r}")
+            factor = method.marker_reference / marker_observed
+            if abs(factor - 1.0) > 0.05:
+                raise DataError(
+                    f"flow marker at {marker_observed:.3f} mL is more than 5 % from the reference "
+                    f"{method.marker_reference:.3f} mL: check the marker peak or the search window"
+                )
+            V = V * factor
+        cs = correct_signal(V, h, windows=method.windows, limits=method.limits, exclusions=method.exclusions)
+        dist = compute_distribution(
+            V, cs.signal, method.calibration, mask=cs.mask,
+            outside=method.outside, outside_warn_pct=method.outside_warn_pct,
+        )
+        # Sensitivity of Mn and Mw to the low-M (late) integration limit.
+        shifted = cs.mask & (V <= cs.limits[1] - method.limit_shift)
+        try:
+            from .distribution import slice_widths
+
+            wts = cs.signal[shifted] * slice_widths(V)[shifted]
+            alt = averages(method.calibration.M(V[shifted]), wts)
+            mn_shift = 100.0 * (alt["Mn"] / dist.Mn - 1.0)
+            mw_shift = 100.0 * (alt["Mw"] / dist.Mw - 1.0)
+        except DataError:
+            mn_shift = mw_shift = float("nan")
+    notes = tuple(dict.fromkeys(str(w.message) for w in caught if issubclass(w.category, GpcWarning)))
+    for w in caught:
+        if not issubclass(w.category, GpcWarning):
+            warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
+    return InjectionResult(
+        sample_id=sample_id,
+        file=file,
+        distribution=dist,
+        corrected=cs,
+        marker_observed=marker_observed,
+        flow_factor=factor,
+        Mn_shift_pct=mn_shift,
+        Mw_shift_pct=mw_shift,
+        limit_shift=method.limit_shift,
+        scale=method.calibration.scale_label(),
+        warnings=notes,
+        metadata=dict(metadata or {}),
+    )
+
+
+def process_injection(
+    path: str | Path,
+    method: Method,
+    *,
+    sample_id: str | None = None,
+    marker_observed: float | None = None,
+) -> InjectionResult:
+    """Read and process one slice export.
+
+    Steps: read (:func:`gpctools.io.read_chromatogram` with the method's import options),
+    convert time to volume with the flow rate, correct volumes with the flow marker
+    (V_corr = V·V_ref/V_obs, SCIENCE.md section 2), subtract the baseline, apply limits
+    and exclusions (:func:`gpctools.signal.correct_signal`), compute the distribution and
+    averages (:func:`gpctools.distribution.compute_distribution`) and the Mn/Mw
+    sensitivity to the low-M limit.
+
+    Parameters
+    ----------
+    path : str or Path
+        The export file.
+    method : Method
+    sample_id : str, optional
+        Defaults to the file stem.
+    marker_observed : float, optional
+        Observed flow-marker position [mL]; otherwise searched for when the method has
+        ``flow_marker.search``.
+
+    Raises
+    ------
+    GpcError
+        Any reading or processing problem, with the file named.
+    """
+    from .io import read_chromatogram
+
+    p = Path(path)
+    chrom = read_chromatogram(p, **method.import_options.as_kwargs())
+    V = chrom.to_volume(method.flow_rate)
+    try:
+        return process_trace(
+            V, chrom.signal, method,
+            sample_id=sample_id if sample_id is not None else p.stem,
+            file=str(path), marker_observed=marker_observed, metadata=chrom.metadata,
+        )
+    except GpcError as exc:
+        if exc.path is None:
+            exc.path = str(path)
+        raise
+
+
+# -- the batch sheet ----------------------------------------------------------------------
+@dataclass(frozen=True)
+class BatchEntry:
+    """One row of the batch sheet, checked."""
+
+    row: int
+    sample_id: str
+    file: str
+    path: Path
+    role: str
+    marker_observed: float | None
+    metadata: dict[str, Any]
+    problem: str | None = None
+
+
+_ALIASES = {
+    "sample_id": ("sample_id", "sample id", "sample", "id"),
+    "file": ("file", "path", "file path", "filename", "data file"),
+    "role": ("role", "type"),
+    "flow marker [mL]": ("flow marker [ml]", "flow_marker", "flow marker", "marker [ml]"),
+}
+
+
+def read_batch_sheet(path: str | Path, *, sheet: str | int | None = None) -> list[BatchEntry]:
+    """Read and check a batch sheet.
+
+    Raises
+    ------
+    InputFormatError
+        The sheet cannot be read, or lacks the ``sample_id`` or ``file`` column. Problems
+        of single rows (empty file cell, unknown role, bad marker value) do not raise:
+        the entry carries a ``problem`` and becomes an error row of the batch.
+    """
+    from .io import read_sheet, sheet_row_number
+
+    p = Path(path)
+    df = read_sheet(p, sheet=sheet)
+    lower = {str(c).strip().lower(): c for c in df.columns}
+    found: dict[str, Any] = {}
+    for key, names in _ALIASES.items():
+        for n in names:
+            if n in lower:
+                found[key] = lower[n]
+                break
+    for key in ("sample_id", "file"):
+        if key not in found:
+            raise InputFormatError(
+                f"the batch sheet needs a '{key}' column; found columns: "
+                + ", ".join(str(c) for c in df.columns),
+                path=p,
+            )
+    used = set(found.values())
+    meta_cols = [c for c in df.columns if c not in used]
+    entries = []
+    seen_files: dict[str, int] = {}
+    for label, rec in df.iterrows():
+        rown = sheet_row_number(df, label)
+        problem = None
+        sid = rec[found["sample_id"]]
+        sid = "" if _blank(sid) else _text(sid)
+        f = rec[found["file"]]
+        f = "" if _blank(f) else _text(f)
+        role = "sample"
+        if "role" in found and not _blank(rec[found["role"]]):
+            role = _text(rec[found["role"]]).lower().replace(" ", "_").replace("-", "_")
+            if role not in ROLES:
+                problem = f"row {rown}: unknown role {role!r}; use one of {', '.join(ROLES)}"
+        marker = None
+        if "flow marker [mL]" in found and not _blank(rec[found["flow marker [mL]"]]):
+            try:
+                marker = float(str(rec[found["flow marker [mL]"]]).replace(",", "."))
+            except ValueError:
+                problem = f"row {rown}: flow marker [mL] must be a number, got {rec[found['flow marker [mL]']]!r}"
+        if not sid:
+            problem = problem or f"row {rown}: sample_id is empty"
+            sid = f"(row {rown})"
+        if not f:
+            problem = problem or f"row {rown}: file is empty"
+        fp = (p.parent / f) if f else p.parent
+        meta = {str(c): (None if _blank(rec[c]) else _plain(rec[c])) for c in meta_cols}
+        if f:
+            seen_files[f] = seen_files.get(f, 0) + 1
+        entries.append(BatchEntry(rown, sid, f, fp, role, marker, meta, problem))
+    if not entries:
+        raise InputFormatError("the batch sheet has no injection rows", path=p)
+    return entries
+
+
+def _blank(v: Any) -> bool:
+    if v is None:
+        return True
+    if isinstance(v, float) and math.isnan(v):
+        return True
+    return isinstance(v, str) and not v.strip()
+
+
+def _text(v: Any) -> str:
+    if isinstance(v, float) and v.is_integer():
+        return str(int(v))
+    return str(v).strip()
+
+
+def _plain(v: Any) -> Any:
+    if isinstance(v, (np.integer,)):
+        return int(v)
+    if isinstance(v, (np.floating,)):
+        return float(v)
+    if isinstance(v, str):
+        return v.strip()
+    return v
+
+
+# -- running a batch ----------------------------------------------------------------------
+def _error_row(entry: BatchEntry, message: str) -> dict[str, Any]:
+    row = {"sample_id": entry.sample_id, "file": entry.file, "role": entry.role, **entry.metadata}
+    for c in RESULT_COLUMNS:
+        if "shift" in c:  # label depends on the method's limit shift; filled by pandas
+            continue
+        row.setdefault(c, float("nan") if c.endswith("]") else "")
+    row["status"] = "error"
+    row["error"] = message
+    return row
+
+
+def _run_entry(entry: BatchEntry, method: Method, dist_dir: str | None, keep: bool):
+    """Process one entry; returns (row, result-or-None). Never raises for bad data."""
+    if entry.problem:
+        return _error_row(entry, entry.problem), None
+    try:
+        res = process_injection(entry.path, method, sample_id=entry.sample_id, marker_observed=entry.marker_observed)
+    except GpcError as exc:
+        return _error_row(entry, str(exc)), None
+    except Exception as exc:  # one bad injection must not sink the batch
+        return _error_row(entry, f"{entry.path}: unexpected {type(exc).__name__}: {exc}"), None
+    row = {"sample_id": entry.sample_id, "file": entry.file, "role": entry.role, **entry.metadata}
+    row.update(res.row())
+    row["file"] = entry.file
+    if dist_dir is not None:
+        from ._atomic import write_csv
+
+        write_csv(Path(dist_dir) / f"{_safe_name(entry.sample_id)}_row{entry.row}.csv",
+                  res.distribution.table(), float_format="%.8g")
+    return row, (res if keep else None)
+
+
+def _safe_name(text: str) -> str:
+    keep = "".join(ch if ch.isalnum() or ch in "-_." else "_" for ch in text)
+    return keep.strip("._") or "sample"
+
+
+def _worker(args):
+    entry, method, dist_dir, keep = args
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        return _run_entry(entry, method, dist_dir, keep)
+
+
+@dataclass
+class BatchResult:
+    """Results of a batch: the table, the per-injection results and the inputs.
+
+    Attributes
+    ----------
+    table : pandas.DataFrame
+        One row per injection, in sheet order (see :data:`RESULT_COLUMNS`).
+    injections : list of InjectionResult or None
+        Same order as the table; None for failed rows (or when not kept).
+    entries : list of BatchEntry
+    method : Method
+    sheet : str
+        Path of the batch sheet.
+    """
+
+    table: Any
+    injections: list[InjectionResult | None]
+    entries: list[BatchEntry]
+    method: Method
+    sheet: str
+
+    @property
+    def calibration(self):
+        return self.method.calibration
+
+    @property
+    def failed(self) -> int:
+        return int((self.table["status"] == "error").sum())
+
+    def summary(self) -> dict[str, Any]:
+        return {
+            "sheet": self.sheet,
+            "injections": len(self.entries),
+            "failed": self.failed,
+            "method": self.method.summary(),
+        }
+
+    def write(self, outdir: str | Path, *, distributions: bool = True) -> dict[str, Path]:
+        """Write results.csv, results.xlsx, calibration.csv, manifest.json (and distributions/)."""
+        return write_batch_outputs(self, outdir, distributions=distributions)
+
+
+def _order_columns(df, meta_cols):
+    front = ["sample_id", "file", "role", *meta_cols]
+    rest = [c for c in df.columns if c not in front]
+    return df[[c for c in front if c in df.columns] + rest]
+
+
+def iter_batch(
+    entries: Iterable[BatchEntry],
+    method: Method,
+    *,
+    workers: int = 1,
+    dist_dir: str | Path | None = None,
+    keep: bool = True,
+) -> Iterator[tuple[dict[str, Any], InjectionResult | None]]:
+    """Yield (row, result) per entry in order; parallel over processes when workers > 1."""
+    entries = list(entries)
+    dd = None if dist_dir is None else str(dist_dir)
+    if workers <= 1 or len(entries) < 4:
+        for e in entries:
+            yield _run_entry(e, method, dd, keep)
+        return
+    from concurrent.futures import ProcessPoolExecutor
+
+    with ProcessPoolExecutor(max_workers=workers) as pool:
+        chunk = max(1, min(32, len(entries) // (workers * 4) or 1))
+        yield from pool.map(_worker, [(e, method, dd, keep) for e in entries], chunksize=chunk)
+
+
+def run_batch(
+    sheet_path: str | Path,
+    method: Method,
+    *,
+    sheet: str | int | None = None,
+    workers: int = 1,
+    outdir: str | Path | None = None,
+    keep_distributions: bool = True,
+    progress: Callable[[int, int], None] | None = None,
+) -> BatchResult:
+    """Process every injection of a batch sheet.
+
+    Parameters
+    ----------
+    sheet_path : str or Path
+        The batch sheet (CSV or XLSX).
+    method : Method
+        From :func:`gpctools.method.load_method`.
+    sheet : str or int, optional
+        Workbook sheet of the batch sheet.
+    workers : int
+        Processes to use (1 = in this process).
+    outdir : str or Path, optional
+        When given, per-injection distribution tables are written to
+        ``outdir/distributions/`` as each injection finishes (memory stays flat).
+    keep_distributions : bool
+        Keep each :class:`InjectionResult` in memory (for plots and reports).
+    progress : callable, optional
+        Called as ``progress(done, total)`` after each injection.
+    """
+    import pandas as pd
+
+    entries = read_batch_sheet(sheet_path, sheet=sheet)
+    dist_dir = None if outdir is None else Path(outdir) / "distributions"
+    rows, results = [], []
+    total = len(entries)
+    for i, (row, res) in enumerate(iter_batch(entries, method, workers=workers, dist_dir=dist_dir,
+                                              keep=keep_distributions), start=1):
+        rows.append(row)
+        results.append(res)
+        if progress is not None:
+            progress(i, total)
+    meta_cols = list(entries[0].metadata) if entries else []
+    table = _order_columns(pd.DataFrame(rows), meta_cols)
+    return BatchResult(table=table, injections=results, entries=entries, method=method, sheet=str(sheet_path))
+
+
+def write_batch_outputs(result: BatchResult, outdir: str | Path, *, distributions: bool = True) -> dict[str, Path]:
+    """Write the batch outputs atomically; returns the paths written by name."""
+    import pandas as pd
+
+    from . import __version__
+    from ._atomic import write_csv, write_text
+
+    out = Path(outdir)
+    out.mkdir(parents=True, exist_ok=True)
+    paths: dict[str, Path] = {}
+    paths["results.csv"] = write_csv(out / "results.csv", result.table)
+    paths["results.xlsx"] = write_xlsx_table(out / "results.xlsx", {"results": result.table})
+    cal = pd.DataFrame(result.calibration.standards_table())
+    paths["calibration.csv"] = write_csv(out / "calibration.csv", cal)
+    if distributions:
+        for entry, res in zip(result.entries, result.injections):
+            if res is not None:
+                paths[f"distributions/{entry.sample_id}"] = write_csv(
+                    out / "distributions" / f"{_safe_name(entry.sample_id)}_row{entry.row}.csv",
+                    res.distribution.table(), float_format="%.8g",
+                )
+    manifest = {
+        "gpctools": __version__,
+        "batch sheet": result.sheet,
+        "injections": len(result.entries),
+        "failed": result.failed,
+        "method": {k: v for k, v in result.method.summary().items() if k != "calibration"},
+        "calibration": result.calibration.summary(),
+    }
+    paths["manifest.json"] = write_text(out / "manifest.json", json.dumps(manifest, indent=2, default=str) + "\n")
+    return paths
+
+
+_FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
+
+
+def inert_text(value: Any) -> Any:
+    """Make a string safe for a spreadsheet cell: text that a spreadsheet would run as a
+    formula (starting with = + - @ tab or CR) is prefixed with an apostrophe. Numbers are
+    returned unchanged (OWASP guidance on CSV/formula injection, common practice)."""
+    if isinstance(value, str) and value.startswith(_FORMULA_START):
+        return "'" + value
+    return value
+
+
+def write_xlsx_table(path: str | Path, sheets: dict[str, Any]) -> Path:
+    """Write DataFrames to an XLSX workbook atomically, one sheet each, text made inert."""
+    from openpyxl import Workbook
+
+    from ._atomic import atomic_path
+
+    wb = Workbook()
+    wb.remove(wb.active)
+    for name, df in sheets.items():
+        ws = wb.create_sheet(title=str(name)[:31])
+        ws.append([str(c) for c in df.columns])
+        for rec in df.itertuples(index=False, name=None):
+            ws.append([_cell(v) for v in rec])
+        ws.freeze_panes = "A2"
+    with atomic_path(path) as tmp:
+        wb.save(tmp)
+    return Path(path)
+
+
+def _cell(v: Any) -> Any:
+    if v is None:
+        return None
+    if isinstance(v, (np.floating, float)):
+        f = float(v)
+        return None if math.isnan(f) else f
+    if isinstance(v, (np.integer,)):
+        return int(v)
+    if isinstance(v, (int, bool)):
+        return v
+    return inert_text(str(v))

@@ -1,0 +1,220 @@
+"""Command-line interface: parse options, call the library, format the answer.
+
+No science lives here. Every command runs inside :func:`_guard`, which turns a
+:class:`~gpctools.errors.GpcError` into a one-line message on stderr and exit code 2, and
+any other exception into a short internal-error message and exit code 3 (``--debug``
+shows the traceback). A batch with failed injections exits 1 after writing everything.
+"""
+
+from __future__ import annotations
+
+import functools
+import os
+import sys
+import warnings
+from pathlib import Path
+from typing import Optional
+
+import typer
+
+app = typer.Typer(
+    add_completion=False,
+    no_args_is_help=True,
+    help="SEC/GPC slice exports to molar-mass averages, chain-transfer constants, diagnosis and QC.",
+)
+
+_STATE = {"debug": False}
+
+EXIT_FAILED_ROWS = 1
+EXIT_USER_ERROR = 2
+EXIT_INTERNAL = 3
+
+
+def _err(text: str) -> None:
+    typer.echo(text, err=True)
+
+
+def _show_warning(message, category, filename, lineno, file=None, line=None):  # noqa: ARG001
+    _err(f"warning: {message}")
+
+
+def _guard(func):
+    """Run a command: clear messages, no tracebacks, meaningful exit codes."""
+
+    @functools.wraps(func)
+    def wrapper(*args, **kwargs):
+        from .errors import GpcError
+
+        old = warnings.showwarning
+        warnings.showwarning = _show_warning
+        try:
+            return func(*args, **kwargs)
+        except typer.Exit:
+            raise
+        except GpcError as exc:
+            _err(f"error: {exc}")
+            raise typer.Exit(EXIT_USER_ERROR) from None
+        except (FileNotFoundError, PermissionError, IsADirectoryError) as exc:
+            _err(f"error: {exc.filename}: {exc.strerror}")
+            raise typer.Exit(EXIT_USER_ERROR) from None
+        except KeyboardInterrupt:
+            _err("interrupted")
+            raise typer.Exit(130) from None
+        except Exception as exc:  # pragma: no cover - last resort
+            if _STATE["debug"]:
+                raise
+            _err(f"internal error: {type(exc).__name__}: {exc} (run with --debug for details)")
+            raise typer.Exit(EXIT_INTERNAL) from None
+        finally:
+            warnings.showwarning = old
+
+    return wrapper
+
+
+@app.callback()
+def _root(
+    debug: bool = typer.Option(False, "--debug", help="Show tracebacks of internal errors."),
+) -> None:
+    _STATE["debug"] = debug
+
+
+def _progress_bar(total: int, label: str):
+    """A rich progress bar on stderr (rich comes with typer); silent when not a terminal."""
+    from rich.console import Console
+    from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeRemainingColumn
+
+    console = Console(stderr=True)
+    prog = Progress(
+        TextColumn(label), BarColumn(), MofNCompleteColumn(), TimeRemainingColumn(),
+        console=console, transient=True, disable=not console.is_terminal,
+    )
+    return prog
+
+
+def _fmt(v) -> str:
+    try:
+        f = float(v)
+    except (TypeError, ValueError):
+        return str(v)
+    if f != f:
+        return "-"
+    if abs(f) >= 1000:
+        return f"{f:,.0f}"
+    return f"{f:.3g}"
+
+
+def _print_table(rows: list[dict], columns: list[str]) -> None:
+    widths = {c: max(len(c), *(len(_fmt(r.get(c, ""))) for r in rows)) if rows else len(c) for c in columns}
+    typer.echo("  ".join(c.ljust(widths[c]) for c in columns))
+    for r in rows:
+        typer.echo("  ".join(_fmt(r.get(c, "")).ljust(widths[c]) for c in columns))
+
+
+def _run_batch_with_progress(sheet: Path, method, out: Path, workers: int, sheet_name=None):
+    from .batch import read_batch_sheet, run_batch
+
+    total = len(read_batch_sheet(sheet, sheet=sheet_name))
+    with _progress_bar(total, "injections") as prog:
+        task = prog.add_task("batch", total=total)
+        result = run_batch(
+            sheet, method, sheet=sheet_name, workers=workers, outdir=out,
+            progress=lambda done, tot: prog.update(task, completed=done),
+        )
+    result.write(out, distributions=False)  # distributions were written while running
+    return result
+
+
+SUMMARY_COLUMNS = ["sample_id", "status", "Mn [g/mol]", "Mw [g/mol]", "Mp [g/mol]", "dispersity [-]",
+                   "outside calibration [% mass]"]
+
+
+@app.command("batch")
+@_guard
+def batch_cmd(
+    sheet: Path = typer.Argument(..., help="Batch sheet (CSV or XLSX): sample_id, file, optional role and metadata."),
+    method: Path = typer.Option(..., "--method", "-m", help="Method file (TOML)."),
+    out: Path = typer.Option(Path("gpctools-out"), "--out", "-o", help="Output folder."),
+    workers: int = typer.Option(1, "--workers", "-j", min=1, help="Processes to use."),
+    sheet_name: Optional[str] = typer.Option(None, "--sheet", help="Workbook sheet of the batch sheet."),
+) -> None:
+    """Process every injection of a batch sheet and write the results table."""
+    from .method import load_method
+
+    m = load_method(method)
+    result = _run_batch_with_progress(sheet, m, out, workers, sheet_name)
+    rows = result.table.to_dict("records")
+    _print_table(rows, SUMMARY_COLUMNS)
+    typer.echo(f"\nmolar-mass scale: {m.calibration.scale_label()}")
+    typer.echo(f"wrote {out}/results.csv, results.xlsx, calibration.csv, manifest.json, distributions/")
+    if result.failed:
+        for r in rows:
+            if r["status"] == "error":
+                _err(f"failed: {r['sample_id']}: {r['error']}")
+        _err(f"{result.failed} of {len(rows)} injections failed")
+        raise typer.Exit(EXIT_FAILED_ROWS)
+
+
+@app.command("calibrate")
+@_guard
+def calibrate_cmd(
+    method: Path = typer.Argument(..., help="Method file (TOML) with the narrow standards."),
+) -> None:
+    """Fit the method's calibration and show each standard's residual."""
+    from .method import load_method
+
+    m = load_method(method)
+    s = m.calibration.summary()
+    _print_table(s["standards_table"], ["standard", "Mp [g/mol]", "volume [mL]", "fitted M [g/mol]", "residual [%]"])
+    typer.echo(f"\norder {s['order']}, R^2 = {s['R^2 [-]']:.6f}, worst residual {s['worst residual [%]']:+.2f} %")
+    lo, hi = s["calibrated range [mL]"]
+    typer.echo(f"calibrated range {lo:g}-{hi:g} mL; molar-mass scale: {s['molar-mass scale']}")
+    for w in s["warnings"]:
+        _err(f"warning: {w}")
+
+
+@app.command("inspect")
+@_guard
+def inspect_cmd(
+    file: Path = typer.Argument(..., help="One slice export (CSV, TXT or XLSX)."),
+    sheet: Optional[str] = typer.Option(None, "--sheet", help="Workbook sheet (name or 0-based index)."),
+) -> None:
+    """Show how a slice export is read: columns, units, points and metadata."""
+    from .io import read_chromatogram
+
+    sh = int(sheet) if sheet is not None and sheet.isdigit() else sheet
+    c = read_chromatogram(file, sheet=sh)
+    typer.echo(f"file: {c.path}")
+    typer.echo(f"x: {c.x_column!r} ({c.x_kind}, {c.x_unit}), {c.x[0]:g} to {c.x[-1]:g}")
+    typer.echo(f"signal: {c.signal_column!r}, {c.x.size} slices, header on line/row {c.header_row}")
+    for k, v in c.metadata.items():
+        typer.echo(f"  {k}: {v}")
+
+
+def _sample_runs_dir() -> Path:
+    here = Path(__file__).resolve().parent.parent / "sample_runs"
+    return here
+
+
+@app.command("demo")
+@_guard
+def demo_cmd(
+    out: Path = typer.Option(Path("gpctools-demo"), "--out", "-o", help="Output folder."),
+    samples: Optional[Path] = typer.Option(None, "--samples", help="Folder with the sample runs (default: the bundled sample_runs/)."),
+) -> None:
+    """Run the whole job on the bundled sample_runs and compare with the stored true values."""
+    from .demo import run_demo
+
+    folder = samples or _sample_runs_dir()
+    report = run_demo(folder, out, echo=typer.echo)
+    if report["failed"]:
+        raise typer.Exit(EXIT_FAILED_ROWS)
+
+
+def main() -> None:  # console-script entry point
+    if os.environ.get("GPCTOOLS_DEBUG"):
+        _STATE["debug"] = True
+    app(prog_name="gpctools")
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())
