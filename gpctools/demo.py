@@ -57,10 +57,10 @@ def _write_xlsx(path: Path, x: np.ndarray, h: np.ndarray, meta: dict[str, str]) 
     from ._atomic import atomic_path
 
     wb = Workbook()
-    ws0 = wb.active
-    ws0.title = "Info"
-    ws0.append(["Export of one injection"])
-    ws = wb.create_sheet("Slices")
+    ws = wb.active
+    ws.title = "Slices"
+    info = wb.create_sheet("Info")
+    info.append(["Export of one injection"])
     for k, v in meta.items():
         ws.append([f"{k}:", v])
     ws.append([])
