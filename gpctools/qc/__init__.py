@@ -1,0 +1,102 @@
+"""Quality control of batch results: spec limits, system suitability, decisions, trends.
+
+Public API
+----------
+read_specs(path, *, sheet=None) -> SpecSheet
+    The spec-limits sheet (one row per product; ``<quantity> min|max|target [unit]``
+    columns and ``check-standard tolerance [%]``).
+system_suitability(table, calibration, *, specs=None, limits=None,
+                   reference_flow_marker=None) -> tuple[SuitabilityResult, ...]
+    Per sequence: calibration R² and residuals, check standards, flow-marker drift,
+    replicate RSD, mass outside calibration.
+decide(table, specs, suitability=()) -> Decisions
+    pass / fail / not reportable / no result / no spec, per sample and per batch.
+individuals_chart(values, labels=None, *, quantity="", group="", sets_limits=None,
+                  rules=WESTERN_ELECTRIC_RULES) -> ControlChart
+    Shewhart individuals chart (sigma from the mean moving range) with the Western
+    Electric run rules WE1-WE4.
+evaluate_qc(table, specs, *, calibration=None, reference_flow_marker=None, history=(),
+            settings=None) -> QCResult
+    All of the above for one results table (no files written; see
+    :func:`gpctools.report.run_qc` for the reports).
+"""
+
+from __future__ import annotations
+
+from gpctools.qc.decisions import (
+    FAIL,
+    NO_RESULT,
+    NO_SPEC,
+    NOT_REPORTABLE,
+    PASS,
+    BatchDecision,
+    Decisions,
+    SampleDecision,
+    decide,
+)
+from gpctools.qc.evaluate import QCResult, QCSettings, QCWarning, evaluate_qc, trend_points
+from gpctools.qc.specs import (
+    CHECK_STANDARD_TOLERANCE_COLUMN,
+    SPEC_QUANTITIES,
+    Limit,
+    ProductSpec,
+    SpecSheet,
+    read_specs,
+    specs_from_frame,
+)
+from gpctools.qc.suitability import (
+    SuitabilityCheck,
+    SuitabilityLimits,
+    SuitabilityResult,
+    sequence_suitability,
+    system_suitability,
+)
+from gpctools.qc.trends import (
+    D2_MOVING_RANGE,
+    RULE_SET_NAME,
+    WESTERN_ELECTRIC_RULES,
+    ControlChart,
+    RunRule,
+    TrendWarning,
+    Violation,
+    individuals_chart,
+    rule_violations,
+)
+
+__all__ = [
+    "PASS",
+    "FAIL",
+    "NOT_REPORTABLE",
+    "NO_RESULT",
+    "NO_SPEC",
+    "BatchDecision",
+    "Decisions",
+    "SampleDecision",
+    "decide",
+    "QCResult",
+    "QCSettings",
+    "QCWarning",
+    "evaluate_qc",
+    "trend_points",
+    "CHECK_STANDARD_TOLERANCE_COLUMN",
+    "SPEC_QUANTITIES",
+    "Limit",
+    "ProductSpec",
+    "SpecSheet",
+    "read_specs",
+    "specs_from_frame",
+    "SuitabilityCheck",
+    "SuitabilityLimits",
+    "SuitabilityResult",
+    "sequence_suitability",
+    "system_suitability",
+    "D2_MOVING_RANGE",
+    "RULE_SET_NAME",
+    "WESTERN_ELECTRIC_RULES",
+    "ControlChart",
+    "RunRule",
+    "TrendWarning",
+    "Violation",
+    "individuals_chart",
+    "rule_violations",
+]

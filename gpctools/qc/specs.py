@@ -1,0 +1,548 @@
+"""Spec-limits sheet: per product (grade) limits on molar-mass results.
+
+The sheet is a table with one row per product and one column per limit, the unit in
+every header (wide form)::
+
+    product | description | Mn min [g/mol] | Mn max [g/mol] | Mn target [g/mol] | Mw min [g/mol] | ...
+            | dispersity min [-] | dispersity max [-] | check-standard tolerance [%]
+
+Limit headers read ``<quantity> <min|max|target> [<unit>]`` where ``<quantity>`` is one of
+``Mn``, ``Mw``, ``Mz``, ``Mz+1``, ``Mp``, ``Mp (dw/dlogM)`` (unit ``g/mol``) or
+``dispersity`` (unit ``-``); the limit applies to the results column ``<quantity> [<unit>]``.
+An empty cell means "no limit". ``check-standard tolerance [%]`` is the allowed deviation of
+a check standard's average from its assigned value, for rows whose ``product`` names a
+check standard. Columns without a unit (``description``, ``notes``, ...) are kept as text.
+Limits are inclusive: a value equal to ``min`` or ``max`` passes.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import math
+import os
+import re
+from collections.abc import Mapping
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import pandas as pd
+
+from gpctools.errors import InputFormatError
+
+__all__ = [
+    "SPEC_QUANTITIES",
+    "CHECK_STANDARD_TOLERANCE_COLUMN",
+    "Limit",
+    "ProductSpec",
+    "SpecSheet",
+    "read_specs",
+    "specs_from_frame",
+    "label_text",
+    "within",
+]
+
+#: Quantities a limit can be put on: name -> results-table column (unit in the name).
+SPEC_QUANTITIES: dict[str, str] = {
+    "Mn": "Mn [g/mol]",
+    "Mw": "Mw [g/mol]",
+    "Mz": "Mz [g/mol]",
+    "Mz+1": "Mz+1 [g/mol]",
+    "Mp": "Mp [g/mol]",
+    "Mp (dw/dlogM)": "Mp (dw/dlogM) [g/mol]",
+    "dispersity": "dispersity [-]",
+}
+#: Header of the check-standard tolerance column.
+CHECK_STANDARD_TOLERANCE_COLUMN = "check-standard tolerance [%]"
+
+_LIMIT_HEADER = re.compile(r"^(?P<q>.+?)\s+(?P<kind>min|max|target)\s*\[(?P<unit>[^\]]*)\]$")
+_UNIT_HEADER = re.compile(r"\[[^\]]*\]\s*$")
+
+
+def label_text(value: Any) -> str:
+    """A product / batch / sample label as text (``200.0`` read from a sheet becomes ``"200"``).
+
+    Parameters
+    ----------
+    value : Any
+        Cell value.
+
+    Returns
+    -------
+    str
+        Stripped text; ``""`` for empty cells.
+
+    Examples
+    --------
+    >>> label_text(200.0), label_text(" PA-20 "), label_text(None)
+    ('200', 'PA-20', '')
+    """
+    if value is None:
+        return ""
+    if isinstance(value, float):
+        if math.isnan(value):
+            return ""
+        if value.is_integer():
+            return str(int(value))
+    try:
+        if pd.isna(value):
+            return ""
+    except (TypeError, ValueError):
+        pass
+    return str(value).strip()
+
+
+#: Relative slack of limit comparisons, so that a value equal to a limit up to floating-point
+#: rounding (e.g. a mean of replicates) counts as equal [-].
+REL_SLACK = 1e-12
+
+
+def _close(value: float, limit: float) -> bool:
+    return abs(value - limit) <= REL_SLACK * max(abs(limit), 1e-300)
+
+
+def within(value: float, limit: float, comparison: str) -> bool:
+    """``value <= limit`` (or ``>=``), inclusive, with :data:`REL_SLACK` for rounding.
+
+    Examples
+    --------
+    >>> within(100 * (105000 / 100000 - 1), 5.0, "<=")
+    True
+    """
+    if comparison == "<=":
+        return value <= limit or _close(value, limit)
+    return value >= limit or _close(value, limit)
+
+
+def _fmt(value: float, unit: str) -> str:
+    """Format a number with its unit for messages (4 significant digits at least)."""
+    if unit == "g/mol":
+        text = f"{value:,.0f}".replace(",", " ") if abs(value) >= 1000 else f"{value:.4g}"
+    else:
+        text = f"{value:.4g}"
+    return f"{text} {unit}" if unit != "-" else text
+
+
+@dataclass(frozen=True)
+class Limit:
+    """Limits on one results column for one product.
+
+    Attributes
+    ----------
+    quantity : str
+        Quantity name, e.g. ``"Mw"``.
+    column : str
+        Results-table column, e.g. ``"Mw [g/mol]"``.
+    unit : str
+        Unit of the limits (``"g/mol"`` or ``"-"``).
+    min, max, target : float or None
+        Inclusive lower and upper limits and the target value; ``None`` where not given.
+    """
+
+    quantity: str
+    column: str
+    unit: str
+    min: float | None = None
+    max: float | None = None
+    target: float | None = None
+
+    def check(self, value: float) -> tuple[bool | None, str]:
+        """Compare one value with the limits.
+
+        Parameters
+        ----------
+        value : float
+            Result in the unit of the limit.
+
+        Returns
+        -------
+        (bool or None, str)
+            ``True`` within limits (inclusive), ``False`` outside, ``None`` when the value
+            is missing (NaN); and a reason in words.
+        """
+        if value is None or not math.isfinite(float(value)):
+            return None, f"{self.quantity}: no value"
+        v = float(value)
+        if self.min is not None and v < self.min and not _close(v, self.min):
+            return False, (
+                f"{self.quantity} {_fmt(v, self.unit)} below min {_fmt(self.min, self.unit)}"
+            )
+        if self.max is not None and v > self.max and not _close(v, self.max):
+            return False, (
+                f"{self.quantity} {_fmt(v, self.unit)} above max {_fmt(self.max, self.unit)}"
+            )
+        return True, f"{self.quantity} {_fmt(v, self.unit)} within {self.describe()}"
+
+    def describe(self) -> str:
+        """Limits in words, e.g. ``"90 000-110 000 g/mol"``."""
+        unit = "" if self.unit == "-" else f" {self.unit}"
+        lo = _fmt(self.min, "-") if self.min is not None else None
+        hi = _fmt(self.max, "-") if self.max is not None else None
+        if self.unit == "g/mol":
+            lo = f"{self.min:,.0f}".replace(",", " ") if self.min is not None else None
+            hi = f"{self.max:,.0f}".replace(",", " ") if self.max is not None else None
+        if lo is not None and hi is not None:
+            return f"{lo} to {hi}{unit}"
+        if lo is not None:
+            return f">= {lo}{unit}"
+        if hi is not None:
+            return f"<= {hi}{unit}"
+        return "no limit"
+
+    def deviation_from_target_pct(self, value: float) -> float:
+        """``100·(value/target - 1)`` [%]; NaN without a target."""
+        if self.target is None or not math.isfinite(float(value)):
+            return math.nan
+        return 100.0 * (float(value) / self.target - 1.0)
+
+    def summary(self) -> dict[str, Any]:
+        """JSON-safe description."""
+        return {
+            "quantity": self.quantity,
+            "column": self.column,
+            "unit": self.unit,
+            "min": self.min,
+            "max": self.max,
+            "target": self.target,
+        }
+
+
+@dataclass(frozen=True)
+class ProductSpec:
+    """All limits of one product (grade) or check standard.
+
+    Attributes
+    ----------
+    product : str
+        Product / grade code as written in the batch sheet's ``product`` column.
+    limits : tuple of Limit
+        One entry per limited quantity, in sheet order.
+    check_standard_tolerance_pct : float or None
+        Allowed |average/assigned - 1| of a check standard [%].
+    description : str
+        Free text from a ``description`` column, if any.
+    row : int or None
+        Row of the spec sheet this came from (as a user counts).
+    """
+
+    product: str
+    limits: tuple[Limit, ...] = ()
+    check_standard_tolerance_pct: float | None = None
+    description: str = ""
+    row: int | None = None
+
+    def limit(self, quantity: str) -> Limit | None:
+        """The limit on ``quantity`` (``"Mw"``) or on a column (``"Mw [g/mol]"``), if any."""
+        for lim in self.limits:
+            if quantity in (lim.quantity, lim.column):
+                return lim
+        return None
+
+    def summary(self) -> dict[str, Any]:
+        """JSON-safe description."""
+        return {
+            "product": self.product,
+            "description": self.description,
+            "row": self.row,
+            "check-standard tolerance [%]": self.check_standard_tolerance_pct,
+            "limits": [lim.summary() for lim in self.limits],
+        }
+
+
+@dataclass(frozen=True)
+class SpecSheet:
+    """The parsed spec-limits sheet.
+
+    Attributes
+    ----------
+    products : tuple of ProductSpec
+        In sheet order.
+    path : str or None
+        The file read (``None`` when built from a frame).
+    sha256 : str or None
+        SHA-256 of the file bytes.
+    """
+
+    products: tuple[ProductSpec, ...]
+    path: str | None = None
+    sha256: str | None = None
+    _index: Mapping[str, ProductSpec] = field(default_factory=dict, repr=False, compare=False)
+
+    def __post_init__(self) -> None:
+        object.__setattr__(self, "_index", {p.product.casefold(): p for p in self.products})
+
+    def get(self, product: Any) -> ProductSpec | None:
+        """The spec of ``product`` (case-insensitive), or ``None``."""
+        return self._index.get(label_text(product).casefold())
+
+    def __contains__(self, product: object) -> bool:
+        return self.get(product) is not None
+
+    def to_frame(self) -> pd.DataFrame:
+        """Long table: product, quantity, min, max, target with the unit in a column."""
+        rows = []
+        for p in self.products:
+            for lim in p.limits:
+                rows.append(
+                    {
+                        "product": p.product,
+                        "quantity": lim.column,
+                        "min": lim.min,
+                        "max": lim.max,
+                        "target": lim.target,
+                        "limits": lim.describe(),
+                    }
+                )
+            if p.check_standard_tolerance_pct is not None:
+                rows.append(
+                    {
+                        "product": p.product,
+                        "quantity": CHECK_STANDARD_TOLERANCE_COLUMN,
+                        "min": None,
+                        "max": p.check_standard_tolerance_pct,
+                        "target": None,
+                        "limits": f"|deviation| <= {p.check_standard_tolerance_pct:g} %",
+                    }
+                )
+        return pd.DataFrame(rows, columns=["product", "quantity", "min", "max", "target", "limits"])
+
+    def summary(self) -> dict[str, Any]:
+        """JSON-safe description."""
+        return {
+            "path": self.path,
+            "sha256": self.sha256,
+            "products": [p.summary() for p in self.products],
+        }
+
+
+def read_specs(path: str | os.PathLike[str], *, sheet: str | int | None = None) -> SpecSheet:
+    """Read a spec-limits sheet (CSV or XLSX).
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+        The sheet; see the module documentation for its columns.
+    sheet : str or int, optional
+        Workbook sheet; default the first.
+
+    Returns
+    -------
+    SpecSheet
+
+    Raises
+    ------
+    gpctools.errors.InputFormatError
+        Naming the file, row and column: missing ``product`` column, empty or duplicate
+        product, an unknown quantity or unit in a limit header, a value that is not a
+        number, a negative molar mass, ``min > max`` or a target outside the limits.
+    """
+    from gpctools.io import read_sheet
+
+    frame = read_sheet(path, sheet=sheet)
+    digest = hashlib.sha256(Path(path).read_bytes()).hexdigest()
+    spec = specs_from_frame(frame, path=str(path), sheet=frame.attrs.get("sheet"))
+    return SpecSheet(spec.products, path=str(path), sha256=digest)
+
+
+def _number(value: Any, *, path: str | None, sheet: str | None, row: int | None, column: str):
+    if value is None:
+        return None
+    if isinstance(value, bool):
+        raise InputFormatError(
+            f"{value!r} is not a number; write the limit as a plain number or leave it empty",
+            path=path,
+            sheet=sheet,
+            row=row,
+            column=column,
+        )
+    if isinstance(value, (int, float)):
+        v = float(value)
+        if math.isnan(v):
+            return None
+    else:
+        text = str(value).strip()
+        if text == "" or text.casefold() in {"nan", "none", "-", "n/a"}:
+            return None
+        try:
+            v = float(text)
+        except ValueError:
+            raise InputFormatError(
+                f"{text!r} is not a number; write the limit as a plain number such as "
+                "150000 (no thousands separators, unit in the header) or leave it empty",
+                path=path,
+                sheet=sheet,
+                row=row,
+                column=column,
+            ) from None
+    if not math.isfinite(v):
+        raise InputFormatError(
+            f"{value!r} is not a finite number; leave the cell empty for no limit",
+            path=path,
+            sheet=sheet,
+            row=row,
+            column=column,
+        )
+    return v
+
+
+def specs_from_frame(
+    frame: pd.DataFrame, *, path: str | None = None, sheet: str | None = None
+) -> SpecSheet:
+    """Build a :class:`SpecSheet` from a table with the spec-sheet columns.
+
+    Parameters
+    ----------
+    frame : pandas.DataFrame
+        As returned by :func:`gpctools.io.read_sheet` (its ``attrs["source_rows"]`` is used
+        for row numbers in messages) or built by hand. Not modified.
+    path, sheet : str, optional
+        Named in error messages.
+
+    Returns
+    -------
+    SpecSheet
+
+    Raises
+    ------
+    gpctools.errors.InputFormatError
+        See :func:`read_specs`.
+    """
+    columns = [str(c) for c in frame.columns]
+    header_row = frame.attrs.get("header_row", 1)
+    source_rows = frame.attrs.get("source_rows") or [i + 2 for i in range(len(frame))]
+    by_fold = {c.casefold(): c for c in columns}
+    if "product" not in by_fold:
+        raise InputFormatError(
+            "no 'product' column; the spec sheet needs one row per product with its code "
+            "in a 'product' column (see templates/spec_limits.csv)",
+            path=path,
+            sheet=sheet,
+            row=header_row,
+        )
+    product_col = by_fold["product"]
+    limit_cols: list[tuple[str, str, str, str]] = []  # (header, quantity, kind, unit)
+    tol_col: str | None = None
+    desc_col = by_fold.get("description")
+    for c in columns:
+        if c == product_col:
+            continue
+        if c.casefold() == CHECK_STANDARD_TOLERANCE_COLUMN.casefold():
+            tol_col = c
+            continue
+        m = _LIMIT_HEADER.match(c)
+        if m is None:
+            if _UNIT_HEADER.search(c):
+                raise InputFormatError(
+                    "a header with a unit must read '<quantity> <min|max|target> [<unit>]' "
+                    f"(quantities: {', '.join(SPEC_QUANTITIES)}) or "
+                    f"'{CHECK_STANDARD_TOLERANCE_COLUMN}'; rename the column or remove its unit",
+                    path=path,
+                    sheet=sheet,
+                    row=header_row,
+                    column=c,
+                )
+            continue  # free text column
+        q, kind, unit = m.group("q").strip(), m.group("kind"), m.group("unit").strip()
+        known = {k.casefold(): k for k in SPEC_QUANTITIES}
+        if q.casefold() not in known:
+            raise InputFormatError(
+                f"unknown quantity {q!r}; limits can be set on {', '.join(SPEC_QUANTITIES)}",
+                path=path,
+                sheet=sheet,
+                row=header_row,
+                column=c,
+            )
+        q = known[q.casefold()]
+        want = "-" if q == "dispersity" else "g/mol"
+        if unit != want:
+            raise InputFormatError(
+                f"unit [{unit}] for {q}; write {q} limits in [{want}]",
+                path=path,
+                sheet=sheet,
+                row=header_row,
+                column=c,
+            )
+        limit_cols.append((c, q, kind, unit))
+
+    products: list[ProductSpec] = []
+    seen: dict[str, int] = {}
+    for pos in range(len(frame)):
+        row = int(source_rows[pos]) if pos < len(source_rows) else pos + 2
+        record = frame.iloc[pos]
+        name = label_text(record[product_col])
+        if not name:
+            raise InputFormatError(
+                "empty product code; give every row the product (grade) code used in the "
+                "batch sheet, or delete the row",
+                path=path,
+                sheet=sheet,
+                row=row,
+                column=product_col,
+            )
+        if name.casefold() in seen:
+            raise InputFormatError(
+                f"product {name!r} appears again (first in row {seen[name.casefold()]}); "
+                "keep one row per product",
+                path=path,
+                sheet=sheet,
+                row=row,
+                column=product_col,
+            )
+        seen[name.casefold()] = row
+        values: dict[str, dict[str, float | None]] = {}
+        for c, q, kind, unit in limit_cols:
+            v = _number(record[c], path=path, sheet=sheet, row=row, column=c)
+            if v is not None and v <= 0 and unit == "g/mol":
+                raise InputFormatError(
+                    f"{v:g} g/mol is not a molar mass; limits must be positive",
+                    path=path,
+                    sheet=sheet,
+                    row=row,
+                    column=c,
+                )
+            if v is not None and q == "dispersity" and v < 1.0:
+                raise InputFormatError(
+                    f"dispersity {v:g} is below 1, which no sample can have; check the value",
+                    path=path,
+                    sheet=sheet,
+                    row=row,
+                    column=c,
+                )
+            values.setdefault(q, {})[kind] = v
+        limits = []
+        for q, kinds in values.items():
+            lo, hi, tgt = kinds.get("min"), kinds.get("max"), kinds.get("target")
+            if lo is None and hi is None and tgt is None:
+                continue
+            unit = "-" if q == "dispersity" else "g/mol"
+            if lo is not None and hi is not None and lo > hi:
+                raise InputFormatError(
+                    f"{q} min {lo:g} is above max {hi:g}; swap them",
+                    path=path,
+                    sheet=sheet,
+                    row=row,
+                    column=f"{q} min [{unit}]",
+                )
+            if tgt is not None and ((lo is not None and tgt < lo) or (hi is not None and tgt > hi)):
+                raise InputFormatError(
+                    f"{q} target {tgt:g} lies outside its limits; check min, max and target",
+                    path=path,
+                    sheet=sheet,
+                    row=row,
+                    column=f"{q} target [{unit}]",
+                )
+            limits.append(Limit(q, SPEC_QUANTITIES[q], unit, lo, hi, tgt))
+        tol = None
+        if tol_col is not None:
+            tol = _number(record[tol_col], path=path, sheet=sheet, row=row, column=tol_col)
+            if tol is not None and tol <= 0:
+                raise InputFormatError(
+                    f"tolerance {tol:g} % must be positive",
+                    path=path,
+                    sheet=sheet,
+                    row=row,
+                    column=tol_col,
+                )
+        desc = label_text(record[desc_col]) if desc_col is not None else ""
+        products.append(ProductSpec(name, tuple(limits), tol, desc, row))
+    return SpecSheet(tuple(products), path=path)
