@@ -434,11 +434,30 @@ def _run_entry(entry: BatchEntry, method: Method, dist_dir: str | None, keep: bo
     row.update(res.row())
     row["file"] = entry.file
     if dist_dir is not None:
-        from ._atomic import write_csv
-
-        write_csv(Path(dist_dir) / f"{_safe_name(entry.sample_id)}_row{entry.row}.csv",
-                  res.distribution.table(), float_format="%.8g")
+        write_distribution(Path(dist_dir) / _distribution_name(entry), res.distribution)
     return row, (res if keep else None)
+
+
+def _distribution_name(entry: BatchEntry) -> str:
+    return f"{_safe_name(entry.sample_id)}_row{entry.row}.csv"
+
+
+_DIST_HEADER = ("volume [mL]", "M [g/mol]", "log10 M [-]", "mass fraction [-]", "dw/dlogM [-]",
+                "cumulative mass fraction [-]")
+
+
+def write_distribution(path: str | Path, dist: Distribution) -> Path:
+    """Write one distribution table as CSV (8 significant digits), atomically.
+
+    Formatting all numbers with one %-format over a flat tuple is several times faster
+    than a DataFrame writer, which matters when a batch writes thousands of tables.
+    """
+    from ._atomic import write_text
+
+    cols = np.column_stack([dist.volume, dist.M, np.log10(dist.M), dist.w, dist.dwdlogM, dist.cumulative])
+    line = ",".join(["%.8g"] * cols.shape[1]) + "\n"
+    body = (line * cols.shape[0]) % tuple(cols.ravel().tolist())
+    return write_text(path, ",".join(_DIST_HEADER) + "\n" + body)
 
 
 def _safe_name(text: str) -> str:
@@ -506,12 +525,20 @@ def iter_batch(
     entries: Iterable[BatchEntry],
     method: Method,
     *,
-    workers: int = 1,
+    workers: int | None = 1,
     dist_dir: str | Path | None = None,
     keep: bool = True,
 ) -> Iterator[tuple[dict[str, Any], InjectionResult | None]]:
-    """Yield (row, result) per entry in order; parallel over processes when workers > 1."""
+    """Yield (row, result) per entry in order; parallel over processes when workers > 1.
+
+    ``workers=None`` chooses: one process for fewer than 16 injections (starting worker
+    processes costs about a second), otherwise one per core, at most 4.
+    """
+    import os
+
     entries = list(entries)
+    if workers is None:
+        workers = min(os.cpu_count() or 1, 4) if len(entries) >= 16 else 1
     dd = None if dist_dir is None else str(dist_dir)
     if workers <= 1 or len(entries) < 4:
         for e in entries:
@@ -529,7 +556,7 @@ def run_batch(
     method: Method,
     *,
     sheet: str | int | None = None,
-    workers: int = 1,
+    workers: int | None = 1,
     outdir: str | Path | None = None,
     keep_distributions: bool = True,
     progress: Callable[[int, int], None] | None = None,
@@ -544,8 +571,9 @@ def run_batch(
         From :func:`gpctools.method.load_method`.
     sheet : str or int, optional
         Workbook sheet of the batch sheet.
-    workers : int
-        Processes to use (1 = in this process).
+    workers : int or None
+        Processes to use (1 = in this process, None = choose from the batch size and
+        the number of cores).
     outdir : str or Path, optional
         When given, per-injection distribution tables are written to
         ``outdir/distributions/`` as each injection finishes (memory stays flat).
@@ -588,9 +616,8 @@ def write_batch_outputs(result: BatchResult, outdir: str | Path, *, distribution
     if distributions:
         for entry, res in zip(result.entries, result.injections):
             if res is not None:
-                paths[f"distributions/{entry.sample_id}"] = write_csv(
-                    out / "distributions" / f"{_safe_name(entry.sample_id)}_row{entry.row}.csv",
-                    res.distribution.table(), float_format="%.8g",
+                paths[f"distributions/{entry.sample_id}"] = write_distribution(
+                    out / "distributions" / _distribution_name(entry), res.distribution
                 )
     manifest = {
         "gpctools": __version__,

@@ -134,14 +134,14 @@ def batch_cmd(
     sheet: Path = typer.Argument(..., help="Batch sheet (CSV or XLSX): sample_id, file, optional role and metadata."),
     method: Path = typer.Option(..., "--method", "-m", help="Method file (TOML)."),
     out: Path = typer.Option(Path("gpctools-out"), "--out", "-o", help="Output folder."),
-    workers: int = typer.Option(1, "--workers", "-j", min=1, help="Processes to use."),
+    workers: int = typer.Option(0, "--workers", "-j", min=0, help="Processes to use (0 = choose from batch size and cores)."),
     sheet_name: Optional[str] = typer.Option(None, "--sheet", help="Workbook sheet of the batch sheet."),
 ) -> None:
     """Process every injection of a batch sheet and write the results table."""
     from .method import load_method
 
     m = load_method(method)
-    result = _run_batch_with_progress(sheet, m, out, workers, sheet_name)
+    result = _run_batch_with_progress(sheet, m, out, workers or None, sheet_name)
     rows = result.table.to_dict("records")
     _print_table(rows, SUMMARY_COLUMNS)
     typer.echo(f"\nmolar-mass scale: {m.calibration.scale_label()}")
