@@ -33,6 +33,7 @@ import numpy as np
 
 from .calibration import Calibration
 from .errors import DataError, RangeWarning
+from .signal import _as_trace
 
 __all__ = ["Distribution", "averages", "compute_distribution", "slice_widths", "peak_position"]
 
@@ -81,6 +82,8 @@ def averages(M: Any, w: Any) -> dict[str, float]:
         raise DataError("averages: no slices to average")
     if np.any(~np.isfinite(M)) or np.any(M <= 0):
         raise DataError("averages: molar masses must be finite and positive")
+    if np.any(~np.isfinite(w)):
+        raise DataError("averages: slice weights must be finite numbers (remove or fill missing values)")
     s0 = float(w.sum())
     s_1 = float((w / M).sum())
     s1 = float((w * M).sum())
@@ -210,7 +213,8 @@ def compute_distribution(
     Parameters
     ----------
     volume : array_like
-        Increasing elution volumes of all slices [mL].
+        Elution volumes of all slices [mL] (sorted internally; ``signal`` and ``mask``
+        follow the same order as ``volume``).
     signal : array_like
         Baseline-corrected concentration-detector response h.
     calibration : Calibration
@@ -236,14 +240,15 @@ def compute_distribution(
     widths of the slices next to it. The cumulative fraction is accumulated from the
     low-M end: ``cumulative[i]`` is the mass fraction with M ≤ M_i.
     """
-    V = np.asarray(volume, dtype=float)
-    h = np.asarray(signal, dtype=float)
-    if V.shape != h.shape:
-        raise DataError(f"{V.size} volumes but {h.size} signal values")
+    V, h, order = _as_trace(volume, signal)
     if outside not in ("linear", "exclude"):
         raise DataError(f"outside must be 'linear' or 'exclude', got {outside!r}")
-    dV = slice_widths(V)
     sel = np.ones(V.shape, dtype=bool) if mask is None else np.asarray(mask, dtype=bool)
+    if sel.shape != V.shape:
+        raise DataError(f"mask has {sel.size} entries for {V.size} slices; give one per slice")
+    # Slice widths need increasing volumes; unsorted input gives the same answer.
+    V, h, sel = V[order], h[order], sel[order]
+    dV = slice_widths(V)
     area_all = h[sel] * dV[sel]
     inside = calibration.inside(V[sel])
     total = float(area_all.sum())

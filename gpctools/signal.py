@@ -90,6 +90,29 @@ class CorrectedSignal:
         }
 
 
+def _as_trace(volume: Any, signal: Any) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Validated float64 arrays of one trace and the permutation that sorts it by volume.
+
+    Raises :class:`DataError` for unequal lengths or a non-finite value (naming the slice),
+    so that numerics further down can assume clean, equally long arrays.
+    """
+    V = np.asarray(volume, dtype=float)
+    h = np.asarray(signal, dtype=float)
+    if V.ndim != 1 or h.ndim != 1 or V.shape != h.shape:
+        raise DataError(
+            f"{V.size} volumes but {h.size} signal values: give one signal value per slice "
+            "(two one-dimensional columns of equal length)"
+        )
+    bad = ~(np.isfinite(V) & np.isfinite(h))
+    if bad.any():
+        i = int(np.nonzero(bad)[0][0])
+        raise DataError(
+            f"slice {i + 1} (volume {float(V[i]):g} mL, signal {float(h[i]):g}) is not a finite number; "
+            f"{int(bad.sum())} such slice(s) in all: remove or fill them"
+        )
+    return V, h, np.argsort(V, kind="stable")
+
+
 def _window_mask(volume: np.ndarray, windows: Sequence[Window]) -> np.ndarray:
     m = np.zeros(volume.shape, dtype=bool)
     for a, b in windows:
@@ -190,8 +213,8 @@ def fit_baseline(
     -------
     Baseline
     """
-    V = np.asarray(volume, dtype=float)
-    h = np.asarray(signal, dtype=float)
+    V, h, order = _as_trace(volume, signal)
+    V, h = V[order], h[order]
     if windows is not None:
         windows = tuple((float(a), float(b)) for a, b in windows)
         if len(windows) != 2:
@@ -261,8 +284,8 @@ def find_limits(
     be told from zero. Zero-mean noise integrated beyond that point does not bias the
     sums because negative heights are kept.
     """
-    V = np.asarray(volume, dtype=float)
-    c = np.asarray(corrected, dtype=float)
+    V, c, order = _as_trace(volume, corrected)
+    V, c = V[order], c[order]
     valid = ~_window_mask(V, exclusions)
     start, _, end = _peak_region(V, c, valid, noise)
     return float(V[start]), float(V[end])
@@ -281,7 +304,8 @@ def correct_signal(
     Parameters
     ----------
     volume : array_like
-        Increasing elution volumes [mL].
+        Elution volumes [mL] (any order; the work is done in order of increasing volume
+        and the corrected signal and mask are returned in the order given).
     signal : array_like
         Raw detector response.
     windows : pair of (start, end), optional
@@ -295,8 +319,9 @@ def correct_signal(
     -------
     CorrectedSignal
     """
-    V = np.asarray(volume, dtype=float)
-    h = np.asarray(signal, dtype=float)
+    V_in, h_in, order = _as_trace(volume, signal)
+    # Work in order of increasing volume; results are returned in the caller's slice order.
+    V, h = V_in[order], h_in[order]
     exclusions = tuple((float(a), float(b)) for a, b in exclusions)
     for a, b in exclusions:
         if not a < b:
@@ -341,13 +366,15 @@ def correct_signal(
         notes.append(f"low signal-to-noise ratio ({peak / base.noise:.1f}); averages are uncertain")
     for note in notes:
         warnings.warn(note, SignalWarning, stacklevel=2)
+    back = np.empty_like(order)
+    back[order] = np.arange(order.size)
     return CorrectedSignal(
-        volume=V,
-        signal=corrected,
+        volume=V_in,
+        signal=corrected[back],
         baseline=base,
         limits=(float(limits[0]), float(limits[1])),
         exclusions=exclusions,
         automatic_limits=auto,
-        mask=mask,
+        mask=mask[back],
         warnings=tuple(notes),
     )
