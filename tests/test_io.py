@@ -8,14 +8,25 @@ written); float comparisons use the round-trip tolerance stated beside them.
 from __future__ import annotations
 
 import io
+import json
 import zipfile
 from pathlib import Path
 
+import numpy as np
 import pandas as pd
 import pytest
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
 
-from gpctools.errors import InputFormatError
-from gpctools.io import read_sheet, sheet_row_number
+from gpctools.errors import DataError, InputFormatError, MethodError
+from gpctools.io import (
+    MIN_POINTS,
+    Chromatogram,
+    ReaderWarning,
+    read_chromatogram,
+    read_sheet,
+    sheet_row_number,
+)
 
 # ============================================================================ helpers
 
@@ -178,3 +189,539 @@ def test_sheet_zip_bomb_refused(tmp_path: Path) -> None:
     p.write_bytes(buf.getvalue())
     with pytest.raises(InputFormatError, match="zip bomb"):
         read_sheet(p)
+
+
+# ============================================================================ chromatograms
+
+X = np.round(np.linspace(12.0, 20.0, 25), 4)  # elution volume [mL], 25 slices
+Y = np.round(np.exp(-0.5 * ((X - 16.0) / 1.2) ** 2), 6)  # a Gaussian peak [mV]
+
+
+def table(
+    sep: str = ",",
+    decimal: str = ".",
+    header: str | list[str] | None = "Volume (mL),RI (mV)",
+    x: np.ndarray = X,
+    y: np.ndarray = Y,
+    extra: list[str] | None = None,
+) -> str:
+    """Text of a two-column table; a header string is split at ',' and joined with ``sep``."""
+    if isinstance(header, str):
+        header = header.split(",")
+    lines = [] if header is None else [sep.join(header)]
+    for a, b in zip(x, y, strict=True):
+        row = [repr(float(a)), repr(float(b))] + (extra or [])
+        if decimal == ",":
+            row = [c.replace(".", ",") for c in row]
+        lines.append(sep.join(row))
+    return "\n".join(lines) + "\n"
+
+
+def put(tmp_path: Path, name: str, text: str, encoding: str = "utf-8") -> Path:
+    p = tmp_path / name
+    p.write_bytes(text.encode(encoding))
+    return p
+
+
+def check_xy(c: Chromatogram, x: np.ndarray = X, y: np.ndarray = Y) -> None:
+    # derived: the reader must return the values written; repr() text round-trips exactly,
+    # rtol 1e-15 allows the 1-ulp rounding of pandas' C float parser.
+    np.testing.assert_allclose(c.x, x, rtol=1e-15, atol=0)
+    np.testing.assert_allclose(c.signal, y, rtol=1e-15, atol=0)
+    assert c.x.dtype == np.float64 and c.signal.dtype == np.float64
+
+
+def test_comma_point_with_metadata(tmp_path: Path) -> None:
+    meta = (
+        "Sample: PS 12\nFlow rate = 1.0 mL/min\nOperator;J. Doe\nColumn\tmixed bed\n"
+        "Batch,42\n[Raw data]\n\n"
+    )
+    p = put(tmp_path, "run1.csv", meta + table())
+    c = read_chromatogram(p)
+    check_xy(c)
+    assert (c.x_kind, c.x_unit) == ("volume", "mL")
+    assert (c.x_column, c.signal_column) == ("Volume (mL)", "RI (mV)")
+    assert c.header_row == 8
+    assert c.metadata == {
+        "Sample": "PS 12",
+        "Flow rate": "1.0 mL/min",
+        "Operator": "J. Doe",
+        "Column": "mixed bed",
+        "Batch": "42",
+        "[Raw data]": "",
+    }
+    assert c.path == str(p)
+    json.dumps(c.summary())  # JSON-safe
+
+
+@pytest.mark.parametrize(
+    ("sep", "decimal", "encoding"),
+    [
+        (";", ",", "utf-8"),
+        (";", ".", "utf-8-sig"),
+        ("\t", ",", "utf-16"),  # Python writes a BOM, little-endian here
+        ("\t", ".", "utf-16-le-bom"),
+        ("\t", ",", "utf-16-be-bom"),
+        (",", ".", "cp1252"),
+        (" ", ".", "utf-8"),
+        (" ", ",", "utf-8"),
+    ],
+)
+def test_dialects(tmp_path: Path, sep: str, decimal: str, encoding: str) -> None:
+    text = "Temperature: 35 °C\n" + table(sep, decimal, header="Volume(mL),RI(mV)")
+    if encoding == "utf-16-le-bom":
+        data = b"\xff\xfe" + text.encode("utf-16-le")
+    elif encoding == "utf-16-be-bom":
+        data = b"\xfe\xff" + text.encode("utf-16-be")
+    else:
+        data = text.encode(encoding)
+    p = tmp_path / "trace.txt"
+    p.write_bytes(data)
+    c = read_chromatogram(p)
+    check_xy(c)
+    assert c.metadata == {"Temperature": "35 °C"}
+    assert c.x_unit == "mL"
+
+
+def test_crlf_and_cr_line_ends(tmp_path: Path) -> None:
+    text = "Info: a\n" + table(";", ",")
+    check_xy(read_chromatogram(put(tmp_path, "crlf.csv", text.replace("\n", "\r\n"))))
+    check_xy(read_chromatogram(put(tmp_path, "cr.csv", text.replace("\n", "\r"))))
+
+
+def test_quoted_cells_and_trailing_separators(tmp_path: Path) -> None:
+    lines = ['"Sample","PS 1"', '"Volume (mL)","RI (mV)",']
+    lines += [f'"{a!r}","{b!r}",' for a, b in zip(X.tolist(), Y.tolist(), strict=True)]
+    c = read_chromatogram(put(tmp_path, "q.csv", "\n".join(lines) + "\n"))
+    check_xy(c)
+    assert c.metadata == {"Sample": "PS 1"}
+
+
+def test_units_row_under_header(tmp_path: Path) -> None:
+    text = "Time;Signal\nmin;mV\n" + table(";", ",", header=None)
+    c = read_chromatogram(put(tmp_path, "u.csv", text))
+    assert (c.x_kind, c.x_unit, c.x_column, c.header_row) == ("time", "min", "Time (min)", 1)
+    check_xy(c)
+
+
+def test_decreasing_x_is_reversed(tmp_path: Path) -> None:
+    c = read_chromatogram(put(tmp_path, "rev.csv", table(x=X[::-1], y=Y[::-1])))
+    check_xy(c)  # both arrays reversed together
+
+
+def test_integer_first_rows_then_decimal_comma(tmp_path: Path) -> None:
+    x = np.arange(20.0)
+    y = np.r_[np.arange(10.0), np.arange(10.0) + 0.5]
+    lines = ["Volume (mL);RI"] + [
+        f"{int(a)};{b:g}".replace(".", ",") for a, b in zip(x, y, strict=True)
+    ]
+    c = read_chromatogram(put(tmp_path, "int.csv", "\n".join(lines) + "\n"))
+    check_xy(c, x, y)
+
+
+@pytest.mark.parametrize(
+    ("header", "kind", "unit"),
+    [
+        ("Time (min)", "time", "min"),
+        ("Retention time [min]", "time", "min"),
+        ("RT/min", "time", "min"),
+        ("t [s]", "time", "s"),
+        ("Time in s", "time", "s"),
+        ("Time, sec", "time", "s"),
+        ("min", "time", "min"),
+        ("Zeit (min)", "time", "min"),
+        ("Elution volume (mL)", "volume", "mL"),
+        ("Volume [ml]", "volume", "mL"),
+        ("Ve/mL", "volume", "mL"),
+        ("V (mL)", "volume", "mL"),
+        ("Volumen", "volume", "mL"),
+        ("Retention volume", "volume", "mL"),
+        ("mL", "volume", "mL"),
+    ],
+)
+def test_x_header_words(tmp_path: Path, header: str, kind: str, unit: str) -> None:
+    c = read_chromatogram(put(tmp_path, "h.tsv", table("\t", ".", header=[header, "Signal"])))
+    assert (c.x_kind, c.x_unit, c.x_column) == (kind, unit, header)
+
+
+@pytest.mark.parametrize(
+    ("headers", "chosen"),
+    [
+        (["Volume (mL)", "LS 90", "UV 254 nm", "RI (mV)"], "RI (mV)"),
+        (["Volume (mL)", "LS", "UV254"], "UV254"),
+        (["Volume (mL)", "Viscometer", "dRI"], "dRI"),
+        (["Volume (mL)", "Refractive index", "Response"], "Refractive index"),
+        (["Slice", "Time (min)", "Detector A", "Detector B"], "Detector A"),
+        (["Time (min)", "Volume (mL)", "ch1", "ch2"], "ch1"),
+        (["Volume (mL)", "log M", "intensity"], "intensity"),
+    ],
+)
+def test_signal_column_preference(tmp_path: Path, headers: list[str], chosen: str) -> None:
+    rows = [";".join(headers)]
+    for i, (a, b) in enumerate(zip(X, Y, strict=True)):
+        cells = []
+        for h in headers:
+            if h in ("Volume (mL)", "Time (min)"):
+                cells.append(repr(float(a)))
+            elif h == "Slice":
+                cells.append(str(i))
+            elif h == chosen:
+                cells.append(repr(float(b)))
+            else:
+                cells.append("7.5")
+        rows.append(";".join(cells))
+    c = read_chromatogram(put(tmp_path, "d.csv", "\n".join(rows) + "\n"))
+    assert c.signal_column == chosen
+    check_xy(c)
+    if "Volume (mL)" in headers:
+        assert c.x_column == "Volume (mL)"  # a volume column is preferred to a time column
+
+
+def test_columns_by_name_and_index(tmp_path: Path) -> None:
+    text = "Volume (mL),RI (mV),UV (mV)\n" + "".join(
+        f"{a!r},{b!r},{2 * b!r}\n" for a, b in zip(X.tolist(), Y.tolist(), strict=True)
+    )
+    p = put(tmp_path, "c.csv", text)
+    assert read_chromatogram(p, signal_column="uv (mv)").signal_column == "UV (mV)"
+    assert read_chromatogram(p, signal_column="UV").signal_column == "UV (mV)"  # without unit
+    c = read_chromatogram(p, x_column=0, signal_column=2)
+    check_xy(c, X, 2 * Y)
+    with pytest.raises(InputFormatError) as exc:
+        read_chromatogram(p, signal_column="LS")
+    msg = str(exc.value)
+    assert "c.csv" in msg and "'LS'" in msg and "'RI (mV)'" in msg and "'UV (mV)'" in msg
+    with pytest.raises(InputFormatError, match="out of range"):
+        read_chromatogram(p, signal_column=5)
+
+
+def test_footer_lines_tolerated(tmp_path: Path) -> None:
+    text = table(";", ",") + "\nEnd of data\n\nPeak table\nPeak;Start;End\n1;12,5;18,0\n"
+    check_xy(read_chromatogram(put(tmp_path, "f.csv", text)))
+
+
+def test_headerless_needs_unit(tmp_path: Path) -> None:
+    p = put(tmp_path, "raw.dat", table(" ", ".", header=None))
+    with pytest.raises(InputFormatError) as exc:
+        read_chromatogram(p)
+    assert "raw.dat" in str(exc.value) and "x_unit" in str(exc.value)
+    c = read_chromatogram(p, x_unit="min")
+    assert (c.x_kind, c.x_unit, c.header_row) == ("time", "min", 0)
+    assert (c.x_column, c.signal_column) == ("column 0", "column 1")
+    check_xy(c)
+    p2 = put(tmp_path, "raw2.asc", "X unit: mL\n" + table("\t", ".", header=None))
+    assert read_chromatogram(p2).x_unit == "mL"
+
+
+def test_time_without_unit_needs_x_unit(tmp_path: Path) -> None:
+    p = put(tmp_path, "t.csv", table(header="Time,RI"))
+    with pytest.raises(InputFormatError, match="x_unit='min'"):
+        read_chromatogram(p)
+    assert read_chromatogram(p, x_unit="s").x_unit == "s"
+
+
+def test_unit_override_warns(tmp_path: Path) -> None:
+    p = put(tmp_path, "w.csv", table(header="Time (min),RI"))
+    with pytest.warns(ReaderWarning, match="x_unit='s'"):
+        c = read_chromatogram(p, x_unit="s")
+    assert c.x_unit == "s" and len(c.warnings) == 1
+
+
+def test_forced_separator_and_decimal(tmp_path: Path) -> None:
+    p = put(tmp_path, "x.txt", table(";", ","))
+    check_xy(read_chromatogram(p, separator=";", decimal=","))
+    with pytest.raises(InputFormatError, match="separator/decimal mark given"):
+        read_chromatogram(p, separator="\t")
+    with pytest.raises(MethodError) as exc:
+        read_chromatogram(p, separator="|")
+    assert exc.value.key == "separator"
+    with pytest.raises(MethodError):
+        read_chromatogram(p, decimal=";")
+    with pytest.raises(MethodError) as exc2:
+        read_chromatogram(p, x_unit="h")
+    assert exc2.value.key == "x_unit"
+
+
+def test_forced_encoding(tmp_path: Path) -> None:
+    p = put(tmp_path, "e.csv", "Temp: 35 °C\n" + table(), encoding="latin-1")
+    assert read_chromatogram(p, encoding="latin-1").metadata["Temp"] == "35 °C"
+    with pytest.raises(InputFormatError, match="utf-8"):
+        read_chromatogram(p, encoding="utf-8")
+
+
+def test_unknown_extension_sniffed(tmp_path: Path) -> None:
+    check_xy(read_chromatogram(put(tmp_path, "trace.export", table(";", ","))))
+
+
+# ----------------------------------------------------------------------------- to_volume
+
+
+def test_to_volume() -> None:
+    t = np.linspace(10.0, 20.0, 11)
+    c_min = Chromatogram("a", t, np.ones(11), "time", "min", "t", "RI")
+    # derived: V = t [min] * F [mL/min]
+    np.testing.assert_allclose(c_min.to_volume(0.8), t * 0.8, rtol=1e-15)
+    c_s = Chromatogram("a", t * 60, np.ones(11), "time", "s", "t", "RI")
+    # derived: V = t [s] / 60 * F
+    np.testing.assert_allclose(c_s.to_volume(0.8), t * 0.8, rtol=1e-14)
+    c_v = Chromatogram("a", t, np.ones(11), "volume", "mL", "V", "RI")
+    np.testing.assert_array_equal(c_v.to_volume(None), t)
+    for bad in (None, 0.0, -1.0, float("nan"), "fast"):
+        with pytest.raises(MethodError) as exc:
+            c_min.to_volume(bad)  # type: ignore[arg-type]
+        assert exc.value.key == "flow.rate"
+
+
+def test_chromatogram_is_immutable_and_checked() -> None:
+    x = np.linspace(1.0, 2.0, 12)
+    c = Chromatogram("a", x, np.ones(12), "volume", "mL", "V", "RI")
+    with pytest.raises(ValueError):
+        c.x[0] = 5.0  # read-only array
+    x[0] = -1.0
+    assert c.x[0] == 1.0  # a copy, the input is not shared
+    with pytest.raises(DataError):
+        Chromatogram("a", x[::-1], np.ones(12), "volume", "mL", "V", "RI")
+    with pytest.raises(DataError):
+        Chromatogram("a", np.linspace(1, 2, 12), np.ones(12), "volume", "min", "V", "RI")
+    with pytest.raises(DataError):
+        Chromatogram("a", np.linspace(1, 2, 12), np.ones(11), "volume", "mL", "V", "RI")
+
+
+# ----------------------------------------------------------------------------- bad text
+
+
+def bad(tmp_path: Path, name: str, text: str, **kw: object) -> InputFormatError:
+    p = put(tmp_path, name, text)
+    with pytest.raises(InputFormatError) as exc:
+        read_chromatogram(p, **kw)  # type: ignore[arg-type]
+    assert name in str(exc.value)
+    return exc.value
+
+
+def test_bad_no_numeric_table(tmp_path: Path) -> None:
+    e = bad(tmp_path, "notes.txt", "This is a note\nabout a sample\n")
+    assert "no table of numbers" in str(e)
+
+
+def test_bad_too_few_points(tmp_path: Path) -> None:
+    e = bad(tmp_path, "short.csv", table(x=X[:5], y=Y[:5]))
+    assert "only 5 rows" in str(e) and str(MIN_POINTS) in str(e)
+
+
+def test_bad_not_monotonic(tmp_path: Path) -> None:
+    x = X.copy()
+    x[10] = x[8]  # goes back at data row 10 -> line 12 (header on line 1)
+    e = bad(tmp_path, "mono.csv", table(x=x))
+    assert e.row == 12 and "line 12" in str(e) and "line 11" in str(e)
+
+
+def test_bad_duplicate_x(tmp_path: Path) -> None:
+    x = X.copy()
+    x[6] = x[5]
+    e = bad(tmp_path, "dup.csv", "Sample: a\n\n" + table(x=x))
+    # lines: 1 metadata, 2 blank, 3 header, data row k on line k + 4
+    assert e.row == 10 and "repeats" in str(e) and "line 9" in str(e)
+
+
+def test_bad_monotonic_with_blank_lines_inside(tmp_path: Path) -> None:
+    x = X.copy()
+    x[15] = x[2]
+    v = repr(float(X[5]))
+    text = table(x=x).replace(f"\n{v},", f"\n\n{v},", 1)  # blank line before row 5
+    assert text.count("\n\n") == 1
+    e = bad(tmp_path, "blank.csv", text)
+    assert e.row == 18  # row 15 -> line 17, +1 for the blank line
+
+
+def test_bad_text_inside_table(tmp_path: Path) -> None:
+    lines = table(";", ",").splitlines()
+    lines.insert(8, "Detector overload")
+    e = bad(tmp_path, "txt.csv", "\n".join(lines) + "\n")
+    assert e.row == 9 and "'Detector overload'" in str(e) and "line 9" in str(e)
+
+
+def test_bad_empty_cell(tmp_path: Path) -> None:
+    lines = table(";", ",").splitlines()
+    lines[7] = lines[7].split(";")[0] + ";"
+    e = bad(tmp_path, "hole.csv", "\n".join(lines) + "\n")
+    assert e.row == 8 and "missing" in str(e) and e.column == "RI (mV)"
+
+
+def test_bad_truncated_last_line(tmp_path: Path) -> None:
+    text = table(";", ",") + "20,5;\n"
+    e = bad(tmp_path, "cut.csv", text)
+    assert e.row == 27 and "missing" in str(e)
+
+
+@pytest.mark.parametrize("value", ["inf", "nan", "-inf", "NaN"])
+def test_bad_non_finite(tmp_path: Path, value: str) -> None:
+    lines = table().splitlines()
+    lines[4] = lines[4].split(",")[0] + "," + value
+    e = bad(tmp_path, "nf.csv", "\n".join(lines) + "\n")
+    assert e.row == 5 and "finite" in str(e)
+
+
+def test_bad_wrong_decimal_mark(tmp_path: Path) -> None:
+    lines = table(";", ",").splitlines()
+    lines[6] = "13,5;0.25"
+    e = bad(tmp_path, "mark.csv", "\n".join(lines) + "\n")
+    assert e.row == 7 and "'0.25'" in str(e) and "decimal comma" in str(e)
+
+
+@pytest.mark.parametrize(
+    ("name", "content", "needle"),
+    [
+        ("missing.csv", None, "not found"),
+        ("empty.csv", b"", "empty"),
+        ("picture.csv", b"\x89PNG\r\n\x1a\n\x00\x00\x00\rIHDR" + b"\x00" * 50, "PNG"),
+        ("renamed.xlsx", b"Volume;RI\n1;2\n", "rename it to .csv"),
+        ("noise.csv", bytes(range(256)) * 8, "binary"),
+        ("legacy.xls", b"\xd0\xcf\x11\xe0\xa1\xb1\x1a\xe1" + b"\x00" * 100, "save it as"),
+        ("report.pdf.txt", b"%PDF-1.4\n%\xe2\xe3\xcf\xd3\n", "PDF"),
+    ],
+)
+def test_bad_files(tmp_path: Path, name: str, content: bytes | None, needle: str) -> None:
+    p = tmp_path / name
+    if content is not None:
+        p.write_bytes(content)
+    with pytest.raises(InputFormatError) as exc:
+        read_chromatogram(p)
+    assert name in str(exc.value) and needle in str(exc.value)
+
+
+def test_bad_zip_named_csv(tmp_path: Path) -> None:
+    p = write_xlsx(tmp_path / "book.xlsx", {"s": [["a"]]})
+    q = tmp_path / "book.csv"
+    q.write_bytes(p.read_bytes())
+    with pytest.raises(InputFormatError, match="rename it to .xlsx"):
+        read_chromatogram(q)
+
+
+# ----------------------------------------------------------------------------- xlsx
+
+
+def xlsx_trace(tmp_path: Path, rows_extra: list[list[object]] | None = None) -> Path:
+    data = [
+        ["Sample:", "PS 12"],
+        ["Flow rate (mL/min)", 1.0],
+        ["Note: second detector attached"],
+        [],
+        [None, "Time [min]", "LS [mV]", "RI [mV]"],
+    ]
+    for a, b in zip(X.tolist(), Y.tolist(), strict=True):
+        data.append([None, a, 9.0, str(b).replace(".", ",")])  # RI as decimal-comma text
+    data += rows_extra or []
+    return write_xlsx(tmp_path / "trace.xlsx", {"Summary": [["nothing here"]], "Slices": data})
+
+
+def test_xlsx_metadata_second_sheet_numeric_text(tmp_path: Path) -> None:
+    p = xlsx_trace(tmp_path, [[None, "End of data"]])
+    for sheet in ("Slices", "slices", 1):
+        c = read_chromatogram(p, sheet=sheet)
+        check_xy(c)
+        assert (c.x_kind, c.x_unit, c.signal_column, c.header_row) == ("time", "min", "RI [mV]", 5)
+        assert c.sheet == "Slices"
+        assert c.metadata == {
+            "Sample": "PS 12",
+            "Flow rate (mL/min)": "1",
+            "Note": "second detector attached",
+        }
+    with pytest.raises(InputFormatError) as exc:
+        read_chromatogram(p, sheet="Data")
+    assert "'Summary'" in str(exc.value) and "'Slices'" in str(exc.value)
+    with pytest.raises(InputFormatError, match="no table of numbers"):
+        read_chromatogram(p)  # first sheet holds no table
+
+
+def test_xlsx_text_cell_inside(tmp_path: Path) -> None:
+    p = xlsx_trace(tmp_path)
+    import openpyxl
+
+    wb = openpyxl.load_workbook(p)
+    wb["Slices"]["D12"] = "overload"
+    wb.save(p)
+    with pytest.raises(InputFormatError) as exc:
+        read_chromatogram(p, sheet="Slices")
+    assert "D12" in str(exc.value) and exc.value.row == 12 and "'overload'" in str(exc.value)
+
+
+def test_xlsx_formula_without_value(tmp_path: Path) -> None:
+    p = xlsx_trace(tmp_path)
+    import openpyxl
+
+    wb = openpyxl.load_workbook(p)
+    wb["Slices"]["D9"] = "=C9*2"
+    wb["Slices"]["C10"] = None
+    wb.save(p)
+    with pytest.raises(InputFormatError) as exc:
+        read_chromatogram(p, sheet="Slices", signal_column="RI")
+    assert "D9" in str(exc.value) and "formula" in str(exc.value)
+
+
+def test_xlsx_empty_cell_and_decreasing(tmp_path: Path) -> None:
+    data = [["Volume (mL)", "RI"]] + [
+        [a, b] for a, b in zip(X[::-1].tolist(), Y[::-1].tolist(), strict=True)
+    ]
+    p = write_xlsx(tmp_path / "v.xlsx", {"a": data})
+    check_xy(read_chromatogram(p))
+    data[6][1] = None
+    p = write_xlsx(tmp_path / "v2.xlsx", {"a": data})
+    with pytest.raises(InputFormatError) as exc:
+        read_chromatogram(p)
+    assert "B7" in str(exc.value) and "empty" in str(exc.value)
+
+
+# ----------------------------------------------------------------------------- property
+
+
+@st.composite
+def traces(draw: st.DrawFn) -> tuple[np.ndarray, np.ndarray]:
+    n = draw(st.integers(MIN_POINTS, 60))
+    steps = draw(st.lists(st.floats(1e-3, 10.0, allow_nan=False), min_size=n, max_size=n))
+    start = draw(st.floats(-100.0, 100.0, allow_nan=False))
+    x = start + np.cumsum(steps)
+    if not (np.diff(x) > 0).all():  # floating-point ties after cumsum
+        x = np.unique(x)
+    y = np.asarray(
+        draw(st.lists(st.floats(-1e6, 1e6, allow_nan=False), min_size=x.size, max_size=x.size))
+    )
+    return x, y
+
+
+@settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(
+    xy=traces(),
+    dialect=st.sampled_from(
+        [(",", "."), (";", ","), (";", "."), ("\t", "."), ("\t", ","), (" ", ".")]
+    ),
+    encoding=st.sampled_from(["utf-8", "utf-8-sig", "utf-16", "cp1252"]),
+    header=st.sampled_from(["Volume (mL),RI (mV)", "Ve/mL,Signal", "V [ml],dRI", None]),
+    meta=st.lists(st.sampled_from(["Sample: a", "Flow = 1", "Note", "Operator;B"]), max_size=4),
+    reverse=st.booleans(),
+    crlf=st.booleans(),
+)
+def test_round_trip_property(
+    tmp_path_factory: pytest.TempPathFactory,
+    xy: tuple[np.ndarray, np.ndarray],
+    dialect: tuple[str, str],
+    encoding: str,
+    header: str | None,
+    meta: list[str],
+    reverse: bool,
+    crlf: bool,
+) -> None:
+    x, y = xy
+    if x.size < MIN_POINTS:
+        return
+    sep, decimal = dialect
+    if sep == " " and header is not None:
+        header = header.replace(" ", "")
+    body = table(sep, decimal, header, x[::-1] if reverse else x, y[::-1] if reverse else y)
+    text = "".join(m + "\n" for m in meta) + body
+    if crlf:
+        text = text.replace("\n", "\r\n")
+    p = tmp_path_factory.mktemp("rt") / "t.csv"
+    p.write_bytes(text.encode(encoding))
+    c = read_chromatogram(p, x_unit=None if header else "mL")
+    # derived: written values come back; rtol 1e-15 = 1-ulp rounding of the C parser.
+    np.testing.assert_allclose(c.x, x, rtol=1e-15, atol=0)
+    np.testing.assert_allclose(c.signal, y, rtol=1e-15, atol=1e-300)

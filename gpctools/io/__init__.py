@@ -6,12 +6,22 @@ by the callers. Every problem with a file raises
 
 Public API
 ----------
+read_chromatogram(path, *, sheet=None, x_column=None, signal_column=None, x_unit=None,
+                  decimal=None, separator=None, encoding=None) -> Chromatogram
 read_sheet(path, *, sheet=None) -> pandas.DataFrame
 sheet_row_number(df, label) -> int
 """
 
 from __future__ import annotations
 
+from gpctools.io.chromatogram import MIN_POINTS, Chromatogram, ReaderWarning, read_chromatogram
 from gpctools.io.sheets import read_sheet, sheet_row_number
 
-__all__ = ["read_sheet", "sheet_row_number"]
+__all__ = [
+    "Chromatogram",
+    "MIN_POINTS",
+    "ReaderWarning",
+    "read_chromatogram",
+    "read_sheet",
+    "sheet_row_number",
+]

@@ -41,6 +41,7 @@ _BINARY_MAGIC = (
     (b"II*\x00", "a TIFF image"),
     (b"MM\x00*", "a TIFF image"),
 )
+_CONTROL_BYTES = bytes(b for b in range(32) if b not in (9, 10, 12, 13))
 _BOMS = (
     (b"\xef\xbb\xbf", "utf-8-sig"),
     (b"\xff\xfe", "utf-16-le"),
@@ -151,7 +152,7 @@ def _looks_like_text(data: bytes) -> bool:
     if b"\x00" in head:
         return False
     # Control characters other than tab/CR/LF/FF are rare in text files.
-    ctrl = sum(1 for b in head if b < 32 and b not in (9, 10, 12, 13))
+    ctrl = len(head) - len(head.translate(None, _CONTROL_BYTES))
     return ctrl <= max(2, len(head) // 200)
 
 

@@ -1,0 +1,377 @@
+"""Delimited-text dialects: finding the numeric block, its separator and decimal mark.
+
+Detection works on the first :data:`SCAN_LINES` lines only; the numeric block itself is
+parsed by one call of :func:`pandas.read_csv` (C engine). Python loops over data lines
+happen only on the error path, to name the offending line.
+"""
+
+from __future__ import annotations
+
+import csv
+import re
+from dataclasses import dataclass
+
+from gpctools.io._columns import is_unit_cell, x_kind_of
+
+__all__ = [
+    "SCAN_LINES",
+    "Dialect",
+    "DIALECTS",
+    "Layout",
+    "locate_block",
+    "number_pattern",
+    "split_cells",
+    "parse_metadata_line",
+]
+
+#: Lines inspected to find the header, the separator and the decimal mark.
+SCAN_LINES = 200
+#: A run of numeric lines at least this long is taken as the data block without looking
+#: further (shorter runs are accepted only if nothing longer is found).
+MIN_RUN = 5
+
+_POINT = re.compile(r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?")
+_COMMA = re.compile(r"[+-]?(?:\d+,?\d*|,\d+)(?:[eE][+-]?\d+)?")
+# Quick pre-filter: a line made only of digits, signs, marks, separators and exponents.
+_DATALIKE = re.compile(r"(?=[^\d\n]*\d)[\d.,;\t +\-eE\"]+\Z")
+
+
+def number_pattern(decimal: str) -> re.Pattern[str]:
+    """Compiled full-match pattern of a plain number with the given decimal mark."""
+    return _COMMA if decimal == "," else _POINT
+
+
+@dataclass(frozen=True)
+class Dialect:
+    """Separator (``" "`` means runs of whitespace) and decimal mark of a text table."""
+
+    sep: str
+    decimal: str
+
+    @property
+    def pandas_sep(self) -> str:
+        return r"\s+" if self.sep == " " else self.sep
+
+    @property
+    def label(self) -> str:
+        name = {"\t": "tab", ";": "semicolon", ",": "comma", " ": "whitespace"}[self.sep]
+        mark = "decimal comma" if self.decimal == "," else "decimal point"
+        return f"{name}-separated, {mark}"
+
+
+#: Candidate dialects in order of preference when several fit equally well.
+DIALECTS = (
+    Dialect("\t", "."),
+    Dialect("\t", ","),
+    Dialect(";", "."),
+    Dialect(";", ","),
+    Dialect(",", "."),
+    Dialect(" ", "."),
+    Dialect(" ", ","),
+)
+
+
+def split_cells(line: str, sep: str, *, quoted: bool = False) -> list[str]:
+    """Cells of one line, stripped of blanks and quotes, trailing empty cells removed."""
+    if sep == " ":
+        cells = line.split()
+    elif quoted and '"' in line:
+        cells = next(csv.reader([line], delimiter=sep), [])
+    else:
+        cells = line.split(sep)
+    out = [c.strip().strip('"').strip() for c in cells]
+    while out and out[-1] == "":
+        out.pop()
+    return out
+
+
+@dataclass(frozen=True)
+class Layout:
+    """Where things are in the scanned lines (0-based indices into the line list)."""
+
+    dialect: Dialect
+    start: int  # first data line
+    good: int  # first data line that splits cleanly (a representative row)
+    width: int  # cells per data line
+    header: int | None  # header line, None when the file has no header
+    units: int | None  # units line under the header, if any
+    names: tuple[str, ...]  # one name per column ("" when unnamed)
+
+
+def _is_num_row(cells: list[str], pat: re.Pattern[str]) -> tuple[int, int]:
+    """(numeric cells, non-empty cells)."""
+    num = 0
+    nonempty = 0
+    for c in cells:
+        if c:
+            nonempty += 1
+            if pat.fullmatch(c):
+                num += 1
+    return num, nonempty
+
+
+def _fit(lines: list[str], d: Dialect) -> tuple[int, int, int]:
+    """(lines that split into >= 2 numbers, their common width, index of the first one).
+
+    The width is the most frequent one among the fitting lines; (0, 0, 0) if none fit.
+    """
+    pat = number_pattern(d.decimal)
+    counts: dict[int, int] = {}
+    first: dict[int, int] = {}
+    for k, line in enumerate(lines):
+        cells = split_cells(line, d.sep)
+        if len(cells) < 2:
+            continue
+        for c in cells:
+            if not pat.fullmatch(c):
+                break
+        else:
+            w = len(cells)
+            counts[w] = counts.get(w, 0) + 1
+            first.setdefault(w, k)
+    if not counts:
+        return 0, 0, 0
+    w = max(counts, key=lambda v: (counts[v], v))
+    return counts[w], w, first[w]
+
+
+def _fast_block(lines: list[str], candidates: list[Dialect]) -> tuple[Dialect, int, int] | None:
+    """Block of lines made only of numbers and separators (the common case).
+
+    Only the lines up to the first long enough run, plus a 20-line sample of it, are
+    looked at. The dialect is the one splitting most sample lines alike, so one bad line
+    in the sample does not hide the block.
+    """
+    datalike = _DATALIKE.match
+    n = len(lines)
+    a = 0
+    while a < n:
+        if not datalike(lines[a]):
+            a += 1
+            continue
+        b = a + 1
+        while b < n and b < a + 20 and datalike(lines[b]):
+            b += 1
+        if b - a >= MIN_RUN or b == n:
+            sample = lines[a:b]
+            need = max(2, (len(sample) + 1) // 2) if len(sample) >= 2 else 1
+            best: tuple[int, Dialect, int, int] | None = None
+            for d in candidates:
+                count, width, first = _fit(sample, d)
+                if width and count >= need and (best is None or count > best[0]):
+                    best = (count, d, width, first)
+            if best is not None:
+                return best[1], a + best[3], best[2]
+        a = b
+    return None
+
+
+def _general_block(lines: list[str], candidates: list[Dialect]) -> tuple[Dialect, int, int] | None:
+    """Block of rows with >= 2 numeric cells, numbers in the majority (e.g. a flag column)."""
+    n = len(lines)
+    best: tuple[tuple[int, int, int], Dialect, int, int] | None = None
+    for k, d in enumerate(candidates):
+        pat = number_pattern(d.decimal)
+        widths = []
+        for ln in lines:
+            cells = split_cells(ln, d.sep)
+            num, nonempty = _is_num_row(cells, pat)
+            widths.append(len(cells) if num >= 2 and 2 * num >= nonempty else 0)
+        runs = []
+        i = 0
+        while i < n:
+            if widths[i]:
+                j = i
+                while j < n and widths[j] == widths[i]:
+                    j += 1
+                runs.append((i, j))
+                i = j
+            else:
+                i += 1
+        run = _pick_run(runs, n)
+        if run is None:
+            continue
+        a, b = run
+        score = (min(b - a, MIN_RUN), -a, -k)
+        if best is None or score > best[0]:
+            best = (score, d, a, widths[a])
+    if best is None:
+        return None
+    return best[1], best[2], best[3]
+
+
+def _pick_run(runs: list[tuple[int, int]], n: int) -> tuple[int, int] | None:
+    for a, b in runs:
+        if b - a >= MIN_RUN or b == n:
+            return a, b
+    if runs:
+        return max(runs, key=lambda r: r[1] - r[0])
+    return None
+
+
+def _extend_back(lines: list[str], start: int, width: int, d: Dialect) -> int:
+    """Move the block start up over damaged data lines (first cell a number).
+
+    A bad value in the first rows (a wrong decimal mark, an empty or non-finite cell)
+    must be reported at its line, not turn the rows above it into metadata.
+    """
+    pat = number_pattern(d.decimal)
+    new_start = start
+    i = start - 1
+    while i >= 0:
+        line = lines[i]
+        if not line.strip():
+            i -= 1
+            continue
+        cells = split_cells(line, d.sep)
+        first = next((c for c in cells if c), "")
+        if len(cells) <= width and pat.fullmatch(first):
+            new_start = i
+            i -= 1
+            continue
+        break
+    return new_start
+
+
+def locate_block(
+    lines: list[str],
+    text: str,
+    *,
+    sep: str | None = None,
+    decimal: str | None = None,
+) -> Layout | None:
+    """Find the numeric block, dialect and header in the scanned ``lines``.
+
+    Parameters
+    ----------
+    lines : list of str
+        The first lines of the file (at most :data:`SCAN_LINES`).
+    text : str
+        The whole text (used only to settle the decimal mark when the first data lines
+        hold integers only).
+    sep, decimal : str, optional
+        Forced separator (``"\\t"``, ``";"``, ``","`` or ``" "``) and decimal mark.
+
+    Returns
+    -------
+    Layout or None
+        None when no block of at least two numeric columns is found.
+    """
+    candidates = [
+        d
+        for d in DIALECTS
+        if (sep is None or d.sep == sep) and (decimal is None or d.decimal == decimal)
+    ]
+    found = _fast_block(lines, candidates) or _general_block(lines, candidates)
+    if found is None:
+        return None
+    d, good, width = found
+    offset = sum(len(ln) + 1 for ln in lines[:good])
+    d = _settle_decimal(d, lines[good : good + 20], text, offset, candidates)
+    start = _extend_back(lines, good, width, d)
+    header, units, names = _find_header(lines, start, width, d)
+    return Layout(d, start, good, width, header, units, names)
+
+
+def _settle_decimal(
+    d: Dialect, sample: list[str], text: str, offset: int, candidates: list[Dialect]
+) -> Dialect:
+    """Integer-only first lines fit both marks; look for a comma further down."""
+    if d.sep == "," or any(("." in ln or "," in ln) for ln in sample):
+        return d
+    alt = Dialect(d.sep, ",")
+    if alt in candidates and text.find(",", offset) >= 0 and text.find(".", offset) < 0:
+        return alt
+    return d
+
+
+def _find_header(
+    lines: list[str], start: int, width: int, d: Dialect
+) -> tuple[int | None, int | None, tuple[str, ...]]:
+    pat = number_pattern(d.decimal)
+
+    def previous(i: int) -> int | None:
+        i -= 1
+        while i >= 0 and not lines[i].strip():
+            i -= 1
+        return i if i >= 0 else None
+
+    def header_cells(i: int) -> list[str]:
+        line = lines[i]
+        if d.sep == " ":
+            cells = [c.strip() for c in re.split(r"\t+|\s{2,}", line.strip())]
+            if len(cells) != width:
+                cells = line.split()
+            return [c.strip('"') for c in cells]
+        return split_cells(line, d.sep, quoted=True)
+
+    def is_texty(i: int) -> bool:
+        cells = header_cells(i)
+        if len(cells) < 2 and width > 1:
+            return False
+        if d.sep == " " and len(cells) != width:
+            # Blank-separated: only a line splitting into exactly one name per column.
+            return False
+        num, nonempty = _is_num_row(cells, pat)
+        return nonempty > 0 and 2 * num < nonempty
+
+    h = previous(start)
+    if h is None or not is_texty(h):
+        return None, None, tuple("" for _ in range(width))
+    cells = header_cells(h)
+    units = None
+    above = previous(h)
+    if all(is_unit_cell(c) for c in cells) and above is not None and is_texty(above):
+        names_above = header_cells(above)
+        # A units row under the names: same cell count, and the names say time/volume.
+        if len(names_above) == len(cells) and any(
+            x_kind_of(nm)[0] is not None for nm in names_above
+        ):
+            units = h
+            h = above
+            merged = []
+            for j in range(max(len(names_above), len(cells))):
+                name = names_above[j] if j < len(names_above) else ""
+                unit = cells[j] if j < len(cells) else ""
+                unit = unit.strip("()[]{} ")
+                merged.append(f"{name} ({unit})" if unit and name else name or unit)
+            cells = merged
+    names = [cells[j] if j < len(cells) else "" for j in range(width)]
+    return h, units, tuple(names)
+
+
+_META_SPLIT = re.compile(r"\s*(?::|=|\t|;|,)\s*")
+
+
+def parse_metadata_line(line: str) -> tuple[str, str] | None:
+    """``(key, value)`` of a free-text line above the header, or None for separator-only lines.
+
+    The key ends at the first ``:``, ``=``, tab, ``;`` or ``,``; a line with none of
+    these is a key with an empty value. Surrounding quotes and trailing separators are
+    removed.
+
+    Examples
+    --------
+    >>> parse_metadata_line("Flow rate: 1.0 mL/min")
+    ('Flow rate', '1.0 mL/min')
+    >>> parse_metadata_line('"Sample";"PS 12";;')
+    ('Sample', 'PS 12')
+    >>> parse_metadata_line("[Raw data]")
+    ('[Raw data]', '')
+    """
+    s = line.strip()
+    if s.startswith(("#", "!")):
+        s = s[1:].strip()
+    m = _META_SPLIT.search(s)
+    if m:
+        key, value = s[: m.start()], s[m.end() :]
+    else:
+        key, value = s, ""
+    key = key.strip().strip('"').strip()
+    value = value.strip().rstrip(";,\t").strip()
+    if len(value) >= 2 and value[0] == value[-1] == '"':
+        value = value[1:-1]
+    value = value.replace('";"', "; ").replace('","', ", ").replace('"\t"', " ")
+    if not key:
+        return None if not value else ("", value)
+    return key, value

@@ -1,0 +1,925 @@
+"""Reading one chromatogram (a slice export: x and detector signal) from text or XLSX.
+
+The reader turns a file dialect into plain data: a :class:`Chromatogram` with float64
+arrays sorted by increasing x, the kind and unit of x, the chosen columns and the free-text
+metadata found above the header. What the signal means (baseline, limits) is decided
+later, in :mod:`gpctools.signal`.
+
+How a text file is read
+-----------------------
+1. The bytes are read once and decoded (BOM, UTF-16 without BOM, UTF-8, Windows-1252,
+   Latin-1, in that order; or the ``encoding`` given).
+2. The first :data:`~gpctools.io._text.SCAN_LINES` lines are scanned for the first run of
+   numeric lines; the separator (tab, ``;``, ``,``, whitespace) and the decimal mark are
+   those that split every sample line into the same number (>= 2) of numbers. The
+   non-empty line just above the run is the header if most of its cells are not numbers
+   (a units row under the names, e.g. ``min;mV``, is merged into the names). Lines above
+   the header are metadata.
+3. Footer lines after the block (text, or rows of a different width, such as a peak
+   table) are set aside; the block is parsed by one :func:`pandas.read_csv` call (C
+   engine). Only if that fails does a line-by-line pass run, to name the offending line.
+"""
+
+from __future__ import annotations
+
+import io
+import math
+import os
+import re
+import warnings as _warnings
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+
+from gpctools.errors import DataError, GpcWarning, InputFormatError, MethodError
+from gpctools.io import _xlsx
+from gpctools.io._columns import (
+    UNIT_KIND,
+    detector_rank,
+    normalise_unit,
+    split_header,
+    x_kind_of,
+)
+from gpctools.io._files import decode_text, detect_kind, read_bytes
+from gpctools.io._text import (
+    SCAN_LINES,
+    Dialect,
+    Layout,
+    locate_block,
+    number_pattern,
+    parse_metadata_line,
+    split_cells,
+)
+
+__all__ = ["Chromatogram", "read_chromatogram", "MIN_POINTS", "ReaderWarning"]
+
+#: Fewest data rows (slices) accepted; fewer cannot describe a peak.
+MIN_POINTS = 10
+#: Footer lines set aside at most; a longer tail is treated as part of the table.
+MAX_FOOTER_LINES = 1000
+
+
+class ReaderWarning(GpcWarning):
+    """A file was read, but something in it deserves a look (e.g. a unit overridden)."""
+
+
+@dataclass(frozen=True, eq=False)
+class Chromatogram:
+    """One detector trace as exported: x (volume or time) and signal, sorted by x.
+
+    Parameters
+    ----------
+    path : str
+        The file it was read from (as given).
+    x : numpy.ndarray
+        Elution volume [mL] or retention time [min] or [s] (see ``x_unit``), float64,
+        strictly increasing.
+    signal : numpy.ndarray
+        Detector response [detector units], float64, same length as ``x``.
+    x_kind : str
+        ``"volume"`` or ``"time"``.
+    x_unit : str
+        ``"mL"`` (volume), ``"min"`` or ``"s"`` (time).
+    x_column, signal_column : str
+        Header of the columns used (``"column 0"`` ... for files without a header).
+    metadata : dict of str to str
+        Free-text ``key: value`` lines (or cells) above the header, in file order.
+    header_row : int
+        1-based line (text) or row (XLSX) of the header; 0 when the file has no header.
+    sheet : str or None
+        Sheet read, for workbooks.
+    warnings : tuple of str
+        Messages of the :class:`ReaderWarning` issued while reading.
+
+    Raises
+    ------
+    gpctools.errors.DataError
+        If the arrays are not 1-D, of equal length, finite, or x is not strictly
+        increasing, or kind and unit disagree.
+    """
+
+    path: str
+    x: np.ndarray
+    signal: np.ndarray
+    x_kind: str
+    x_unit: str
+    x_column: str
+    signal_column: str
+    metadata: dict[str, str] = field(default_factory=dict)
+    header_row: int = 0
+    sheet: str | None = None
+    warnings: tuple[str, ...] = ()
+
+    def __post_init__(self) -> None:
+        x = np.array(self.x, dtype=np.float64, copy=True)
+        y = np.array(self.signal, dtype=np.float64, copy=True)
+        where = {"path": self.path}
+        if x.ndim != 1 or y.ndim != 1 or x.shape != y.shape:
+            raise DataError(
+                f"x and signal must be 1-D arrays of equal length (got {x.shape} and {y.shape})",
+                **where,
+            )
+        if x.size < 2:
+            raise DataError("a chromatogram needs at least two points", **where)
+        if not (np.isfinite(x).all() and np.isfinite(y).all()):
+            raise DataError("x and signal must be finite numbers (no NaN or inf)", **where)
+        if not (np.diff(x) > 0).all():
+            raise DataError("x must be strictly increasing (sort it, remove duplicates)", **where)
+        if UNIT_KIND.get(self.x_unit) != self.x_kind:
+            raise DataError(
+                f"x_unit {self.x_unit!r} does not fit x_kind {self.x_kind!r}; use 'mL' for "
+                "volume, 'min' or 's' for time",
+                **where,
+            )
+        x.setflags(write=False)
+        y.setflags(write=False)
+        object.__setattr__(self, "x", x)
+        object.__setattr__(self, "signal", y)
+        object.__setattr__(self, "metadata", dict(self.metadata))
+        object.__setattr__(self, "warnings", tuple(self.warnings))
+
+    def __len__(self) -> int:
+        return int(self.x.size)
+
+    def to_volume(self, flow_rate: float | None = None) -> np.ndarray:
+        """Elution volume of each slice [mL].
+
+        Parameters
+        ----------
+        flow_rate : float, optional
+            Nominal pump flow rate [mL/min]; required when x is a time.
+
+        Returns
+        -------
+        numpy.ndarray
+            ``x`` for volumes; ``t [min] * flow_rate`` or ``t [s] / 60 * flow_rate`` for
+            times (a new array either way).
+
+        Raises
+        ------
+        gpctools.errors.MethodError
+            Key ``"flow.rate"``: x is a time and no positive, finite flow rate was given.
+
+        Examples
+        --------
+        >>> import numpy as np
+        >>> c = Chromatogram("a.csv", np.arange(10.0), np.ones(10), "time", "min", "t", "RI")
+        >>> c.to_volume(0.5)[:3]
+        array([0. , 0.5, 1. ])
+        """
+        if self.x_kind == "volume":
+            return np.array(self.x, dtype=np.float64, copy=True)
+        if flow_rate is None:
+            raise MethodError(
+                f"x is a retention time [{self.x_unit}]; give the flow rate [mL/min] to "
+                "convert it to elution volume",
+                path=self.path,
+                key="flow.rate",
+            )
+        try:
+            f = float(flow_rate)
+        except (TypeError, ValueError):
+            f = float("nan")
+        if not math.isfinite(f) or f <= 0:
+            raise MethodError(
+                f"flow rate must be a positive number [mL/min], got {flow_rate!r}",
+                path=self.path,
+                key="flow.rate",
+            )
+        minutes = self.x / 60.0 if self.x_unit == "s" else self.x
+        return minutes * f
+
+    def summary(self) -> dict[str, Any]:
+        """Plain JSON-safe description (no arrays)."""
+        return {
+            "path": self.path,
+            "sheet": self.sheet,
+            "points": len(self),
+            "x_kind": self.x_kind,
+            "x_unit": self.x_unit,
+            "x_column": self.x_column,
+            "signal_column": self.signal_column,
+            "x_min": float(self.x[0]),
+            "x_max": float(self.x[-1]),
+            "header_row": self.header_row,
+            "metadata": dict(self.metadata),
+            "warnings": list(self.warnings),
+        }
+
+
+# ============================================================================ public
+
+
+def read_chromatogram(
+    path: str | os.PathLike[str],
+    *,
+    sheet: str | int | None = None,
+    x_column: str | int | None = None,
+    signal_column: str | int | None = None,
+    x_unit: str | None = None,
+    decimal: str | None = None,
+    separator: str | None = None,
+    encoding: str | None = None,
+) -> Chromatogram:
+    """Read one chromatogram export (CSV/TXT/TSV/DAT/ASC text or XLSX).
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+        The export. Text and workbooks are told apart by content, checked against the
+        extension.
+    sheet : str or int, optional
+        Workbook sheet by name or 0-based index (default the first); ignored for text.
+    x_column, signal_column : str or int, optional
+        Header (case-insensitive; the name without its unit also matches) or 0-based
+        column index. Default: the x column is the first volume column, else the first
+        time column, recognised by header words and units; the signal is the best
+        detector column (refractive index, then UV/IR, then generic signal words, then
+        the first other numeric column).
+    x_unit : {"mL", "min", "s"}, optional
+        Unit of x; overrides the header. Required for files without a header (unless a
+        metadata line such as ``X unit: min`` gives it) and for time columns whose header
+        has no unit.
+    decimal : {".", ","}, optional
+        Force the decimal mark (default: detected).
+    separator : {"\\t", ";", ",", " "}, optional
+        Force the separator; ``" "`` (or ``"whitespace"``) means runs of blanks; ``"tab"``
+        is accepted for ``"\\t"``. Default: detected.
+    encoding : str, optional
+        Force the text encoding (default: detected).
+
+    Returns
+    -------
+    Chromatogram
+
+    Raises
+    ------
+    gpctools.errors.InputFormatError
+        Naming the file and line/row: no numeric table, fewer than :data:`MIN_POINTS`
+        rows, x not monotonic (or repeated), text or an empty cell inside the table,
+        non-finite values, unknown column, unknown unit, wrong sheet, a file that is not
+        what its extension says.
+    gpctools.errors.MethodError
+        For a bad argument (unknown ``x_unit``, ``decimal`` or ``separator``).
+    """
+    unit_arg = _unit_argument(x_unit)
+    sep = _separator_argument(separator)
+    dec = _decimal_argument(decimal)
+    data = read_bytes(path)
+    kind = detect_kind(path, data)
+    if kind == "xlsx":
+        return _read_xlsx(path, data, sheet, x_column, signal_column, unit_arg, dec)
+    text = decode_text(path, data, encoding)
+    return _read_text(path, text, x_column, signal_column, unit_arg, sep, dec)
+
+
+# ============================================================================ arguments
+
+
+def _unit_argument(x_unit: str | None) -> str | None:
+    if x_unit is None:
+        return None
+    unit = normalise_unit(str(x_unit))
+    if unit is None:
+        raise MethodError(
+            f"x_unit {x_unit!r} is not known; use 'mL' (elution volume), 'min' or 's' "
+            "(retention time)",
+            key="x_unit",
+        )
+    return unit
+
+
+def _separator_argument(separator: str | None) -> str | None:
+    if separator is None:
+        return None
+    aliases = {
+        "\t": "\t",
+        "tab": "\t",
+        "\\t": "\t",
+        ";": ";",
+        "semicolon": ";",
+        ",": ",",
+        "comma": ",",
+        " ": " ",
+        "space": " ",
+        "whitespace": " ",
+        r"\s+": " ",
+    }
+    key = separator if separator in aliases else str(separator).strip().lower()
+    if key not in aliases:
+        raise MethodError(
+            f"separator {separator!r} is not supported; use '\\t', ';', ',' or ' ' "
+            "(whitespace), or leave it unset to detect it",
+            key="separator",
+        )
+    return aliases[key]
+
+
+def _decimal_argument(decimal: str | None) -> str | None:
+    if decimal is None:
+        return None
+    if decimal not in (".", ","):
+        raise MethodError(
+            f"decimal mark {decimal!r} is not supported; use '.' or ','", key="decimal"
+        )
+    return decimal
+
+
+# ============================================================================ columns
+
+
+def _display(names: tuple[str, ...] | list[str], j: int) -> str:
+    return names[j] if j < len(names) and names[j] else f"column {j}"
+
+
+def _available(names: tuple[str, ...] | list[str], has_header: bool) -> str:
+    if not has_header:
+        return f"the file has no header; columns are numbered 0 to {len(names) - 1}"
+    return "available columns: " + ", ".join(
+        f"{j}: {_display(names, j)!r}" for j in range(len(names))
+    )
+
+
+def _resolve_column(
+    spec: str | int,
+    role: str,
+    names: tuple[str, ...],
+    has_header: bool,
+    err: dict[str, Any],
+) -> int:
+    width = len(names)
+    if isinstance(spec, bool) or not isinstance(spec, (int, np.integer, str)):
+        raise InputFormatError(
+            f"{role} must be a header or a 0-based column number, not {spec!r}; "
+            + _available(names, has_header),
+            **err,
+        )
+    if isinstance(spec, (int, np.integer)):
+        j = int(spec)
+        if not 0 <= j < width:
+            raise InputFormatError(
+                f"{role} {j} is out of range: the table has {width} columns (0 to "
+                f"{width - 1}); " + _available(names, has_header),
+                **err,
+            )
+        return j
+    if not has_header:
+        raise InputFormatError(
+            f"{role} {spec!r} cannot be found because the file has no header row; "
+            f"give a 0-based column number (0 to {width - 1})",
+            **err,
+        )
+    want = spec.strip().casefold()
+    for j, n in enumerate(names):
+        if n.strip().casefold() == want:
+            return j
+    for j, n in enumerate(names):
+        if n and split_header(n)[0].strip().casefold() == want:
+            return j
+    raise InputFormatError(
+        f"no column named {spec!r} for {role}; " + _available(names, has_header),
+        column=spec,
+        **err,
+    )
+
+
+_META_UNIT_KEY = re.compile(
+    r"(?:\bx\b|abscissa|x[-_ ]?axis|time|volume).*\bunits?\b|\bunits?\b.*(?:\bx\b|x[-_ ]?axis)"
+    r"|^x[-_ ]?axis$|^abscissa$",
+    re.IGNORECASE,
+)
+
+
+def _unit_from_metadata(metadata: dict[str, str]) -> tuple[str | None, str | None]:
+    """(unit, key) from a metadata line that names the x unit, e.g. ``X unit: min``."""
+    for key, value in metadata.items():
+        if _META_UNIT_KEY.search(key):
+            unit = normalise_unit(value) or x_kind_of(value)[1]
+            if unit is not None:
+                return unit, key
+    return None, None
+
+
+def _choose_columns(
+    names: tuple[str, ...],
+    has_header: bool,
+    numeric_cols: set[int],
+    x_column: str | int | None,
+    signal_column: str | int | None,
+    unit_arg: str | None,
+    metadata: dict[str, str],
+    err: dict[str, Any],
+) -> tuple[int, int, str, str, list[str]]:
+    """(x index, signal index, x_kind, x_unit, warning messages)."""
+    notes: list[str] = []
+    if x_column is not None:
+        xi = _resolve_column(x_column, "x_column", names, has_header, err)
+    elif has_header:
+        found = [(j, x_kind_of(n)) for j, n in enumerate(names) if j in numeric_cols]
+        vols = [j for j, (k, _) in found if k == "volume"]
+        times = [j for j, (k, _) in found if k == "time"]
+        if vols or times:
+            xi = (vols or times)[0]
+        elif unit_arg is not None:
+            xi = min(numeric_cols)
+        else:
+            raise InputFormatError(
+                "cannot tell which column is the elution volume or retention time from the "
+                "headers; name it with x_column= and give x_unit= ('mL', 'min' or 's'); "
+                + _available(names, has_header),
+                **err,
+            )
+    else:
+        xi = min(numeric_cols)
+    header_kind, header_unit = x_kind_of(names[xi]) if has_header else (None, None)
+    if unit_arg is not None:
+        unit = unit_arg
+        if header_unit is not None and header_unit != unit_arg:
+            notes.append(
+                f"x column {_display(names, xi)!r} says {header_unit!r} but x_unit="
+                f"{unit_arg!r} was given; using {unit_arg!r}"
+            )
+    elif header_unit is not None:
+        unit = header_unit
+    else:
+        meta_unit, meta_key = _unit_from_metadata(metadata)
+        if meta_unit is not None and (header_kind is None or UNIT_KIND[meta_unit] == header_kind):
+            unit = meta_unit
+        elif not has_header:
+            raise InputFormatError(
+                "the file has no header row, so the unit of x (column 0) is unknown; give "
+                "x_unit='mL' for elution volume or x_unit='min'/'s' for retention time",
+                **err,
+            )
+        elif header_kind == "time":
+            raise InputFormatError(
+                f"the time column {_display(names, xi)!r} has no unit; give x_unit='min' or "
+                "x_unit='s' (or write the unit in the header, e.g. 'Time (min)')",
+                column=_display(names, xi),
+                **err,
+            )
+        else:
+            raise InputFormatError(
+                f"the unit of the x column {_display(names, xi)!r} is not known; give "
+                "x_unit='mL', 'min' or 's' (or write it in the header, e.g. 'Volume (mL)')",
+                column=_display(names, xi),
+                **err,
+            )
+    if signal_column is not None:
+        yi = _resolve_column(signal_column, "signal_column", names, has_header, err)
+    else:
+        options = [j for j in sorted(numeric_cols) if j != xi]
+        ranked = [(detector_rank(names[j]) if has_header else 1, -j) for j in options]
+        best = max(range(len(options)), key=lambda k: ranked[k], default=None)
+        if best is None or ranked[best][0] < 0:
+            raise InputFormatError(
+                "no detector signal column found besides the x column; name it with "
+                "signal_column=; " + _available(names, has_header),
+                **err,
+            )
+        yi = options[best]
+    if yi == xi:
+        raise InputFormatError(
+            f"x_column and signal_column are the same column ({_display(names, xi)!r}); "
+            "choose two different columns",
+            **err,
+        )
+    return xi, yi, UNIT_KIND[unit], unit, notes
+
+
+# ============================================================================ text
+
+
+def _metadata_from_lines(lines: list[str]) -> dict[str, str]:
+    meta: dict[str, str] = {}
+    for line in lines:
+        if not line.strip():
+            continue
+        kv = parse_metadata_line(line)
+        if kv is None:
+            continue
+        _put(meta, *kv)
+    return meta
+
+
+def _put(meta: dict[str, str], key: str, value: str) -> None:
+    if key in meta:
+        n = 2
+        while f"{key} ({n})" in meta:
+            n += 1
+        key = f"{key} ({n})"
+    meta[key] = value
+
+
+def _footer_start(text: str, offset: int, d: Dialect, width: int) -> int:
+    """Character offset where trailing footer lines start (``len(text)`` if none)."""
+    pat = number_pattern(d.decimal)
+    end = len(text)
+    for _ in range(MAX_FOOTER_LINES):
+        e = end
+        while e > offset and text[e - 1] in " \t\n":
+            e -= 1
+        if e <= offset:
+            return end
+        b = max(text.rfind("\n", offset, e) + 1, offset)
+        cells = split_cells(text[b:e], d.sep)
+        numeric = sum(1 for c in cells if pat.fullmatch(c))
+        is_row = len(cells) == width and numeric >= 2 and 2 * numeric >= len(cells)
+        if is_row:
+            return e
+        all_numbers = cells and numeric == len(cells)
+        if all_numbers and len(cells) <= width:
+            # A short row of numbers (a cut-off last line) is data gone wrong, not a footer.
+            return e
+        end = b
+    return end
+
+
+def _read_text(
+    path: str | os.PathLike[str],
+    text: str,
+    x_column: str | int | None,
+    signal_column: str | int | None,
+    unit_arg: str | None,
+    sep: str | None,
+    dec: str | None,
+) -> Chromatogram:
+    import pandas as pd
+
+    err: dict[str, Any] = {"path": path}
+    parts = text.split("\n", SCAN_LINES)
+    head = parts[:SCAN_LINES]
+    layout = locate_block(head, text, sep=sep, decimal=dec)
+    if layout is None:
+        forced = ""
+        if sep is not None or dec is not None:
+            forced = " with the separator/decimal mark given"
+        raise InputFormatError(
+            f"no table of numbers found{forced} in the first {len(head)} lines: expected "
+            "rows with at least two numbers (x and signal) separated by tab, ';', ',' or "
+            "spaces, under a header row such as 'Volume (mL);RI (mV)'",
+            **err,
+        )
+    d = layout.dialect
+    has_header = layout.header is not None
+    meta_end = layout.header if has_header else layout.start
+    metadata = _metadata_from_lines(head[:meta_end])
+    pat = number_pattern(d.decimal)
+    first = split_cells(head[layout.good], d.sep)
+    numeric_cols = {j for j, c in enumerate(first) if pat.fullmatch(c)}
+    xi, yi, x_kind, x_unit, notes = _choose_columns(
+        layout.names, has_header, numeric_cols, x_column, signal_column, unit_arg, metadata, err
+    )
+    offset = sum(len(ln) + 1 for ln in head[: layout.start])
+    end = _footer_start(text, offset, d, layout.width)
+    block = text[offset:end]
+    first_line = layout.start + 1
+    x = y = None
+    try:
+        # No dtype and no usecols: letting the C parser infer types is the fastest way;
+        # the two columns used are checked to be numeric right after.
+        frame = pd.read_csv(
+            io.StringIO(block),
+            sep=d.pandas_sep,
+            decimal=d.decimal,
+            header=None,
+            na_filter=False,
+            engine="c",
+            skip_blank_lines=True,
+        )
+        cx, cy = frame[xi], frame[yi]
+        if cx.dtype.kind in "fiu" and cy.dtype.kind in "fiu":
+            x = cx.to_numpy(dtype=np.float64)
+            y = cy.to_numpy(dtype=np.float64)
+            if not (np.isfinite(x).all() and np.isfinite(y).all()):
+                x = y = None
+    except (ValueError, IndexError, KeyError, pd.errors.ParserError, pd.errors.EmptyDataError):
+        x = y = None
+    if x is None or y is None:
+        x, y, lines_arr = _parse_lines(block, first_line, d, xi, yi, layout.names, err)
+    else:
+        lines_arr = None
+
+    def line_of(k: int) -> int:
+        """Line number of data row ``k`` (computed only on the error path)."""
+        nonlocal lines_arr
+        if lines_arr is None:
+            n_lines = block.count("\n") + (0 if block.endswith("\n") else 1)
+            if n_lines == x.size:
+                return first_line + k
+            lines_arr = _parse_lines(block, first_line, d, xi, yi, layout.names, err)[2]
+        return int(lines_arr[k])
+
+    return _finish(
+        path,
+        x,
+        y,
+        x_kind,
+        x_unit,
+        layout.names,
+        has_header,
+        xi,
+        yi,
+        metadata,
+        (layout.header + 1) if has_header else 0,
+        None,
+        notes,
+        line_of,
+        "line",
+    )
+
+
+def _parse_lines(
+    block: str,
+    first_line: int,
+    d: Dialect,
+    xi: int,
+    yi: int,
+    names: tuple[str, ...],
+    err: dict[str, Any],
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Line-by-line parse of the data block; raises at the first bad line."""
+    pat = number_pattern(d.decimal)
+    xs: list[float] = []
+    ys: list[float] = []
+    nums: list[int] = []
+    other = "decimal point" if d.decimal == "," else "decimal comma"
+    mark = "comma" if d.decimal == "," else "point"
+    for k, line in enumerate(block.split("\n")):
+        n = first_line + k
+        if not line.strip():
+            continue
+        cells = split_cells(line, d.sep, quoted=d.sep != " ")
+        vals = []
+        for j in (xi, yi):
+            cell = cells[j] if j < len(cells) else ""
+            col = _display(names, j)
+            if cell == "":
+                if not any(pat.fullmatch(c) for c in cells):
+                    raise InputFormatError(
+                        f"line {n} holds text {line.strip()[:60]!r} inside the data table "
+                        f"(rows of numbers follow); delete that line or correct it",
+                        row=n,
+                        **err,
+                    )
+                raise InputFormatError(
+                    f"line {n}: the value in column {col!r} is missing (empty cell); fill it "
+                    "in or delete the line",
+                    row=n,
+                    column=col,
+                    **err,
+                )
+            if not pat.fullmatch(cell):
+                low = cell.lower().lstrip("+-")
+                if low in {"nan", "inf", "infinity", "-inf", "1.#inf", "1.#qnan", "#num!"} or (
+                    low.startswith(("nan", "inf"))
+                ):
+                    raise InputFormatError(
+                        f"line {n}: {cell!r} in column {col!r} is not a finite number; "
+                        "replace it with a number or delete the line",
+                        row=n,
+                        column=col,
+                        **err,
+                    )
+                if not any(pat.fullmatch(c) for c in cells):
+                    raise InputFormatError(
+                        f"line {n} holds text {line.strip()[:60]!r} inside the data table "
+                        f"(rows of numbers follow); delete that line or correct it",
+                        row=n,
+                        **err,
+                    )
+                hint = ""
+                alt = number_pattern("." if d.decimal == "," else ",")
+                if alt.fullmatch(cell):
+                    hint = (
+                        f" (the file uses a decimal {mark}; this value has a {other} - "
+                        "make them agree, or pass decimal=)"
+                    )
+                raise InputFormatError(
+                    f"line {n}: {cell!r} in column {col!r} is not a number{hint}; correct "
+                    "the value or delete the line",
+                    row=n,
+                    column=col,
+                    **err,
+                )
+            vals.append(float(cell.replace(",", ".")) if d.decimal == "," else float(cell))
+        xs.append(vals[0])
+        ys.append(vals[1])
+        nums.append(n)
+    return np.asarray(xs, dtype=np.float64), np.asarray(ys, dtype=np.float64), np.asarray(nums)
+
+
+# ============================================================================ shared
+
+
+def _finish(
+    path: str | os.PathLike[str],
+    x: np.ndarray,
+    y: np.ndarray,
+    x_kind: str,
+    x_unit: str,
+    names: tuple[str, ...],
+    has_header: bool,
+    xi: int,
+    yi: int,
+    metadata: dict[str, str],
+    header_row: int,
+    sheet: str | None,
+    notes: list[str],
+    line_of: Any,
+    word: str,
+) -> Chromatogram:
+    err: dict[str, Any] = {"path": path, "sheet": sheet}
+    xcol = _display(names, xi)
+    if x.size < MIN_POINTS:
+        raise InputFormatError(
+            f"the data table has only {x.size} rows; at least {MIN_POINTS} slices are "
+            "needed - export the whole chromatogram",
+            **err,
+        )
+    dx = np.diff(x)
+    if not (dx > 0).all():
+        if (dx < 0).all():
+            x = x[::-1]
+            y = y[::-1]
+        else:
+            increasing = x[-1] >= x[0]
+            bad = int(np.flatnonzero(dx <= 0 if increasing else dx >= 0)[0])
+            here, before = line_of(bad + 1), line_of(bad)
+            if dx[bad] == 0:
+                msg = (
+                    f"{word} {here}: x value {x[bad + 1]:g} in column {xcol!r} repeats the "
+                    f"value of {word} {before}; every slice needs its own x - delete the "
+                    "duplicate"
+                )
+            else:
+                trend = "increase" if increasing else "decrease"
+                msg = (
+                    f"{word} {here}: x in column {xcol!r} goes from {x[bad]:g} ({word} "
+                    f"{before}) to {x[bad + 1]:g}, but it must {trend} throughout; keep one "
+                    "chromatogram per file with its slices in order"
+                )
+            raise InputFormatError(msg, row=here, column=xcol, **err)
+    for note in notes:
+        _warnings.warn(f"{path}: {note}", ReaderWarning, stacklevel=3)
+    return Chromatogram(
+        path=str(path),
+        x=x,
+        signal=y,
+        x_kind=x_kind,
+        x_unit=x_unit,
+        x_column=xcol,
+        signal_column=_display(names, yi),
+        metadata=metadata,
+        header_row=header_row,
+        sheet=sheet,
+        warnings=tuple(notes),
+    )
+
+
+# ============================================================================ xlsx
+
+
+def _cell_number(v: Any, decimal: str | None) -> float | None:
+    """Float of a numeric cell or numeric text, else None."""
+    if isinstance(v, bool) or v is None:
+        return None
+    if isinstance(v, (int, float)):
+        f = float(v)
+        return f if math.isfinite(f) else None
+    if isinstance(v, str):
+        s = v.strip()
+        if decimal != "," and number_pattern(".").fullmatch(s):
+            return float(s)
+        if decimal != "." and number_pattern(",").fullmatch(s):
+            return float(s.replace(",", "."))
+    return None
+
+
+def _cell_text(v: Any, decimal: str | None) -> str:
+    if v is None:
+        return ""
+    f = _cell_number(v, decimal)
+    if f is not None:
+        return repr(f)
+    return str(v).replace("\t", " ").replace("\n", " ").strip()
+
+
+def _meta_text(v: Any) -> str:
+    if v is None:
+        return ""
+    if isinstance(v, float) and v.is_integer() and abs(v) < 1e15:
+        return str(int(v))
+    if hasattr(v, "isoformat"):
+        return str(v.isoformat())
+    return str(v).strip()
+
+
+def _read_xlsx(
+    path: str | os.PathLike[str],
+    data: bytes,
+    sheet: str | int | None,
+    x_column: str | int | None,
+    signal_column: str | int | None,
+    unit_arg: str | None,
+    dec: str | None,
+) -> Chromatogram:
+    name, raw = _xlsx.read_rows(path, data, sheet)
+    err: dict[str, Any] = {"path": path, "sheet": name}
+    head_rows = raw[:SCAN_LINES]
+    lines = ["\t".join(_cell_text(v, dec) for v in r) for r in head_rows]
+    layout: Layout | None = locate_block(lines, "\n".join(lines), sep="\t", decimal=".")
+    if layout is None:
+        raise InputFormatError(
+            f"no table of numbers found in the first {len(lines)} rows: expected rows with "
+            "at least two numbers (x and signal) under a header row such as "
+            "'Volume (mL)' | 'RI (mV)'",
+            **err,
+        )
+    has_header = layout.header is not None
+    meta_end = layout.header if has_header else layout.start
+    metadata: dict[str, str] = {}
+    for r in head_rows[:meta_end]:
+        cells = [_meta_text(v) for v in r]
+        cells = [c for c in cells if c]
+        if not cells:
+            continue
+        if len(cells) == 1:
+            kv = parse_metadata_line(cells[0])
+            if kv is not None:
+                _put(metadata, *kv)
+        else:
+            _put(metadata, cells[0].rstrip(":=").strip(), " ".join(cells[1:]))
+    first = raw[layout.good]
+    numeric_cols = {j for j, v in enumerate(first) if _cell_number(v, dec) is not None}
+    xi, yi, x_kind, x_unit, notes = _choose_columns(
+        layout.names, has_header, numeric_cols, x_column, signal_column, unit_arg, metadata, err
+    )
+    xs: list[float] = []
+    ys: list[float] = []
+    rows: list[int] = []
+    n_rows = len(raw)
+    for i in range(layout.start, n_rows):
+        r = raw[i]
+        if not any(v is not None and v != "" for v in r):
+            continue
+        xv = _cell_number(r[xi], dec) if xi < len(r) else None
+        yv = _cell_number(r[yi], dec) if yi < len(r) else None
+        if xv is not None and yv is not None:
+            xs.append(xv)
+            ys.append(yv)
+            rows.append(i + 1)
+            continue
+        # A bad row: the footer if no data row follows, else an error.
+        if not any(_is_xy_row(raw[k], xi, yi, dec) for k in range(i + 1, n_rows)):
+            break
+        j = xi if xv is None else yi
+        value = r[j] if j < len(r) else None
+        cell = _xlsx.cell_name(i + 1, j)
+        col = _display(layout.names, j)
+        if value is None or value == "":
+            if _xlsx.formula_cells(path, data, name, {(i + 1, j)}):
+                msg = (
+                    f"row {i + 1}: cell {cell} holds a formula whose value was never saved "
+                    "(gpctools does not calculate formulas); open and save the workbook in a "
+                    "spreadsheet program, or paste values"
+                )
+            else:
+                msg = (
+                    f"row {i + 1}: cell {cell} (column {col!r}) is empty inside the data "
+                    "table; fill it in or delete the row"
+                )
+        else:
+            msg = (
+                f"row {i + 1}: cell {cell} (column {col!r}) holds {value!r}, not a number, "
+                "inside the data table; correct it or delete the row"
+            )
+        raise InputFormatError(msg, row=i + 1, column=col, **err)
+    rows_arr = np.asarray(rows)
+    return _finish(
+        path,
+        np.asarray(xs, dtype=np.float64),
+        np.asarray(ys, dtype=np.float64),
+        x_kind,
+        x_unit,
+        layout.names,
+        has_header,
+        xi,
+        yi,
+        metadata,
+        (layout.header + 1) if has_header else 0,
+        name,
+        notes,
+        lambda k: int(rows_arr[k]),
+        "row",
+    )
+
+
+def _is_xy_row(r: tuple[Any, ...], xi: int, yi: int, dec: str | None) -> bool:
+    return (
+        xi < len(r)
+        and yi < len(r)
+        and _cell_number(r[xi], dec) is not None
+        and _cell_number(r[yi], dec) is not None
+    )
