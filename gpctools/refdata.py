@@ -119,7 +119,8 @@ _SCHEMAS: dict[str, _Schema] = {
             "C_M uncertainty",
         ),
         sources=(
-            ("source", ("aliases", "polymer", "M0 [g/mol]", "density [g/mL]", "density T [°C]")),
+            ("source", ("aliases", "polymer", "M0 [g/mol]")),
+            ("density source", ("density [g/mL]", "density T [°C]")),
             ("k_p source", ("k_p A [L/mol/s]", "k_p E [kJ/mol]", "k_p uncertainty")),
             ("C_M source", ("C_M [-]", "C_M T [°C]", "C_M uncertainty")),
         ),
@@ -214,8 +215,9 @@ class Monomer:
         Propagation Arrhenius parameters: A [L/mol/s], E [kJ/mol].
     C_M, C_M_T : float or None
         Transfer-to-monomer constant k_tr,M/k_p [-] at ``C_M_T`` [°C].
-    source, kp_source, C_M_source : str
-        Status and source of each group of values.
+    source, density_source, kp_source, C_M_source : str
+        Status and source of each group of values (``source`` covers M0, aliases and
+        polymer).
     """
 
     name: str
@@ -224,6 +226,7 @@ class Monomer:
     M0: float
     density: float | None
     density_T: float | None
+    density_source: str
     kp_A: float | None
     kp_E: float | None
     kp_uncertainty: float | None
@@ -726,6 +729,7 @@ class ReferenceData:
             M0=float(r["M0 [g/mol]"]),
             density=_opt(r["density [g/mL]"]),
             density_T=_opt(r["density T [°C]"]),
+            density_source=_text(r["density source"]),
             kp_A=_opt(r["k_p A [L/mol/s]"]),
             kp_E=_opt(r["k_p E [kJ/mol]"]),
             kp_uncertainty=_opt(r["k_p uncertainty"]),

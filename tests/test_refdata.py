@@ -20,7 +20,7 @@ def K(T_celsius: float) -> float:
 
 # Pinned shapes: an accidental edit of a data file (lost row, extra column) fails here.
 SHAPES = {
-    "monomers": (5, 15),
+    "monomers": (5, 16),
     "initiators": (2, 9),
     "termination": (5, 6),
     "agents": (9, 11),
