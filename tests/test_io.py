@@ -725,3 +725,89 @@ def test_round_trip_property(
     # derived: written values come back; rtol 1e-15 = 1-ulp rounding of the C parser.
     np.testing.assert_allclose(c.x, x, rtol=1e-15, atol=0)
     np.testing.assert_allclose(c.signal, y, rtol=1e-15, atol=1e-300)
+
+
+# ----------------------------------------------------------------------------- more dialects
+
+
+def rows_of(sep: str = ";", decimal: str = ",") -> list[str]:
+    return table(sep, decimal, header=None).splitlines()
+
+
+def test_text_line_early_in_table(tmp_path: Path) -> None:
+    rows = rows_of()
+    text = "Sample: x\nVolume (mL);RI\n" + rows[0] + "\nDetector overload\n" + "\n".join(rows[1:])
+    e = bad(tmp_path, "early.csv", text + "\n")
+    assert e.row == 4 and "'Detector overload'" in str(e)
+
+
+def test_bad_value_in_first_data_row(tmp_path: Path) -> None:
+    rows = rows_of()
+    rows[0] = "12,0;0.5"
+    e = bad(tmp_path, "first.csv", "Volume (mL);RI\n" + "\n".join(rows) + "\n")
+    assert e.row == 2 and "'0.5'" in str(e)
+
+
+def test_text_flag_column_is_ignored(tmp_path: Path) -> None:
+    rows = [r + (";ok" if i % 3 else ";") for i, r in enumerate(rows_of())]
+    c = read_chromatogram(put(tmp_path, "flag.csv", "Volume (mL);RI;Flag\n" + "\n".join(rows)))
+    check_xy(c)
+
+
+def test_commented_header_and_spaces_after_commas(tmp_path: Path) -> None:
+    body = "\n".join(f"{a!r}, {b!r}" for a, b in zip(X.tolist(), Y.tolist(), strict=True))
+    c = read_chromatogram(put(tmp_path, "hash.csv", "# Volume (mL), RI (mV)\n" + body))
+    assert c.x_column == "Volume (mL)"
+    check_xy(c)
+    body_ws = "\n".join(f"{a!r}  {b!r}" for a, b in zip(X.tolist(), Y.tolist(), strict=True))
+    c2 = read_chromatogram(put(tmp_path, "hash.dat", "# Ve/mL  RI\n" + body_ws))
+    assert (c2.x_column, c2.signal_column) == ("Ve/mL", "RI")
+
+
+def test_header_then_blank_line_and_wider_header(tmp_path: Path) -> None:
+    c = read_chromatogram(put(tmp_path, "b.csv", "Volume (mL);RI;UV;LS\n\n" + "\n".join(rows_of())))
+    assert c.header_row == 1 and c.signal_column == "RI"
+    check_xy(c)
+
+
+def test_headerless_column_name_refused(tmp_path: Path) -> None:
+    e = bad(tmp_path, "nohead.csv", "\n".join(rows_of()), x_column="Volume", x_unit="mL")
+    assert "no header row" in str(e)
+
+
+def test_same_answer_twice_and_file_untouched(tmp_path: Path) -> None:
+    p = put(tmp_path, "same.csv", "Sample: a\n" + table(";", ","))
+    before = p.read_bytes()
+    a = read_chromatogram(str(p))
+    b = read_chromatogram(p)
+    np.testing.assert_array_equal(a.x, b.x)
+    np.testing.assert_array_equal(a.signal, b.signal)
+    assert a.summary() == b.summary() and p.read_bytes() == before
+
+
+def test_long_export_6000_slices(tmp_path: Path) -> None:
+    x = np.linspace(10.0, 25.0, 6000)
+    y = np.exp(-0.5 * ((x - 17.0) / 0.8) ** 2)
+    text = "Sample: long\n" + table("\t", ",", header="Time (min),RI (mV)", x=x, y=y)
+    c = read_chromatogram(put(tmp_path, "long.txt", text, encoding="utf-16"))
+    check_xy(c, x, y)
+    assert c.x_unit == "min" and len(c) == 6000
+
+
+def test_xlsx_headerless_and_zip_bomb(tmp_path: Path) -> None:
+    data = [[a, b] for a, b in zip(X.tolist(), Y.tolist(), strict=True)]
+    p = write_xlsx(tmp_path / "raw.xlsx", {"a": data})
+    with pytest.raises(InputFormatError, match="x_unit"):
+        read_chromatogram(p)
+    c = read_chromatogram(p, x_unit="mL")
+    check_xy(c)
+    assert c.header_row == 0
+    bomb = tmp_path / "bomb.xlsx"
+    buf = io.BytesIO()
+    with zipfile.ZipFile(buf, "w", compression=zipfile.ZIP_DEFLATED) as zf:
+        zf.writestr("xl/workbook.xml", "<x/>")
+        zf.writestr("xl/worksheets/sheet1.xml", b" " * 30_000_000)
+    bomb.write_bytes(buf.getvalue())
+    with pytest.raises(InputFormatError) as exc:
+        read_chromatogram(bomb)
+    assert "bomb.xlsx" in str(exc.value) and "zip bomb" in str(exc.value)

@@ -110,20 +110,27 @@ def _is_num_row(cells: list[str], pat: re.Pattern[str]) -> tuple[int, int]:
     return num, nonempty
 
 
-def _fit(lines: list[str], d: Dialect) -> tuple[int, int, int]:
+def _fit(lines: list[str], d: Dialect, need: int = 1) -> tuple[int, int, int]:
     """(lines that split into >= 2 numbers, their common width, index of the first one).
 
-    The width is the most frequent one among the fitting lines; (0, 0, 0) if none fit.
+    The width is the most frequent one among the fitting lines; (0, 0, 0) if none fit or
+    if fewer than ``need`` lines can still fit (early exit).
     """
     pat = number_pattern(d.decimal)
     counts: dict[int, int] = {}
     first: dict[int, int] = {}
+    misses = 0
+    allowed = len(lines) - need
     for k, line in enumerate(lines):
+        if misses > allowed:
+            return 0, 0, 0
         cells = split_cells(line, d.sep)
         if len(cells) < 2:
+            misses += 1
             continue
         for c in cells:
             if not pat.fullmatch(c):
+                misses += 1
                 break
         else:
             w = len(cells)
@@ -145,6 +152,7 @@ def _fast_block(lines: list[str], candidates: list[Dialect]) -> tuple[Dialect, i
     datalike = _DATALIKE.match
     n = len(lines)
     a = 0
+    short: list[tuple[int, int]] = []
     while a < n:
         if not datalike(lines[a]):
             a += 1
@@ -152,18 +160,38 @@ def _fast_block(lines: list[str], candidates: list[Dialect]) -> tuple[Dialect, i
         b = a + 1
         while b < n and b < a + 20 and datalike(lines[b]):
             b += 1
-        if b - a >= MIN_RUN or b == n:
-            sample = lines[a:b]
-            need = max(2, (len(sample) + 1) // 2) if len(sample) >= 2 else 1
-            best: tuple[int, Dialect, int, int] | None = None
-            for d in candidates:
-                count, width, first = _fit(sample, d)
-                if width and count >= need and (best is None or count > best[0]):
-                    best = (count, d, width, first)
-            if best is not None:
-                return best[1], a + best[3], best[2]
+        if b - a >= MIN_RUN:
+            found = _sample_dialect(lines, a, b, candidates)
+            if found is not None:
+                return found
+        else:
+            short.append((a, b))
         a = b
-    return None
+    if not short or _general_block(lines, candidates) is not None:
+        return None
+    # Only short runs (a tiny file): take the longest, to report "too few rows".
+    a, b = max(short, key=lambda r: r[1] - r[0])
+    return _sample_dialect(lines, a, b, candidates)
+
+
+def _sample_dialect(
+    lines: list[str], a: int, b: int, candidates: list[Dialect]
+) -> tuple[Dialect, int, int] | None:
+    sample = lines[a:b]
+    need = max(2, (len(sample) + 1) // 2) if len(sample) >= 2 else 1
+    best: tuple[int, Dialect, int, int] | None = None
+    joined = "".join(sample)
+    for d in candidates:
+        if d.sep != " " and d.sep not in joined:
+            continue  # cannot split into two cells
+        if d.decimal == "," and "," not in joined:
+            continue  # would tie with the decimal point, which is preferred
+        count, width, first = _fit(sample, d, need)
+        if width and count >= need and (best is None or count > best[0]):
+            best = (count, d, width, first)
+    if best is None:
+        return None
+    return best[1], a + best[3], best[2]
 
 
 def _general_block(lines: list[str], candidates: list[Dialect]) -> tuple[Dialect, int, int] | None:
@@ -182,27 +210,29 @@ def _general_block(lines: list[str], candidates: list[Dialect]) -> tuple[Dialect
         while i < n:
             if widths[i]:
                 j = i
-                while j < n and widths[j] == widths[i]:
+                while j < n and widths[j]:
                     j += 1
                 runs.append((i, j))
                 i = j
             else:
                 i += 1
-        run = _pick_run(runs, n)
+        run = _pick_run(runs)
         if run is None:
             continue
         a, b = run
         score = (min(b - a, MIN_RUN), -a, -k)
         if best is None or score > best[0]:
-            best = (score, d, a, widths[a])
+            # Trailing empty cells are trimmed, so rows of one table may differ in width.
+            best = (score, d, a, max(widths[a:b]))
     if best is None:
         return None
     return best[1], best[2], best[3]
 
 
-def _pick_run(runs: list[tuple[int, int]], n: int) -> tuple[int, int] | None:
+def _pick_run(runs: list[tuple[int, int]]) -> tuple[int, int] | None:
+    """The first run of at least :data:`MIN_RUN` rows, else the longest (first of equals)."""
     for a, b in runs:
-        if b - a >= MIN_RUN or b == n:
+        if b - a >= MIN_RUN:
             return a, b
     if runs:
         return max(runs, key=lambda r: r[1] - r[0])
@@ -216,20 +246,32 @@ def _extend_back(lines: list[str], start: int, width: int, d: Dialect) -> int:
     must be reported at its line, not turn the rows above it into metadata.
     """
     pat = number_pattern(d.decimal)
-    new_start = start
-    i = start - 1
-    while i >= 0:
-        line = lines[i]
-        if not line.strip():
-            i -= 1
-            continue
-        cells = split_cells(line, d.sep)
+
+    def damaged_row(i: int) -> bool:
+        cells = split_cells(lines[i], d.sep)
         first = next((c for c in cells if c), "")
-        if len(cells) <= width and pat.fullmatch(first):
-            new_start = i
+        return len(cells) <= width and bool(pat.fullmatch(first))
+
+    def above(i: int) -> int | None:
+        i -= 1
+        while i >= 0 and not lines[i].strip():
             i -= 1
-            continue
-        break
+        return i if i >= 0 else None
+
+    new_start = start
+    skips = 0
+    i = above(start)
+    while i is not None:
+        if damaged_row(i):
+            new_start = i
+        else:
+            # A text line with data rows above it is inside the block (reported later).
+            j = above(i)
+            if skips >= 3 or j is None or not damaged_row(j):
+                break
+            skips += 1
+            new_start = i
+        i = above(i)
     return new_start
 
 
@@ -298,6 +340,8 @@ def _find_header(
 
     def header_cells(i: int) -> list[str]:
         line = lines[i]
+        if line.lstrip(" ").startswith("#"):
+            line = line.lstrip(" ")[1:]  # "# Time  Signal": a commented header
         if d.sep == " ":
             cells = [c.strip() for c in re.split(r"\t+|\s{2,}", line.strip())]
             if len(cells) != width:
@@ -368,6 +412,8 @@ def parse_metadata_line(line: str) -> tuple[str, str] | None:
     else:
         key, value = s, ""
     key = key.strip().strip('"').strip()
+    if m and key.isdigit() and m.group().strip() == ":":
+        key, value = s, ""  # a clock time such as "12:30" is not a key
     value = value.strip().rstrip(";,\t").strip()
     if len(value) >= 2 and value[0] == value[-1] == '"':
         value = value[1:-1]
