@@ -284,6 +284,7 @@ def evaluate_qc(
     failed = frozenset(s.sequence for s in suit if not s.passed)
 
     charts: list[ControlChart] = []
+    short: dict[str, list[str]] = {}
     for column in settings.trend_columns:
         series: dict[str, dict[str, tuple[float, str]]] = {}
         sources = [(h, frozenset(), "history") for h in history] + [(table, failed, "current")]
@@ -310,8 +311,7 @@ def evaluate_qc(
             else:
                 mask = hist if hist.sum() >= 2 else np.ones(len(vals), dtype=bool)
             if mask.sum() < 2:
-                notes.append(f"trend {g} {column}: {int(mask.sum())} point(s) to set limits; no chart drawn "
-                             "(two or more batches are needed)")
+                short.setdefault(column, []).append(g)
                 continue
             with _warnings.catch_warnings(record=True) as caught:
                 _warnings.simplefilter("always")
@@ -322,6 +322,9 @@ def evaluate_qc(
             notes.extend(chart.warnings)
             charts.append(chart)
 
+    for column, groups in short.items():
+        notes.append(f"no control chart of {column} for {', '.join(groups)}: fewer than two points "
+                     "(batches, or sequences for check standards) to set limits")
     cal_summary = None
     if calibration is not None:
         cal_summary = calibration if isinstance(calibration, dict) else calibration.summary()

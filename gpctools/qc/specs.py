@@ -55,6 +55,15 @@ SPEC_QUANTITIES: dict[str, str] = {
 #: Header of the check-standard tolerance column.
 CHECK_STANDARD_TOLERANCE_COLUMN = "check-standard tolerance [%]"
 
+#: Columns of :meth:`SpecSheet.to_frame` (the unit of min/max/target is the quantity's).
+SPEC_FRAME_COLUMNS = (
+    "product",
+    "quantity",
+    "min [unit of quantity]",
+    "max [unit of quantity]",
+    "target [unit of quantity]",
+    "limits",
+)
 _LIMIT_HEADER = re.compile(r"^(?P<q>.+?)\s+(?P<kind>min|max|target)\s*\[(?P<unit>[^\]]*)\]$")
 _UNIT_HEADER = re.compile(r"\[[^\]]*\]\s*$")
 
@@ -279,32 +288,16 @@ class SpecSheet:
         return self.get(product) is not None
 
     def to_frame(self) -> pd.DataFrame:
-        """Long table: product, quantity, min, max, target with the unit in a column."""
+        """Long table, one row per limit: product, quantity (with its unit), min, max, target."""
         rows = []
         for p in self.products:
             for lim in p.limits:
-                rows.append(
-                    {
-                        "product": p.product,
-                        "quantity": lim.column,
-                        "min": lim.min,
-                        "max": lim.max,
-                        "target": lim.target,
-                        "limits": lim.describe(),
-                    }
-                )
+                rows.append((p.product, lim.column, lim.min, lim.max, lim.target, lim.describe()))
             if p.check_standard_tolerance_pct is not None:
-                rows.append(
-                    {
-                        "product": p.product,
-                        "quantity": CHECK_STANDARD_TOLERANCE_COLUMN,
-                        "min": None,
-                        "max": p.check_standard_tolerance_pct,
-                        "target": None,
-                        "limits": f"|deviation| <= {p.check_standard_tolerance_pct:g} %",
-                    }
-                )
-        return pd.DataFrame(rows, columns=["product", "quantity", "min", "max", "target", "limits"])
+                tol = p.check_standard_tolerance_pct
+                rows.append((p.product, CHECK_STANDARD_TOLERANCE_COLUMN, None, tol, None,
+                             f"|average/assigned - 1| <= {tol:g} %"))
+        return pd.DataFrame(rows, columns=list(SPEC_FRAME_COLUMNS))
 
     def summary(self) -> dict[str, Any]:
         """JSON-safe description."""
