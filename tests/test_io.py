@@ -628,8 +628,10 @@ def test_xlsx_metadata_second_sheet_numeric_text(tmp_path: Path) -> None:
     with pytest.raises(InputFormatError) as exc:
         read_chromatogram(p, sheet="Data")
     assert "'Summary'" in str(exc.value) and "'Slices'" in str(exc.value)
+    # The first sheet holds no table: with no sheet chosen the first sheet that does is read.
+    assert read_chromatogram(p).sheet == "Slices"
     with pytest.raises(InputFormatError, match="no table of numbers"):
-        read_chromatogram(p)  # first sheet holds no table
+        read_chromatogram(p, sheet="Summary")
 
 
 def test_xlsx_text_cell_inside(tmp_path: Path) -> None:
@@ -811,3 +813,24 @@ def test_xlsx_headerless_and_zip_bomb(tmp_path: Path) -> None:
     with pytest.raises(InputFormatError) as exc:
         read_chromatogram(bomb)
     assert "bomb.xlsx" in str(exc.value) and "zip bomb" in str(exc.value)
+
+
+def test_xlsx_without_sheet_takes_first_sheet_with_a_table(tmp_path):
+    # Instrument workbooks often open with an information sheet (common practice).
+    from openpyxl import Workbook
+
+    wb = Workbook()
+    info = wb.active
+    info.title = "Info"
+    info.append(["Export of one injection"])
+    ws = wb.create_sheet("Slices")
+    ws.append(["Volume (mL)", "RI (mV)"])
+    for i in range(20):
+        ws.append([10.0 + 0.1 * i, float(i % 7)])
+    p = tmp_path / "two_sheets.xlsx"
+    wb.save(p)
+    c = read_chromatogram(p)
+    assert c.sheet == "Slices"
+    assert c.x.size == 20
+    with pytest.raises(InputFormatError, match="no table of numbers"):
+        read_chromatogram(p, sheet="Info")

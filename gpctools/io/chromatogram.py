@@ -230,7 +230,8 @@ def read_chromatogram(
         The export. Text and workbooks are told apart by content, checked against the
         extension.
     sheet : str or int, optional
-        Workbook sheet by name or 0-based index (default the first); ignored for text.
+        Workbook sheet by name or 0-based index (default: the first sheet that holds a
+        table of numbers); ignored for text.
     x_column, signal_column : str or int, optional
         Header (case-insensitive; the name without its unit also matches) or 0-based
         column index. Default: the x column is the first volume column, else the first
@@ -817,6 +818,41 @@ def _meta_text(v: Any) -> str:
 
 
 def _read_xlsx(
+    path: str | os.PathLike[str],
+    data: bytes,
+    sheet: str | int | None,
+    x_column: str | int | None,
+    signal_column: str | int | None,
+    unit_arg: str | None,
+    dec: str | None,
+) -> Chromatogram:
+    """Read a workbook; with no sheet chosen, the first sheet that holds a table of numbers.
+
+    Instrument workbooks often put a title or information sheet first; taking the first
+    sheet with an x/signal table saves naming the sheet in every method.
+    """
+    try:
+        return _read_xlsx_sheet(path, data, sheet, x_column, signal_column, unit_arg, dec)
+    except InputFormatError as first_error:
+        if sheet is not None or "no table of numbers" not in first_error.message:
+            raise
+        wb = _xlsx._load(path, data, data_only=True)
+        try:
+            count = len(wb.sheetnames)
+        finally:
+            wb.close()
+        for index in range(1, count):
+            try:
+                return _read_xlsx_sheet(path, data, index, x_column, signal_column, unit_arg, dec)
+            except InputFormatError as exc:
+                if "no table of numbers" not in exc.message:
+                    raise
+        if count > 1:
+            first_error.message += f" (nor in any of the other {count - 1} sheet(s))"
+        raise first_error from None
+
+
+def _read_xlsx_sheet(
     path: str | os.PathLike[str],
     data: bytes,
     sheet: str | int | None,
