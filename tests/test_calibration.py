@@ -8,6 +8,7 @@ values of SCIENCE.md section 2 [derived from the IUPAC pairs; pairs from memory]
 
 from __future__ import annotations
 
+import dataclasses
 import json
 import math
 import warnings
@@ -33,7 +34,7 @@ PMMA = (9.44e-5, 0.719)
 
 
 def _standards() -> tuple[np.ndarray, np.ndarray, list[str]]:
-    names, Mp, V = zip(*DEFAULT_STANDARDS)
+    names, Mp, V = zip(*DEFAULT_STANDARDS, strict=True)
     return np.array(V), np.array(Mp), list(names)
 
 
@@ -112,11 +113,10 @@ def test_warn_non_monotonic_slope_inside_range() -> None:
     t = (V - 16.0) / 5.0
     y = 5.0 - 1.5 * t + 0.9 * t**2  # exact quadratic, slope turns positive for t > 0.83
     assert np.polyval(np.polyder(np.polyfit(V, y, 2)), 21.0) > 0  # numpy: really rises
-    with warnings.catch_warnings(record=True) as caught:
-        warnings.simplefilter("always")
+    with pytest.warns(CalibrationWarning, match="not negative everywhere") as caught:
         cal = fit_calibration(V, 10.0**y, order=2)
     msgs = [str(w.message) for w in caught if issubclass(w.category, CalibrationWarning)]
-    assert len(msgs) == 1 and "not negative everywhere" in msgs[0]
+    assert len(msgs) == 1  # the slope is the only concern raised
     assert cal.warnings == tuple(msgs)
     # an exact quadratic: residuals vanish, so only the slope is at fault (rounding).
     assert max(abs(r) for r in cal.residuals_pct) < 1e-8
@@ -160,7 +160,9 @@ def test_calibration_errors(volume, Mp, kwargs, match) -> None:
 
 def test_error_names_the_standard() -> None:
     with pytest.raises(CalibrationError, match="standard 'PS 19k'"):
-        fit_calibration([12.0, 14.0, 16.0], [1e5, 1e4, 0.0], order=1, names=["PS 1M", "PS 96k", "PS 19k"])
+        fit_calibration(
+            [12.0, 14.0, 16.0], [1e5, 1e4, 0.0], order=1, names=["PS 1M", "PS 96k", "PS 19k"]
+        )
 
 
 # ============================================================================ order choice
@@ -205,8 +207,12 @@ def test_tangent_extrapolation_outside_range() -> None:
     for d in (0.1, 1.0, 3.0):
         # derived: outside the range log M continues along the end tangent; 1e-8 from
         # the numpy-vs-library parametrisation difference.
-        assert cal.log_M(cal.v_max + d) == pytest.approx(np.polyval(ref, cal.v_max) + s_hi * d, abs=1e-8)
-        assert cal.log_M(cal.v_min - d) == pytest.approx(np.polyval(ref, cal.v_min) - s_lo * d, abs=1e-8)
+        assert cal.log_M(cal.v_max + d) == pytest.approx(
+            np.polyval(ref, cal.v_max) + s_hi * d, abs=1e-8
+        )
+        assert cal.log_M(cal.v_min - d) == pytest.approx(
+            np.polyval(ref, cal.v_min) - s_lo * d, abs=1e-8
+        )
         assert float(cal.dlogM_dV(cal.v_max + d)) == pytest.approx(s_hi, abs=1e-8)
         assert float(cal.dlogM_dV(cal.v_min - d)) == pytest.approx(s_lo, abs=1e-8)
     # continuous and with the end slope at both ends (one-sided difference quotients)
@@ -299,8 +305,13 @@ def test_converted_round_trip_is_identity() -> None:
 
 @pytest.mark.parametrize(
     "args",
-    [(0.0, 0.716, 9.44e-5, 0.719), (1.14e-4, 0.716, -1.0, 0.719), (1.14e-4, 2.5, 9.44e-5, 0.719),
-     (1.14e-4, 0.716, 9.44e-5, 0.0), (float("nan"), 0.716, 9.44e-5, 0.719)],
+    [
+        (0.0, 0.716, 9.44e-5, 0.719),
+        (1.14e-4, 0.716, -1.0, 0.719),
+        (1.14e-4, 2.5, 9.44e-5, 0.719),
+        (1.14e-4, 0.716, 9.44e-5, 0.0),
+        (float("nan"), 0.716, 9.44e-5, 0.719),
+    ],
 )
 def test_converted_rejects_bad_mark_houwink(args) -> None:
     with pytest.raises(CalibrationError, match="Mark-Houwink"):
@@ -314,7 +325,13 @@ def test_flow_marker_factor() -> None:
     # definition: V_corr = V_obs·reference/observed (SCIENCE.md section 2); exact arithmetic
     assert flow_marker_factor(25.0, 25.05) == pytest.approx(25.0 / 25.05, rel=1e-15)
     assert flow_marker_factor(25.0, 25.0) == 1.0
-    for bad in [(0.0, 25.0), (25.0, -1.0), (25.0, float("nan")), (None, 25.0), (25.0, float("inf"))]:
+    for bad in [
+        (0.0, 25.0),
+        (25.0, -1.0),
+        (25.0, float("nan")),
+        (None, 25.0),
+        (25.0, float("inf")),
+    ]:
         with pytest.raises(CalibrationError, match="flow-marker"):
             flow_marker_factor(*bad)
 
@@ -339,5 +356,5 @@ def test_inputs_not_mutated_lists_series_unsorted_repeatable() -> None:
         assert other.log_M(grid) == pytest.approx(ref.log_M(grid), abs=1e-12)
         assert other.names == ref.names
         assert other.residuals_pct == pytest.approx(ref.residuals_pct, abs=1e-9)
-    with pytest.raises(Exception):
-        ref.order = 2  # frozen dataclass
+    with pytest.raises(dataclasses.FrozenInstanceError):
+        ref.order = 2  # type: ignore[misc]  # frozen: results cannot be edited in place

@@ -18,6 +18,7 @@ import pandas as pd
 import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
+from scipy.integrate import trapezoid  # numpy < 2 has no np.trapezoid
 
 from gpctools.calibration import Calibration, fit_calibration, flow_marker_factor
 from gpctools.distribution import averages, compute_distribution, peak_position, slice_widths
@@ -97,17 +98,23 @@ def test_lognormal_exact_full_mask(lin_cal: Calibration) -> None:
     t = lognormal_truth(A_LIN, B_LIN, V0_LIN, SIG_LIN)  # derived, SCIENCE.md section 8
     # Sums over a Gaussian sampled at σ/100 converge exponentially (trapezoid rule on a
     # rapidly decaying smooth function): 1e-9 leaves room for rounding over 5000 slices.
-    for key, got in (("Mn", d.Mn), ("Mw", d.Mw), ("Mz", d.Mz), ("Mz1", d.Mz1), ("dispersity", d.dispersity)):
+    for key, got in (
+        ("Mn", d.Mn),
+        ("Mw", d.Mw),
+        ("Mz", d.Mz),
+        ("Mz1", d.Mz1),
+        ("dispersity", d.dispersity),
+    ):
         assert got == pytest.approx(t[key], rel=1e-9), key
     # Parabola vertex through the top three samples, peak 0.0021 mL off grid: the vertex
     # error is of order 1e-8 in M here; 1e-6 tolerance.
     assert d.Mp == pytest.approx(t["Mp"], rel=1e-6)
     # linear calibration: maximum of h(V) and of dw/dlogM coincide (SCIENCE.md section 1).
     assert d.Mp_dwdlogM == pytest.approx(t["Mp"], rel=1e-6)
-    # dw/dlogM integrates to 1 over log10 M (numpy trapezoid, a reference integrator);
+    # dw/dlogM integrates to 1 over log10 M (scipy trapezoid, a reference integrator);
     # trapezoid error on the sampled Gaussian is far below 1e-8.
     logM = np.log10(d.M)
-    assert np.trapezoid(d.dwdlogM[::-1], logM[::-1]) == pytest.approx(1.0, rel=1e-8)
+    assert trapezoid(d.dwdlogM[::-1], logM[::-1]) == pytest.approx(1.0, rel=1e-8)
     # mass fractions sum to 1 and the cumulative runs from 1 down (definition; rounding).
     assert d.w.sum() == pytest.approx(1.0, rel=1e-12)
     assert d.cumulative[0] == pytest.approx(1.0, rel=1e-12)
@@ -315,7 +322,9 @@ def test_relative_flow_error_and_marker_correction(B: float, V0: float) -> None:
     assert abs(obs.dispersity / true.dispersity - 1.0) < 1e-3
     # flow-marker correction: marker at 30 mL on the calibration day, seen (1 + δ) later.
     f = flow_marker_factor(30.0, 30.0 * (1 + delta))
-    fixed = compute_distribution(V_obs * f, gaussian(V_obs, V0 * (1 + delta), sigma * (1 + delta)), cal)
+    fixed = compute_distribution(
+        V_obs * f, gaussian(V_obs, V0 * (1 + delta), sigma * (1 + delta)), cal
+    )
     for key in ("Mn", "Mw", "Mz", "dispersity"):
         # derived: V_obs·f = V exactly up to rounding, so the truth comes back; 1e-9.
         assert getattr(fixed, key) == pytest.approx(t_true[key], rel=1e-9), key
@@ -341,6 +350,22 @@ def test_lognormal_round_trip_property(A: float, B: float, V0: float, sigma: flo
         assert getattr(d, key) == pytest.approx(t[key], rel=1e-8), key
     # parabola vertex on σ/100 spacing: error ~1e-8 of M; 1e-6.
     assert d.Mp == pytest.approx(t["Mp"], rel=1e-6)
+
+
+@settings(max_examples=15, deadline=None)
+@given(Mn=st.floats(2e4, 1.5e5), b=st.floats(0.8, 4.0))
+def test_schulz_zimm_round_trip_property(Mn: float, b: float) -> None:
+    cal = default_calibration()
+    V = np.linspace(6.0, 32.0, 4000)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RangeWarning)  # a broad low-Mn case may exceed 1 %
+        d = compute_distribution(V, schulz_zimm_trace(V, cal, Mn, b), cal)
+    a = b / Mn
+    # published: IUPAC Gold Book (Schulz-Zimm). 1e-4: the 6-32 mL record cuts the low-M
+    # tail of the 1/M sum by < 1e-5 for b ≥ 0.8 here; 4000 slices leave < 1e-7.
+    assert d.Mn == pytest.approx(b / a, rel=1e-4)
+    assert d.Mw == pytest.approx((b + 1) / a, rel=1e-4)
+    assert d.Mz == pytest.approx((b + 2) / a, rel=1e-4)
 
 
 # ============================================================================ outside the calibrated range
@@ -391,7 +416,9 @@ def test_lists_series_and_unsorted_give_the_same_answer(cubic_cal: Calibration) 
     assert compute_distribution(pd.Series(V), pd.Series(h), cubic_cal).summary() == ref
     rev = compute_distribution(V[::-1], h[::-1], cubic_cal).summary()
     perm = np.random.default_rng(5).permutation(V.size)
-    shuffled = compute_distribution(V[perm], h[perm], cubic_cal, mask=np.ones(V.size, bool)).summary()
+    shuffled = compute_distribution(
+        V[perm], h[perm], cubic_cal, mask=np.ones(V.size, bool)
+    ).summary()
     for other in (rev, shuffled):
         for key in ("Mn [g/mol]", "Mw [g/mol]", "Mz [g/mol]", "Mp [g/mol]"):
             # same slices in another order: only summation order differs (rounding).
@@ -439,7 +466,13 @@ def test_degenerate_input_raises_clear_error(cubic_cal: Calibration, case: str) 
 
 @pytest.mark.parametrize(
     "M, w",
-    [([], []), ([1.0, 2.0], [1.0]), ([0.0, 2.0], [1.0, 1.0]), ([1.0, 2.0], [0.0, 0.0]), ([1.0, 2.0], [np.nan, 1.0])],
+    [
+        ([], []),
+        ([1.0, 2.0], [1.0]),
+        ([0.0, 2.0], [1.0, 1.0]),
+        ([1.0, 2.0], [0.0, 0.0]),
+        ([1.0, 2.0], [np.nan, 1.0]),
+    ],
 )
 def test_averages_bad_input(M, w) -> None:
     with pytest.raises(DataError):

@@ -83,7 +83,9 @@ def test_automatic_baseline_on_simulated_trace(cal, seed: int) -> None:
     a = b / Mn
     model = schulz_zimm(Mn, b)
     noise = 0.2
-    Vs, raw = chromatogram(model, cal, baseline_offset=5.0, baseline_drift=0.3, noise=noise, seed=seed)
+    Vs, raw = chromatogram(
+        model, cal, baseline_offset=5.0, baseline_drift=0.3, noise=noise, seed=seed
+    )
     _, clean = chromatogram(model, cal)
     cs = correct_signal(Vs, raw)
     assert cs.baseline.automatic and cs.automatic_limits
@@ -115,7 +117,7 @@ def test_automatic_windows_avoid_exclusions(cal) -> None:
     )
     excl = [(22.0, 26.0)]
     cs = correct_signal(Vs, raw, exclusions=excl)
-    for lo, hi in cs.baseline.windows:
+    for _lo, hi in cs.baseline.windows:
         assert hi <= 22.0  # never on the solvent/flow-marker region
     assert not cs.mask[(Vs >= 22.0) & (Vs <= 26.0)].any()
     d = compute_distribution(Vs, cs.signal, cal, mask=cs.mask)
@@ -137,7 +139,9 @@ def test_exclusions_removed_from_mask() -> None:
     raw = peak(V) + 1.0
     excl = ((14.0, 14.5), (19.0, 19.2))
     cs = correct_signal(V, raw, windows=WINDOWS, limits=(11.0, 21.0), exclusions=excl)
-    expected = (V >= 11.0) & (V <= 21.0) & ~((V >= 14.0) & (V <= 14.5)) & ~((V >= 19.0) & (V <= 19.2))
+    expected = (
+        (V >= 11.0) & (V <= 21.0) & ~((V >= 14.0) & (V <= 14.5)) & ~((V >= 19.0) & (V <= 19.2))
+    )
     assert np.array_equal(cs.mask, expected)
     assert cs.exclusions == excl
 
@@ -163,8 +167,12 @@ def test_negative_heights_kept_and_unbiased(cal) -> None:
     model = lognormal(60_000.0, 1.8)
     windows, limits = ((9.0, 10.5), (21.5, 23.0)), (10.5, 21.0)
     Vs, clean = chromatogram(model, cal)
-    ref = compute_distribution(Vs, correct_signal(Vs, clean, windows=windows, limits=limits).signal, cal,
-                               mask=(Vs >= 10.5) & (Vs <= 21.0))
+    ref = compute_distribution(
+        Vs,
+        correct_signal(Vs, clean, windows=windows, limits=limits).signal,
+        cal,
+        mask=(Vs >= 10.5) & (Vs <= 21.0),
+    )
     kept, clipped = [], []
     for seed in range(12):
         _, raw = chromatogram(model, cal, noise=0.3, seed=seed)
@@ -190,12 +198,18 @@ def test_negative_heights_kept_and_unbiased(cal) -> None:
     "kwargs, match",
     [
         ({"windows": ((30.0, 31.0), (22.5, 24.5))}, r"baseline window 30-31 mL holds 0 slice"),
-        ({"windows": ((10.5, 8.5), (22.5, 24.5))}, r"baseline window 10.5-8.5 mL: start must be below end"),
+        (
+            {"windows": ((10.5, 8.5), (22.5, 24.5))},
+            r"baseline window 10.5-8.5 mL: start must be below end",
+        ),
         ({"windows": ((8.5, 10.5),)}, r"exactly two baseline windows"),
         ({"windows": ((8.5, 8.501), (22.5, 24.5))}, r"baseline window 8.5-8.501 mL holds 1 slice"),
         ({"windows": WINDOWS, "limits": (20.0, 12.0)}, r"integration limits 20-12 mL: low limit"),
         ({"windows": WINDOWS, "limits": (30.0, 32.0)}, r"integration limits 30-32 mL lie outside"),
-        ({"windows": WINDOWS, "limits": (12.0, 12.01)}, r"slices inside the integration limits 12-12.01"),
+        (
+            {"windows": WINDOWS, "limits": (12.0, 12.01)},
+            r"slices inside the integration limits 12-12.01",
+        ),
         ({"windows": WINDOWS, "exclusions": [(15.0, 14.0)]}, r"excluded region 15-14 mL"),
     ],
 )

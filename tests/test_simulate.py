@@ -13,6 +13,7 @@ import numpy as np
 import pandas as pd
 import pytest
 from scipy import integrate
+from scipy.integrate import trapezoid  # numpy < 2 has no np.trapezoid
 from scipy.optimize import minimize_scalar
 
 from gpctools.errors import DataError
@@ -28,7 +29,9 @@ from gpctools.simulate import (
 )
 
 
-def moments_by_quad(model, centre_log: float, below: float = 20.0, above: float = 5.0) -> dict[str, float]:
+def moments_by_quad(
+    model, centre_log: float, below: float = 20.0, above: float = 5.0
+) -> dict[str, float]:
     """∫ f dlogM, Mn, Mw, Mz, Mz+1 of dw/dlog10M = f by adaptive quadrature (scipy).
 
     The range runs ``below`` decades under and ``above`` decades over the peak: the
@@ -40,7 +43,12 @@ def moments_by_quad(model, centre_log: float, below: float = 20.0, above: float 
         # substitute x = log10 M; the mass moment of order k is ∫ f(10^x) 10^(k x) dx
         val, _ = integrate.quad(
             lambda x: float(model(np.array([10.0**x]))[0]) * 10.0 ** (k * (x - centre_log)),
-            lo, hi, points=[centre_log], limit=400, epsabs=0.0, epsrel=1e-12,
+            lo,
+            hi,
+            points=[centre_log],
+            limit=400,
+            epsabs=0.0,
+            epsrel=1e-12,
         )
         return val * 10.0 ** (k * centre_log)
 
@@ -68,7 +76,9 @@ def test_distributions_integrate_to_one_and_match_quad_moments(name, make, centr
     assert got["area"] == pytest.approx(1.0, rel=1e-8)
     for key in ("Mn", "Mw", "Mz", "Mz1"):
         assert got[key] == pytest.approx(model.averages[key], rel=1e-8), (name, key)
-    assert model.averages["dispersity"] == pytest.approx(model.averages["Mw"] / model.averages["Mn"], rel=1e-12)
+    assert model.averages["dispersity"] == pytest.approx(
+        model.averages["Mw"] / model.averages["Mn"], rel=1e-12
+    )
 
 
 @pytest.mark.parametrize("Mn, b", [(40_000.0, 1.0), (40_000.0, 2.0), (7_000.0, 3.5)])
@@ -84,11 +94,12 @@ def test_schulz_zimm_closed_forms_and_peak(Mn: float, b: float) -> None:
     # maximum of dw/dlogM at M = (b+1)/a = Mw [derived]: scipy's bounded minimiser.
     res = minimize_scalar(
         lambda x: -float(model(np.array([10.0**x]))[0]),
-        bounds=(math.log10(Mn) - 1, math.log10(Mn) + 2), method="bounded",
+        bounds=(math.log10(Mn) - 1, math.log10(Mn) + 2),
+        method="bounded",
         options={"xatol": 1e-10},
     )
     # xatol 1e-10 decades on a smooth maximum: M to ~1e-6 relative (flat top); 1e-5.
-    assert 10.0 ** res.x == pytest.approx((b + 1) / a, rel=1e-5)
+    assert 10.0**res.x == pytest.approx((b + 1) / a, rel=1e-5)
 
 
 def test_lognormal_closed_forms() -> None:
@@ -144,9 +155,9 @@ def test_chromatogram_places_mass_by_the_calibration() -> None:
     assert h.max() == pytest.approx(80.0, rel=1e-12)  # scaled to the requested height
     # mass per volume: h ∝ dw/dlogM · |dlogM/dV| (change of variables, derived), so the
     # trapezoid area over V equals the area of dw/dlogM over log M up to the scale factor
-    area_V = np.trapezoid(h, V)
+    area_V = trapezoid(h, V)
     logM = cal.log_M(V)
-    area_logM = np.trapezoid((h / np.abs(cal.dlogM_dV(V)))[::-1], logM[::-1])
+    area_logM = trapezoid((h / np.abs(cal.dlogM_dV(V)))[::-1], logM[::-1])
     # both ≈ the same integral on 6000 slices; outside the 8-26 mL record < 1e-3 of mass
     assert area_V == pytest.approx(area_logM, rel=1e-6)
 
@@ -155,10 +166,24 @@ def test_chromatogram_baseline_noise_and_extra_peaks() -> None:
     cal = default_calibration()
     model = lognormal(1e5, 1.5)
     V, clean = chromatogram(model, cal)
-    _, raw = chromatogram(model, cal, baseline_offset=2.0, baseline_drift=0.1, noise=0.5, seed=4,
-                          extra_peaks=[(24.0, 0.1, 30.0)])
-    _, again = chromatogram(model, cal, baseline_offset=2.0, baseline_drift=0.1, noise=0.5, seed=4,
-                            extra_peaks=[(24.0, 0.1, 30.0)])
+    _, raw = chromatogram(
+        model,
+        cal,
+        baseline_offset=2.0,
+        baseline_drift=0.1,
+        noise=0.5,
+        seed=4,
+        extra_peaks=[(24.0, 0.1, 30.0)],
+    )
+    _, again = chromatogram(
+        model,
+        cal,
+        baseline_offset=2.0,
+        baseline_drift=0.1,
+        noise=0.5,
+        seed=4,
+        extra_peaks=[(24.0, 0.1, 30.0)],
+    )
     assert np.array_equal(raw, again)  # seeded: reproducible
     resid = raw - clean - 2.0 - 0.1 * (V - 8.0) - 30.0 * np.exp(-0.5 * ((V - 24.0) / 0.1) ** 2)
     # 6000 normal draws: the SD is within 3 % of 0.5 (SE 0.9 %), the mean within 0.03 (4 SE)
@@ -176,13 +201,27 @@ def test_default_calibration_standards() -> None:
     assert cal.standard_polymer == "polystyrene" and not cal.is_absolute
 
 
-@pytest.mark.parametrize("x, col", [("volume", "Elution volume [mL]"), ("time_min", "Retention time [min]"),
-                                    ("time_s", "Retention time [s]")])
+@pytest.mark.parametrize(
+    "x, col",
+    [
+        ("volume", "Elution volume [mL]"),
+        ("time_min", "Retention time [min]"),
+        ("time_s", "Retention time [s]"),
+    ],
+)
 def test_write_chromatogram_readable_by_pandas(tmp_path, x: str, col: str) -> None:
     V = np.linspace(10.0, 12.0, 21)
     h = np.sin(V)
-    p = write_chromatogram(tmp_path / f"t_{x}.csv", V, h, x=x, flow_rate=0.5,
-                           metadata={"sample": "demo"}, separator=";", decimal=",")
+    p = write_chromatogram(
+        tmp_path / f"t_{x}.csv",
+        V,
+        h,
+        x=x,
+        flow_rate=0.5,
+        metadata={"sample": "demo"},
+        separator=";",
+        decimal=",",
+    )
     df = pd.read_csv(p, sep=";", decimal=",", skiprows=1)  # pandas as the independent reader
     assert list(df.columns) == [col, "RI signal [mV]"]
     factor = {"volume": 1.0, "time_min": 1 / 0.5, "time_s": 60 / 0.5}[x]
