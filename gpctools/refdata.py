@@ -536,7 +536,7 @@ def _norm(s: Any) -> str:
     return " ".join(_text(s).lower().split())
 
 
-@functools.lru_cache(maxsize=None)
+@functools.cache
 def _bundled(name: str) -> pd.DataFrame:
     schema = _schema(name)
     src = _bundled_path(name)
