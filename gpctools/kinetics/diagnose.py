@@ -1094,6 +1094,19 @@ def diagnose(
         )
 
     top = causes[0]
+    # goodness of fit of the best single cause: chi-square with (observations - k) dof
+    n_obs = len(obs) - sum(1 for h in hyps if h.key == top.key for f in h.free if f in obs)
+    k_top = next(h.k for h in hyps if h.key == top.key)
+    dof = max(n_obs - k_top, 1)
+    from scipy.stats import chi2 as _chi2
+
+    fit_p = float(_chi2.sf(top.chi2, dof))
+    if fit_p < 0.01:
+        notes.append(
+            f"no single cause explains all numbers well (best χ² = {top.chi2:.3g} for {dof} "
+            f"degrees of freedom, p = {fit_p:.2g}): two causes may act together, or an "
+            "input value is off; check the residuals"
+        )
     runaway = top.key in ("initiator", "temperature") or any(
         c.key in ("initiator", "temperature") and c.share >= 20.0 for c in causes
     )
