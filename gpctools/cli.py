@@ -154,6 +154,48 @@ def batch_cmd(
         raise typer.Exit(EXIT_FAILED_ROWS)
 
 
+@app.command("qc")
+@_guard
+def qc_cmd(
+    sheet: Path = typer.Argument(..., help="Batch sheet (with --method), or a results.csv written by 'gpctools batch'."),
+    specs: Path = typer.Option(..., "--specs", "-s", help="Spec-limits sheet (CSV or XLSX), see templates/spec_limits.csv."),
+    method: Optional[Path] = typer.Option(None, "--method", "-m", help="Method file (TOML); runs the batch first."),
+    history: Optional[list[Path]] = typer.Option(None, "--history", help="Earlier results.csv for the control charts, oldest first (repeatable)."),
+    out: Path = typer.Option(Path("gpctools-qc"), "--out", "-o", help="Output folder."),
+    strict: bool = typer.Option(False, "--strict", help="Exit 1 when any batch is not 'pass' (fail, not reportable, no result, no spec)."),
+    workers: int = typer.Option(0, "--workers", "-j", min=0, help="Processes for the batch (0 = automatic)."),
+    sheet_name: Optional[str] = typer.Option(None, "--sheet", help="Workbook sheet of the batch sheet."),
+) -> None:
+    """Spec limits, system suitability, decisions and control charts; writes qc_report.xlsx/.html."""
+    from .qc import read_specs
+    from .report import run_qc
+
+    spec_sheet = read_specs(specs)  # read first: a bad spec sheet fails before the batch runs
+    if method is not None:
+        from .method import load_method
+
+        m = load_method(method)
+        results = _run_batch_with_progress(sheet, m, out, workers or None, sheet_name)
+    else:
+        m = None
+        results = sheet
+    report = run_qc(results, spec_sheet, out, method=m, history=list(history or []))
+    res = report.result
+    _print_table([b.summary() | {"reasons": "; ".join(b.reasons)} for b in res.decisions.batches],
+                 ["batch", "decision", "reasons"])
+    for s in res.suitability:
+        typer.echo(f"sequence {s.sequence}: system suitability {'pass' if s.passed else 'FAIL'}")
+        for r in s.reasons():
+            typer.echo(f"  {r}")
+    for c in res.trends:
+        for v in c.violations:
+            typer.echo(f"trend {c.group} {c.quantity}: {v.label} breaks {v.rule} ({v.description}, {v.side})")
+    typer.echo(f"wrote {out}/qc_report.xlsx, qc_report.html, plots/, qc_summary.json, audit.json")
+    code = report.exit_code(strict=strict)
+    if code:
+        raise typer.Exit(code)
+
+
 @app.command("calibrate")
 @_guard
 def calibrate_cmd(

@@ -10,7 +10,6 @@ Western Electric run rule (Western Electric Statistical Quality Control Handbook
 from __future__ import annotations
 
 import csv
-import math
 import os
 import re
 import shutil
@@ -269,6 +268,10 @@ def test_e2e_every_finding_caught_with_its_reason(scenario):
     found = {(v.label, v.rule, v.side) for v in chart.violations}
     assert ("B1", "WE1", "above") in found and ("B2", "WE1", "below") in found
     assert rep.exit_code() == 0 and rep.exit_code(strict=True) == 1
+    # the summaries are plain JSON (no NaN, no numpy types)
+    import json
+
+    assert json.loads(json.dumps(rep.summary(), allow_nan=False))["qc"]["reportable"] is False
 
 
 def test_e2e_files_and_workbook(scenario):
@@ -391,14 +394,50 @@ def test_run_qc_from_results_csv(tmp_path):
     assert not rep.reportable and rep.result.decisions.batches[0].decision == NOT_REPORTABLE
 
 
-def test_mayo_plot_with_a_real_fit():
-    mayo = pytest.importorskip("gpctools.transfer.mayo")
-    from gpctools.report.plots import mayo_plot
+# ============================================================================ CLI
 
-    # derived: exact line 1/DPn = 5e-4 + 15 [A]/[M] with 2 % relative scatter
+
+def test_cli_qc_exit_codes(scenario, tmp_path):
+    from typer.testing import CliRunner
+
+    from gpctools.cli import app
+
+    runner = CliRunner()
+    folder = scenario["folder"]
+    args = ["qc", str(folder / "batch.csv"), "--method", str(folder / "method.toml"),
+            "--specs", str(folder / "spec.csv"), "--out", str(tmp_path / "o")]
+    for h in scenario["history"]:
+        args += ["--history", str(h)]
+    res = runner.invoke(app, args)
+    # QC findings are results: exit 0 without --strict, the report is written
+    assert res.exit_code == 0, res.output
+    assert "B2" in res.output and "fail" in res.output and "WE1" in res.output
+    assert (tmp_path / "o" / "qc_report.html").is_file() and (tmp_path / "o" / "results.csv").is_file()
+    # from the results.csv of that run, with --strict: 1 because a batch is not 'pass'
+    res = runner.invoke(app, ["qc", str(tmp_path / "o" / "results.csv"), "--specs", str(folder / "spec.csv"),
+                              "--out", str(tmp_path / "o2"), "--strict"])
+    assert res.exit_code == 1, res.output
+    assert (tmp_path / "o2" / "qc_report.xlsx").is_file()
+    # a bad spec sheet is a user error: exit 2 with the file and row named, before any batch work
+    bad = tmp_path / "bad_spec.csv"
+    bad.write_text("product,Mw max [g/mol]\nP-200,lots\n", encoding="utf-8")
+    res = runner.invoke(app, ["qc", str(folder / "batch.csv"), "--method", str(folder / "method.toml"),
+                              "--specs", str(bad), "--out", str(tmp_path / "o3")])
+    assert res.exit_code == 2
+    assert "bad_spec.csv" in res.output and "row 2" in res.output and "not a number" in res.output
+    assert not (tmp_path / "o3").exists()
+
+
+def test_run_qc_with_a_real_mayo_fit(tmp_path):
+    mayo = pytest.importorskip("gpctools.transfer.mayo")
     x = np.array([0.0, 1e-4, 2e-4, 3e-4, 4e-4])
     y = (5e-4 + 15.0 * x) * np.array([1.0, 1.02, 0.98, 1.01, 0.99])
-    fit = mayo.fit_mayo(y, {"C_A": x})
-    png = mayo_plot(fit)
-    assert png[:8] == b"\x89PNG\r\n\x1a\n"
-    assert math.isfinite(fit.constants[0].value)
+    fit = mayo.fit_mayo(y, {"C_A": x}, run_ids=["r0", "r1", "r2", "r3", "r4"])
+    rep = run_qc(hand_table(["A"]), hand_specs(), tmp_path, calibration=cal_summary(), transfer=fit)
+    consts = rep.sheets["transfer"]
+    row = consts[consts["constant"] == "C_A"].iloc[0]
+    assert row["value [-]"] == fit.constants[0].value and row["standard error [-]"] == fit.constants[0].stderr
+    pts = rep.sheets["transfer points"]
+    assert pts["run"].tolist() == ["r0", "r1", "r2", "r3", "r4"]
+    assert '<section id="transfer">' in (tmp_path / "qc_report.html").read_text(encoding="utf-8")
+    assert any(k.startswith("plots/mayo_") for k in rep.files)

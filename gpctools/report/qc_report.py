@@ -23,7 +23,7 @@ import math
 import os
 import re
 from collections.abc import Mapping
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Any
 
@@ -427,6 +427,9 @@ def run_qc(
         a sequence or mapping of them, or a mapping with ``x``, ``y``, ``slope`` and
         ``intercept``.
     settings : QCSettings, optional
+        Default :class:`QCSettings`, with the method's ``thresholds.standard_residual_pct``
+        and ``thresholds.outside_calibration_pct`` as the calibration-residual and
+        outside-calibration suitability limits when a method is known.
     title : str, optional
         Report title.
     timestamp : str, optional
@@ -443,8 +446,14 @@ def run_qc(
     gpctools.errors.GpcError
         Unreadable inputs (spec sheet, results table, method) with file/row/column.
     """
-    settings = settings or QCSettings()
     inp = _resolve_results(results, method, calibration)
+    if settings is None:
+        settings = QCSettings()
+        if inp.method is not None:  # the method's thresholds set the matching suitability limits
+            settings = replace(settings, suitability=replace(
+                settings.suitability,
+                max_calibration_residual_pct=float(inp.method.residual_limit_pct),
+                max_outside_calibration_pct=float(inp.method.outside_warn_pct)))
     if isinstance(specs, SpecSheet):
         spec_sheet = specs
     else:
