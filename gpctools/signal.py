@@ -114,10 +114,16 @@ def _as_trace(volume: Any, signal: Any) -> tuple[np.ndarray, np.ndarray, np.ndar
 
 
 def _window_mask(volume: np.ndarray, windows: Sequence[Window]) -> np.ndarray:
+    """Slices inside any of the windows (``volume`` sorted increasing)."""
     m = np.zeros(volume.shape, dtype=bool)
     for a, b in windows:
-        m |= (volume >= a) & (volume <= b)
+        m[_window_slice(volume, a, b)] = True
     return m
+
+
+def _window_slice(volume: np.ndarray, a: float, b: float) -> slice:
+    """Index range of a <= V <= b in increasing volumes (binary search)."""
+    return slice(int(np.searchsorted(volume, a, "left")), int(np.searchsorted(volume, b, "right")))
 
 
 def noise_level(signal: np.ndarray) -> float:
@@ -138,34 +144,36 @@ def _smooth(signal: np.ndarray, width: int) -> np.ndarray:
     width = max(1, int(width) | 1)  # odd
     if width == 1:
         return signal
-    kernel = np.ones(width) / width
+    # Moving average by cumulative sums: O(n) whatever the width.
     padded = np.pad(signal, width // 2, mode="edge")
-    return np.convolve(padded, kernel, mode="valid")
+    c = np.concatenate(([0.0], np.cumsum(padded)))
+    return (c[width:] - c[:-width]) / width
 
 
 def _line_through_windows(volume, signal, windows) -> tuple[float, float, float]:
     pts = []
     resid_parts = []
     for a, b in windows:
-        m = (volume >= a) & (volume <= b)
-        if m.sum() < 2:
+        sl = _window_slice(volume, a, b)
+        count = sl.stop - sl.start
+        if count < 2:
             raise DataError(
-                f"baseline window {a:g}-{b:g} mL holds {int(m.sum())} slice(s); "
+                f"baseline window {a:g}-{b:g} mL holds {max(count, 0)} slice(s); "
                 "widen it or move it inside the recorded volume range "
                 f"({volume[0]:g}-{volume[-1]:g} mL)"
             )
-        pts.append((float(volume[m].mean()), float(signal[m].mean())))
-        resid_parts.append(m)
+        pts.append((float(volume[sl].mean()), float(signal[sl].mean())))
+        resid_parts.append(sl)
     (v1, h1), (v2, h2) = pts
     slope = (h2 - h1) / (v2 - v1) if v2 != v1 else 0.0
     intercept = h1 - slope * v1
-    m = resid_parts[0] | resid_parts[1]
-    r = signal[m] - (intercept + slope * volume[m])
+    vv = np.concatenate([volume[sl] for sl in resid_parts])
+    r = np.concatenate([signal[sl] for sl in resid_parts]) - (intercept + slope * vv)
     noise = float(r.std(ddof=1)) if r.size > 2 else 0.0
     return slope, intercept, noise
 
 
-def _peak_region(volume, corrected, valid, noise) -> tuple[int, int, int]:
+def _peak_region(volume, corrected, valid, noise, ref_scale=None) -> tuple[int, int, int]:
     """Indices (start, peak, end) of the main peak where the smoothed signal exceeds a threshold."""
     n = corrected.size
     width = max(3, n // 200)
@@ -173,8 +181,15 @@ def _peak_region(volume, corrected, valid, noise) -> tuple[int, int, int]:
     candidates = np.where(valid, sm, -np.inf)
     ipk = int(np.argmax(candidates))
     height = sm[ipk]
-    if not math.isfinite(height) or height <= 0:
-        raise DataError("no positive peak found in the signal; check the signal column and baseline")
+    scale = ref_scale if ref_scale is not None else (float(np.max(np.abs(corrected))) if n else 0.0)
+    if not math.isfinite(height) or height <= 0 or height <= 1e-9 * scale or (
+        noise > 0 and height < 5.0 * noise / math.sqrt(width)
+    ):
+        raise DataError(
+            "no positive peak stands out of the noise (the smoothed signal never exceeds 5 "
+            "times its noise level); check the signal column, the baseline windows and the "
+            "injection"
+        )
     threshold = max(noise / math.sqrt(width), 1e-4 * height)
     below = (sm <= threshold) | ~valid
     left = np.nonzero(below[:ipk])[0]
@@ -235,10 +250,11 @@ def fit_baseline(
     guess = ((vv[0], vv[0] + width), (vv[-1] - width, vv[-1]))
     slope, intercept, noise = _line_through_windows(V, h, guess)
     sigma = noise_level(h[valid])
+    ref_scale = float(np.max(np.abs(h)))
     chosen = guess
     for _ in range(2):
         corrected = h - (intercept + slope * V)
-        start, _ipk, end = _peak_region(V, corrected, valid, sigma)
+        start, _ipk, end = _peak_region(V, corrected, valid, sigma, ref_scale)
         gap = 0.1 * (V[end] - V[start])
         before = (V[start] - gap - width, V[start] - gap)
         after = (V[end] + gap, V[end] + gap + width)

@@ -297,3 +297,14 @@ def test_reversed_and_shuffled_volume_same_answer() -> None:
         assert cs.signal == pytest.approx(ref.signal[order], abs=1e-12)
         assert np.array_equal(cs.mask, ref.mask[order])
         assert np.array_equal(cs.volume, V[order])
+
+
+@pytest.mark.parametrize("noise", [0.0, 0.05])
+def test_regression_drift_only_trace_has_no_peak(noise):
+    # A baseline with drift and no polymer must be refused, not integrated as a peak of
+    # rounding noise (common practice: an empty injection is no result).
+    rng = np.random.default_rng(7)
+    V = np.linspace(8.0, 26.0, 6000)
+    h = 3.0 + 0.05 * V + rng.normal(0.0, noise, V.size)
+    with pytest.raises(DataError, match="no positive peak"):
+        correct_signal(V, h)
