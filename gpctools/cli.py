@@ -163,11 +163,13 @@ def qc_cmd(
     history: Optional[list[Path]] = typer.Option(None, "--history", help="Earlier results.csv for the control charts, oldest first (repeatable)."),
     out: Path = typer.Option(Path("gpctools-qc"), "--out", "-o", help="Output folder."),
     strict: bool = typer.Option(False, "--strict", help="Exit 1 when any batch is not 'pass' (fail, not reportable, no result, no spec)."),
+    require_check: bool = typer.Option(True, "--require-check-standard/--no-require-check-standard",
+                                       help="A sequence without a check standard fails system suitability."),
     workers: int = typer.Option(0, "--workers", "-j", min=0, help="Processes for the batch (0 = automatic)."),
     sheet_name: Optional[str] = typer.Option(None, "--sheet", help="Workbook sheet of the batch sheet."),
 ) -> None:
     """Spec limits, system suitability, decisions and control charts; writes qc_report.xlsx/.html."""
-    from .qc import read_specs
+    from .qc import QCSettings, read_specs
     from .report import run_qc
 
     spec_sheet = read_specs(specs)  # read first: a bad spec sheet fails before the batch runs
@@ -179,7 +181,8 @@ def qc_cmd(
     else:
         m = None
         results = sheet
-    report = run_qc(results, spec_sheet, out, method=m, history=list(history or []))
+    settings = None if require_check else QCSettings.from_method(m, require_check_standard=False)
+    report = run_qc(results, spec_sheet, out, method=m, history=list(history or []), settings=settings)
     res = report.result
     _print_table([b.summary() | {"reasons": "; ".join(b.reasons)} for b in res.decisions.batches],
                  ["batch", "decision", "reasons"])
@@ -231,6 +234,82 @@ def inspect_cmd(
     for k, v in c.metadata.items():
         typer.echo(f"  {k}: {v}")
 
+
+
+def _numbers(text: Optional[str], count: tuple[int, ...], option: str) -> Optional[tuple[float, ...]]:
+    """Parse "a,b" option values into floats (None when not given)."""
+    if text is None:
+        return None
+    try:
+        vals = tuple(float(v) for v in text.replace(";", ",").split(",") if v.strip())
+    except ValueError:
+        raise typer.BadParameter(f"{text!r} is not a comma-separated list of numbers", param_hint=option) from None
+    if len(vals) not in count:
+        raise typer.BadParameter(f"give {' or '.join(str(c) for c in count)} number(s), got {text!r}", param_hint=option)
+    return vals
+
+
+TRANSFER_COLUMNS = ["series", "term", "estimator", "model", "C [-]", "standard error [-]", "CI low [-]",
+                    "CI high [-]", "runs", "preferred"]
+
+
+@app.command("transfer")
+@_guard
+def transfer_cmd(
+    sheet: Path = typer.Argument(..., help="Run-series sheet (CSV or XLSX), see templates/run_series.csv."),
+    method: Optional[Path] = typer.Option(None, "--method", "-m", help="Method file (TOML) for the chromatograms named in the sheet."),
+    out: Path = typer.Option(Path("gpctools-transfer"), "--out", "-o", help="Output folder."),
+    terms: Optional[str] = typer.Option(None, "--terms", help="Constants to fit, comma-separated: C_A, C_A:<agent>, C_S, C_I, C_M (default: every ratio that varies)."),
+    estimators: str = typer.Option("Mn,Mw/2,CLD", "--estimators", help="Chain-length estimators, comma-separated: Mn, Mw/2, CLD."),
+    drift: str = typer.Option("auto", "--drift", help="Conversion-drift model: auto (when conversions are given), yes, no."),
+    impurity_C: Optional[float] = typer.Option(None, "--impurity-C", help="Transfer constant of the suspected impurity [-], for ppm and mol/L."),
+    impurity_confidence: float = typer.Option(0.99, "--impurity-confidence", min=0.5, max=0.999999, help="One-sided confidence of impurity flags and the intercept check."),
+    per_run: bool = typer.Option(False, "--per-run-level", help="Apply the impurity confidence per run instead of to the whole series."),
+    rel_error: Optional[float] = typer.Option(None, "--rel-error", help="Known relative standard error of one 1/DPn [-] (from replicates) for the impurity test."),
+    expected_intercept: Optional[str] = typer.Option(None, "--expected-intercept", help="Expected 1/DPn0 [-] and optionally its standard error: VALUE[,SE]."),
+    C_M: Optional[float] = typer.Option(None, "--C-M", help="Known transfer-to-monomer constant [-] for the intercept check."),
+    kinetic_term: Optional[float] = typer.Option(None, "--kinetic-term", help="Known kinetic part of 1/DPn0 [-] for the intercept check."),
+    cld_window: Optional[str] = typer.Option(None, "--cld-window", help="CLD window for every run: M_LOW,M_HIGH [g/mol] (default: automatic near the peak)."),
+    cld_fraction: float = typer.Option(0.7, "--cld-fraction", min=0.05, max=0.95, help="Automatic CLD window: dw/dlogM above this fraction of its maximum."),
+    confidence: float = typer.Option(0.95, "--confidence", min=0.5, max=0.999999, help="Level of the constants' confidence intervals."),
+    sheet_name: Optional[str] = typer.Option(None, "--sheet", help="Workbook sheet of the run-series sheet."),
+    no_plots: bool = typer.Option(False, "--no-plots", help="Do not draw the PNG plots."),
+) -> None:
+    """Chain-transfer constants from a run series (Mayo, Mw/2, CLD; drift; impurity flags; ln C vs 1/T)."""
+    from .transfer import analyse_series, write_transfer_outputs
+
+    drift_opt = {"auto": "auto", "yes": True, "no": False}.get(drift.strip().lower())
+    if drift_opt is None:
+        raise typer.BadParameter("use auto, yes or no", param_hint="--drift")
+    window = _numbers(cld_window, (2,), "--cld-window")
+    expected = _numbers(expected_intercept, (1, 2), "--expected-intercept")
+    result = analyse_series(
+        sheet, method=method, sheet=sheet_name,
+        terms=[t.strip() for t in terms.split(",") if t.strip()] if terms else None,
+        estimators=[e.strip() for e in estimators.split(",") if e.strip()],
+        drift=drift_opt, cld_window=window, cld_fraction=cld_fraction, confidence=confidence,
+        impurity_confidence=impurity_confidence, impurity_adjust="run" if per_run else "series",
+        impurity_C=impurity_C, rel_error=rel_error,
+        expected_intercept=(expected if expected is None or len(expected) == 2 else expected[0]),
+        C_M=C_M, kinetic_term=kinetic_term,
+    )
+    paths = write_transfer_outputs(result, out, plots=not no_plots)
+    _print_table(result.constants_table().to_dict("records"), TRANSFER_COLUMNS)
+    for g in result.groups:
+        if g.impurity is not None:
+            for f in g.impurity.flags:
+                if f.flagged:
+                    typer.echo(f"{g.label}: run {f.run_id} flagged: {f.reason}")
+        if g.intercept_check is not None:
+            typer.echo(f"{g.label}: {g.intercept_check.message}")
+    for lbl, fit in result.arrhenius:
+        typer.echo(f"{lbl['agent']} {lbl['term']} ({lbl['estimator']}, {lbl['model']}): "
+                   f"E_tr - E_p = {fit.delta_E.value:.2f} ± {fit.delta_E.stderr:.2f} kJ/mol, "
+                   f"A_tr/A_p = {fit.A_ratio.value:.3g}")
+    typer.echo(f"wrote {out}/ ({', '.join(sorted(p for p in paths if '/' not in p))}, plots/)")
+    if result.failed:
+        _err(f"{result.failed} run(s) could not be processed (see runs.csv)")
+        raise typer.Exit(EXIT_FAILED_ROWS)
 
 def _sample_runs_dir() -> Path:
     here = Path(__file__).resolve().parent.parent / "sample_runs"
