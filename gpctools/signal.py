@@ -205,6 +205,7 @@ def fit_baseline(
     windows: Sequence[Window] | None = None,
     *,
     exclusions: Sequence[Window] = (),
+    noise: float | None = None,
 ) -> Baseline:
     """Fit a straight baseline through two signal-free windows.
 
@@ -223,6 +224,9 @@ def fit_baseline(
         width, avoiding excluded regions; the line is refitted twice.
     exclusions : sequence of (start, end)
         Regions (system, solvent, flow-marker peaks) never used as baseline [mL].
+    noise : float, optional
+        White-noise SD of the signal if already known (:func:`noise_level`), to save
+        computing it again [signal units].
 
     Returns
     -------
@@ -249,7 +253,7 @@ def fit_baseline(
         raise DataError("too few slices outside the excluded regions to place a baseline")
     guess = ((vv[0], vv[0] + width), (vv[-1] - width, vv[-1]))
     slope, intercept, noise = _line_through_windows(V, h, guess)
-    sigma = noise_level(h[valid])
+    sigma = noise_level(h[valid]) if noise is None else float(noise)
     ref_scale = float(np.max(np.abs(h)))
     chosen = guess
     for _ in range(2):
@@ -342,11 +346,11 @@ def correct_signal(
     for a, b in exclusions:
         if not a < b:
             raise DataError(f"excluded region {a:g}-{b:g} mL: start must be below end")
-    base = fit_baseline(V, h, windows, exclusions=exclusions)
+    sigma = noise_level(h[~_window_mask(V, exclusions)]) if (windows is None or limits is None) else None
+    base = fit_baseline(V, h, windows, exclusions=exclusions, noise=sigma)
     corrected = h - base(V)
     notes: list[str] = []
     if limits is None:
-        sigma = noise_level(h[~_window_mask(V, exclusions)])
         limits = find_limits(V, corrected, noise=sigma, exclusions=exclusions)
         # never integrate into the baseline windows themselves
         (_, before_end), (after_start, _) = base.windows
