@@ -100,7 +100,7 @@ def _fmt(v) -> str:
         return "-"
     if abs(f) >= 1000:
         return f"{f:,.0f}"
-    return f"{f:.3g}"
+    return f"{f:.4g}"
 
 
 def _print_table(rows: list[dict], columns: list[str]) -> None:
@@ -230,7 +230,10 @@ def inspect_cmd(
     c = read_chromatogram(file, sheet=sh)
     typer.echo(f"file: {c.path}")
     typer.echo(f"x: {c.x_column!r} ({c.x_kind}, {c.x_unit}), {c.x[0]:g} to {c.x[-1]:g}")
-    typer.echo(f"signal: {c.signal_column!r}, {c.x.size} slices, header on line/row {c.header_row}")
+    header = f"header on line/row {c.header_row}" if c.header_row else "no header row"
+    typer.echo(f"signal: {c.signal_column!r}, {c.x.size} slices, {header}")
+    if c.sheet:
+        typer.echo(f"sheet: {c.sheet}")
     for k, v in c.metadata.items():
         typer.echo(f"  {k}: {v}")
 
@@ -249,7 +252,7 @@ def _numbers(text: Optional[str], count: tuple[int, ...], option: str) -> Option
     return vals
 
 
-TRANSFER_COLUMNS = ["series", "term", "estimator", "model", "C [-]", "standard error [-]", "CI low [-]",
+TRANSFER_COLUMNS = ["group", "term", "estimator", "model", "C [-]", "standard error [-]", "CI low [-]",
                     "CI high [-]", "runs", "preferred"]
 
 
