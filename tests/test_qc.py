@@ -449,7 +449,7 @@ def test_evaluate_qc_trend_flags_run_rule_with_history():
     assert int(res_all.trends[0].sets_limits.sum()) == 11
     # one sequence only: no check-standard chart (two or more points are needed)
     assert not any(c.group.startswith("check standard") for c in res.trends)
-    assert any("no chart drawn" in w for w in res.warnings)
+    assert any("no control chart" in w for w in res.warnings)
 
 
 def test_evaluate_qc_we4_across_batches_in_one_table():
@@ -469,3 +469,13 @@ def test_evaluate_qc_we4_across_batches_in_one_table():
     found = {(v.label, v.rule) for v in chart.violations}
     assert ("L11", "WE4") in found and ("L04", "WE1") in found
     assert res.reportable and not res.trend_violations_frame().empty
+
+
+def test_conflicting_assigned_values_warn_and_are_listed():
+    from gpctools.qc import QCWarning
+
+    df = good_table()
+    df.loc[4, "assigned Mw [g/mol]"] = 101000.0
+    with pytest.warns(QCWarning, match="different assigned Mw"):
+        (res,) = system_suitability(df, cal_summary())
+    assert any("different assigned Mw" in w for w in res.warnings)

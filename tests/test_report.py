@@ -441,3 +441,27 @@ def test_run_qc_with_a_real_mayo_fit(tmp_path):
     assert pts["run"].tolist() == ["r0", "r1", "r2", "r3", "r4"]
     assert '<section id="transfer">' in (tmp_path / "qc_report.html").read_text(encoding="utf-8")
     assert any(k.startswith("plots/mayo_") for k in rep.files)
+
+
+def test_cli_qc_from_results_csv_with_manifest(tmp_path):
+    import json
+
+    from typer.testing import CliRunner
+
+    from gpctools.cli import app
+
+    table = hand_table(["A"])
+    table = table[table["role"] == "sample"]  # no check standard in this sequence
+    table.to_csv(tmp_path / "results.csv", index=False)
+    (tmp_path / "manifest.json").write_text(json.dumps({"calibration": cal_summary()}), encoding="utf-8")
+    spec = tmp_path / "spec.csv"
+    spec.write_text("product,Mw min [g/mol],Mw max [g/mol]\nP-200,180000,220000\n", encoding="utf-8")
+    runner = CliRunner()
+    res = runner.invoke(app, ["qc", str(tmp_path / "results.csv"), "--specs", str(spec),
+                              "--out", str(tmp_path / "o"), "--strict"])
+    assert res.exit_code == 1 and "not reportable" in res.output and "check standard" in res.output
+    res = runner.invoke(app, ["qc", str(tmp_path / "results.csv"), "--specs", str(spec),
+                              "--out", str(tmp_path / "o2"), "--strict", "--no-require-check-standard"])
+    assert res.exit_code == 0, res.output
+    summary = json.loads((tmp_path / "o2" / "qc_summary.json").read_text(encoding="utf-8"))
+    assert summary["all_pass"] is True and summary["settings"]["suitability"]["require_check_standard"] is False

@@ -12,10 +12,11 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from gpctools.errors import DataError
+from gpctools.errors import DataError, GpcWarning
 from gpctools.qc.specs import label_text
 
 __all__ = [
+    "QCWarning",
     "ROLE_SAMPLE",
     "ROLE_CHECK",
     "ROLE_BLANK",
@@ -29,6 +30,11 @@ __all__ = [
     "require_columns",
     "first_number",
 ]
+
+class QCWarning(GpcWarning):
+    """Something in the QC inputs deserves a look (conflicting assigned values, duplicate
+    trend labels)."""
+
 
 ROLE_SAMPLE = "sample"
 ROLE_CHECK = "check_standard"

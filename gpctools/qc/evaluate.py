@@ -25,8 +25,9 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from gpctools.errors import GpcWarning, MethodError
+from gpctools.errors import MethodError
 from gpctools.qc import _table as T
+from gpctools.qc._table import QCWarning
 from gpctools.qc.decisions import Decisions, decide
 from gpctools.qc.specs import SpecSheet
 from gpctools.qc.suitability import SuitabilityLimits, SuitabilityResult, system_suitability
@@ -41,10 +42,6 @@ from gpctools.qc.trends import (
 __all__ = ["QCSettings", "QCResult", "QCWarning", "evaluate_qc", "trend_points"]
 
 _LIMITS_FROM = ("auto", "all", "history")
-
-
-class QCWarning(GpcWarning):
-    """Something in the QC inputs deserves a look (duplicate trend labels, short series)."""
 
 
 @dataclass(frozen=True)
@@ -79,6 +76,25 @@ class QCSettings:
             )
         object.__setattr__(self, "trend_columns", tuple(self.trend_columns))
         object.__setattr__(self, "rules", tuple(self.rules))
+
+    @classmethod
+    def from_method(cls, method: Any = None, *, require_check_standard: bool = True) -> QCSettings:
+        """Default settings, with a method's thresholds as the matching suitability limits.
+
+        Parameters
+        ----------
+        method : gpctools.method.Method, optional
+            Its ``residual_limit_pct`` (``thresholds.standard_residual_pct``) and
+            ``outside_warn_pct`` (``thresholds.outside_calibration_pct``) become the
+            calibration-residual and outside-calibration limits.
+        require_check_standard : bool
+            See :class:`SuitabilityLimits`.
+        """
+        kw: dict[str, Any] = {"require_check_standard": bool(require_check_standard)}
+        if method is not None:
+            kw["max_calibration_residual_pct"] = float(method.residual_limit_pct)
+            kw["max_outside_calibration_pct"] = float(method.outside_warn_pct)
+        return cls(suitability=SuitabilityLimits(**kw))
 
     def summary(self) -> dict[str, Any]:
         """JSON-safe copy."""

@@ -23,6 +23,7 @@ A check that cannot be evaluated (no replicates, no flow-marker values) is liste
 from __future__ import annotations
 
 import math
+import warnings as _warnings
 from collections.abc import Mapping
 from dataclasses import asdict, dataclass, field
 from typing import Any
@@ -305,6 +306,12 @@ def sequence_suitability(
     -------
     SuitabilityResult
 
+    Warns
+    -----
+    QCWarning
+        One check standard with different assigned values in one sequence (also listed
+        in the result's ``warnings``).
+
     References
     ----------
     Relative standard deviation ``100·s/mean`` with the sample standard deviation (ddof = 1)
@@ -324,8 +331,9 @@ def sequence_suitability(
         if limits.require_check_standard:
             checks.append(SuitabilityCheck(
                 "check standard present", math.nan, math.nan, "", False,
-                "no check-standard injection in this sequence (role 'check_standard'); "
-                "run one, or switch require_check_standard off", "common practice"))
+                "no check-standard injection in this sequence (role 'check_standard'); run one, "
+                "or switch the requirement off (SuitabilityLimits(require_check_standard=False), "
+                "CLI --no-require-check-standard)", "common practice"))
         else:
             checks.append(SuitabilityCheck(
                 "check standard present", math.nan, math.nan, "", None,
@@ -358,6 +366,7 @@ def sequence_suitability(
                 msg = (f"check standard {key}: different {acol} values in one sequence "
                        f"({', '.join(f'{v:g}' for v in np.unique(finite))}); the first, {assigned:g}, is used")
                 warnings.append(msg)
+                _warnings.warn(msg, T.QCWarning, stacklevel=3)
             name = f"check standard {key}: {q} deviation from assigned [%]"
             if not rows_ok:
                 errs = "; ".join(filter(None, (T.error_text(table, i) for i in rows)))

@@ -23,7 +23,7 @@ import math
 import os
 import re
 from collections.abc import Mapping
-from dataclasses import dataclass, field, replace
+from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
@@ -448,12 +448,7 @@ def run_qc(
     """
     inp = _resolve_results(results, method, calibration)
     if settings is None:
-        settings = QCSettings()
-        if inp.method is not None:  # the method's thresholds set the matching suitability limits
-            settings = replace(settings, suitability=replace(
-                settings.suitability,
-                max_calibration_residual_pct=float(inp.method.residual_limit_pct),
-                max_outside_calibration_pct=float(inp.method.outside_warn_pct)))
+        settings = QCSettings.from_method(inp.method)
     if isinstance(specs, SpecSheet):
         spec_sheet = specs
     else:
