@@ -314,6 +314,40 @@ def transfer_cmd(
         _err(f"{result.failed} run(s) could not be processed (see runs.csv)")
         raise typer.Exit(EXIT_FAILED_ROWS)
 
+
+@app.command("diagnose")
+@_guard
+def diagnose_cmd(
+    recipe: Path = typer.Argument(..., help="Recipe file (TOML), see templates/recipe.toml."),
+    out: Path = typer.Option(Path("gpctools-diagnosis"), "--out", "-o", help="Output folder."),
+    measured: Optional[Path] = typer.Option(None, "--measured", help="Batch results table (results.csv/.xlsx) with this batch's Mn and Mw."),
+    sample: Optional[str] = typer.Option(None, "--sample", help="sample_id to take from --measured (needed when it holds several samples)."),
+    xlsx: bool = typer.Option(True, "--xlsx/--no-xlsx", help="Also write diagnosis.xlsx."),
+) -> None:
+    """Why is the molar mass low? Predict the recipe, compare with the measurements, rank the causes."""
+    from .kinetics import run_diagnosis
+
+    d = run_diagnosis(recipe, out, measured_path=measured, sample_id=sample, xlsx=xlsx)
+    typer.echo(f"{d.label}: verdict {d.verdict}")
+    for i, c in enumerate(d.causes[:3], start=1):
+        typer.echo(f"{i}. {c.title}: {c.share:.3g} % likelihood share")
+        typer.echo(f"   {c.text}")
+        typer.echo(f"   next: {c.next_step}")
+    if d.impurities:
+        i = d.impurities[0]
+        typer.echo(f"excess 1/DPn {d.excess_inv_DPn:.4g}: e.g. {i.name} at {i.ppm_mol:.3g} ppm (mol) relative to monomer")
+    for c in d.checks:
+        if c.status == "flag":
+            typer.echo(f"check {c.check}: {c.text}")
+    for w in d.warnings:
+        _err(f"warning: {w}")
+    typer.echo("")
+    for line in d.safety[:2]:
+        typer.echo(line)
+    typer.echo(f"\nwrote {out}/diagnosis.md, diagnosis.json, causes.csv, budget.csv, parameters.csv, impurities.csv"
+               + (", diagnosis.xlsx" if xlsx else ""))
+
+
 def _sample_runs_dir() -> Path:
     here = Path(__file__).resolve().parent.parent / "sample_runs"
     return here

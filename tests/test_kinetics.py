@@ -523,3 +523,24 @@ def test_no_library_print(capsys):
         r, p, _ = normal_recipe()
         diagnose(r, meas_from(p, extra_transfer=3e-4))
     assert capsys.readouterr().out == ""
+
+
+# ------------------------------------------------------------------ CLI
+
+
+def test_cli_diagnose(tmp_path):
+    from typer.testing import CliRunner
+
+    from gpctools.cli import app
+
+    out = tmp_path / "out"
+    r = CliRunner().invoke(app, ["diagnose", str(REPO / "templates" / "recipe.toml"),
+                                 "--out", str(out), "--no-xlsx"])
+    assert r.exit_code == 0, r.output
+    assert "verdict" in r.output and "site safety rules" in r.output
+    assert (out / "diagnosis.md").exists() and not (out / "diagnosis.xlsx").exists()
+    bad = tmp_path / "bad.toml"
+    bad.write_text('"T [°C]" = 60.0\ncolour = "red"\n', encoding="utf-8")
+    r = CliRunner().invoke(app, ["diagnose", str(bad), "--out", str(out)])
+    assert r.exit_code == 2
+    assert "colour" in r.output
