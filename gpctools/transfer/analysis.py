@@ -296,7 +296,7 @@ class TransferResult:
 
 
 CONSTANT_COLUMNS = [
-    "series", "T [°C]", "monomer", "agent", "term", "estimator", "model", "drift corrected",
+    "group", "series", "T [°C]", "monomer", "agent", "term", "estimator", "model", "drift corrected",
     "C [-]", "standard error [-]", "CI low [-]", "CI high [-]", "confidence [-]", "runs",
     "excluded runs", "1/DPn0 [-]", "1/DPn0 standard error [-]", "DPn0 [-]",
     "DPn0 standard error [-]", "naive bias [%]", "relative scatter [-]", "preferred", "notes",
@@ -993,7 +993,7 @@ def _constants_rows(res: TransferResult) -> list[dict[str, Any]]:
                         notes.append("biased by conversion drift (see the drift-corrected row)")
                     rel = getattr(f, "relative_scatter", float("nan"))
                     rows.append({
-                        "series": g.series, "T [°C]": g.T_C, "monomer": g.monomer,
+                        "group": g.label, "series": g.series, "T [°C]": g.T_C, "monomer": g.monomer,
                         "agent": g.agents[t], "term": t, "estimator": e, "model": model,
                         "drift corrected": _yes(model == MODEL_DRIFT),
                         "C [-]": c.value, "standard error [-]": c.stderr,
@@ -1012,7 +1012,7 @@ def _constants_rows(res: TransferResult) -> list[dict[str, Any]]:
                 cr = g.consumption[t]
                 c = cr.constant
                 rows.append({
-                    "series": g.series, "T [°C]": g.T_C, "monomer": g.monomer,
+                    "group": g.label, "series": g.series, "T [°C]": g.T_C, "monomer": g.monomer,
                     "agent": g.agents[t], "term": t, "estimator": "consumption",
                     "model": MODEL_CONSUMPTION, "drift corrected": "yes",
                     "C [-]": c.value, "standard error [-]": c.stderr, "CI low [-]": c.ci_low,

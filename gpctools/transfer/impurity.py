@@ -410,8 +410,14 @@ def _flag_core(
     """Sequential one-sided deletion test given a leave-out predictor ``loo(ref, i)``."""
     n = len(ids)
     if max_outliers is None:
-        min_keep = p + (1 if rel_error is not None else 2)
-        max_outliers = max(0, min(n - min_keep, n // 3))
+        # the first test needs 1 degree of freedom; every further one at least 3, so that
+        # piling up deletions does not end on a scatter estimated from a handful of runs
+        if rel_error is not None:
+            max_outliers = max(0, min(n - p - 1, n // 3))
+        elif n - p - 1 < 1:
+            max_outliers = 0
+        else:
+            max_outliers = max(1, min(n // 3, n - p - 3))
 
     def alpha_for(count: int) -> float:
         return (1 - confidence ** (1.0 / count)) if adjust == "series" else (1 - confidence)
