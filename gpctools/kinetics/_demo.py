@@ -67,7 +67,8 @@ name = "toluene"
 [[candidate]]                 # the thiol of the grade made last week on the same line
 name = "1-dodecanethiol"
 
-[measured]                    # from exports/LC180-0417.csv (averages of the processed trace)
+[measured]                    # exact averages of the simulated exports/LC180-0417.csv
+                              # (processing the export gives them within about 1 %)
 "Mn [g/mol]" = {Mn:.0f}
 "Mw [g/mol]" = {Mw:.0f}
 scale = "absolute"            # polystyrene measured against polystyrene standards
