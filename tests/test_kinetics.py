@@ -544,3 +544,13 @@ def test_cli_diagnose(tmp_path):
     r = CliRunner().invoke(app, ["diagnose", str(bad), "--out", str(out)])
     assert r.exit_code == 2
     assert "colour" in r.output
+
+
+def test_committed_troubleshooting_case(tmp_path):
+    folder = REPO / "sample_runs" / "troubleshooting"
+    truth = json.loads((folder / "truth.json").read_text())
+    d = run_diagnosis(folder / "recipe.toml", tmp_path / "out", xlsx=False)
+    assert d.top.key == truth["cause"]
+    est = next(i for i in d.impurities if i.name == truth["impurity"])
+    # acceptance criterion of the issue: impurity level within 15 %
+    assert est.ppm_mol == pytest.approx(truth["impurity [ppm mol]"], rel=0.15)
