@@ -243,12 +243,14 @@ def _numbers(text: Optional[str], count: tuple[int, ...], option: str) -> Option
     """Parse "a,b" option values into floats (None when not given)."""
     if text is None:
         return None
+    from .errors import DataError
+
     try:
         vals = tuple(float(v) for v in text.replace(";", ",").split(",") if v.strip())
     except ValueError:
-        raise typer.BadParameter(f"{text!r} is not a comma-separated list of numbers", param_hint=option) from None
+        raise DataError(f"{text!r} is not a comma-separated list of numbers", key=option) from None
     if len(vals) not in count:
-        raise typer.BadParameter(f"give {' or '.join(str(c) for c in count)} number(s), got {text!r}", param_hint=option)
+        raise DataError(f"give {' or '.join(str(c) for c in count)} number(s), got {text!r}", key=option)
     return vals
 
 
@@ -283,7 +285,9 @@ def transfer_cmd(
 
     drift_opt = {"auto": "auto", "yes": True, "no": False}.get(drift.strip().lower())
     if drift_opt is None:
-        raise typer.BadParameter("use auto, yes or no", param_hint="--drift")
+        from .errors import DataError
+
+        raise DataError(f"{drift!r}: use auto, yes or no", key="--drift")
     window = _numbers(cld_window, (2,), "--cld-window")
     expected = _numbers(expected_intercept, (1, 2), "--expected-intercept")
     result = analyse_series(
