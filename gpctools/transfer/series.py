@@ -8,6 +8,7 @@ and the ratio(s) of the species whose constants are fitted:
 ``run``                        run id (unique); also accepted: ``run id``, ``sample_id``
 ``file``                       chromatogram (slice export), relative to the sheet
 ``Mn [g/mol]``, ``Mw [g/mol]`` measured averages, used when there is no ``file``
+                               (``[kg/mol]`` also accepted)
 ``Mn scale``                   ``absolute`` or ``relative`` (standard-equivalent) for the
                                measured Mn/Mw; chromatograms take the method's scale
 ``monomer``                    name in the bundled monomer table (gives M0), or
@@ -72,6 +73,8 @@ _SIMPLE = {
     "conversion_pct": ("conversion [%]",),
     "Mn": ("mn [g/mol]", "mn"),
     "Mw": ("mw [g/mol]", "mw"),
+    "Mn_kg": ("mn [kg/mol]",),
+    "Mw_kg": ("mw [kg/mol]",),
     "scale": ("mn scale", "molar-mass scale", "scale"),
     "role": ("role",),
     "res_M": ("residual [m] [mol/l]",),
@@ -79,7 +82,7 @@ _SIMPLE = {
     "u_conversion": ("u(conversion) [-]",),
 }
 _CONC = re.compile(r"^\[(a|s|i)(?::\s*(.+?))?\]0? \[mol/l\]$")
-_RATIO = re.compile(r"^(?:ratio )?\[(a|s|i)(?::\s*(.+?))?\]0?\s*/\s*\[m\]0? \[-\]$")
+_RATIO = re.compile(r"^(?:ratio )?\[(a|s|i)(?::\s*(.+?))?\]0?\s*/\s*\[m\]0?(?: \[-\]| \[mol/mol\])?$")
 _RES_A = re.compile(r"^residual \[a(?::\s*(.+?))?\] \[mol/l\]$")
 _U_RES_A = re.compile(r"^u\(residual \[a(?::\s*(.+?))?\]\) \[mol/l\]$")
 
@@ -373,11 +376,11 @@ def run_series_from_rows(
         raise InputFormatError(
             "the run-series sheet has no 'run' column (the run id); add it (see "
             "templates/run_series.csv)", path=path, sheet=sheet)
-    if "file" not in cols and "Mn" not in cols and "Mw" not in cols:
+    if not ({"file", "Mn", "Mw", "Mn_kg", "Mw_kg"} & set(cols)):
         raise InputFormatError(
             "the run-series sheet needs a 'file' column (chromatograms) or measured "
             "'Mn [g/mol]' / 'Mw [g/mol]' columns", path=path, sheet=sheet)
-    terms = sorted(set(conc_cols) | set(ratio_cols))
+    terms = list(dict.fromkeys([*conc_cols, *ratio_cols]))  # sheet order
     if not terms:
         raise InputFormatError(
             "the run-series sheet gives no agent, solvent or initiator: add '[A] [mol/L]' "
@@ -416,6 +419,10 @@ def run_series_from_rows(
             fpath = str(p)
         Mn = R.num(cols.get("Mn"), positive=True)
         Mw = R.num(cols.get("Mw"), positive=True)
+        if not math.isfinite(Mn):
+            Mn = 1e3 * R.num(cols.get("Mn_kg"), positive=True)
+        if not math.isfinite(Mw):
+            Mw = 1e3 * R.num(cols.get("Mw_kg"), positive=True)
         if fpath is None and not (math.isfinite(Mn) or math.isfinite(Mw)) and role != "skip":
             raise R.err("no chain length for this run: give a chromatogram 'file' or measured "
                         "'Mn [g/mol]' and/or 'Mw [g/mol]'", cols.get("file") or cols.get("Mn"))

@@ -183,9 +183,10 @@ def averages_from_dwdlogM(M: Any, dwdlogM: Any) -> tuple[float, float]:
     M = np.asarray(M, dtype=float)
     h = np.asarray(dwdlogM, dtype=float)
     lg = np.log10(M)
-    area = np.trapezoid(h, lg)
-    Mn = area / np.trapezoid(h / M, lg)
-    Mw = np.trapezoid(h * M, lg) / area
+    trap = np.trapezoid if hasattr(np, "trapezoid") else np.trapz  # noqa: NPY201 (numpy < 2)
+    area = trap(h, lg)
+    Mn = area / trap(h / M, lg)
+    Mw = trap(h * M, lg) / area
     return float(Mn), float(Mw)
 
 
