@@ -314,6 +314,7 @@ def transfer_cmd(
                    f"E_tr - E_p = {fit.delta_E.value:.2f} ± {fit.delta_E.stderr:.2f} kJ/mol, "
                    f"A_tr/A_p = {fit.A_ratio.value:.3g}")
     typer.echo(f"wrote {out}/ ({', '.join(sorted(p for p in paths if '/' not in p))}, plots/)")
+    typer.echo(f"safety: {result.summary()['safety']}")
     if result.failed:
         _err(f"{result.failed} run(s) could not be processed (see runs.csv)")
         raise typer.Exit(EXIT_FAILED_ROWS)

@@ -160,6 +160,9 @@ class GroupResult:
         Notes where estimators disagree, with likely causes.
     preferred : dict
         Term -> (estimator, model) of the recommended constant.
+    literature : dict
+        Term -> bundled reference value for the agent in this monomer (``C [-]`` at
+        ``T [°C]``, ``source``, ``caution``), when the table has one.
     warnings : tuple of str
     """
 
@@ -178,6 +181,7 @@ class GroupResult:
     consumption: dict[str, ConsumptionResult]
     comparison: tuple[str, ...]
     preferred: dict[str, tuple[str, str]]
+    literature: dict[str, dict[str, Any]] = field(default_factory=dict)
     warnings: tuple[str, ...] = ()
 
     def fit(self, estimator: str, model: str = MODEL_MAYO) -> MayoFit | DriftFit:
@@ -205,6 +209,7 @@ class GroupResult:
             "consumption": {k: v.summary() for k, v in self.consumption.items()},
             "estimator comparison": list(self.comparison),
             "preferred": {k: {"estimator": e, "model": m} for k, (e, m) in self.preferred.items()},
+            "literature": {k: dict(v) for k, v in self.literature.items()},
             "warnings": list(self.warnings),
         }
 
@@ -291,15 +296,26 @@ class TransferResult:
             "groups": [g.summary() for g in self.groups],
             "arrhenius": [dict(lbl, **fit.summary()) for lbl, fit in self.arrhenius],
             "options": self.options,
+            "safety": SAFETY_NOTE,
+            "agent cautions": sorted({v["caution"] for g in self.groups
+                                      for v in g.literature.values() if v.get("caution")}),
             "warnings": list(self.warnings),
         }
 
+
+#: Shown with every analysis (SCIENCE.md section 10).
+SAFETY_NOTE = (
+    "Transfer agents and solvents are often toxic, malodorous or sensitizing (thiols, "
+    "halogenated methanes); polymerizations are exothermic and can run away when initiator "
+    "or temperature is raised. Follow your site safety rules, local codes and licensed practice."
+)
 
 CONSTANT_COLUMNS = [
     "group", "series", "T [°C]", "monomer", "agent", "term", "estimator", "model", "drift corrected",
     "C [-]", "standard error [-]", "CI low [-]", "CI high [-]", "confidence [-]", "runs",
     "excluded runs", "1/DPn0 [-]", "1/DPn0 standard error [-]", "DPn0 [-]",
-    "DPn0 standard error [-]", "naive bias [%]", "relative scatter [-]", "preferred", "notes",
+    "DPn0 standard error [-]", "naive bias [%]", "relative scatter [-]", "preferred",
+    "literature C [-]", "literature source", "notes",
 ]
 ARRHENIUS_COLUMNS = [
     "monomer", "agent", "term", "estimator", "model", "temperatures [°C]",
@@ -476,6 +492,7 @@ def _analyse_group(
     C_M: float | None,
     kinetic_term: float | None,
     fixed_intercept: float | None,
+    reference: Any = None,
 ) -> GroupResult:
     series_label, T = key
     label = _group_label(series_label, T)
@@ -606,6 +623,7 @@ def _analyse_group(
                     f"{d.naive[j].value:.4g}, {100 * d.naive_bias[j]:+.1f} % off the "
                     f"drift-corrected {d.constants[j].value:.4g} ({pref_est}); the agent is "
                     "consumed faster than the monomer, so the naive value is biased",)
+    literature = _literature(runs, chosen, agents, T, reference)
     return GroupResult(
         series=series_label,
         T_C=T,
@@ -622,8 +640,37 @@ def _analyse_group(
         consumption=consumption,
         comparison=comparison,
         preferred=preferred,
+        literature=literature,
         warnings=tuple(dict.fromkeys(warns)),
     )
+
+
+def _literature(runs: Sequence[Run], terms: Sequence[str], agents: dict[str, str], T: float,
+                reference: Any) -> dict[str, dict[str, Any]]:
+    """Bundled reference constants (and cautions) for the agents of a group, where known."""
+    mono = next((r.monomer for r in runs if r.monomer), "")
+    out: dict[str, dict[str, Any]] = {}
+    if not mono:
+        return out
+    for t in terms:
+        name = agents.get(t, "")
+        if not name or name in ("agent", "solvent", "initiator", "monomer"):
+            continue
+        try:
+            if reference is None:
+                from gpctools import refdata
+
+                ag = refdata.agent(name, mono)
+            else:
+                ag = reference.agent(name, mono)
+        except GpcError:
+            continue
+        T_use = T if math.isfinite(T) else (ag.T_ref if ag.T_ref is not None else float("nan"))
+        C_lit = ag.C(T_use + 273.15) if math.isfinite(T_use) else ag.C_ref
+        out[t] = {"C [-]": C_lit, "T [°C]": finite_or_none(T_use), "source": ag.source,
+                  "caution": ag.caution, "note": ag.temperature_note(T_use + 273.15)
+                  if math.isfinite(T_use) else None}
+    return out
 
 
 def _intercept_check(fit: Any, controls: list[Run], est: dict[str, RunEstimate], estimator: str,
@@ -879,7 +926,7 @@ def analyse_series(
             impurity_adjust=impurity_adjust, impurity_C=impurity_C, rel_error=rel_error,
             flag_estimator=flag_estimator, exclude_flagged=exclude_flagged,
             expected_intercept=expected_intercept, C_M=C_M, kinetic_term=kinetic_term,
-            fixed_intercept=fixed_intercept))
+            fixed_intercept=fixed_intercept, reference=reference))
     if not groups:
         raise DesignError("the sheet has no runs with role 'run' to fit")
     arr = _arrhenius(groups, warns)
@@ -1006,6 +1053,8 @@ def _constants_rows(res: TransferResult) -> list[dict[str, Any]]:
                         "naive bias [%]": bias,
                         "relative scatter [-]": rel if rel is not None else float("nan"),
                         "preferred": _yes(g.preferred.get(t) == (e, model)),
+                        "literature C [-]": g.literature.get(t, {}).get("C [-]", float("nan")),
+                        "literature source": g.literature.get(t, {}).get("source", ""),
                         "notes": "; ".join(notes),
                     })
             if t in g.consumption:
@@ -1021,7 +1070,10 @@ def _constants_rows(res: TransferResult) -> list[dict[str, Any]]:
                     "1/DPn0 [-]": float("nan"), "1/DPn0 standard error [-]": float("nan"),
                     "DPn0 [-]": float("nan"), "DPn0 standard error [-]": float("nan"),
                     "naive bias [%]": float("nan"), "relative scatter [-]": float("nan"),
-                    "preferred": "no", "notes": "C = ln([A]/[A]0)/ln([M]/[M]0)",
+                    "preferred": "no",
+                    "literature C [-]": g.literature.get(t, {}).get("C [-]", float("nan")),
+                    "literature source": g.literature.get(t, {}).get("source", ""),
+                    "notes": "C = ln([A]/[A]0)/ln([M]/[M]0)",
                 })
     return rows
 
