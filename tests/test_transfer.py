@@ -662,6 +662,10 @@ def test_template_csv_and_xlsx_hold_the_same_rows_and_analyse(tmp_path):
     assert "consumption" in set(ct["estimator"])
     # the template's example was made with C = 14.8 [published: Carraher 8th ed.] and 1.5 % noise
     assert res.constant("C_A").value == pytest.approx(C_DDM_STYRENE_60, rel=0.05)
+    # the bundled reference value is shown beside it, with its source
+    assert ct["literature C [-]"].iloc[0] == pytest.approx(C_DDM_STYRENE_60)
+    assert "Carraher" in ct["literature source"].iloc[0]
+    assert "site safety rules" in res.summary()["safety"]
 
 
 def test_library_does_not_print(capsys, tmp_path):
