@@ -315,7 +315,7 @@ _ALIASES = {
     "sample_id": ("sample_id", "sample id", "sample", "id"),
     "file": ("file", "path", "file path", "filename", "data file"),
     "role": ("role", "type"),
-    "flow marker [mL]": ("flow marker [ml]", "flow_marker", "flow marker", "marker [ml]"),
+    "flow marker [mL]": ("flow marker [ml]", "flow_marker [ml]", "flow_marker", "flow marker", "marker [ml]"),
 }
 
 

@@ -190,12 +190,34 @@ def _peak_region(volume, corrected, valid, noise, ref_scale=None) -> tuple[int, 
             "times its noise level); check the signal column, the baseline windows and the "
             "injection"
         )
-    threshold = max(noise / math.sqrt(width), 1e-4 * height)
-    below = (sm <= threshold) | ~valid
+    threshold = max(noise / math.sqrt(width), 1e-6 * height)
+    # A foot is where the smoothed signal is at the threshold AND stays there: the mean of
+    # the next (right side) or previous (left side) L slices is below it too. Without that,
+    # noise dips a faint tail below the threshold long before the tail ends, which cuts the
+    # low-M tail and biases Mn high.
+    run = max(5, n // 50)
+    c = np.concatenate(([0.0], np.cumsum(sm)))
+    idx = np.arange(n)
+    hi = np.minimum(idx + run, n)
+    lo = np.maximum(idx - run + 1, 0)
+    ahead = (c[hi] - c[idx]) / (hi - idx)
+    behind = (c[idx + 1] - c[lo]) / (idx + 1 - lo)
+    at_foot = sm <= threshold
+    below = (at_foot & (behind <= threshold)) | ~valid
     left = np.nonzero(below[:ipk])[0]
+    below = (at_foot & (ahead <= threshold)) | ~valid
     right = np.nonzero(below[ipk:])[0]
     start = int(left[-1]) if left.size else 0
     end = int(ipk + right[0]) if right.size else n - 1
+    # Past the low-M (high-volume) foot the tail is below the noise but not zero, and it
+    # carries many chains: integrating zero-mean noise there costs nothing in bias
+    # (negative heights are kept) and helps Mn, so go one run further out. Not on the
+    # high-M side, where noise times M^2 or M^3 would only add scatter to Mz and Mz+1.
+    end = min(end + run, n - 1)
+    while end < n - 1 and not valid[end]:
+        end -= 1
+        if end <= ipk:
+            break
     return start, ipk, end
 
 
@@ -219,7 +241,7 @@ def fit_baseline(
         Signal-free windows [mL], one before and one after the polymer peak. When
         omitted they are chosen automatically: the main peak is located on the smoothed
         signal, its foot found where the smoothed signal falls to its own noise level
-        (σ/√w for a w-point moving average, at least 0.01 % of the peak), and a window
+        (σ/√w for a w-point moving average, at least 1e-6 of the peak), and a window
         of 5 % of the recorded range placed on each side with a gap of 10 % of the peak
         width, avoiding excluded regions; the line is refitted twice.
     exclusions : sequence of (start, end)
@@ -247,11 +269,12 @@ def fit_baseline(
     valid = ~_window_mask(V, exclusions)
     span = V[-1] - V[0]
     width = 0.05 * span
-    # First guess: the two ends of the usable record.
-    vv = V[valid]
-    if vv.size < 20:
+    if int(valid.sum()) < 20:
         raise DataError("too few slices outside the excluded regions to place a baseline")
-    guess = ((vv[0], vv[0] + width), (vv[-1] - width, vv[-1]))
+    # First guess: the two ends of the usable record.
+    guess = (_place_window(V, valid, V[0], width, +1), _place_window(V, valid, V[-1], width, -1))
+    if guess[0] is None or guess[1] is None:
+        raise DataError("no room for baseline windows at the ends of the record; give baseline.windows")
     slope, intercept, noise = _line_through_windows(V, h, guess)
     sigma = noise_level(h[valid]) if noise is None else float(noise)
     ref_scale = float(np.max(np.abs(h)))
@@ -260,31 +283,71 @@ def fit_baseline(
         corrected = h - (intercept + slope * V)
         start, _ipk, end = _peak_region(V, corrected, valid, sigma, ref_scale)
         gap = 0.1 * (V[end] - V[start])
-        before = (V[start] - gap - width, V[start] - gap)
-        after = (V[end] + gap, V[end] + gap + width)
-        before = _fit_window_inside(V, valid, before, side="before")
-        after = _fit_window_inside(V, valid, after, side="after")
+        # Preferred: just outside the feet with a gap; else touching the feet; else the
+        # record ends (a foot found at 1e-6 of a noise-free peak can reach the record end).
+        before = (_place_window(V, valid, V[start] - gap, width, -1)
+                  or _place_window(V, valid, V[start], width, -1)
+                  or _place_window(V, valid, V[0], width, +1))
+        after = (_place_window(V, valid, V[end] + gap, width, +1)
+                 or _place_window(V, valid, V[end], width, +1)
+                 or _place_window(V, valid, V[-1], width, -1))
+        if before is None:
+            raise DataError(
+                f"no signal-free room for a baseline window before the peak (it starts at "
+                f"{V[start]:.3g} mL, the record at {V[0]:.3g} mL); give baseline.windows"
+            )
+        if after is None:
+            raise DataError(
+                f"no signal-free room for a baseline window after the peak (it ends at "
+                f"{V[end]:.3g} mL, the record at {V[-1]:.3g} mL); give baseline.windows"
+            )
         chosen = (before, after)
         slope, intercept, noise = _line_through_windows(V, h, chosen)
     return Baseline(chosen, slope, intercept, noise, automatic=True)
 
 
-def _fit_window_inside(V, valid, window, side) -> Window:
-    """Clip a window to the recorded range and slide it off excluded regions."""
-    a, b = window
-    w = b - a
-    lo, hi = V[0], V[-1]
-    a, b = max(a, lo), min(b, hi)
-    if b - a < 0.25 * w:  # too little room: take the record end
-        a, b = (lo, lo + w) if side == "before" else (hi - w, hi)
-    m = (V >= a) & (V <= b)
-    if m.any() and not valid[m].all():
-        # slide towards the peak side is unsafe; shrink to the valid part nearest the peak
-        idx = np.nonzero(m)[0]
-        good = idx[valid[idx]]
-        if good.size >= 2:
-            a, b = float(V[good[0]]), float(V[good[-1]])
-    return float(a), float(b)
+def _place_window(V: np.ndarray, valid: np.ndarray, anchor: float, width: float, direction: int):
+    """A baseline window of about ``width`` mL inside one run of non-excluded slices.
+
+    ``direction=+1``: the window starts at ``anchor`` (or at the next non-excluded slice)
+    and extends to larger volumes; ``-1``: it ends at ``anchor`` and extends to smaller
+    volumes. A run too short for a window (fewer than max(10, n/400) slices) is skipped
+    and the next run in that direction is used, so that a window is never placed across
+    an excluded peak. Returns ``(start, end)`` [mL] or None when there is no room.
+    """
+    n = V.size
+    min_pts = max(10, n // 400)
+    if direction > 0:
+        i = int(np.searchsorted(V, anchor, "left"))
+        while i < n:
+            if not valid[i]:
+                rest = np.nonzero(valid[i:])[0]
+                if rest.size == 0:
+                    return None
+                i += int(rest[0])
+                continue
+            inv = np.nonzero(~valid[i:])[0]
+            run_end = i + int(inv[0]) - 1 if inv.size else n - 1
+            j = min(int(np.searchsorted(V, V[i] + width, "right")) - 1, run_end)
+            if j - i + 1 >= min_pts:
+                return float(V[i]), float(V[j])
+            i = run_end + 1
+        return None
+    i = int(np.searchsorted(V, anchor, "right")) - 1
+    while i >= 0:
+        if not valid[i]:
+            rest = np.nonzero(valid[: i + 1])[0]
+            if rest.size == 0:
+                return None
+            i = int(rest[-1])
+            continue
+        inv = np.nonzero(~valid[: i + 1])[0]
+        run_start = int(inv[-1]) + 1 if inv.size else 0
+        j = max(int(np.searchsorted(V, V[i] - width, "left")), run_start)
+        if i - j + 1 >= min_pts:
+            return float(V[j]), float(V[i])
+        i = run_start - 1
+    return None
 
 
 def find_limits(
@@ -297,7 +360,7 @@ def find_limits(
     """Integration limits where the corrected signal returns to the baseline [mL].
 
     From the main peak outwards until the smoothed corrected signal falls to its own
-    noise level, max(σ/√w, 0.01 % of the peak height), with σ the white-noise SD and w the
+    noise level, max(σ/√w, 1e-6 of the peak height), with σ the white-noise SD and w the
     width of the moving average (n/200 slices, at least 3). The low-M tail of a broad
     distribution carries many chains but little mass; stopping early (at, say, 1 % of
     the peak) raises Mn by several per cent, so the limits go as far as the signal can
