@@ -35,6 +35,9 @@ def atomic_path(destination: str | os.PathLike[str]) -> Iterator[Path]:
     fd, tmp_name = tempfile.mkstemp(prefix=f".{dest.name}.", suffix=".part", dir=dest.parent)
     os.close(fd)
     tmp = Path(tmp_name)
+    # mkstemp creates the file owner-only (0600); give it the mode a plain open() would.
+    with contextlib.suppress(OSError):
+        os.chmod(tmp, 0o666 & ~_umask())
     try:
         yield tmp
         os.replace(tmp, dest)
@@ -42,6 +45,12 @@ def atomic_path(destination: str | os.PathLike[str]) -> Iterator[Path]:
         with contextlib.suppress(OSError):
             tmp.unlink()
         raise
+
+
+def _umask() -> int:
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask
 
 
 def write_text(destination: str | os.PathLike[str], text: str, encoding: str = "utf-8") -> Path:
