@@ -201,6 +201,52 @@ def run_demo(folder: str | Path, out: str | Path, *, echo: Callable[[str], None]
         )
     echo(f"\nlargest deviation from the true averages: {worst:.2f} %")
     echo(f"batch results written to {out / 'batch'} (results.csv, results.xlsx, distributions/)")
-    report = {"worst deviation [%]": worst, "failed": result.failed, "out": str(out)}
-    write_text(out / "demo_summary.json", json.dumps(report, indent=2) + "\n")
+    report: dict[str, Any] = {"worst deviation [%]": worst, "failed": result.failed, "out": str(out)}
+    if (folder / "spec_limits.csv").exists():
+        report["qc"] = _demo_qc(folder, out, result, echo)
+    if (folder / "transfer_series" / "run_series.csv").exists():
+        from .transfer.synthetic import run_demo_series
+
+        echo("\nChain-transfer constants from the run series (sample_runs/transfer_series):")
+        report["transfer"] = run_demo_series(folder / "transfer_series", out / "transfer", echo=echo)
+        if not report["transfer"].get("ok", False):
+            report["failed"] += 1
+    if (folder / "troubleshooting" / "recipe.toml").exists():
+        report["diagnosis"] = _demo_diagnosis(folder, out, method, echo)
+    write_text(out / "demo_summary.json", json.dumps(report, indent=2, default=str) + "\n")
     return report
+
+
+def _demo_qc(folder: Path, out: Path, result, echo: Callable[[str], None]) -> dict[str, Any]:
+    """QC report of the demo batch against the demo lab's spec limits."""
+    from .report import run_qc
+
+    rep = run_qc(result, folder / "spec_limits.csv", out / "qc", method=result.method)
+    echo("\nQC against sample_runs/spec_limits.csv:")
+    for b in rep.result.decisions.batches:
+        echo(f"  batch {b.batch}: {b.decision}" + (f" ({'; '.join(b.reasons)})" if b.decision != "pass" else ""))
+    for s in rep.result.suitability:
+        echo(f"  sequence {s.sequence}: system suitability {'pass' if s.passed else 'FAIL'}")
+    echo(f"QC report written to {out / 'qc'} (qc_report.html, qc_report.xlsx, plots/)")
+    return {"batches": {b.batch: b.decision for b in rep.result.decisions.batches}}
+
+
+def _demo_diagnosis(folder: Path, out: Path, method, echo: Callable[[str], None]) -> dict[str, Any]:
+    """The troubleshooting case: process its exports, then rank the causes of low Mn."""
+    from .batch import run_batch
+    from .kinetics import run_diagnosis
+
+    case = folder / "troubleshooting"
+    res = run_batch(case / "batch.csv", method)
+    res.write(out / "troubleshooting" / "batch")
+    low = res.table.iloc[-1]["sample_id"]
+    diag = run_diagnosis(case / "recipe.toml", out / "troubleshooting",
+                         measured_path=out / "troubleshooting" / "batch" / "results.csv", sample_id=low)
+    echo(f"\nWhy is the molar mass of {low} low? (sample_runs/troubleshooting)")
+    for i, c in enumerate(diag.causes[:3], start=1):
+        echo(f"  {i}. {c.title}: {c.share:.1f} % likelihood share")
+    echo(f"  verdict: {diag.verdict}")
+    echo("  Safety: recipe changes that add initiator or raise the temperature can run away; "
+         "follow site safety rules, local codes and licensed practice.")
+    echo(f"diagnosis written to {out / 'troubleshooting'} (diagnosis.md, diagnosis.xlsx)")
+    return {"sample": low, "top cause": diag.causes[0].title if diag.causes else None, "verdict": diag.verdict}
