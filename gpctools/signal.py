@@ -144,9 +144,13 @@ def _smooth(signal: np.ndarray, width: int) -> np.ndarray:
     width = max(1, int(width) | 1)  # odd
     if width == 1:
         return signal
-    # Moving average by cumulative sums: O(n) whatever the width.
-    padded = np.pad(signal, width // 2, mode="edge")
-    c = np.concatenate(([0.0], np.cumsum(padded)))
+    # Moving average by cumulative sums: O(n) whatever the width; ends padded with the
+    # end values.
+    half = width // 2
+    padded = np.concatenate((np.full(half, signal[0]), signal, np.full(half, signal[-1])))
+    c = np.empty(padded.size + 1)
+    c[0] = 0.0
+    np.cumsum(padded, out=c[1:])
     return (c[width:] - c[:-width]) / width
 
 
@@ -196,19 +200,20 @@ def _peak_region(volume, corrected, valid, noise, ref_scale=None) -> tuple[int, 
     # noise dips a faint tail below the threshold long before the tail ends, which cuts the
     # low-M tail and biases Mn high.
     run = max(5, n // 50)
-    c = np.concatenate(([0.0], np.cumsum(sm)))
-    idx = np.arange(n)
-    hi = np.minimum(idx + run, n)
-    lo = np.maximum(idx - run + 1, 0)
-    ahead = (c[hi] - c[idx]) / (hi - idx)
-    behind = (c[idx + 1] - c[lo]) / (idx + 1 - lo)
-    at_foot = sm <= threshold
-    below = (at_foot & (behind <= threshold)) | ~valid
-    left = np.nonzero(below[:ipk])[0]
-    below = (at_foot & (ahead <= threshold)) | ~valid
-    right = np.nonzero(below[ipk:])[0]
-    start = int(left[-1]) if left.size else 0
-    end = int(ipk + right[0]) if right.size else n - 1
+    c = np.empty(n + 1)
+    c[0] = 0.0
+    np.cumsum(sm, out=c[1:])
+    cand = np.flatnonzero((sm <= threshold) | ~valid)  # only these can be feet
+    # left side: the last candidate before the peak whose previous `run` slices average
+    # below the threshold (or that is excluded)
+    lc = cand[cand < ipk]
+    lo = np.maximum(lc - run + 1, 0)
+    ok = ((c[lc + 1] - c[lo]) / (lc + 1 - lo) <= threshold) | ~valid[lc]
+    start = int(lc[ok][-1]) if ok.any() else 0
+    rc = cand[cand >= ipk]
+    hi = np.minimum(rc + run, n)
+    ok = ((c[hi] - c[rc]) / (hi - rc) <= threshold) | ~valid[rc]
+    end = int(rc[ok][0]) if ok.any() else n - 1
     # Past the low-M (high-volume) foot the tail is below the noise but not zero, and it
     # carries many chains: integrating zero-mean noise there costs nothing in bias
     # (negative heights are kept) and helps Mn, so go one run further out. Not on the
@@ -243,7 +248,7 @@ def fit_baseline(
         signal, its foot found where the smoothed signal falls to its own noise level
         (σ/√w for a w-point moving average, at least 1e-6 of the peak), and a window
         of 5 % of the recorded range placed on each side with a gap of 10 % of the peak
-        width, avoiding excluded regions; the line is refitted twice.
+        width, avoiding excluded regions; the line is refitted through them.
     exclusions : sequence of (start, end)
         Regions (system, solvent, flow-marker peaks) never used as baseline [mL].
     noise : float, optional
@@ -279,7 +284,7 @@ def fit_baseline(
     sigma = noise_level(h[valid]) if noise is None else float(noise)
     ref_scale = float(np.max(np.abs(h)))
     chosen = guess
-    for _ in range(2):
+    for _ in range(1):
         corrected = h - (intercept + slope * V)
         start, _ipk, end = _peak_region(V, corrected, valid, sigma, ref_scale)
         gap = 0.1 * (V[end] - V[start])
