@@ -316,12 +316,13 @@ def _place_window(V: np.ndarray, valid: np.ndarray, anchor: float, width: float,
 
     ``direction=+1``: the window starts at ``anchor`` (or at the next non-excluded slice)
     and extends to larger volumes; ``-1``: it ends at ``anchor`` and extends to smaller
-    volumes. A run too short for a window (fewer than max(10, n/400) slices) is skipped
-    and the next run in that direction is used, so that a window is never placed across
-    an excluded peak. Returns ``(start, end)`` [mL] or None when there is no room.
+    volumes. A run too short for a window (less than a quarter of ``width``, at least 10
+    slices) is skipped and the next run in that direction is used, so that a window is
+    never squeezed into a sliver before an excluded peak nor placed across one. Returns ``(start, end)`` [mL] or None when there is no room.
     """
     n = V.size
-    min_pts = max(10, n // 400)
+    spacing = (V[-1] - V[0]) / max(n - 1, 1)
+    min_pts = max(10, int(0.25 * width / spacing)) if spacing > 0 else 10
     if direction > 0:
         i = int(np.searchsorted(V, anchor, "left"))
         while i < n:
