@@ -326,7 +326,7 @@ def _fit_poly(V: np.ndarray, y: np.ndarray, order: int):
 def select_order(volume: Sequence[float], Mp: Sequence[float], orders: Sequence[int] = (1, 2, 3, 4, 5)) -> int:
     """Choose the calibration order by the smallest AICc among orders the data support.
 
-    An order is eligible when there are at least ``order + 3`` standards (AICc needs
+    An order is eligible when there are at least ``order + 4`` standards (AICc needs
     n > k + 1 with k = order + 2 fitted quantities), and its slope is monotonic
     (negative) over the calibrated range. Choosing by R² alone always picks the highest
     order (SCIENCE.md section 2: "choose the order by an information criterion").
@@ -334,7 +334,7 @@ def select_order(volume: Sequence[float], Mp: Sequence[float], orders: Sequence[
     V, logM, _ = _clean_standards(volume, Mp, None)
     best, best_aicc = None, math.inf
     for order in orders:
-        if len(V) < order + 3:
+        if len(V) < order + 4:
             continue
         coef, center, scale, _, _, _, aicc = _fit_poly(V, logM, order)
         if not math.isfinite(aicc) or not _monotonic(coef, center, scale, V.min(), V.max()):
@@ -344,7 +344,7 @@ def select_order(volume: Sequence[float], Mp: Sequence[float], orders: Sequence[
     if best is None:
         raise CalibrationError(
             f"cannot choose a calibration order automatically from {len(V)} standards: "
-            "give at least 4 standards or set calibration.order explicitly"
+            "give at least 5 standards or set calibration.order explicitly"
         )
     return best
 

@@ -191,8 +191,19 @@ def test_select_order_by_aicc(seed: int) -> None:
 
 
 def test_select_order_needs_enough_standards() -> None:
-    with pytest.raises(CalibrationError, match="at least 4 standards"):
+    with pytest.raises(CalibrationError, match="at least 5 standards"):
         select_order([12.0, 14.0, 16.0], [1e5, 1e4, 1e3])
+
+
+def test_regression_auto_order_minimum_standards() -> None:
+    # derived: AICc with k = order + 2 needs n > k + 1, so order 1 needs n >= 5. Four
+    # standards must be refused with a message asking for 5 (it used to ask for 4, which
+    # then failed the same way); five standards must give an order.
+    V = np.array([12.0, 13.0, 14.0, 15.0, 16.0])
+    M = 10.0 ** (10.0 - 0.4 * V + np.array([0.004, -0.003, 0.002, -0.004, 0.001]))
+    with pytest.raises(CalibrationError, match="at least 5 standards"):
+        select_order(V[:4], M[:4])
+    assert select_order(V, M) == 1
 
 
 # ============================================================================ tangent extrapolation
