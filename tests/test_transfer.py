@@ -96,6 +96,24 @@ def test_mayo_interval_is_student_t_with_n_minus_p_dof():
     assert c.value - c.ci_low == pytest.approx(q * c.stderr, rel=1e-9)
 
 
+def test_regression_mayo_known_sigma_uses_normal_quantile():
+    # With absolute uncertainties of 1/DPn given, the covariance is not estimated from the
+    # scatter, so the 95 % interval is value ± z*se with z = Φ⁻¹(0.975) (reference library:
+    # scipy normal), not Student t with n - p dof. rel=1e-9: rounding only.
+    rng = np.random.default_rng(5)
+    y = _lambda(RATIOS) * (1 + 0.02 * rng.standard_normal(RATIOS.size))
+    fit = fit_mayo(y, {"C_A": RATIOS}, sigma=0.02 * _lambda(RATIOS))
+    c = fit.constant("C_A")
+    z = stats.norm.ppf(0.975)
+    assert c.ci_high - c.value == pytest.approx(z * c.stderr, rel=1e-9)
+    assert fit.intercept.ci_high - fit.intercept.value == pytest.approx(
+        z * fit.intercept.stderr, rel=1e-9)
+    lo, hi = fit.band({"C_A": np.array([2.0e-4])})
+    se_mean = (hi[0] - lo[0]) / 2 / z
+    g = np.array([1.0, 2.0e-4])
+    assert se_mean == pytest.approx(math.sqrt(g @ fit.covariance @ g), rel=1e-9)
+
+
 def test_mayo_dpn0_propagated_error():
     rng = np.random.default_rng(3)
     y = _lambda(RATIOS) * (1 + 0.02 * rng.standard_normal(RATIOS.size))

@@ -350,6 +350,9 @@ class MayoFit:
     message : str
     design_check : DesignCheck
     warnings : tuple of str
+    known_sigma : bool
+        True when absolute uncertainties of y were given: the covariance is then not
+        scaled and the intervals use the normal quantile instead of Student's t.
     """
 
     estimator: str
@@ -372,6 +375,7 @@ class MayoFit:
     message: str
     design_check: DesignCheck
     warnings: tuple[str, ...] = field(default=())
+    known_sigma: bool = False
 
     def constant(self, name: str) -> FittedValue:
         """The fitted constant called ``name`` (``"C_A"``, ``"C_A:thiol"``, ...)."""
@@ -402,7 +406,8 @@ class MayoFit:
     def band(self, columns: Mapping[str, Any], confidence: float | None = None) -> tuple[np.ndarray, np.ndarray]:
         """Pointwise confidence band of the fitted line (the mean 1/DPn) [-].
 
-        Half-width ``t_{(1+c)/2, n-p} * sqrt(g' Cov g)`` with g the design row.
+        Half-width ``t_{(1+c)/2, n-p} * sqrt(g' Cov g)`` with g the design row (the normal
+        quantile when the uncertainties of y were given, ``known_sigma``).
 
         References
         ----------
@@ -413,7 +418,8 @@ class MayoFit:
         G = self._row_matrix(columns)
         mean = self.predict(columns)
         var = np.einsum("ij,jk,ik->i", G, self.covariance, G)
-        half = t_quantile(0.5 + level / 2, self.dof) * np.sqrt(np.maximum(var, 0.0))
+        dof = 0 if self.known_sigma else self.dof
+        half = t_quantile(0.5 + level / 2, dof) * np.sqrt(np.maximum(var, 0.0))
         return mean - half, mean + half
 
     def summary(self) -> dict[str, Any]:
@@ -470,15 +476,16 @@ def fit_mayo(
         pass; the common relative error is estimated from the scatter. ``"equal"``:
         ordinary least squares.
     sigma : array-like, optional
-        Known absolute standard uncertainties of ``y`` [-]; overrides ``weights`` and
-        the covariance is then not rescaled by the reduced chi-square.
+        Known absolute standard uncertainties of ``y`` [-]; overrides ``weights``, the
+        covariance is then not rescaled by the reduced chi-square and the intervals use
+        the normal quantile (known variance).
     run_ids : sequence, optional
         Run identifiers (for messages and tables).
     estimator : str
         Label of the chain-length estimate (``"Mn"``, ``"Mw/2"``, ``"CLD"``).
     confidence : float
         Two-sided confidence level of the intervals [-], default 0.95; intervals use the
-        t distribution with n - p degrees of freedom.
+        t distribution with n - p degrees of freedom (normal when ``sigma`` is given).
     what : str
         Name of the series for messages.
 
@@ -536,7 +543,8 @@ def fit_mayo(
             fit = weighted_linear_fit(X, target, w)
     else:
         raise DataError(f"weights must be 'relative' or 'equal', not {weights!r}", key="weights")
-    q = t_quantile(0.5 + confidence / 2, fit.dof)
+    # known sigma: the covariance is not estimated from the scatter, so the pivot is normal
+    q = t_quantile(0.5 + confidence / 2, 0 if sigma is not None else fit.dof)
     beta = fit.beta
     se = np.sqrt(np.maximum(np.diag(fit.covariance), 0.0))
     offset = 0 if fixed else 1
@@ -600,4 +608,5 @@ def fit_mayo(
         message=fit.message,
         design_check=check,
         warnings=tuple(warns),
+        known_sigma=sigma is not None,
     )
