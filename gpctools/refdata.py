@@ -872,7 +872,8 @@ class ReferenceData:
                 key="mark_houwink",
             )
         if T is not None:
-            rows.sort(key=lambda r: abs((_opt(r["T [°C]"]) or 1e9) - float(T)))
+            rows.sort(key=lambda r: abs((1e9 if _opt(r["T [°C]"]) is None else _opt(r["T [°C]"]))
+                                        - float(T)))
         r = rows[0]
         return MarkHouwinkPair(
             polymer=r["polymer"],

@@ -250,3 +250,15 @@ def test_user_agent_appears_in_candidates(tmp_path):
     ref = refdata.ReferenceData(extra={"agents": user})
     names = [a.agent for a in ref.agents_for("styrene")]
     assert "thiol X" in names and len(names) == 9
+
+
+def test_regression_mark_houwink_row_at_zero_celsius_is_nearest(tmp_path):
+    # A user pair tabulated at 0 °C must be found as the nearest to T = 0 °C; it used to be
+    # treated like a row without temperature (0 is falsy). Values are placeholders (our
+    # choice), only the row selection is tested.
+    f = tmp_path / "mh.csv"
+    f.write_text("polymer,solvent,T [°C],K [dL/g],a [-],source\n"
+                 "polystyrene,THF,0,1.0e-4,0.70,user test row\n", encoding="utf-8")
+    ref = refdata.ReferenceData(extra={"mark_houwink": f})
+    assert ref.mark_houwink("polystyrene", "THF", T=0.0).K == 1.0e-4
+    assert ref.mark_houwink("polystyrene", "THF", T=25.0).K == 1.14e-4  # bundled 25 °C row
