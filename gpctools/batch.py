@@ -606,12 +606,13 @@ def write_batch_outputs(result: BatchResult, outdir: str | Path, *, distribution
 
     from . import __version__
     from ._atomic import write_csv, write_text
+    from ._workbook import write_workbook
 
     out = Path(outdir)
     out.mkdir(parents=True, exist_ok=True)
     paths: dict[str, Path] = {}
     paths["results.csv"] = write_csv(out / "results.csv", result.table)
-    paths["results.xlsx"] = write_xlsx_table(out / "results.xlsx", {"results": result.table})
+    paths["results.xlsx"] = write_workbook(out / "results.xlsx", {"results": result.table})
     cal = pd.DataFrame(result.calibration.standards_table())
     paths["calibration.csv"] = write_csv(out / "calibration.csv", cal)
     if distributions:
@@ -630,47 +631,3 @@ def write_batch_outputs(result: BatchResult, outdir: str | Path, *, distribution
     }
     paths["manifest.json"] = write_text(out / "manifest.json", json.dumps(manifest, indent=2, default=str) + "\n")
     return paths
-
-
-_FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
-
-
-def inert_text(value: Any) -> Any:
-    """Make a string safe for a spreadsheet cell: text that a spreadsheet would run as a
-    formula (starting with = + - @ tab or CR) is prefixed with an apostrophe. Numbers are
-    returned unchanged (OWASP guidance on CSV/formula injection, common practice)."""
-    if isinstance(value, str) and value.startswith(_FORMULA_START):
-        return "'" + value
-    return value
-
-
-def write_xlsx_table(path: str | Path, sheets: dict[str, Any]) -> Path:
-    """Write DataFrames to an XLSX workbook atomically, one sheet each, text made inert."""
-    from openpyxl import Workbook
-
-    from ._atomic import atomic_path
-
-    wb = Workbook()
-    wb.remove(wb.active)
-    for name, df in sheets.items():
-        ws = wb.create_sheet(title=str(name)[:31])
-        ws.append([str(c) for c in df.columns])
-        for rec in df.itertuples(index=False, name=None):
-            ws.append([_cell(v) for v in rec])
-        ws.freeze_panes = "A2"
-    with atomic_path(path) as tmp:
-        wb.save(tmp)
-    return Path(path)
-
-
-def _cell(v: Any) -> Any:
-    if v is None:
-        return None
-    if isinstance(v, (np.floating, float)):
-        f = float(v)
-        return None if math.isnan(f) else f
-    if isinstance(v, (np.integer,)):
-        return int(v)
-    if isinstance(v, (int, bool)):
-        return v
-    return inert_text(str(v))

@@ -1199,7 +1199,7 @@ def write_transfer_outputs(result: TransferResult, outdir: str | Path, *,
     dict of str to Path
     """
     from gpctools._atomic import write_csv, write_text
-    from gpctools.batch import write_xlsx_table
+    from gpctools._workbook import write_workbook
 
     out = Path(outdir)
     out.mkdir(parents=True, exist_ok=True)
@@ -1213,8 +1213,8 @@ def write_transfer_outputs(result: TransferResult, outdir: str | Path, *,
     if len(at):
         paths["arrhenius.csv"] = write_csv(out / "arrhenius.csv", at)
         sheets["arrhenius"] = at
-    paths["constants.xlsx"] = write_xlsx_table(out / "constants.xlsx", {"constants": ct})
-    paths["transfer.xlsx"] = write_xlsx_table(out / "transfer.xlsx", sheets)
+    paths["constants.xlsx"] = write_workbook(out / "constants.xlsx", {"constants": ct})
+    paths["transfer.xlsx"] = write_workbook(out / "transfer.xlsx", sheets)
     paths["summary.json"] = write_text(
         out / "summary.json", json.dumps(result.summary(), indent=2, default=str) + "\n")
     if plots:
