@@ -370,8 +370,9 @@ def find_limits(
     width of the moving average (n/200 slices, at least 3). The low-M tail of a broad
     distribution carries many chains but little mass; stopping early (at, say, 1 % of
     the peak) raises Mn by several per cent, so the limits go as far as the signal can
-    be told from zero. Zero-mean noise integrated beyond that point does not bias the
-    sums because negative heights are kept.
+    be told from zero, and the high-volume (low-M) limit one run of max(5, n/50) slices
+    further still. Zero-mean noise integrated beyond that point does not bias the sums
+    because negative heights are kept.
     """
     V, c, order = _as_trace(volume, corrected)
     V, c = V[order], c[order]

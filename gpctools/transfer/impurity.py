@@ -340,7 +340,8 @@ def flag_runs(
         the test then uses the normal distribution instead of the scatter of the other
         runs, which gives more power in short series. Default: estimated from the runs.
     max_outliers : int, optional
-        Most runs that can be flagged (default: n − p − 2, at most a third of the runs).
+        Most runs that can be flagged. Default: n − p − 3 but at least 1 and at most a
+        third of the runs (0 when n − p < 2); with ``rel_error`` n − p − 1, at most a third.
     estimator : str
         Label of the 1/DPn estimate.
     what : str
