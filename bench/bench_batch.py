@@ -78,7 +78,13 @@ def time_batch(folder: Path, workers: int, write: bool) -> tuple[float, int]:
 
 
 def peak_rss_mb() -> float:
+    """Peak resident memory of this process [MB] (Linux reports ru_maxrss in KiB)."""
     return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0
+
+
+def peak_rss_children_mb() -> float:
+    """Largest peak resident memory of any finished worker process [MB]."""
+    return resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss / 1024.0
 
 
 def main() -> None:
@@ -94,7 +100,8 @@ def main() -> None:
         n, workers, write = int(args.child[0]), int(args.child[1]), args.child[2] == "1"
         folder = args.folder / f"n{n}"
         dt, failed = time_batch(folder, workers, write)
-        print(json.dumps({"seconds": dt, "failed": failed, "peak_rss_mb": peak_rss_mb()}))
+        print(json.dumps({"seconds": dt, "failed": failed, "peak_rss_mb": peak_rss_mb(),
+                          "peak_rss_workers_mb": peak_rss_children_mb()}))
         return
 
     nmax = max(args.n)
@@ -125,7 +132,8 @@ def main() -> None:
                     "batch [s]": round(r["seconds"], 2), "pandas read [s]": round(t_pd, 2),
                     "ratio [-]": round(r["seconds"] / t_pd, 2),
                     "injections/s": round(n / r["seconds"], 1),
-                    "peak RSS [MB]": round(r["peak_rss_mb"], 1), "failed": r["failed"],
+                    "peak RSS [MB]": round(r["peak_rss_mb"], 1),
+                    "peak RSS worker [MB]": round(r["peak_rss_workers_mb"], 1), "failed": r["failed"],
                 }
                 results.append(row)
                 print(json.dumps(row), flush=True)
