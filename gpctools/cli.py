@@ -54,8 +54,9 @@ def _guard(func):
         except GpcError as exc:
             _err(f"error: {exc}")
             raise typer.Exit(EXIT_USER_ERROR) from None
-        except (FileNotFoundError, PermissionError, IsADirectoryError) as exc:
-            _err(f"error: {exc.filename}: {exc.strerror}")
+        except OSError as exc:  # missing, unreadable or unwritable paths are user errors
+            _err(f"error: {exc.filename or ''}: {exc.strerror or exc}; check the path "
+                 "(inputs must be readable files, --out a writable folder)")
             raise typer.Exit(EXIT_USER_ERROR) from None
         except KeyboardInterrupt:
             _err("interrupted")
@@ -76,6 +77,22 @@ def _root(
     debug: bool = typer.Option(False, "--debug", help="Show tracebacks of internal errors."),
 ) -> None:
     _STATE["debug"] = debug
+
+
+def _check_out(out: Path) -> None:
+    """Refuse an output folder that is a file or lies under a file, before any work."""
+    from .errors import InputFormatError
+
+    for p in (out, *out.parents):
+        if p.exists():
+            if not p.is_dir():
+                what = "is a file" if p == out else f"lies under {p}, which is a file"
+                raise InputFormatError(f"the output folder {what}; give a folder with --out "
+                                       "(it is created when missing)", path=out, key="--out")
+            if not os.access(p, os.W_OK | os.X_OK):
+                raise InputFormatError(f"cannot write in {p}; give a writable folder with --out",
+                                       path=out, key="--out")
+            return
 
 
 def _progress_bar(total: int, label: str):
@@ -140,6 +157,7 @@ def batch_cmd(
     """Process every injection of a batch sheet and write the results table."""
     from .method import load_method
 
+    _check_out(out)
     m = load_method(method)
     result = _run_batch_with_progress(sheet, m, out, workers or None, sheet_name)
     rows = result.table.to_dict("records")
@@ -172,6 +190,7 @@ def qc_cmd(
     from .qc import QCSettings, read_specs
     from .report import run_qc
 
+    _check_out(out)
     spec_sheet = read_specs(specs)  # read first: a bad spec sheet fails before the batch runs
     if method is not None:
         from .method import load_method
@@ -283,6 +302,7 @@ def transfer_cmd(
     """Chain-transfer constants from a run series (Mayo, Mw/2, CLD; drift; impurity flags; ln C vs 1/T)."""
     from .transfer import analyse_series, write_transfer_outputs
 
+    _check_out(out)
     drift_opt = {"auto": "auto", "yes": True, "no": False}.get(drift.strip().lower())
     if drift_opt is None:
         from .errors import DataError
@@ -290,6 +310,15 @@ def transfer_cmd(
         raise DataError(f"{drift!r}: use auto, yes or no", key="--drift")
     window = _numbers(cld_window, (2,), "--cld-window")
     expected = _numbers(expected_intercept, (1, 2), "--expected-intercept")
+    from .errors import DataError
+
+    if window is not None and not 0 < window[0] < window[1]:
+        raise DataError(f"{cld_window!r}: give M_LOW,M_HIGH in g/mol with 0 < M_LOW < M_HIGH", key="--cld-window")
+    for name, val in (("--expected-intercept", expected), ("--C-M", C_M), ("--kinetic-term", kinetic_term),
+                      ("--impurity-C", impurity_C), ("--rel-error", rel_error)):
+        vals = val if isinstance(val, tuple) else (val,)
+        if any(v is not None and not (v >= 0 and v != float("inf")) for v in vals):
+            raise DataError(f"{', '.join(map(str, vals))} must be finite and not negative [-]", key=name)
     result = analyse_series(
         sheet, method=method, sheet=sheet_name,
         terms=[t.strip() for t in terms.split(",") if t.strip()] if terms else None,
@@ -332,6 +361,11 @@ def diagnose_cmd(
     """Why is the molar mass low? Predict the recipe, compare with the measurements, rank the causes."""
     from .kinetics import run_diagnosis
 
+    _check_out(out)
+    if sample is not None and measured is None:
+        from .errors import InputFormatError
+
+        raise InputFormatError("--sample needs --measured RESULTS.csv to take the sample from", key="--sample")
     d = run_diagnosis(recipe, out, measured_path=measured, sample_id=sample, xlsx=xlsx)
     typer.echo(f"{d.label}: verdict {d.verdict}")
     for i, c in enumerate(d.causes[:3], start=1):
@@ -367,6 +401,7 @@ def demo_cmd(
     """Run the whole job on the bundled sample_runs and compare with the stored true values."""
     from .demo import run_demo
 
+    _check_out(out)
     folder = samples or _sample_runs_dir()
     report = run_demo(folder, out, echo=typer.echo)
     if report["failed"]:
