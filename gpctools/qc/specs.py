@@ -66,6 +66,7 @@ SPEC_FRAME_COLUMNS = (
 )
 _LIMIT_HEADER = re.compile(r"^(?P<q>.+?)\s+(?P<kind>min|max|target)\s*\[(?P<unit>[^\]]*)\]$")
 _UNIT_HEADER = re.compile(r"\[[^\]]*\]\s*$")
+_BARE_LIMIT_HEADER = re.compile(r"^(?P<q>.+?)\s+(?P<kind>min|max|target)\s*(\([^)]*\))?\s*$", re.IGNORECASE)
 
 
 def label_text(value: Any) -> str:
@@ -424,6 +425,18 @@ def specs_from_frame(
             continue
         m = _LIMIT_HEADER.match(c)
         if m is None:
+            bare = _BARE_LIMIT_HEADER.match(c)
+            if bare and bare.group("q").strip().casefold() in {k.casefold() for k in SPEC_QUANTITIES}:
+                q = next(k for k in SPEC_QUANTITIES if k.casefold() == bare.group("q").strip().casefold())
+                unit = "-" if q == "dispersity" else "g/mol"
+                raise InputFormatError(  # without its unit the limit would silently be dropped
+                    f"a limit header needs its unit in square brackets; write '{q} "
+                    f"{bare.group('kind').lower()} [{unit}]'",
+                    path=path,
+                    sheet=sheet,
+                    row=header_row,
+                    column=c,
+                )
             if _UNIT_HEADER.search(c):
                 raise InputFormatError(
                     "a header with a unit must read '<quantity> <min|max|target> [<unit>]' "

@@ -31,7 +31,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from gpctools.errors import MethodError
+from gpctools.errors import DataError, MethodError
 from gpctools.qc import _table as T
 from gpctools.qc.specs import SpecSheet, within
 
@@ -357,6 +357,12 @@ def sequence_suitability(
         for q in ("Mw", "Mn"):
             acol = ASSIGNED[q]
             assigned_all = T.numbers(table, acol)[rows]
+            for i, a in zip(rows, assigned_all):  # a typo must not silently skip the check
+                cell = table[acol].iloc[i] if acol in table.columns else None
+                if T.label_text(cell) and not (np.isfinite(a) and a > 0):
+                    raise DataError(f"check standard {sid[i]}: {T.label_text(cell)!r} is not a molar mass; "
+                                    "give the assigned value as a positive number in g/mol or leave "
+                                    "the cell empty", column=acol)
             finite = assigned_all[np.isfinite(assigned_all)]
             if finite.size == 0:
                 continue

@@ -131,6 +131,9 @@ def _read_results_table(path: Path) -> pd.DataFrame:
     if not path.exists():
         raise InputFormatError("results table not found; give results.csv written by 'gpctools batch'",
                                path=path)
+    from gpctools.io._files import detect_kind, read_bytes
+
+    detect_kind(path, read_bytes(path))  # folder, empty file, image or binary: clear message
     if path.suffix.lower() == ".csv":
         try:
             header = pd.read_csv(path, nrows=0).columns
@@ -138,10 +141,16 @@ def _read_results_table(path: Path) -> pd.DataFrame:
             df = pd.read_csv(path, dtype=dtypes, keep_default_na=True)
         except (pd.errors.ParserError, UnicodeDecodeError, ValueError) as exc:
             raise InputFormatError(f"cannot read the results table: {exc}", path=path) from None
-        return df
-    from gpctools.io import read_sheet
+    else:
+        from gpctools.io import read_sheet
 
-    return read_sheet(path)
+        df = read_sheet(path)
+    if not {"status", "Mn [g/mol]", "Mw [g/mol]"} & {str(c) for c in df.columns}:
+        raise InputFormatError(
+            "not a results table (no 'status', 'Mn [g/mol]' or 'Mw [g/mol]' column); give the "
+            "results.csv written by 'gpctools batch', or give a batch sheet together with "
+            "--method METHOD.toml", path=path)
+    return df
 
 
 def _method_from(method: Any) -> Any:
