@@ -371,10 +371,11 @@ def read_batch_sheet(path: str | Path, *, sheet: str | int | None = None) -> lis
             except ValueError:
                 problem = f"row {rown}: flow marker [mL] must be a number, got {rec[found['flow marker [mL]']]!r}"
         if not sid:
-            problem = problem or f"row {rown}: sample_id is empty"
+            problem = problem or f"row {rown}, column 'sample_id': the cell is empty; give every injection an id"
             sid = f"(row {rown})"
         if not f:
-            problem = problem or f"row {rown}: file is empty"
+            problem = problem or (f"row {rown}, column 'file': the cell is empty; give the path of "
+                                  "the slice export (relative to the batch sheet)")
         fp = (p.parent / f) if f else p.parent
         meta = {str(c): (None if _blank(rec[c]) else _plain(rec[c])) for c in meta_cols}
         if f:

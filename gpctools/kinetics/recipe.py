@@ -487,9 +487,18 @@ def _measured(d: Mapping[str, Any], section: str, path, extra_allowed=()) -> Mea
             key=_where(section, "conversion"),
             path=path,
         )
+    Mn = _num(d, "Mn [g/mol]", section, path, positive=True)
+    Mw = _num(d, "Mw [g/mol]", section, path, positive=True)
+    if Mn is not None and Mw is not None and Mw < Mn:
+        raise MethodError(
+            f"Mw {Mw:g} g/mol is below Mn {Mn:g} g/mol, which no sample can have "
+            "(dispersity Mw/Mn >= 1); check the two values",
+            key=_where(section, "Mw [g/mol]"),
+            path=path,
+        )
     return Measured(
-        Mn=_num(d, "Mn [g/mol]", section, path, positive=True),
-        Mw=_num(d, "Mw [g/mol]", section, path, positive=True),
+        Mn=Mn,
+        Mw=Mw,
         scale=scale,
         R_p=_num(d, "R_p [mol/L/s]", section, path, positive=True),
         time_min=tuple(float(t) for t in times),
