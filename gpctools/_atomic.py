@@ -2,7 +2,7 @@
 
 Every writer in gpctools goes through :func:`atomic_path`: the content is written to a
 temporary file in the destination folder and moved into place with :func:`os.replace`,
-which is atomic on POSIX and Windows for paths on the same file system. A crash or an
+which is atomic on the usual operating systems for paths on the same file system. A crash or an
 exception part-way leaves the previous file (if any) untouched and no partial file.
 """
 

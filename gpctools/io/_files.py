@@ -95,7 +95,7 @@ def detect_kind(path: str | os.PathLike[str], data: bytes) -> str:
     is_ole = data.startswith(_OLE2_MAGIC)
     if is_ole:
         raise InputFormatError(
-            "this is an old binary Excel workbook (.xls) or a password-protected workbook, "
+            "this is an old binary workbook (.xls) or a password-protected workbook, "
             "which gpctools does not read; open it in a spreadsheet program and save it as "
             ".xlsx (without a password) or as CSV",
             path=path,
@@ -116,7 +116,7 @@ def detect_kind(path: str | os.PathLike[str], data: bytes) -> str:
         else:
             what = "not a workbook"
         raise InputFormatError(
-            f"the extension says Excel workbook, but the file is not a zip archive: it is {what}",
+            f"the extension says .xlsx workbook, but the file is not a zip archive: it is {what}",
             path=path,
         )
     if is_zip:
@@ -174,7 +174,7 @@ def decode_text(path: str | os.PathLike[str], data: bytes, encoding: str | None 
     """Decode ``data`` to text.
 
     Order: the explicit ``encoding``; a byte-order mark (UTF-8, UTF-16 LE/BE); UTF-16
-    without a mark (recognised by its NUL bytes); strict UTF-8; Windows-1252; Latin-1
+    without a mark (recognised by its NUL bytes); strict UTF-8; cp1252; Latin-1
     (which accepts any bytes). Newlines are normalised to ``"\\n"``.
     """
     text: str | None = None

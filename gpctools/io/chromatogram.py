@@ -7,7 +7,7 @@ later, in :mod:`gpctools.signal`.
 
 How a text file is read
 -----------------------
-1. The bytes are read once and decoded (BOM, UTF-16 without BOM, UTF-8, Windows-1252,
+1. The bytes are read once and decoded (BOM, UTF-16 without BOM, UTF-8, cp1252,
    Latin-1, in that order; or the ``encoding`` given).
 2. The first :data:`~gpctools.io._text.SCAN_LINES` lines are scanned for the first run of
    numeric lines; the separator (tab, ``;``, ``,``, whitespace) and the decimal mark are

@@ -77,7 +77,7 @@ def read_sheet(path: str | os.PathLike[str], *, sheet: str | int | None = None) 
     ----------
     path : str or os.PathLike
         ``.csv``/``.txt``/``.tsv`` (comma, semicolon or tab, sniffed; UTF-8, UTF-8 with
-        BOM, UTF-16 with BOM, Windows-1252) or ``.xlsx``. Other extensions are decided by
+        BOM, UTF-16 with BOM, cp1252) or ``.xlsx``. Other extensions are decided by
         the content.
     sheet : str or int, optional
         Workbook sheet by name or 0-based index; default the first sheet. Ignored for
