@@ -435,7 +435,7 @@ def correct_signal(
         if hi <= V[0] or lo >= V[-1]:
             raise DataError(
                 f"integration limits {lo:g}-{hi:g} mL lie outside the recorded volumes "
-                f"{V[0]:g}-{V[-1]:g} mL"
+                f"{V[0]:g}-{V[-1]:g} mL; set integration.limits inside them, or to \"auto\""
             )
         limits = (lo, hi)
         auto = False

@@ -697,6 +697,10 @@ def load_recipe(path: str | os.PathLike[str], *, _depth: int = 0) -> Recipe:
             data = tomllib.load(fh)
     except tomllib.TOMLDecodeError as exc:
         raise InputFormatError(f"not valid TOML: {exc}", path=p) from exc
-    except (OSError, UnicodeDecodeError) as exc:
-        raise InputFormatError(f"cannot read recipe: {exc}", path=p) from exc
+    except UnicodeDecodeError:
+        raise InputFormatError(
+            "the recipe is not UTF-8 text (is it the right file?); save it as UTF-8 TOML, "
+            "see templates/recipe.toml", path=p) from None
+    except OSError as exc:
+        raise InputFormatError(f"cannot read recipe: {exc.strerror or exc}", path=p) from None
     return _parse(data, p.parent, p, depth=_depth)
