@@ -19,6 +19,8 @@ import typer
 
 app = typer.Typer(
     add_completion=False,
+    rich_markup_mode=None,
+    pretty_exceptions_enable=False,
     no_args_is_help=True,
     help="SEC/GPC slice exports to molar-mass averages, chain-transfer constants, diagnosis and QC.",
 )
