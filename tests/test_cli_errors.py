@@ -152,3 +152,19 @@ def test_regression_messages_name_no_product(tmp_path):
     with pytest.raises(InputFormatError) as e:
         read_sheet(text_as_xlsx)
     assert "rename it to .csv" in str(e.value) and "Excel" not in str(e.value)
+
+
+def test_regression_spec_sheet_without_product_rows_is_refused(tmp_path):
+    # A header-only spec sheet once gave "no spec" for every sample and exit 0.
+    from typer.testing import CliRunner
+
+    from gpctools.cli import app
+
+    root = Path(__file__).resolve().parent.parent
+    spec = tmp_path / "spec.csv"
+    spec.write_text("product,Mn min [g/mol]\n", encoding="utf-8")
+    r = CliRunner().invoke(app, ["qc", str(root / "sample_runs" / "batch.csv"), "--method",
+                                 str(root / "sample_runs" / "method.toml"), "--specs", str(spec),
+                                 "--out", str(tmp_path / "o")])
+    assert r.exit_code == 2
+    assert "no product rows" in r.output and "Traceback" not in r.output

@@ -413,6 +413,13 @@ def specs_from_frame(
             sheet=sheet,
             row=header_row,
         )
+    if len(frame) == 0:
+        raise InputFormatError(
+            "the spec sheet has a header but no product rows; add one row per product "
+            "with its limits (see templates/spec_limits.csv)",
+            path=path,
+            sheet=sheet,
+        )
     product_col = by_fold["product"]
     limit_cols: list[tuple[str, str, str, str]] = []  # (header, quantity, kind, unit)
     tol_col: str | None = None
