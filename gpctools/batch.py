@@ -350,7 +350,6 @@ def read_batch_sheet(path: str | Path, *, sheet: str | int | None = None) -> lis
     used = set(found.values())
     meta_cols = [c for c in df.columns if c not in used]
     entries = []
-    seen_files: dict[str, int] = {}
     # to_dict("records") is far cheaper than iterrows for long sheets
     for label, rec in zip(df.index, df.to_dict("records")):
         rown = sheet_row_number(df, label)
@@ -363,23 +362,21 @@ def read_batch_sheet(path: str | Path, *, sheet: str | int | None = None) -> lis
         if "role" in found and not _blank(rec[found["role"]]):
             role = _text(rec[found["role"]]).lower().replace(" ", "_").replace("-", "_")
             if role not in ROLES:
-                problem = f"row {rown}: unknown role {role!r}; use one of {', '.join(ROLES)}"
+                problem = f"{p}, row {rown}: unknown role {role!r}; use one of {', '.join(ROLES)}"
         marker = None
         if "flow marker [mL]" in found and not _blank(rec[found["flow marker [mL]"]]):
             try:
                 marker = float(str(rec[found["flow marker [mL]"]]).replace(",", "."))
             except ValueError:
-                problem = f"row {rown}: flow marker [mL] must be a number, got {rec[found['flow marker [mL]']]!r}"
+                problem = f"{p}, row {rown}: flow marker [mL] must be a number, got {rec[found['flow marker [mL]']]!r}"
         if not sid:
-            problem = problem or f"row {rown}, column 'sample_id': the cell is empty; give every injection an id"
+            problem = problem or f"{p}, row {rown}, column 'sample_id': the cell is empty; give every injection an id"
             sid = f"(row {rown})"
         if not f:
-            problem = problem or (f"row {rown}, column 'file': the cell is empty; give the path of "
+            problem = problem or (f"{p}, row {rown}, column 'file': the cell is empty; give the path of "
                                   "the slice export (relative to the batch sheet)")
         fp = (p.parent / f) if f else p.parent
         meta = {str(c): (None if _blank(rec[c]) else _plain(rec[c])) for c in meta_cols}
-        if f:
-            seen_files[f] = seen_files.get(f, 0) + 1
         entries.append(BatchEntry(rown, sid, f, fp, role, marker, meta, problem))
     if not entries:
         raise InputFormatError("the batch sheet has no injection rows", path=p)
