@@ -100,7 +100,13 @@ def _check_out(out: Path) -> None:
 def _progress_bar(total: int, label: str):
     """A rich progress bar on stderr (rich comes with typer); silent when not a terminal."""
     from rich.console import Console
-    from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeRemainingColumn
+    from rich.progress import (
+        BarColumn,
+        MofNCompleteColumn,
+        Progress,
+        TextColumn,
+        TimeRemainingColumn,
+    )
 
     console = Console(stderr=True)
     prog = Progress(
