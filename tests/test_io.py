@@ -412,11 +412,22 @@ def test_headerless_needs_unit(tmp_path: Path) -> None:
     assert read_chromatogram(p2).x_unit == "mL"
 
 
-def test_time_without_unit_needs_x_unit(tmp_path: Path) -> None:
-    p = put(tmp_path, "t.csv", table(header="Time,RI"))
+def test_time_without_unit_read_from_range_or_refused(tmp_path: Path) -> None:
+    # An SEC run lasts minutes to about an hour (common practice): a unitless time column
+    # ending at <= 100 is minutes, at >= 300 seconds, in between it is refused.
+    n = 50
+    minutes = put(tmp_path, "t_min.csv", table(header="Time,RI", x=np.linspace(5.0, 30.0, n), y=np.ones(n)))
+    with pytest.warns(ReaderWarning, match="read as minutes"):
+        c = read_chromatogram(minutes)
+    assert (c.x_kind, c.x_unit) == ("time", "min")
+    assert c.to_volume(1.0)[-1] == pytest.approx(30.0)
+    seconds = put(tmp_path, "t_s.csv", table(header="Time,RI", x=np.linspace(300.0, 1800.0, n), y=np.ones(n)))
+    with pytest.warns(ReaderWarning, match="read as seconds"):
+        assert read_chromatogram(seconds).x_unit == "s"
+    unclear = put(tmp_path, "t_q.csv", table(header="Time,RI", x=np.linspace(20.0, 150.0, n), y=np.ones(n)))
     with pytest.raises(InputFormatError, match="x_unit='min'"):
-        read_chromatogram(p)
-    assert read_chromatogram(p, x_unit="s").x_unit == "s"
+        read_chromatogram(unclear)
+    assert read_chromatogram(unclear, x_unit="s").x_unit == "s"
 
 
 def test_unit_override_warns(tmp_path: Path) -> None:

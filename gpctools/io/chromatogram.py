@@ -454,12 +454,7 @@ def _choose_columns(
                 **err,
             )
         elif header_kind == "time":
-            raise InputFormatError(
-                f"the time column {_display(names, xi)!r} has no unit; give x_unit='min' or "
-                "x_unit='s' (or write the unit in the header, e.g. 'Time (min)')",
-                column=_display(names, xi),
-                **err,
-            )
+            unit = _TIME_UNIT_FROM_RANGE  # decided in _finish from the values, or refused
         else:
             raise InputFormatError(
                 f"the unit of the x column {_display(names, xi)!r} is not known; give "
@@ -486,7 +481,8 @@ def _choose_columns(
             "choose two different columns",
             **err,
         )
-    return xi, yi, UNIT_KIND[unit], unit, notes
+    kind = "time" if unit == _TIME_UNIT_FROM_RANGE else UNIT_KIND[unit]
+    return xi, yi, kind, unit, notes
 
 
 # ============================================================================ text
@@ -714,6 +710,40 @@ def _parse_lines(
 # ============================================================================ shared
 
 
+_TIME_UNIT_FROM_RANGE = "time unit from range"
+
+
+def _time_unit_from_range(x: np.ndarray, xcol: str, notes: list[str], err: dict[str, Any]) -> str:
+    """Unit of a time column whose header gives none, from the retention times themselves.
+
+    SEC runs last minutes to about an hour: a last slice at or below 100 is read as
+    minutes, one at or above 300 as seconds (100 min and 5 min are the plausible ends of a
+    run, so the two readings cannot both fit). In between the file is refused rather than
+    guessed, since the wrong guess is a factor of 60 in volume. The choice is reported as
+    a :class:`ReaderWarning` (common practice: say what was assumed).
+    """
+    last = float(np.max(x))
+    if last <= 100.0:
+        notes.append(
+            f"the time column {xcol!r} has no unit; retention times up to {last:g} read as "
+            "minutes (give x_unit= or write the unit in the header to be explicit)"
+        )
+        return "min"
+    if last >= 300.0:
+        notes.append(
+            f"the time column {xcol!r} has no unit; retention times up to {last:g} read as "
+            "seconds (give x_unit= or write the unit in the header to be explicit)"
+        )
+        return "s"
+    raise InputFormatError(
+        f"the time column {xcol!r} has no unit and its last value {last:g} fits neither "
+        "minutes nor seconds of an SEC run; give x_unit='min' or x_unit='s' (or write the "
+        "unit in the header, e.g. 'Time (min)')",
+        column=xcol,
+        **err,
+    )
+
+
 def _finish(
     path: str | os.PathLike[str],
     x: np.ndarray,
@@ -762,6 +792,8 @@ def _finish(
                     "chromatogram per file with its slices in order"
                 )
             raise InputFormatError(msg, row=here, column=xcol, **err)
+    if x_unit == _TIME_UNIT_FROM_RANGE:
+        x_unit = _time_unit_from_range(x, xcol, notes, err)
     for note in notes:
         _warnings.warn(f"{path}: {note}", ReaderWarning, stacklevel=3)
     return Chromatogram(
