@@ -147,6 +147,25 @@ def test_kt_convention_from_user_table(tmp_path):
     assert predict(r).R_p == pytest.approx(predict(recipe()).R_p, rel=1e-12)
 
 
+def test_regression_user_monomer_C_M_without_temperature(tmp_path):
+    # a user monomer row with C_M but no 'C_M T [°C]' used to end in a TypeError while
+    # the source text was formatted; now C_M is used as given, with a note.
+    user = tmp_path / "monomers.csv"
+    user.write_text("name,M0 [g/mol],k_p A [L/mol/s],k_p E [kJ/mol],C_M [-],C_M source\n"
+                    "test monomer,100,1e7,30,7e-5,test\n")
+    r = Recipe.from_dict({
+        "T [°C]": 60.0,
+        "monomer": {"name": "test monomer", "concentration [mol/L]": 6.0},
+        "initiator": {"name": "AIBN", "concentration [mol/L]": 0.02},
+        "termination": {"k_t [L/mol/s]": 1e7, "delta [-]": 0.5},
+        "data_files": {"monomers": str(user)},
+    })
+    p = resolve_parameters(r)
+    # the user's value itself, passed through unchanged (exact)
+    assert p.C_M == 7e-5
+    assert "without its temperature" in " ".join(p.notes)
+
+
 def test_dispersity_limits_and_mixed_case():
     # published: Schulz-Zimm b = 1 (most probable) D = 2, b = 2 (combination) D = 1.5
     # (IUPAC Gold Book; SCIENCE §8). Exact.

@@ -317,12 +317,20 @@ def resolve_parameters(recipe: Recipe, ref: ReferenceData | None = None) -> Kine
         sources["C_M"] = "recipe"
     elif mon is not None and mon.C_M is not None:
         C_M = mon.C_M
-        sources["C_M"] = f"{mon.C_M_source} (at {mon.C_M_T:g} °C)"
-        if mon.C_M_T is not None and abs(mon.C_M_T + 273.15 - T) > 5.0:
+        if mon.C_M_T is None:
+            # a user table may give C_M without 'C_M T [°C]'
+            sources["C_M"] = mon.C_M_source
             notes.append(
-                f"C_M of {name} is tabulated at {mon.C_M_T:g} °C and used unchanged at "
+                f"C_M of {name} is tabulated without its temperature and used unchanged at "
                 f"{T - 273.15:g} °C"
             )
+        else:
+            sources["C_M"] = f"{mon.C_M_source} (at {mon.C_M_T:g} °C)"
+            if abs(mon.C_M_T + 273.15 - T) > 5.0:
+                notes.append(
+                    f"C_M of {name} is tabulated at {mon.C_M_T:g} °C and used unchanged at "
+                    f"{T - 273.15:g} °C"
+                )
     else:
         C_M = 0.0
         sources["C_M"] = "assumed 0 (not tabulated)"
