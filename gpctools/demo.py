@@ -128,7 +128,40 @@ def write_sample_runs(folder: str | Path) -> dict[str, Any]:
     write_text(folder / "batch.csv", "\n".join(rows) + "\n")
     write_text(folder / "truth.csv", "\n".join(truth_rows) + "\n")
     write_text(folder / "method.toml", _METHOD_TOML)
+    _write_history(folder / "history")
     return truth
+
+
+# Earlier sequences of the demo lab (invented): product, Mw target [g/mol], dispersity target [-]
+_HISTORY_PRODUCTS = (("LC-110", 100_500.0, 1.62), ("LC-180", 214_500.0, 2.05), ("LC-260", 198_300.0, 1.417))
+
+
+def _write_history(folder: Path) -> list[Path]:
+    """Results tables of six earlier sequences (invented, seeded) for the control charts.
+
+    Each holds four production batches per grade with Mw scattered by 1.2 % and
+    dispersity by 0.8 % around the grade's usual values, plus the check standard. They
+    stand for what earlier ``gpctools batch`` runs wrote; only the columns QC reads are kept.
+    """
+    rng = np.random.default_rng(2603)  # a seed whose history breaks no run rule by itself
+    head = "sample_id,file,role,product,batch,sequence,status,Mn [g/mol],Mw [g/mol],dispersity [-],warnings,error"
+    paths = []
+    lot = 1
+    for k, seq in enumerate(("SEQ-2609-A", "SEQ-2609-B", "SEQ-2609-C", "SEQ-2610-A", "SEQ-2610-B", "SEQ-2610-C")):
+        lines = [head]
+        for _ in range(4):
+            for product, mw0, d0 in _HISTORY_PRODUCTS:
+                mw = mw0 * (1 + 0.012 * rng.standard_normal())
+                d = d0 * (1 + 0.008 * rng.standard_normal())
+                batch = f"B26{lot:02d}"
+                lot += 1
+                lines.append(f"{batch}-1,exports/{batch}-1.csv,sample,{product},{batch},{seq},ok,"
+                             f"{mw / d:.0f},{mw:.0f},{d:.4f},,")
+        mw = 231_862.0 * (1 + 0.006 * rng.standard_normal())
+        d = 2.1 * (1 + 0.005 * rng.standard_normal())
+        lines.append(f"CHK-BR1,exports/CHK-{k}.csv,check_standard,check,,{seq},ok,{mw / d:.0f},{mw:.0f},{d:.4f},,")
+        paths.append(write_text(folder / f"results_{seq}.csv", "\n".join(lines) + "\n"))
+    return paths
 
 
 _METHOD_TOML = """# Method of the demo lab (invented): polystyrene in THF, 1.0 mL/min, 10 narrow PS standards.
@@ -221,12 +254,16 @@ def _demo_qc(folder: Path, out: Path, result, echo: Callable[[str], None]) -> di
     """QC report of the demo batch against the demo lab's spec limits."""
     from .report import run_qc
 
-    rep = run_qc(result, folder / "spec_limits.csv", out / "qc", method=result.method)
+    history = sorted((folder / "history").glob("results_*.csv"))
+    rep = run_qc(result, folder / "spec_limits.csv", out / "qc", method=result.method, history=history)
     echo("\nQC against sample_runs/spec_limits.csv:")
     for b in rep.result.decisions.batches:
         echo(f"  batch {b.batch}: {b.decision}" + (f" ({'; '.join(b.reasons)})" if b.decision != "pass" else ""))
     for s in rep.result.suitability:
         echo(f"  sequence {s.sequence}: system suitability {'pass' if s.passed else 'FAIL'}")
+    for chart in rep.result.trends:
+        for v in chart.violations:
+            echo(f"  trend {chart.group} {chart.quantity}: {v.label} breaks {v.rule} ({v.description})")
     echo(f"QC report written to {out / 'qc'} (qc_report.html, qc_report.xlsx, plots/)")
     return {"batches": {b.batch: b.decision for b in rep.result.decisions.batches}}
 
