@@ -21,13 +21,11 @@ from typing import Any
 import numpy as np
 
 from gpctools.errors import DataError, DesignError
+from gpctools.refdata import R_GAS
 from gpctools.transfer._stats import finite_or_none, t_quantile, weighted_linear_fit
 from gpctools.transfer.mayo import FittedValue
 
 __all__ = ["ArrheniusFit", "fit_arrhenius", "R_GAS"]
-
-#: Molar gas constant [J/(mol K)] (CODATA 2018 exact value).
-R_GAS = 8.314462618
 
 
 @dataclass(frozen=True)

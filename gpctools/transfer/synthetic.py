@@ -26,6 +26,8 @@ from typing import Any
 
 import numpy as np
 
+from gpctools.refdata import R_GAS
+
 __all__ = [
     "mayo_lambda",
     "most_probable",
@@ -310,11 +312,10 @@ standards = "standards.csv"
 
 
 def _demo_C(T_C: float) -> float:
-    R = 8.314462618
     T = T_C + 273.15
     T60 = 333.15
     dE = DEMO_TRUTH["dE [kJ/mol]"] * 1e3
-    return DEMO_TRUTH["C_A at 60 °C [-]"] * math.exp(-dE / R * (1 / T - 1 / T60))
+    return DEMO_TRUTH["C_A at 60 °C [-]"] * math.exp(-dE / R_GAS * (1 / T - 1 / T60))
 
 
 #: Slices per simulated chromatogram of the demo (8 to 26 mL).
