@@ -30,7 +30,7 @@ from typing import Any
 
 import numpy as np
 
-from .distribution import Distribution, averages, compute_distribution, peak_position
+from .distribution import Distribution, averages, compute_distribution, peak_position, slice_widths
 from .errors import DataError, GpcError, GpcWarning, InputFormatError
 from .method import Method
 from .signal import CorrectedSignal, correct_signal
@@ -219,9 +219,11 @@ def process_trace(
         # Sensitivity of Mn and Mw to the low-M (late) integration limit.
         shifted = cs.mask & (V <= cs.limits[1] - method.limit_shift)
         try:
-            from .distribution import slice_widths
-
-            wts = cs.signal[shifted] * slice_widths(V)[shifted]
+            # Widths need increasing volumes; give them back in the caller's slice order.
+            order = np.argsort(V, kind="stable")
+            dV = np.empty_like(V)
+            dV[order] = slice_widths(V[order])
+            wts = cs.signal[shifted] * dV[shifted]
             alt = averages(method.calibration.M(V[shifted]), wts)
             mn_shift = 100.0 * (alt["Mn"] / dist.Mn - 1.0)
             mw_shift = 100.0 * (alt["Mw"] / dist.Mw - 1.0)

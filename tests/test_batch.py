@@ -12,7 +12,7 @@ import pandas as pd
 import pytest
 
 from gpctools import simulate
-from gpctools.batch import process_injection, read_batch_sheet, run_batch
+from gpctools.batch import process_injection, process_trace, read_batch_sheet, run_batch
 from gpctools.demo import write_sample_runs
 from gpctools.errors import InputFormatError
 from gpctools.method import load_method
@@ -50,7 +50,10 @@ def test_demo_batch_matches_truth_within_1_percent(demo_dir, tmp_path):
 def test_bundled_sample_runs_are_what_the_generator_writes(tmp_path):
     # Guards against a hand edit of sample_runs/ drifting from truth.csv.
     write_sample_runs(tmp_path)
-    for name in ("batch.csv", "truth.csv", "method.toml", "standards.csv"):
+    names = ["batch.csv", "truth.csv", "method.toml", "standards.csv"]
+    names += [f"history/{p.name}" for p in sorted((tmp_path / "history").glob("*.csv"))]
+    assert len(names) == 10
+    for name in names:
         assert (tmp_path / name).read_text() == (ROOT / "sample_runs" / name).read_text(), name
 
 
@@ -146,3 +149,22 @@ def test_low_m_tail_raises_mn_sensitivity(tmp_path):
     r_clean = process_injection(tmp_path / "c.csv", m)
     assert abs(r_tail.Mn_shift_pct) > 5 * abs(r_clean.Mn_shift_pct)
     assert abs(r_tail.Mn_shift_pct) > 3 * abs(r_tail.Mw_shift_pct)
+
+
+def test_regression_limit_shift_with_decreasing_volumes(tmp_path):
+    # process_trace accepts slices in any order (as correct_signal and compute_distribution
+    # do); the Mn/Mw limit sensitivity used to come out NaN for decreasing volumes because
+    # the slice widths were taken on the unsorted axis. Same trace reversed, same answer
+    # (derived: the sums do not depend on slice order); 1e-9 relative allows summation order.
+    mtext = (ROOT / "templates" / "method.toml").read_text()
+    (tmp_path / "method.toml").write_text(mtext)
+    shutil.copy(ROOT / "templates" / "standards.csv", tmp_path / "standards.csv")
+    m = load_method(tmp_path / "method.toml")
+    m = type(m)(**{**m.__dict__, "marker_search": None, "marker_reference": None})
+    V, h = simulate.chromatogram(simulate.schulz_zimm(80_000, 2.0), simulate.default_calibration(),
+                                 noise=0.02, seed=3)
+    up = process_trace(V, h, m)
+    down = process_trace(V[::-1], h[::-1], m)
+    assert np.isfinite(up.Mn_shift_pct) and np.isfinite(up.Mw_shift_pct)
+    assert down.Mn_shift_pct == pytest.approx(up.Mn_shift_pct, rel=1e-9, abs=1e-12)
+    assert down.Mw_shift_pct == pytest.approx(up.Mw_shift_pct, rel=1e-9, abs=1e-12)
