@@ -30,7 +30,14 @@ from typing import Any
 
 import numpy as np
 
-from .distribution import Distribution, averages, compute_distribution, peak_position, slice_widths
+from .distribution import (
+    TABLE_COLUMNS,
+    Distribution,
+    averages,
+    compute_distribution,
+    peak_position,
+    slice_widths,
+)
 from .errors import DataError, GpcError, GpcWarning, InputFormatError
 from .method import Method
 from .signal import CorrectedSignal, correct_signal
@@ -443,10 +450,6 @@ def _distribution_name(entry: BatchEntry) -> str:
     return f"{_safe_name(entry.sample_id)}_row{entry.row}.csv"
 
 
-_DIST_HEADER = ("volume [mL]", "M [g/mol]", "log10 M [-]", "mass fraction [-]", "dw/dlogM [-]",
-                "cumulative mass fraction [-]")
-
-
 def write_distribution(path: str | Path, dist: Distribution) -> Path:
     """Write one distribution table as CSV (8 significant digits), atomically.
 
@@ -458,7 +461,7 @@ def write_distribution(path: str | Path, dist: Distribution) -> Path:
     cols = np.column_stack([dist.volume, dist.M, np.log10(dist.M), dist.w, dist.dwdlogM, dist.cumulative])
     line = ",".join(["%.8g"] * cols.shape[1]) + "\n"
     body = (line * cols.shape[0]) % tuple(cols.ravel().tolist())
-    return write_text(path, ",".join(_DIST_HEADER) + "\n" + body)
+    return write_text(path, ",".join(TABLE_COLUMNS) + "\n" + body)
 
 
 def _safe_name(text: str) -> str:

@@ -38,6 +38,17 @@ from .signal import _as_trace
 __all__ = ["Distribution", "averages", "compute_distribution", "slice_widths", "peak_position"]
 
 
+#: Column names of :meth:`Distribution.table` and of the per-injection distribution CSV.
+TABLE_COLUMNS = (
+    "volume [mL]",
+    "M [g/mol]",
+    "log10 M [-]",
+    "mass fraction [-]",
+    "dw/dlogM [-]",
+    "cumulative mass fraction [-]",
+)
+
+
 def slice_widths(volume: Any) -> np.ndarray:
     """Midpoint widths ΔV_i of slices centred at increasing volumes V_i [mL]."""
     V = np.asarray(volume, dtype=float)
@@ -187,16 +198,8 @@ class Distribution:
         """The distribution as a pandas DataFrame with unit-named columns."""
         import pandas as pd
 
-        return pd.DataFrame(
-            {
-                "volume [mL]": self.volume,
-                "M [g/mol]": self.M,
-                "log10 M [-]": np.log10(self.M),
-                "mass fraction [-]": self.w,
-                "dw/dlogM [-]": self.dwdlogM,
-                "cumulative mass fraction [-]": self.cumulative,
-            }
-        )
+        columns = (self.volume, self.M, np.log10(self.M), self.w, self.dwdlogM, self.cumulative)
+        return pd.DataFrame(dict(zip(TABLE_COLUMNS, columns)))
 
 
 def compute_distribution(
