@@ -610,6 +610,24 @@ def test_analyse_series_end_to_end_from_measured_averages(tmp_path):
     assert json.dumps(res.summary()) == json.dumps(analyse_series(p, impurity_C=15.0).summary())
 
 
+def test_regression_plots_of_groups_with_clashing_file_names_are_all_written(tmp_path):
+    # "DDM/St" and "DDM St" both make the file name "DDM_St": the second Mayo plot used to
+    # overwrite the first.
+    rows = []
+    for label, prefix in (("DDM/St", "a"), ("DDM St", "b")):
+        for r in _series_rows(xs=None):
+            r.update({"series": label, "run": prefix + r["run"]})
+            rows.append(r)
+    res = analyse_series(series=run_series_from_rows(rows))
+    assert len(res.groups) == 2
+    from gpctools.transfer.plots import write_plots
+
+    paths = write_plots(res, tmp_path / "plots")
+    mayo = sorted(k for k in paths if k.startswith("plots/mayo_"))
+    assert len(mayo) == 2
+    assert all(paths[k].exists() for k in mayo)
+
+
 def test_analyse_series_low_conversion_without_drift_column(tmp_path):
     rows = _series_rows(xs=None)
     res = analyse_series(_write_rows(tmp_path / "s.csv", rows))

@@ -156,21 +156,32 @@ def plot_arrhenius(label: dict[str, str], fit: Any, path: str | Path) -> Path:
         plt.close(fig)
 
 
+def _unique(name: str, seen: set[str]) -> str:
+    """``name``, or ``name_2``, ``name_3``, ... when an earlier plot already has it."""
+    out, k = name, 2
+    while out in seen:
+        out, k = f"{name}_{k}", k + 1
+    seen.add(out)
+    return out
+
+
 def write_plots(result: Any, folder: str | Path) -> dict[str, Path]:
-    """All plots of a TransferResult into ``folder``; returns name -> path."""
+    """All plots of a TransferResult into ``folder``; returns name -> path.
+
+    File names come from the group labels and the agents; labels that give the same file
+    name (e.g. ``"DDM/St"`` and ``"DDM St"``) get ``_2``, ``_3``, ... so no plot is lost.
+    """
     folder = Path(folder)
     out: dict[str, Path] = {}
+    groups: set[str] = set()
     for g in result.groups:
-        name = _safe(g.label)
+        name = _unique(_safe(g.label), groups)
         out[f"plots/mayo_{name}.png"] = plot_mayo(result, g, folder / f"mayo_{name}.png")
         p = plot_lnP(result, g, folder / f"lnP_{name}.png")
         if p is not None:
             out[f"plots/lnP_{name}.png"] = p
-    seen = set()
+    fits: set[str] = set()
     for lbl, fit in result.arrhenius:
-        name = _safe(f"{lbl['agent']}_{lbl['term']}_{lbl['estimator']}")
-        if name in seen:
-            continue
-        seen.add(name)
+        name = _unique(_safe(f"{lbl['agent']}_{lbl['term']}_{lbl['estimator']}"), fits)
         out[f"plots/arrhenius_{name}.png"] = plot_arrhenius(lbl, fit, folder / f"arrhenius_{name}.png")
     return out
