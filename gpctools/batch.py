@@ -621,9 +621,8 @@ def write_batch_outputs(result: BatchResult, outdir: str | Path, *, distribution
     if distributions:
         for entry, res in zip(result.entries, result.injections):
             if res is not None:
-                paths[f"distributions/{entry.sample_id}"] = write_distribution(
-                    out / "distributions" / _distribution_name(entry), res.distribution
-                )
+                name = _distribution_name(entry)  # unique per row: replicates keep their own key
+                paths[f"distributions/{name}"] = write_distribution(out / "distributions" / name, res.distribution)
     manifest = {
         "gpctools": __version__,
         "batch sheet": result.sheet,

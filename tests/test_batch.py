@@ -168,3 +168,19 @@ def test_regression_limit_shift_with_decreasing_volumes(tmp_path):
     assert np.isfinite(up.Mn_shift_pct) and np.isfinite(up.Mw_shift_pct)
     assert down.Mn_shift_pct == pytest.approx(up.Mn_shift_pct, rel=1e-9, abs=1e-12)
     assert down.Mw_shift_pct == pytest.approx(up.Mw_shift_pct, rel=1e-9, abs=1e-12)
+
+
+def test_regression_replicate_distributions_each_in_written_paths(demo_dir, tmp_path):
+    # Replicate injections share a sample_id; the returned path mapping used to be keyed
+    # by sample_id, so all but the last replicate's distribution fell out of it.
+    d = tmp_path / "b"
+    shutil.copytree(demo_dir, d)
+    sheet = d / "batch.csv"
+    sheet.write_text(sheet.read_text() + "LC110-A1,exports/LC110-A1.csv,sample,,,,,\n")
+    res = run_batch(sheet, load_method(d / "method.toml"))
+    ids = [e.sample_id for e, r in zip(res.entries, res.injections) if r is not None]
+    assert len(ids) == len(set(ids)) + 1  # one replicate injection added above
+    paths = res.write(tmp_path / "o")
+    written = [p for k, p in paths.items() if k.startswith("distributions/")]
+    assert len(written) == len(ids)
+    assert sorted(written) == sorted((tmp_path / "o" / "distributions").glob("*.csv"))
