@@ -144,6 +144,8 @@ class GroupResult:
     terms : tuple of str
     agents : dict
         Term -> agent name for labels.
+    monomer : str
+        Monomer of the runs (or ``"M0 = ... g/mol"``; several joined by commas).
     run_ids : tuple of str
         Runs of the group with role ``run``.
     excluded : tuple of str

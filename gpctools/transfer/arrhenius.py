@@ -51,10 +51,13 @@ class ArrheniusFit:
     fitted : numpy.ndarray
         Model C at each T [-].
     dof : int
+        Degrees of freedom n - 2.
     redchi : float
+        Reduced chi-square [-].
     weighted : bool
         True when the C standard errors were used as weights.
     confidence : float
+        Level of the intervals [-].
     warnings : tuple of str
     """
 

@@ -282,12 +282,17 @@ class DriftFit:
         Term -> False when every run has (1 − x)^C < ``IDENTIFIABILITY_LIMIT``.
     run_ids : tuple of str
     conversion : numpy.ndarray
+        Monomer conversion per run [-].
     y, fitted : numpy.ndarray
         Observed and model cumulative 1/DPn (or 2M0/Mw, or Λ) [-].
     covariance : numpy.ndarray
+        Covariance of (1/DPn0, then the constants) [-].
     dof : int
+        Degrees of freedom n - p.
     redchi : float
+        Reduced chi-square [-].
     confidence : float
+        Level of the intervals [-].
     success : bool
     message : str
     warnings : tuple of str

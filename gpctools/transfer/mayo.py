@@ -329,18 +329,18 @@ class MayoFit:
     DPn0 : FittedValue
         1/intercept with propagated standard error se(a)/a^2 and the inverted interval [-].
     covariance : numpy.ndarray
-        Covariance of (intercept if free, then terms).
+        Covariance of (intercept if free, then terms) [-].
     run_ids : tuple of str
     design : numpy.ndarray
         Term columns, shape (n, len(terms)) [-].
     y, fitted : numpy.ndarray
         Observed and fitted 1/DPn (or Λ) per run [-].
     weights : numpy.ndarray
-        Residual weights used (1/sigma up to a common factor).
+        Residual weights used (1/sigma up to a common factor) [-].
     dof : int
         Degrees of freedom n - p.
     redchi : float
-        Reduced chi-square of the weighted fit.
+        Reduced chi-square of the weighted fit [-].
     relative_scatter : float
         Estimated relative error of one 1/DPn (sqrt(redchi) with relative weights) [-].
     confidence : float
