@@ -283,31 +283,29 @@ def fit_baseline(
     slope, intercept, noise = _line_through_windows(V, h, guess)
     sigma = noise_level(h[valid]) if noise is None else float(noise)
     ref_scale = float(np.max(np.abs(h)))
-    chosen = guess
-    for _ in range(1):
-        corrected = h - (intercept + slope * V)
-        start, _ipk, end = _peak_region(V, corrected, valid, sigma, ref_scale)
-        gap = 0.1 * (V[end] - V[start])
-        # Preferred: just outside the feet with a gap; else touching the feet; else the
-        # record ends (a foot found at 1e-6 of a noise-free peak can reach the record end).
-        before = (_place_window(V, valid, V[start] - gap, width, -1)
-                  or _place_window(V, valid, V[start], width, -1)
-                  or _place_window(V, valid, V[0], width, +1))
-        after = (_place_window(V, valid, V[end] + gap, width, +1)
-                 or _place_window(V, valid, V[end], width, +1)
-                 or _place_window(V, valid, V[-1], width, -1))
-        if before is None:
-            raise DataError(
-                f"no signal-free room for a baseline window before the peak (it starts at "
-                f"{V[start]:.3g} mL, the record at {V[0]:.3g} mL); give baseline.windows"
-            )
-        if after is None:
-            raise DataError(
-                f"no signal-free room for a baseline window after the peak (it ends at "
-                f"{V[end]:.3g} mL, the record at {V[-1]:.3g} mL); give baseline.windows"
-            )
-        chosen = (before, after)
-        slope, intercept, noise = _line_through_windows(V, h, chosen)
+    corrected = h - (intercept + slope * V)
+    start, _ipk, end = _peak_region(V, corrected, valid, sigma, ref_scale)
+    gap = 0.1 * (V[end] - V[start])
+    # Preferred: just outside the feet with a gap; else touching the feet; else the
+    # record ends (a foot found at 1e-6 of a noise-free peak can reach the record end).
+    before = (_place_window(V, valid, V[start] - gap, width, -1)
+              or _place_window(V, valid, V[start], width, -1)
+              or _place_window(V, valid, V[0], width, +1))
+    after = (_place_window(V, valid, V[end] + gap, width, +1)
+             or _place_window(V, valid, V[end], width, +1)
+             or _place_window(V, valid, V[-1], width, -1))
+    if before is None:
+        raise DataError(
+            f"no signal-free room for a baseline window before the peak (it starts at "
+            f"{V[start]:.3g} mL, the record at {V[0]:.3g} mL); give baseline.windows"
+        )
+    if after is None:
+        raise DataError(
+            f"no signal-free room for a baseline window after the peak (it ends at "
+            f"{V[end]:.3g} mL, the record at {V[-1]:.3g} mL); give baseline.windows"
+        )
+    chosen = (before, after)
+    slope, intercept, noise = _line_through_windows(V, h, chosen)
     return Baseline(chosen, slope, intercept, noise, automatic=True)
 
 
