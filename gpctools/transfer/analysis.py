@@ -335,15 +335,12 @@ def _estimate_runs(series: RunSeries, method: Any, *, cld_window: Any, cld_fract
                    want_cld: bool) -> list[RunEstimate]:
     out = []
     for run in series.runs:
-        if run.role == "skip":
+        if run.role == "skip" or run.file is None:
+            # the sheet's own averages (none for a skipped run without them)
             out.append(RunEstimate(run, run.Mn, run.Mw, run.scale, None, None, None,
                                    float("nan"), "", ()))
             continue
         notes: list[str] = []
-        if run.file is None:
-            out.append(RunEstimate(run, run.Mn, run.Mw, run.scale, None, None, None,
-                                   float("nan"), "", ()))
-            continue
         from gpctools.batch import process_injection
 
         try:

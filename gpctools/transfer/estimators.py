@@ -243,15 +243,13 @@ def cld_slope(
     if not np.isfinite(se):
         se = float("nan")
     warns: list[str] = []
-    if npts >= 4:
-        coef2, cov2 = ols_with_cov(u, lnp, 2)
-        # local slope d lnP/du = 2 c2 u + c1; Λ(u) = −M0/xs (2 c2 u + c1)
-        span_u = (x.max() - x.min()) / xs
-        if Lam != 0 and np.isfinite(Lam):
-            curv = 2.0 * coef2[0] * span_u * (M0 / xs) / Lam
-            curv_se = abs(2.0 * span_u * (M0 / xs) / Lam) * np.sqrt(max(cov2[0, 0], 0.0))
-        else:
-            curv, curv_se = float("nan"), float("nan")
+    # quadratic in the same window (npts >= MIN_WINDOW_POINTS > 3 points): local slope
+    # d lnP/du = 2 c2 u + c1, so Λ(u) = −M0/xs (2 c2 u + c1)
+    coef2, cov2 = ols_with_cov(u, lnp, 2)
+    span_u = (x.max() - x.min()) / xs
+    if Lam != 0 and np.isfinite(Lam):
+        curv = 2.0 * coef2[0] * span_u * (M0 / xs) / Lam
+        curv_se = abs(2.0 * span_u * (M0 / xs) / Lam) * np.sqrt(max(cov2[0, 0], 0.0))
     else:
         curv, curv_se = float("nan"), float("nan")
     if not np.isfinite(Lam) or Lam <= 0:
