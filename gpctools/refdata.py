@@ -277,6 +277,8 @@ class Initiator:
 
     Attributes
     ----------
+    M : float or None
+        Molar mass of the initiator [g/mol].
     k_d_ref : float
         Decomposition rate coefficient [1/s] at ``T_ref`` [°C].
     E_d : float
@@ -360,6 +362,8 @@ class Termination:
     k_t : float
         As tabulated [L/mol/s], in ``convention``.
     convention : {"IUPAC 2kt", "kt"}
+    T : float or None
+        Temperature of the tabulated k_t [°C].
     delta : float or None
         δ = k_td/k_t, fraction of terminations by disproportionation [-].
     """
