@@ -330,6 +330,14 @@ def select_order(volume: Sequence[float], Mp: Sequence[float], orders: Sequence[
     n > k + 1 with k = order + 2 fitted quantities), and its slope is monotonic
     (negative) over the calibrated range. Choosing by R² alone always picks the highest
     order (SCIENCE.md section 2: "choose the order by an information criterion").
+
+    For Gaussian residuals in log10 M, AICc = n·ln(RSS/n) + 2k + 2k(k+1)/(n - k - 1)
+    with k = order + 2 (coefficients plus the variance) [3]_.
+
+    References
+    ----------
+    .. [3] C. M. Hurvich, C.-L. Tsai, "Regression and time series model selection in
+       small samples", Biometrika 76 (1989) 297.
     """
     V, logM, _ = _clean_standards(volume, Mp, None)
     best, best_aicc = None, math.inf

@@ -219,7 +219,7 @@ def compute_distribution(
         Elution volumes of all slices [mL] (sorted internally; ``signal`` and ``mask``
         follow the same order as ``volume``).
     signal : array_like
-        Baseline-corrected concentration-detector response h.
+        Baseline-corrected concentration-detector response h [signal units].
     calibration : Calibration
         log10 M(V) and its Jacobian.
     mask : array_like of bool, optional
@@ -231,7 +231,7 @@ def compute_distribution(
         them from the averages. Either way their mass fraction is reported.
     outside_warn_pct : float
         Warn when more than this mass percentage elutes outside the calibrated range
-        (common practice: 1 %).
+        [% mass] (common practice: 1 %).
 
     Returns
     -------

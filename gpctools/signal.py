@@ -241,7 +241,7 @@ def fit_baseline(
     volume : array_like
         Elution volume of each slice, increasing [mL].
     signal : array_like
-        Raw detector response.
+        Raw detector response [signal units].
     windows : pair of (start, end), optional
         Signal-free windows [mL], one before and one after the polymer peak. When
         omitted they are chosen automatically: the main peak is located on the smoothed
@@ -395,7 +395,7 @@ def correct_signal(
         Elution volumes [mL] (any order; the work is done in order of increasing volume
         and the corrected signal and mask are returned in the order given).
     signal : array_like
-        Raw detector response.
+        Raw detector response [signal units].
     windows : pair of (start, end), optional
         Baseline windows [mL]; automatic when omitted (see :func:`fit_baseline`).
     limits : (low, high), optional

@@ -206,7 +206,7 @@ def chromatogram(
         Linear drift [signal units per mL], zero at the first slice.
     noise : float
         SD of added Gaussian white noise [signal units].
-    extra_peaks : sequence of (centre [mL], SD [mL], height)
+    extra_peaks : sequence of (centre [mL], SD [mL], height [signal units])
         Gaussian peaks added on top (solvent, system or flow-marker peaks).
     seed : int, optional
         Seed of the noise generator (reproducible data).
