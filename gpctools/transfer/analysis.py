@@ -262,6 +262,8 @@ class TransferResult:
                  model: str | None = None, group: str | None = None) -> FittedValue:
         """A fitted constant; by default the preferred estimator and model of the group."""
         g = self.group(group)
+        if term not in g.terms:
+            raise KeyError(f"no term {term!r} in {g.label}; fitted: {', '.join(g.terms)}")
         if estimator is None or model is None:
             pe, pm = g.preferred[term]
             estimator = estimator or pe
