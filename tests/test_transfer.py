@@ -565,6 +565,19 @@ def test_sheet_accepts_ratios_percent_conversion_and_kelvin(tmp_path):
     assert s.runs[0].T_C == pytest.approx(60.0)
 
 
+def test_regression_unitless_temperature_in_kelvin_is_refused(tmp_path):
+    # "T" = 333 once passed the -100..400 °C check as 333 °C; polymerizations above 200 °C
+    # under a unitless header are far more likely kelvin (common practice: ask, not guess).
+    rows = [{"run": f"R{i}", "M0 [g/mol]": 100.12, "ratio [A]/[M] [-]": i * 1e-3,
+             "T": 333.15, "Mw [g/mol]": 50000} for i in range(4)]
+    with pytest.raises(DataError, match="looks like kelvin") as e:
+        read_run_series(_write_rows(tmp_path / "r.csv", rows))
+    assert e.value.column == "T"
+    for r in rows:
+        r["T"] = 60.0
+    assert read_run_series(_write_rows(tmp_path / "r.csv", rows)).runs[0].T_C == pytest.approx(60.0)
+
+
 def _series_rows(C=C_DDM_STYRENE_60, xs=None, impurity=None, seed=21, noise=0.01):
     rows = simulate_series(RATIOS, C_A=C, inv_DPn0=INV_DPN0, M0=M0_STYRENE, conversion=xs,
                            rel_noise=noise, seed=seed, impurity=impurity)

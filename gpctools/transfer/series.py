@@ -492,6 +492,12 @@ def run_series_from_rows(
             tk = R.num(cols.get("T_K"), positive=True)
             if math.isfinite(tk):
                 T_C = tk - 273.15
+        t_head = cols.get("T_C")
+        if (math.isfinite(T_C) and T_C >= 200 and t_head is not None
+                and t_head.strip().casefold() in ("t", "temperature")):
+            # a header with no unit: 333 is far more likely 60 °C written in kelvin
+            raise R.err(f"temperature {T_C:g} under a header without a unit looks like kelvin; "
+                        "write the unit in the header: 'T [K]' or 'T [°C]'", t_head)
         if math.isfinite(T_C) and not (-100 < T_C < 400):
             raise R.err(f"temperature {T_C:g} °C is outside -100..400 °C (a unit mix-up?)",
                         cols.get("T_C") or cols.get("T_K"))
