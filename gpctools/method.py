@@ -65,7 +65,7 @@ from pathlib import Path
 from typing import Any
 
 from .calibration import Calibration, fit_calibration
-from .errors import CalibrationError, GpcError, MethodError
+from .errors import CalibrationError, MethodError
 
 if sys.version_info >= (3, 11):
     import tomllib
@@ -284,7 +284,7 @@ def _build(data: dict[str, Any], base: Path, source: str | None) -> Method:
                 raise _err("must be an encoding name such as 'utf-8' or 'utf-16'", key, source)
             opts[k] = v
     import_options = ImportOptions(**opts)
-    settings["import"] = {k: (v if not isinstance(v, str) else v) for k, v in opts.items()}
+    settings["import"] = dict(opts)
 
     flow = _section(data, "flow", source)
     flow_rate = _number(flow["rate"], "flow.rate", source, positive=True) if "rate" in flow else None
@@ -472,8 +472,6 @@ def _build_calibration(data, base, source, flow_rate, res_pct, sample_polymer, s
             )
     except CalibrationError as exc:
         raise MethodError(exc.message, path=source, key="calibration") from None
-    except GpcError:
-        raise
     settings["calibration order"] = calibration.order
     settings["standard polymer"] = std_polymer
     settings["molar-mass scale"] = calibration.scale_label()
