@@ -377,9 +377,9 @@ def _clean_standards(volume, Mp, names):
         raise CalibrationError("standards table: the number of names differs from the number of standards")
     for i, (v, m) in enumerate(zip(V, M)):
         if not (math.isfinite(v) and v > 0):
-            raise CalibrationError(f"standard {names[i]!r}: peak volume must be a positive number in mL, got {v!r}")
+            raise CalibrationError(f"standard {names[i]!r}: peak volume must be a positive number in mL, got {float(v)!r}")
         if not (math.isfinite(m) and m > 0):
-            raise CalibrationError(f"standard {names[i]!r}: Mp must be a positive number in g/mol, got {m!r}")
+            raise CalibrationError(f"standard {names[i]!r}: Mp must be a positive number in g/mol, got {float(m)!r}")
     if len(V) < 2:
         raise CalibrationError(f"a calibration needs at least 2 narrow standards, got {len(V)}")
     order_idx = np.argsort(V, kind="stable")

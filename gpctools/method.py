@@ -411,14 +411,27 @@ def _standards_from_file(path: Path, sheet, source: str | None, flow_rate: float
         raise MethodError("standards table needs a 'volume [mL]' or 'time [min]' column", path=path)
     if c_v is None and flow_rate is None:
         raise MethodError("standards given as time need flow.rate [mL/min] in the method", path=source, key="flow.rate")
+    c_x = c_v if c_v is not None else c_t
     names, mps, vols = [], [], []
     for label, row in df.iterrows():
         rown = sheet_row_number(df, label)
-        try:
-            mp = float(row[c_mp])
-            v = float(row[c_v]) if c_v is not None else float(row[c_t]) * flow_rate
-        except (TypeError, ValueError):
-            raise MethodError("Mp and volume/time must be numbers", path=path, row=rown) from None
+        values = []
+        for col in (c_mp, c_x):
+            raw = row[col]
+            try:
+                x = float(raw)
+            except (TypeError, ValueError):
+                x = math.nan
+            if not (math.isfinite(x) and x > 0):
+                empty = raw is None or (isinstance(raw, float) and math.isnan(raw)) or str(raw).strip() == ""
+                what = "the cell is empty" if empty else f"{raw!r} is not a positive number"
+                raise MethodError(
+                    f"{what}; give every standard its Mp [g/mol] and its peak volume [mL] or "
+                    "time [min], or delete the row",
+                    path=path, row=rown, column=str(col),
+                )
+            values.append(x)
+        mp, v = values[0], (values[1] if c_v is not None else values[1] * flow_rate)
         names.append(str(row[c_name]) if c_name is not None else f"standard {len(names) + 1}")
         mps.append(mp)
         vols.append(v)

@@ -145,3 +145,18 @@ def test_input_file_is_not_modified(tmp_path):
     load_method(p)
     load_method(p)
     assert p.read_bytes() == before
+
+
+@pytest.mark.parametrize("cell, says", [("", "the cell is empty"), ("1.1 M", "'1.1 M' is not a positive number")])
+def test_regression_bad_standards_cell_names_file_row_and_column(tmp_path, cell, says):
+    # An empty or unreadable Mp cell in a standards file used to be reported against the
+    # method file's 'calibration' key as "got np.float64(nan)", without the file or row.
+    rows = (ROOT / "templates" / "standards.csv").read_text().splitlines()
+    name, _, volume = rows[2].split(",")
+    rows[2] = f"{name},{cell},{volume}"
+    (tmp_path / "standards.csv").write_text("\n".join(rows) + "\n")
+    body = '[calibration]\norder = 3\nstandards = "standards.csv"\n'
+    with pytest.raises(MethodError, match=says) as e:
+        load_method(write(tmp_path, body))
+    assert e.value.path.endswith("standards.csv")
+    assert e.value.row == 3 and e.value.column == "Mp [g/mol]"
