@@ -465,3 +465,15 @@ def test_cli_qc_from_results_csv_with_manifest(tmp_path):
     assert res.exit_code == 0, res.output
     summary = json.loads((tmp_path / "o2" / "qc_summary.json").read_text(encoding="utf-8"))
     assert summary["all_pass"] is True and summary["settings"]["suitability"]["require_check_standard"] is False
+
+
+def test_regression_manifest_that_is_not_an_object_is_refused(tmp_path):
+    # A manifest.json holding valid JSON that is not an object used to end in an
+    # AttributeError traceback.
+    hand_table(["A"]).to_csv(tmp_path / "results.csv", index=False)
+    (tmp_path / "manifest.json").write_text("[1, 2]\n", encoding="utf-8")
+    from gpctools.errors import InputFormatError
+
+    with pytest.raises(InputFormatError, match="not a JSON object") as e:
+        run_qc(tmp_path / "results.csv", hand_specs(), None, calibration=cal_summary())
+    assert e.value.path.endswith("manifest.json")

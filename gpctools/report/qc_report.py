@@ -204,6 +204,10 @@ def _resolve_results(results: Any, method: Any, calibration: Any) -> _Inputs:
                 info = json.loads(manifest.read_text(encoding="utf-8"))
             except (OSError, ValueError) as exc:
                 raise InputFormatError(f"cannot read the batch manifest: {exc}", path=manifest) from None
+            if not isinstance(info, dict):
+                raise InputFormatError(
+                    "the batch manifest is not a JSON object; write it again with 'gpctools batch' "
+                    "or remove it", path=manifest)
             inp.files.append(("batch manifest", str(manifest)))
         sheet = info.get("batch sheet")
         if sheet and Path(sheet).exists():
