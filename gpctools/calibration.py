@@ -64,6 +64,9 @@ class Calibration:
         Coefficient of determination of the fit in log10 M [-].
     residual_std_log : float
         Residual standard deviation in log10 M (n - order - 1 degrees of freedom) [-].
+    covariance : tuple of tuples
+        Covariance matrix of ``coefficients``, s²(XᵀX)⁻¹ [-] (NaN without degrees of
+        freedom); see :attr:`coefficient_stderr` and :meth:`log_M_stderr`.
     aicc : float
         Small-sample corrected Akaike information criterion of the fit (for order choice).
     log_offset, log_factor : float
@@ -96,6 +99,7 @@ class Calibration:
     sample_polymer: str | None = None
     mark_houwink: dict[str, Any] | None = None
     warnings: tuple[str, ...] = field(default=())
+    covariance: tuple[tuple[float, ...], ...] = field(default=())
 
     # -- evaluation ------------------------------------------------------------------------
     def _poly_log_M(self, V: np.ndarray) -> np.ndarray:
@@ -133,6 +137,30 @@ class Calibration:
         """Calibration Jacobian d log10 M / dV [1/mL] (negative for a valid curve)."""
         V = np.asarray(V, dtype=float)
         return self.log_factor * self._poly_slope(np.clip(V, self.v_min, self.v_max))
+
+    @property
+    def coefficient_stderr(self) -> tuple[float, ...]:
+        """Standard errors of :attr:`coefficients` [-] (square roots of the covariance diagonal)."""
+        if not self.covariance:
+            return tuple(float("nan") for _ in self.coefficients)
+        return tuple(float(math.sqrt(c)) if c >= 0 else float("nan")
+                     for c in np.diag(np.asarray(self.covariance)))
+
+    def log_M_stderr(self, V: Any) -> np.ndarray:
+        """Standard error of the fitted log10 M at V [-], from the coefficient covariance.
+
+        se² = xᵀ C x with x = (1, t, t², ...), t the scaled volume (clipped to the calibrated
+        range), times ``log_factor`` after a universal conversion. 100·ln10·se is the
+        relative standard error of M in %.
+        """
+        V = np.asarray(V, dtype=float)
+        if not self.covariance:
+            return np.full(V.shape, np.nan)
+        t = (np.clip(V, self.v_min, self.v_max) - self.center) / self.scale
+        X = np.polynomial.polynomial.polyvander(t, self.order)
+        C = np.asarray(self.covariance)
+        var = np.einsum("...i,ij,...j->...", X, C, X).reshape(V.shape)
+        return abs(self.log_factor) * np.sqrt(np.maximum(var, 0.0))
 
     def inside(self, V: Any) -> np.ndarray:
         """Boolean mask: V inside the calibrated range."""
@@ -247,6 +275,10 @@ class Calibration:
             "residual SD log10 M [-]": self.residual_std_log,
             "worst residual [%]": worst,
             "AICc [-]": self.aicc,
+            "coefficient standard errors (scaled V, lowest first) [-]": list(self.coefficient_stderr),
+            "largest standard error of M inside the range [%]": float(
+                100.0 * math.log(10.0) * np.nanmax(self.log_M_stderr(np.linspace(self.v_min, self.v_max, 201)))
+            ) if self.covariance else float("nan"),
             "standard polymer": self.standard_polymer,
             "molar-mass scale": self.scale_label(),
             "mark_houwink": self.mark_houwink,
@@ -314,13 +346,18 @@ def _fit_poly(V: np.ndarray, y: np.ndarray, order: int):
     r2 = 1.0 - rss / tss if tss > 0 else float("nan")
     dof = n - p
     sd = math.sqrt(rss / dof) if dof > 0 else float("nan")
+    # Coefficient covariance s^2 (X^T X)^-1 of ordinary least squares (any regression
+    # text); NaN when no degrees of freedom are left.
+    X = np.polynomial.polynomial.polyvander(t, order)
+    xtx_inv = np.linalg.pinv(X.T @ X)
+    cov = xtx_inv * (sd * sd) if dof > 0 else np.full((p, p), np.nan)
     # AICc for Gaussian errors: n ln(RSS/n) + 2k + 2k(k+1)/(n-k-1), k = p + 1 (variance).
     k = p + 1
     if n - k - 1 > 0 and rss > 0:
         aicc = n * math.log(rss / n) + 2 * k + 2 * k * (k + 1) / (n - k - 1)
     else:
         aicc = float("nan")
-    return coef, center, scale, fitted, r2, sd, aicc
+    return coef, center, scale, fitted, r2, sd, aicc, cov
 
 
 def select_order(volume: Sequence[float], Mp: Sequence[float], orders: Sequence[int] = (1, 2, 3, 4, 5)) -> int:
@@ -344,7 +381,7 @@ def select_order(volume: Sequence[float], Mp: Sequence[float], orders: Sequence[
     for order in orders:
         if len(V) < order + 4:
             continue
-        coef, center, scale, _, _, _, aicc = _fit_poly(V, logM, order)
+        coef, center, scale, _, _, _, aicc, _ = _fit_poly(V, logM, order)
         if not math.isfinite(aicc) or not _monotonic(coef, center, scale, V.min(), V.max()):
             continue
         if aicc < best_aicc - 1e-9:
@@ -451,7 +488,7 @@ def fit_calibration(
             f"a calibration of order {order} needs at least {order + 1} standards "
             f"(better {order + 2} or more), got {n}; lower the order or add standards"
         )
-    coef, center, scale, fitted, r2, sd, aicc = _fit_poly(V, logM, order)
+    coef, center, scale, fitted, r2, sd, aicc, cov = _fit_poly(V, logM, order)
     resid_pct = 100.0 * (np.power(10.0, fitted - logM) - 1.0)
     notes: list[str] = []
     if n < order + 2:
@@ -486,4 +523,5 @@ def fit_calibration(
         standard_polymer=standard_polymer,
         sample_polymer=sample_polymer,
         warnings=tuple(notes),
+        covariance=tuple(tuple(float(c) for c in row) for row in cov),
     )

@@ -240,6 +240,9 @@ def calibrate_cmd(
     typer.echo(f"\norder {s['order']}, R^2 = {s['R^2 [-]']:.6f}, worst residual {s['worst residual [%]']:+.2f} %")
     lo, hi = s["calibrated range [mL]"]
     typer.echo(f"calibrated range {lo:g}-{hi:g} mL; molar-mass scale: {s['molar-mass scale']}")
+    se = s["largest standard error of M inside the range [%]"]
+    if se == se:  # not NaN
+        typer.echo(f"largest standard error of the fitted M inside the range: {se:.2f} %")
     for w in s["warnings"]:
         _err(f"warning: {w}")
 

@@ -369,3 +369,34 @@ def test_inputs_not_mutated_lists_series_unsorted_repeatable() -> None:
         assert other.residuals_pct == pytest.approx(ref.residuals_pct, abs=1e-9)
     with pytest.raises(dataclasses.FrozenInstanceError):
         ref.order = 2  # type: ignore[misc]  # frozen: results cannot be edited in place
+
+
+def test_coefficient_standard_errors_match_numpy_polyfit():
+    # Reference library: numpy.polyfit(cov="unscaled") times the residual variance
+    # s^2 = RSS/(n - p) gives the OLS coefficient covariance; 1e-9: same algebra, float64.
+    from gpctools.simulate import DEFAULT_STANDARDS, default_calibration
+
+    cal = default_calibration()
+    _, Mp, V = zip(*DEFAULT_STANDARDS)
+    t = (np.asarray(V) - cal.center) / cal.scale
+    y = np.log10(Mp)
+    p, cov = np.polyfit(t, y, 3, cov="unscaled")
+    r = y - np.polyval(p, t)
+    s2 = r @ r / (len(V) - 4)
+    expected = np.sqrt(np.diag(cov * s2))[::-1]
+    assert np.allclose(cal.coefficient_stderr, expected, rtol=1e-9)
+    # prediction SE at the first standard: sqrt(x^T C x) (same algebra)
+    x = np.vander([t[0]], 4)[0]
+    se = math.sqrt(x @ (cov * s2) @ x)
+    assert float(cal.log_M_stderr(V[0])) == pytest.approx(se, rel=1e-9)
+    # a universal conversion scales log M by (1 + a_s)/(1 + a_x) and so its SE (derived)
+    conv = cal.converted(1.14e-4, 0.716, 9.44e-5, 0.719)
+    assert float(conv.log_M_stderr(V[0])) == pytest.approx(se * 1.716 / 1.719, rel=1e-9)
+    assert 0 < cal.summary()["largest standard error of M inside the range [%]"] < 5
+
+
+def test_no_degrees_of_freedom_gives_nan_standard_errors():
+    # n = order + 1: the curve passes through every standard, nothing is left to judge it.
+    with pytest.warns(CalibrationWarning):
+        cal = fit_calibration([12.0, 18.0], [1e6, 1e4], order=1)
+    assert all(math.isnan(s) for s in cal.coefficient_stderr)
