@@ -530,6 +530,17 @@ def test_measured_from_results_table(tmp_path):
         measured_from_results(table, sample_id="nope")
 
 
+def test_regression_unrecognised_scale_is_not_taken_as_absolute(tmp_path):
+    # An unknown scale text was once read as absolute; a PS-equivalent Mn taken as absolute
+    # is a classic mis-diagnosis (SCIENCE.md section 9), so it is refused.
+    table = tmp_path / "results.csv"
+    table.write_text("sample_id,status,Mn [g/mol],Mw [g/mol],molar-mass scale\n"
+                     "A,ok,40000,80000,PS cal\n", encoding="utf-8")
+    with pytest.raises(InputFormatError, match="not recognised") as e:
+        measured_from_results(table)
+    assert e.value.column == "molar-mass scale"
+
+
 def test_demo_troubleshooting_case(tmp_path):
     from gpctools.kinetics._demo import write_troubleshooting_case
 

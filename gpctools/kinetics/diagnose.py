@@ -1379,8 +1379,16 @@ def measured_from_results(
 
     scale = "absolute"
     if "molar-mass scale" in rows.columns:
-        s = normalize_scale(str(rows["molar-mass scale"].iloc[0]))
-        scale = s if s is not None else "absolute"
+        text = str(rows["molar-mass scale"].iloc[0])
+        s = normalize_scale(text)
+        if s is None:
+            # never assume absolute: a standard-equivalent Mn taken as absolute is the
+            # classic way to mis-diagnose a batch
+            raise InputFormatError(
+                f"molar-mass scale {text!r} is not recognised; write 'absolute ...' or "
+                "'relative to <standard polymer>' (as gpctools batch does)",
+                path=path, column="molar-mass scale")
+        scale = s
     meas = Measured(Mn=mean("Mn [g/mol]"), Mw=mean("Mw [g/mol]"), scale=scale)
     checks: dict[str, Any] = {}
     oc = mean("outside calibration [% mass]")
