@@ -155,3 +155,23 @@ def ols_with_cov(x: np.ndarray, y: np.ndarray, degree: int = 1) -> tuple[np.ndar
 def as_str_tuple(values: Sequence[Any]) -> tuple[str, ...]:
     """Tuple of ``str`` (for run ids)."""
     return tuple(str(v) for v in values)
+
+
+class FittedConstants:
+    """Shared accessors of fit results that hold ``constants``, ``terms``, ``y`` and ``fitted``.
+
+    Mixed into the frozen result dataclasses (:class:`~gpctools.transfer.mayo.MayoFit`,
+    :class:`~gpctools.transfer.drift.DriftFit`); it adds methods only, no fields.
+    """
+
+    def constant(self, name: str):
+        """The fitted constant called ``name`` (``"C_A"``, ``"C_A:thiol"``, ...)."""
+        for c in self.constants:  # type: ignore[attr-defined]
+            if c.name == name:
+                return c
+        raise KeyError(f"no fitted constant {name!r}; fitted: {', '.join(self.terms)}")  # type: ignore[attr-defined]
+
+    @property
+    def residuals(self) -> np.ndarray:
+        """Relative residuals (y - fitted)/fitted per run [-]."""
+        return (self.y - self.fitted) / self.fitted  # type: ignore[attr-defined]

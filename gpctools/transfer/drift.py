@@ -37,7 +37,7 @@ from typing import Any
 import numpy as np
 
 from gpctools.errors import DataError, DesignError, EstimatorWarning
-from gpctools.transfer._stats import as_str_tuple, finite_or_none, t_quantile
+from gpctools.transfer._stats import FittedConstants, as_str_tuple, finite_or_none, t_quantile
 from gpctools.transfer.mayo import FittedValue, MayoFit, check_design
 
 __all__ = [
@@ -257,7 +257,7 @@ def cumulative_model(
 
 
 @dataclass(frozen=True)
-class DriftFit:
+class DriftFit(FittedConstants):
     """The cumulative Mayo model fitted to a series at finite conversion.
 
     Attributes
@@ -319,18 +319,6 @@ class DriftFit:
     success: bool
     message: str
     warnings: tuple[str, ...] = field(default=())
-
-    def constant(self, name: str) -> FittedValue:
-        """The drift-corrected constant called ``name``."""
-        for c in self.constants:
-            if c.name == name:
-                return c
-        raise KeyError(f"no fitted constant {name!r}; fitted: {', '.join(self.terms)}")
-
-    @property
-    def residuals(self) -> np.ndarray:
-        """Relative residuals (y − fitted)/fitted [-]."""
-        return (self.y - self.fitted) / self.fitted
 
     def summary(self) -> dict[str, Any]:
         """Plain JSON-safe dict."""

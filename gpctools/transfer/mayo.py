@@ -30,6 +30,7 @@ import numpy as np
 
 from gpctools.errors import DataError, DesignError, EstimatorWarning
 from gpctools.transfer._stats import (
+    FittedConstants,
     as_str_tuple,
     finite_or_none,
     t_quantile,
@@ -313,7 +314,7 @@ def _most_correlated(T: np.ndarray, names: list[str]) -> str:
 
 
 @dataclass(frozen=True)
-class MayoFit:
+class MayoFit(FittedConstants):
     """A weighted fit of the Mayo model to one run series with one estimator of 1/DPn.
 
     Attributes
@@ -376,18 +377,6 @@ class MayoFit:
     design_check: DesignCheck
     warnings: tuple[str, ...] = field(default=())
     known_sigma: bool = False
-
-    def constant(self, name: str) -> FittedValue:
-        """The fitted constant called ``name`` (``"C_A"``, ``"C_A:thiol"``, ...)."""
-        for c in self.constants:
-            if c.name == name:
-                return c
-        raise KeyError(f"no fitted constant {name!r}; fitted: {', '.join(self.terms)}")
-
-    @property
-    def residuals(self) -> np.ndarray:
-        """Relative residuals (y - fitted)/fitted per run [-]."""
-        return (self.y - self.fitted) / self.fitted
 
     def _row_matrix(self, columns: Mapping[str, Any]) -> np.ndarray:
         cols = [np.atleast_1d(np.asarray(columns[t], dtype=float)) for t in self.terms]
