@@ -353,7 +353,8 @@ def transfer_cmd(
         typer.echo(f"{lbl['agent']} {lbl['term']} ({lbl['estimator']}, {lbl['model']}): "
                    f"E_tr - E_p = {fit.delta_E.value:.2f} ± {fit.delta_E.stderr:.2f} kJ/mol, "
                    f"A_tr/A_p = {fit.A_ratio.value:.3g}")
-    typer.echo(f"wrote {out}/ ({', '.join(sorted(p for p in paths if '/' not in p))}, plots/)")
+    listed = ", ".join(sorted(p for p in paths if "/" not in p))
+    typer.echo(f"wrote {out}/ ({listed}{', plots/' if any('/' in p for p in paths) else ''})")
     typer.echo(f"safety: {result.summary()['safety']}")
     if result.failed:
         _err(f"{result.failed} run(s) could not be processed (see runs.csv)")

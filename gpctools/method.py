@@ -288,6 +288,10 @@ def _build(data: dict[str, Any], base: Path, source: str | None) -> Method:
 
     flow = _section(data, "flow", source)
     flow_rate = _number(flow["rate"], "flow.rate", source, positive=True) if "rate" in flow else None
+    if flow_rate is not None and flow_rate > 1000.0:
+        # analytical SEC runs at about 0.1-2 mL/min, preparative columns at tens of mL/min
+        raise _err(f"{flow_rate:g} mL/min is not a plausible SEC flow rate; give it in mL/min",
+                   "flow.rate", source)
     settings["flow rate [mL/min]"] = flow_rate
 
     fm = _section(data, "flow_marker", source)

@@ -160,3 +160,12 @@ def test_regression_bad_standards_cell_names_file_row_and_column(tmp_path, cell,
         load_method(write(tmp_path, body))
     assert e.value.path.endswith("standards.csv")
     assert e.value.row == 3 and e.value.column == "Mp [g/mol]"
+
+
+def test_regression_implausible_flow_rate_is_refused(tmp_path):
+    # flow.rate = 1e300 was accepted and later blamed on the flow-marker window;
+    # analytical SEC runs at about 0.1-2 mL/min (common practice), 1000 is the refusal line.
+    p = write(tmp_path, "[flow]\nrate = 1e300\n[calibration]\norder = 1\n" + STANDARDS)
+    with pytest.raises(MethodError, match="plausible") as e:
+        load_method(p)
+    assert e.value.key == "flow.rate"

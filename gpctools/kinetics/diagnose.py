@@ -1362,8 +1362,9 @@ def measured_from_results(
         uniq = list(dict.fromkeys(ids))
         if len(uniq) != 1:
             raise InputFormatError(
-                f"the results table holds {len(uniq)} samples ({', '.join(uniq[:6])}); "
-                "name one with sample_id", path=path, column="sample_id",
+                f"the results table holds {len(uniq)} samples ({', '.join(uniq[:6])}"
+                f"{', ...' if len(uniq) > 6 else ''}); choose one (CLI: --sample ID; "
+                "Python: sample_id=...)", path=path, column="sample_id",
             )
         sample_id = uniq[0]
     rows = samples[ids == str(sample_id)]
