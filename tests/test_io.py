@@ -878,3 +878,25 @@ def test_xlsx_only_no_table_moves_on_to_the_next_sheet(tmp_path: Path) -> None:
     with pytest.raises(InputFormatError) as exc:
         read_chromatogram(p)
     assert exc.value.sheet == "Slices" and "'overload'" in str(exc.value)
+
+
+# ============================================================================ bundled exports
+
+
+def test_bundled_exports_read_with_the_demo_method(sample_runs_dir: Path, demo_method) -> None:
+    # The demo batch mixes dialects (CSV, TXT, XLSX; volume and time axes): each export it
+    # names reads with the demo method's reader options, and its record spans the whole
+    # calibrated range (the standards' peak volumes) once converted to volume.
+    sheet = read_sheet(sample_runs_dir / "batch.csv")
+    files = sorted(set(sheet["file"]))
+    assert {Path(f).suffix for f in files} >= {".csv", ".txt", ".xlsx"}
+    kinds = set()
+    cal = demo_method.calibration
+    for name in files:
+        c = read_chromatogram(sample_runs_dir / name, **demo_method.import_options.as_kwargs())
+        V = c.to_volume(demo_method.flow_rate)
+        assert c.x.size >= MIN_POINTS and np.all(np.diff(c.x) > 0), name
+        assert np.isfinite(c.signal).all(), name
+        assert V[0] <= cal.v_min and V[-1] >= cal.v_max, (name, V[0], V[-1])
+        kinds.add((c.x_kind, c.x_unit))
+    assert {("volume", "mL"), ("time", "min"), ("time", "s")} <= kinds
