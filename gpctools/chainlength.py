@@ -301,8 +301,12 @@ class MixedTermination:
     ----------
     tau : float
         Chain-ending events (transfer + disproportionation) per propagation step [-].
+        A negative τ is accepted as long as τ + β/2 > 0: it arises when an empirical
+        1/DPn offset (a model anchored to a measured lot) is booked into τ. The averages
+        and u, φ are then bookkeeping values (u > 1); :attr:`dispersity` and
+        :meth:`distribution` refuse it.
     beta : float
-        Radical stops by combination per propagation step [-].
+        Radical stops by combination per propagation step [-], >= 0.
 
     References
     ----------

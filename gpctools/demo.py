@@ -296,7 +296,6 @@ def run_demo_series(
         flagged and contaminated runs, E_tr − E_p recovered and true [kJ/mol], and
         ``"ok"`` (every C within 5 %, only the contaminated run flagged).
     """
-    import json
     import warnings
 
     from .errors import GpcWarning
