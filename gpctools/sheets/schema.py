@@ -494,7 +494,7 @@ def match_columns(headers: Iterable[Any], schema: SheetSchema, *, path: Any = No
             if f is not None:
                 hd = cells.Header(hd.text, hd.text, None, None)
         if f is not None:
-            col = _column(schema, f, hd, where)
+            col = _column(schema, f, hd, h, where)
             if f.name in found:
                 raise schema.column_error(message_two_columns(f, found[f.name].header, h),
                                           path=where.path, sheet=sheet, row=header_row, column=h)
@@ -512,7 +512,7 @@ def match_columns(headers: Iterable[Any], schema: SheetSchema, *, path: Any = No
             if made is None:
                 continue
             key, member = made
-            col = _column(schema, member, hd, where, key=key)
+            col = _column(schema, member, hd, h, where, key=key)
             members = families[fam.name]
             if key in members:
                 raise schema.column_error(message_two_columns(member, members[key].header, h),
@@ -547,16 +547,17 @@ def _header_text(h: Any) -> str:
     return h.strip() if isinstance(h, str) else cells.text(h)
 
 
-def _column(schema: SheetSchema, f: Field, hd: cells.Header, where: _Where,
+def _column(schema: SheetSchema, f: Field, hd: cells.Header, header: str, where: _Where,
             key: str | None = None) -> Column:
+    """The column of ``header`` (as written) for field ``f``, its unit checked."""
     if f.kind != "number" or hd.unit is None:
-        return Column(f, hd.text, None, key=key)
+        return Column(f, header, None, key=key)
     conv = f.convert(hd.unit)
     if conv is None:
         raise schema.column_error(message_bad_unit(f, hd.unit), path=where.path, sheet=where.sheet,
-                                  row=where.header_row, column=hd.text)
+                                  row=where.header_row, column=header)
     unit = cells.canonical_unit(hd.unit) or hd.unit
-    return Column(f, hd.text, unit, conv[0], conv[1], key)
+    return Column(f, header, unit, conv[0], conv[1], key)
 
 
 # ---------------------------------------------------------------------------------- rows
