@@ -96,16 +96,16 @@ class SampleDecision:
     def summary(self) -> dict[str, Any]:
         """JSON-safe description."""
         return {
-            "sample_id": self.sample_id,
-            "product": self.product,
-            "batch": self.batch,
+            C.SAMPLE_ID: self.sample_id,
+            C.PRODUCT: self.product,
+            C.BATCH: self.batch,
             "sequences": list(self.sequences),
             "injections": self.injections,
             "usable injections": self.usable,
             "values": {k: finite_or_none(v) for k, v in self.values.items()},
-            "decision": self.decision,
-            "reasons": list(self.reasons),
-            "notes": list(self.notes),
+            C.DECISION: self.decision,
+            C.REASONS: list(self.reasons),
+            C.NOTES: list(self.notes),
         }
 
 
@@ -132,11 +132,11 @@ class BatchDecision:
     def summary(self) -> dict[str, Any]:
         """JSON-safe description."""
         return {
-            "batch": self.batch,
+            C.BATCH: self.batch,
             "products": list(self.products),
             "samples": list(self.samples),
-            "decision": self.decision,
-            "reasons": list(self.reasons),
+            C.DECISION: self.decision,
+            C.REASONS: list(self.reasons),
         }
 
 

@@ -32,6 +32,7 @@ from __future__ import annotations
 
 import re
 
+from gpctools import columns as C
 from gpctools.errors import DataError, InputFormatError
 from gpctools.sheets.cells import Header
 from gpctools.sheets.schema import Field, FieldFamily, SheetSchema
@@ -119,9 +120,9 @@ RUN_SERIES = SheetSchema(
         Field("conversion", "conversion [-]", aliases=("x",), unit="-",
               conversions={"%": (0.01, 0.0)}, minimum=0.0, maximum=1.0, max_open=True,
               example="0.05", hint=_CONVERSION_HINT, meaning="monomer conversion"),
-        Field("Mn", "Mn [g/mol]", unit="g/mol", conversions=_KG, minimum=0.0, min_open=True,
+        Field("Mn", C.MN, unit="g/mol", conversions=_KG, minimum=0.0, min_open=True,
               example="150000", meaning="measured Mn"),
-        Field("Mw", "Mw [g/mol]", unit="g/mol", conversions=_KG, minimum=0.0, min_open=True,
+        Field("Mw", C.MW, unit="g/mol", conversions=_KG, minimum=0.0, min_open=True,
               example="300000", meaning="measured Mw"),
         Field("scale", "Mn scale", kind="text", aliases=("molar-mass scale", "scale"),
               meaning="absolute or relative"),

@@ -46,6 +46,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
+from gpctools import columns as C
 from gpctools.errors import EstimatorWarning, GpcError, InputFormatError
 from gpctools.sheets import cells
 from gpctools.sheets.run_series import RUN_SERIES, SHEET_COLUMNS
@@ -130,8 +131,8 @@ class Run:
             "run": self.run_id,
             "row": self.row,
             "file": self.file,
-            "Mn [g/mol]": f(self.Mn),
-            "Mw [g/mol]": f(self.Mw),
+            C.MN: f(self.Mn),
+            C.MW: f(self.Mw),
             "scale": self.scale,
             "monomer": self.monomer,
             "M0 [g/mol]": self.M0,
