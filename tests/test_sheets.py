@@ -489,3 +489,34 @@ def test_results_table_text_numbers_use_the_same_parser():
     check = next(c for c in res.checks if c.name.startswith("check standard CHK: Mw"))
     # derived: 100·|99000/100000 - 1| = 1 %; 1e-9 allows the division's rounding
     assert check.value == pytest.approx(1.0, rel=1e-9)
+
+
+def test_standards_in_seconds_are_converted_with_the_flow_rate(tmp_path):
+    # derived: V = t·F with t = 900 s = 15 min and F = 0.8 mL/min -> 12 mL
+    (tmp_path / "std.csv").write_text(
+        "name,Mp (kg/mol),time [s]\nA,1000,900\nB,100,960\nC,10,1020\nD,1,1080\n", encoding="utf-8")
+    (tmp_path / "m.toml").write_text('[flow]\nrate = 0.8\n[calibration]\norder = 1\n'
+                                     'standards = "std.csv"\n', encoding="utf-8")
+    table = load_method(tmp_path / "m.toml").calibration.standards_table()
+    # 1e-12: one multiplication and one division in float64
+    assert [r["volume [mL]"] for r in table] == pytest.approx([12.0, 12.8, 13.6, 14.4], rel=1e-12)
+    assert [r["Mp [g/mol]"] for r in table] == pytest.approx([1e6, 1e5, 1e4, 1e3], rel=1e-12)
+
+
+def test_the_layer_expresses_a_settings_sheet():
+    # a QC-settings-like sheet (a later issue) needs only bool, choice and number fields
+    settings = SheetSchema(
+        kind="QC settings sheet", row_noun="setting set",
+        fields=(
+            Field("require", "require check standard", kind="bool", default=True),
+            Field("limits_from", "trend limits from", kind="choice",
+                  choices={"auto": "auto", "all": "all", "history": "history"}, default="auto"),
+            Field("drift", "max flow-marker drift [%]", unit="%", minimum=0.0, min_open=True),
+        ),
+        extras="refuse",
+    )
+    (row,) = read_table([{"Require check standard": "no", "trend limits from": "History",
+                          "max flow-marker drift (%)": "0,3"}], settings).rows
+    assert (row["require"], row["limits_from"], row["drift"]) == (False, "history", 0.3)
+    with pytest.raises(DataError, match="unknown trend limits from 'sometimes'"):
+        read_table([{"trend limits from": "sometimes"}], settings)
