@@ -65,14 +65,15 @@ def time_pandas(folder: Path, n: int) -> float:
 def time_batch(folder: Path, workers: int, write: bool) -> tuple[float, int]:
     from gpctools.batch import run_batch
     from gpctools.method import load_method
+    from gpctools.report import DistributionWriter, write_batch
 
     out = Path(tempfile.mkdtemp(prefix="gpcbench-out-"))
     t0 = time.perf_counter()
     m = load_method(folder / "method.toml")
-    res = run_batch(folder / "batch.csv", m, workers=workers, outdir=out if write else None,
-                    keep_distributions=False)
+    res = run_batch(folder / "batch.csv", m, workers=workers, keep_distributions=False,
+                    on_result=DistributionWriter(out / "distributions") if write else None)
     if write:
-        res.write(out, distributions=False)
+        write_batch(res, out, distributions=False)
     dt = time.perf_counter() - t0
     return dt, res.failed
 

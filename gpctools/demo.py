@@ -23,9 +23,9 @@ from typing import Any
 import numpy as np
 
 from . import simulate
-from ._atomic import write_text
+from .report.files import write_text
 
-__all__ = ["write_sample_runs", "run_demo", "DEMO_SAMPLES"]
+__all__ = ["write_sample_runs", "run_demo", "run_demo_series", "DEMO_SAMPLES"]
 
 MARKER_REFERENCE = 22.60  # [mL] flow-marker (toluene-like) position on the calibration day
 
@@ -54,7 +54,7 @@ def _model(spec) -> simulate.DistributionModel:
 def _write_xlsx(path: Path, x: np.ndarray, h: np.ndarray, meta: dict[str, str]) -> None:
     from openpyxl import Workbook
 
-    from ._atomic import atomic_path
+    from .report.files import atomic_path
 
     wb = Workbook()
     ws = wb.active
@@ -203,6 +203,7 @@ def run_demo(folder: str | Path, out: str | Path, *, echo: Callable[[str], None]
 
     from .batch import run_batch
     from .method import load_method
+    from .report import DistributionWriter, write_batch
 
     folder = Path(folder)
     out = Path(out)
@@ -211,8 +212,9 @@ def run_demo(folder: str | Path, out: str | Path, *, echo: Callable[[str], None]
 
         raise InputFormatError("no batch.csv in the sample-runs folder; pass --samples DIR", path=folder)
     method = load_method(folder / "method.toml")
-    result = run_batch(folder / "batch.csv", method, outdir=out / "batch")
-    result.write(out / "batch", distributions=False)
+    result = run_batch(folder / "batch.csv", method,
+                       on_result=DistributionWriter(out / "batch" / "distributions"))
+    write_batch(result, out / "batch", distributions=False)
     truth = pd.read_csv(folder / "truth.csv").set_index("sample_id")
     echo(f"gpctools demo: {len(result.table)} injections from {folder}")
     echo(f"molar-mass scale: {method.calibration.scale_label()}\n")
@@ -238,8 +240,6 @@ def run_demo(folder: str | Path, out: str | Path, *, echo: Callable[[str], None]
     if (folder / "spec_limits.csv").exists():
         report["qc"] = _demo_qc(folder, out, result, echo)
     if (folder / "transfer_series" / "run_series.csv").exists():
-        from .transfer.synthetic import run_demo_series
-
         echo("\nChain-transfer constants from the run series (sample_runs/transfer_series):")
         report["transfer"] = run_demo_series(folder / "transfer_series", out / "transfer", echo=echo)
         if not report["transfer"].get("ok", False):
@@ -248,6 +248,82 @@ def run_demo(folder: str | Path, out: str | Path, *, echo: Callable[[str], None]
         report["diagnosis"] = _demo_diagnosis(folder, out, method, echo)
     write_text(out / "demo_summary.json", json.dumps(report, indent=2, default=str) + "\n")
     return report
+
+
+def run_demo_series(
+    folder: str | Path,
+    out: str | Path,
+    *,
+    echo: Callable[[str], None] | None = None,
+) -> dict[str, Any]:
+    """Analyse the demo run series in ``folder`` and compare with its ``truth.json``.
+
+    Parameters
+    ----------
+    folder : str or Path
+        A folder written by :func:`gpctools.transfer.synthetic.write_demo_series`.
+    out : str or Path
+        Output folder for the transfer tables and plots.
+    echo : callable, optional
+        Receives one line of text at a time (the CLI passes its printer); nothing is
+        printed when omitted.
+
+    Returns
+    -------
+    dict
+        JSON-safe: recovered and true C per temperature, the worst deviation [%],
+        flagged and contaminated runs, E_tr − E_p recovered and true [kJ/mol], and
+        ``"ok"`` (every C within 5 %, only the contaminated run flagged).
+    """
+    import json
+    import warnings
+
+    from .errors import GpcWarning
+    from .report import write_transfer
+    from .transfer import analyse_series
+
+    say = echo or (lambda _line: None)
+    folder = Path(folder)
+    truth = json.loads((folder / "truth.json").read_text(encoding="utf-8"))
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", GpcWarning)
+        res = analyse_series(folder / truth.get("sheet", "run_series.csv"),
+                             method=folder / truth.get("method", "method.toml"), impurity_C=15.0)
+    write_transfer(res, out)
+    say(f"transfer demo: {len(res.series.runs)} runs in {len(res.groups)} groups from {folder}")
+    recovered: dict[str, float] = {}
+    worst = 0.0
+    for g in res.groups:
+        key = f"{g.T_C:g}"
+        c = res.constant("C_A", group=g.label)
+        est, model = g.preferred["C_A"]
+        true = float(truth["C_A [-]"][key])
+        dev = 100.0 * (c.value / true - 1.0)
+        worst = max(worst, abs(dev))
+        recovered[key] = c.value
+        naive = g.mayo[est].constant("C_A").value
+        say(f"  {g.label}: C_A = {c.value:.3f} ± {c.stderr:.2g} ({est}, {model}); true "
+            f"{true:.3f} ({dev:+.1f} %); naive fit {naive:.3f}")
+    flagged = sorted(f.run_id for g in res.groups if g.impurity for f in g.impurity.flags if f.flagged)
+    say(f"  flagged runs: {', '.join(flagged) or 'none'} (contaminated: {truth['contaminated run']})")
+    dE = None
+    for lbl, fit in res.arrhenius:
+        if lbl["estimator"] == next(iter(res.groups)).preferred["C_A"][0]:
+            dE = fit.delta_E.value
+            say(f"  E_tr - E_p = {fit.delta_E.value:.2f} ± {fit.delta_E.stderr:.2f} kJ/mol "
+                f"(true {truth['E_tr - E_p [kJ/mol]']:g})")
+    ok = worst <= 5.0 and flagged == [truth["contaminated run"]]
+    say(f"  transfer tables and plots written to {out}")
+    return {
+        "C_A recovered [-]": recovered,
+        "C_A true [-]": truth["C_A [-]"],
+        "worst C deviation [%]": worst,
+        "flagged runs": flagged,
+        "contaminated run": truth["contaminated run"],
+        "E_tr - E_p recovered [kJ/mol]": dE,
+        "E_tr - E_p true [kJ/mol]": truth["E_tr - E_p [kJ/mol]"],
+        "ok": ok,
+    }
 
 
 def _demo_qc(folder: Path, out: Path, result, echo: Callable[[str], None]) -> dict[str, Any]:
@@ -271,14 +347,16 @@ def _demo_qc(folder: Path, out: Path, result, echo: Callable[[str], None]) -> di
 def _demo_diagnosis(folder: Path, out: Path, method, echo: Callable[[str], None]) -> dict[str, Any]:
     """The troubleshooting case: process its exports, then rank the causes of low Mn."""
     from .batch import run_batch
-    from .kinetics import run_diagnosis
+    from .kinetics import diagnose_recipe
+    from .report import write_batch, write_diagnosis
 
     case = folder / "troubleshooting"
     res = run_batch(case / "batch.csv", method)
-    res.write(out / "troubleshooting" / "batch")
+    write_batch(res, out / "troubleshooting" / "batch")
     low = res.table.iloc[-1]["sample_id"]
-    diag = run_diagnosis(case / "recipe.toml", out / "troubleshooting",
-                         measured_path=out / "troubleshooting" / "batch" / "results.csv", sample_id=low)
+    diag = diagnose_recipe(case / "recipe.toml",
+                           measured_path=out / "troubleshooting" / "batch" / "results.csv", sample_id=low)
+    write_diagnosis(diag, out / "troubleshooting")
     echo(f"\nWhy is the molar mass of {low} low? (sample_runs/troubleshooting)")
     for i, c in enumerate(diag.causes[:3], start=1):
         echo(f"  {i}. {c.title}: {c.share:.1f} % likelihood share")

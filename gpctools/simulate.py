@@ -259,7 +259,7 @@ def write_chromatogram(
     extra_column : bool
         Add a second-detector column (ignored by the reader unless chosen).
     """
-    from ._atomic import write_text
+    from .report.files import write_text
 
     V = np.asarray(volume, dtype=float)
     h = np.asarray(signal, dtype=float)

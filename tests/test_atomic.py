@@ -6,7 +6,7 @@ import os
 
 import pytest
 
-from gpctools._atomic import atomic_path, write_text
+from gpctools.report.files import atomic_path, write_text
 
 
 def test_write_replaces_whole_file(tmp_path):

@@ -18,10 +18,10 @@ from typer.testing import CliRunner
 
 from gpctools import simulate
 from gpctools.cli import app
+from gpctools.demo import run_demo_series
 from gpctools.transfer import analyse_series
 from gpctools.transfer.synthetic import (
     cumulative_most_probable,
-    run_demo_series,
     simulate_series,
     write_demo_series,
 )

@@ -20,8 +20,8 @@ import math
 from pathlib import Path
 from typing import Any
 
-from gpctools._atomic import write_text
 from gpctools.kinetics.recipe import Recipe
+from gpctools.report.files import write_text
 
 __all__ = ["write_troubleshooting_case", "TRUTH"]
 

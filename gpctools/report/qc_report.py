@@ -30,7 +30,6 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from gpctools._atomic import write_bytes, write_text
 from gpctools.errors import DataError, InputFormatError
 from gpctools.qc import _table as T
 from gpctools.qc.decisions import FAIL, NO_RESULT, NO_SPEC, NOT_REPORTABLE, PASS, SEVERITY
@@ -38,6 +37,7 @@ from gpctools.qc.evaluate import QCResult, QCSettings, evaluate_qc
 from gpctools.qc.specs import SpecSheet, read_specs
 from gpctools.qc.trends import RULE_SET_NAME
 from gpctools.report.audit import AuditTrail, build_audit
+from gpctools.report.files import write_bytes, write_text
 
 __all__ = ["QCReport", "run_qc", "EXIT_OK", "EXIT_FINDINGS"]
 
@@ -516,7 +516,8 @@ def run_qc(
 
         if result.calibration:
             cal_obj = inp.calibration if hasattr(inp.calibration, "standards_table") else result.calibration
-            png = P.calibration_plot(cal_obj, residual_limit_pct=settings.suitability.max_calibration_residual_pct)
+            png = P.png_bytes(P.calibration_figure(
+                cal_obj, residual_limit_pct=settings.suitability.max_calibration_residual_pct))
             written["plots/calibration.png"] = write_bytes(out / "plots" / "calibration.png", png)
             figures["calibration"].append(H.figure(png, "Calibration curve (standards and fit) with the "
                                                    "residual of each standard; band: acceptance limit."))
@@ -524,18 +525,18 @@ def run_qc(
         for g, label, M, y in inp.curves:
             groups.setdefault(g, []).append((label, M, y))
         for g, curves in groups.items():
-            png = P.distribution_overlay(curves, title=f"Distributions: {g}")
+            png = P.png_bytes(P.plot_distributions(curves, title=f"Distributions: {g}").figure)
             name = f"plots/distributions_{_safe(g)}.png"
             written[name] = write_bytes(out / name, png)
             figures["distributions"].append(H.figure(png, f"dw/dlogM of each injection, {g}."))
         for k, chart in enumerate(result.trends):
-            png = P.control_chart_plot(chart)
+            png = P.png_bytes(P.plot_control_chart(chart).figure)
             name = f"plots/control_{k + 1:02d}_{_safe(chart.group)}_{_safe(chart.quantity)}.png"
             written[name] = write_bytes(out / name, png)
             chart_figs[k] = H.figure(png, f"Individuals chart of {chart.quantity} for {chart.group}: "
                                           "centre line, ±1/2/3 sigma; circled points break a run rule.")
         for k, (t, f) in enumerate(items):
-            png = P.mayo_plot(f, title=f"Mayo plot: {t}")
+            png = P.png_bytes(P.plot_mayo(f, title=f"Mayo plot: {t}").figure)
             name = f"plots/mayo_{k + 1:02d}_{_safe(t)}.png"
             written[name] = write_bytes(out / name, png)
             figures["transfer"].append(H.figure(png, f"1/DPn against the agent ratio with the fitted line, {t}."))

@@ -36,7 +36,6 @@ __all__ = [
     "averages_from_dwdlogM",
     "simulate_series",
     "write_demo_series",
-    "run_demo_series",
 ]
 
 LN10 = math.log(10.0)
@@ -349,7 +348,7 @@ def write_demo_series(folder: str | Path, *, seed: int = 20240611) -> dict[str, 
     import pandas as pd
 
     from gpctools import simulate
-    from gpctools._atomic import write_csv, write_text
+    from gpctools.report.files import write_csv, write_text
 
     folder = Path(folder)
     folder.mkdir(parents=True, exist_ok=True)
@@ -411,78 +410,3 @@ def write_demo_series(folder: str | Path, *, seed: int = 20240611) -> dict[str, 
 
     write_text(folder / "truth.json", json.dumps(truth, indent=2) + "\n")
     return truth
-
-
-def run_demo_series(
-    folder: str | Path,
-    out: str | Path,
-    *,
-    echo: Callable[[str], None] | None = None,
-) -> dict[str, Any]:
-    """Analyse the demo run series in ``folder`` and compare with its ``truth.json``.
-
-    Parameters
-    ----------
-    folder : str or Path
-        A folder written by :func:`write_demo_series`.
-    out : str or Path
-        Output folder for the transfer tables and plots.
-    echo : callable, optional
-        Receives one line of text at a time (the CLI passes its printer); nothing is
-        printed when omitted.
-
-    Returns
-    -------
-    dict
-        JSON-safe: recovered and true C per temperature, the worst deviation [%],
-        flagged and contaminated runs, E_tr − E_p recovered and true [kJ/mol], and
-        ``"ok"`` (every C within 5 %, only the contaminated run flagged).
-    """
-    import json
-    import warnings
-
-    from gpctools.errors import GpcWarning
-    from gpctools.transfer.analysis import analyse_series, write_transfer_outputs
-
-    say = echo or (lambda _line: None)
-    folder = Path(folder)
-    truth = json.loads((folder / "truth.json").read_text(encoding="utf-8"))
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", GpcWarning)
-        res = analyse_series(folder / truth.get("sheet", "run_series.csv"),
-                             method=folder / truth.get("method", "method.toml"), impurity_C=15.0)
-    write_transfer_outputs(res, out)
-    say(f"transfer demo: {len(res.series.runs)} runs in {len(res.groups)} groups from {folder}")
-    recovered: dict[str, float] = {}
-    worst = 0.0
-    for g in res.groups:
-        key = f"{g.T_C:g}"
-        c = res.constant("C_A", group=g.label)
-        est, model = g.preferred["C_A"]
-        true = float(truth["C_A [-]"][key])
-        dev = 100.0 * (c.value / true - 1.0)
-        worst = max(worst, abs(dev))
-        recovered[key] = c.value
-        naive = g.mayo[est].constant("C_A").value
-        say(f"  {g.label}: C_A = {c.value:.3f} ± {c.stderr:.2g} ({est}, {model}); true "
-            f"{true:.3f} ({dev:+.1f} %); naive fit {naive:.3f}")
-    flagged = sorted(f.run_id for g in res.groups if g.impurity for f in g.impurity.flags if f.flagged)
-    say(f"  flagged runs: {', '.join(flagged) or 'none'} (contaminated: {truth['contaminated run']})")
-    dE = None
-    for lbl, fit in res.arrhenius:
-        if lbl["estimator"] == next(iter(res.groups)).preferred["C_A"][0]:
-            dE = fit.delta_E.value
-            say(f"  E_tr - E_p = {fit.delta_E.value:.2f} ± {fit.delta_E.stderr:.2f} kJ/mol "
-                f"(true {truth['E_tr - E_p [kJ/mol]']:g})")
-    ok = worst <= 5.0 and flagged == [truth["contaminated run"]]
-    say(f"  transfer tables and plots written to {out}")
-    return {
-        "C_A recovered [-]": recovered,
-        "C_A true [-]": truth["C_A [-]"],
-        "worst C deviation [%]": worst,
-        "flagged runs": flagged,
-        "contaminated run": truth["contaminated run"],
-        "E_tr - E_p recovered [kJ/mol]": dE,
-        "E_tr - E_p true [kJ/mol]": truth["E_tr - E_p [kJ/mol]"],
-        "ok": ok,
-    }
