@@ -185,3 +185,22 @@ def test_regression_replicate_distributions_each_in_written_paths(demo_dir, tmp_
     written = [p for k, p in paths.items() if k.startswith("distributions/")]
     assert len(written) == len(ids)
     assert sorted(written) == sorted((tmp_path / "o" / "distributions").glob("*.csv"))
+
+
+def test_on_result_streams_each_processed_injection_also_from_workers(demo_dir, tmp_path):
+    d = tmp_path / "b"
+    shutil.copytree(demo_dir, d)
+    sheet = d / "batch.csv"
+    sheet.write_text(sheet.read_text() + "MISSING,exports/none.csv,sample,,,,,\n")
+    m = load_method(d / "method.toml")
+    seen = []
+    res = run_batch(sheet, m, on_result=lambda entry, result: seen.append((entry.row, result.sample_id)))
+    ok = res.table["status"] == "ok"
+    assert [s for _, s in seen] == list(res.table.loc[ok, "sample_id"])  # failed rows are not passed on
+    assert "MISSING" not in {s for _, s in seen}
+    # Worker processes write the same tables write_batch writes afterwards, byte for byte.
+    run_batch(sheet, m, workers=2, keep_distributions=False, on_result=DistributionWriter(tmp_path / "stream"))
+    written = {p.name: p for k, p in write_batch(res, tmp_path / "o").items() if k.startswith("distributions/")}
+    streamed = {p.name: p for p in (tmp_path / "stream").glob("*.csv")}
+    assert streamed.keys() == written.keys() and len(written) == int(ok.sum())
+    assert all(streamed[n].read_bytes() == written[n].read_bytes() for n in written)
