@@ -497,7 +497,7 @@ def test_safety_note_always_present_and_markdown():
 # ------------------------------------------------------------------ files and demo
 
 
-def test_run_diagnosis_writes_tables(tmp_path):
+def test_write_diagnosis_writes_tables(tmp_path):
     out = tmp_path / "out"
     d = diagnose_recipe(REPO / "templates" / "recipe.toml")
     write_diagnosis(d, out)
