@@ -13,7 +13,7 @@ import pytest
 
 from gpctools import simulate
 from gpctools.batch import process_injection, process_trace, read_batch_sheet, run_batch
-from gpctools.demo import write_sample_runs
+from gpctools.demo import write_chromatogram, write_sample_runs
 from gpctools.errors import InputFormatError
 from gpctools.method import load_method
 from gpctools.report import DistributionWriter, write_batch
@@ -139,8 +139,8 @@ def test_low_m_tail_raises_mn_sensitivity(tmp_path):
     tail = simulate.lognormal(1_800, 1.3)
     mix = simulate.mixture([(0.97, main), (0.03, tail)])
     V, h = simulate.chromatogram(mix, cal, noise=0.02, seed=3)
-    simulate.write_chromatogram(tmp_path / "t.csv", V, h)
-    simulate.write_chromatogram(tmp_path / "c.csv", *simulate.chromatogram(main, cal, noise=0.02, seed=3))
+    write_chromatogram(tmp_path / "t.csv", V, h)
+    write_chromatogram(tmp_path / "c.csv", *simulate.chromatogram(main, cal, noise=0.02, seed=3))
     mtext = (ROOT / "templates" / "method.toml").read_text()
     (tmp_path / "method.toml").write_text(mtext)
     shutil.copy(ROOT / "templates" / "standards.csv", tmp_path / "standards.csv")

@@ -157,12 +157,12 @@ SPEC_CSV = (
 
 def build_scenario(folder: Path) -> dict:
     """Simulated exports, method, batch sheet, spec sheet and history tables in ``folder``."""
+    from gpctools.demo import write_chromatogram
     from gpctools.simulate import (
         DEFAULT_STANDARDS,
         chromatogram,
         default_calibration,
         schulz_zimm,
-        write_chromatogram,
     )
 
     folder.mkdir(parents=True, exist_ok=True)
@@ -484,8 +484,8 @@ def test_regression_manifest_that_is_not_an_object_is_refused(tmp_path):
 
 def _transfer_result(temperatures=(60.0,)):
     """A run-series analysis from measured averages (Mayo with C = 14.8 at 60 °C)."""
+    from gpctools.simulate import simulate_series
     from gpctools.transfer import analyse_series, run_series_from_rows
-    from gpctools.transfer.synthetic import simulate_series
 
     rows = []
     for T in temperatures:
@@ -559,26 +559,3 @@ def test_no_module_uses_pyplot_or_the_global_backend():
             elif isinstance(node, ast.Attribute) and node.attr == "use":
                 assert not (isinstance(node.value, ast.Name) and node.value.id == "matplotlib"), path
 
-
-def test_science_modules_never_import_the_report_layer():
-    import ast
-
-    pkg = Path(__file__).resolve().parent.parent / "gpctools"
-    top = {pkg / "cli.py", pkg / "demo.py"}
-    # Writers of the demo's input files, waiting to move into demo.py with the simulators.
-    pending = {pkg / "simulate.py", pkg / "transfer" / "synthetic.py", pkg / "kinetics" / "_demo.py"}
-    offenders = []
-    for path in _python_files(pkg):
-        if path in top or path in pending or (pkg / "report") in path.parents:
-            continue
-        for node in ast.walk(ast.parse(path.read_text(encoding="utf-8"))):
-            names = []
-            if isinstance(node, ast.ImportFrom):
-                base = "." * node.level + (node.module or "")
-                names = [base] + [f"{base}.{a.name}" for a in node.names]
-            elif isinstance(node, ast.Import):
-                names = [a.name for a in node.names]
-            if any(n.lstrip(".").startswith(("gpctools.report", "report", "gpctools.cli", "cli"))
-                   and (n.startswith("gpctools.") or n.startswith(".")) for n in names):
-                offenders.append(f"{path.relative_to(pkg)}:{node.lineno}")
-    assert offenders == []
