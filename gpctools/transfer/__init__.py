@@ -9,7 +9,6 @@ conversion-drift correction, impurity flags and ln C against 1/T.
 Public API
 ----------
 analyse_series(sheet_path, *, method=None, terms=None, estimators=..., ...) -> TransferResult
-write_transfer_outputs(result, outdir) -> dict of paths
 read_run_series(path) -> RunSeries
 fit_mayo(y, columns, ...) -> MayoFit;  check_design(columns) -> DesignCheck
 cld_slope(M, dwdlogM, M0, ...) -> CLDSlope
@@ -18,7 +17,9 @@ consumption_constant(A0, A, ...) -> ConsumptionResult
 fit_arrhenius(T_K, C, C_stderr) -> ArrheniusFit
 flag_runs(y, columns, ...) -> ImpurityCheck;  check_intercept(fit, expected, ...)
 
-Heavy modules (lmfit, matplotlib) are imported inside the functions that need them.
+Nothing here writes files: :func:`gpctools.report.write_transfer` writes the tables,
+summary and plots of a :class:`TransferResult`. Heavy modules (lmfit, scipy.optimize) are
+imported inside the functions that need them.
 """
 
 from __future__ import annotations
@@ -28,7 +29,6 @@ from gpctools.transfer.analysis import (
     RunEstimate,
     TransferResult,
     analyse_series,
-    write_transfer_outputs,
 )
 from gpctools.transfer.arrhenius import ArrheniusFit, fit_arrhenius
 from gpctools.transfer.drift import (
@@ -53,7 +53,6 @@ from gpctools.transfer.series import Run, RunSeries, read_run_series, run_series
 
 __all__ = [
     "analyse_series",
-    "write_transfer_outputs",
     "TransferResult",
     "GroupResult",
     "RunEstimate",
