@@ -49,6 +49,9 @@ __all__ = [
     "CLDBias",
     "cld_broadening_bias",
     "convolve",
+    "shared_spreading",
+    "tilted_trace",
+    "unbroadened_averages",
 ]
 
 
@@ -599,3 +602,51 @@ def cld_broadening_bias(sigma_lnM: float, *, fraction: float = 0.5) -> CLDBias:
         Mp_ratio=Mp_obs / 2.0,
         dispersity_observed=2.0 * math.exp(s * s),
     )
+
+
+def shared_spreading(a: Spreading, b: Spreading) -> Spreading:
+    """The spreading both traces share after matching: the broader of the two."""
+    return Spreading(max(a.sigma, b.sigma), max(a.tau, b.tau))
+
+
+def tilted_trace(V: np.ndarray, F: np.ndarray, g: Spreading, D2: float) -> np.ndarray:
+    """The concentration trace re-weighted so that [G ⊗ (W·e^(−D2·y))](V) = e^(−D2·V)·result.
+
+    A detector whose response is ∝ c·M^k (light scattering k = 1, a viscometer k = a) sees,
+    with M(y) = D1·e^(−D2·y) and both traces spread by G = N(0, σ²) ⊗ Exp(τ), call
+    D = k·D2 (the argument ``D2`` here):
+
+        S(V) ∝ [G ⊗ (W·e^(−D·y))](V) = e^(−D·V)·M_G(D)·[G_t ⊗ W](V),
+
+    where the tilted kernel e^(D·u)G(u)/M_G(D) is N(Dσ², σ²) ⊗ Exp(τ′), τ′ = τ/(1 − τD),
+    and M_G(D) = e^(σ²D²/2)/(1 − τD) (G not centred). G_t ⊗ W follows from the observed
+    F = G ⊗ W by undoing Exp(τ) (W′ = F + τ·dF/dV), applying Exp(τ′) and moving the result
+    Dσ² to later volumes; the function returns M_G(D)·[G_t ⊗ W]. For a Gaussian G this is
+    F read Dσ² earlier: the slice molar mass of a broadened trace leads the concentration
+    slice by the same mechanism as the narrow-standard lead (DETECTORS.md §1.2), with the
+    broadening variance in place of the standard's own. Exact for a linear calibration
+    (derived here; checked against closed-form averages in the tests).
+    """
+    Ft = F
+    if g.tau > 0:
+        tp = g.tau / (1.0 - g.tau * D2)
+        Ft = convolve(V, F + g.tau * np.gradient(F, V), Spreading(0.0, tp))
+    shifted = np.interp(V - D2 * g.sigma**2, V, Ft)
+    return g.mgf(D2, centred=False) * shifted
+
+
+def unbroadened_averages(av: dict[str, float], g: Spreading, D2: float) -> dict[str, float]:
+    """True averages from those of the broadened trace taken through the true M(V) (B2).
+
+    ``D2`` = −ln10·d log10 M/dV of the true calibration [1/mL].
+
+    The k-th moment ∫F·M^k dV is M_G(−k·D2) times the true one, with G not centred
+    because M(V) from light scattering refers to the Gaussian part's axis.
+    """
+    if not D2 > 0 or not all(math.isfinite(v) for v in av.values()):
+        return av
+    m = {k: g.mgf(-k * D2, centred=False) for k in (-1, 1, 2, 3)}
+    out = {"Mn": av["Mn"] * m[-1], "Mw": av["Mw"] / m[1], "Mz": av["Mz"] * m[1] / m[2],
+           "Mz1": av["Mz1"] * m[2] / m[3]}
+    out["dispersity"] = out["Mw"] / out["Mn"]
+    return out

@@ -48,7 +48,7 @@ from ._slices import (
     widths,
     window_mask,
 )
-from .broadening import Spreading, convolve
+from .broadening import Spreading, shared_spreading, tilted_trace, unbroadened_averages
 from .instrument import DetectorSetup, LightScatteringDetector
 from .scattering import AngularFit, fit_angles, optical_constant
 from .traces import DetectorTraces, concentration, matched_pair
@@ -343,7 +343,7 @@ def analyse_light_scattering(traces: DetectorTraces, setup: DetectorSetup, *, de
     Mw_area, rgz_area = _areas_fit(R_all, w, inside_ls, mass, angles, K, det, opts)
     # (2)-(3) slices
     c, R = matched_pair(V, c_raw, R_all, cdet, det, match=opts.match_broadening)
-    spread = _common_spreading(cdet.broadening, det.broadening) if opts.match_broadening else Spreading()
+    spread = shared_spreading(cdet.broadening, det.broadening) if opts.match_broadening else Spreading()
     assert det.wavelength is not None and det.solvent_refractive_index is not None
     lam, n0 = det.wavelength, det.solvent_refractive_index
 
@@ -369,7 +369,7 @@ def analyse_light_scattering(traces: DetectorTraces, setup: DetectorSetup, *, de
                          "with a curved log M(V) fit (order > 1); Mn and Đ are biased (Mw from areas is not)")
     M_fit = 10.0 ** logfit.log_M(V)
     av_obs = slice_averages(M_fit, c, w, inside)
-    av = _undo_broadening(av_obs, spread, logfit) if not spread.is_zero() and opts.fit_order == 1 else av_obs
+    av = unbroadened_averages(av_obs, spread, -LN10 * logfit.coef[1]) if not spread.is_zero() and opts.fit_order == 1 else av_obs
     av_slices = slice_averages(fit.M, c, w, inside)
     warns = notes + list(_warnings(traces.name, logfit, V, inside, av, Mw_area, mass, injected_mass))
     size_mask = good_signal_mask(c, ls_level, inside, max(opts.size_fraction, opts.good_fraction))
@@ -449,34 +449,6 @@ def slice_table_json(result: LightScatteringResult) -> dict[str, list[Any]]:
     return {k: json_list(v) for k, v in result.table().items()}
 
 
-def _common_spreading(a: Spreading, b: Spreading) -> Spreading:
-    """The spreading both traces share after matching: the broader of the two."""
-    return Spreading(max(a.sigma, b.sigma), max(a.tau, b.tau))
-
-
-def _tilted(V: np.ndarray, F: np.ndarray, g: Spreading, D2: float) -> np.ndarray:
-    """c_eff with R_0/(K*·c_eff) = M(V) exactly for a linear calibration (derived below).
-
-    With M(y) = D1·e^(−D2·y) and both traces spread by G = N(0, σ²) ⊗ Exp(τ):
-
-        R_0(V)/K* = [G ⊗ (W·M)](V) = D1·e^(−D2·V)·M_G(D2)·[G_t ⊗ W](V),
-
-    where the tilted kernel e^(D2·u)G(u)/M_G(D2) is N(D2σ², σ²) ⊗ Exp(τ′), τ′ = τ/(1 − τD2),
-    and M_G(D2) = e^(σ²D2²/2)/(1 − τD2). G_t ⊗ W follows from the observed F = G ⊗ W by
-    undoing Exp(τ) (W′ = F + τ·dF/dV), applying Exp(τ′) and moving the result D2σ² to
-    later volumes. For a Gaussian G this is F read D2σ² earlier: the slice molar mass of a
-    broadened trace leads the concentration slice by the same mechanism as the narrow-
-    standard lead (DETECTORS.md §1.2), with the broadening variance in place of the
-    standard's own.
-    """
-    Ft = F
-    if g.tau > 0:
-        tp = g.tau / (1.0 - g.tau * D2)
-        Ft = convolve(V, F + g.tau * np.gradient(F, V), Spreading(0.0, tp))
-    shifted = np.interp(V - D2 * g.sigma**2, V, Ft)
-    return g.mgf(D2, centred=False) * shifted
-
-
 def _broadening_consistent(V: np.ndarray, c: np.ndarray, g: Spreading, slices: Any, good: np.ndarray,
                            logfit: LogMFit, what: str) -> tuple[AngularFit, LogMFit]:
     """Iterate D2 → c_eff → slice M → straight log M(V) fit until D2 settles."""
@@ -485,7 +457,7 @@ def _broadening_consistent(V: np.ndarray, c: np.ndarray, g: Spreading, slices: A
         D2 = -LN10 * logfit.coef[1]
         if not D2 > 0 or g.tau * D2 >= 1.0:
             break
-        fit = slices(_tilted(V, c, g, D2))
+        fit = slices(tilted_trace(V, c, g, D2))
         new = fit_log_M(V, fit.M, good, 1, what)
         done = abs(new.coef[1] - logfit.coef[1]) < 1e-9
         logfit = new
@@ -494,19 +466,3 @@ def _broadening_consistent(V: np.ndarray, c: np.ndarray, g: Spreading, slices: A
     if fit is None:
         fit = slices(c)
     return fit, logfit
-
-
-def _undo_broadening(av: dict[str, float], g: Spreading, logfit: LogMFit) -> dict[str, float]:
-    """True averages from those of the broadened trace through the true M(V) (B2).
-
-    The k-th moment ∫F·M^k dV is M_G(−k·D2) times the true one, with G not centred
-    because M(V) from light scattering refers to the Gaussian part's axis.
-    """
-    D2 = -LN10 * logfit.coef[1]
-    if not D2 > 0 or not all(math.isfinite(v) for v in av.values()):
-        return av
-    m = {k: g.mgf(-k * D2, centred=False) for k in (-1, 1, 2, 3)}
-    out = {"Mn": av["Mn"] * m[-1], "Mw": av["Mw"] / m[1], "Mz": av["Mz"] * m[1] / m[2],
-           "Mz1": av["Mz1"] * m[2] / m[3]}
-    out["dispersity"] = out["Mw"] / out["Mn"]
-    return out

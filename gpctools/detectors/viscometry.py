@@ -38,8 +38,9 @@ import numpy as np
 
 from gpctools.errors import DataError
 
-from ._common import ML_PER_DL, as_array, finite_or_none, polyfit, positive
+from ._common import LN10, ML_PER_DL, as_array, finite_or_none, polyfit, positive
 from ._slices import LogMFit, fit_log_M, good_signal_mask, slice_averages, widths, window_mask
+from .broadening import Spreading, shared_spreading, tilted_trace, unbroadened_averages
 from .instrument import VISCOMETER_DESIGNS, DetectorSetup, Viscometer
 from .traces import DetectorTraces, concentration, matched_pair
 
@@ -551,9 +552,15 @@ def analyse_viscometry(traces: DetectorTraces, setup: DetectorSetup, *, detector
         J = hydrodynamic_volume(standard_log_M(V), K_standard, a_standard)
         M_uc = universal_molar_mass(J, eta)
         Mn_uc = number_average_universal(esp[inside], w[inside], J[inside], mass)
-        logfit = fit_log_M(V, M_uc, good, opts.fit_order, f"{traces.name}: universal-calibration log M(V) fit")
+        what = f"{traces.name}: universal-calibration log M(V) fit"
+        logfit = fit_log_M(V, M_uc, good, opts.fit_order, what)
+        spread = shared_spreading(cdet.broadening, det.broadening) if opts.match_broadening else Spreading()
+        if not spread.is_zero() and opts.fit_order == 1:
+            eta, M_uc, logfit = _broadening_consistent(V, c, esp, J, spread, good, logfit, opts, what)
         M_uc_fit = 10.0 ** logfit.log_M(V)
         av = slice_averages(M_uc_fit, c, w, inside)
+        if not spread.is_zero() and opts.fit_order == 1:
+            av = unbroadened_averages(av, spread, -LN10 * logfit.coef[1])
         if math.isfinite(av.get("Mn", math.nan)) and abs(av["Mn"] / Mn_uc - 1) > 0.05:
             warns.append(f"{traces.name}: Mn from the fitted universal calibration differs from m/Σ(η_sp ΔV/J) "
                          f"by {100 * (av['Mn'] / Mn_uc - 1):+.1f} %: check the viscometer offset and baseline")
@@ -568,3 +575,34 @@ def analyse_viscometry(traces: DetectorTraces, setup: DetectorSetup, *, detector
         Mn_universal=Mn_uc, averages=av, log_M_fit=logfit, Mv=Mv, good=good[inside],
         detector=det.name, options=opts, warnings=tuple(warns),
     )
+
+
+def _broadening_consistent(V: np.ndarray, c: np.ndarray, esp: np.ndarray, J: np.ndarray, g: Spreading,
+                           good: np.ndarray, logfit: LogMFit, opts: ViscometryOptions,
+                           what: str) -> tuple[np.ndarray, np.ndarray, LogMFit]:
+    """[η] per slice of a broadened pair of traces, for a linear calibration.
+
+    The viscometer responds to c·[η] ∝ c·M^a, so with both traces spread by G the slice
+    at V mixes neighbouring volumes; :func:`.broadening.tilted_trace` with D = a·D2 gives
+    the concentration that makes η_sp/c the [η] of the molecules that belong at V. D2
+    comes from the log M(V) fit and a from d log[η]/d log M = (d log J/dV)/(d log M/dV) − 1;
+    both are iterated to a fixed point.
+    """
+    sJ = float(np.polyfit(V[good], np.log10(J[good]), 1)[0])
+    eta = M_uc = np.full(V.size, np.nan)
+    for _ in range(30):
+        sM = logfit.coef[1]
+        D2 = -LN10 * sM
+        a = sJ / sM - 1.0
+        if not (D2 > 0 and 0.0 < a < 2.0) or g.tau * a * D2 >= 1.0:
+            break
+        c_eff = tilted_trace(V, c, g, a * D2)
+        eta = intrinsic_viscosity(esp, np.where(c_eff > 0, c_eff, np.nan), method=opts.method,
+                                  huggins=opts.huggins)
+        M_uc = universal_molar_mass(J, eta)
+        new = fit_log_M(V, M_uc, good, 1, what)
+        done = abs(new.coef[1] - logfit.coef[1]) < 1e-9
+        logfit = new
+        if done:
+            break
+    return eta, M_uc, logfit
