@@ -169,25 +169,3 @@ def polyfit(x: np.ndarray, y: np.ndarray, order: int, *, inflate: bool = True,
     if inflate and 0.0 < rho < 1.0:
         cov = cov * (1.0 + rho) / (1.0 - rho)
     return LineFit(coef=coef, covariance=cov, residual_sd=math.sqrt(s2), n=n, rho=rho)
-
-
-def trapezoid(y: np.ndarray, x: np.ndarray) -> float:
-    """∫ y dx by the trapezoid rule (numpy 1.x and 2.x)."""
-    y = np.asarray(y, dtype=float)
-    x = np.asarray(x, dtype=float)
-    return float(np.sum(0.5 * (y[1:] + y[:-1]) * np.diff(x)))
-
-
-def contiguous_above(y: np.ndarray, threshold: float, start: int) -> np.ndarray:
-    """Mask of the run of ``y >= threshold`` that contains index ``start``."""
-    mask = np.zeros(y.size, dtype=bool)
-    if not y[start] >= threshold:
-        return mask
-    lo = start
-    while lo - 1 >= 0 and y[lo - 1] >= threshold:
-        lo -= 1
-    hi = start
-    while hi + 1 < y.size and y[hi + 1] >= threshold:
-        hi += 1
-    mask[lo : hi + 1] = True
-    return mask

@@ -35,7 +35,6 @@ from ._common import (
     LN10,
     Estimate,
     finite_or_none,
-    json_list,
     polyfit,
     warn_all,
 )
@@ -240,6 +239,7 @@ class LightScatteringResult:
             "formalism": self.formalism,
             "optical constant K* [mol cm2/g2]": self.optical_constant,
             "Mw from areas [g/mol]": finite_or_none(self.Mw_areas.value),
+            "Mw from areas, angular-extrapolation standard error [g/mol]": finite_or_none(self.Mw_areas.stderr),
             "Rg_z from areas [nm]": finite_or_none(self.rg_z_areas),
             "averages (fitted log M(V))": av,
             "averages before broadening correction": {
@@ -287,8 +287,14 @@ def _require_optics(det: LightScatteringDetector) -> float:
 
 
 def _areas_fit(R_raw: np.ndarray, w: np.ndarray, inside: np.ndarray, mass: float, angles: tuple[float, ...],
-               K: float, det: LightScatteringDetector, opts: LightScatteringOptions) -> tuple[float, float]:
-    """Mw and Rg_z from the channel areas extrapolated to zero angle (L11)."""
+               K: float, det: LightScatteringDetector, opts: LightScatteringOptions) -> tuple[Estimate, float]:
+    """Mw and Rg_z from the channel areas extrapolated to zero angle (L11).
+
+    The standard error is that of the angular extrapolation (the scatter of the channel
+    areas about the fitted line in sin²(θ/2), propagated to M); it excludes the
+    uncertainty of dn/dc and of the calibration constants, which enter M linearly or
+    quadratically (DETECTORS.md §2.9).
+    """
     assert det.wavelength is not None and det.solvent_refractive_index is not None
     areas = np.sum(R_raw[inside] * w[inside, None], axis=0)
     if not np.all(areas > 0):
@@ -297,7 +303,17 @@ def _areas_fit(R_raw: np.ndarray, w: np.ndarray, inside: np.ndarray, mass: float
     fit = fit_angles(areas[None, :], [mass], angles, optical=K, wavelength=det.wavelength,
                      solvent_refractive_index=det.solvent_refractive_index,
                      formalism=opts.formalism, order=order, rg_min=opts.rg_min)
-    return float(fit.M[0]), float(fit.rg[0])
+    Mw = float(fit.M[0])
+    se = math.nan
+    if len(angles) >= order + 3 and math.isfinite(Mw):
+        s = np.sin(np.radians(np.asarray(angles)) / 2.0) ** 2
+        z = K * mass / areas
+        y = {"zimm": z, "debye": 1.0 / z, "berry": np.sqrt(z)}[fit.formalism]
+        f = polyfit(s, y, order, inflate=False, what="angular extrapolation of the areas")
+        b0, se_b0 = float(f.coef[0]), f.stderr(0)
+        rel = {"zimm": se_b0 / b0, "debye": se_b0 / b0, "berry": 2.0 * se_b0 / b0}[fit.formalism]
+        se = Mw * abs(rel)
+    return Estimate(Mw, se, "g/mol"), float(fit.rg[0])
 
 
 def analyse_light_scattering(traces: DetectorTraces, setup: DetectorSetup, *, detector: str | None = None,
@@ -340,7 +356,8 @@ def analyse_light_scattering(traces: DetectorTraces, setup: DetectorSetup, *, de
         raise DataError(f"{traces.name}: the concentration trace has no positive area inside the limits")
     # the LS window is the concentration window moved by the offset
     inside_ls = window_mask(V - det.offset, limits) if limits is not None else inside
-    Mw_area, rgz_area = _areas_fit(R_all, w, inside_ls, mass, angles, K, det, opts)
+    Mw_est, rgz_area = _areas_fit(R_all, w, inside_ls, mass, angles, K, det, opts)
+    Mw_area = Mw_est.value
     # (2)-(3) slices
     c, R = matched_pair(V, c_raw, R_all, cdet, det, match=opts.match_broadening)
     spread = shared_spreading(cdet.broadening, det.broadening) if opts.match_broadening else Spreading()
@@ -377,7 +394,7 @@ def analyse_light_scattering(traces: DetectorTraces, setup: DetectorSetup, *, de
     result = LightScatteringResult(
         volume=V[inside], concentration=c[inside], M_slice=fit.M[inside], M_fit=M_fit[inside],
         rg=fit.rg[inside], good=good[inside],
-        Mw_areas=Estimate(Mw_area, math.nan, "g/mol"), rg_z_areas=rgz_area,
+        Mw_areas=Mw_est, rg_z_areas=rgz_area,
         averages=av, averages_observed=av_obs, averages_slices=av_slices, broadening=spread, rg_averages=rg_av, log_M_fit=logfit,
         conformation=conf, mass=mass, injected_mass=injected_mass, optical_constant=K,
         detector=det.name, formalism=fit.formalism, options=opts, warnings=tuple(warns),
@@ -444,11 +461,6 @@ def _size(fit: AngularFit, M: np.ndarray, c: np.ndarray, mask: np.ndarray) -> tu
     return {"Rg_z": rgz, "Rg_w": rgw}, conf
 
 
-def slice_table_json(result: LightScatteringResult) -> dict[str, list[Any]]:
-    """The per-slice table as JSON-safe lists (for reports)."""
-    return {k: json_list(v) for k, v in result.table().items()}
-
-
 def _broadening_consistent(V: np.ndarray, c: np.ndarray, g: Spreading, slices: Any, good: np.ndarray,
                            logfit: LogMFit, what: str) -> tuple[AngularFit, LogMFit]:
     """Iterate D2 → c_eff → slice M → straight log M(V) fit until D2 settles."""
@@ -466,3 +478,4 @@ def _broadening_consistent(V: np.ndarray, c: np.ndarray, g: Spreading, slices: A
     if fit is None:
         fit = slices(c)
     return fit, logfit
+
