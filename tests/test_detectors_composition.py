@@ -71,3 +71,29 @@ def test_copolymer_calibration_and_dn_dc():
     # DETECTORS.md K7 check (MEMORY method, DERIVED number): w_A 0.3, M_A 1.00e5, M_B 1.09e5 → 106 218
     assert 10 ** copolymer_log_M(0.3, 5.0, math.log10(1.09e5)) == pytest.approx(106_218, abs=0.5)
     assert copolymer_dn_dc(1.0, 0.185, 0.084) == pytest.approx(0.185)
+
+
+def test_analyse_composition_aligns_uv_to_ri():
+    # a UV detector 0.05 mL upstream (negative offset) with the same broadening; the copolymer
+    # drifts from w_A 0.2 to 0.4 across the peak (compositional heterogeneity)
+    from gpctools.detectors import DetectorSetup, DetectorTraces, analyse_composition
+
+    setup = DetectorSetup.from_mapping({
+        "ri": {"kind": "RI", "constant": K_RI, "dn_dc": 0.15},
+        "uv": {"kind": "UV", "response": 1000.0, "offset": -0.05},
+        "copolymer": {"names": ["styrene", "methyl acrylate"], "dn_dc": [0.185, 0.084],
+                      "uv_response": [2000.0, 50.0]},
+    })
+    V = np.arange(16.0, 28.0, 0.01)
+    c = np.exp(-0.5 * ((V - 22) / 0.8) ** 2) * 1e-4
+    wA = 0.3 + 0.1 * np.tanh((V - 22) / 0.8)
+    S_ri = K_RI * (0.185 * wA * c + 0.084 * (1 - wA) * c)
+    S_uv = 2000 * wA * c + 50 * (1 - wA) * c
+    uv_seen = np.interp(V + 0.05, V, S_uv)  # the UV sees slice V at V + Δ = V − 0.05 mL
+    r = analyse_composition(DetectorTraces(V, {"ri": S_ri, "uv": uv_seen}), setup, limits=(18, 26))
+    ok = np.isfinite(r.w_A)
+    inner = (V[(V >= 18) & (V <= 26)] > 18.2)[ok]  # beyond the interpolation edge
+    np.testing.assert_allclose(r.w_A[ok][inner], wA[(V >= 18) & (V <= 26)][ok][inner], atol=1e-6)  # linear interpolation of a smooth trace
+    # the overall composition equals the mass-weighted mean of w_A
+    sel = (V >= 18) & (V <= 26)
+    assert r.overall_w_A == pytest.approx(np.sum(wA[sel] * c[sel]) / np.sum(c[sel]), rel=1e-3)

@@ -30,7 +30,13 @@ from .broadening import (
     deconvolve,
     spreading_from_dispersity,
 )
-from .composition import Composition, composition, copolymer_dn_dc, copolymer_log_M
+from .composition import (
+    Composition,
+    analyse_composition,
+    composition,
+    copolymer_dn_dc,
+    copolymer_log_M,
+)
 from .instrument import (
     ConcentrationDetector,
     Copolymer,
@@ -88,7 +94,7 @@ __all__ = [
     "ConformationFit", "Copolymer", "Deconvolution", "Detector", "DetectorCalibration", "DetectorSetup",
     "DetectorTraces", "LightScatteringDetector", "LightScatteringOptions", "LightScatteringResult",
     "MarkHouwinkFit", "NarrowStandard", "PeakFit", "SetupCalibration", "Spreading", "Viscometer",
-    "ViscometryOptions", "ViscometryResult", "align", "analyse_light_scattering", "analyse_viscometry",
+    "ViscometryOptions", "ViscometryResult", "align", "analyse_composition", "analyse_light_scattering", "analyse_viscometry",
     "branch_points", "branching", "bridge_pressure", "broadening_factors", "calibrate_setup",
     "cld_broadening_bias", "coil_scattering_function", "composition", "concentration", "contraction_factor",
     "copolymer_dn_dc", "copolymer_log_M", "correct_averages", "deconvolve", "fit_angles", "fit_mark_houwink",

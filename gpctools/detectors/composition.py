@@ -29,11 +29,15 @@ import numpy as np
 from gpctools.errors import DataError
 
 from ._common import as_array, finite_or_none, positive
-from .instrument import Copolymer
+from ._slices import widths as slice_widths
+from ._slices import window_mask
+from .instrument import ConcentrationDetector, Copolymer, DetectorSetup
+from .traces import DetectorTraces, matched_pair
 
 __all__ = [
     "Composition",
     "composition",
+    "analyse_composition",
     "copolymer_dn_dc",
     "copolymer_log_M",
 ]
@@ -181,3 +185,43 @@ def copolymer_log_M(w_A: Any, log_M_A: Any, log_M_B: Any) -> np.ndarray:
     """
     w = np.asarray(w_A, dtype=float)
     return np.asarray(w * np.asarray(log_M_A, dtype=float) + (1.0 - w) * np.asarray(log_M_B, dtype=float))
+
+
+def analyse_composition(traces: DetectorTraces, setup: DetectorSetup, *, uv: str | None = None,
+                        limits: tuple[float, float] | None = None, threshold: float = 0.05,
+                        match_broadening: bool = True) -> Composition:
+    """Composition of one injection: the UV trace aligned and broadening-matched to the RI.
+
+    Parameters
+    ----------
+    traces : DetectorTraces
+        Baseline-corrected RI and UV traces.
+    setup : DetectorSetup
+        Needs an RI concentration detector with its ``constant``, a UV detector and
+        ``detectors.copolymer``.
+    uv : str, optional
+        Name of the UV detector (default: the only one).
+    limits : (float, float), optional
+        Integration limits on the RI axis [mL]; slices outside are dropped.
+    threshold, match_broadening
+        As in :func:`composition` and the light-scattering analysis.
+    """
+    ri = setup.concentration_detector
+    if ri.kind != "RI" or ri.constant is None:
+        raise DataError("composition needs an RI concentration detector with its constant "
+                        f"(detectors.{ri.name}.constant)")
+    if setup.copolymer is None:
+        raise DataError("composition needs the component constants: add [detectors.copolymer]",
+                        key="detectors.copolymer")
+    cands = [d for d in setup.detectors if isinstance(d, ConcentrationDetector) and d.kind == "UV"
+             and (uv is None or d.name == uv)]
+    if len(cands) != 1:
+        raise DataError(f"no UV detector named {uv!r}" if uv else "name the UV detector to use"
+                        if cands else "the set-up has no UV detector")
+    det = cands[0]
+    traces.check(setup, (ri.name, det.name))
+    V = traces.volume
+    s_ri, s_uv = matched_pair(V, traces[ri.name], traces[det.name], ri, det, match=match_broadening)
+    inside = window_mask(V, limits)
+    return composition(s_ri[inside], s_uv[inside], setup.copolymer, ri.constant,
+                       widths=slice_widths(V)[inside], threshold=threshold)
