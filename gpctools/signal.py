@@ -21,7 +21,16 @@ import numpy as np
 
 from .errors import DataError, SignalWarning
 
-__all__ = ["Baseline", "CorrectedSignal", "fit_baseline", "find_limits", "correct_signal", "noise_level"]
+__all__ = [
+    "Baseline",
+    "CorrectedSignal",
+    "Peaks",
+    "fit_baseline",
+    "find_limits",
+    "find_peaks",
+    "correct_signal",
+    "noise_level",
+]
 
 Window = tuple[float, float]
 
@@ -42,6 +51,13 @@ class Baseline:
         Standard deviation of the signal about the line inside the windows [signal units].
     automatic : bool
         True when the windows were chosen by :func:`fit_baseline` itself.
+    centres : (float, float)
+        Mean volume of the slices in each window [mL]: the line passes through the window
+        means at these volumes.
+    counts : (int, int)
+        Number of slices in each window [-]. With white noise of SD σ each window mean has
+        variance σ²/n, which is what the line's own error is made of
+        (:func:`gpctools.uncertainty.noise_uncertainty`).
     """
 
     windows: tuple[Window, Window]
@@ -49,6 +65,8 @@ class Baseline:
     intercept: float
     noise: float
     automatic: bool
+    centres: tuple[float, float] = (math.nan, math.nan)
+    counts: tuple[int, int] = (0, 0)
 
     def __call__(self, volume: Any) -> np.ndarray:
         return self.intercept + self.slope * np.asarray(volume, dtype=float)
@@ -68,7 +86,8 @@ class CorrectedSignal:
     """Baseline-corrected trace with the integration window and exclusions.
 
     ``mask`` selects the slices that enter the averages: inside ``limits`` and outside
-    every excluded region.
+    every excluded region. ``search`` is the volume range in which the main peak was
+    looked for [mL] (None: the whole record).
     """
 
     volume: np.ndarray
@@ -79,10 +98,12 @@ class CorrectedSignal:
     automatic_limits: bool
     mask: np.ndarray
     warnings: tuple[str, ...] = ()
+    search: Window | None = None
 
     def summary(self) -> dict[str, Any]:
         return {
             "baseline": self.baseline.summary(),
+            "peak search range [mL]": list(self.search) if self.search is not None else None,
             "limits [mL]": list(self.limits),
             "automatic limits": self.automatic_limits,
             "exclusions [mL]": [list(e) for e in self.exclusions],
@@ -154,8 +175,13 @@ def _smooth(signal: np.ndarray, width: int) -> np.ndarray:
     return (c[width:] - c[:-width]) / width
 
 
-def _line_through_windows(volume, signal, windows) -> tuple[float, float, float]:
+def _line_through_windows(
+    volume: np.ndarray, signal: np.ndarray, windows: Sequence[Window]
+) -> tuple[float, float, float, tuple[float, float], tuple[int, int]]:
+    """Slope, intercept and residual SD of the line through the two window means, with the
+    windows' mean volumes [mL] and slice counts."""
     pts = []
+    counts = []
     resid_parts = []
     for a, b in windows:
         sl = _window_slice(volume, a, b)
@@ -167,6 +193,7 @@ def _line_through_windows(volume, signal, windows) -> tuple[float, float, float]
                 f"({volume[0]:g}-{volume[-1]:g} mL)"
             )
         pts.append((float(volume[sl].mean()), float(signal[sl].mean())))
+        counts.append(int(count))
         resid_parts.append(sl)
     (v1, h1), (v2, h2) = pts
     slope = (h2 - h1) / (v2 - v1) if v2 != v1 else 0.0
@@ -174,15 +201,43 @@ def _line_through_windows(volume, signal, windows) -> tuple[float, float, float]
     vv = np.concatenate([volume[sl] for sl in resid_parts])
     r = np.concatenate([signal[sl] for sl in resid_parts]) - (intercept + slope * vv)
     noise = float(r.std(ddof=1)) if r.size > 2 else 0.0
-    return slope, intercept, noise
+    return slope, intercept, noise, (v1, v2), (counts[0], counts[1])
 
 
-def _peak_region(volume, corrected, valid, noise, ref_scale=None) -> tuple[int, int, int]:
-    """Indices (start, peak, end) of the main peak where the smoothed signal exceeds a threshold."""
+def _search_mask(volume: np.ndarray, valid: np.ndarray, search: Window | None) -> np.ndarray:
+    """Slices where the main peak may lie: not excluded and inside ``search`` [mL].
+
+    Falls back to every non-excluded slice when the search range holds fewer than 5 of
+    them (a calibrated range that misses the record is reported elsewhere).
+    """
+    if search is None:
+        return valid
+    sl = _window_slice(volume, float(search[0]), float(search[1]))
+    m = np.zeros(volume.shape, dtype=bool)
+    m[sl] = True
+    m &= valid
+    return m if int(m.sum()) >= 5 else valid
+
+
+def _peak_region(
+    volume: np.ndarray,
+    corrected: np.ndarray,
+    valid: np.ndarray,
+    noise: float,
+    ref_scale: float | None = None,
+    searchable: np.ndarray | None = None,
+) -> tuple[int, int, int]:
+    """Indices (start, peak, end) of the main peak where the smoothed signal exceeds a threshold.
+
+    The maximum is looked for among the ``searchable`` slices only (not excluded and, in
+    :func:`correct_signal` with ``search``, inside the calibrated range); the feet are then
+    found by walking outwards over every non-excluded slice.
+    """
     n = corrected.size
     width = max(3, n // 200)
     sm = _smooth(corrected, width)
-    candidates = np.where(valid, sm, -np.inf)
+    where = valid if searchable is None else searchable
+    candidates = np.where(where, sm, -np.inf)
     ipk = int(np.argmax(candidates))
     height = sm[ipk]
     scale = ref_scale if ref_scale is not None else (float(np.max(np.abs(corrected))) if n else 0.0)
@@ -191,8 +246,10 @@ def _peak_region(volume, corrected, valid, noise, ref_scale=None) -> tuple[int, 
     ):
         raise DataError(
             "no positive peak stands out of the noise (the smoothed signal never exceeds 5 "
-            "times its noise level); check the signal column, the baseline windows and the "
-            "injection"
+            "times its noise level"
+            + (f" between {volume[where][0]:.4g} and {volume[where][-1]:.4g} mL, where the main peak is "
+               "searched for" if searchable is not None and not np.array_equal(searchable, valid) else "")
+            + "); check the signal column, the baseline windows and the injection"
         )
     threshold = max(noise / math.sqrt(width), 1e-6 * height)
     # A foot is where the smoothed signal is at the threshold AND stays there: the mean of
@@ -233,6 +290,7 @@ def fit_baseline(
     *,
     exclusions: Sequence[Window] = (),
     noise: float | None = None,
+    search: Window | None = None,
 ) -> Baseline:
     """Fit a straight baseline through two signal-free windows.
 
@@ -254,6 +312,10 @@ def fit_baseline(
     noise : float, optional
         White-noise SD of the signal if already known (:func:`noise_level`), to save
         computing it again [signal units].
+    search : (low, high), optional
+        Volume range in which the main peak's maximum is looked for [mL] (automatic
+        windows only; :func:`correct_signal` passes the calibrated range). Its feet may lie
+        outside it.
 
     Returns
     -------
@@ -268,8 +330,8 @@ def fit_baseline(
         for a, b in windows:
             if not a < b:
                 raise DataError(f"baseline window {a:g}-{b:g} mL: start must be below end")
-        slope, intercept, noise = _line_through_windows(V, h, windows)
-        return Baseline(windows, slope, intercept, noise, automatic=False)
+        slope, intercept, noise, centres, counts = _line_through_windows(V, h, windows)
+        return Baseline(windows, slope, intercept, noise, automatic=False, centres=centres, counts=counts)
 
     valid = ~_window_mask(V, exclusions)
     span = V[-1] - V[0]
@@ -280,11 +342,11 @@ def fit_baseline(
     guess = (_place_window(V, valid, V[0], width, +1), _place_window(V, valid, V[-1], width, -1))
     if guess[0] is None or guess[1] is None:
         raise DataError("no room for baseline windows at the ends of the record; give baseline.windows")
-    slope, intercept, noise = _line_through_windows(V, h, guess)
+    slope, intercept, noise, _, _ = _line_through_windows(V, h, guess)
     sigma = noise_level(h[valid]) if noise is None else float(noise)
     ref_scale = float(np.max(np.abs(h)))
     corrected = h - (intercept + slope * V)
-    start, _ipk, end = _peak_region(V, corrected, valid, sigma, ref_scale)
+    start, _ipk, end = _peak_region(V, corrected, valid, sigma, ref_scale, _search_mask(V, valid, search))
     gap = 0.1 * (V[end] - V[start])
     # Preferred: just outside the feet with a gap; else touching the feet; else the
     # record ends (a foot found at 1e-6 of a noise-free peak can reach the record end).
@@ -305,8 +367,8 @@ def fit_baseline(
             f"{V[end]:.3g} mL, the record at {V[-1]:.3g} mL); give baseline.windows"
         )
     chosen = (before, after)
-    slope, intercept, noise = _line_through_windows(V, h, chosen)
-    return Baseline(chosen, slope, intercept, noise, automatic=True)
+    slope, intercept, noise, centres, counts = _line_through_windows(V, h, chosen)
+    return Baseline(chosen, slope, intercept, noise, automatic=True, centres=centres, counts=counts)
 
 
 def _place_window(V: np.ndarray, valid: np.ndarray, anchor: float, width: float, direction: int):
@@ -360,6 +422,7 @@ def find_limits(
     *,
     noise: float,
     exclusions: Sequence[Window] = (),
+    search: Window | None = None,
 ) -> Window:
     """Integration limits where the corrected signal returns to the baseline [mL].
 
@@ -370,13 +433,40 @@ def find_limits(
     the peak) raises Mn by several per cent, so the limits go as far as the signal can
     be told from zero, and the high-volume (low-M) limit one run of max(5, n/50) slices
     further still. Zero-mean noise integrated beyond that point does not bias the sums
-    because negative heights are kept.
+    because negative heights are kept. With ``search`` [mL] the main peak's maximum is
+    looked for inside that range only (the calibrated range, in :func:`correct_signal`).
     """
     V, c, order = _as_trace(volume, corrected)
     V, c = V[order], c[order]
     valid = ~_window_mask(V, exclusions)
-    start, _, end = _peak_region(V, c, valid, noise)
+    start, _, end = _peak_region(V, c, valid, noise, searchable=_search_mask(V, valid, search))
     return float(V[start]), float(V[end])
+
+
+def _larger_peak_outside(V: np.ndarray, corrected: np.ndarray, valid: np.ndarray, search: Window) -> str | None:
+    """A note when the smoothed signal peaks higher outside ``search`` than inside it.
+
+    Excluded regions are the analyst's known peaks (flow marker, solvent) and are not
+    reported. Heights are compared on the same moving average the peak search uses.
+    """
+    inside = _search_mask(V, valid, search)
+    if inside is valid:  # the search range did not apply
+        return None
+    outside = valid & ~inside
+    if not outside.any():
+        return None
+    sm = _smooth(corrected, max(3, V.size // 200))
+    i_in = int(np.argmax(np.where(inside, sm, -np.inf)))
+    i_out = int(np.argmax(np.where(outside, sm, -np.inf)))
+    h_in, h_out = float(sm[i_in]), float(sm[i_out])
+    if not (h_out > h_in > 0):
+        return None
+    return (
+        f"a peak {h_out / h_in:.2g} times as high as the polymer peak ({V[i_in]:.3f} mL) stands at "
+        f"{V[i_out]:.3f} mL, outside the calibrated range {search[0]:.3f}-{search[1]:.3f} mL; it was "
+        "not taken as the polymer. If it is a system or solvent peak, exclude it "
+        "(integration.exclude); if it is the polymer, extend the calibration"
+    )
 
 
 def correct_signal(
@@ -386,6 +476,7 @@ def correct_signal(
     windows: Sequence[Window] | None = None,
     limits: Window | None = None,
     exclusions: Sequence[Window] = (),
+    search: Window | None = None,
 ) -> CorrectedSignal:
     """Subtract a linear baseline and set the integration window.
 
@@ -402,6 +493,14 @@ def correct_signal(
         Integration limits [mL]; automatic when omitted (see :func:`find_limits`).
     exclusions : sequence of (start, end)
         Excluded regions [mL]: never part of the baseline or of the averages.
+    search : (low, high), optional
+        Where the polymer peak's maximum may lie [mL]; :func:`gpctools.batch.process_trace`
+        passes the calibrated range (peak volumes of the first and last standard). A
+        system or solvent peak outside it is then never taken for the polymer, however
+        large (issue 10: a system peak three times the polymer's height gave Mn = 28 g/mol).
+        When the automatic search runs (automatic windows or limits) and a larger peak
+        stands outside the range and outside every excluded region, a
+        :class:`~gpctools.errors.SignalWarning` says where. None searches the whole record.
 
     Returns
     -------
@@ -415,11 +514,16 @@ def correct_signal(
         if not a < b:
             raise DataError(f"excluded region {a:g}-{b:g} mL: start must be below end")
     sigma = noise_level(h[~_window_mask(V, exclusions)]) if (windows is None or limits is None) else None
-    base = fit_baseline(V, h, windows, exclusions=exclusions, noise=sigma)
+    base = fit_baseline(V, h, windows, exclusions=exclusions, noise=sigma, search=search)
     corrected = h - base(V)
     notes: list[str] = []
+    if search is not None and sigma is not None:
+        note = _larger_peak_outside(V, corrected, ~_window_mask(V, exclusions), search)
+        if note:
+            notes.append(note)
     if limits is None:
-        limits = find_limits(V, corrected, noise=sigma, exclusions=exclusions)
+        assert sigma is not None  # computed above whenever the limits are automatic
+        limits = find_limits(V, corrected, noise=sigma, exclusions=exclusions, search=search)
         # never integrate into the baseline windows themselves
         (_, before_end), (after_start, _) = base.windows
         lo = max(limits[0], before_end) if before_end < limits[1] else limits[0]
@@ -465,4 +569,142 @@ def correct_signal(
         automatic_limits=auto,
         mask=mask[back],
         warnings=tuple(notes),
+        search=None if search is None else (float(search[0]), float(search[1])),
+    )
+
+
+# -- several peaks ----------------------------------------------------------------------------
+@dataclass(frozen=True)
+class Peaks:
+    """Maxima of a corrected trace and the valleys that separate them.
+
+    Attributes
+    ----------
+    apex : tuple of float
+        Volumes of the maxima, increasing (highest M first) [mL].
+    height : tuple of float
+        Smoothed heights at the maxima [signal units].
+    valleys : tuple of float
+        Volumes of the lowest smoothed point between consecutive maxima [mL]
+        (``len(apex) - 1`` of them).
+    valley_depth, min_height : float
+        The criterion used (fractions, [-]).
+    smoothing : int
+        Width of the moving average, applied twice [slices].
+    """
+
+    apex: tuple[float, ...]
+    height: tuple[float, ...]
+    valleys: tuple[float, ...]
+    valley_depth: float
+    min_height: float
+    smoothing: int
+
+    @property
+    def count(self) -> int:
+        """Number of peaks [-]."""
+        return len(self.apex)
+
+    def summary(self) -> dict[str, Any]:
+        return {
+            "peaks": self.count,
+            "apex [mL]": list(self.apex),
+            "valleys [mL]": list(self.valleys),
+            "valley depth [-]": self.valley_depth,
+            "min height [-]": self.min_height,
+            "smoothing [slices]": self.smoothing,
+        }
+
+
+def find_peaks(
+    volume: Any,
+    signal: Any,
+    *,
+    mask: Any = None,
+    noise: float | None = None,
+    valley_depth: float = 0.10,
+    min_height: float = 0.05,
+) -> Peaks:
+    """Maxima of a baseline-corrected trace separated by real valleys.
+
+    The trace is smoothed by a moving average of w = max(3, n/200) slices applied twice
+    (a triangular kernel; its noise SD is σ_s = σ·√(Σk²) for white noise σ). Two
+    neighbouring maxima count as separate peaks when the lowest smoothed point between
+    them, the valley v, satisfies both
+
+        min(h1, h2) − v ≥ valley_depth · min(h1, h2)   and   min(h1, h2) − v ≥ 5·σ_s,
+
+    and every peak stands at least ``min_height`` of the highest one. Otherwise the lower
+    maximum is merged into its neighbour and the test is repeated. The relative depth
+    keeps shoulders and ripples on the flanks from being called peaks; the 5·σ_s term
+    keeps noise from making a valley on a flat top (a 5σ excursion of the smoothed
+    trace has a one-sided probability below 3·10⁻⁷ per independent stretch;
+    docs/science.md, section 19.5).
+
+    Parameters
+    ----------
+    volume, signal : array_like
+        The trace: volumes [mL] (any order) and baseline-corrected heights [signal units].
+    mask : array_like of bool, optional
+        Slices to search (the integration window); all by default.
+    noise : float, optional
+        White-noise SD of the signal [signal units]; :func:`noise_level` of the masked
+        slices by default.
+    valley_depth : float
+        Required dip below the lower of two maxima, as a fraction of it [-] (default
+        0.10: the valley at most 90 % of the lower peak).
+    min_height : float
+        Smallest peak, as a fraction of the highest [-] (default 0.05).
+
+    Returns
+    -------
+    Peaks
+    """
+    from scipy.signal import find_peaks as _scipy_find_peaks  # type: ignore[import-untyped]
+
+    V, h, order = _as_trace(volume, signal)
+    V, h = V[order], h[order]
+    sel = np.ones(V.shape, dtype=bool) if mask is None else np.asarray(mask, dtype=bool)[order]
+    if not (0.0 < valley_depth < 1.0 and 0.0 <= min_height < 1.0):
+        raise DataError("valley_depth must lie between 0 and 1 and min_height between 0 and 1")
+    idx = np.flatnonzero(sel)
+    width = max(3, V.size // 200) | 1
+    empty = Peaks((), (), (), valley_depth, min_height, width)
+    if idx.size < 3:
+        return empty
+    sigma = noise_level(h[idx]) if noise is None else float(noise)
+    box = np.full(width, 1.0 / width)
+    sigma_s = sigma * math.sqrt(float((np.convolve(box, box) ** 2).sum()))
+    sm = _smooth(_smooth(h, width), width)[idx]
+    top = float(sm.max())
+    if not top > 0:
+        return empty
+    # Candidate maxima: scipy's prominence prunes the noise wiggles; the highest point is
+    # always a candidate (scipy skips maxima at the ends of the array).
+    cand, _ = _scipy_find_peaks(sm, prominence=max(5.0 * sigma_s, 1e-12 * top))
+    cand = sorted(set(int(c) for c in cand) | {int(np.argmax(sm))})
+    keep = [c for c in cand if sm[c] >= min_height * top]
+    while len(keep) > 1:
+        worst, worst_margin = None, math.inf
+        for j in range(len(keep) - 1):
+            a, b = keep[j], keep[j + 1]
+            v = float(sm[a:b + 1].min())
+            low = min(float(sm[a]), float(sm[b]))
+            margin = min(low - v - valley_depth * low, low - v - 5.0 * sigma_s)
+            if margin < 0 and margin < worst_margin:
+                worst, worst_margin = j, margin
+        if worst is None:
+            break
+        a, b = keep[worst], keep[worst + 1]
+        keep.remove(a if sm[a] < sm[b] else b)
+    valleys = []
+    for a, b in zip(keep[:-1], keep[1:]):
+        valleys.append(float(V[idx[a + int(np.argmin(sm[a:b + 1]))]]))
+    return Peaks(
+        apex=tuple(float(V[idx[k]]) for k in keep),
+        height=tuple(float(sm[k]) for k in keep),
+        valleys=tuple(valleys),
+        valley_depth=float(valley_depth),
+        min_height=float(min_height),
+        smoothing=width,
     )
