@@ -358,6 +358,74 @@ def _half_height_run(V: np.ndarray, sm: np.ndarray, i0: int) -> tuple[float, boo
     return float(vb - va), True
 
 
+@dataclass(frozen=True)
+class _MarkerCandidate:
+    """The largest excursion in the search window: its smoothed height [signal units],
+    width at half height [mL], whether it lies wholly inside the window, and the top fit."""
+
+    height: float
+    fwhm: float
+    inside: bool
+    position: float
+    stderr: float
+    fitted: bool
+    spacing: float
+
+
+def _marker_candidate(volume: np.ndarray, signal: np.ndarray, window: tuple[float, float]) -> _MarkerCandidate:
+    """Geometry of the best marker candidate in ``window`` (see :func:`_find_marker`)."""
+    m = (volume >= window[0]) & (volume <= window[1])
+    if m.sum() < 5:
+        raise DataError(
+            f"flow-marker search window {window[0]:g}-{window[1]:g} mL holds too few slices; "
+            "set flow_marker.search around the marker peak"
+        )
+    order = np.argsort(volume[m], kind="stable")
+    V = volume[m][order]
+    h = signal[m][order]
+    k = max(1, V.size // 20)
+    line = np.interp(V, [V[:k].mean(), V[-k:].mean()], [h[:k].mean(), h[-k:].mean()])
+    dev = h - line
+    from .distribution import _smoothed
+
+    reach = max(3, V.size // 50)
+    sm = _smoothed(dev, reach)
+    if abs(sm.min()) > abs(sm.max()):
+        dev, sm = -dev, -sm
+    i0 = int(np.argmax(sm))
+    # the width on a light (3-point) smoothing, so that a one-slice spike stays narrow
+    narrow = _smoothed(dev, 3)
+    lo = max(0, i0 - reach)
+    j0 = lo + int(np.argmax(narrow[lo: i0 + reach + 1]))
+    fwhm, inside = _half_height_run(V, narrow, j0)
+    top = peak_top(V, dev, fraction=0.5)
+    spacing = float(np.median(np.diff(V))) if V.size > 1 else 0.0
+    return _MarkerCandidate(float(sm[i0]), fwhm, inside, float(top.position), float(top.stderr),
+                            bool(top.fitted and window[0] < top.position < window[1]), spacing)
+
+
+def _judge_marker(
+    cand: _MarkerCandidate, window: tuple[float, float], noise: float, options: FlowMarkerOptions
+) -> MarkerSearch:
+    """Accept or refuse a candidate by height over ``noise`` [signal units], width and fit."""
+    snr = cand.height / noise if noise > 0 else math.inf
+    lo, hi = options.fwhm if options.fwhm is not None else (5.0 * cand.spacing, 0.5 * (window[1] - window[0]))
+    reason = ""
+    if not snr >= options.min_signal_to_noise:
+        reason = (f"the largest peak stands {snr:.1f} noise SDs high, {options.min_signal_to_noise:g} needed "
+                  "(flow_marker.min_signal_to_noise)")
+    elif not cand.inside:
+        reason = "the largest peak is cut off by the search window or is a baseline hump"
+    elif not (lo <= cand.fwhm <= hi):
+        reason = (f"the largest peak is {cand.fwhm:.3g} mL wide at half height, outside the plausible "
+                  f"{lo:.3g}-{hi:.3g} mL (flow_marker.fwhm)")
+    elif not cand.fitted:
+        reason = "no maximum could be fitted over the top of the largest peak"
+    if reason:
+        return MarkerSearch(MARKER_NOT_FOUND, None, snr, cand.fwhm, math.nan, reason)
+    return MarkerSearch(MARKER_FOUND, cand.position, snr, cand.fwhm, cand.stderr, "")
+
+
 def _find_marker(
     volume: np.ndarray,
     signal: np.ndarray,
@@ -391,52 +459,10 @@ def _find_marker(
     MarkerSearch
         Status ``"found"`` with the position, or ``"not found"`` with the reason.
     """
-    opts = options or FlowMarkerOptions()
-    m = (volume >= window[0]) & (volume <= window[1])
-    if m.sum() < 5:
-        raise DataError(
-            f"flow-marker search window {window[0]:g}-{window[1]:g} mL holds too few slices; "
-            "set flow_marker.search around the marker peak"
-        )
-    order = np.argsort(volume[m], kind="stable")
-    V = volume[m][order]
-    h = signal[m][order]
-    k = max(1, V.size // 20)
-    line = np.interp(V, [V[:k].mean(), V[-k:].mean()], [h[:k].mean(), h[-k:].mean()])
-    dev = h - line
-    from .distribution import _smoothed
-
-    sm = _smoothed(dev, max(3, V.size // 50))
-    if abs(sm.min()) > abs(sm.max()):
-        dev, sm = -dev, -sm
-    i0 = int(np.argmax(sm))
-    # the width on a light (3-point) smoothing, so that a one-slice spike stays narrow
-    narrow = _smoothed(dev, 3)
-    j0 = max(0, i0 - V.size // 50) + int(np.argmax(narrow[max(0, i0 - V.size // 50): i0 + V.size // 50 + 1]))
-    fwhm, inside = _half_height_run(V, narrow, j0)
-    top = peak_top(V, dev, fraction=0.5)
-    # The height for the test is the smoothed one: a fit over the few points of a noise
-    # spike can overshoot, the moving average cannot.
-    snr = float(sm[i0]) / noise if noise > 0 else math.inf
-    spacing = float(np.median(np.diff(V))) if V.size > 1 else 0.0
-    lo, hi = opts.fwhm if opts.fwhm is not None else (5.0 * spacing, 0.5 * (window[1] - window[0]))
-    reason = ""
-    if not snr >= opts.min_signal_to_noise:
-        reason = (f"the largest peak stands {snr:.1f} noise SDs high, {opts.min_signal_to_noise:g} needed "
-                  "(flow_marker.min_signal_to_noise)")
-    elif not inside:
-        reason = "the largest peak is cut off by the search window or is a baseline hump"
-    elif not (lo <= fwhm <= hi):
-        reason = (f"the largest peak is {fwhm:.3g} mL wide at half height, outside the plausible "
-                  f"{lo:.3g}-{hi:.3g} mL (flow_marker.fwhm)")
-    elif not (top.fitted and window[0] < top.position < window[1]):
-        reason = "no maximum could be fitted over the top of the largest peak"
-    if reason:
-        return MarkerSearch(MARKER_NOT_FOUND, None, snr, fwhm, math.nan, reason)
-    return MarkerSearch(MARKER_FOUND, float(top.position), snr, fwhm, top.stderr, "")
+    return _judge_marker(_marker_candidate(volume, signal, window), window, noise, options or FlowMarkerOptions())
 
 
-def _marker_noise(V: np.ndarray, h: np.ndarray, method: Method) -> float:
+def _marker_noise(V: np.ndarray, h: np.ndarray, method: Method, white: float | None = None) -> float:
     """Noise SD of the raw trace for marker recognition [signal units].
 
     The larger of the point-to-point (white) estimate over the whole record and the
@@ -444,7 +470,7 @@ def _marker_noise(V: np.ndarray, h: np.ndarray, method: Method) -> float:
     the second also sees slow, correlated noise, which differences cannot, so a wander
     of the baseline is not taken for a marker.
     """
-    sigma = noise_level(h)
+    sigma = noise_level(h) if white is None else float(white)
     search = method.marker_search
     try:
         with warnings.catch_warnings():
@@ -464,7 +490,13 @@ def _flow_correction(
     if marker_observed is not None:
         marker = MarkerSearch(MARKER_GIVEN, float(marker_observed))
     elif method.marker_search is not None:
-        marker = _find_marker(V, h, method.marker_search, noise=_marker_noise(V, h, method), options=method.marker)
+        # The white-noise SD is cheap and never larger than the full estimate: a candidate
+        # it already refuses is refused; only a candidate it accepts is judged again.
+        cand = _marker_candidate(V, h, method.marker_search)
+        white = noise_level(h)
+        marker = _judge_marker(cand, method.marker_search, white, method.marker)
+        if marker.status == MARKER_FOUND:
+            marker = _judge_marker(cand, method.marker_search, _marker_noise(V, h, method, white), method.marker)
         if marker.status == MARKER_NOT_FOUND:
             where = f"{file}: " if file else ""
             text = (f"{where}no flow marker recognised in {method.marker_search[0]:g}-"

@@ -106,7 +106,10 @@ def moment_sums(M: Any, w: Any) -> dict[int, float]:
     M = np.asarray(M, dtype=float)
     w = np.asarray(w, dtype=float)
     _check_slices(M, w)
-    return {k: float((w * M**k).sum()) for k in range(-1, 4)}
+    wM = w * M
+    wM2 = wM * M
+    return {-1: float((w / M).sum()), 0: float(w.sum()), 1: float(wM.sum()), 2: float(wM2.sum()),
+            3: float((wM2 * M).sum())}
 
 
 def averages_with_reasons(M: Any, w: Any) -> tuple[dict[str, float], dict[str, str]]:
