@@ -226,12 +226,16 @@ def _peak_region(
     noise: float,
     ref_scale: float | None = None,
     searchable: np.ndarray | None = None,
+    stop_at_outside_peaks: bool = False,
 ) -> tuple[int, int, int]:
     """Indices (start, peak, end) of the main peak where the smoothed signal exceeds a threshold.
 
     The maximum is looked for among the ``searchable`` slices only (not excluded and, in
     :func:`correct_signal` with ``search``, inside the calibrated range); the feet are then
-    found by walking outwards over every non-excluded slice.
+    found by walking outwards over every non-excluded slice. With
+    ``stop_at_outside_peaks`` a foot that lies beyond a separate peak outside the search
+    range is moved back to the valley before that peak (:func:`_valley_before_outside_peak`):
+    a system peak touching the polymer's tail is then not integrated with it.
     """
     n = corrected.size
     width = max(3, n // 200)
@@ -271,6 +275,15 @@ def _peak_region(
     hi = np.minimum(rc + run, n)
     ok = ((c[hi] - c[rc]) / (hi - rc) <= threshold) | ~valid[rc]
     end = int(rc[ok][0]) if ok.any() else n - 1
+    if stop_at_outside_peaks and searchable is not None:
+        sigma_s = noise / math.sqrt(width)
+        outside = valid & ~searchable
+        cut = _valley_before_outside_peak(sm, ipk, start, outside, sigma_s)
+        if cut is not None:
+            start = cut
+        cut = _valley_before_outside_peak(sm, ipk, end, outside, sigma_s)
+        if cut is not None:
+            return start, ipk, cut
     # Past the low-M (high-volume) foot the tail is below the noise but not zero, and it
     # carries many chains: integrating zero-mean noise there costs nothing in bias
     # (negative heights are kept) and helps Mn, so go one run further out. Not on the
@@ -281,6 +294,49 @@ def _peak_region(
         if end <= ipk:
             break
     return start, ipk, end
+
+
+def _valley_before_outside_peak(
+    sm: np.ndarray, ipk: int, foot: int, outside: np.ndarray, sigma_s: float
+) -> int | None:
+    """The valley between the main peak and a separate peak beyond the search range, or None.
+
+    Walking from the main peak ``ipk`` to its ``foot``, the highest smoothed point among
+    the ``outside`` slices is a separate peak when the lowest point v between the two
+    maxima dips below the lower of them by 10 % of it and by 5 noise SDs of the smoothed
+    signal (the valley criterion of :func:`find_peaks`). A tail that only falls never
+    rises again and is never cut.
+    """
+    if foot == ipk:
+        return None
+    step = 1 if foot > ipk else -1
+    idx = np.arange(ipk, foot + step, step)
+    seg = sm[idx]
+    out = np.flatnonzero(outside[idx])
+    if out.size == 0:
+        return None
+    k = int(out[np.argmax(seg[out])])
+    v = int(np.argmin(seg[: k + 1]))
+    low = min(float(seg[0]), float(seg[k]))
+    if v in (0, k) or low - float(seg[v]) < max(0.10 * low, 5.0 * sigma_s):
+        return None
+    return int(idx[v])
+
+
+def _busy(sm: np.ndarray, start: int, end: int, threshold: float, margin: int) -> np.ndarray:
+    """Slices outside [start, end] where the smoothed signal stands above ``threshold``,
+    widened by ``margin`` slices on each side: other peaks, where no baseline window goes."""
+    busy = sm > threshold
+    busy[start:end + 1] = False
+    if busy.any() and margin > 0:
+        c = np.concatenate(([0], np.cumsum(busy.astype(np.int64))))
+        n = busy.size
+        i = np.arange(n)
+        lo = np.maximum(i - margin, 0)
+        hi = np.minimum(i + margin + 1, n)
+        busy = (c[hi] - c[lo]) > 0
+        busy[start:end + 1] = False
+    return busy
 
 
 def fit_baseline(
@@ -346,14 +402,23 @@ def fit_baseline(
     sigma = noise_level(h[valid]) if noise is None else float(noise)
     ref_scale = float(np.max(np.abs(h)))
     corrected = h - (intercept + slope * V)
-    start, _ipk, end = _peak_region(V, corrected, valid, sigma, ref_scale, _search_mask(V, valid, search))
+    start, ipk, end = _peak_region(V, corrected, valid, sigma, ref_scale, _search_mask(V, valid, search))
     gap = 0.1 * (V[end] - V[start])
+    # Other peaks (system, solvent) that are not excluded are no place for a window: where
+    # the smoothed first-guess signal stands 5 noise SDs (and 0.1 % of the peak) high,
+    # widened by a run of slices, windows are not placed when there is room elsewhere.
+    w_sm = max(3, V.size // 200)
+    sm = _smooth(corrected, w_sm)
+    free = valid & ~_busy(sm, start, end, max(5.0 * sigma / math.sqrt(w_sm), 1e-3 * float(sm[ipk])),
+                          max(5, V.size // 50))
     # Preferred: just outside the feet with a gap; else touching the feet; else the
     # record ends (a foot found at 1e-6 of a noise-free peak can reach the record end).
-    before = (_place_window(V, valid, V[start] - gap, width, -1)
+    before = (_place_window(V, free, V[start] - gap, width, -1)
+              or _place_window(V, valid, V[start] - gap, width, -1)
               or _place_window(V, valid, V[start], width, -1)
               or _place_window(V, valid, V[0], width, +1))
-    after = (_place_window(V, valid, V[end] + gap, width, +1)
+    after = (_place_window(V, free, V[end] + gap, width, +1)
+             or _place_window(V, valid, V[end] + gap, width, +1)
              or _place_window(V, valid, V[end], width, +1)
              or _place_window(V, valid, V[-1], width, -1))
     if before is None:
@@ -434,12 +499,15 @@ def find_limits(
     be told from zero, and the high-volume (low-M) limit one run of max(5, n/50) slices
     further still. Zero-mean noise integrated beyond that point does not bias the sums
     because negative heights are kept. With ``search`` [mL] the main peak's maximum is
-    looked for inside that range only (the calibrated range, in :func:`correct_signal`).
+    looked for inside that range only (the calibrated range, in :func:`correct_signal`),
+    and a limit stops at the valley before a separate peak outside that range instead
+    of running through it.
     """
     V, c, order = _as_trace(volume, corrected)
     V, c = V[order], c[order]
     valid = ~_window_mask(V, exclusions)
-    start, _, end = _peak_region(V, c, valid, noise, searchable=_search_mask(V, valid, search))
+    start, _, end = _peak_region(V, c, valid, noise, searchable=_search_mask(V, valid, search),
+                                 stop_at_outside_peaks=search is not None)
     return float(V[start]), float(V[end])
 
 
