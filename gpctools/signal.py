@@ -2,11 +2,16 @@
 
 The baseline is a straight line through the means of two signal-free windows, one before
 the polymer elutes and one after it but before solvent, system or flow-marker peaks
-(SCIENCE.md section 1; a mean over each window rather than a single point, common
+(docs/science.md, section 1.4; a mean over each window rather than a single point, common
 practice). When no windows are given they are chosen automatically and the choice is
 reported. Integration limits are either given or found where the corrected signal returns
 to the baseline. Negative heights after subtraction are noise and are kept (see
 :mod:`gpctools.distribution` for how the sums treat them).
+
+The main peak is searched for inside a given volume range (the calibrated range, passed
+by :func:`gpctools.batch.process_trace`), so that a larger solvent or system peak outside
+it is never taken for the polymer (docs/science.md, section 19.3); :func:`find_peaks`
+counts the peaks of a trace by a valley criterion that noise cannot meet (section 19.5).
 """
 
 from __future__ import annotations

@@ -12,6 +12,7 @@ centres put into the trace. Seeds are fixed; each tolerance has its reason besid
 
 from __future__ import annotations
 
+import json
 import math
 import warnings
 from dataclasses import replace
@@ -146,6 +147,18 @@ def test_marker_present_within_0_001_mL(sign: float) -> None:
         # section 2.2); noise and automatic limits add ≤ 0.1 % on Mw (observed): 0.2 %.
         assert res.distribution.Mw == pytest.approx(t["Mw"], rel=0.002)
     assert max(abs(e) for e in errors) <= 0.001  # the acceptance itself
+
+
+def test_marker_given_in_the_sheet_is_used_as_given() -> None:
+    m = method(**MARKER_METHOD)
+    raw = gaussian(V, **POLYMER) + np.random.default_rng(4).normal(0.0, 0.24, V.size)
+    res = process_trace(V, raw, m, marker_observed=22.65)
+    row = res.row()
+    # derived: the factor is reference/observed exactly
+    assert row[C.FLOW_MARKER] == 22.65 and row[C.FLOW_MARKER_STATUS] == "given"
+    assert row[C.FLOW_FACTOR] == REF / 22.65
+    plain = process_trace(V, raw, replace(m, marker_reference=None, marker_search=None))
+    assert plain.row()[C.FLOW_MARKER_STATUS] == "not used" and plain.flow_factor == 1.0
 
 
 def test_marker_of_implausible_width_is_refused() -> None:
@@ -294,6 +307,7 @@ def test_bimodal_blend_split_at_the_valley_against_closed_forms() -> None:
         assert part.Mw == pytest.approx(t["Mw"], rel=0.01)
         assert part.area_pct == pytest.approx(100 * phi, abs=0.1)
         assert part.Mp == pytest.approx(t["Mp"], rel=1e-4)  # top fit on a noise-free Gaussian
+    json.dumps(res.summary(), allow_nan=False)  # every part of the summary is JSON-safe
     # the whole sample follows from the parts (docs/science.md, section 1.6, derived)
     phis = [p.area_pct / 100 for p in res.parts]
     assert 1 / sum(f / p.Mn for f, p in zip(phis, res.parts)) == pytest.approx(res.distribution.Mn, rel=1e-9)
