@@ -328,10 +328,13 @@ def _valley_before_outside_peak(
     return int(idx[v])
 
 
-def _busy(sm: np.ndarray, start: int, end: int, threshold: float, margin: int) -> np.ndarray:
-    """Slices outside [start, end] where the smoothed signal stands above ``threshold``,
-    widened by ``margin`` slices on each side: other peaks, where no baseline window goes."""
-    busy = sm > threshold
+def _busy(sm: np.ndarray, valid: np.ndarray, start: int, end: int, threshold: float, margin: int) -> np.ndarray:
+    """Slices outside [start, end] where the smoothed signal stands more than ``threshold``
+    above or below the first-guess line, widened by ``margin`` slices on each side: other
+    peaks and dips (a negative refractive-index marker), where no baseline window goes.
+    Excluded regions (not ``valid``) are the analyst's known peaks and are left to the
+    exclusions."""
+    busy = (np.abs(sm) > threshold) & valid
     busy[start:end + 1] = False
     if busy.any() and margin > 0:
         c = np.concatenate(([0], np.cumsum(busy.astype(np.int64))))
@@ -409,12 +412,13 @@ def fit_baseline(
     corrected = h - (intercept + slope * V)
     start, ipk, end = _peak_region(V, corrected, valid, sigma, ref_scale, _search_mask(V, valid, search))
     gap = 0.1 * (V[end] - V[start])
-    # Other peaks (system, solvent) that are not excluded are no place for a window: where
-    # the smoothed first-guess signal stands 5 noise SDs (and 0.1 % of the peak) high,
-    # widened by a run of slices, windows are not placed when there is room elsewhere.
+    # Other peaks and dips (system, solvent, a marker) that are not excluded are no place
+    # for a window: where the smoothed first-guess signal stands 5 noise SDs (and 0.1 % of
+    # the peak) off the line, widened by a run of slices, windows are not placed when
+    # there is room elsewhere.
     w_sm = max(3, V.size // 200)
     sm = _smooth(corrected, w_sm)
-    free = valid & ~_busy(sm, start, end, max(5.0 * sigma / math.sqrt(w_sm), 1e-3 * float(sm[ipk])),
+    free = valid & ~_busy(sm, valid, start, end, max(5.0 * sigma / math.sqrt(w_sm), 1e-3 * float(sm[ipk])),
                           max(5, V.size // 50))
     # Preferred: just outside the feet with a gap; else touching the feet; else the
     # record ends (a foot found at 1e-6 of a noise-free peak can reach the record end).
