@@ -43,6 +43,7 @@ References
 from __future__ import annotations
 
 import math
+from abc import ABC, abstractmethod
 from dataclasses import dataclass, field
 from typing import ClassVar, Protocol
 
@@ -198,7 +199,7 @@ def _sig(x: float | None, n: int = 4) -> str:
 # --------------------------------------------------------------------------- the base
 
 
-class Hypothesis:
+class Hypothesis(ABC):
     """One cause: a parameter grid, a model μ(θ) of the observations and an explanation.
 
     Class attributes
@@ -232,10 +233,12 @@ class Hypothesis:
         """Whether the cause can be evaluated for these parameters."""
         return True
 
+    @abstractmethod
     def grid(self) -> np.ndarray:
         """Grid of θ searched before the bounded refinement."""
         raise NotImplementedError
 
+    @abstractmethod
     def predict(self, theta: float, model: AnchoredModel) -> dict[str, float]:
         """μ(θ) for each observation it affects (others are predicted as 0)."""
         raise NotImplementedError
@@ -248,6 +251,7 @@ class Hypothesis:
         """The reported value of the fitted parameter, in ``unit``."""
         return theta
 
+    @abstractmethod
     def explain(self, value: float, ev: Evidence) -> Explanation:
         """Text, numbers and next step for the best-fit ``value``."""
         raise NotImplementedError
