@@ -1,73 +1,67 @@
-"""Synthetic chromatograms from known molar-mass distributions (demo data and tests).
+"""The one generator of synthetic data: exports, run series and diagnosis cases.
 
-A distribution is a vectorised callable ``f(M) -> dw/dlog10 M`` normalised to unit area
-over log10 M. Through a calibration log10 M(V) the concentration-detector trace is the
-mass per unit volume,
+Everything here is the *truth side* of tests and of the demo (``gpctools.demo`` holds the
+invented scenarios and writes their files), built from the chain-length formulas of
+:mod:`gpctools.chainlength` and independently of the analysis code.
+
+**Exports.** A distribution is a vectorised callable ``f(M) -> dw/dlog10 M`` normalised to
+unit area over log10 M (a :class:`~gpctools.chainlength.DistributionModel`, whose exact
+averages are in ``f.averages``). Through a calibration log10 M(V) the
+concentration-detector trace is the mass per unit volume,
 
     h(V) = dw/dlogM (M(V)) · |d log10 M / dV|,
 
 to which a baseline offset, a linear drift, white noise and extra peaks (solvent, flow
-marker) can be added. Analytic averages of each distribution are exposed as
-``f.averages`` so a test or the demo can compare the analysis with the truth.
+marker) can be added (:func:`chromatogram`), and which :func:`write_chromatogram` writes
+as a slice export in several text dialects.
 
 Distributions (all from their standard definitions):
 
 - Schulz-Zimm weight distribution f_w(M) ∝ M^b e^(-aM) with a = b/Mn (IUPAC Gold Book,
   "Schulz-Zimm distribution"): Mn = b/a, Mw = (b+1)/a, Mz = (b+2)/a, Mz+1 = (b+3)/a.
-- Most probable (Flory) distribution: Schulz-Zimm with b = 1.
+- Most probable (Flory), instantaneous with mixed termination, and cumulative over
+  conversion: :mod:`gpctools.chainlength`.
 - Log-normal in M: dw/dlnM Gaussian with mean μ and SD s: Mp(dw/dlogM) = e^μ,
   Mn = e^(μ - s²/2), Mw = e^(μ + s²/2), Mz = e^(μ + 3s²/2), Mz+1 = e^(μ + 5s²/2), Đ = e^(s²).
+
+**Run series.** :func:`simulate_series` gives the rows of a run-series sheet (Mn, Mw of the
+cumulative most-probable polymer at each run's conversion); for chromatograms of a run,
+pass :func:`gpctools.chainlength.cumulative_most_probable` to :func:`chromatogram`.
+
+**Diagnosis cases.** The exports of a case's lots are Schulz-Zimm traces with the lots'
+Mn and Mw (:func:`schulz_zimm_from_averages`); the lots' values come from the recipe
+model (:mod:`gpctools.kinetics.predict`), which this module does not import, so that it
+stays below every analysis layer.
 """
 
 from __future__ import annotations
 
 import math
-from collections.abc import Callable, Sequence
-from dataclasses import dataclass
+from collections.abc import Callable, Mapping, Sequence
 from pathlib import Path
 from typing import Any
 
 import numpy as np
-from scipy.special import gammaln
+from scipy.special import gammaln  # type: ignore[import-untyped]
 
 from .calibration import Calibration, fit_calibration
+from .chainlength import DistributionModel, cumulative_averages
 from .errors import DataError
 
 __all__ = [
-    "DistributionModel",
     "schulz_zimm",
-    "most_probable",
+    "schulz_zimm_from_averages",
     "lognormal",
     "mixture",
     "chromatogram",
     "default_calibration",
     "DEFAULT_STANDARDS",
     "write_chromatogram",
+    "averages_from_dwdlogM",
+    "simulate_series",
 ]
 
 LN10 = math.log(10.0)
-
-
-@dataclass(frozen=True)
-class DistributionModel:
-    """A callable dw/dlog10 M with its exact averages.
-
-    Attributes
-    ----------
-    func : callable
-        ``func(M) -> dw/dlog10 M`` for an array of M [g/mol].
-    averages : dict
-        Exact ``Mn``, ``Mw``, ``Mz``, ``Mz1`` [g/mol], ``dispersity`` [-] and the
-        dw/dlogM peak ``Mp_dwdlogM`` [g/mol].
-    label : str
-    """
-
-    func: Callable[[np.ndarray], np.ndarray]
-    averages: dict[str, float]
-    label: str
-
-    def __call__(self, M: Any) -> np.ndarray:
-        return self.func(np.asarray(M, dtype=float))
 
 
 def schulz_zimm(Mn: float, b: float) -> DistributionModel:
@@ -98,10 +92,14 @@ def schulz_zimm(Mn: float, b: float) -> DistributionModel:
     return DistributionModel(f, avg, f"Schulz-Zimm (Mn={Mn:g}, b={b:g})")
 
 
-def most_probable(Mn: float) -> DistributionModel:
-    """Most probable (Flory) distribution, Schulz-Zimm with b = 1: Mw = 2Mn, Mz = 3Mn."""
-    m = schulz_zimm(Mn, 1.0)
-    return DistributionModel(m.func, m.averages, f"most probable (Mn={Mn:g})")
+def schulz_zimm_from_averages(Mn: float, Mw: float) -> DistributionModel:
+    """Schulz-Zimm distribution with given Mn and Mw [g/mol], Mw > Mn.
+
+    Đ = (b+1)/b gives b = 1/(Mw/Mn − 1) (IUPAC Gold Book, "Schulz-Zimm distribution").
+    """
+    if not (Mn > 0 and Mw > Mn):
+        raise DataError(f"Schulz-Zimm averages need Mw > Mn > 0, got Mn={Mn!r}, Mw={Mw!r}")
+    return schulz_zimm(Mn, 1.0 / (Mw / Mn - 1.0))
 
 
 def lognormal(Mp: float, dispersity: float) -> DistributionModel:
@@ -294,3 +292,103 @@ def write_chromatogram(
     if encoding.lower() in ("utf-8-sig", "utf8-sig"):
         return write_text(path, text, encoding="utf-8-sig")
     return write_text(path, text, encoding=encoding)
+
+
+# ============================================================================ run series
+
+
+def averages_from_dwdlogM(M: Any, dwdlogM: Any) -> tuple[float, float]:
+    """Mn and Mw [g/mol] of a dw/dlogM curve on a log-uniform M grid (trapezoid in log M).
+
+    References
+    ----------
+    SCIENCE.md section 1: Mn = Σw/Σ(w/M), Mw = ΣwM/Σw with w ∝ dw/dlogM · Δlog M.
+    """
+    M = np.asarray(M, dtype=float)
+    h = np.asarray(dwdlogM, dtype=float)
+    dlg = np.diff(np.log10(M))
+
+    def trap(y: np.ndarray) -> float:
+        return float(np.sum(0.5 * (y[1:] + y[:-1]) * dlg))
+
+    area = trap(h)
+    return area / trap(h / M), trap(h * M) / area
+
+
+def simulate_series(
+    ratios: Sequence[float],
+    *,
+    C_A: float,
+    inv_DPn0: float,
+    M0: float,
+    conversion: float | Sequence[float] | None = None,
+    monomer_conc: float = 8.0,
+    rel_noise: float = 0.0,
+    impurity: Mapping[int, float] | None = None,
+    C_M: float = 0.0,
+    seed: int | None = None,
+    run_prefix: str = "R",
+) -> list[dict[str, Any]]:
+    """Rows of a run-series sheet (measured Mn/Mw) for a single-agent Mayo series.
+
+    Each run's Mn and Mw are those of the cumulative most-probable polymer at its
+    conversion (:func:`gpctools.chainlength.cumulative_averages`).
+
+    Parameters
+    ----------
+    ratios : sequence of float
+        Initial [A]0/[M]0 per run [-].
+    C_A : float
+        True transfer constant [-].
+    inv_DPn0 : float
+        True 1/DPn0 [-].
+    M0 : float
+        Repeat-unit molar mass [g/mol].
+    conversion : float or sequence, optional
+        Conversion per run [-]; ``None`` -> instantaneous (no drift, no conversion column).
+    monomer_conc : float
+        [M]0 [mol/L].
+    rel_noise : float
+        Relative standard deviation of multiplicative Gaussian noise on Mn and Mw [-]
+        (independent draws).
+    impurity : mapping of int to float, optional
+        Run index -> extra 1/DPn added by an impurity (constant over conversion) [-].
+    C_M : float
+        Transfer to monomer [-].
+    seed : int, optional
+    run_prefix : str
+
+    Returns
+    -------
+    list of dict
+        Sheet rows with columns ``run``, ``[M] [mol/L]``, ``[A] [mol/L]``,
+        ``conversion [-]`` (when given), ``Mn [g/mol]``, ``Mw [g/mol]``, ``M0 [g/mol]``.
+    """
+    rng = np.random.default_rng(seed)
+    n = len(ratios)
+    if conversion is None:
+        xs: list[float | None] = [None] * n
+    elif isinstance(conversion, (int, float)):
+        xs = [float(conversion)] * n
+    else:
+        xs = [float(v) for v in conversion]
+    rows = []
+    for i, r in enumerate(ratios):
+        a = inv_DPn0 + (impurity or {}).get(i, 0.0)
+        x = xs[i]
+        terms: dict[str, tuple[float, float]] = {"C_M": (C_M, 1.0)} if C_M else {}
+        terms["C_A"] = (C_A, float(r))
+        Mn, Mw = cumulative_averages(x or 0.0, a, terms, M0)
+        if rel_noise:
+            Mn *= 1 + rel_noise * rng.standard_normal()
+            Mw *= 1 + rel_noise * rng.standard_normal()
+        row: dict[str, Any] = {
+            "run": f"{run_prefix}{i + 1}",
+            "[M] [mol/L]": monomer_conc,
+            "[A] [mol/L]": float(r) * monomer_conc,
+        }
+        if x is not None:
+            row["conversion [-]"] = x
+        row.update({"Mn [g/mol]": Mn, "Mw [g/mol]": Mw, "M0 [g/mol]": M0})
+        rows.append(row)
+    return rows

@@ -22,7 +22,7 @@ from gpctools.kinetics.recipe import Checks
 
 
 def test_flow_sensitivity_defaults_and_given_values():
-    # typical defaults B = 0.4 decades/mL, V = 25 mL (SCIENCE.md §2) -> B·V = 10, 30 % uncertain
+    # typical defaults B = 0.4 decades/mL, V = 25 mL (docs/science.md, section 2.1) -> B·V = 10, 30 % uncertain
     d = flow_sensitivity(Checks())
     assert d.BV == pytest.approx(10.0) and d.rel == 0.3
     assert d.k == pytest.approx(math.log(10.0) * 10.0)  # d ln M/dε magnitude [derived]
@@ -62,7 +62,7 @@ def test_check_standard():
 
 def test_flow_marker():
     # 28.65 mL against 28.50 mL: ε = 0.15/28.5 = 0.526 %; with B·V = 10 every average moves
-    # by 10^(−10·0.005263) − 1 = −11.41 % [derived, SCIENCE.md §2]
+    # by 10^(−10·0.005263) − 1 = −11.41 % [derived, docs/science.md, section 2.2]
     c = flow_marker(CheckInputs(Checks(flow_marker_observed=28.65, flow_marker_reference=28.50)))
     eps = 0.15 / 28.5
     assert c.observation.y == pytest.approx(eps, rel=1e-12)

@@ -1,27 +1,33 @@
-"""Regression tests for the robustness review: every bad input ends with one clear line,
-exit code 2 and no traceback; inputs are never modified and no partial files are left."""
+"""Exit codes and messages of the CLI.
+
+Bad input (the GpcError family) ends with one clear line, exit code 2 and no traceback;
+inputs are never modified and no partial files are left. An internal error (any other
+exception) ends with one line and exit code 3, and shows its traceback only with --debug.
+"""
 
 from __future__ import annotations
 
 import hashlib
 import shutil
+import subprocess
+import sys
+import textwrap
 from pathlib import Path
 
 import pytest
 from typer.testing import CliRunner
 
-from gpctools.cli import app
+from gpctools.cli import EXIT_INTERNAL, EXIT_USER_ERROR, app
 
-REPO = Path(__file__).resolve().parent.parent
 runner = CliRunner()
 
 
 @pytest.fixture(scope="module")
-def runs(tmp_path_factory) -> Path:
+def runs(tmp_path_factory, sample_runs_dir: Path, templates_dir: Path) -> Path:
     """A copy of sample_runs/ and templates/ with one batch already processed."""
     d = tmp_path_factory.mktemp("robust")
-    shutil.copytree(REPO / "sample_runs", d / "s", ignore=shutil.ignore_patterns("transfer_series"))
-    shutil.copytree(REPO / "templates", d / "t")
+    shutil.copytree(sample_runs_dir, d / "s", ignore=shutil.ignore_patterns("transfer_series"))
+    shutil.copytree(templates_dir, d / "t")
     r = runner.invoke(app, ["batch", str(d / "s" / "batch.csv"), "-m", str(d / "s" / "method.toml"),
                             "-o", str(d / "out")])
     assert r.exit_code == 0, r.output
@@ -30,8 +36,11 @@ def runs(tmp_path_factory) -> Path:
 
 def _user_error(r, *needles: str) -> str:
     """Exit 2, no traceback, the error on one line naming what was asked for."""
-    assert r.exit_code == 2, r.output
-    assert "Traceback" not in r.output and r.exception is None or isinstance(r.exception, SystemExit)
+    assert r.exit_code == EXIT_USER_ERROR, r.output
+    assert "Traceback" not in r.output, r.output
+    # The guard ends the command with typer.Exit(2), which the runner records as
+    # SystemExit(2); any other exception here escaped the guard.
+    assert isinstance(r.exception, SystemExit) and r.exception.code == EXIT_USER_ERROR, repr(r.exception)
     lines = [ln for ln in r.output.splitlines() if ln.startswith("error:")]
     assert len(lines) == 1, r.output
     for n in needles:
@@ -154,17 +163,89 @@ def test_regression_messages_name_no_product(tmp_path):
     assert "rename it to .csv" in str(e.value) and "Excel" not in str(e.value)
 
 
-def test_regression_spec_sheet_without_product_rows_is_refused(tmp_path):
+def test_regression_spec_sheet_without_product_rows_is_refused(tmp_path, sample_runs_dir, cli_runner, out_dir):
     # A header-only spec sheet once gave "no spec" for every sample and exit 0.
-    from typer.testing import CliRunner
-
-    from gpctools.cli import app
-
-    root = Path(__file__).resolve().parent.parent
     spec = tmp_path / "spec.csv"
     spec.write_text("product,Mn min [g/mol]\n", encoding="utf-8")
-    r = CliRunner().invoke(app, ["qc", str(root / "sample_runs" / "batch.csv"), "--method",
-                                 str(root / "sample_runs" / "method.toml"), "--specs", str(spec),
-                                 "--out", str(tmp_path / "o")])
-    assert r.exit_code == 2
-    assert "no product rows" in r.output and "Traceback" not in r.output
+    r = cli_runner.invoke(app, ["qc", str(sample_runs_dir / "batch.csv"), "--method",
+                                str(sample_runs_dir / "method.toml"), "--specs", str(spec),
+                                "--out", str(out_dir)])
+    _user_error(r, "no product rows")
+
+
+# ----------------------------------------------------------------------------- exit code 3
+
+FAULT = "simulated fault inside the library"
+
+
+def _first_export(sample_runs_dir: Path) -> Path:
+    return sorted((sample_runs_dir / "exports").iterdir())[0]
+
+
+@pytest.fixture
+def broken_reader(monkeypatch) -> list[tuple]:
+    """Make the chromatogram reader fail with an exception outside the GpcError family."""
+    import gpctools.io
+
+    calls: list[tuple] = []
+
+    def boom(*args, **kwargs):
+        calls.append(args)
+        raise RuntimeError(FAULT)
+
+    monkeypatch.setattr(gpctools.io, "read_chromatogram", boom)
+    return calls
+
+
+def test_internal_error_exits_3_with_one_line(broken_reader, cli_runner, sample_runs_dir):
+    r = cli_runner.invoke(app, ["inspect", str(_first_export(sample_runs_dir))])
+    assert broken_reader, "the command did not reach the patched reader: patch the function it uses"
+    assert r.exit_code == EXIT_INTERNAL, r.output
+    assert isinstance(r.exception, SystemExit) and r.exception.code == EXIT_INTERNAL, repr(r.exception)
+    assert "Traceback" not in r.output
+    lines = [ln for ln in r.output.splitlines() if ln.strip()]
+    assert lines == [f"internal error: RuntimeError: {FAULT} (run with --debug for details)"], r.output
+    assert r.stderr.strip() == lines[0]  # on stderr, nothing on stdout
+    assert r.stdout == ""
+
+
+def test_internal_error_with_debug_raises_with_its_traceback(broken_reader, cli_runner, sample_runs_dir):
+    r = cli_runner.invoke(app, ["--debug", "inspect", str(_first_export(sample_runs_dir))])
+    assert broken_reader
+    # --debug lets the original exception out of the guard (the runner catches it here;
+    # a real process prints the traceback, see the next test).
+    assert isinstance(r.exception, RuntimeError) and str(r.exception) == FAULT
+    assert "internal error" not in r.output
+    import traceback
+
+    frames = [f.name for f in traceback.extract_tb(r.exc_info[2])]
+    assert "boom" in frames and "inspect_cmd" in frames
+    # The next command without --debug is back to the one-line message.
+    r = cli_runner.invoke(app, ["inspect", str(_first_export(sample_runs_dir))])
+    assert r.exit_code == EXIT_INTERNAL and "Traceback" not in r.output
+
+
+def test_internal_error_traceback_in_a_real_process(sample_runs_dir):
+    # The console entry point in a fresh interpreter: without --debug one line and exit
+    # 3; with --debug Python's own traceback on stderr (and its exit code 1).
+    script = textwrap.dedent(f"""
+        import sys
+        import gpctools.io
+        def boom(*args, **kwargs):
+            raise RuntimeError({FAULT!r})
+        gpctools.io.read_chromatogram = boom
+        from gpctools.cli import main
+        sys.argv = ["gpctools", *sys.argv[1:]]
+        main()
+    """)
+    export = str(_first_export(sample_runs_dir))
+    quiet = subprocess.run([sys.executable, "-c", script, "inspect", export],
+                           capture_output=True, text=True, timeout=120)
+    assert quiet.returncode == EXIT_INTERNAL, quiet.stderr
+    assert quiet.stderr.strip() == f"internal error: RuntimeError: {FAULT} (run with --debug for details)"
+    loud = subprocess.run([sys.executable, "-c", script, "--debug", "inspect", export],
+                          capture_output=True, text=True, timeout=120)
+    assert loud.returncode == 1, loud.stderr
+    assert loud.stderr.startswith("Traceback (most recent call last):"), loud.stderr
+    assert loud.stderr.rstrip().endswith(f"RuntimeError: {FAULT}")
+    assert "in boom" in loud.stderr

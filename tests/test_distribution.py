@@ -1,7 +1,7 @@
 """Tests of gpctools.distribution: slice averages, dw/dlogM, slice widths, flow errors.
 
 Check values come from outside the library: closed forms of published or derived
-distributions (SCIENCE.md section 8), the textbook discrete example, and numpy/scipy
+distributions (docs/science.md, section 8), the textbook discrete example, and numpy/scipy
 integration. Every trace is built by hand here with numpy (not with gpctools.simulate),
 so these tests do not check the simulator against itself. Each tolerance carries a
 one-line reason.
@@ -39,7 +39,7 @@ def linear_calibration(A: float, B: float, v_lo: float, v_hi: float, n: int = 7)
 
 
 def lognormal_truth(A: float, B: float, V0: float, sigma: float) -> dict[str, float]:
-    """Gaussian peak in V through logM = A - B·V [derived, SCIENCE.md section 8]."""
+    """Gaussian peak in V through logM = A - B·V [derived, docs/science.md, section 8]."""
     mu = LN10 * (A - B * V0)
     s = LN10 * B * sigma
     return {
@@ -95,7 +95,7 @@ def test_lognormal_exact_full_mask(lin_cal: Calibration) -> None:
     V = np.linspace(5.0, 30.0, 5001)
     h = gaussian(V, V0_LIN, SIG_LIN)
     d = compute_distribution(V, h, lin_cal)
-    t = lognormal_truth(A_LIN, B_LIN, V0_LIN, SIG_LIN)  # derived, SCIENCE.md section 8
+    t = lognormal_truth(A_LIN, B_LIN, V0_LIN, SIG_LIN)  # derived, docs/science.md, section 8
     # Sums over a Gaussian sampled at σ/100 converge exponentially (trapezoid rule on a
     # rapidly decaying smooth function): 1e-9 leaves room for rounding over 5000 slices.
     for key, got in (
@@ -109,7 +109,7 @@ def test_lognormal_exact_full_mask(lin_cal: Calibration) -> None:
     # Parabola vertex through the top three samples, peak 0.0021 mL off grid: the vertex
     # error is of order 1e-8 in M here; 1e-6 tolerance.
     assert d.Mp == pytest.approx(t["Mp"], rel=1e-6)
-    # linear calibration: maximum of h(V) and of dw/dlogM coincide (SCIENCE.md section 1).
+    # linear calibration: maximum of h(V) and of dw/dlogM coincide (docs/science.md, section 1.3).
     assert d.Mp_dwdlogM == pytest.approx(t["Mp"], rel=1e-6)
     # dw/dlogM integrates to 1 over log10 M (scipy trapezoid, a reference integrator);
     # trapezoid error on the sampled Gaussian is far below 1e-8.
@@ -179,7 +179,7 @@ def test_schulz_zimm_through_cubic_calibration(cubic_cal: Calibration, b: float)
     # derived: d(ln(M^(b+1) e^(-aM)))/dM = 0 at M = (b+1)/a = Mw; parabola-refined
     # maximum on a 0.0013-decade grid, observed 2e-6: 1e-4.
     assert d.Mp_dwdlogM == pytest.approx((b + 1) / a, rel=1e-4)
-    # SCIENCE.md section 1: with a curved calibration the h(V) maximum differs from the
+    # docs/science.md, section 1.3: with a curved calibration the h(V) maximum differs from the
     # dw/dlogM maximum (observed 1.4-2.6 %); the two must not be conflated.
     assert abs(d.Mp / d.Mp_dwdlogM - 1.0) > 5e-3
     # the cubic really is curved over the peak (else this test would be the linear one)
@@ -193,7 +193,7 @@ def test_flory_identities_most_probable(cubic_cal: Calibration) -> None:
     V = np.linspace(6.0, 32.0, 6000)
     d = compute_distribution(V, schulz_zimm_trace(V, cubic_cal, 30_000.0, 1.0), cubic_cal)
     DPn, DPw, DPz = d.Mn / M0, d.Mw / M0, d.Mz / M0
-    # derived, SCIENCE.md section 4 (Flory identities); tolerance as in the Schulz-Zimm test.
+    # derived, docs/science.md, section 4.2 (Flory identities); tolerance as in the Schulz-Zimm test.
     assert DPw / DPn == pytest.approx(2.0, rel=1e-5)
     assert DPz / DPn == pytest.approx(3.0, rel=1e-5)
     assert d.Mp_dwdlogM / d.Mn == pytest.approx(2.0, rel=1e-4)
@@ -206,7 +206,7 @@ def test_discrete_textbook_example() -> None:
     M = np.array([2.0, 3.0, 7.0])
     counts = np.array([4.0, 3.0, 2.0])
     r = averages(M, counts * M)  # averages() takes masses: w = n·M
-    # derived, SCIENCE.md section 8; exact fractions, 1e-12 = float rounding.
+    # derived, docs/science.md, section 8; exact fractions, 1e-12 = float rounding.
     assert r["Mn"] == pytest.approx(31 / 9, rel=1e-12)
     assert r["Mw"] == pytest.approx(141 / 31, rel=1e-12)
     assert r["Mz"] == pytest.approx(799 / 141, rel=1e-12)
@@ -243,7 +243,7 @@ def test_averages_scaling_properties(M, data, c, k) -> None:
 
 @pytest.mark.parametrize("seed", [0, 1, 2, 3])
 def test_unequal_slice_widths(cubic_cal: Calibration, seed: int) -> None:
-    """Slices at random unequal spacing: ΔV must be in the sums (SCIENCE.md section 1)."""
+    """Slices at random unequal spacing: ΔV must be in the sums (docs/science.md, section 1.1)."""
     Mn_true, b = 50_000.0, 2.0
     a = b / Mn_true
     rng = np.random.default_rng(seed)
@@ -259,7 +259,7 @@ def test_unequal_slice_widths(cubic_cal: Calibration, seed: int) -> None:
     assert abs(rel(d.Mn, b / a)) < tol
     assert abs(rel(d.Mw, (b + 1) / a)) < tol
     # The naive sum Σh·M / Σh (ΔV left out) is clearly wrong: about 1 % on Mn or Mw
-    # (SCIENCE.md section 1, derived; the sign depends on the draw). Require 20× our
+    # (docs/science.md, section 1.1; observed, the sign depends on the draw). Require 20× our
     # tolerance so the test fails if the library ever drops ΔV.
     naive = averages(cubic_cal.M(V), h)
     err = max(abs(rel(naive["Mn"], b / a)), abs(rel(naive["Mw"], (b + 1) / a)))
@@ -291,7 +291,7 @@ def test_pure_volume_shift_scales_every_average(lin_cal: Calibration) -> None:
     dV = 0.05
     base = compute_distribution(V, gaussian(V, V0_LIN, SIG_LIN), lin_cal)
     shifted = compute_distribution(V, gaussian(V, V0_LIN - dV, SIG_LIN), lin_cal)
-    factor = 10.0 ** (B_LIN * dV)  # derived, SCIENCE.md section 8
+    factor = 10.0 ** (B_LIN * dV)  # derived, docs/science.md, section 8
     # 1e-9: both analyses are exact to that level (see the log-normal test).
     for key in ("Mn", "Mw", "Mz", "Mz1", "Mp"):
         assert getattr(shifted, key) / getattr(base, key) == pytest.approx(factor, rel=1e-9), key
@@ -300,7 +300,7 @@ def test_pure_volume_shift_scales_every_average(lin_cal: Calibration) -> None:
 
 @pytest.mark.parametrize("B, V0", [(0.3, 20.0), (0.5, 30.0)])
 def test_relative_flow_error_and_marker_correction(B: float, V0: float) -> None:
-    """0.1 % flow error: every average moves by 1.4-3.5 %, Đ stays (SCIENCE.md section 2)."""
+    """0.1 % flow error: every average moves by 1.4-3.5 %, Đ stays (docs/science.md, section 2.2)."""
     delta = 1e-3
     A = 5.0 + B * V0  # log M = 5 at the peak
     sigma = 0.6
@@ -316,7 +316,7 @@ def test_relative_flow_error_and_marker_correction(B: float, V0: float) -> None:
         ratio = getattr(obs, key) / getattr(true, key)
         # derived (exact log-normal pair); 1e-8 = two analyses each exact to ~1e-10.
         assert ratio == pytest.approx(t_obs[key] / t_true[key], rel=1e-8), key
-        # SCIENCE.md section 2 [derived]: 1.4-3.5 % for B = 0.3-0.5 /mL, V = 20-30 mL
+        # docs/science.md, section 2.2 [derived]: 1.4-3.5 % for B = 0.3-0.5 /mL, V = 20-30 mL
         # (the band's ends are rounded: exact 1.37 % and 3.39 %; ±0.1 % slack).
         assert 0.013 < 1.0 - ratio < 0.036, key
     # Đ changes by exp(2δs²) - 1 < 0.07 % here [derived]: "essentially unchanged".
@@ -345,7 +345,7 @@ def test_lognormal_round_trip_property(A: float, B: float, V0: float, sigma: flo
     cal = linear_calibration(A, B, V0 - 10.0 * sigma, V0 + 10.0 * sigma)
     V = np.linspace(V0 - 12.0 * sigma, V0 + 12.0 * sigma, 2401)  # σ/100 spacing
     d = compute_distribution(V, gaussian(V, V0, sigma), cal)
-    t = lognormal_truth(A, B, V0, sigma)  # derived, SCIENCE.md section 8
+    t = lognormal_truth(A, B, V0, sigma)  # derived, docs/science.md, section 8
     # 1e-8: exponentially convergent sums; slack for the collinear fit's rounding in log M.
     for key in ("Mn", "Mw", "Mz", "dispersity"):
         assert getattr(d, key) == pytest.approx(t[key], rel=1e-8), key

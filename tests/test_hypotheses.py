@@ -4,7 +4,7 @@ The kinetic parameters are chosen by hand (not from the tables) so that every ex
 number follows from the steady-state formulas in closed form: δ = 1 (disproportionation
 only: Đ_inst = 2 for every perturbation), no transfer, C_M = C_I = 0, so that
 1/DPn = 2k_t[R•]/(k_p[M]) and R_p = k_p[M][R•] with [R•] = (f·k_d·[I]/k_t)^½
-(IUPAC steady state, SCIENCE.md §3).
+(IUPAC steady state, docs/science.md, section 3.2).
 """
 
 from __future__ import annotations
@@ -84,9 +84,9 @@ def test_unexplained_transfer(model):
     mu = h.predict(0.5, model)
     assert mu["Mn"] == pytest.approx(math.log(0.5), rel=TIGHT)
     assert mu["Mw"] == pytest.approx(math.log(0.5), rel=TIGHT)  # Đ stays 2 (δ = 1)
-    assert mu["R_p"] == pytest.approx(0.0, abs=1e-12)  # transfer keeps the rate (SCIENCE §9)
+    assert mu["R_p"] == pytest.approx(0.0, abs=1e-12)  # transfer keeps the rate (docs/science.md, section 9)
 
-    class Thiol:  # 10 ppm of C = 15 adds 1.5e-4 to 1/DPn (SCIENCE.md §9 check value)
+    class Thiol:  # 10 ppm of C = 15 adds 1.5e-4 to 1/DPn (docs/science.md, section 9 check value)
         name, C, ppm_mol, ppm_mass = "thiol", 15.0, 10.0, 19.4
 
     x = h.explain(1.5e-4, evidence(model, mn_ratio=0.95, excess=1.5e-4, impurities=(Thiol(),)))
@@ -101,7 +101,7 @@ def test_excess_initiation(model):
     theta = math.log(4.0)  # F = 4
     assert h.value(theta, model) == pytest.approx(4.0, rel=TIGHT)
     mu = h.predict(theta, model)
-    # R_p ∝ (f k_d [I])^½ and, with δ = 1 and no transfer, 1/DPn ∝ [R•] [derived, SCIENCE §3]
+    # R_p ∝ (f k_d [I])^½ and, with δ = 1 and no transfer, 1/DPn ∝ [R•] [derived, docs/science.md, section 3.2]
     assert mu["R_p"] == pytest.approx(math.log(2.0), rel=TIGHT)
     assert mu["Mn"] == pytest.approx(-math.log(2.0), rel=TIGHT)
     x = h.explain(4.0, evidence(model, rp_ratio=2.0, mn_ratio=0.5))
@@ -117,7 +117,7 @@ def test_temperature_overshoot(model):
     dT, T = 10.0, 333.15
     d_inv_T = 1.0 / (T + dT) - 1.0 / T
     mu = h.predict(dT, model)
-    # R_p ∝ k_p·k_d^½, 1/DPn ∝ k_d^½/k_p (k_t constant) with Arrhenius k's [derived, SCIENCE §3]
+    # R_p ∝ k_p·k_d^½, 1/DPn ∝ k_d^½/k_p (k_t constant) with Arrhenius k's [derived, docs/science.md, section 3.2]
     assert mu["R_p"] == pytest.approx(-(30.0 + 60.0) * 1e3 / R_GAS * d_inv_T, rel=TIGHT)
     assert mu["Mn"] == pytest.approx(-(30.0 - 60.0) * 1e3 / R_GAS * d_inv_T, rel=TIGHT)
     assert mu["R_p"] == pytest.approx(0.9468, abs=1e-4)  # hand-worked: 10824.5 K × 8.7469e-5/K
@@ -148,7 +148,7 @@ def test_retardation(model):
 def test_dilution(model):
     h = hypothesis("dilution")
     mu = h.predict(0.5, model)
-    # R_p ∝ [M]; with δ = 1 and no transfer 1/DPn ∝ 1/[M] [derived, SCIENCE §3]
+    # R_p ∝ [M]; with δ = 1 and no transfer 1/DPn ∝ 1/[M] [derived, docs/science.md, section 3.2]
     assert mu["R_p"] == pytest.approx(math.log(0.5), rel=TIGHT)
     assert mu["Mn"] == pytest.approx(math.log(0.5), rel=TIGHT)
     x = h.explain(0.5, evidence(model))
@@ -159,7 +159,7 @@ def test_dilution(model):
 def test_flow_error(model):
     h = hypothesis("flow")
     mu = h.predict(0.01, model)
-    # Δ ln M = −ln10·B·V·ε = −ln10·10·0.01 = −0.2303 (SCIENCE.md §2, derived)
+    # Δ ln M = −ln10·B·V·ε = −ln10·10·0.01 = −0.2303 (docs/science.md, section 2.2, derived)
     for name in ("Mn", "Mw", "check standard"):
         assert mu[name] == pytest.approx(-math.log(10.0) * 0.1, rel=TIGHT)
     assert mu["flow marker"] == 0.01 and "R_p" not in mu

@@ -542,7 +542,7 @@ def test_regression_unrecognised_scale_is_not_taken_as_absolute(tmp_path):
 
 
 def test_demo_troubleshooting_case(tmp_path):
-    from gpctools.kinetics._demo import write_troubleshooting_case
+    from gpctools.demo import write_troubleshooting_case
 
     info = write_troubleshooting_case(tmp_path / "ts")
     truth = json.loads((tmp_path / "ts" / "truth.json").read_text())

@@ -92,7 +92,7 @@ def test_automatic_baseline_on_simulated_trace(cal, seed: int) -> None:
     d = compute_distribution(Vs, cs.signal, cal, mask=cs.mask)
     # published: IUPAC Gold Book (Schulz-Zimm), Mn = b/a, Mw = (b+1)/a. Within 1 %:
     # the low-M limit found at the noise level cuts a little tail, so Mn reads high by
-    # 0.3-0.8 % (observed); Mw is insensitive to it (SCIENCE.md section 1).
+    # 0.3-0.8 % (observed); Mw is insensitive to it (docs/science.md, section 1.4).
     assert d.Mn == pytest.approx(b / a, rel=0.01)
     assert d.Mw == pytest.approx((b + 1) / a, rel=0.01)
     # baseline line found within noise (drift 0.3/mL, offset 5 at 8 mL)

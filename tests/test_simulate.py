@@ -16,15 +16,18 @@ from scipy import integrate
 from scipy.integrate import trapezoid  # numpy < 2 has no np.trapezoid
 from scipy.optimize import minimize_scalar
 
+from gpctools.chainlength import most_probable
 from gpctools.errors import DataError
 from gpctools.simulate import (
     DEFAULT_STANDARDS,
+    averages_from_dwdlogM,
     chromatogram,
     default_calibration,
     lognormal,
     mixture,
-    most_probable,
     schulz_zimm,
+    schulz_zimm_from_averages,
+    simulate_series,
     write_chromatogram,
 )
 
@@ -100,6 +103,47 @@ def test_schulz_zimm_closed_forms_and_peak(Mn: float, b: float) -> None:
     )
     # xatol 1e-10 decades on a smooth maximum: M to ~1e-6 relative (flat top); 1e-5.
     assert 10.0**res.x == pytest.approx((b + 1) / a, rel=1e-5)
+
+
+def test_schulz_zimm_from_averages() -> None:
+    # IUPAC Gold Book: Đ = (b+1)/b, so Mn and Mw fix b; rounding only
+    model = schulz_zimm_from_averages(52_000.0, 96_000.0)
+    assert model.averages["Mn"] == pytest.approx(52_000.0, rel=1e-12)
+    assert model.averages["Mw"] == pytest.approx(96_000.0, rel=1e-12)
+    with pytest.raises(DataError):
+        schulz_zimm_from_averages(5e4, 4e4)
+
+
+def test_averages_from_dwdlogM_on_a_lognormal_grid() -> None:
+    # derived, SCIENCE.md section 8: Mn = Mp e^(-s²/2), Mw = Mp e^(s²/2), s² = ln Đ;
+    # trapezoid on 20,001 log-spaced points over ±8 SD: error O(h²) ~ 1e-8; 1e-6
+    M = np.geomspace(1e2, 1e8, 20_001)
+    Mn, Mw = averages_from_dwdlogM(M, lognormal(1e5, 1.8)(M))
+    assert Mn == pytest.approx(1e5 * math.exp(-math.log(1.8) / 2), rel=1e-6)
+    assert Mw == pytest.approx(1e5 * math.exp(math.log(1.8) / 2), rel=1e-6)
+
+
+def test_simulate_series_rows() -> None:
+    # instantaneous rows: discrete most probable, DPn = 1/λ and DPw = (2 − λ)/λ with
+    # λ = 1/DPn0 + C_A r (Flory 1953; Mayo 1943); rounding only
+    M0, C, a = 104.15, 14.8, 5e-4  # styrene M0 [derived]; C of 1-dodecanethiol [published: Carraher]
+    rows = simulate_series([0.0, 1e-4], C_A=C, inv_DPn0=a, M0=M0, monomer_conc=8.0)
+    for r, row in zip([0.0, 1e-4], rows):
+        lam = a + C * r
+        assert row["Mn [g/mol]"] == pytest.approx(M0 / lam, rel=1e-12)
+        assert row["Mw [g/mol]"] == pytest.approx(M0 * (2 - lam) / lam, rel=1e-12)
+        assert row["[A] [mol/L]"] == pytest.approx(8.0 * r, rel=1e-15)
+        assert "conversion [-]" not in row
+    # at conversion x: Mn = M0 x / ∫0^x λ dx' (scipy quad of λ(x') written here; 1e-10)
+    x = 0.1
+    row = simulate_series([2e-4], C_A=C, inv_DPn0=a, M0=M0, conversion=x)[0]
+    inv = integrate.quad(lambda xp: a + C * 2e-4 * (1 - xp) ** (C - 1), 0, x, epsrel=1e-13)[0] / x
+    assert row["Mn [g/mol]"] == pytest.approx(M0 / inv, rel=1e-10)
+    assert row["conversion [-]"] == x
+    # seeded noise is reproducible and moves the values
+    noisy = simulate_series([1e-4], C_A=C, inv_DPn0=a, M0=M0, rel_noise=0.01, seed=3)
+    again = simulate_series([1e-4], C_A=C, inv_DPn0=a, M0=M0, rel_noise=0.01, seed=3)
+    assert noisy == again and noisy[0]["Mn [g/mol]"] != rows[1]["Mn [g/mol]"]
 
 
 def test_lognormal_closed_forms() -> None:

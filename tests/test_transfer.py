@@ -17,7 +17,9 @@ import pandas as pd
 import pytest
 from scipy import integrate, stats
 
+from gpctools.chainlength import cumulative_averages, cumulative_most_probable, most_probable
 from gpctools.errors import DataError, DesignError, EstimatorWarning, GpcError, InputFormatError
+from gpctools.simulate import averages_from_dwdlogM, simulate_series
 from gpctools.transfer import (
     analyse_series,
     apparent_constant,
@@ -38,13 +40,6 @@ from gpctools.transfer import (
 from gpctools.transfer.drift import cumulative_inv_dpw_half, remaining_fraction
 from gpctools.transfer.estimators import ln_number_distribution
 from gpctools.transfer.impurity import flag_runs_cumulative, robust_fit
-from gpctools.transfer.synthetic import (
-    averages_from_dwdlogM,
-    cumulative_averages,
-    cumulative_most_probable,
-    most_probable,
-    simulate_series,
-)
 
 pytestmark = pytest.mark.filterwarnings("ignore::gpctools.errors.GpcWarning")
 
@@ -143,7 +138,7 @@ def test_literature_constant_recovered_by_each_estimator(estimator):
     y = []
     for r in RATIOS:
         lam = float(_lambda(r))
-        f = most_probable(lam, M0_STYRENE)
+        f = most_probable(M0_STYRENE / lam, M0_STYRENE)
         M = _grid(lam)
         h = f(M)
         Mn, Mw = averages_from_dwdlogM(M, h)
@@ -164,7 +159,7 @@ def test_three_estimators_agree_on_ideal_distributions():
     for r in RATIOS:
         lam = float(_lambda(r))
         M = _grid(lam)
-        h = most_probable(lam, M0_STYRENE)(M)
+        h = most_probable(M0_STYRENE / lam, M0_STYRENE)(M)
         Mn, Mw = averages_from_dwdlogM(M, h)
         dpn_mn, dpn_mw = Mn / M0_STYRENE, Mw / (2 * M0_STYRENE)
         dpn_cld = 1 / cld_slope(M, h, M0_STYRENE).Lambda
@@ -259,7 +254,7 @@ def test_fit_refuses_non_positive_chain_length():
 def test_cld_slope_of_exact_flory_distribution():
     lam = 2e-3
     M = _grid(lam)
-    h = most_probable(lam, M0_STYRENE)(M)
+    h = most_probable(M0_STYRENE / lam, M0_STYRENE)(M)
     s = cld_slope(M, h, M0_STYRENE)
     # discrete Flory: ln P(N) = const + N ln(1 - λ), so Λ = -ln(1 - λ) exactly [derived]
     assert s.Lambda == pytest.approx(-math.log1p(-lam), rel=1e-9)
@@ -274,7 +269,7 @@ def test_cld_slope_of_exact_flory_distribution():
 def test_cld_user_window_and_refusal():
     lam = 2e-3
     M = _grid(lam)
-    h = most_probable(lam, M0_STYRENE)(M)
+    h = most_probable(M0_STYRENE / lam, M0_STYRENE)(M)
     s = cld_slope(M, h, M0_STYRENE, window=(30_000, 90_000))
     assert s.how == "user window"
     assert 30_000 <= s.window[0] and s.window[1] <= 90_000
@@ -286,7 +281,7 @@ def test_cld_user_window_and_refusal():
 def test_cld_curvature_positive_for_a_drifted_distribution():
     # a mixture of exponentials is log-convex (Hölder's inequality) [derived], so ln P of
     # the cumulative distribution bends upward: positive curvature
-    f = cumulative_most_probable(0.3, [(3.0, 3e-4)], INV_DPN0, M0_STYRENE)
+    f = cumulative_most_probable(0.3, INV_DPN0, {"C_A": (3.0, 3e-4)}, M0_STYRENE)
     M = _grid(5e-4)
     s = cld_slope(M, f(M), M0_STYRENE)
     assert s.curvature > 0.01 and s.curvature > 100 * s.curvature_stderr  # exact data
@@ -321,10 +316,10 @@ def test_cumulative_averages_from_the_mixed_distribution():
     # the cumulative dw/dlogM (a mixture over conversion) integrated slice by slice gives
     # the same averages as the conversion integrals [derived]
     x = 0.1
-    f = cumulative_most_probable(x, [(14.8, 2e-4)], INV_DPN0, M0_STYRENE)
+    f = cumulative_most_probable(x, INV_DPN0, {"C_A": (14.8, 2e-4)}, M0_STYRENE)
     M = _grid(float(_lambda(2e-4)))
     Mn_d, Mw_d = averages_from_dwdlogM(M, f(M))
-    Mn, Mw = cumulative_averages(x, [(14.8, 2e-4)], INV_DPN0, M0_STYRENE)
+    Mn, Mw = cumulative_averages(x, INV_DPN0, {"C_A": (14.8, 2e-4)}, M0_STYRENE)
     assert Mn_d == pytest.approx(Mn, rel=2e-3)  # grid starts at N = 1: the N < 1 part is cut
     assert Mw_d == pytest.approx(Mw, rel=1e-4)
     assert float(1 / cumulative_inv_dpn(x, INV_DPN0, {"C_A": (14.8, 2e-4)})) * M0_STYRENE == pytest.approx(Mn, rel=1e-9)
@@ -385,7 +380,7 @@ def test_cld_drift_model_recovers_constant():
     for r, x in zip(RATIOS, xs, strict=True):
         lam = float(_lambda(r))
         M = np.geomspace(M0_STYRENE * 20, M0_STYRENE * 20 / lam, 1500)
-        s = cld_slope(M, cumulative_most_probable(x, [(C_DDM_STYRENE_60, r)], INV_DPN0, M0_STYRENE)(M),
+        s = cld_slope(M, cumulative_most_probable(x, INV_DPN0, {"C_A": (C_DDM_STYRENE_60, r)}, M0_STYRENE)(M),
                       M0_STYRENE)
         y.append(s.Lambda)
         wins.append(s.window)

@@ -17,14 +17,11 @@ import pytest
 from typer.testing import CliRunner
 
 from gpctools import simulate
+from gpctools.chainlength import cumulative_most_probable
 from gpctools.cli import app
+from gpctools.demo import run_demo_series, write_demo_series
+from gpctools.simulate import simulate_series
 from gpctools.transfer import analyse_series
-from gpctools.transfer.synthetic import (
-    cumulative_most_probable,
-    run_demo_series,
-    simulate_series,
-    write_demo_series,
-)
 
 pytestmark = pytest.mark.filterwarnings("ignore::gpctools.errors.GpcWarning")
 
@@ -63,7 +60,7 @@ def test_literature_constant_recovered_through_simulated_chromatograms(tmp_path)
     ratios = [0.0, 0.5e-4, 1.0e-4, 2.0e-4, 3.0e-4]
     rows = []
     for i, r in enumerate(ratios):
-        f = cumulative_most_probable(0.002, [(C_DDM_STYRENE_60, r)], INV_DPN0, M0_STYRENE)
+        f = cumulative_most_probable(0.002, INV_DPN0, {"C_A": (C_DDM_STYRENE_60, r)}, M0_STYRENE)
         V, h = simulate.chromatogram(f, cal, volume=np.linspace(8, 26, 2000), height=100.0,
                                      baseline_offset=0.4, baseline_drift=0.02, noise=0.05,
                                      seed=40 + i)

@@ -9,8 +9,8 @@ import numpy as np
 import pytest
 
 from gpctools.errors import DataError, DesignError, EstimatorWarning
+from gpctools.simulate import simulate_series
 from gpctools.transfer import TransferOptions, analyse_series, run_series_from_rows
-from gpctools.transfer.synthetic import simulate_series
 
 M0_STYRENE = 104.15  # g/mol [derived: C8H8, standard atomic weights]
 C_DDM_STYRENE_60 = 14.8  # 1-dodecanethiol in styrene, 60 °C [published: Carraher 8th ed.]

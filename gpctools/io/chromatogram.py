@@ -60,6 +60,21 @@ MIN_POINTS = 10
 MAX_FOOTER_LINES = 1000
 
 
+class _NoTableInSheet(InputFormatError):
+    """A workbook sheet holds no table of numbers in its scanned rows.
+
+    Raised by :func:`_read_xlsx_sheet` only, so that :func:`_read_xlsx` can try the next
+    sheet on this condition and on no other (a structured signal rather than a match on
+    the message text). It never leaves this module: :func:`_read_xlsx` re-raises it as a
+    plain :class:`~gpctools.errors.InputFormatError` with the same fields.
+    """
+
+    def plain(self, suffix: str = "") -> InputFormatError:
+        """The same error as a plain :class:`~gpctools.errors.InputFormatError`."""
+        return InputFormatError(self.message + suffix, path=self.path, sheet=self.sheet,
+                                row=self.row, column=self.column, key=self.key)
+
+
 class ReaderWarning(GpcWarning):
     """A file was read, but something in it deserves a look (e.g. a unit overridden)."""
 
@@ -865,9 +880,9 @@ def _read_xlsx(
     """
     try:
         return _read_xlsx_sheet(path, data, sheet, x_column, signal_column, unit_arg, dec)
-    except InputFormatError as first_error:
-        if sheet is not None or "no table of numbers" not in first_error.message:
-            raise
+    except _NoTableInSheet as first_error:
+        if sheet is not None:
+            raise first_error.plain() from None
         wb = _xlsx._load(path, data, data_only=True)
         try:
             count = len(wb.sheetnames)
@@ -876,12 +891,10 @@ def _read_xlsx(
         for index in range(1, count):
             try:
                 return _read_xlsx_sheet(path, data, index, x_column, signal_column, unit_arg, dec)
-            except InputFormatError as exc:
-                if "no table of numbers" not in exc.message:
-                    raise
-        if count > 1:
-            first_error.message += f" (nor in any of the other {count - 1} sheet(s))"
-        raise first_error from None
+            except _NoTableInSheet:
+                continue
+        suffix = f" (nor in any of the other {count - 1} sheet(s))" if count > 1 else ""
+        raise first_error.plain(suffix) from None
 
 
 def _read_xlsx_sheet(
@@ -899,7 +912,7 @@ def _read_xlsx_sheet(
     lines = ["\t".join(_cell_text(v, dec) for v in r) for r in head_rows]
     layout: Layout | None = locate_block(lines, "\n".join(lines), sep="\t", decimal=".")
     if layout is None:
-        raise InputFormatError(
+        raise _NoTableInSheet(
             f"no table of numbers found in the first {len(lines)} rows: expected rows with "
             "at least two numbers (x and signal) under a header row such as "
             "'Volume (mL)' | 'RI (mV)'",

@@ -16,7 +16,7 @@ Defaults, each with its basis
 -----------------------------
 ====================================  =======  ============================================
 check standard σ                      3 %      published: SEC repeatability under 3 % in
-                                               round robins (SCIENCE.md §7)
+                                               round robins (docs/science.md, section 7.6)
 check standard prior (not recorded)   5 %      common practice: standards accepted ±5 %
 flow marker σ                         0.1 %    common practice: marker position
                                                reproducible to about 0.1 %
@@ -25,17 +25,19 @@ flow prior (marker-corrected)         0.05 %   residual error after the marker c
 low-M limit σ                         3 %      common practice: a well-placed limit moves
                                                Mn by less than about 3 %
 outside calibration σ                 1 %      common practice: warn above about 1 % mass
-                                               (SCIENCE.md §1)
+                                               (docs/science.md, section 1.5)
 induction period σ                    5 min    common practice: about one sampling interval
-calibration slope B                   0.4      decades/mL, typical 0.3–0.5 (SCIENCE.md §2)
-peak volume V                         25 mL    typical 20–30 mL (SCIENCE.md §2)
+calibration slope B                   0.4      decades/mL, typical 0.3–0.5
+                                               (docs/science.md, section 2.1)
+peak volume V                         25 mL    typical 20–30 mL (docs/science.md,
+                                               section 2.1)
 relative uncertainty of B·V           30 %     defaults (B·V 6–15 around 10); 10 % given
 ====================================  =======  ============================================
 
 References
 ----------
-Flow-error sensitivity Δlog M = −B·V·ε for a relative flow error ε: SCIENCE.md §2
-[derived].
+Flow-error sensitivity Δlog M = −B·V·ε for a relative flow error ε: docs/science.md,
+section 2.2 [derived].
 """
 
 from __future__ import annotations
@@ -59,16 +61,16 @@ __all__ = [
     "run_checks",
 ]
 
-SIGMA_CHECK_STANDARD = 0.03  # published: repeatability under 3 % (SCIENCE.md §7)
+SIGMA_CHECK_STANDARD = 0.03  # published: repeatability under 3 % (docs/science.md, section 7.6)
 PRIOR_CHECK_STANDARD = 0.05  # common practice: standards accepted within ±5 %
 SIGMA_FLOW_MARKER = 0.001  # common practice: marker position reproducible to about 0.1 %
 PRIOR_FLOW = 0.002  # common practice: pump flow accuracy about 0.2 % when not checked
 PRIOR_FLOW_CORRECTED = 0.0005  # residual flow error after marker correction
 SIGMA_LIMIT = 0.03  # common practice: a well-placed limit moves Mn by less than ~3 %
-SIGMA_OUTSIDE = 1.0  # % mass; common practice: warn above about 1 % (SCIENCE.md §1)
+SIGMA_OUTSIDE = 1.0  # % mass; common practice: warn above about 1 % (docs/science.md, section 1.5)
 SIGMA_INDUCTION = 5.0  # min; common practice: about one sampling interval
-DEFAULT_SLOPE = 0.4  # decades/mL, typical 0.3-0.5 (SCIENCE.md §2)
-DEFAULT_PEAK_VOLUME = 25.0  # mL, typical 20-30 (SCIENCE.md §2)
+DEFAULT_SLOPE = 0.4  # decades/mL, typical 0.3-0.5 (docs/science.md, section 2.1)
+DEFAULT_PEAK_VOLUME = 25.0  # mL, typical 20-30 (docs/science.md, section 2.1)
 BV_REL_DEFAULT = 0.3  # B·V range 6-15 around 10
 BV_REL_GIVEN = 0.1
 

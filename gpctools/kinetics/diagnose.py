@@ -68,6 +68,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from gpctools.chainlength import impurity_ratio
 from gpctools.errors import DataError, InputFormatError, MethodError
 from gpctools.kinetics.checks import CheckInputs, CheckLine, flow_sensitivity, run_checks
 from gpctools.kinetics.hypotheses import HYPOTHESES, AnchoredModel, Evidence, hypothesis
@@ -793,12 +794,13 @@ def _impurity_estimates(
             continue
         # table candidates needing more than 1 mol % of the monomer are not a hidden
         # impurity (common practice); candidates named in the recipe are always shown
-        if j >= n_recipe and 1e6 * excess / C > _MAX_IMPURITY_PPM:
+        ratio = float(impurity_ratio(excess, C))  # [X]/[M], instantaneous
+        if j >= n_recipe and 1e6 * ratio > _MAX_IMPURITY_PPM:
             continue
         seen.add(name.lower())
-        ppm = 1e6 * excess / C
+        ppm = 1e6 * ratio
         impurities.append(ImpurityEstimate(
-            name=name, C=C, concentration=excess * p.conc_M / C, ppm_mol=ppm,
+            name=name, C=C, concentration=ratio * p.conc_M, ppm_mol=ppm,
             ppm_mass=ppm * M / p.M0 if M else None, source=src,
         ))
     return tuple(impurities)

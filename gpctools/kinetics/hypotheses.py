@@ -33,11 +33,11 @@ value on the grid is equally plausible), which is how the scoring has always wor
 
 References
 ----------
-- Fingerprints of low molar mass: SCIENCE.md §9 (transfer keeps R_p, more initiator or
+- Fingerprints of low molar mass: docs/science.md, section 9 (transfer keeps R_p, more initiator or
   heat raises R_p with R_p·DPn about constant, retarders lower both, measurement
   artefacts shift all averages or only Mn).
-- Steady state and the Mayo equation: SCIENCE.md §3; Mayo, J. Am. Chem. Soc. 1943.
-- Flow-error sensitivity Δlog M = −B·V·ε: SCIENCE.md §2 [derived].
+- Steady state and the Mayo equation: docs/science.md, section 3.2; Mayo, J. Am. Chem. Soc. 1943.
+- Flow-error sensitivity Δlog M = −B·V·ε: docs/science.md, section 2.2 [derived].
 """
 
 from __future__ import annotations

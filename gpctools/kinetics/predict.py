@@ -23,7 +23,9 @@ radical-stopping events that are combinations,
     Đ_inst = (2 + u)(1 − u/2) = 2 − u²/2,
 
 and, with φ = (β/2)/(τ + β/2) the fraction of dead chains made by combination,
-u = 2φ/(1 + φ). Limits: u = 0 gives 2, u = 1 gives 1.5. Mw = Mn·Đ_inst.
+u = 2φ/(1 + φ). Limits: u = 0 gives 2, u = 1 gives 1.5. Mw = Mn·Đ_inst. The Mayo sum and
+these relations are computed by :mod:`gpctools.chainlength` (``mayo_inv_dpn``,
+``mixed_termination``).
 
 References
 ----------
@@ -41,6 +43,7 @@ from typing import Any
 
 import pandas as pd
 
+from gpctools.chainlength import dispersity_instantaneous, mayo_inv_dpn, mixed_termination
 from gpctools.errors import DataError, GpcWarning, MethodError
 from gpctools.kinetics.recipe import (
     Component,
@@ -76,19 +79,6 @@ class KineticsWarning(GpcWarning):
     """A kinetic parameter is missing or assumed (e.g. δ not tabulated, C_M unknown)."""
 
 
-def dispersity_instantaneous(u: float) -> float:
-    """Instantaneous dispersity for a fraction ``u`` of radical stops by combination [-].
-
-    Đ_inst = 2 − u²/2 (u = 0: most probable, 2; u = 1: pure combination, 1.5).
-
-    References
-    ----------
-    Derived in the module docstring from the most-probable (Đ = 2) and Schulz-Zimm b = 2
-    (Đ = 1.5) limits (IUPAC Gold Book; SCIENCE.md §8).
-    """
-    if not 0.0 <= u <= 1.0:
-        raise DataError(f"fraction of stops by combination must be in [0, 1], got {u}")
-    return 2.0 - 0.5 * u * u
 
 
 @dataclass(frozen=True)
@@ -594,31 +584,33 @@ def evaluate(
     kpM = k_p * conc_M
     comb = (1.0 - p.delta) * k_t * radicals / kpM
     disp = 2.0 * p.delta * k_t * radicals / kpM
-    terms: list[tuple[str, float]] = [
-        ("termination (combination)", comb),
-        ("termination (disproportionation)", disp),
-        ("transfer to monomer", p.C_M),
-        ("transfer to initiator", p.C_I * conc_I / conc_M),
-    ]
+    transfer: list[tuple[str, float, float]] = [("transfer to initiator", p.C_I, conc_I / conc_M)]
     for t in p.transfer:
         C = t.C
         if dT != 0.0 and t.dE is not None:
             C = C * math.exp(-t.dE * 1e3 / R_GAS * (1.0 / T - 1.0 / p.T))
-        terms.append((f"{t.role}: {t.name}", C * t.concentration / conc_M))
+        transfer.append((f"{t.role}: {t.name}", C, t.concentration / conc_M))
+    terms: list[tuple[str, float]] = [
+        ("termination (combination)", comb),
+        ("termination (disproportionation)", disp),
+        ("transfer to monomer", p.C_M),
+    ] + [(name, C * ratio) for name, C, ratio in transfer]
+    stops = (retarder / kpM) if retarder else 0.0
     if extra_transfer:
         terms.append(("unexplained transfer", extra_transfer))
     if retarder:
-        terms.append(("retarder", retarder / kpM))
-    inv = sum(v for _, v in terms)
+        terms.append(("retarder", stops))
+    # the Mayo sum (in the budget's order), plus chain stops outside it
+    inv = float(mayo_inv_dpn(comb + disp, C_M=p.C_M,
+                             transfer=[(C, ratio) for _, C, ratio in transfer])) + extra_transfer + stops
     if not inv > 0:
         raise DataError(
             "the 1/DPn sum is not positive (a normal-batch offset larger than the model "
             "terms?); check the normal batch values"
         )
-    beta = 2.0 * comb
-    tau = inv - comb
-    u = beta / (tau + beta) if (tau + beta) > 0 else 0.0
-    phi = comb / inv if inv > 0 else 0.0
+    # τ: everything that ends one chain; β = 2·comb: radical stops by combination
+    mixed = mixed_termination(tau=inv - comb, beta=2.0 * comb)
+    u = mixed.u_combination
     return KineticState(
         T=T,
         conc_M=conc_M,
@@ -633,7 +625,7 @@ def evaluate(
         inv_DPn=inv,
         DPn=1.0 / inv,
         u_combination=u,
-        fraction_chains_combination=phi,
+        fraction_chains_combination=mixed.fraction_chains_combination,
         dispersity=dispersity_instantaneous(min(max(u, 0.0), 1.0)),
     )
 

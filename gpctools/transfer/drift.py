@@ -19,6 +19,9 @@ transfer (same law with their own constant); the initiator (``C_I``) is treated 
 constant concentration while the monomer is used up, (I/M)(x) = (I0/M0)/(1 − x);
 ``C_M`` is constant. 1/DPn0 is held constant over conversion.
 
+The formulas themselves (drifted ratios, cumulative 1/DPn, DPw and number distribution,
+C_app) live in :mod:`gpctools.chainlength`; this module fits them to run series.
+
 References
 ----------
 SCIENCE.md section 5 [derived]: cumulative Mayo, C_app, cumulative Mw, identifiability.
@@ -28,7 +31,6 @@ method) [from memory].
 
 from __future__ import annotations
 
-import functools
 import warnings as _warnings
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
@@ -36,6 +38,14 @@ from typing import Any
 
 import numpy as np
 
+from gpctools.chainlength import (
+    apparent_constant,
+    cumulative_dpw,
+    cumulative_inv_dpn,
+    cumulative_ln_number,
+    remaining_fraction,
+    term_kind,
+)
 from gpctools.errors import DataError, DesignError, EstimatorWarning
 from gpctools.transfer._stats import FittedConstants, as_str_tuple, finite_or_none, t_quantile
 from gpctools.transfer.mayo import FittedValue, MayoFit, check_design
@@ -43,7 +53,6 @@ from gpctools.transfer.mayo import FittedValue, MayoFit, check_design
 __all__ = [
     "apparent_constant",
     "remaining_fraction",
-    "instantaneous_lambda",
     "cumulative_inv_dpn",
     "cumulative_inv_dpw_half",
     "cumulative_cld_lambda",
@@ -58,113 +67,6 @@ __all__ = [
 #: remaining agent fraction (1 − x)^C below which cumulative averages hardly depend on C
 #: [-] (our threshold for "(1 − x)^C ≪ 1").
 IDENTIFIABILITY_LIMIT = 0.05
-#: Gauss–Legendre nodes for the conversion integrals (smooth integrands; checked against
-#: scipy.integrate.quad in the tests).
-N_NODES = 64
-
-
-def _kind(term: str) -> str:
-    if term.startswith("C_A") or term == "C_S":
-        return "consumed"
-    if term == "C_I":
-        return "constant"
-    if term == "C_M":
-        return "monomer"
-    raise DesignError(f"unknown term {term!r}; use C_A, C_A:<agent>, C_S, C_I or C_M", key="terms")
-
-
-def apparent_constant(C: Any, x: Any) -> np.ndarray:
-    """Naive (initial-ratio) Mayo constant of a cumulative sample: C_app = (1 − (1 − x)^C)/x [-].
-
-    Parameters
-    ----------
-    C : array-like
-        True transfer constant [-].
-    x : array-like
-        Monomer conversion, 0 < x < 1 [-].
-
-    Examples
-    --------
-    >>> round(float(apparent_constant(14.8, 0.05)), 2)
-    10.64
-
-    References
-    ----------
-    SCIENCE.md section 5 [derived]: 10.64 at x = 0.05 and 7.90 at x = 0.10 for C = 14.8.
-    """
-    C = np.asarray(C, dtype=float)
-    x = np.asarray(x, dtype=float)
-    return -np.expm1(C * np.log1p(-x)) / x
-
-
-def remaining_fraction(C: Any, x: Any) -> np.ndarray:
-    """Fraction of an agent left at conversion x, [A]/[A]0 = (1 − x)^C [-]."""
-    return np.exp(np.asarray(C, dtype=float) * np.log1p(-np.asarray(x, dtype=float)))
-
-
-def instantaneous_lambda(
-    xp: Any, inv_DPn0: float, terms: Mapping[str, tuple[float, Any]]
-) -> np.ndarray:
-    """Instantaneous dead chains per monomer converted, λ(x') [-].
-
-    Parameters
-    ----------
-    xp : array-like
-        Conversion(s) x' [-]; broadcast against the initial ratios.
-    inv_DPn0 : float
-        1/DPn0 [-].
-    terms : mapping
-        Term -> (C, r0) with r0 the initial ratio [X]0/[M]0 [-] (array or float).
-    """
-    xp = np.asarray(xp, dtype=float)
-    lam = np.full(np.broadcast_shapes(xp.shape, *[np.shape(r) for _, r in terms.values()]),
-                  float(inv_DPn0))
-    for term, (C, r0) in terms.items():
-        kind = _kind(term)
-        r0 = np.asarray(r0, dtype=float)
-        if kind == "consumed":
-            lam = lam + C * r0 * np.exp((C - 1.0) * np.log1p(-xp))
-        elif kind == "constant":
-            lam = lam + C * r0 / (1.0 - xp)
-        else:
-            lam = lam + C * np.ones_like(r0)
-    return lam
-
-
-def cumulative_inv_dpn(
-    x: Any, inv_DPn0: float, terms: Mapping[str, tuple[float, Any]]
-) -> np.ndarray:
-    """Cumulative 1/DPn at conversion x [-]: (1/x) ∫0^x λ dx' in closed form.
-
-    Consumed terms give r0 (1 − (1 − x)^C)/x; the initiator term C r0 (−ln(1 − x))/x;
-    C_M adds C_M.
-
-    References
-    ----------
-    SCIENCE.md section 5 [derived]: DPn,cum(x) = x/[x/DPn0 + r0 (1 − (1 − x)^C_A)].
-    """
-    x = np.asarray(x, dtype=float)
-    out = np.full(np.broadcast_shapes(x.shape, *[np.shape(r) for _, r in terms.values()]),
-                  float(inv_DPn0))
-    for term, (C, r0) in terms.items():
-        kind = _kind(term)
-        r0 = np.asarray(r0, dtype=float)
-        if kind == "consumed":
-            out = out + r0 * (-np.expm1(C * np.log1p(-x))) / x
-        elif kind == "constant":
-            out = out + C * r0 * (-np.log1p(-x)) / x
-        else:
-            out = out + C * np.ones_like(r0)
-    return out
-
-
-@functools.lru_cache(maxsize=8)
-def _gl(n: int = N_NODES) -> tuple[np.ndarray, np.ndarray]:
-    nodes, wts = np.polynomial.legendre.leggauss(n)
-    u, w = 0.5 * (nodes + 1.0), 0.5 * wts
-    u.setflags(write=False)
-    w.setflags(write=False)
-    return u, w
 
 
 def cumulative_inv_dpw_half(
@@ -172,22 +74,14 @@ def cumulative_inv_dpw_half(
 ) -> np.ndarray:
     """Cumulative 2 M0/Mw at conversion x [-], the drift model of the Mw/2 estimator.
 
-    Mw,cum = (1/x) ∫0^x M0 (2 − λ)/λ dx' (mass-weighted mixture of instantaneous Flory
-    distributions, whose Mw is M0 (2 − λ)/λ); returned as 2 M0/Mw,cum so that it equals
-    1/DPn for an instantaneous most-probable sample.
+    Mw,cum = M0 DPw,cum (:func:`gpctools.chainlength.cumulative_dpw`), returned as
+    2 M0/Mw,cum so that it equals 1/DPn for an instantaneous most-probable sample.
 
     References
     ----------
     SCIENCE.md section 5 [derived].
     """
-    x = np.atleast_1d(np.asarray(x, dtype=float))
-    u, wu = _gl()
-    xp = x[:, None] * u[None, :]
-    t2 = {k: (C, np.atleast_1d(np.asarray(r, dtype=float))[:, None] if np.ndim(r) else r)
-          for k, (C, r) in terms.items()}
-    lam = instantaneous_lambda(xp, inv_DPn0, t2)
-    mean_dpw = np.sum(wu[None, :] * (2.0 - lam) / lam, axis=1)  # (1/x)∫ = Σ w_u f(x u)
-    return 2.0 / mean_dpw
+    return 2.0 / cumulative_dpw(np.atleast_1d(np.asarray(x, dtype=float)), inv_DPn0, terms)
 
 
 def cumulative_cld_lambda(
@@ -201,28 +95,22 @@ def cumulative_cld_lambda(
 ) -> np.ndarray:
     """Λ of the cumulative number distribution, fitted over each run's CLD window [-].
 
-    P_cum(N) ∝ ∫0^x λ(x')^2 (1 − λ(x'))^(N − 1) dx' (chains formed per monomer converted,
-    λ dx', each with the instantaneous Flory number distribution λ(1 − λ)^(N−1));
-    Λ = −d ln P_cum/dN by a straight line over ``points`` log-spaced chain lengths in the
-    window (SEC slices are about evenly spaced in log M).
+    Λ = −d ln P_cum/dN (:func:`gpctools.chainlength.cumulative_ln_number`) by a straight
+    line over ``points`` log-spaced chain lengths in the window (SEC slices are about
+    evenly spaced in log M).
 
     References
     ----------
     SCIENCE.md sections 4 and 5 [derived]; Clay and Gilbert, Macromolecules 1995.
     """
     x = np.atleast_1d(np.asarray(x, dtype=float))
-    u, wu = _gl()
     out = np.empty(x.size)
     for i, xi in enumerate(x):
         lo, hi = windows[i]
         N = np.geomspace(lo / M0, hi / M0, points)
         ti = {k: (C, (np.atleast_1d(np.asarray(r, dtype=float))[i] if np.ndim(r) else r))
               for k, (C, r) in terms.items()}
-        lam = instantaneous_lambda(xi * u, inv_DPn0, ti)  # (nodes,)
-        lam = np.clip(lam, 1e-300, 1.0 - 1e-12)
-        logterm = (2.0 * np.log(lam))[None, :] + (N[:, None] - 1.0) * np.log1p(-lam)[None, :]
-        mx = logterm.max(axis=1, keepdims=True)
-        lnP = mx[:, 0] + np.log(np.sum(wu[None, :] * np.exp(logterm - mx), axis=1))
+        lnP = cumulative_ln_number(N, xi, inv_DPn0, ti)
         slope = np.polyfit(N, lnP, 1)[0]
         out[i] = -slope
     return out
@@ -422,7 +310,7 @@ def fit_cumulative(
     names = list(columns)
     R = {k: np.asarray(columns[k], dtype=float).ravel() for k in names}
     for k in names:
-        _kind(k)
+        term_kind(k)
         if R[k].size != n:
             raise DesignError(f"{what}: term {k} has {R[k].size} rows for {n} runs")
     bad = np.flatnonzero(~np.isfinite(xv) | (xv <= 0) | (xv >= 1))
@@ -450,14 +338,14 @@ def fit_cumulative(
         c0 = []
         for k in names:
             cn = naive.constant(k).value
-            c0.append(_invert_capp(cn, xbar) if _kind(k) == "consumed" else cn)
+            c0.append(_invert_capp(cn, xbar) if term_kind(k) == "consumed" else cn)
     else:
         a0 = float(np.min(yv)) * 0.5
         c0 = [1.0 for _ in names]
     pars = lmfit.Parameters()
     pars.add("a", value=a0)
     for j, c in enumerate(c0):
-        pars.add(f"c{j}", value=max(float(c), 1e-6), min=0.0 if _kind(names[j]) != "monomer" else -np.inf)
+        pars.add(f"c{j}", value=max(float(c), 1e-6), min=0.0 if term_kind(names[j]) != "monomer" else -np.inf)
 
     w = 1.0 / yv
 
@@ -524,7 +412,7 @@ def fit_cumulative(
     remaining: dict[str, np.ndarray] = {}
     ident: dict[str, bool] = {}
     for j, k in enumerate(names):
-        if _kind(k) != "consumed":
+        if term_kind(k) != "consumed":
             continue
         apparent[k] = apparent_constant(cs[j], xv)
         remaining[k] = remaining_fraction(cs[j], xv)

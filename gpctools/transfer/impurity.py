@@ -36,6 +36,7 @@ from typing import Any
 
 import numpy as np
 
+from gpctools.chainlength import impurity_ratio
 from gpctools.errors import DataError
 from gpctools.transfer._stats import as_str_tuple, finite_or_none, t_quantile
 from gpctools.transfer.mayo import MayoFit, check_design
@@ -60,7 +61,8 @@ MAD_TO_SD = 1.482602218505602
 def impurity_level(excess: Any, C_X: float, monomer_conc: Any = None) -> tuple[np.ndarray, np.ndarray]:
     """Impurity equivalent to an excess 1/DPn: (ppm by mol of monomer [-·1e6], [X] [mol/L]).
 
-    [X]/[M] = excess/C_X; [X] = excess·[M]/C_X (NaN when [M] is not known).
+    [X]/[M] = excess/C_X (:func:`gpctools.chainlength.impurity_ratio`, the instantaneous
+    relation); [X] = [X]/[M]·[M] (NaN when [M] is not known); both NaN without a C_X > 0.
 
     Examples
     --------
@@ -76,8 +78,9 @@ def impurity_level(excess: Any, C_X: float, monomer_conc: Any = None) -> tuple[n
     if not (C_X and C_X > 0):
         nan = np.full(np.shape(ex), np.nan)
         return nan, nan
-    ppm = ex / C_X * 1e6
-    conc = ex * (np.asarray(monomer_conc, dtype=float) if monomer_conc is not None else np.nan) / C_X
+    ratio = impurity_ratio(ex, C_X)
+    ppm = ratio * 1e6
+    conc = ratio * (np.asarray(monomer_conc, dtype=float) if monomer_conc is not None else np.nan)
     return ppm, conc
 
 

@@ -1,0 +1,67 @@
+"""Shared fixtures for the test suite.
+
+Paths to the bundled folders are session-wide and read-only: a test that writes must copy
+first (``shutil.copytree(sample_runs_dir, tmp_path / "s")``) or write under ``out_dir``.
+Objects shared across tests (``demo_method``) are frozen dataclasses, so no test can
+change what another sees.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import TYPE_CHECKING
+
+import pytest
+
+if TYPE_CHECKING:
+    from typer.testing import CliRunner
+
+    from gpctools.method import Method
+
+REPO_ROOT = Path(__file__).resolve().parent.parent
+
+
+@pytest.fixture(scope="session")
+def repo_root() -> Path:
+    """The repository checkout (the folder holding pyproject.toml)."""
+    return REPO_ROOT
+
+
+@pytest.fixture(scope="session")
+def package_dir() -> Path:
+    """The source folder of the gpctools package."""
+    return REPO_ROOT / "gpctools"
+
+
+@pytest.fixture(scope="session")
+def sample_runs_dir() -> Path:
+    """The bundled demo scenario (``sample_runs/``); read-only, copy before writing."""
+    return REPO_ROOT / "sample_runs"
+
+
+@pytest.fixture(scope="session")
+def templates_dir() -> Path:
+    """The starting files a user copies (``templates/``); read-only, copy before writing."""
+    return REPO_ROOT / "templates"
+
+
+@pytest.fixture(scope="session")
+def demo_method(sample_runs_dir: Path) -> Method:
+    """The demo method file (``sample_runs/method.toml``), loaded once; frozen."""
+    from gpctools.method import load_method
+
+    return load_method(sample_runs_dir / "method.toml")
+
+
+@pytest.fixture
+def out_dir(tmp_path: Path) -> Path:
+    """A fresh output folder path for one test (not created: commands create it)."""
+    return tmp_path / "out"
+
+
+@pytest.fixture
+def cli_runner() -> CliRunner:
+    """typer's test runner for ``gpctools.cli.app``."""
+    from typer.testing import CliRunner
+
+    return CliRunner()
