@@ -30,6 +30,7 @@ from typing import Any
 
 import numpy as np
 
+from . import columns as C
 from .distribution import (
     TABLE_COLUMNS,
     Distribution,
@@ -38,8 +39,9 @@ from .distribution import (
     peak_position,
     slice_widths,
 )
-from .errors import DataError, GpcError, GpcWarning, InputFormatError
+from .errors import DataError, GpcError, GpcWarning
 from .method import Method
+from .sheets import batch as _sheet
 from .signal import CorrectedSignal, correct_signal
 
 __all__ = [
@@ -53,28 +55,30 @@ __all__ = [
     "RESULT_COLUMNS",
 ]
 
-ROLES = ("sample", "check_standard", "blank")
+ROLES = _sheet.ROLES
 
-#: Result columns in order (metadata columns of the sheet are inserted after ``role``).
+#: Result columns in order (metadata columns of the sheet are inserted after ``role``);
+#: names, units and meanings in :mod:`gpctools.columns`.
 RESULT_COLUMNS = (
-    "status",
-    "Mn [g/mol]",
-    "Mw [g/mol]",
-    "Mz [g/mol]",
-    "Mz+1 [g/mol]",
-    "Mp [g/mol]",
-    "Mp (dw/dlogM) [g/mol]",
-    "dispersity [-]",
-    "outside calibration [% mass]",
-    "baseline windows [mL]",
-    "limits [mL]",
-    "flow marker [mL]",
-    "flow correction factor [-]",
-    "Mn shift, low-M limit -0.2 mL [%]",
-    "Mw shift, low-M limit -0.2 mL [%]",
-    "molar-mass scale",
-    "warnings",
-    "error",
+    C.STATUS,
+    C.MN,
+    C.MW,
+    C.MZ,
+    C.MZ1,
+    C.MP,
+    C.MP_DWDLOGM,
+    C.DISPERSITY,
+    C.OUTSIDE_CALIBRATION,
+    C.BASELINE_WINDOWS,
+    C.LIMITS,
+    C.FLOW_MARKER,
+    C.FLOW_FACTOR,
+    C.MN_SHIFT_LOW_M,
+    C.MW_SHIFT_LOW_M,
+    C.LIMIT_SHIFT,
+    C.SCALE,
+    C.WARNINGS,
+    C.ERROR,
 )
 
 
@@ -96,6 +100,8 @@ class InjectionResult:
         Change of Mn and Mw when the low-M (high-volume) integration limit is moved
         ``limit_shift`` mL earlier [%]; a large Mn change with a small Mw change points
         to a low-M tail or system peak inside the limits (SCIENCE.md section 9).
+    limit_shift : float
+        That move of the low-M limit [mL] (method key ``thresholds.limit_shift``).
     scale : str
         Molar-mass scale (absolute or standard-equivalent).
     warnings : tuple of str
@@ -117,49 +123,55 @@ class InjectionResult:
     metadata: dict[str, str] = field(default_factory=dict)
 
     def row(self) -> dict[str, Any]:
-        """Result-table row with unit-named columns."""
+        """Result-table row; columns as in :data:`RESULT_COLUMNS` (:mod:`gpctools.columns`).
+
+        Headers never depend on a setting: the low-M limit move is its own column,
+        ``low-M limit shift [mL]``.
+        """
         d = self.distribution
         bw = self.corrected.baseline.windows
         lim = self.corrected.limits
-        shift = f"{self.limit_shift:g}"
         return {
-            "sample_id": self.sample_id,
-            "file": self.file,
-            "status": "ok",
-            "Mn [g/mol]": d.Mn,
-            "Mw [g/mol]": d.Mw,
-            "Mz [g/mol]": d.Mz,
-            "Mz+1 [g/mol]": d.Mz1,
-            "Mp [g/mol]": d.Mp,
-            "Mp (dw/dlogM) [g/mol]": d.Mp_dwdlogM,
-            "dispersity [-]": d.dispersity,
-            "outside calibration [% mass]": 100.0 * d.outside_fraction,
-            "baseline windows [mL]": (
+            C.SAMPLE_ID: self.sample_id,
+            C.FILE: self.file,
+            C.STATUS: "ok",
+            C.MN: d.Mn,
+            C.MW: d.Mw,
+            C.MZ: d.Mz,
+            C.MZ1: d.Mz1,
+            C.MP: d.Mp,
+            C.MP_DWDLOGM: d.Mp_dwdlogM,
+            C.DISPERSITY: d.dispersity,
+            C.OUTSIDE_CALIBRATION: 100.0 * d.outside_fraction,
+            C.BASELINE_WINDOWS: (
                 f"{bw[0][0]:.3f}-{bw[0][1]:.3f}; {bw[1][0]:.3f}-{bw[1][1]:.3f}"
                 + (" (auto)" if self.corrected.baseline.automatic else "")
             ),
-            "limits [mL]": f"{lim[0]:.3f}-{lim[1]:.3f}" + (" (auto)" if self.corrected.automatic_limits else ""),
-            "flow marker [mL]": self.marker_observed if self.marker_observed is not None else float("nan"),
-            "flow correction factor [-]": self.flow_factor,
-            f"Mn shift, low-M limit -{shift} mL [%]": self.Mn_shift_pct,
-            f"Mw shift, low-M limit -{shift} mL [%]": self.Mw_shift_pct,
-            "molar-mass scale": self.scale,
-            "warnings": "; ".join(self.warnings),
-            "error": "",
+            C.LIMITS: f"{lim[0]:.3f}-{lim[1]:.3f}" + (" (auto)" if self.corrected.automatic_limits else ""),
+            C.FLOW_MARKER: self.marker_observed if self.marker_observed is not None else float("nan"),
+            C.FLOW_FACTOR: self.flow_factor,
+            C.MN_SHIFT_LOW_M: self.Mn_shift_pct,
+            C.MW_SHIFT_LOW_M: self.Mw_shift_pct,
+            C.LIMIT_SHIFT: self.limit_shift,
+            C.SCALE: self.scale,
+            C.WARNINGS: "; ".join(self.warnings),
+            C.ERROR: "",
         }
 
     def summary(self) -> dict[str, Any]:
+        """Plain JSON-safe description of the injection and its results."""
         return {
-            "sample_id": self.sample_id,
-            "file": self.file,
+            C.SAMPLE_ID: self.sample_id,
+            C.FILE: self.file,
             "distribution": self.distribution.summary(),
             "signal": self.corrected.summary(),
-            "flow marker [mL]": self.marker_observed,
-            "flow correction factor [-]": self.flow_factor,
+            C.FLOW_MARKER: self.marker_observed,
+            C.FLOW_FACTOR: self.flow_factor,
             "Mn shift [%]": self.Mn_shift_pct,
             "Mw shift [%]": self.Mw_shift_pct,
-            "molar-mass scale": self.scale,
-            "warnings": list(self.warnings),
+            C.LIMIT_SHIFT: self.limit_shift,
+            C.SCALE: self.scale,
+            C.WARNINGS: list(self.warnings),
         }
 
 
@@ -308,7 +320,25 @@ def process_injection(
 # -- the batch sheet ----------------------------------------------------------------------
 @dataclass(frozen=True)
 class BatchEntry:
-    """One row of the batch sheet, checked."""
+    """One row of the batch sheet, checked.
+
+    Attributes
+    ----------
+    row : int
+        The sheet row (1-based, as the user counts).
+    sample_id, file : str
+        As written (``sample_id`` is ``"(row N)"`` when the cell is empty).
+    path : Path
+        The export, resolved against the sheet's folder.
+    role : str
+        ``sample``, ``check_standard`` or ``blank``.
+    marker_observed : float or None
+        Observed flow-marker position [mL].
+    metadata : dict
+        The sheet's other columns (``None`` for blank cells).
+    problem : str or None
+        Why the row cannot be processed (it becomes an error row of the batch).
+    """
 
     row: int
     sample_id: str
@@ -320,111 +350,49 @@ class BatchEntry:
     problem: str | None = None
 
 
-_ALIASES = {
-    "sample_id": ("sample_id", "sample id", "sample", "id"),
-    "file": ("file", "path", "file path", "filename", "data file"),
-    "role": ("role", "type"),
-    "flow marker [mL]": ("flow marker [ml]", "flow_marker [ml]", "flow_marker", "flow marker", "marker [ml]"),
-}
-
-
 def read_batch_sheet(path: str | Path, *, sheet: str | int | None = None) -> list[BatchEntry]:
-    """Read and check a batch sheet.
+    """Read and check a batch sheet (schema :data:`gpctools.sheets.BATCH`).
+
+    Parameters
+    ----------
+    path : str or Path
+        The batch sheet (CSV or XLSX); export paths are relative to its folder.
+    sheet : str or int, optional
+        Workbook sheet (name or 0-based index).
+
+    Returns
+    -------
+    list of BatchEntry
+        One per injection row, in sheet order.
 
     Raises
     ------
     InputFormatError
-        The sheet cannot be read, or lacks the ``sample_id`` or ``file`` column. Problems
-        of single rows (empty file cell, unknown role, bad marker value) do not raise:
-        the entry carries a ``problem`` and becomes an error row of the batch.
+        The sheet cannot be read, lacks the ``sample_id`` or ``file`` column, or has no
+        rows. Problems of single rows (empty file cell, unknown role, bad marker value) do
+        not raise: the entry carries a ``problem`` and becomes an error row of the batch.
     """
-    from .io import read_sheet, sheet_row_number
+    from .sheets import BATCH, read_file
 
     p = Path(path)
-    df = read_sheet(p, sheet=sheet)
-    lower = {str(c).strip().lower(): c for c in df.columns}
-    found: dict[str, Any] = {}
-    for key, names in _ALIASES.items():
-        for n in names:
-            if n in lower:
-                found[key] = lower[n]
-                break
-    for key in ("sample_id", "file"):
-        if key not in found:
-            raise InputFormatError(
-                f"the batch sheet needs a '{key}' column; found columns: "
-                + ", ".join(str(c) for c in df.columns),
-                path=p,
-            )
-    used = set(found.values())
-    meta_cols = [c for c in df.columns if c not in used]
+    table = read_file(p, BATCH, sheet=sheet, collect=True)
     entries = []
-    # to_dict("records") is far cheaper than iterrows for long sheets
-    for label, rec in zip(df.index, df.to_dict("records")):
-        rown = sheet_row_number(df, label)
-        problem = None
-        sid = rec[found["sample_id"]]
-        sid = "" if _blank(sid) else _text(sid)
-        f = rec[found["file"]]
-        f = "" if _blank(f) else _text(f)
-        role = "sample"
-        if "role" in found and not _blank(rec[found["role"]]):
-            role = _text(rec[found["role"]]).lower().replace(" ", "_").replace("-", "_")
-            if role not in ROLES:
-                problem = f"{p}, row {rown}: unknown role {role!r}; use one of {', '.join(ROLES)}"
-        marker = None
-        if "flow marker [mL]" in found and not _blank(rec[found["flow marker [mL]"]]):
-            try:
-                marker = float(str(rec[found["flow marker [mL]"]]).replace(",", "."))
-            except ValueError:
-                problem = f"{p}, row {rown}: flow marker [mL] must be a number, got {rec[found['flow marker [mL]']]!r}"
-        if not sid:
-            problem = problem or f"{p}, row {rown}, column 'sample_id': the cell is empty; give every injection an id"
-            sid = f"(row {rown})"
-        if not f:
-            problem = problem or (f"{p}, row {rown}, column 'file': the cell is empty; give the path of "
-                                  "the slice export (relative to the batch sheet)")
+    for row in table.rows:
+        sid = row["sample_id"] or f"(row {row.row})"
+        f = row["file"]
         fp = (p.parent / f) if f else p.parent
-        meta = {str(c): (None if _blank(rec[c]) else _plain(rec[c])) for c in meta_cols}
-        entries.append(BatchEntry(rown, sid, f, fp, role, marker, meta, problem))
-    if not entries:
-        raise InputFormatError("the batch sheet has no injection rows", path=p)
+        entries.append(BatchEntry(row.row, sid, f, fp, row.get("role", _sheet.ROLE_SAMPLE),
+                                  row.get("flow_marker"), dict(row.metadata), row.problem))
     return entries
-
-
-def _blank(v: Any) -> bool:
-    if v is None:
-        return True
-    if isinstance(v, float) and math.isnan(v):
-        return True
-    return isinstance(v, str) and not v.strip()
-
-
-def _text(v: Any) -> str:
-    if isinstance(v, float) and v.is_integer():
-        return str(int(v))
-    return str(v).strip()
-
-
-def _plain(v: Any) -> Any:
-    if isinstance(v, (np.integer,)):
-        return int(v)
-    if isinstance(v, (np.floating,)):
-        return float(v)
-    if isinstance(v, str):
-        return v.strip()
-    return v
 
 
 # -- running a batch ----------------------------------------------------------------------
 def _error_row(entry: BatchEntry, message: str) -> dict[str, Any]:
-    row = {"sample_id": entry.sample_id, "file": entry.file, "role": entry.role, **entry.metadata}
+    row = {C.SAMPLE_ID: entry.sample_id, C.FILE: entry.file, C.ROLE: entry.role, **entry.metadata}
     for c in RESULT_COLUMNS:
-        if "shift" in c:  # label depends on the method's limit shift; filled by pandas
-            continue
-        row.setdefault(c, float("nan") if c.endswith("]") else "")
-    row["status"] = "error"
-    row["error"] = message
+        row.setdefault(c, float("nan") if C.describe(c).unit else "")
+    row[C.STATUS] = "error"
+    row[C.ERROR] = message
     return row
 
 
@@ -438,9 +406,9 @@ def _run_entry(entry: BatchEntry, method: Method, dist_dir: str | None, keep: bo
         return _error_row(entry, str(exc)), None
     except Exception as exc:  # one bad injection must not sink the batch
         return _error_row(entry, f"{entry.path}: unexpected {type(exc).__name__}: {exc}"), None
-    row = {"sample_id": entry.sample_id, "file": entry.file, "role": entry.role, **entry.metadata}
+    row = {C.SAMPLE_ID: entry.sample_id, C.FILE: entry.file, C.ROLE: entry.role, **entry.metadata}
     row.update(res.row())
-    row["file"] = entry.file
+    row[C.FILE] = entry.file
     if dist_dir is not None:
         write_distribution(Path(dist_dir) / _distribution_name(entry), res.distribution)
     return row, (res if keep else None)
@@ -504,7 +472,7 @@ class BatchResult:
 
     @property
     def failed(self) -> int:
-        return int((self.table["status"] == "error").sum())
+        return int((self.table[C.STATUS] == "error").sum())
 
     def summary(self) -> dict[str, Any]:
         return {
@@ -520,7 +488,7 @@ class BatchResult:
 
 
 def _order_columns(df, meta_cols):
-    front = ["sample_id", "file", "role", *meta_cols]
+    front = [C.SAMPLE_ID, C.FILE, C.ROLE, *meta_cols]
     rest = [c for c in df.columns if c not in front]
     return df[[c for c in front if c in df.columns] + rest]
 

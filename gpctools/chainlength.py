@@ -38,7 +38,7 @@ Flory, P. J., Principles of Polymer Chemistry, Cornell University Press, 1953
 (most-probable distribution).
 Clay, P. A.; Gilbert, R. G., Macromolecules 1995, 28, 552 (chain-length distributions with
 transfer and mixed termination).
-SCIENCE.md sections 3, 4, 5 and 9 (derived relations and the check values used in tests).
+docs/science.md, sections 3, 4, 5 and 9 (derived relations and the check values used in tests).
 """
 
 from __future__ import annotations
@@ -120,7 +120,7 @@ def kinetic_inv_dpn(R_p: ArrayLike, conc_M: ArrayLike, k_p: float, k_t: float,
 
     References
     ----------
-    Mayo, J. Am. Chem. Soc. 1943; SCIENCE.md section 3 (IUPAC k_t convention).
+    Mayo, J. Am. Chem. Soc. 1943; docs/science.md, section 3 (IUPAC k_t convention).
     """
     R = np.asarray(R_p, dtype=float)
     M = np.asarray(conc_M, dtype=float)
@@ -150,7 +150,7 @@ def mayo_inv_dpn(kinetic: FloatOrArray = 0.0, *, C_M: FloatOrArray = 0.0,
 
     References
     ----------
-    Mayo, J. Am. Chem. Soc. 1943; SCIENCE.md section 3.
+    Mayo, J. Am. Chem. Soc. 1943; docs/science.md, section 3.
 
     Examples
     --------
@@ -214,7 +214,7 @@ def most_probable(Mn: float, M0: float | None = None) -> DistributionModel:
     References
     ----------
     Flory, Principles of Polymer Chemistry, 1953; Schulz–Zimm moments: IUPAC Gold Book
-    ("Schulz–Zimm distribution"); SCIENCE.md sections 4 and 8.
+    ("Schulz–Zimm distribution"); docs/science.md, sections 4 and 8.
     """
     if not (Mn > 0 and math.isfinite(Mn)):
         raise DataError(f"the most-probable distribution needs Mn > 0, got Mn={Mn!r}")
@@ -271,7 +271,7 @@ def dispersity_instantaneous(u: float) -> float:
     References
     ----------
     Clay and Gilbert, Macromolecules 1995 (DPn, DPw with mixed termination); the limits
-    are Schulz–Zimm b = 1 and b = 2 (IUPAC Gold Book; SCIENCE.md sections 4 and 8).
+    are Schulz–Zimm b = 1 and b = 2 (IUPAC Gold Book; docs/science.md, sections 4 and 8).
     """
     if not 0.0 <= u <= 1.0:
         raise DataError(f"fraction of stops by combination must be in [0, 1], got {u}")
@@ -310,7 +310,7 @@ class MixedTermination:
 
     References
     ----------
-    Clay and Gilbert, Macromolecules 1995; SCIENCE.md section 4 [derived].
+    Clay and Gilbert, Macromolecules 1995; docs/science.md, section 4 [derived].
     """
 
     tau: float
@@ -407,7 +407,7 @@ def mixed_termination(tau: float, beta: float) -> MixedTermination:
 
     References
     ----------
-    Clay and Gilbert, Macromolecules 1995; SCIENCE.md section 4.
+    Clay and Gilbert, Macromolecules 1995; docs/science.md, section 4.
     """
     return MixedTermination(float(tau), float(beta))
 
@@ -427,7 +427,7 @@ def remaining_fraction(C: ArrayLike, x: ArrayLike) -> NDArray[np.float64]:
 
     References
     ----------
-    SCIENCE.md section 5: d[A]/d[M] = C [A]/[M] when A is consumed only by transfer.
+    docs/science.md, section 5: d[A]/d[M] = C [A]/[M] when A is consumed only by transfer.
     """
     return np.exp(np.asarray(C, dtype=float) * np.log1p(-np.asarray(x, dtype=float)))
 
@@ -446,7 +446,7 @@ def agent_ratio(r0: ArrayLike, C: ArrayLike, x: ArrayLike) -> NDArray[np.float64
 
     References
     ----------
-    SCIENCE.md section 5 [derived].
+    docs/science.md, section 5 [derived].
     """
     C = np.asarray(C, dtype=float)
     return np.asarray(r0, dtype=float) * np.exp((C - 1.0) * np.log1p(-np.asarray(x, dtype=float)))
@@ -469,7 +469,7 @@ def apparent_constant(C: ArrayLike, x: ArrayLike) -> NDArray[np.float64]:
 
     References
     ----------
-    SCIENCE.md section 5 [derived]: 10.64 at x = 0.05 and 7.90 at x = 0.10 for C = 14.8.
+    docs/science.md, section 5 [derived]: 10.64 at x = 0.05 and 7.90 at x = 0.10 for C = 14.8.
     """
     C = np.asarray(C, dtype=float)
     x = np.asarray(x, dtype=float)
@@ -519,7 +519,7 @@ def instantaneous_inv_dpn(x: ArrayLike, inv_DPn0: float, terms: Terms) -> NDArra
 
     References
     ----------
-    Mayo, J. Am. Chem. Soc. 1943; SCIENCE.md section 5 [derived].
+    Mayo, J. Am. Chem. Soc. 1943; docs/science.md, section 5 [derived].
     """
     xp = np.asarray(x, dtype=float)
     lam = np.full(_shape(xp, terms), float(inv_DPn0))
@@ -548,7 +548,7 @@ def cumulative_inv_dpn(x: ArrayLike, inv_DPn0: float, terms: Terms) -> NDArray[n
 
     References
     ----------
-    SCIENCE.md section 5 [derived]: DPn,cum(x) = x/[x/DPn0 + r0 (1 − (1 − x)^C_A)].
+    docs/science.md, section 5 [derived]: DPn,cum(x) = x/[x/DPn0 + r0 (1 − (1 − x)^C_A)].
     """
     xv = np.asarray(x, dtype=float)
     out = np.full(_shape(xv, terms), float(inv_DPn0))
@@ -603,7 +603,7 @@ def cumulative_dpw(x: ArrayLike, inv_DPn0: float, terms: Terms, *,
 
     References
     ----------
-    SCIENCE.md section 5 [derived]; Flory 1953 (DPw of the discrete distribution).
+    docs/science.md, section 5 [derived]; Flory 1953 (DPw of the discrete distribution).
     """
     lam, w = _lambda_nodes(x, inv_DPn0, terms, nodes)
     return np.sum(w * (2.0 - lam) / lam, axis=-1)
@@ -630,7 +630,7 @@ def cumulative_averages(x: float, inv_DPn0: float, terms: Terms, M0: float, *,
 
     References
     ----------
-    SCIENCE.md section 5 [derived].
+    docs/science.md, section 5 [derived].
     """
     inv = cumulative_inv_dpn(x, inv_DPn0, terms)
     dpw = cumulative_dpw(x, inv_DPn0, terms, nodes=nodes)
@@ -659,7 +659,7 @@ def cumulative_ln_number(N: ArrayLike, x: float, inv_DPn0: float, terms: Terms, 
 
     References
     ----------
-    SCIENCE.md sections 4 and 5 [derived]; Clay and Gilbert, Macromolecules 1995.
+    docs/science.md, sections 4 and 5 [derived]; Clay and Gilbert, Macromolecules 1995.
     """
     lam, w = _lambda_nodes(x, inv_DPn0, terms, nodes)
     lam = np.clip(lam, 1e-300, 1.0 - 1e-12)
@@ -697,7 +697,7 @@ def cumulative_most_probable(x: float, inv_DPn0: float, terms: Terms, M0: float,
 
     References
     ----------
-    SCIENCE.md section 5 [derived]; Flory 1953.
+    docs/science.md, section 5 [derived]; Flory 1953.
     """
     lam, w = _lambda_nodes(x, inv_DPn0, terms, nodes)
     log1m = np.log1p(-lam)
@@ -744,7 +744,7 @@ def impurity_ratio(excess: ArrayLike, C_X: float) -> NDArray[np.float64]:
 
     References
     ----------
-    SCIENCE.md section 9 [derived]: 10 ppm (mol) of a thiol with C = 15 adds 1.5e-4 to 1/DPn.
+    docs/science.md, section 9 [derived]: 10 ppm (mol) of a thiol with C = 15 adds 1.5e-4 to 1/DPn.
     """
     if not C_X > 0:
         raise DataError(f"the impurity's transfer constant must be > 0, got {C_X!r}")
@@ -770,7 +770,7 @@ def impurity_ratio_cumulative(excess: ArrayLike, C_X: float, x: ArrayLike) -> ND
 
     References
     ----------
-    SCIENCE.md section 5 [derived].
+    docs/science.md, section 5 [derived].
     """
     if not C_X > 0:
         raise DataError(f"the impurity's transfer constant must be > 0, got {C_X!r}")

@@ -64,6 +64,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
+from . import columns as C
 from .calibration import Calibration, fit_calibration
 from .errors import CalibrationError, MethodError
 
@@ -249,95 +250,22 @@ def _section(data: dict, name: str, source: str | None) -> dict:
 
 
 def _build(data: dict[str, Any], base: Path, source: str | None) -> Method:
+    """Check a parsed method mapping section by section and build the :class:`Method`.
+
+    Each section has its own step (``_import_options``, ``_flow``, ``_flow_marker``,
+    ``_baseline``, ``_integration``, ``_thresholds``, ``_build_calibration``); every step
+    records what it decided in ``settings`` (the audit copy of the method).
+    """
     if not isinstance(data, dict):
         raise _err("the method must be a TOML table", "", source)
     _check_keys(data, "", source)
     settings: dict[str, Any] = {}
-
-    # [import]
-    imp = _section(data, "import", source)
-    opts: dict[str, Any] = {}
-    for k, v in imp.items():
-        key = f"import.{k}"
-        if _auto(v):
-            continue
-        if k in ("x_column", "signal_column", "sheet"):
-            if isinstance(v, bool) or not isinstance(v, (str, int)):
-                raise _err("must be a header text or a 0-based column index", key, source)
-            opts[k] = v
-        elif k == "x_unit":
-            units = {"ml": "mL", "min": "min", "s": "s"}
-            if not isinstance(v, str) or v.strip().lower() not in units:
-                raise _err(f"must be 'auto', 'mL', 'min' or 's', got {v!r}", key, source)
-            opts[k] = units[v.strip().lower()]
-        elif k == "decimal":
-            if v not in (".", ","):
-                raise _err(f"must be 'auto', '.' or ',', got {v!r}", key, source)
-            opts[k] = v
-        elif k == "separator":
-            seps = {",": ",", ";": ";", "tab": "\t", "\t": "\t"}
-            if v not in seps:
-                raise _err(f"must be 'auto', ',', ';' or 'tab', got {v!r}", key, source)
-            opts[k] = seps[v]
-        elif k == "encoding":
-            if not isinstance(v, str):
-                raise _err("must be an encoding name such as 'utf-8' or 'utf-16'", key, source)
-            opts[k] = v
-    import_options = ImportOptions(**opts)
-    settings["import"] = dict(opts)
-
-    flow = _section(data, "flow", source)
-    flow_rate = _number(flow["rate"], "flow.rate", source, positive=True) if "rate" in flow else None
-    if flow_rate is not None and flow_rate > 1000.0:
-        # analytical SEC runs at about 0.1-2 mL/min, preparative columns at tens of mL/min
-        raise _err(f"{flow_rate:g} mL/min is not a plausible SEC flow rate; give it in mL/min",
-                   "flow.rate", source)
-    settings["flow rate [mL/min]"] = flow_rate
-
-    fm = _section(data, "flow_marker", source)
-    marker_ref = _number(fm["reference"], "flow_marker.reference", source, positive=True) if "reference" in fm else None
-    marker_search = _window(fm["search"], "flow_marker.search", source) if "search" in fm else None
-    if marker_search is not None and marker_ref is None:
-        raise _err("a marker search window needs flow_marker.reference (the calibration-day position)",
-                   "flow_marker.reference", source)
-    settings["flow marker reference [mL]"] = marker_ref
-    settings["flow marker search [mL]"] = list(marker_search) if marker_search else None
-
-    bl = _section(data, "baseline", source)
-    windows = None
-    if "windows" in bl and not _auto(bl["windows"]):
-        w = bl["windows"]
-        if not isinstance(w, list) or len(w) != 2:
-            raise _err("must be 'auto' or two windows [[a, b], [c, d]] in mL (before and after the peak)",
-                       "baseline.windows", source)
-        windows = (_window(w[0], "baseline.windows", source), _window(w[1], "baseline.windows", source))
-        if not windows[0][1] <= windows[1][0]:
-            raise _err("the first window must end before the second starts", "baseline.windows", source)
-    settings["baseline windows [mL]"] = "auto" if windows is None else [list(x) for x in windows]
-
-    integ = _section(data, "integration", source)
-    limits = None
-    if "limits" in integ and not _auto(integ["limits"]):
-        limits = _window(integ["limits"], "integration.limits", source)
-    exclusions: tuple[Window, ...] = ()
-    if "exclude" in integ:
-        ex = integ["exclude"]
-        if not isinstance(ex, list):
-            raise _err("must be a list of [start, end] pairs in mL", "integration.exclude", source)
-        exclusions = tuple(_window(e, "integration.exclude", source) for e in ex)
-    outside = integ.get("outside", "linear")
-    if outside not in ("linear", "exclude"):
-        raise _err(f"must be 'linear' or 'exclude', got {outside!r}", "integration.outside", source)
-    settings["integration limits [mL]"] = "auto" if limits is None else list(limits)
-    settings["excluded regions [mL]"] = [list(e) for e in exclusions]
-    settings["outside calibration"] = outside
-
-    th = _section(data, "thresholds", source)
-    out_pct = _number(th.get("outside_calibration_pct", 1.0), "thresholds.outside_calibration_pct", source, minimum=0)
-    res_pct = _number(th.get("standard_residual_pct", 5.0), "thresholds.standard_residual_pct", source, positive=True)
-    shift = _number(th.get("limit_shift", 0.2), "thresholds.limit_shift", source, positive=True)
-    settings["thresholds"] = {"outside calibration [% mass]": out_pct, "standard residual [%]": res_pct,
-                              "limit shift [mL]": shift}
+    import_options = _import_options(data, source, settings)
+    flow_rate = _flow(data, source, settings)
+    marker_ref, marker_search = _flow_marker(data, source, settings)
+    windows = _baseline(data, source, settings)
+    limits, exclusions, outside = _integration(data, source, settings)
+    out_pct, res_pct, shift = _thresholds(data, source, settings)
 
     sample_polymer = data.get("sample_polymer")
     if sample_polymer is not None and not isinstance(sample_polymer, str):
@@ -367,6 +295,119 @@ def _build(data: dict[str, Any], base: Path, source: str | None) -> Method:
     )
 
 
+def _import_options(data: dict[str, Any], source: str | None, settings: dict[str, Any]) -> ImportOptions:
+    """``[import]``: reader options for the slice exports (``"auto"`` leaves one unset)."""
+    imp = _section(data, "import", source)
+    opts: dict[str, Any] = {}
+    for k, v in imp.items():
+        key = f"import.{k}"
+        if _auto(v):
+            continue
+        if k in ("x_column", "signal_column", "sheet"):
+            if isinstance(v, bool) or not isinstance(v, (str, int)):
+                raise _err("must be a header text or a 0-based column index", key, source)
+            opts[k] = v
+        elif k == "x_unit":
+            units = {"ml": "mL", "min": "min", "s": "s"}
+            if not isinstance(v, str) or v.strip().lower() not in units:
+                raise _err(f"must be 'auto', 'mL', 'min' or 's', got {v!r}", key, source)
+            opts[k] = units[v.strip().lower()]
+        elif k == "decimal":
+            if v not in (".", ","):
+                raise _err(f"must be 'auto', '.' or ',', got {v!r}", key, source)
+            opts[k] = v
+        elif k == "separator":
+            seps = {",": ",", ";": ";", "tab": "\t", "\t": "\t"}
+            if v not in seps:
+                raise _err(f"must be 'auto', ',', ';' or 'tab', got {v!r}", key, source)
+            opts[k] = seps[v]
+        elif k == "encoding":
+            if not isinstance(v, str):
+                raise _err("must be an encoding name such as 'utf-8' or 'utf-16'", key, source)
+            opts[k] = v
+    settings["import"] = dict(opts)
+    return ImportOptions(**opts)
+
+
+def _flow(data: dict[str, Any], source: str | None, settings: dict[str, Any]) -> float | None:
+    """``[flow]``: the nominal flow rate [mL/min], or None."""
+    flow = _section(data, "flow", source)
+    flow_rate = _number(flow["rate"], "flow.rate", source, positive=True) if "rate" in flow else None
+    if flow_rate is not None and flow_rate > 1000.0:
+        # analytical SEC runs at about 0.1-2 mL/min, preparative columns at tens of mL/min
+        raise _err(f"{flow_rate:g} mL/min is not a plausible SEC flow rate; give it in mL/min",
+                   "flow.rate", source)
+    settings["flow rate [mL/min]"] = flow_rate
+    return flow_rate
+
+
+def _flow_marker(
+    data: dict[str, Any], source: str | None, settings: dict[str, Any]
+) -> tuple[float | None, Window | None]:
+    """``[flow_marker]``: the reference position [mL] and the search window [mL]."""
+    fm = _section(data, "flow_marker", source)
+    marker_ref = _number(fm["reference"], "flow_marker.reference", source, positive=True) if "reference" in fm else None
+    marker_search = _window(fm["search"], "flow_marker.search", source) if "search" in fm else None
+    if marker_search is not None and marker_ref is None:
+        raise _err("a marker search window needs flow_marker.reference (the calibration-day position)",
+                   "flow_marker.reference", source)
+    settings["flow marker reference [mL]"] = marker_ref
+    settings["flow marker search [mL]"] = list(marker_search) if marker_search else None
+    return marker_ref, marker_search
+
+
+def _baseline(data: dict[str, Any], source: str | None, settings: dict[str, Any]) -> tuple[Window, Window] | None:
+    """``[baseline]``: two baseline windows [mL], or None for automatic."""
+    bl = _section(data, "baseline", source)
+    windows = None
+    if "windows" in bl and not _auto(bl["windows"]):
+        w = bl["windows"]
+        if not isinstance(w, list) or len(w) != 2:
+            raise _err("must be 'auto' or two windows [[a, b], [c, d]] in mL (before and after the peak)",
+                       "baseline.windows", source)
+        windows = (_window(w[0], "baseline.windows", source), _window(w[1], "baseline.windows", source))
+        if not windows[0][1] <= windows[1][0]:
+            raise _err("the first window must end before the second starts", "baseline.windows", source)
+    settings["baseline windows [mL]"] = "auto" if windows is None else [list(x) for x in windows]
+    return windows
+
+
+def _integration(
+    data: dict[str, Any], source: str | None, settings: dict[str, Any]
+) -> tuple[Window | None, tuple[Window, ...], str]:
+    """``[integration]``: limits [mL] (None = automatic), excluded regions [mL], outside rule."""
+    integ = _section(data, "integration", source)
+    limits = None
+    if "limits" in integ and not _auto(integ["limits"]):
+        limits = _window(integ["limits"], "integration.limits", source)
+    exclusions: tuple[Window, ...] = ()
+    if "exclude" in integ:
+        ex = integ["exclude"]
+        if not isinstance(ex, list):
+            raise _err("must be a list of [start, end] pairs in mL", "integration.exclude", source)
+        exclusions = tuple(_window(e, "integration.exclude", source) for e in ex)
+    outside = integ.get("outside", "linear")
+    if outside not in ("linear", "exclude"):
+        raise _err(f"must be 'linear' or 'exclude', got {outside!r}", "integration.outside", source)
+    settings["integration limits [mL]"] = "auto" if limits is None else list(limits)
+    settings["excluded regions [mL]"] = [list(e) for e in exclusions]
+    settings["outside calibration"] = outside
+    return limits, exclusions, outside
+
+
+def _thresholds(
+    data: dict[str, Any], source: str | None, settings: dict[str, Any]
+) -> tuple[float, float, float]:
+    """``[thresholds]``: outside-calibration warning [% mass], standard residual [%], limit shift [mL]."""
+    th = _section(data, "thresholds", source)
+    out_pct = _number(th.get("outside_calibration_pct", 1.0), "thresholds.outside_calibration_pct", source, minimum=0)
+    res_pct = _number(th.get("standard_residual_pct", 5.0), "thresholds.standard_residual_pct", source, positive=True)
+    shift = _number(th.get("limit_shift", 0.2), "thresholds.limit_shift", source, positive=True)
+    settings["thresholds"] = {C.OUTSIDE_CALIBRATION: out_pct, "standard residual [%]": res_pct,
+                              "limit shift [mL]": shift}
+    return out_pct, res_pct, shift
+
+
 def _standards_from_rows(rows: list[dict[str, Any]], key: str, source: str | None, flow_rate: float | None):
     names, mps, vols = [], [], []
     for i, row in enumerate(rows, start=1):
@@ -393,52 +434,41 @@ def _standards_from_rows(rows: list[dict[str, Any]], key: str, source: str | Non
     return names, mps, vols
 
 
-def _standards_from_file(path: Path, sheet, source: str | None, flow_rate: float | None):
-    from .io import read_sheet, sheet_row_number
+def _standards_from_file(
+    path: Path, sheet: str | int | None, source: str | None, flow_rate: float | None
+) -> tuple[list[str], list[float], list[float]]:
+    """Names, Mp [g/mol] and peak volumes [mL] from a standards table (CSV or XLSX).
 
-    df = read_sheet(path, sheet=sheet)
-    cols = {str(c).strip().lower(): c for c in df.columns}
+    The table is read with :data:`gpctools.sheets.STANDARDS` (the one cell parser: a decimal
+    comma, a unit in the header, ``[kg/mol]`` or ``time [s]`` are understood). Peak times
+    [min] are converted with the flow rate [mL/min]: ``V = t·F``.
 
-    def find(*cands):
-        for c in cands:
-            if c in cols:
-                return cols[c]
-        return None
+    Raises
+    ------
+    MethodError
+        Naming the standards file, row and column; or the method's ``flow.rate`` key when
+        the standards are given as time without a flow rate.
+    """
+    from .sheets import STANDARDS, read_file
+    from .sheets.schema import message_empty
 
-    c_mp = find("mp [g/mol]", "mp", "m [g/mol]", "mp (g/mol)")
-    c_v = find("volume [ml]", "volume", "v [ml]", "volume (ml)", "elution volume [ml]")
-    c_t = find("time [min]", "time", "retention time [min]", "time (min)")
-    c_name = find("name", "standard")
-    if c_mp is None:
-        raise MethodError("standards table needs an 'Mp [g/mol]' column", path=path)
-    if c_v is None and c_t is None:
-        raise MethodError("standards table needs a 'volume [mL]' or 'time [min]' column", path=path)
-    if c_v is None and flow_rate is None:
-        raise MethodError("standards given as time need flow.rate [mL/min] in the method", path=source, key="flow.rate")
-    c_x = c_v if c_v is not None else c_t
-    names, mps, vols = [], [], []
-    for label, row in df.iterrows():
-        rown = sheet_row_number(df, label)
-        values = []
-        for col in (c_mp, c_x):
-            raw = row[col]
-            try:
-                x = float(raw)
-            except (TypeError, ValueError):
-                x = math.nan
-            if not (math.isfinite(x) and x > 0):
-                empty = raw is None or (isinstance(raw, float) and math.isnan(raw)) or str(raw).strip() == ""
-                what = "the cell is empty" if empty else f"{raw!r} is not a positive number"
-                raise MethodError(
-                    f"{what}; give every standard its Mp [g/mol] and its peak volume [mL] or "
-                    "time [min], or delete the row",
-                    path=path, row=rown, column=str(col),
-                )
-            values.append(x)
-        mp, v = values[0], (values[1] if c_v is not None else values[1] * flow_rate)
-        names.append(str(row[c_name]) if c_name is not None else f"standard {len(names) + 1}")
-        mps.append(mp)
-        vols.append(v)
+    table = read_file(path, STANDARDS, sheet=sheet)
+    use_volume = "volume" in table.columns
+    if not use_volume and flow_rate is None:
+        raise MethodError("standards given as time need flow.rate [mL/min] in the method",
+                          path=source, key="flow.rate")
+    x_field = "volume" if use_volume else "time"
+    x_header = table.columns.header(x_field)
+    names: list[str] = []
+    mps: list[float] = []
+    vols: list[float] = []
+    for row in table.rows:
+        x = row[x_field]
+        if x is None:
+            raise row.error(message_empty(STANDARDS, STANDARDS.field(x_field)), x_header)
+        names.append(row.get("name") or f"standard {len(names) + 1}")
+        mps.append(row["Mp"])
+        vols.append(x if use_volume else x * flow_rate)
     return names, mps, vols
 
 

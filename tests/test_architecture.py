@@ -84,13 +84,7 @@ KNOWN_VIOLATIONS: frozenset[tuple[str, str, str]] = frozenset({
     ("private", "gpctools.transfer.analysis", "gpctools._atomic"),
     ("private", "gpctools.transfer.analysis", "gpctools._workbook"),
     ("private", "gpctools.transfer.plots", "gpctools._atomic"),
-    ("private", "gpctools.transfer.synthetic", "gpctools._atomic"),
-    ("private", "gpctools.kinetics._demo", "gpctools._atomic"),
     ("private", "gpctools.kinetics.diagnose", "gpctools._atomic"),
-    # (c) the generators outside simulate (transfer.synthetic, kinetics._demo) merge into
-    # the one simulator and the demo module, so that no science module imports simulate.
-    ("restricted", "gpctools.transfer.synthetic", "gpctools.simulate"),
-    ("restricted", "gpctools.kinetics._demo", "gpctools.simulate"),
 })
 
 

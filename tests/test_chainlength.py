@@ -1,7 +1,7 @@
 """Tests of gpctools.chainlength against closed forms and independent numerics.
 
 Truth side: published identities (Flory; Schulz-Zimm moments from the IUPAC Gold Book;
-Clay and Gilbert 1995), the derived check values of SCIENCE.md sections 3-5 and 9, direct
+Clay and Gilbert 1995), the derived check values of docs/science.md, sections 3-5 and 9, direct
 summation over chain lengths with numpy, and integrals over conversion by
 scipy.integrate (quad, quad_vec, solve_ivp) of integrands written out here by hand, not
 taken from the module.
@@ -53,7 +53,7 @@ def _sum_moments(N: np.ndarray, P: np.ndarray) -> dict[str, float]:
 
 
 def test_mayo_sum_impurity_check_value():
-    # SCIENCE.md section 9 [derived]: 10 ppm (mol) of a thiol with C = 15 adds 1.5e-4 to
+    # docs/science.md, section 9 [derived]: 10 ppm (mol) of a thiol with C = 15 adds 1.5e-4 to
     # 1/DPn, taking DPn 2000 to about 1540. Rounding only.
     base = mayo_inv_dpn(INV_DPN0)
     with_thiol = mayo_inv_dpn(INV_DPN0, transfer=[(15.0, 10e-6)])
@@ -72,11 +72,11 @@ def test_mayo_sum_adds_every_term_and_broadcasts():
 
 
 def test_kinetic_term_is_the_steady_state_chain_length():
-    # SCIENCE.md section 3 [derived]: R_p = k_p[M](f k_d[I]/k_t)^½,
+    # docs/science.md, section 3 [derived]: R_p = k_p[M](f k_d[I]/k_t)^½,
     # ν = k_p[M]/(2(f k_d k_t[I])^½), and without transfer DPn = 2ν/(1 + δ).
-    # Values: styrene 60 °C k_p ≈ 341 L/mol/s [from memory: Buback et al. 1995, SCIENCE §7];
+    # Values: styrene 60 °C k_p ≈ 341 L/mol/s [from memory: Buback et al. 1995, docs/science.md, section 7];
     # AIBN k_d ≈ 8.7e-6 1/s [from memory: supplier tables]; f 0.6, k_t 1e8 (order of
-    # magnitude, SCIENCE §7); [M] 8.7, [I] 0.02 mol/L (our choice).
+    # magnitude, docs/science.md, section 7); [M] 8.7, [I] 0.02 mol/L (our choice).
     k_p, k_d, f, k_t, M, conc_I = 341.0, 8.7e-6, 0.6, 1e8, 8.7, 0.02
     R_p = k_p * M * math.sqrt(f * k_d * conc_I / k_t)
     nu = k_p * M / (2.0 * math.sqrt(f * k_d * k_t * conc_I))
@@ -148,7 +148,7 @@ def test_mixed_termination_moments_by_quad(tau, beta):
     assert mt.DPw == pytest.approx(m[2] / m[1], rel=1e-9)
     assert mt.DPz == pytest.approx(m[3] / m[2], rel=1e-9)
     assert mt.DPz1 == pytest.approx(m[4] / m[3], rel=1e-9)
-    # Clay and Gilbert 1995 / SCIENCE.md section 4: DPn = 1/(τ + β/2), DPw = (2τ + 3β)/(τ + β)²
+    # Clay and Gilbert 1995 / docs/science.md, section 4: DPn = 1/(τ + β/2), DPw = (2τ + 3β)/(τ + β)²
     assert mt.DPn == pytest.approx(1.0 / (tau + beta / 2), rel=1e-14)
     assert mt.DPw == pytest.approx((2 * tau + 3 * beta) / s**2, rel=1e-14)
     # Đ = 2 − u²/2 with u = β/(τ+β), and u = 2φ/(1+φ) [derived, kinetics.predict docstring]
@@ -165,7 +165,7 @@ def test_mixed_termination_limits_and_discrete_form():
     assert dispersity_instantaneous(0.0) == 2.0 and dispersity_instantaneous(1.0) == 1.5
     # discrete distribution by direct summation (radicals stop at length N with
     # probability σ q^(N−1); combination products are their convolution σ²(N−1)q^(N−2)):
-    # same DPn, DPw one less [derived]; with β = 0, DPn = (DPw + 1)/2 (SCIENCE.md section 4)
+    # same DPn, DPw one less [derived]; with β = 0, DPn = (DPw + 1)/2 (docs/science.md, section 4)
     for tau, beta in ((3e-3, 5e-3), (4e-3, 0.0)):
         mt = mixed_termination(tau, beta)
         s = tau + beta
@@ -204,7 +204,7 @@ def test_mixed_termination_distribution_matches_its_averages():
     plain = mixed_termination(2e-3, 0.0).distribution(M0_STYRENE)
     M = np.geomspace(1e3, 1e6, 40)
     assert plain(M) == pytest.approx(most_probable(M0_STYRENE / 2e-3)(M), rel=1e-12)
-    # high-M slope of ln P(N) is −(τ + β) whatever the mode (SCIENCE.md section 4)
+    # high-M slope of ln P(N) is −(τ + β) whatever the mode (docs/science.md, section 4)
     N1, N2 = 2e5, 2e5 + 10.0
     lnP = [math.log(float(model(N * M0_STYRENE)) / N**2) for N in (N1, N2)]
     assert (lnP[1] - lnP[0]) / (N2 - N1) == pytest.approx(-mt.sigma, rel=1e-2)  # B/(A+BN)/σ ≈ 3e-3
@@ -220,7 +220,7 @@ def test_mixed_termination_refuses_impossible_rates(tau, beta):
 
 
 def test_apparent_constant_check_values():
-    # SCIENCE.md section 5 [derived]: C = 14.8 -> C_app 10.64 at x = 0.05, 7.90 at x = 0.10
+    # docs/science.md, section 5 [derived]: C = 14.8 -> C_app 10.64 at x = 0.05, 7.90 at x = 0.10
     # (two decimals: tolerance half a unit in the last place)
     assert float(apparent_constant(C_DDM_STYRENE_60, 0.05)) == pytest.approx(10.64, abs=0.005)
     assert float(apparent_constant(C_DDM_STYRENE_60, 0.10)) == pytest.approx(7.90, abs=0.005)
@@ -228,7 +228,7 @@ def test_apparent_constant_check_values():
 
 def test_agent_ratio_follows_the_consumption_ode():
     # d[A]/d[M] = C [A]/[M] (transfer consumes A in proportion to its use of monomer),
-    # integrated by scipy solve_ivp from [M] = 1 down to 1 − x (SCIENCE.md section 5)
+    # integrated by scipy solve_ivp from [M] = 1 down to 1 − x (docs/science.md, section 5)
     C, r0, x = C_DDM_STYRENE_60, 3e-4, 0.2
     sol = integrate.solve_ivp(lambda m, a: C * a / m, (1.0, 1.0 - x), [r0], rtol=1e-12, atol=1e-20)
     A = float(sol.y[0, -1])
@@ -242,7 +242,7 @@ TERMS = {"C_A": (C_DDM_STYRENE_60, 2e-4), "C_S": (1e-4, 0.3), "C_I": (0.05, 2e-3
 
 
 def _lam_by_hand(xp: float) -> float:
-    """λ(x') of TERMS, written out (SCIENCE.md section 5)."""
+    """λ(x') of TERMS, written out (docs/science.md, section 5)."""
     lam = INV_DPN0 + C_M_STYRENE_50
     lam += C_DDM_STYRENE_60 * 2e-4 * (1 - xp) ** (C_DDM_STYRENE_60 - 1)
     lam += 1e-4 * 0.3 * (1 - xp) ** (1e-4 - 1)
@@ -278,7 +278,7 @@ def test_cumulative_at_zero_conversion_is_instantaneous():
 
 def test_cumulative_distribution_by_summation_over_chain_lengths():
     # number distribution of the cumulative polymer, P(N) ∝ ∫0^x λ² (1 − λ)^(N−1) dx'
-    # (SCIENCE.md section 5), integrated over conversion by scipy quad_vec for every N and
+    # (docs/science.md, section 5), integrated over conversion by scipy quad_vec for every N and
     # summed over N with numpy; λ(x') written by hand (one consumed agent)
     x, C, r0 = 0.1, C_DDM_STYRENE_60, 2e-4
     terms = {"C_A": (C, r0)}
@@ -315,7 +315,7 @@ def test_unknown_term_is_refused():
 
 
 def test_instantaneous_impurity_level_check_value():
-    # SCIENCE.md section 9 [derived]: an excess of 1.5e-4 is 10 ppm (mol) of a C = 15 thiol
+    # docs/science.md, section 9 [derived]: an excess of 1.5e-4 is 10 ppm (mol) of a C = 15 thiol
     assert float(impurity_ratio(1.5e-4, 15.0)) * 1e6 == pytest.approx(10.0, rel=1e-12)
     with pytest.raises(DataError):
         impurity_ratio(1e-4, 0.0)
@@ -325,13 +325,13 @@ def test_instantaneous_impurity_level_check_value():
 def test_cumulative_impurity_level_recovers_the_charge(x):
     # an impurity charged at r0 = 25 ppm and consumed by transfer (C_X = 14.8) adds
     # (1/x)∫0^x C_X r0 (1 − x')^(C_X − 1) dx' to the cumulative 1/DPn: quad, then invert
-    # (SCIENCE.md section 5 [derived]: [X]0/[M]0 = excess·x/(1 − (1 − x)^C_X))
+    # (docs/science.md, section 5 [derived]: [X]0/[M]0 = excess·x/(1 − (1 − x)^C_X))
     C_X, r0 = C_DDM_STYRENE_60, 25e-6
     excess = integrate.quad(lambda xp: C_X * r0 * (1 - xp) ** (C_X - 1), 0.0, x,
                             epsabs=0.0, epsrel=1e-13)[0] / x
     assert float(impurity_ratio_cumulative(excess, C_X, x)) == pytest.approx(r0, rel=1e-11)
     # dividing the cumulative excess by C_X underestimates it by C_app/C_X (derived); with
-    # the SCIENCE.md check values, 10.64/14.8 at x = 0.05 and 7.90/14.8 at x = 0.10
+    # the docs/science.md check values, 10.64/14.8 at x = 0.05 and 7.90/14.8 at x = 0.10
     naive = float(impurity_ratio(excess, C_X))
     assert naive / r0 == pytest.approx(float(apparent_constant(C_X, x)) / C_X, rel=1e-11)
     expected = {0.05: 10.64 / 14.8, 0.10: 7.90 / 14.8}.get(x)

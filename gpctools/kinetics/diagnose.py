@@ -68,6 +68,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from gpctools import columns
 from gpctools.chainlength import impurity_ratio
 from gpctools.errors import DataError, InputFormatError, MethodError
 from gpctools.kinetics.checks import CheckInputs, CheckLine, flow_sensitivity, run_checks
@@ -1038,7 +1039,7 @@ def measured_from_results(
     oc = mean("outside calibration [% mass]")
     if oc is not None:
         checks["outside_calibration"] = oc
-    sh = mean("Mn shift, low-M limit -0.2 mL [%]")
+    sh = mean(columns.find(rows.columns, columns.MN_SHIFT_LOW_M))  # also the old header
     if sh is not None:
         checks["Mn_shift_low_limit"] = sh
     fm = mean("flow marker [mL]")

@@ -12,8 +12,11 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from gpctools import columns as C
 from gpctools.errors import DataError, GpcWarning
-from gpctools.qc.specs import label_text
+from gpctools.sheets import batch as _batch_sheet
+from gpctools.sheets import cells
+from gpctools.sheets.cells import text as label_text
 
 __all__ = [
     "QCWarning",
@@ -29,44 +32,38 @@ __all__ = [
     "error_text",
     "require_columns",
     "first_number",
+    "label_text",
 ]
+
 
 class QCWarning(GpcWarning):
     """Something in the QC inputs deserves a look (conflicting assigned values, duplicate
     trend labels)."""
 
 
-ROLE_SAMPLE = "sample"
-ROLE_CHECK = "check_standard"
-ROLE_BLANK = "blank"
+ROLE_SAMPLE = _batch_sheet.ROLE_SAMPLE
+ROLE_CHECK = _batch_sheet.ROLE_CHECK
+ROLE_BLANK = _batch_sheet.ROLE_BLANK
 #: Sequence label used when the table has no ``sequence`` column (or it is empty).
 ALL_SEQUENCES = "(all)"
-
-_ROLE_ALIASES = {
-    "": ROLE_SAMPLE,
-    "sample": ROLE_SAMPLE,
-    "check_standard": ROLE_CHECK,
-    "checkstandard": ROLE_CHECK,
-    "check": ROLE_CHECK,
-    "blank": ROLE_BLANK,
-}
 
 
 def role_of(value: Any) -> str:
     """Normalised role: ``sample`` (default for empty), ``check_standard`` or ``blank``.
 
-    Spaces and hyphens count as underscores (``"check standard"`` = ``"check_standard"``);
-    any other role is returned as written (in lower case) and is ignored by the QC steps.
+    The batch sheet's spellings (:data:`gpctools.sheets.batch.ROLE_CHOICES`): case does
+    not matter, spaces and hyphens count as underscores (``"check standard"`` =
+    ``"check_standard"``, also ``check``); any other role is returned in that compared
+    form and is ignored by the QC steps.
     """
-    text = label_text(value).casefold().replace("-", "_").replace(" ", "_")
-    return _ROLE_ALIASES.get(text, text)
+    return _batch_sheet.role_of(value)
 
 
 def roles(table: pd.DataFrame) -> np.ndarray:
     """Normalised role of every row (all ``sample`` when there is no ``role`` column)."""
-    if "role" not in table.columns:
+    if C.ROLE not in table.columns:
         return np.array([ROLE_SAMPLE] * len(table), dtype=object)
-    return np.array([role_of(v) for v in table["role"].tolist()], dtype=object)
+    return np.array([role_of(v) for v in table[C.ROLE].tolist()], dtype=object)
 
 
 def labels(table: pd.DataFrame, column: str, default: str = "") -> np.ndarray:
@@ -78,24 +75,36 @@ def labels(table: pd.DataFrame, column: str, default: str = "") -> np.ndarray:
 
 
 def numbers(table: pd.DataFrame, column: str) -> np.ndarray:
-    """A numeric column as float64 (NaN where missing or not a number)."""
+    """A numeric column as float64 (NaN where missing or not a number).
+
+    Text cells are read with the sheets' cell parser
+    (:func:`gpctools.sheets.cells.parse_number`), so ``"90000,5"`` copied from a batch
+    sheet means 90000.5 here as in every sheet.
+    """
     if column not in table.columns:
         return np.full(len(table), np.nan)
-    return pd.to_numeric(table[column], errors="coerce").to_numpy(dtype=float, na_value=np.nan)
+    col = table[column]
+    if pd.api.types.is_numeric_dtype(col) and not pd.api.types.is_bool_dtype(col):
+        return col.to_numpy(dtype=float, na_value=np.nan)
+    values = col.tolist()
+    decimal = cells.column_decimal(values)
+    out = [cells.number_or_none(v, decimal=decimal) for v in values]
+    return np.array([np.nan if v is None else v for v in out], dtype=float)
 
 
 def ok_mask(table: pd.DataFrame) -> np.ndarray:
     """True for rows whose ``status`` is ``ok`` (all rows when there is no status column)."""
-    if "status" not in table.columns:
+    if C.STATUS not in table.columns:
         return np.ones(len(table), dtype=bool)
-    return np.array([label_text(v).casefold() == "ok" for v in table["status"].tolist()])
+    return np.array([label_text(v).casefold() == "ok" for v in table[C.STATUS].tolist()],
+                    dtype=bool)
 
 
 def error_text(table: pd.DataFrame, position: int) -> str:
     """The ``error`` text of a row (empty when there is none)."""
-    if "error" not in table.columns:
+    if C.ERROR not in table.columns:
         return ""
-    return label_text(table["error"].iloc[position])
+    return label_text(table[C.ERROR].iloc[position])
 
 
 def require_columns(table: pd.DataFrame, columns: tuple[str, ...], what: str) -> None:

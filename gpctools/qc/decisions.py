@@ -30,9 +30,11 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from gpctools import columns as C
 from gpctools.qc import _table as T
 from gpctools.qc.specs import SPEC_QUANTITIES, SpecSheet
 from gpctools.qc.suitability import SuitabilityResult
+from gpctools.sheets.cells import finite_or_none
 
 __all__ = [
     "PASS",
@@ -57,10 +59,6 @@ NO_SPEC = "no spec"
 SEVERITY = (NOT_REPORTABLE, FAIL, NO_RESULT, NO_SPEC, PASS)
 #: Batch label used for samples with an empty ``batch`` cell (or no ``batch`` column).
 NO_BATCH = "(no batch)"
-
-
-def _json(v: float) -> float | None:
-    return float(v) if math.isfinite(v) else None
 
 
 @dataclass(frozen=True)
@@ -98,16 +96,16 @@ class SampleDecision:
     def summary(self) -> dict[str, Any]:
         """JSON-safe description."""
         return {
-            "sample_id": self.sample_id,
-            "product": self.product,
-            "batch": self.batch,
+            C.SAMPLE_ID: self.sample_id,
+            C.PRODUCT: self.product,
+            C.BATCH: self.batch,
             "sequences": list(self.sequences),
             "injections": self.injections,
             "usable injections": self.usable,
-            "values": {k: _json(v) for k, v in self.values.items()},
-            "decision": self.decision,
-            "reasons": list(self.reasons),
-            "notes": list(self.notes),
+            "values": {k: finite_or_none(v) for k, v in self.values.items()},
+            C.DECISION: self.decision,
+            C.REASONS: list(self.reasons),
+            C.NOTES: list(self.notes),
         }
 
 
@@ -134,11 +132,11 @@ class BatchDecision:
     def summary(self) -> dict[str, Any]:
         """JSON-safe description."""
         return {
-            "batch": self.batch,
+            C.BATCH: self.batch,
             "products": list(self.products),
             "samples": list(self.samples),
-            "decision": self.decision,
-            "reasons": list(self.reasons),
+            C.DECISION: self.decision,
+            C.REASONS: list(self.reasons),
         }
 
 
@@ -169,36 +167,36 @@ class Decisions:
         rows = []
         for s in self.samples:
             row: dict[str, Any] = {
-                "batch": s.batch,
-                "sample_id": s.sample_id,
-                "product": s.product,
-                "sequence": ", ".join(s.sequences),
-                "injections [-]": s.injections,
-                "usable injections [-]": s.usable,
+                C.BATCH: s.batch,
+                C.SAMPLE_ID: s.sample_id,
+                C.PRODUCT: s.product,
+                C.SEQUENCE: ", ".join(s.sequences),
+                C.INJECTIONS: s.injections,
+                C.USABLE_INJECTIONS: s.usable,
             }
             for c in value_cols:
                 row[c] = s.values.get(c, math.nan)
-            row["decision"] = s.decision
-            row["reasons"] = "; ".join(s.reasons)
-            row["notes"] = "; ".join(s.notes)
+            row[C.DECISION] = s.decision
+            row[C.REASONS] = "; ".join(s.reasons)
+            row[C.NOTES] = "; ".join(s.notes)
             rows.append(row)
-        cols = ["batch", "sample_id", "product", "sequence", "injections [-]", "usable injections [-]",
-                *value_cols, "decision", "reasons", "notes"]
+        cols = [C.BATCH, C.SAMPLE_ID, C.PRODUCT, C.SEQUENCE, C.INJECTIONS, C.USABLE_INJECTIONS,
+                *value_cols, C.DECISION, C.REASONS, C.NOTES]
         return pd.DataFrame(rows, columns=cols)
 
     def batches_frame(self) -> pd.DataFrame:
         """One row per batch: products, samples, decision, reasons."""
         rows = [
             {
-                "batch": b.batch,
+                C.BATCH: b.batch,
                 "products": ", ".join(b.products),
                 "samples": ", ".join(b.samples),
-                "decision": b.decision,
-                "reasons": "; ".join(b.reasons),
+                C.DECISION: b.decision,
+                C.REASONS: "; ".join(b.reasons),
             }
             for b in self.batches
         ]
-        return pd.DataFrame(rows, columns=["batch", "products", "samples", "decision", "reasons"])
+        return pd.DataFrame(rows, columns=[C.BATCH, "products", "samples", C.DECISION, C.REASONS])
 
     def summary(self) -> dict[str, Any]:
         """JSON-safe description."""
@@ -233,15 +231,15 @@ def decide(
     -------
     Decisions
     """
-    T.require_columns(table, ("sample_id",), "the release decisions")
+    T.require_columns(table, (C.SAMPLE_ID,), "the release decisions")
     suit = {s.sequence: s for s in suitability}
     role = T.roles(table)
     ok = T.ok_mask(table)
-    sid = T.labels(table, "sample_id")
-    batch = T.labels(table, "batch", NO_BATCH)
-    product = T.labels(table, "product")
-    seq = T.labels(table, "sequence", T.ALL_SEQUENCES)
-    warn_col = T.labels(table, "warnings")
+    sid = T.labels(table, C.SAMPLE_ID)
+    batch = T.labels(table, C.BATCH, NO_BATCH)
+    product = T.labels(table, C.PRODUCT)
+    seq = T.labels(table, C.SEQUENCE, T.ALL_SEQUENCES)
+    warn_col = T.labels(table, C.WARNINGS)
     value_cols = [c for c in SPEC_QUANTITIES.values() if c in table.columns]
     numbers = {c: T.numbers(table, c) for c in value_cols}
 

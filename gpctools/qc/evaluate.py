@@ -25,6 +25,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from gpctools import columns as C
 from gpctools.errors import MethodError
 from gpctools.qc import _table as T
 from gpctools.qc._table import QCWarning
@@ -63,7 +64,7 @@ class QCSettings:
     """
 
     suitability: SuitabilityLimits = field(default_factory=SuitabilityLimits)
-    trend_columns: tuple[str, ...] = ("Mw [g/mol]", "dispersity [-]")
+    trend_columns: tuple[str, ...] = (C.MW, C.DISPERSITY)
     trend_limits_from: str = "auto"
     rules: tuple[RunRule, ...] = WESTERN_ELECTRIC_RULES
     chart_check_standards: bool = True
@@ -231,14 +232,14 @@ def trend_points(
     list of (str, str, float)
         Samples: group = product code (``"(no product)"`` when empty), label = batch.
     """
-    if column not in table.columns or "sample_id" not in table.columns:
+    if column not in table.columns or C.SAMPLE_ID not in table.columns:
         return []
     ok = T.ok_mask(table)
     role = T.roles(table)
-    sid = T.labels(table, "sample_id")
-    product = T.labels(table, "product")
-    batch = T.labels(table, "batch", "(no batch)")
-    seq = T.labels(table, "sequence", T.ALL_SEQUENCES)
+    sid = T.labels(table, C.SAMPLE_ID)
+    product = T.labels(table, C.PRODUCT)
+    batch = T.labels(table, C.BATCH, "(no batch)")
+    seq = T.labels(table, C.SEQUENCE, T.ALL_SEQUENCES)
     values = T.numbers(table, column)
     use = ok & np.isfinite(values) & np.array([s not in exclude_sequences for s in seq], dtype=bool)
     # sample means first (replicates), then the mean over samples per (group, label)

@@ -13,6 +13,10 @@ An empty cell means "no limit". ``check-standard tolerance [%]`` is the allowed 
 a check standard's average from its assigned value, for rows whose ``product`` names a
 check standard. Columns without a unit (``description``, ``notes``, ...) are kept as text.
 Limits are inclusive: a value equal to ``min`` or ``max`` passes.
+
+The sheet is read with the schema :data:`gpctools.sheets.SPEC_LIMITS` and the one cell
+parser, so a limit written ``150000``, ``150 000``, ``150.000,0`` or ``"90000,5"`` means
+what it means in every other sheet.
 """
 
 from __future__ import annotations
@@ -20,7 +24,6 @@ from __future__ import annotations
 import hashlib
 import math
 import os
-import re
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -28,7 +31,10 @@ from typing import Any
 
 import pandas as pd
 
-from gpctools.errors import InputFormatError
+from gpctools import columns as C
+from gpctools.sheets import cells
+from gpctools.sheets.schema import CheckedSheet, SheetRow, read_table
+from gpctools.sheets.spec_limits import SPEC_LIMITS, SPEC_QUANTITIES, quantity_unit
 
 __all__ = [
     "SPEC_QUANTITIES",
@@ -42,18 +48,8 @@ __all__ = [
     "within",
 ]
 
-#: Quantities a limit can be put on: name -> results-table column (unit in the name).
-SPEC_QUANTITIES: dict[str, str] = {
-    "Mn": "Mn [g/mol]",
-    "Mw": "Mw [g/mol]",
-    "Mz": "Mz [g/mol]",
-    "Mz+1": "Mz+1 [g/mol]",
-    "Mp": "Mp [g/mol]",
-    "Mp (dw/dlogM)": "Mp (dw/dlogM) [g/mol]",
-    "dispersity": "dispersity [-]",
-}
 #: Header of the check-standard tolerance column.
-CHECK_STANDARD_TOLERANCE_COLUMN = "check-standard tolerance [%]"
+CHECK_STANDARD_TOLERANCE_COLUMN = C.CHECK_STANDARD_TOLERANCE
 
 #: Columns of :meth:`SpecSheet.to_frame` (the unit of min/max/target is the quantity's).
 SPEC_FRAME_COLUMNS = (
@@ -64,13 +60,13 @@ SPEC_FRAME_COLUMNS = (
     "target [unit of quantity]",
     "limits",
 )
-_LIMIT_HEADER = re.compile(r"^(?P<q>.+?)\s+(?P<kind>min|max|target)\s*\[(?P<unit>[^\]]*)\]$")
-_UNIT_HEADER = re.compile(r"\[[^\]]*\]\s*$")
-_BARE_LIMIT_HEADER = re.compile(r"^(?P<q>.+?)\s+(?P<kind>min|max|target)\s*(\([^)]*\))?\s*$", re.IGNORECASE)
 
 
 def label_text(value: Any) -> str:
     """A product / batch / sample label as text (``200.0`` read from a sheet becomes ``"200"``).
+
+    The sheets' :func:`gpctools.sheets.cells.text`: blank cells (empty, NaN, ``-``,
+    ``n/a``, ...) give ``""``.
 
     Parameters
     ----------
@@ -87,19 +83,7 @@ def label_text(value: Any) -> str:
     >>> label_text(200.0), label_text(" PA-20 "), label_text(None)
     ('200', 'PA-20', '')
     """
-    if value is None:
-        return ""
-    if isinstance(value, float):
-        if math.isnan(value):
-            return ""
-        if value.is_integer():
-            return str(int(value))
-    try:
-        if pd.isna(value):
-            return ""
-    except (TypeError, ValueError):
-        pass
-    return str(value).strip()
+    return cells.text(value)
 
 
 #: Relative slack of limit comparisons, so that a value equal to a limit up to floating-point
@@ -338,47 +322,6 @@ def read_specs(path: str | os.PathLike[str], *, sheet: str | int | None = None) 
     return SpecSheet(spec.products, path=str(path), sha256=digest)
 
 
-def _number(value: Any, *, path: str | None, sheet: str | None, row: int | None, column: str):
-    if value is None:
-        return None
-    if isinstance(value, bool):
-        raise InputFormatError(
-            f"{value!r} is not a number; write the limit as a plain number or leave it empty",
-            path=path,
-            sheet=sheet,
-            row=row,
-            column=column,
-        )
-    if isinstance(value, (int, float)):
-        v = float(value)
-        if math.isnan(v):
-            return None
-    else:
-        text = str(value).strip()
-        if text == "" or text.casefold() in {"nan", "none", "-", "n/a"}:
-            return None
-        try:
-            v = float(text)
-        except ValueError:
-            raise InputFormatError(
-                f"{text!r} is not a number; write the limit as a plain number such as "
-                "150000 (no thousands separators, unit in the header) or leave it empty",
-                path=path,
-                sheet=sheet,
-                row=row,
-                column=column,
-            ) from None
-    if not math.isfinite(v):
-        raise InputFormatError(
-            f"{value!r} is not a finite number; leave the cell empty for no limit",
-            path=path,
-            sheet=sheet,
-            row=row,
-            column=column,
-        )
-    return v
-
-
 def specs_from_frame(
     frame: pd.DataFrame, *, path: str | None = None, sheet: str | None = None
 ) -> SpecSheet:
@@ -401,161 +344,31 @@ def specs_from_frame(
     gpctools.errors.InputFormatError
         See :func:`read_specs`.
     """
-    columns = [str(c) for c in frame.columns]
-    header_row = frame.attrs.get("header_row", 1)
-    source_rows = frame.attrs.get("source_rows") or [i + 2 for i in range(len(frame))]
-    by_fold = {c.casefold(): c for c in columns}
-    if "product" not in by_fold:
-        raise InputFormatError(
-            "no 'product' column; the spec sheet needs one row per product with its code "
-            "in a 'product' column (see templates/spec_limits.csv)",
-            path=path,
-            sheet=sheet,
-            row=header_row,
-        )
-    if len(frame) == 0:
-        raise InputFormatError(
-            "the spec sheet has a header but no product rows; add one row per product "
-            "with its limits (see templates/spec_limits.csv)",
-            path=path,
-            sheet=sheet,
-        )
-    product_col = by_fold["product"]
-    limit_cols: list[tuple[str, str, str, str]] = []  # (header, quantity, kind, unit)
-    tol_col: str | None = None
-    desc_col = by_fold.get("description")
-    for c in columns:
-        if c == product_col:
-            continue
-        if c.casefold() == CHECK_STANDARD_TOLERANCE_COLUMN.casefold():
-            tol_col = c
-            continue
-        m = _LIMIT_HEADER.match(c)
-        if m is None:
-            bare = _BARE_LIMIT_HEADER.match(c)
-            if bare and bare.group("q").strip().casefold() in {k.casefold() for k in SPEC_QUANTITIES}:
-                q = next(k for k in SPEC_QUANTITIES if k.casefold() == bare.group("q").strip().casefold())
-                unit = "-" if q == "dispersity" else "g/mol"
-                raise InputFormatError(  # without its unit the limit would silently be dropped
-                    f"a limit header needs its unit in square brackets; write '{q} "
-                    f"{bare.group('kind').lower()} [{unit}]'",
-                    path=path,
-                    sheet=sheet,
-                    row=header_row,
-                    column=c,
-                )
-            if _UNIT_HEADER.search(c):
-                raise InputFormatError(
-                    "a header with a unit must read '<quantity> <min|max|target> [<unit>]' "
-                    f"(quantities: {', '.join(SPEC_QUANTITIES)}) or "
-                    f"'{CHECK_STANDARD_TOLERANCE_COLUMN}'; rename the column or remove its unit",
-                    path=path,
-                    sheet=sheet,
-                    row=header_row,
-                    column=c,
-                )
-            continue  # free text column
-        q, kind, unit = m.group("q").strip(), m.group("kind"), m.group("unit").strip()
-        known = {k.casefold(): k for k in SPEC_QUANTITIES}
-        if q.casefold() not in known:
-            raise InputFormatError(
-                f"unknown quantity {q!r}; limits can be set on {', '.join(SPEC_QUANTITIES)}",
-                path=path,
-                sheet=sheet,
-                row=header_row,
-                column=c,
-            )
-        q = known[q.casefold()]
-        want = "-" if q == "dispersity" else "g/mol"
-        if unit != want:
-            raise InputFormatError(
-                f"unit [{unit}] for {q}; write {q} limits in [{want}]",
-                path=path,
-                sheet=sheet,
-                row=header_row,
-                column=c,
-            )
-        limit_cols.append((c, q, kind, unit))
-
-    products: list[ProductSpec] = []
-    seen: dict[str, int] = {}
-    for pos in range(len(frame)):
-        row = int(source_rows[pos]) if pos < len(source_rows) else pos + 2
-        record = frame.iloc[pos]
-        name = label_text(record[product_col])
-        if not name:
-            raise InputFormatError(
-                "empty product code; give every row the product (grade) code used in the "
-                "batch sheet, or delete the row",
-                path=path,
-                sheet=sheet,
-                row=row,
-                column=product_col,
-            )
-        if name.casefold() in seen:
-            raise InputFormatError(
-                f"product {name!r} appears again (first in row {seen[name.casefold()]}); "
-                "keep one row per product",
-                path=path,
-                sheet=sheet,
-                row=row,
-                column=product_col,
-            )
-        seen[name.casefold()] = row
-        values: dict[str, dict[str, float | None]] = {}
-        for c, q, kind, unit in limit_cols:
-            v = _number(record[c], path=path, sheet=sheet, row=row, column=c)
-            if v is not None and v <= 0 and unit == "g/mol":
-                raise InputFormatError(
-                    f"{v:g} g/mol is not a molar mass; limits must be positive",
-                    path=path,
-                    sheet=sheet,
-                    row=row,
-                    column=c,
-                )
-            if v is not None and q == "dispersity" and v < 1.0:
-                raise InputFormatError(
-                    f"dispersity {v:g} is below 1, which no sample can have; check the value",
-                    path=path,
-                    sheet=sheet,
-                    row=row,
-                    column=c,
-                )
-            values.setdefault(q, {})[kind] = v
-        limits = []
-        for q, kinds in values.items():
-            lo, hi, tgt = kinds.get("min"), kinds.get("max"), kinds.get("target")
-            if lo is None and hi is None and tgt is None:
-                continue
-            unit = "-" if q == "dispersity" else "g/mol"
-            if lo is not None and hi is not None and lo > hi:
-                raise InputFormatError(
-                    f"{q} min {lo:g} is above max {hi:g}; swap them",
-                    path=path,
-                    sheet=sheet,
-                    row=row,
-                    column=f"{q} min [{unit}]",
-                )
-            if tgt is not None and ((lo is not None and tgt < lo) or (hi is not None and tgt > hi)):
-                raise InputFormatError(
-                    f"{q} target {tgt:g} lies outside its limits; check min, max and target",
-                    path=path,
-                    sheet=sheet,
-                    row=row,
-                    column=f"{q} target [{unit}]",
-                )
-            limits.append(Limit(q, SPEC_QUANTITIES[q], unit, lo, hi, tgt))
-        tol = None
-        if tol_col is not None:
-            tol = _number(record[tol_col], path=path, sheet=sheet, row=row, column=tol_col)
-            if tol is not None and tol <= 0:
-                raise InputFormatError(
-                    f"tolerance {tol:g} % must be positive",
-                    path=path,
-                    sheet=sheet,
-                    row=row,
-                    column=tol_col,
-                )
-        desc = label_text(record[desc_col]) if desc_col is not None else ""
-        products.append(ProductSpec(name, tuple(limits), tol, desc, row))
+    table = read_table(frame, SPEC_LIMITS, path=path, sheet=sheet)
+    products = [_product(table, row) for row in table.rows]
     return SpecSheet(tuple(products), path=path)
+
+
+def _product(table: CheckedSheet, row: SheetRow) -> ProductSpec:
+    """One product's limits from a checked row; min/max/target checked against each other."""
+    headers = {key: col.header for key, col in table.columns.families["limit"].items()}
+    values: dict[str, dict[str, float | None]] = {}
+    for key, v in row.family_values["limit"].items():
+        q, kind = key.split("|")
+        if v is not None and quantity_unit(q) == "g/mol" and v <= 0:
+            raise row.error(f"{v:g} g/mol is not a molar mass; limits must be positive",
+                            headers[key])
+        values.setdefault(q, {})[kind] = v
+    limits = []
+    for q, kinds in values.items():
+        lo, hi, tgt = kinds.get("min"), kinds.get("max"), kinds.get("target")
+        if lo is None and hi is None and tgt is None:
+            continue
+        if lo is not None and hi is not None and lo > hi:
+            raise row.error(f"{q} min {lo:g} is above max {hi:g}; swap them", headers[f"{q}|min"])
+        if tgt is not None and ((lo is not None and tgt < lo) or (hi is not None and tgt > hi)):
+            raise row.error(f"{q} target {tgt:g} lies outside its limits; check min, max and target",
+                            headers[f"{q}|target"])
+        limits.append(Limit(q, SPEC_QUANTITIES[q], quantity_unit(q), lo, hi, tgt))
+    return ProductSpec(row["product"], tuple(limits), row.get("tolerance"),
+                       row.get("description", ""), row.row)

@@ -31,9 +31,11 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from gpctools import columns as C
 from gpctools.errors import DataError, MethodError
 from gpctools.qc import _table as T
 from gpctools.qc.specs import SpecSheet, within
+from gpctools.sheets.cells import finite_or_none
 
 __all__ = [
     "SuitabilityLimits",
@@ -44,12 +46,13 @@ __all__ = [
     "calibration_quality",
 ]
 
-# Results-table columns used here.
-MW = "Mw [g/mol]"
-MN = "Mn [g/mol]"
-OUTSIDE = "outside calibration [% mass]"
-ASSIGNED = {"Mw": "assigned Mw [g/mol]", "Mn": "assigned Mn [g/mol]"}
-FLOW_MARKER_COLUMNS = ("flow marker [mL]", "flow_marker [mL]")
+# Results-table columns used here (gpctools.columns).
+MW = C.MW
+MN = C.MN
+OUTSIDE = C.OUTSIDE_CALIBRATION
+ASSIGNED = {"Mw": C.ASSIGNED_MW, "Mn": C.ASSIGNED_MN}
+AVERAGE = {"Mw": C.MW, "Mn": C.MN}
+FLOW_MARKER_COLUMNS = (C.FLOW_MARKER, "flow_marker [mL]")
 
 
 @dataclass(frozen=True)
@@ -142,8 +145,8 @@ class SuitabilityCheck:
         """JSON-safe description."""
         return {
             "check": self.name,
-            "value": _json_float(self.value),
-            "limit": _json_float(self.limit),
+            "value": finite_or_none(self.value),
+            "limit": finite_or_none(self.limit),
             "comparison": self.comparison,
             "result": self.outcome,
             "reason": self.reason,
@@ -195,10 +198,6 @@ class SuitabilityResult:
             "checks": [c.summary() for c in self.checks],
             "warnings": list(self.warnings),
         }
-
-
-def _json_float(v: float) -> float | None:
-    return float(v) if v is not None and math.isfinite(v) else None
 
 
 def _check(name: str, value: float, limit: float, comparison: str, reason: str, source: str) -> SuitabilityCheck:
@@ -322,8 +321,8 @@ def sequence_suitability(
     warnings: list[str] = []
     ok = T.ok_mask(table)
     role = T.roles(table)
-    sid = T.labels(table, "sample_id")
-    product = T.labels(table, "product")
+    sid = T.labels(table, C.SAMPLE_ID)
+    product = T.labels(table, C.PRODUCT)
 
     # -- check standards --------------------------------------------------------------------
     is_check = role == T.ROLE_CHECK
@@ -380,7 +379,7 @@ def sequence_suitability(
                                                f"no usable injection ({len(rows)} failed: {errs or 'no error text'})",
                                                source))
                 continue
-            vals = T.numbers(table, f"{q} [g/mol]")[rows_ok]
+            vals = T.numbers(table, AVERAGE[q])[rows_ok]
             vals = vals[np.isfinite(vals)]
             if vals.size == 0:
                 checks.append(SuitabilityCheck(name, math.nan, tol, "<=", False,
@@ -434,7 +433,7 @@ def sequence_suitability(
         ("Mn", limits.max_replicate_rsd_Mn_pct, "common practice"),
     ):
         name = f"replicate RSD of {q} [%]"
-        vals_all = T.numbers(table, f"{q} [g/mol]")
+        vals_all = T.numbers(table, AVERAGE[q])
         worst: tuple[float, str, int] | None = None
         for key, rows in rep.items():
             v = vals_all[rows]
@@ -490,8 +489,8 @@ def system_suitability(
     tuple of SuitabilityResult
         One per sequence.
     """
-    T.require_columns(table, ("sample_id",), "system suitability")
-    seq = T.labels(table, "sequence", T.ALL_SEQUENCES)
+    T.require_columns(table, (C.SAMPLE_ID,), "system suitability")
+    seq = T.labels(table, C.SEQUENCE, T.ALL_SEQUENCES)
     order = list(dict.fromkeys(seq.tolist()))
     out = []
     for s in order:

@@ -32,7 +32,6 @@ References
 
 from __future__ import annotations
 
-import math
 import warnings as _warnings
 from collections.abc import Sequence
 from dataclasses import dataclass, field
@@ -42,6 +41,7 @@ import numpy as np
 import pandas as pd
 
 from gpctools.errors import DataError, GpcWarning
+from gpctools.sheets.cells import finite_or_none
 
 __all__ = [
     "D2_MOVING_RANGE",
@@ -249,10 +249,6 @@ class ControlChart:
 
     def summary(self) -> dict[str, Any]:
         """JSON-safe description."""
-
-        def f(v: float) -> float | None:
-            return float(v) if math.isfinite(v) else None
-
         return {
             "quantity": self.quantity,
             "group": self.group,
@@ -261,11 +257,11 @@ class ControlChart:
             "points setting limits": int(self.sets_limits.sum()),
             "labels": list(self.labels),
             "values": [float(v) for v in self.values],
-            "centre": f(self.centre),
-            "sigma": f(self.sigma),
-            "mean moving range": f(self.mr_bar),
-            "lower control limit": f(self.lcl),
-            "upper control limit": f(self.ucl),
+            "centre": finite_or_none(self.centre),
+            "sigma": finite_or_none(self.sigma),
+            "mean moving range": finite_or_none(self.mr_bar),
+            "lower control limit": finite_or_none(self.lcl),
+            "upper control limit": finite_or_none(self.ucl),
             "violations": [v.summary() for v in self.violations],
             "warnings": list(self.warnings),
         }

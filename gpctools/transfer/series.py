@@ -33,68 +33,28 @@ and the ratio(s) of the species whose constants are fitted:
 ============================== ============================================================
 
 Other columns are kept as metadata. Every problem names the file, the row as the sheet
-counts it, and the column.
+counts it, and the column. The sheet is read with the schema
+:data:`gpctools.sheets.RUN_SERIES` and the one cell parser (a decimal comma, ``[kg/mol]``,
+``[%]``, ``[K]``, ``[mmol/L]`` are understood the same way as in every other sheet).
 """
 
 from __future__ import annotations
 
 import math
-import re
 import warnings as _warnings
-from collections.abc import Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-from gpctools.errors import DataError, EstimatorWarning, GpcError, InputFormatError
+from gpctools import columns as C
+from gpctools.errors import EstimatorWarning, GpcError, InputFormatError
+from gpctools.sheets import cells
+from gpctools.sheets.run_series import RUN_SERIES, SHEET_COLUMNS
+from gpctools.sheets.schema import CheckedSheet, SheetRow, read_table
 
 __all__ = ["Run", "RunSeries", "read_run_series", "run_series_from_rows", "SHEET_COLUMNS"]
 
-#: Canonical column names written by the template (and the tables).
-SHEET_COLUMNS = (
-    "run", "file", "series", "agent", "monomer", "M0 [g/mol]", "T [°C]", "[M] [mol/L]",
-    "[A] [mol/L]", "ratio [A]/[M] [-]", "[S] [mol/L]", "[I] [mol/L]", "conversion [-]",
-    "Mn [g/mol]", "Mw [g/mol]", "Mn scale", "role", "residual [A] [mol/L]",
-    "residual [M] [mol/L]", "u(residual [A]) [mol/L]", "u(residual [M]) [mol/L]",
-    "u(conversion) [-]",
-)
-
-_SIMPLE = {
-    "run": ("run", "run id", "run_id", "sample_id", "sample id", "id"),
-    "file": ("file", "chromatogram", "chromatogram file"),
-    "series": ("series", "group"),
-    "agent": ("agent", "transfer agent"),
-    "monomer": ("monomer",),
-    "M0": ("m0 [g/mol]", "m0"),
-    "T_C": ("t [c]", "t [degc]", "temperature [c]", "t", "temperature"),
-    "T_K": ("t [k]", "temperature [k]"),
-    "M": ("[m] [mol/l]", "[m]0 [mol/l]", "[m]"),
-    "conversion": ("conversion [-]", "conversion", "x [-]"),
-    "conversion_pct": ("conversion [%]",),
-    "Mn": ("mn [g/mol]", "mn"),
-    "Mw": ("mw [g/mol]", "mw"),
-    "Mn_kg": ("mn [kg/mol]",),
-    "Mw_kg": ("mw [kg/mol]",),
-    "scale": ("mn scale", "molar-mass scale", "scale"),
-    "role": ("role",),
-    "res_M": ("residual [m] [mol/l]",),
-    "u_res_M": ("u(residual [m]) [mol/l]",),
-    "u_conversion": ("u(conversion) [-]",),
-}
-_CONC = re.compile(r"^\[(a|s|i)(?::\s*(.+?))?\]0? \[mol/l\]$")
-_RATIO = re.compile(r"^(?:ratio )?\[(a|s|i)(?::\s*(.+?))?\]0?\s*/\s*\[m\]0?(?: \[-\]| \[mol/mol\])?$")
-_RES_A = re.compile(r"^residual \[a(?::\s*(.+?))?\] \[mol/l\]$")
-_U_RES_A = re.compile(r"^u\(residual \[a(?::\s*(.+?))?\]\) \[mol/l\]$")
-
-
-def _norm(header: Any) -> str:
-    s = re.sub(r"\s+", " ", str(header).strip().lower())
-    return s.replace("°", "").replace("deg c", "c")
-
-
-def _term(species: str, name: str | None) -> str:
-    base = {"a": "C_A", "s": "C_S", "i": "C_I"}[species]
-    return f"{base}:{name.strip()}" if (name and species == "a") else base
+_NAN = float("nan")
 
 
 @dataclass(frozen=True)
@@ -166,15 +126,13 @@ class Run:
 
     def summary(self) -> dict[str, Any]:
         """Plain JSON-safe dict."""
-        def f(v: float) -> float | None:
-            return v if isinstance(v, float) and math.isfinite(v) else None
-
+        f = cells.finite_or_none
         return {
             "run": self.run_id,
             "row": self.row,
             "file": self.file,
-            "Mn [g/mol]": f(self.Mn),
-            "Mw [g/mol]": f(self.Mw),
+            C.MN: f(self.Mn),
+            C.MW: f(self.Mw),
             "scale": self.scale,
             "monomer": self.monomer,
             "M0 [g/mol]": self.M0,
@@ -229,67 +187,6 @@ class RunSeries:
         }
 
 
-def _blank(v: Any) -> bool:
-    if v is None:
-        return True
-    if isinstance(v, float) and math.isnan(v):
-        return True
-    if isinstance(v, str) and not v.strip():
-        return True
-    try:
-        import pandas as pd
-
-        return bool(pd.isna(v)) if not isinstance(v, (list, tuple, dict)) else False
-    except (TypeError, ValueError):
-        return False
-
-
-def _text(v: Any) -> str:
-    return "" if _blank(v) else str(v).strip()
-
-
-class _Row:
-    """Accessor of one sheet row that names the file, row and column in every error."""
-
-    def __init__(self, values: Mapping[str, Any], path: Any, sheet: Any, row: int) -> None:
-        self.values = values
-        self.path = path
-        self.sheet = sheet
-        self.row = row
-
-    def err(self, msg: str, column: str | None = None) -> DataError:
-        return DataError(msg, path=self.path, sheet=self.sheet, row=self.row, column=column)
-
-    def num(self, column: str | None, *, positive: bool = False, nonneg: bool = False,
-            fraction: bool = False) -> float:
-        if column is None:
-            return float("nan")
-        v = self.values.get(column)
-        if _blank(v):
-            return float("nan")
-        try:
-            if isinstance(v, str):
-                s = v.strip().replace("\u2212", "-")
-                if re.fullmatch(r"[+-]?\d+,\d+(?:[eE][+-]?\d+)?", s):
-                    s = s.replace(",", ".")
-                f = float(s)
-            else:
-                f = float(v)
-        except (TypeError, ValueError):
-            raise self.err(f"{v!r} is not a number; write a plain number (units are in the "
-                           "header)", column) from None
-        if not math.isfinite(f):
-            raise self.err(f"{v!r} is not a finite number", column)
-        if positive and f <= 0:
-            raise self.err(f"{f:g} must be positive", column)
-        if nonneg and f < 0:
-            raise self.err(f"{f:g} must not be negative", column)
-        if fraction and not (0 <= f < 1):
-            raise self.err(f"{f:g} must be a fraction between 0 and 1 (e.g. 0.05 for 5 %; "
-                           "use a 'conversion [%]' column for percent)", column)
-        return f
-
-
 def run_series_from_rows(
     frame: Any,
     *,
@@ -301,6 +198,10 @@ def run_series_from_rows(
     reference: Any = None,
 ) -> RunSeries:
     """Build a :class:`RunSeries` from a table (a DataFrame or a list of dicts).
+
+    Steps: check the table against :data:`gpctools.sheets.RUN_SERIES` (columns, units,
+    cells), find the fitted terms, then build each run (:func:`_run`): chromatogram,
+    measured averages and their scale, repeat-unit molar mass, ratios, temperature.
 
     Parameters
     ----------
@@ -320,214 +221,191 @@ def run_series_from_rows(
     Returns
     -------
     RunSeries
-    """
-    import pandas as pd
 
-    df = frame if isinstance(frame, pd.DataFrame) else pd.DataFrame(list(frame))
-    if source_rows is None:
-        source_rows = list(df.attrs.get("source_rows") or range(2, len(df) + 2))
+    Raises
+    ------
+    InputFormatError, DataError
+        Naming the file, row (as the sheet counts it) and column.
+    """
+    table = read_table(frame, RUN_SERIES, path=path, sheet=sheet, source_rows=source_rows)
+    warns = _unrecognised_columns(table, path)
+    terms = _terms(table)
     base = Path(path).parent if path else Path(".")
-    cols: dict[str, str] = {}
-    conc_cols: dict[str, str] = {}
-    ratio_cols: dict[str, str] = {}
-    res_cols: dict[str, str] = {}
-    ures_cols: dict[str, str] = {}
-    unknown: list[str] = []
-    for h in df.columns:
-        n = _norm(h)
-        hit = False
-        for key, names in _SIMPLE.items():
-            if n in names:
-                if key in cols:
-                    raise InputFormatError(
-                        f"columns {cols[key]!r} and {h!r} mean the same thing; keep one",
-                        path=path, sheet=sheet, column=str(h))
-                cols[key] = str(h)
-                hit = True
-                break
-        if hit:
-            continue
-        m = _CONC.match(n)
-        if m:
-            conc_cols[_term(m.group(1), _orig_name(str(h)))] = str(h)
-            continue
-        m = _RATIO.match(n)
-        if m:
-            ratio_cols[_term(m.group(1), _orig_name(str(h)))] = str(h)
-            continue
-        m = _RES_A.match(n)
-        if m:
-            res_cols[_term("a", _orig_name(str(h)))] = str(h)
-            continue
-        m = _U_RES_A.match(n)
-        if m:
-            ures_cols[_term("a", _orig_name(str(h)))] = str(h)
-            continue
-        unknown.append(str(h))
-    warns: list[str] = []
-    for h in unknown:
-        if h.strip().startswith("[") or "mol/l" in _norm(h):
-            warns.append(
+    m0 = _RepeatUnit(M0, monomer, reference)
+    runs = tuple(_run(row, table, terms, base, m0) for row in table.rows)
+    for msg in warns:
+        _warnings.warn(msg, EstimatorWarning, stacklevel=2)
+    return RunSeries(path=path, runs=runs, terms=terms, warnings=tuple(warns))
+
+
+def _unrecognised_columns(table: CheckedSheet, path: str | None) -> list[str]:
+    """Warnings for extra columns that look like concentrations but match no family."""
+    out = []
+    for h in table.columns.extras:
+        if h.strip().startswith("[") or "mol/l" in cells.normalise_name(h):
+            out.append(
                 f"{path or 'run-series sheet'}: column {h!r} looks like a concentration but is "
                 "not recognised (write e.g. '[A] [mol/L]', '[A:thiol] [mol/L]' or "
                 "'ratio [A]/[M] [-]'); it is ignored"
             )
-    if "run" not in cols:
-        raise InputFormatError(
-            "the run-series sheet has no 'run' column (the run id); add it (see "
-            "templates/run_series.csv)", path=path, sheet=sheet)
-    if not ({"file", "Mn", "Mw", "Mn_kg", "Mw_kg"} & set(cols)):
-        raise InputFormatError(
-            "the run-series sheet needs a 'file' column (chromatograms) or measured "
-            "'Mn [g/mol]' / 'Mw [g/mol]' columns", path=path, sheet=sheet)
-    terms = list(dict.fromkeys([*conc_cols, *ratio_cols]))  # sheet order
+    return out
+
+
+def _terms(table: CheckedSheet) -> tuple[str, ...]:
+    """The fitted terms the sheet gives (concentration or ratio columns), in sheet order."""
+    fam = table.columns.families
+    terms = tuple(dict.fromkeys([*fam["concentration"], *fam["ratio"]]))
     if not terms:
-        raise InputFormatError(
+        raise table.error(
             "the run-series sheet gives no agent, solvent or initiator: add '[A] [mol/L]' "
             "with '[M] [mol/L]', or 'ratio [A]/[M] [-]' (or [S], [I], or [A:<name>] columns)",
-            path=path, sheet=sheet)
-    ref = reference
-    runs: list[Run] = []
-    seen: dict[str, int] = {}
-    m0_cache: dict[str, float] = {}
-    for idx, (_label, rec) in enumerate(df.iterrows()):
-        rowno = int(source_rows[idx]) if idx < len(source_rows) else idx + 2
-        R = _Row(rec.to_dict(), path, sheet, rowno)
-        run_id = _text(rec.get(cols["run"]))
-        if not run_id:
-            raise R.err("the run id is empty; give every run an id", cols["run"])
-        if run_id in seen:
-            raise R.err(f"run id {run_id!r} is used again (first in row {seen[run_id]}); "
-                        "run ids must be unique", cols["run"])
-        seen[run_id] = rowno
-        role = _text(rec.get(cols.get("role", ""), "")).lower() or "run"
-        if role in ("exclude", "excluded", "ignore"):
-            role = "skip"
-        if role not in ("run", "control", "skip"):
-            raise R.err(f"role {role!r} is not one of run, control, skip", cols.get("role"))
-        file = _text(rec.get(cols["file"])) if "file" in cols else ""
-        fpath: str | None = None
-        if file:
-            p = Path(file)
-            if not p.is_absolute():
-                p = base / p
-            if not p.exists():
-                raise InputFormatError(
-                    f"chromatogram file {file!r} not found (looked for {p}); file paths are "
-                    "relative to the sheet's folder", path=path, sheet=sheet, row=rowno,
-                    column=cols["file"])
-            fpath = str(p)
-        Mn = R.num(cols.get("Mn"), positive=True)
-        Mw = R.num(cols.get("Mw"), positive=True)
-        if not math.isfinite(Mn):
-            Mn = 1e3 * R.num(cols.get("Mn_kg"), positive=True)
-        if not math.isfinite(Mw):
-            Mw = 1e3 * R.num(cols.get("Mw_kg"), positive=True)
-        if fpath is None and not (math.isfinite(Mn) or math.isfinite(Mw)) and role != "skip":
-            raise R.err("no chain length for this run: give a chromatogram 'file' or measured "
-                        "'Mn [g/mol]' and/or 'Mw [g/mol]'", cols.get("file") or cols.get("Mn"))
-        if math.isfinite(Mn) and math.isfinite(Mw) and Mw < Mn:
-            raise R.err(f"Mw {Mw:g} is smaller than Mn {Mn:g}; check the two columns",
-                        cols.get("Mw"))
-        scale = _text(rec.get(cols.get("scale", ""), "")).lower()
-        if scale.startswith("abs"):
-            scale = "absolute"
-        elif scale.startswith("rel") or "equivalent" in scale:
-            scale = "relative"
-        elif scale:
-            raise R.err(f"Mn scale {scale!r} must be 'absolute' or 'relative'", cols.get("scale"))
-        mono = _text(rec.get(cols.get("monomer", ""), "")) or (monomer or "")
-        m0 = R.num(cols.get("M0"), positive=True)
-        if not math.isfinite(m0):
-            if mono:
-                if mono not in m0_cache:
-                    try:
-                        if ref is None:
-                            from gpctools import refdata
-
-                            m0_cache[mono] = float(refdata.monomer(mono).M0)
-                        else:
-                            m0_cache[mono] = float(ref.monomer(mono).M0)
-                    except GpcError as exc:
-                        raise R.err(f"{exc.message}; or give 'M0 [g/mol]' in this row",
-                                    cols.get("monomer")) from None
-                m0 = m0_cache[mono]
-            elif M0 is not None:
-                m0 = float(M0)
-            else:
-                raise R.err("no repeat-unit molar mass: give 'monomer' (a name in the bundled "
-                            "table) or 'M0 [g/mol]'", cols.get("monomer") or cols.get("M0"))
-        Mc = R.num(cols.get("M"), positive=True)
-        ratios: dict[str, float] = {}
-        agent_conc: dict[str, float] = {}
-        for t in terms:
-            c = R.num(conc_cols.get(t), nonneg=True)
-            r = R.num(ratio_cols.get(t), nonneg=True)
-            if math.isfinite(c):
-                if not math.isfinite(Mc):
-                    raise R.err(f"'{conc_cols[t]}' needs '[M] [mol/L]' in the same row (or give "
-                                f"the ratio column instead)", cols.get("M") or conc_cols[t])
-                rc = c / Mc
-                if math.isfinite(r) and abs(rc - r) > 0.01 * max(abs(r), abs(rc)) + 1e-15:
-                    raise R.err(f"'{conc_cols[t]}'/'[M] [mol/L]' = {rc:.4g} disagrees with "
-                                f"'{ratio_cols[t]}' = {r:.4g}; give one of them",
-                                ratio_cols[t])
-                ratios[t] = rc
-                agent_conc[t] = c
-            elif math.isfinite(r):
-                ratios[t] = r
-                agent_conc[t] = r * Mc if math.isfinite(Mc) else float("nan")
-            else:
-                ratios[t] = 0.0
-                agent_conc[t] = 0.0
-        x = R.num(cols.get("conversion"), fraction=True)
-        if "conversion_pct" in cols:
-            xp = R.num(cols.get("conversion_pct"), nonneg=True)
-            if math.isfinite(xp):
-                if xp >= 100:
-                    raise R.err(f"conversion {xp:g} % must be below 100", cols["conversion_pct"])
-                x = xp / 100.0
-        T_C = R.num(cols.get("T_C"))
-        if "T_K" in cols:
-            tk = R.num(cols.get("T_K"), positive=True)
-            if math.isfinite(tk):
-                T_C = tk - 273.15
-        t_head = cols.get("T_C")
-        if (math.isfinite(T_C) and T_C >= 200 and t_head is not None
-                and t_head.strip().casefold() in ("t", "temperature")):
-            # a header with no unit: 333 is far more likely 60 °C written in kelvin
-            raise R.err(f"temperature {T_C:g} under a header without a unit looks like kelvin; "
-                        "write the unit in the header: 'T [K]' or 'T [°C]'", t_head)
-        if math.isfinite(T_C) and not (-100 < T_C < 400):
-            raise R.err(f"temperature {T_C:g} °C is outside -100..400 °C (a unit mix-up?)",
-                        cols.get("T_C") or cols.get("T_K"))
-        residual = {t: R.num(c, nonneg=True) for t, c in res_cols.items()}
-        u_residual = {t: R.num(c, nonneg=True) for t, c in ures_cols.items()}
-        meta = {h: rec.get(h) for h in unknown if not _blank(rec.get(h))}
-        runs.append(Run(
-            run_id=run_id, row=rowno, file=fpath, Mn=Mn, Mw=Mw, scale=scale,
-            monomer=mono, M0=m0, monomer_conc=Mc, ratios=ratios, conversion=x, T_C=T_C,
-            series=_text(rec.get(cols.get("series", ""), "")),
-            agent=_text(rec.get(cols.get("agent", ""), "")), role=role,
-            residual_agent={k: v for k, v in residual.items() if math.isfinite(v)},
-            u_residual_agent={k: v for k, v in u_residual.items() if math.isfinite(v)},
-            agent_conc=agent_conc,
-            residual_monomer=R.num(cols.get("res_M"), nonneg=True),
-            u_residual_monomer=R.num(cols.get("u_res_M"), nonneg=True),
-            u_conversion=R.num(cols.get("u_conversion"), nonneg=True),
-            metadata=meta,
-        ))
-    if not runs:
-        raise InputFormatError("the run-series sheet has no runs", path=path, sheet=sheet)
-    for msg in warns:
-        _warnings.warn(msg, EstimatorWarning, stacklevel=2)
-    return RunSeries(path=path, runs=tuple(runs), terms=tuple(terms), warnings=tuple(warns))
+            row=None)
+    return terms
 
 
-def _orig_name(header: str) -> str | None:
-    """The agent name inside ``[A:<name>]`` with its original case."""
-    m = re.search(r"\[\s*[AaSsIi]\s*:\s*([^\]]+?)\s*\]", header)
-    return m.group(1) if m else None
+def _run(row: SheetRow, table: CheckedSheet, terms: tuple[str, ...], base: Path,
+         m0: _RepeatUnit) -> Run:
+    """One :class:`Run` from a checked row (the steps below check what spans columns)."""
+    cols = table.columns
+    role = row.get("role", "run")
+    fpath = _chromatogram(row, table, base)
+    Mn, Mw = _averages(row, cols.header, fpath is not None or role == "skip")
+    mono = row.get("monomer", "") or (m0.default_monomer or "")
+    Mc = _num(row.get("M"))
+    ratios, agent_conc = _ratios(row, table, terms, Mc)
+    res = {k: v for k, v in row.family_values["residual"].items() if v is not None}
+    u_res = {k: v for k, v in row.family_values["u_residual"].items() if v is not None}
+    return Run(
+        run_id=row["run"], row=row.row, file=fpath, Mn=Mn, Mw=Mw,
+        scale=_scale(row, cols.header("scale")), monomer=mono,
+        M0=m0.value(row, mono, cols), monomer_conc=Mc, ratios=ratios,
+        conversion=_num(row.get("conversion")), T_C=_temperature(row, table),
+        series=row.get("series", ""), agent=row.get("agent", ""), role=role,
+        residual_agent=res, u_residual_agent=u_res, agent_conc=agent_conc,
+        residual_monomer=_num(row.get("res_M")), u_residual_monomer=_num(row.get("u_res_M")),
+        u_conversion=_num(row.get("u_conversion")),
+        metadata={h: v for h, v in row.metadata.items() if v is not None},
+    )
+
+
+def _num(value: float | None) -> float:
+    """A checked number or NaN for a blank cell."""
+    return _NAN if value is None else float(value)
+
+
+def _chromatogram(row: SheetRow, table: CheckedSheet, base: Path) -> str | None:
+    """The chromatogram path resolved against the sheet's folder (must exist), or None."""
+    file = row.get("file", "")
+    if not file:
+        return None
+    p = Path(file)
+    if not p.is_absolute():
+        p = base / p
+    if not p.exists():
+        raise InputFormatError(
+            f"chromatogram file {file!r} not found (looked for {p}); file paths are "
+            "relative to the sheet's folder", path=table.path, sheet=table.sheet, row=row.row,
+            column=table.columns.header("file"))
+    return str(p)
+
+
+def _averages(row: SheetRow, header: Any, has_other_source: bool) -> tuple[float, float]:
+    """Measured Mn and Mw [g/mol] (NaN when blank); one of them is needed without a file."""
+    Mn, Mw = _num(row.get("Mn")), _num(row.get("Mw"))
+    if not has_other_source and not (math.isfinite(Mn) or math.isfinite(Mw)):
+        raise row.error("no chain length for this run: give a chromatogram 'file' or measured "
+                        "'Mn [g/mol]' and/or 'Mw [g/mol]'", header("file") or header("Mn"))
+    if math.isfinite(Mn) and math.isfinite(Mw) and Mw < Mn:
+        raise row.error(f"Mw {Mw:g} is smaller than Mn {Mn:g}; check the two columns", header("Mw"))
+    return Mn, Mw
+
+
+def _scale(row: SheetRow, header: str | None) -> str:
+    """``absolute``, ``relative`` (standard-equivalent) or ``""`` from the ``Mn scale`` cell."""
+    scale = row.get("scale", "").lower()
+    if scale.startswith("abs"):
+        return "absolute"
+    if scale.startswith("rel") or "equivalent" in scale:
+        return "relative"
+    if scale:
+        raise row.error(f"Mn scale {scale!r} must be 'absolute' or 'relative'", header)
+    return ""
+
+
+class _RepeatUnit:
+    """Repeat-unit molar mass [g/mol] of a row: its M0, its monomer's, or the defaults."""
+
+    def __init__(self, M0: float | None, monomer: str | None, reference: Any) -> None:
+        self.default_M0 = M0
+        self.default_monomer = monomer
+        self.reference = reference
+        self.cache: dict[str, float] = {}
+
+    def value(self, row: SheetRow, mono: str, cols: Any) -> float:
+        given = row.get("M0")
+        if given is not None:
+            return float(given)
+        if mono:
+            if mono not in self.cache:
+                try:
+                    if self.reference is None:
+                        from gpctools import refdata
+
+                        self.cache[mono] = float(refdata.monomer(mono).M0)
+                    else:
+                        self.cache[mono] = float(self.reference.monomer(mono).M0)
+                except GpcError as exc:
+                    raise row.error(f"{exc.message}; or give 'M0 [g/mol]' in this row",
+                                    cols.header("monomer")) from None
+            return self.cache[mono]
+        if self.default_M0 is not None:
+            return float(self.default_M0)
+        raise row.error("no repeat-unit molar mass: give 'monomer' (a name in the bundled "
+                        "table) or 'M0 [g/mol]'", cols.header("monomer") or cols.header("M0"))
+
+
+def _ratios(row: SheetRow, table: CheckedSheet, terms: tuple[str, ...],
+            Mc: float) -> tuple[dict[str, float], dict[str, float]]:
+    """[X]0/[M]0 [-] and [X]0 [mol/L] per term, from a concentration or a ratio column.
+
+    A concentration needs [M] in the same row; when both a concentration and a ratio are
+    given they must agree within 1 %.
+    """
+    fam = table.columns.families
+    conc_cols, ratio_cols = fam["concentration"], fam["ratio"]
+    concs, given = row.family_values["concentration"], row.family_values["ratio"]
+    M_header = table.columns.header("M")
+    ratios: dict[str, float] = {}
+    agent_conc: dict[str, float] = {}
+    for t in terms:
+        c, r = _num(concs.get(t)), _num(given.get(t))
+        if math.isfinite(c):
+            if not math.isfinite(Mc):
+                raise row.error(f"'{conc_cols[t].header}' needs '[M] [mol/L]' in the same row (or "
+                                "give the ratio column instead)", M_header or conc_cols[t].header)
+            rc = c / Mc
+            if math.isfinite(r) and abs(rc - r) > 0.01 * max(abs(r), abs(rc)) + 1e-15:
+                raise row.error(f"'{conc_cols[t].header}'/'[M] [mol/L]' = {rc:.4g} disagrees with "
+                                f"'{ratio_cols[t].header}' = {r:.4g}; give one of them",
+                                ratio_cols[t].header)
+            ratios[t], agent_conc[t] = rc, c
+        elif math.isfinite(r):
+            ratios[t] = r
+            agent_conc[t] = r * Mc if math.isfinite(Mc) else _NAN
+        else:
+            ratios[t], agent_conc[t] = 0.0, 0.0
+    return ratios, agent_conc
+
+
+def _temperature(row: SheetRow, table: CheckedSheet) -> float:
+    """Temperature [°C] (NaN when blank); a unitless header with 200 or more is refused."""
+    T_C = _num(row.get("T"))
+    col = table.columns.fields.get("T")
+    if col is not None and col.unit is None and math.isfinite(T_C) and T_C >= 200:
+        # a header with no unit: 333 is far more likely 60 °C written in kelvin
+        raise row.error(f"temperature {T_C:g} under a header without a unit looks like kelvin; "
+                        "write the unit in the header: 'T [K]' or 'T [°C]'", col.header)
+    return T_C
 
 
 def read_run_series(

@@ -1,0 +1,228 @@
+"""The vocabulary of result columns: one name, one unit, one meaning for every column.
+
+Every table gpctools writes (batch results, QC decisions, and in time the transfer and
+kinetics tables) names its columns with the constants below, so a column is spelled the
+same wherever it appears and a reader of one table can find it in another. The name is
+the header as it appears in tables, with the unit in square brackets (``Mn [g/mol]``);
+text columns have no unit.
+
+Rules
+-----
+* A header never depends on a setting: a setting's value gets its own column (the Mn
+  shift at the low-M limit is ``Mn shift at low-M limit [%]``, and the size of the move
+  is in ``low-M limit shift [mL]``).
+* The unit is part of the name; a change of unit is a new column.
+* Old headers that earlier builds wrote are listed in :data:`LEGACY_NAMES` (as regular
+  expressions); readers of results tables find a column under either name with
+  :func:`find`.
+
+Use the constants as plain strings (``row[columns.MN]``); :func:`describe` gives the
+unit and meaning of a column, for documentation and report legends.
+
+Examples
+--------
+>>> from gpctools import columns
+>>> columns.MN
+'Mn [g/mol]'
+>>> columns.describe(columns.MN).unit
+'g/mol'
+>>> columns.find(["sample_id", "Mn shift, low-M limit -0.2 mL [%]"], columns.MN_SHIFT_LOW_M)
+'Mn shift, low-M limit -0.2 mL [%]'
+"""
+
+from __future__ import annotations
+
+import re
+from collections.abc import Iterable
+from dataclasses import dataclass
+
+__all__ = [
+    "ResultColumn",
+    "COLUMNS",
+    "LEGACY_NAMES",
+    "describe",
+    "find",
+    # identification and sheet metadata
+    "SAMPLE_ID",
+    "FILE",
+    "ROLE",
+    "PRODUCT",
+    "BATCH",
+    "SEQUENCE",
+    "ASSIGNED_MN",
+    "ASSIGNED_MW",
+    # batch results
+    "STATUS",
+    "MN",
+    "MW",
+    "MZ",
+    "MZ1",
+    "MP",
+    "MP_DWDLOGM",
+    "DISPERSITY",
+    "OUTSIDE_CALIBRATION",
+    "BASELINE_WINDOWS",
+    "LIMITS",
+    "FLOW_MARKER",
+    "FLOW_FACTOR",
+    "MN_SHIFT_LOW_M",
+    "MW_SHIFT_LOW_M",
+    "LIMIT_SHIFT",
+    "SCALE",
+    "WARNINGS",
+    "ERROR",
+    "AVERAGE_COLUMNS",
+    # QC
+    "INJECTIONS",
+    "USABLE_INJECTIONS",
+    "DECISION",
+    "REASONS",
+    "NOTES",
+    "CHECK_STANDARD_TOLERANCE",
+]
+
+
+@dataclass(frozen=True)
+class ResultColumn:
+    """One column of a result table.
+
+    Attributes
+    ----------
+    name : str
+        The header as written in tables, unit in square brackets (``"Mn [g/mol]"``).
+    unit : str
+        The unit (``"g/mol"``, ``"-"`` for dimensionless numbers, ``""`` for text).
+    meaning : str
+        One sentence: what the value is.
+    """
+
+    name: str
+    unit: str
+    meaning: str
+
+
+#: Every column by its name.
+COLUMNS: dict[str, ResultColumn] = {}
+
+#: Headers written by earlier versions (regular expressions) -> the column that replaced them.
+LEGACY_NAMES: dict[str, str] = {}
+_LEGACY: list[tuple[re.Pattern[str], str]] = []
+
+
+def _column(name: str, unit: str, meaning: str) -> str:
+    if name in COLUMNS:  # pragma: no cover - guards the table below
+        raise ValueError(f"column {name!r} defined twice")
+    COLUMNS[name] = ResultColumn(name, unit, meaning)
+    return name
+
+
+def describe(name: str) -> ResultColumn:
+    """Unit and meaning of a result column.
+
+    Parameters
+    ----------
+    name : str
+        A column name (or a header matching one of :data:`LEGACY_NAMES`).
+
+    Returns
+    -------
+    ResultColumn
+
+    Raises
+    ------
+    KeyError
+        The name is not in the vocabulary.
+    """
+    if name in COLUMNS:
+        return COLUMNS[name]
+    for pattern, new in _LEGACY:
+        if pattern.fullmatch(name):
+            return COLUMNS[new]
+    raise KeyError(name)
+
+
+def find(available: Iterable[object], name: str) -> str:
+    """The header under which a table holds the column ``name``.
+
+    Parameters
+    ----------
+    available : iterable
+        The table's headers (e.g. ``frame.columns``).
+    name : str
+        The column wanted, by its current name.
+
+    Returns
+    -------
+    str
+        ``name`` when the table has it, else a legacy header of the same column that the
+        table has, else ``name`` (so that a lookup then finds nothing, as for any missing
+        column).
+    """
+    headers = [str(c) for c in available]
+    if name in headers:
+        return name
+    for pattern, new in _LEGACY:
+        if new == name:
+            for h in headers:
+                if pattern.fullmatch(h):
+                    return h
+    return name
+
+
+# -- identification and sheet metadata ---------------------------------------------------
+SAMPLE_ID = _column("sample_id", "", "sample identifier; replicate injections share it")
+FILE = _column("file", "", "slice export of the injection, as written in the batch sheet")
+ROLE = _column("role", "", "sample, check_standard or blank")
+PRODUCT = _column("product", "", "product (grade) code, the key into the spec sheet")
+BATCH = _column("batch", "", "production lot the sample comes from")
+SEQUENCE = _column("sequence", "", "instrument sequence (run) the injection belongs to")
+ASSIGNED_MN = _column("assigned Mn [g/mol]", "g/mol", "assigned Mn of a check standard")
+ASSIGNED_MW = _column("assigned Mw [g/mol]", "g/mol", "assigned Mw of a check standard")
+
+# -- batch results ----------------------------------------------------------------------
+STATUS = _column("status", "", "ok, or error when the injection could not be processed")
+MN = _column("Mn [g/mol]", "g/mol", "number-average molar mass")
+MW = _column("Mw [g/mol]", "g/mol", "mass-average molar mass")
+MZ = _column("Mz [g/mol]", "g/mol", "z-average molar mass")
+MZ1 = _column("Mz+1 [g/mol]", "g/mol", "z+1-average molar mass")
+MP = _column("Mp [g/mol]", "g/mol", "molar mass at the peak of the detector trace")
+MP_DWDLOGM = _column("Mp (dw/dlogM) [g/mol]", "g/mol",
+                     "molar mass at the peak of the dw/dlogM distribution")
+DISPERSITY = _column("dispersity [-]", "-", "Mw/Mn")
+OUTSIDE_CALIBRATION = _column("outside calibration [% mass]", "% mass",
+                              "mass eluting outside the calibrated volume range")
+BASELINE_WINDOWS = _column("baseline windows [mL]", "mL",
+                           "the two baseline windows used ('auto' when chosen automatically)")
+LIMITS = _column("limits [mL]", "mL", "integration limits used ('auto' when chosen automatically)")
+FLOW_MARKER = _column("flow marker [mL]", "mL", "observed flow-marker position of the injection")
+FLOW_FACTOR = _column("flow correction factor [-]", "-",
+                      "volume correction V_ref/V_obs from the flow marker (1 without one)")
+MN_SHIFT_LOW_M = _column("Mn shift at low-M limit [%]", "%",
+                         "change of Mn when the low-M integration limit moves earlier by "
+                         "the 'low-M limit shift [mL]' of the same row")
+MW_SHIFT_LOW_M = _column("Mw shift at low-M limit [%]", "%",
+                         "change of Mw when the low-M integration limit moves earlier by "
+                         "the 'low-M limit shift [mL]' of the same row")
+LIMIT_SHIFT = _column("low-M limit shift [mL]", "mL",
+                      "how far the low-M limit was moved for the two shift columns "
+                      "(method key thresholds.limit_shift)")
+SCALE = _column("molar-mass scale", "", "absolute, or relative to the standard polymer")
+WARNINGS = _column("warnings", "", "warnings raised while processing, joined by '; '")
+ERROR = _column("error", "", "why the injection failed (empty when status is ok)")
+
+#: The molar-mass averages and dispersity, in table order.
+AVERAGE_COLUMNS = (MN, MW, MZ, MZ1, MP, MP_DWDLOGM, DISPERSITY)
+
+# Earlier builds wrote the setting into the shift headers: "Mn shift, low-M limit -0.2 mL [%]".
+LEGACY_NAMES[r"Mn shift, low-M limit -\S+ mL \[%\]"] = MN_SHIFT_LOW_M
+LEGACY_NAMES[r"Mw shift, low-M limit -\S+ mL \[%\]"] = MW_SHIFT_LOW_M
+_LEGACY.extend((re.compile(old), new) for old, new in LEGACY_NAMES.items())
+
+# -- QC -------------------------------------------------------------------------------
+INJECTIONS = _column("injections [-]", "-", "number of injections of the sample")
+USABLE_INJECTIONS = _column("usable injections [-]", "-", "injections with status ok")
+DECISION = _column("decision", "", "pass, fail, not reportable, no result or no spec")
+REASONS = _column("reasons", "", "why the decision was taken, joined by '; '")
+NOTES = _column("notes", "", "things to know that do not change the decision")
+CHECK_STANDARD_TOLERANCE = _column("check-standard tolerance [%]", "%",
+                                   "allowed |average/assigned - 1| of a check standard")

@@ -1,0 +1,54 @@
+"""Input sheets: one cell parser, one declarative schema per sheet kind, one reader.
+
+:func:`gpctools.io.read_sheet` turns a CSV/XLSX file into a raw table (the file dialect);
+this package gives the table its meaning, the same way for every sheet:
+
+* :mod:`gpctools.sheets.cells` - the one cell parser (numbers with either decimal mark,
+  blanks, text, yes/no, units in headers) and :func:`~gpctools.sheets.cells.finite_or_none`;
+* :mod:`gpctools.sheets.schema` - :class:`Field`, :class:`FieldFamily`,
+  :class:`SheetSchema` and the reader :func:`read_table` / :func:`read_file`, with one
+  set of messages for the same faults in every sheet;
+* one module per sheet kind with its schema: :mod:`~gpctools.sheets.standards`
+  (:data:`STANDARDS`), :mod:`~gpctools.sheets.batch` (:data:`BATCH`),
+  :mod:`~gpctools.sheets.run_series` (:data:`RUN_SERIES`),
+  :mod:`~gpctools.sheets.spec_limits` (:data:`SPEC_LIMITS`).
+
+The domain readers build their results from the checked rows:
+:func:`gpctools.batch.read_batch_sheet`, :func:`gpctools.method.load_method` (standards
+file), :func:`gpctools.transfer.read_run_series`, :func:`gpctools.qc.read_specs`.
+"""
+
+from __future__ import annotations
+
+from gpctools.sheets.batch import BATCH
+from gpctools.sheets.cells import CellError, finite_or_none, parse_number, split_header
+from gpctools.sheets.run_series import RUN_SERIES
+from gpctools.sheets.schema import (
+    CheckedSheet,
+    Field,
+    FieldFamily,
+    SheetRow,
+    SheetSchema,
+    read_file,
+    read_table,
+)
+from gpctools.sheets.spec_limits import SPEC_LIMITS
+from gpctools.sheets.standards import STANDARDS
+
+__all__ = [
+    "BATCH",
+    "RUN_SERIES",
+    "SPEC_LIMITS",
+    "STANDARDS",
+    "CellError",
+    "CheckedSheet",
+    "Field",
+    "FieldFamily",
+    "SheetRow",
+    "SheetSchema",
+    "finite_or_none",
+    "parse_number",
+    "read_file",
+    "read_table",
+    "split_header",
+]
