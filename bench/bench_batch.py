@@ -30,7 +30,7 @@ import numpy as np
 
 def make_files(folder: Path, n: int) -> Path:
     from gpctools import simulate
-    from gpctools.demo import _METHOD_TOML
+    from gpctools.demo import _METHOD_TOML, write_chromatogram
 
     folder.mkdir(parents=True, exist_ok=True)
     cal = simulate.default_calibration()
@@ -43,7 +43,7 @@ def make_files(folder: Path, n: int) -> Path:
             model = simulate.schulz_zimm(float(rng.uniform(3e4, 2e5)), float(rng.uniform(1.2, 3.0)))
             _, h = simulate.chromatogram(model, cal, volume=V, height=100, baseline_offset=2.0,
                                          noise=0.03, seed=i, extra_peaks=((22.6, 0.08, -20.0),))
-            simulate.write_chromatogram(f, V, h, metadata={"Sample": f"inj{i}", "Operator": "bench"})
+            write_chromatogram(f, V, h, metadata={"Sample": f"inj{i}", "Operator": "bench"})
         rows.append(f"inj{i:05d},{f.name}")
     (folder / "batch.csv").write_text("\n".join(rows) + "\n")
     names, Mp, vols = zip(*simulate.DEFAULT_STANDARDS)
@@ -65,14 +65,15 @@ def time_pandas(folder: Path, n: int) -> float:
 def time_batch(folder: Path, workers: int, write: bool) -> tuple[float, int]:
     from gpctools.batch import run_batch
     from gpctools.method import load_method
+    from gpctools.report import DistributionWriter, write_batch
 
     out = Path(tempfile.mkdtemp(prefix="gpcbench-out-"))
     t0 = time.perf_counter()
     m = load_method(folder / "method.toml")
-    res = run_batch(folder / "batch.csv", m, workers=workers, outdir=out if write else None,
-                    keep_distributions=False)
+    res = run_batch(folder / "batch.csv", m, workers=workers, keep_distributions=False,
+                    on_result=DistributionWriter(out / "distributions") if write else None)
     if write:
-        res.write(out, distributions=False)
+        write_batch(res, out, distributions=False)
     dt = time.perf_counter() - t0
     return dt, res.failed
 

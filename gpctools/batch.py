@@ -14,13 +14,14 @@ anything else          free metadata (``product``, ``batch``, ``sequence``,
 =====================  ==========================================================
 
 One failing injection does not stop the batch: it gets a row with ``status = "error"``
-and its message, and :attr:`BatchResult.failed` counts it. Inputs are only read; every
-output is written atomically (:mod:`gpctools._atomic`).
+and its message, and :attr:`BatchResult.failed` counts it. Inputs are only read; this
+module writes nothing: :func:`gpctools.report.write_batch` writes the outputs, and
+``on_result=`` (e.g. :class:`gpctools.report.DistributionWriter`) receives each injection
+as it finishes, so a long batch can stream its distribution tables to disk.
 """
 
 from __future__ import annotations
 
-import json
 import math
 import warnings
 from collections.abc import Callable, Iterable, Iterator
@@ -32,7 +33,6 @@ import numpy as np
 
 from . import columns as C
 from .distribution import (
-    TABLE_COLUMNS,
     Distribution,
     averages,
     compute_distribution,
@@ -52,6 +52,8 @@ __all__ = [
     "process_trace",
     "read_batch_sheet",
     "run_batch",
+    "iter_batch",
+    "ResultSink",
     "RESULT_COLUMNS",
 ]
 
@@ -387,6 +389,12 @@ def read_batch_sheet(path: str | Path, *, sheet: str | int | None = None) -> lis
 
 
 # -- running a batch ----------------------------------------------------------------------
+#: Receives each processed injection: ``on_result(entry, result)``, called in the process
+#: that computed it (a worker process when ``workers > 1``, so it must then be picklable:
+#: a module-level function or an instance of a module-level class).
+ResultSink = Callable[[BatchEntry, InjectionResult], None]
+
+
 def _error_row(entry: BatchEntry, message: str) -> dict[str, Any]:
     row = {C.SAMPLE_ID: entry.sample_id, C.FILE: entry.file, C.ROLE: entry.role, **entry.metadata}
     for c in RESULT_COLUMNS:
@@ -396,8 +404,14 @@ def _error_row(entry: BatchEntry, message: str) -> dict[str, Any]:
     return row
 
 
-def _run_entry(entry: BatchEntry, method: Method, dist_dir: str | None, keep: bool):
-    """Process one entry; returns (row, result-or-None). Never raises for bad data."""
+def _run_entry(
+    entry: BatchEntry, method: Method, on_result: ResultSink | None, keep: bool
+) -> tuple[dict[str, Any], InjectionResult | None]:
+    """Process one entry; returns (row, result-or-None). Never raises for bad data.
+
+    ``on_result`` is called with each processed injection (not for failed rows); what it
+    raises (e.g. a full disk) stops the batch.
+    """
     if entry.problem:
         return _error_row(entry, entry.problem), None
     try:
@@ -409,39 +423,18 @@ def _run_entry(entry: BatchEntry, method: Method, dist_dir: str | None, keep: bo
     row = {C.SAMPLE_ID: entry.sample_id, C.FILE: entry.file, C.ROLE: entry.role, **entry.metadata}
     row.update(res.row())
     row[C.FILE] = entry.file
-    if dist_dir is not None:
-        write_distribution(Path(dist_dir) / _distribution_name(entry), res.distribution)
+    if on_result is not None:
+        on_result(entry, res)
     return row, (res if keep else None)
 
 
-def _distribution_name(entry: BatchEntry) -> str:
-    return f"{_safe_name(entry.sample_id)}_row{entry.row}.csv"
-
-
-def write_distribution(path: str | Path, dist: Distribution) -> Path:
-    """Write one distribution table as CSV (8 significant digits), atomically.
-
-    Formatting all numbers with one %-format over a flat tuple is several times faster
-    than a DataFrame writer, which matters when a batch writes thousands of tables.
-    """
-    from ._atomic import write_text
-
-    cols = np.column_stack([dist.volume, dist.M, np.log10(dist.M), dist.w, dist.dwdlogM, dist.cumulative])
-    line = ",".join(["%.8g"] * cols.shape[1]) + "\n"
-    body = (line * cols.shape[0]) % tuple(cols.ravel().tolist())
-    return write_text(path, ",".join(TABLE_COLUMNS) + "\n" + body)
-
-
-def _safe_name(text: str) -> str:
-    keep = "".join(ch if ch.isalnum() or ch in "-_." else "_" for ch in text)
-    return keep.strip("._") or "sample"
-
-
-def _worker(args):
-    entry, method, dist_dir, keep = args
+def _worker(
+    args: tuple[BatchEntry, Method, ResultSink | None, bool],
+) -> tuple[dict[str, Any], InjectionResult | None]:
+    entry, method, on_result, keep = args
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        return _run_entry(entry, method, dist_dir, keep)
+        return _run_entry(entry, method, on_result, keep)
 
 
 @dataclass
@@ -482,10 +475,6 @@ class BatchResult:
             "method": self.method.summary(),
         }
 
-    def write(self, outdir: str | Path, *, distributions: bool = True) -> dict[str, Path]:
-        """Write results.csv, results.xlsx, calibration.csv, manifest.json (and distributions/)."""
-        return write_batch_outputs(self, outdir, distributions=distributions)
-
 
 def _order_columns(df, meta_cols):
     front = [C.SAMPLE_ID, C.FILE, C.ROLE, *meta_cols]
@@ -498,29 +487,31 @@ def iter_batch(
     method: Method,
     *,
     workers: int | None = 1,
-    dist_dir: str | Path | None = None,
+    on_result: ResultSink | None = None,
     keep: bool = True,
 ) -> Iterator[tuple[dict[str, Any], InjectionResult | None]]:
     """Yield (row, result) per entry in order; parallel over processes when workers > 1.
 
     ``workers=None`` chooses: one process for fewer than 16 injections (starting worker
-    processes costs about a second), otherwise one per core, at most 4.
+    processes costs about a second), otherwise one per core, at most 4. ``on_result`` is
+    called as ``on_result(entry, result)`` for every processed injection, in the process
+    that computed it (see :data:`ResultSink`); ``keep=False`` then yields ``None`` results
+    so that nothing but the rows reaches this process.
     """
     import os
 
     entries = list(entries)
     if workers is None:
         workers = min(os.cpu_count() or 1, 4) if len(entries) >= 16 else 1
-    dd = None if dist_dir is None else str(dist_dir)
     if workers <= 1 or len(entries) < 4:
         for e in entries:
-            yield _run_entry(e, method, dd, keep)
+            yield _run_entry(e, method, on_result, keep)
         return
     from concurrent.futures import ProcessPoolExecutor
 
     with ProcessPoolExecutor(max_workers=workers) as pool:
         chunk = max(1, min(32, len(entries) // (workers * 4) or 1))
-        yield from pool.map(_worker, [(e, method, dd, keep) for e in entries], chunksize=chunk)
+        yield from pool.map(_worker, [(e, method, on_result, keep) for e in entries], chunksize=chunk)
 
 
 def run_batch(
@@ -529,9 +520,9 @@ def run_batch(
     *,
     sheet: str | int | None = None,
     workers: int | None = 1,
-    outdir: str | Path | None = None,
     keep_distributions: bool = True,
     progress: Callable[[int, int], None] | None = None,
+    on_result: ResultSink | None = None,
 ) -> BatchResult:
     """Process every injection of a batch sheet.
 
@@ -546,21 +537,27 @@ def run_batch(
     workers : int or None
         Processes to use (1 = in this process, None = choose from the batch size and
         the number of cores).
-    outdir : str or Path, optional
-        When given, per-injection distribution tables are written to
-        ``outdir/distributions/`` as each injection finishes (memory stays flat).
     keep_distributions : bool
         Keep each :class:`InjectionResult` in memory (for plots and reports).
     progress : callable, optional
         Called as ``progress(done, total)`` after each injection.
+    on_result : callable, optional
+        Called as ``on_result(entry, result)`` as each injection finishes, in the process
+        that computed it (see :data:`ResultSink`). Pass
+        ``gpctools.report.DistributionWriter(folder)`` to write each distribution table
+        while the batch runs; with ``keep_distributions=False`` memory then stays flat.
+
+    Returns
+    -------
+    BatchResult
+        Nothing is written; see :func:`gpctools.report.write_batch`.
     """
     import pandas as pd
 
     entries = read_batch_sheet(sheet_path, sheet=sheet)
-    dist_dir = None if outdir is None else Path(outdir) / "distributions"
     rows, results = [], []
     total = len(entries)
-    for i, (row, res) in enumerate(iter_batch(entries, method, workers=workers, dist_dir=dist_dir,
+    for i, (row, res) in enumerate(iter_batch(entries, method, workers=workers, on_result=on_result,
                                               keep=keep_distributions), start=1):
         rows.append(row)
         results.append(res)
@@ -570,34 +567,3 @@ def run_batch(
     table = _order_columns(pd.DataFrame(rows), meta_cols)
     return BatchResult(table=table, injections=results, entries=entries, method=method, sheet=str(sheet_path))
 
-
-def write_batch_outputs(result: BatchResult, outdir: str | Path, *, distributions: bool = True) -> dict[str, Path]:
-    """Write the batch outputs atomically; returns the paths written by name."""
-    import pandas as pd
-
-    from . import __version__
-    from ._atomic import write_csv, write_text
-    from ._workbook import write_workbook
-
-    out = Path(outdir)
-    out.mkdir(parents=True, exist_ok=True)
-    paths: dict[str, Path] = {}
-    paths["results.csv"] = write_csv(out / "results.csv", result.table)
-    paths["results.xlsx"] = write_workbook(out / "results.xlsx", {"results": result.table})
-    cal = pd.DataFrame(result.calibration.standards_table())
-    paths["calibration.csv"] = write_csv(out / "calibration.csv", cal)
-    if distributions:
-        for entry, res in zip(result.entries, result.injections):
-            if res is not None:
-                name = _distribution_name(entry)  # unique per row: replicates keep their own key
-                paths[f"distributions/{name}"] = write_distribution(out / "distributions" / name, res.distribution)
-    manifest = {
-        "gpctools": __version__,
-        "batch sheet": result.sheet,
-        "injections": len(result.entries),
-        "failed": result.failed,
-        "method": {k: v for k, v in result.method.summary().items() if k != "calibration"},
-        "calibration": result.calibration.summary(),
-    }
-    paths["manifest.json"] = write_text(out / "manifest.json", json.dumps(manifest, indent=2, default=str) + "\n")
-    return paths

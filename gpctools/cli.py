@@ -137,15 +137,17 @@ def _print_table(rows: list[dict], columns: list[str]) -> None:
 
 def _run_batch_with_progress(sheet: Path, method, out: Path, workers: int, sheet_name=None):
     from .batch import read_batch_sheet, run_batch
+    from .report import DistributionWriter, write_batch
 
     total = len(read_batch_sheet(sheet, sheet=sheet_name))
     with _progress_bar(total, "injections") as prog:
         task = prog.add_task("batch", total=total)
         result = run_batch(
-            sheet, method, sheet=sheet_name, workers=workers, outdir=out,
+            sheet, method, sheet=sheet_name, workers=workers,
             progress=lambda done, tot: prog.update(task, completed=done),
+            on_result=DistributionWriter(out / "distributions"),
         )
-    result.write(out, distributions=False)  # distributions were written while running
+    write_batch(result, out, distributions=False)  # distributions were written while running
     return result
 
 
@@ -311,7 +313,8 @@ def transfer_cmd(
     no_plots: bool = typer.Option(False, "--no-plots", help="Do not draw the PNG plots."),
 ) -> None:
     """Chain-transfer constants from a run series (Mayo, Mw/2, CLD; drift; impurity flags; ln C vs 1/T)."""
-    from .transfer import TransferOptions, analyse_series, write_transfer_outputs
+    from .report import write_transfer
+    from .transfer import TransferOptions, analyse_series
 
     _check_out(out)
     drift_choices: dict[str, str | bool] = {"auto": "auto", "yes": True, "no": False}
@@ -342,7 +345,7 @@ def transfer_cmd(
         C_M=C_M, kinetic_term=kinetic_term,
     )
     result = analyse_series(sheet, method, options, sheet=sheet_name)
-    paths = write_transfer_outputs(result, out, plots=not no_plots)
+    paths = write_transfer(result, out, plots=not no_plots)
     _print_table(result.constants_table().to_dict("records"), TRANSFER_COLUMNS)
     for g in result.groups:
         if g.impurity is not None:
@@ -373,14 +376,16 @@ def diagnose_cmd(
     xlsx: bool = typer.Option(True, "--xlsx/--no-xlsx", help="Also write diagnosis.xlsx."),
 ) -> None:
     """Why is the molar mass low? Predict the recipe, compare with the measurements, rank the causes."""
-    from .kinetics import run_diagnosis
+    from .kinetics import diagnose_recipe
+    from .report import write_diagnosis
 
     _check_out(out)
     if sample is not None and measured is None:
         from .errors import InputFormatError
 
         raise InputFormatError("--sample needs --measured RESULTS.csv to take the sample from", key="--sample")
-    d = run_diagnosis(recipe, out, measured_path=measured, sample_id=sample, xlsx=xlsx)
+    d = diagnose_recipe(recipe, measured_path=measured, sample_id=sample)
+    write_diagnosis(d, out, xlsx=xlsx)
     typer.echo(f"{d.label}: verdict {d.verdict}")
     for i, c in enumerate(d.causes[:3], start=1):
         typer.echo(f"{i}. {c.title}: {c.share:.3g} % likelihood share")

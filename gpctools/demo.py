@@ -31,13 +31,13 @@ from typing import Any
 import numpy as np
 
 from . import simulate
-from ._atomic import write_text
 from .chainlength import (
     DistributionModel,
     cumulative_most_probable,
     mayo_inv_dpn,
     most_probable,
 )
+from .report.files import write_text
 
 __all__ = [
     "write_sample_runs",
@@ -45,6 +45,7 @@ __all__ = [
     "write_troubleshooting_case",
     "run_demo",
     "run_demo_series",
+    "write_chromatogram",
     "DEMO_SAMPLES",
     "DEMO_SERIES",
     "DEMO_CASE",
@@ -74,10 +75,47 @@ def _model(spec) -> DistributionModel:
     return most_probable(a)
 
 
+def write_chromatogram(
+    path: str | Path,
+    volume: Any,
+    signal: Any,
+    *,
+    encoding: str = "utf-8",
+    **dialect: Any,
+) -> Path:
+    """Write a synthetic trace as a slice-export text file (atomically).
+
+    Parameters
+    ----------
+    path : str or Path
+        Destination file.
+    volume : array-like
+        Elution volume of each slice [mL].
+    signal : array-like
+        Detector response of each slice [detector units].
+    encoding : str
+        ``"utf-8"``, ``"utf-8-sig"`` (with a byte-order mark), ``"utf-16"`` (with a
+        byte-order mark) or another codec name.
+    **dialect
+        ``x``, ``flow_rate``, ``separator``, ``decimal``, ``metadata``, ``signal_header``
+        and ``extra_column`` of :func:`gpctools.simulate.export_text`.
+
+    Returns
+    -------
+    pathlib.Path
+    """
+    text = simulate.export_text(volume, signal, **dialect)
+    if encoding.lower().replace("-", "") in ("utf16", "utf16le", "utf16be"):
+        return write_text(path, text, encoding="utf-16")
+    if encoding.lower() in ("utf-8-sig", "utf8-sig"):
+        return write_text(path, text, encoding="utf-8-sig")
+    return write_text(path, text, encoding=encoding)
+
+
 def _write_xlsx(path: Path, x: np.ndarray, h: np.ndarray, meta: dict[str, str]) -> None:
     from openpyxl import Workbook
 
-    from ._atomic import atomic_path
+    from .report.files import atomic_path
 
     wb = Workbook()
     ws = wb.active
@@ -127,18 +165,18 @@ def write_sample_runs(folder: str | Path) -> dict[str, Any]:
             _write_xlsx(data / fname, V_obs, h, meta)
         elif dialect == "csv_semicolon_decimal_comma":
             fname = f"{sid}.csv"
-            simulate.write_chromatogram(data / fname, V_obs, h, separator=";", decimal=",", metadata=meta,
+            write_chromatogram(data / fname, V_obs, h, separator=";", decimal=",", metadata=meta,
                                         encoding="utf-8-sig")
         elif dialect == "utf16_tab_time_min":
             fname = f"{sid}.txt"
-            simulate.write_chromatogram(data / fname, V_obs, h, x="time_min", flow_rate=1.0, separator="\t",
+            write_chromatogram(data / fname, V_obs, h, x="time_min", flow_rate=1.0, separator="\t",
                                         encoding="utf-16", metadata=meta, extra_column=True)
         elif dialect == "csv_comma_time_s":
             fname = f"{sid}.csv"
-            simulate.write_chromatogram(data / fname, V_obs, h, x="time_s", flow_rate=1.0, metadata=meta)
+            write_chromatogram(data / fname, V_obs, h, x="time_s", flow_rate=1.0, metadata=meta)
         else:
             fname = f"{sid}.csv"
-            simulate.write_chromatogram(data / fname, V_obs, h, metadata=meta)
+            write_chromatogram(data / fname, V_obs, h, metadata=meta)
         a = model.averages
         assigned = (f"{a['Mn']:.0f}", f"{a['Mw']:.0f}") if role == "check_standard" else ("", "")
         batch_label = {"LC-110": "B2611-07", "LC-180": "B2611-09", "LC-260": "B2611-12", "check": ""}[product]
@@ -226,6 +264,7 @@ def run_demo(folder: str | Path, out: str | Path, *, echo: Callable[[str], None]
 
     from .batch import run_batch
     from .method import load_method
+    from .report import DistributionWriter, write_batch
 
     folder = Path(folder)
     out = Path(out)
@@ -234,8 +273,9 @@ def run_demo(folder: str | Path, out: str | Path, *, echo: Callable[[str], None]
 
         raise InputFormatError("no batch.csv in the sample-runs folder; pass --samples DIR", path=folder)
     method = load_method(folder / "method.toml")
-    result = run_batch(folder / "batch.csv", method, outdir=out / "batch")
-    result.write(out / "batch", distributions=False)
+    result = run_batch(folder / "batch.csv", method,
+                       on_result=DistributionWriter(out / "batch" / "distributions"))
+    write_batch(result, out / "batch", distributions=False)
     truth = pd.read_csv(folder / "truth.csv").set_index("sample_id")
     echo(f"gpctools demo: {len(result.table)} injections from {folder}")
     echo(f"molar-mass scale: {method.calibration.scale_label()}\n")
@@ -299,7 +339,8 @@ def run_demo_series(
     import warnings
 
     from .errors import GpcWarning
-    from .transfer.analysis import analyse_series, write_transfer_outputs
+    from .report import write_transfer
+    from .transfer import analyse_series
 
     say = echo or (lambda _line: None)
     folder = Path(folder)
@@ -308,7 +349,7 @@ def run_demo_series(
         warnings.simplefilter("ignore", GpcWarning)
         res = analyse_series(folder / truth.get("sheet", "run_series.csv"),
                              method=folder / truth.get("method", "method.toml"), impurity_C=15.0)
-    write_transfer_outputs(res, out)
+    write_transfer(res, out)
     say(f"transfer demo: {len(res.series.runs)} runs in {len(res.groups)} groups from {folder}")
     recovered: dict[str, float] = {}
     worst = 0.0
@@ -366,14 +407,16 @@ def _demo_qc(folder: Path, out: Path, result, echo: Callable[[str], None]) -> di
 def _demo_diagnosis(folder: Path, out: Path, method, echo: Callable[[str], None]) -> dict[str, Any]:
     """The troubleshooting case: process its exports, then rank the causes of low Mn."""
     from .batch import run_batch
-    from .kinetics import run_diagnosis
+    from .kinetics import diagnose_recipe
+    from .report import write_batch, write_diagnosis
 
     case = folder / "troubleshooting"
     res = run_batch(case / "batch.csv", method)
-    res.write(out / "troubleshooting" / "batch")
+    write_batch(res, out / "troubleshooting" / "batch")
     low = res.table.iloc[-1]["sample_id"]
-    diag = run_diagnosis(case / "recipe.toml", out / "troubleshooting",
-                         measured_path=out / "troubleshooting" / "batch" / "results.csv", sample_id=low)
+    diag = diagnose_recipe(case / "recipe.toml",
+                           measured_path=out / "troubleshooting" / "batch" / "results.csv", sample_id=low)
+    write_diagnosis(diag, out / "troubleshooting")
     echo(f"\nWhy is the molar mass of {low} low? (sample_runs/troubleshooting)")
     for i, c in enumerate(diag.causes[:3], start=1):
         echo(f"  {i}. {c.title}: {c.share:.1f} % likelihood share")
@@ -471,7 +514,7 @@ def write_demo_series(folder: str | Path, *, seed: int = 20240611) -> dict[str, 
     """
     import pandas as pd
 
-    from ._atomic import write_csv
+    from .report.files import write_csv
 
     folder = Path(folder)
     folder.mkdir(parents=True, exist_ok=True)
@@ -499,7 +542,7 @@ def write_demo_series(folder: str | Path, *, seed: int = 20240611) -> dict[str, 
                 seed=int(rng.integers(0, 2**31 - 1)),
             )
             rel = f"chromatograms/{run}.csv"
-            simulate.write_chromatogram(folder / rel, volume, signal)
+            write_chromatogram(folder / rel, volume, signal)
             rows.append({
                 "run": run,
                 "file": rel,
@@ -673,7 +716,7 @@ def write_troubleshooting_case(folder: str | Path) -> dict[str, Any]:
             baseline_drift=0.01, noise=0.01, extra_peaks=((22.61, 0.08, 12.0),), seed=seed,
         )
         path = out / "exports" / f"{lot}.csv"
-        simulate.write_chromatogram(path, V, h, metadata={"sample": lot})
+        write_chromatogram(path, V, h, metadata={"sample": lot})
         exports.append(str(path))
     sheet = write_text(
         out / "batch.csv",

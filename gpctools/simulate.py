@@ -12,8 +12,9 @@ concentration-detector trace is the mass per unit volume,
     h(V) = dw/dlogM (M(V)) · |d log10 M / dV|,
 
 to which a baseline offset, a linear drift, white noise and extra peaks (solvent, flow
-marker) can be added (:func:`chromatogram`), and which :func:`write_chromatogram` writes
-as a slice export in several text dialects.
+marker) can be added (:func:`chromatogram`), and which :func:`export_text` turns into the
+text of a slice export in several dialects (:func:`gpctools.demo.write_chromatogram`
+writes it: this module writes no file).
 
 Distributions (all from their standard definitions):
 
@@ -38,7 +39,6 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable, Mapping, Sequence
-from pathlib import Path
 from typing import Any
 
 import numpy as np
@@ -56,7 +56,7 @@ __all__ = [
     "chromatogram",
     "default_calibration",
     "DEFAULT_STANDARDS",
-    "write_chromatogram",
+    "export_text",
     "averages_from_dwdlogM",
     "simulate_series",
 ]
@@ -229,8 +229,7 @@ def chromatogram(
     return V, h
 
 
-def write_chromatogram(
-    path: str | Path,
+def export_text(
     volume: Any,
     signal: Any,
     *,
@@ -238,27 +237,39 @@ def write_chromatogram(
     flow_rate: float = 1.0,
     separator: str = ",",
     decimal: str = ".",
-    encoding: str = "utf-8",
     metadata: dict[str, str] | None = None,
     signal_header: str = "RI signal [mV]",
     extra_column: bool = False,
-) -> Path:
-    """Write a synthetic trace as a slice-export text file (atomically).
+) -> str:
+    """A synthetic trace as the text of a slice export (nothing is written).
+
+    :func:`gpctools.demo.write_chromatogram` writes it to a file in a chosen encoding.
 
     Parameters
     ----------
+    volume : array-like
+        Elution volume of each slice [mL].
+    signal : array-like
+        Detector response of each slice [detector units].
     x : {"volume", "time_min", "time_s"}
         Whether the first column is elution volume [mL] or retention time [min] or [s]
         (converted with ``flow_rate`` [mL/min]).
-    separator, decimal, encoding : str
-        Text dialect (e.g. ``";"``, ``","`` and ``"utf-16"`` for a decimal-comma export).
+    flow_rate : float
+        Flow rate for the time columns [mL/min].
+    separator, decimal : str
+        Text dialect (e.g. ``";"`` and ``","`` for a decimal-comma export).
     metadata : dict, optional
         ``key: value`` lines written above the header row.
+    signal_header : str
+        Header of the signal column.
     extra_column : bool
         Add a second-detector column (ignored by the reader unless chosen).
-    """
-    from ._atomic import write_text
 
+    Returns
+    -------
+    str
+        Lines ending in ``"\n"``; numbers with 6 decimals (4 for the extra column).
+    """
     V = np.asarray(volume, dtype=float)
     h = np.asarray(signal, dtype=float)
     if x == "volume":
@@ -286,12 +297,7 @@ def write_chromatogram(
         body = [separator.join(t) for t in zip(fmt_x, fmt_h, uv)]
     else:
         body = [separator.join(t) for t in zip(fmt_x, fmt_h)]
-    text = "\n".join(lines + body) + "\n"
-    if encoding.lower().replace("-", "") in ("utf16", "utf16le", "utf16be"):
-        return write_text(path, text, encoding="utf-16")
-    if encoding.lower() in ("utf-8-sig", "utf8-sig"):
-        return write_text(path, text, encoding="utf-8-sig")
-    return write_text(path, text, encoding=encoding)
+    return "\n".join(lines + body) + "\n"
 
 
 # ============================================================================ run series

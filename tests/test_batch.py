@@ -13,9 +13,10 @@ import pytest
 
 from gpctools import simulate
 from gpctools.batch import process_injection, process_trace, read_batch_sheet, run_batch
-from gpctools.demo import write_sample_runs
+from gpctools.demo import write_chromatogram, write_sample_runs
 from gpctools.errors import InputFormatError
 from gpctools.method import load_method
+from gpctools.report import DistributionWriter, write_batch
 
 ROOT = Path(__file__).resolve().parent.parent
 
@@ -36,7 +37,7 @@ def test_demo_batch_matches_truth_within_1_percent(demo_dir, tmp_path):
     # The truth is analytic (Schulz-Zimm and log-normal averages, IUPAC Gold Book /
     # SCIENCE.md section 8); 1 % is the acceptance stated for the demo.
     method = load_method(demo_dir / "method.toml")
-    res = run_batch(demo_dir / "batch.csv", method, outdir=tmp_path / "out")
+    res = run_batch(demo_dir / "batch.csv", method, on_result=DistributionWriter(tmp_path / "out" / "distributions"))
     truth = pd.read_csv(demo_dir / "truth.csv").set_index("sample_id")
     assert res.failed == 0
     for _, r in res.table.iterrows():
@@ -80,7 +81,7 @@ def test_one_bad_injection_does_not_sink_the_batch(demo_dir, tmp_path):
 
 def test_outputs_written_and_readable(demo_dir, tmp_path):
     res = run_batch(demo_dir / "batch.csv", load_method(demo_dir / "method.toml"))
-    paths = res.write(tmp_path / "o")
+    paths = write_batch(res, tmp_path / "o")
     out = tmp_path / "o"
     back = pd.read_csv(out / "results.csv")
     assert list(back["sample_id"]) == list(res.table["sample_id"])
@@ -112,7 +113,7 @@ def test_same_answer_twice(demo_dir):
 def test_parallel_workers_give_identical_table(demo_dir, tmp_path):
     m = load_method(demo_dir / "method.toml")
     a = run_batch(demo_dir / "batch.csv", m).table
-    b = run_batch(demo_dir / "batch.csv", m, workers=2, outdir=tmp_path).table
+    b = run_batch(demo_dir / "batch.csv", m, workers=2, on_result=DistributionWriter(tmp_path / "distributions")).table
     pd.testing.assert_frame_equal(a, b)
 
 
@@ -138,8 +139,8 @@ def test_low_m_tail_raises_mn_sensitivity(tmp_path):
     tail = simulate.lognormal(1_800, 1.3)
     mix = simulate.mixture([(0.97, main), (0.03, tail)])
     V, h = simulate.chromatogram(mix, cal, noise=0.02, seed=3)
-    simulate.write_chromatogram(tmp_path / "t.csv", V, h)
-    simulate.write_chromatogram(tmp_path / "c.csv", *simulate.chromatogram(main, cal, noise=0.02, seed=3))
+    write_chromatogram(tmp_path / "t.csv", V, h)
+    write_chromatogram(tmp_path / "c.csv", *simulate.chromatogram(main, cal, noise=0.02, seed=3))
     mtext = (ROOT / "templates" / "method.toml").read_text()
     (tmp_path / "method.toml").write_text(mtext)
     shutil.copy(ROOT / "templates" / "standards.csv", tmp_path / "standards.csv")
@@ -180,7 +181,26 @@ def test_regression_replicate_distributions_each_in_written_paths(demo_dir, tmp_
     res = run_batch(sheet, load_method(d / "method.toml"))
     ids = [e.sample_id for e, r in zip(res.entries, res.injections) if r is not None]
     assert len(ids) == len(set(ids)) + 1  # one replicate injection added above
-    paths = res.write(tmp_path / "o")
+    paths = write_batch(res, tmp_path / "o")
     written = [p for k, p in paths.items() if k.startswith("distributions/")]
     assert len(written) == len(ids)
     assert sorted(written) == sorted((tmp_path / "o" / "distributions").glob("*.csv"))
+
+
+def test_on_result_streams_each_processed_injection_also_from_workers(demo_dir, tmp_path):
+    d = tmp_path / "b"
+    shutil.copytree(demo_dir, d)
+    sheet = d / "batch.csv"
+    sheet.write_text(sheet.read_text() + "MISSING,exports/none.csv,sample,,,,,\n")
+    m = load_method(d / "method.toml")
+    seen = []
+    res = run_batch(sheet, m, on_result=lambda entry, result: seen.append((entry.row, result.sample_id)))
+    ok = res.table["status"] == "ok"
+    assert [s for _, s in seen] == list(res.table.loc[ok, "sample_id"])  # failed rows are not passed on
+    assert "MISSING" not in {s for _, s in seen}
+    # Worker processes write the same tables write_batch writes afterwards, byte for byte.
+    run_batch(sheet, m, workers=2, keep_distributions=False, on_result=DistributionWriter(tmp_path / "stream"))
+    written = {p.name: p for k, p in write_batch(res, tmp_path / "o").items() if k.startswith("distributions/")}
+    streamed = {p.name: p for p in (tmp_path / "stream").glob("*.csv")}
+    assert streamed.keys() == written.keys() and len(written) == int(ok.sum())
+    assert all(streamed[n].read_bytes() == written[n].read_bytes() for n in written)

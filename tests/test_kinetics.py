@@ -16,6 +16,7 @@ from gpctools.kinetics import (
     Measured,
     Recipe,
     diagnose,
+    diagnose_recipe,
     dispersity_instantaneous,
     evaluate,
     load_recipe,
@@ -23,8 +24,9 @@ from gpctools.kinetics import (
     predict,
     rate_from_conversion,
     resolve_parameters,
-    run_diagnosis,
 )
+from gpctools.report import write_diagnosis
+from gpctools.report.markdown import diagnosis_markdown, prediction_markdown
 
 REPO = Path(__file__).resolve().parent.parent
 
@@ -110,7 +112,7 @@ def test_hand_computed_prediction_from_bundled_values():
 
 def test_report_prints_every_parameter_used():
     pr = predict(recipe())
-    md = pr.to_markdown()
+    md = prediction_markdown(pr)
     for text in ("341.09", "8.7e-06", "0.6", "1e+08", "0.1", "5.27e-05", "1.05e-05", "104.15"):
         assert text in md
     assert "IUPAC" in md and "2k_t" in md
@@ -485,7 +487,7 @@ def test_safety_note_always_present_and_markdown():
     r, p, _ = normal_recipe()
     d = diagnose(r, meas_from(p, extra_transfer=3e-4))
     assert SAFETY_NOTE in d.safety
-    md = d.to_markdown()
+    md = diagnosis_markdown(d)
     assert "## Safety" in md and "site safety rules" in md
     assert "Ranked causes" in md and "Excess 1/DPn" in md
     assert d.summary()["verdict"] == d.verdict
@@ -495,9 +497,10 @@ def test_safety_note_always_present_and_markdown():
 # ------------------------------------------------------------------ files and demo
 
 
-def test_run_diagnosis_writes_tables(tmp_path):
+def test_write_diagnosis_writes_tables(tmp_path):
     out = tmp_path / "out"
-    d = run_diagnosis(REPO / "templates" / "recipe.toml", out)
+    d = diagnose_recipe(REPO / "templates" / "recipe.toml")
+    write_diagnosis(d, out)
     for name in ("diagnosis.md", "diagnosis.json", "causes.csv", "budget.csv",
                  "parameters.csv", "impurities.csv", "checks.csv", "diagnosis.xlsx"):
         assert (out / name).exists(), name
@@ -546,7 +549,7 @@ def test_demo_troubleshooting_case(tmp_path):
 
     info = write_troubleshooting_case(tmp_path / "ts")
     truth = json.loads((tmp_path / "ts" / "truth.json").read_text())
-    d = run_diagnosis(info["recipe"], tmp_path / "out", xlsx=False)
+    d = diagnose_recipe(info["recipe"])
     assert d.top.key == truth["cause"] == "transfer"
     est = next(i for i in d.impurities if i.name == truth["impurity"])
     assert est.ppm_mol == pytest.approx(truth["impurity [ppm mol]"], rel=0.15)
@@ -585,7 +588,7 @@ def test_cli_diagnose(tmp_path):
 def test_committed_troubleshooting_case(tmp_path):
     folder = REPO / "sample_runs" / "troubleshooting"
     truth = json.loads((folder / "truth.json").read_text())
-    d = run_diagnosis(folder / "recipe.toml", tmp_path / "out", xlsx=False)
+    d = diagnose_recipe(folder / "recipe.toml")
     assert d.top.key == truth["cause"]
     est = next(i for i in d.impurities if i.name == truth["impurity"])
     # acceptance criterion of the issue: impurity level within 15 %

@@ -157,12 +157,12 @@ SPEC_CSV = (
 
 def build_scenario(folder: Path) -> dict:
     """Simulated exports, method, batch sheet, spec sheet and history tables in ``folder``."""
+    from gpctools.demo import write_chromatogram
     from gpctools.simulate import (
         DEFAULT_STANDARDS,
         chromatogram,
         default_calibration,
         schulz_zimm,
-        write_chromatogram,
     )
 
     folder.mkdir(parents=True, exist_ok=True)
@@ -477,3 +477,85 @@ def test_regression_manifest_that_is_not_an_object_is_refused(tmp_path):
     with pytest.raises(InputFormatError, match="not a JSON object") as e:
         run_qc(tmp_path / "results.csv", hand_specs(), None, calibration=cal_summary())
     assert e.value.path.endswith("manifest.json")
+
+
+# ============================================================================ plots and writers
+
+
+def _transfer_result(temperatures=(60.0,)):
+    """A run-series analysis from measured averages (Mayo with C = 14.8 at 60 °C)."""
+    from gpctools.simulate import simulate_series
+    from gpctools.transfer import analyse_series, run_series_from_rows
+
+    rows = []
+    for T in temperatures:
+        # C rises 3 % per 10 K: our choice, enough for an ln C against 1/T line.
+        C = 14.8 * 1.03 ** ((T - 60.0) / 10.0)
+        for r in simulate_series([0.0, 0.5e-4, 1e-4, 2e-4, 3e-4, 4e-4], C_A=C, inv_DPn0=5e-4,
+                                 M0=104.15, rel_noise=0.01, seed=int(T)):
+            r.pop("M0 [g/mol]")
+            r.update({"monomer": "styrene", "agent": "1-dodecanethiol", "T [°C]": T,
+                      "series": "DDM in styrene", "run": f"{r['run']}-{T:g}"})
+            rows.append(r)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        return analyse_series(series=run_series_from_rows(rows))
+
+
+def test_plots_draw_on_the_callers_axes_and_leave_the_backend_alone(tmp_path):
+    import matplotlib
+    from matplotlib.figure import Figure
+
+    from gpctools.report import plots as P
+    from gpctools.report import write_transfer_plots
+
+    res = _transfer_result((50.0, 60.0, 70.0))
+    old = matplotlib.get_backend()
+    matplotlib.use("pdf")  # stands for a notebook user's own backend
+    try:
+        fig = Figure()
+        ax1, ax2 = fig.subplots(1, 2)
+        g = res.groups[0]
+        assert P.plot_mayo_panel(res, g, "Mn", "C_A", ax=ax1) is ax1
+        assert P.plot_arrhenius(*res.arrhenius[0], ax=ax2) is ax2
+        assert ax1.lines and ax2.lines and len(fig.axes) == 2
+        assert P.plot_lnP(res, g) is None  # measured averages: no distribution, no CLD
+        paths = write_transfer_plots(res, tmp_path / "plots")
+        assert matplotlib.get_backend() == "pdf"
+    finally:
+        matplotlib.use(old)
+    assert sorted(k.split("_")[0] for k in paths) == ["plots/arrhenius"] * 2 + ["plots/mayo"] * 3
+
+
+def test_png_bytes_deterministic_and_without_metadata(tmp_path):
+    from gpctools.report import write_transfer_plots
+
+    res = _transfer_result()
+    a = write_transfer_plots(res, tmp_path / "a")
+    b = write_transfer_plots(res, tmp_path / "b")
+    assert a.keys() == b.keys() and a
+    for k in a:
+        data = a[k].read_bytes()
+        assert data[:8] == b"\x89PNG\r\n\x1a\n"
+        assert data == b[k].read_bytes()  # re-runs compare equal
+        assert b"atplotlib" not in data  # no "Software" text chunk naming the library version
+
+
+def _python_files(folder: Path):
+    return sorted(p for p in folder.rglob("*.py") if "__pycache__" not in p.parts)
+
+
+def test_no_module_uses_pyplot_or_the_global_backend():
+    import ast
+
+    pkg = Path(__file__).resolve().parent.parent / "gpctools"
+    for path in _python_files(pkg):
+        for node in ast.walk(ast.parse(path.read_text(encoding="utf-8"))):
+            if isinstance(node, ast.Import):
+                assert not any(a.name == "matplotlib.pyplot" for a in node.names), path
+            elif isinstance(node, ast.ImportFrom):
+                assert node.module != "matplotlib.pyplot", path
+                assert not (node.module == "matplotlib" and any(a.name == "pyplot" for a in node.names)), path
+            elif isinstance(node, ast.Attribute) and node.attr == "use":
+                assert not (isinstance(node.value, ast.Name) and node.value.id == "matplotlib"), path
+

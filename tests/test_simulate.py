@@ -17,6 +17,7 @@ from scipy.integrate import trapezoid  # numpy < 2 has no np.trapezoid
 from scipy.optimize import minimize_scalar
 
 from gpctools.chainlength import most_probable
+from gpctools.demo import write_chromatogram
 from gpctools.errors import DataError
 from gpctools.simulate import (
     DEFAULT_STANDARDS,
@@ -28,7 +29,6 @@ from gpctools.simulate import (
     schulz_zimm,
     schulz_zimm_from_averages,
     simulate_series,
-    write_chromatogram,
 )
 
 

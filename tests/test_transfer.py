@@ -19,6 +19,7 @@ from scipy import integrate, stats
 
 from gpctools.chainlength import cumulative_averages, cumulative_most_probable, most_probable
 from gpctools.errors import DataError, DesignError, EstimatorWarning, GpcError, InputFormatError
+from gpctools.report import write_transfer
 from gpctools.simulate import averages_from_dwdlogM, simulate_series
 from gpctools.transfer import (
     analyse_series,
@@ -35,7 +36,6 @@ from gpctools.transfer import (
     impurity_level,
     read_run_series,
     run_series_from_rows,
-    write_transfer_outputs,
 )
 from gpctools.transfer.drift import cumulative_inv_dpw_half, remaining_fraction
 from gpctools.transfer.estimators import ln_number_distribution
@@ -606,7 +606,7 @@ def test_analyse_series_end_to_end_from_measured_averages(tmp_path):
     assert list(rt.loc[rt["flag"] != "", "run"]) == ["R4"]
     assert "ppm" in rt.loc[rt["run"] == "R4", "reason"].iloc[0]
     assert res.constant("C_A").value == pytest.approx(C_DDM_STYRENE_60, rel=0.05)
-    paths = write_transfer_outputs(res, tmp_path / "out")
+    paths = write_transfer(res, tmp_path / "out")
     for name in ("constants.csv", "constants.xlsx", "runs.csv", "transfer.xlsx", "summary.json"):
         assert paths[name].exists()
     assert any(k.startswith("plots/mayo_") for k in paths)
@@ -628,9 +628,9 @@ def test_regression_plots_of_groups_with_clashing_file_names_are_all_written(tmp
             rows.append(r)
     res = analyse_series(series=run_series_from_rows(rows))
     assert len(res.groups) == 2
-    from gpctools.transfer.plots import write_plots
+    from gpctools.report import write_transfer_plots
 
-    paths = write_plots(res, tmp_path / "plots")
+    paths = write_transfer_plots(res, tmp_path / "plots")
     mayo = sorted(k for k in paths if k.startswith("plots/mayo_"))
     assert len(mayo) == 2
     assert all(paths[k].exists() for k in mayo)

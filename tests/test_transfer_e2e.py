@@ -19,7 +19,7 @@ from typer.testing import CliRunner
 from gpctools import simulate
 from gpctools.chainlength import cumulative_most_probable
 from gpctools.cli import app
-from gpctools.demo import run_demo_series, write_demo_series
+from gpctools.demo import run_demo_series, write_chromatogram, write_demo_series
 from gpctools.simulate import simulate_series
 from gpctools.transfer import analyse_series
 
@@ -64,7 +64,7 @@ def test_literature_constant_recovered_through_simulated_chromatograms(tmp_path)
         V, h = simulate.chromatogram(f, cal, volume=np.linspace(8, 26, 2000), height=100.0,
                                      baseline_offset=0.4, baseline_drift=0.02, noise=0.05,
                                      seed=40 + i)
-        simulate.write_chromatogram(tmp_path / f"run{i}.csv", V, h)
+        write_chromatogram(tmp_path / f"run{i}.csv", V, h)
         rows.append({"run": f"R{i + 1}", "file": f"run{i}.csv", "monomer": "styrene",
                      "[M] [mol/L]": 8.0, "[A] [mol/L]": 8.0 * r})
     pd.DataFrame(rows).to_csv(tmp_path / "series.csv", index=False)

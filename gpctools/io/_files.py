@@ -219,3 +219,28 @@ def decode_text(path: str | os.PathLike[str], data: bytes, encoding: str | None 
     if "\r" in text:
         text = text.replace("\r\n", "\n").replace("\r", "\n")
     return text
+
+
+def file_kind(path: str | os.PathLike[str]) -> str:
+    """Check that ``path`` is a readable data file and say how it would be read.
+
+    The checks every reader makes before parsing: the file exists, is not a folder, is
+    not empty nor over :data:`MAX_FILE_BYTES`, and its first bytes agree with its
+    extension (no image, archive, old ``.xls`` or binary file).
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+        The file.
+
+    Returns
+    -------
+    str
+        ``"xlsx"`` or ``"text"``.
+
+    Raises
+    ------
+    gpctools.errors.InputFormatError
+        Naming the file and what to change.
+    """
+    return detect_kind(path, read_bytes(path))

@@ -7,12 +7,14 @@ predict(recipe) -> Prediction
 resolve_parameters(recipe) -> KineticParameters
 evaluate(parameters, **perturbations) -> KineticState
 diagnose(recipe, measured=None, reference=None) -> Diagnosis
-run_diagnosis(recipe_path, outdir, *, measured_path=None, sample_id=None) -> Diagnosis
+diagnose_recipe(recipe_path, *, measured_path=None, sample_id=None) -> Diagnosis
 rate_from_conversion(time_min, conversion, conc_M) -> RateFromConversion
 SAFETY_NOTE
 
 See ``templates/recipe.toml`` for the recipe file, :mod:`gpctools.kinetics.predict` for
-the formulas and :mod:`gpctools.kinetics.diagnose` for how causes are scored.
+the formulas and :mod:`gpctools.kinetics.diagnose` for how causes are scored. Nothing
+here writes files or formats text: :func:`gpctools.report.write_diagnosis` writes a
+diagnosis, :mod:`gpctools.report.markdown` turns predictions and diagnoses into markdown.
 """
 
 from __future__ import annotations
@@ -24,9 +26,9 @@ from gpctools.kinetics.diagnose import (
     ImpurityEstimate,
     RateFromConversion,
     diagnose,
+    diagnose_recipe,
     measured_from_results,
     rate_from_conversion,
-    run_diagnosis,
 )
 from gpctools.kinetics.predict import (
     KineticParameters,
@@ -58,6 +60,7 @@ __all__ = [
     "RUNAWAY_NOTE",
     "SAFETY_NOTE",
     "diagnose",
+    "diagnose_recipe",
     "dispersity_instantaneous",
     "evaluate",
     "load_recipe",
@@ -65,5 +68,4 @@ __all__ = [
     "predict",
     "rate_from_conversion",
     "resolve_parameters",
-    "run_diagnosis",
 ]

@@ -110,7 +110,7 @@ __all__ = [
     "rate_from_conversion",
     "diagnose",
     "measured_from_results",
-    "run_diagnosis",
+    "diagnose_recipe",
     "DEFAULT_UNCERTAINTY",
 ]
 
@@ -461,54 +461,6 @@ class Diagnosis:
             "warnings": list(self.warnings),
         }
 
-    def to_markdown(self) -> str:
-        """Compact report: verdict, ranked causes with numbers, checks, budget, safety."""
-        from gpctools.kinetics._markdown import diagnosis_markdown
-
-        return diagnosis_markdown(self)
-
-    def write(self, outdir: str | Path, *, xlsx: bool = True) -> dict[str, Path]:
-        """Write the report and tables atomically into ``outdir``.
-
-        Files: ``diagnosis.md``, ``diagnosis.json``, ``causes.csv``, ``observations.csv``,
-        ``checks.csv``, ``impurities.csv``, ``budget.csv``, ``parameters.csv``,
-        ``prediction.csv`` and (``xlsx=True``) ``diagnosis.xlsx`` with one sheet each.
-        """
-        import json
-
-        from gpctools._atomic import atomic_path, write_csv, write_text
-
-        out = Path(outdir)
-        out.mkdir(parents=True, exist_ok=True)
-        frames = {
-            "causes": self.table(),
-            "observations": self.observations_table(),
-            "checks": self.checks_table(),
-            "impurities": self.impurities_table(),
-            "budget": self.prediction.budget_table(),
-            "parameters": self.prediction.parameters.table(),
-            "prediction": self.prediction.table(),
-        }
-        paths: dict[str, Path] = {}
-        paths["markdown"] = write_text(out / "diagnosis.md", self.to_markdown())
-        paths["json"] = write_text(
-            out / "diagnosis.json", json.dumps(self.summary(), indent=2, default=_json_default)
-        )
-        for name, frame in frames.items():
-            paths[name] = write_csv(out / f"{name}.csv", frame)
-        if xlsx:
-            with atomic_path(out / "diagnosis.xlsx") as tmp:
-                with pd.ExcelWriter(tmp, engine="openpyxl") as xw:
-                    for name, frame in frames.items():
-                        frame.to_excel(xw, sheet_name=name, index=False)
-            paths["xlsx"] = out / "diagnosis.xlsx"
-        return paths
-
-
-def _json_default(o: Any) -> Any:
-    if isinstance(o, (np.floating, np.integer)):
-        return o.item()
-    return str(o)
 
 
 # --------------------------------------------------------------------------- steps
@@ -1058,29 +1010,26 @@ def measured_from_results(
     return meas, checks
 
 
-def run_diagnosis(
+def diagnose_recipe(
     recipe_path: str | Path,
-    outdir: str | Path,
     *,
     measured_path: str | Path | None = None,
     sample_id: str | None = None,
-    xlsx: bool = True,
 ) -> Diagnosis:
-    """Load a recipe, diagnose it and write the report and tables (the CLI entry).
+    """Load a recipe (and optionally a results table) and diagnose it (the CLI entry).
+
+    Nothing is written; :func:`gpctools.report.write_diagnosis` writes the report and
+    tables.
 
     Parameters
     ----------
     recipe_path : path
         Recipe TOML (see ``templates/recipe.toml``).
-    outdir : path
-        Output folder (created); see :meth:`Diagnosis.write` for the files.
     measured_path : path, optional
         A batch results table; its Mn/Mw (and checks it records) replace the recipe's
         ``[measured]`` molar masses, recipe values filling what the table lacks.
     sample_id : str, optional
         Sample to take from ``measured_path``.
-    xlsx : bool
-        Also write ``diagnosis.xlsx``.
 
     Returns
     -------
@@ -1102,6 +1051,4 @@ def run_diagnosis(
             new_checks.pop("flow_marker_observed")
             new_checks.pop("flow_marker_corrected", None)
         recipe = replace(recipe, measured=measured, checks=replace(old, **new_checks))
-    diag = diagnose(recipe)
-    diag.write(outdir, xlsx=xlsx)
-    return diag
+    return diagnose(recipe)

@@ -740,12 +740,6 @@ class Prediction:
             "warnings": list(self.warnings),
         }
 
-    def to_markdown(self) -> str:
-        """Compact report: parameters used, formulas, results and the 1/DPn budget."""
-        from gpctools.kinetics._markdown import prediction_markdown
-
-        return prediction_markdown(self)
-
 
 def _from_state(p: KineticParameters, s: KineticState, notes=(), warns=()) -> Prediction:
     inv = s.inv_DPn

@@ -19,10 +19,14 @@ evaluate_qc(table, specs, *, calibration=None, reference_flow_marker=None, histo
             settings=None) -> QCResult
     All of the above for one results table (no files written; see
     :func:`gpctools.report.run_qc` for the reports).
+role_of(value) -> str;  label_text(value) -> str
+    The normalised role of an injection (``ROLE_SAMPLE``, ``ROLE_CHECK``,
+    ``ROLE_BLANK``) and a label cell as text, as the QC steps read them.
 """
 
 from __future__ import annotations
 
+from gpctools.qc._table import ROLE_BLANK, ROLE_CHECK, ROLE_SAMPLE, role_of
 from gpctools.qc.decisions import (
     FAIL,
     NO_RESULT,
@@ -41,6 +45,7 @@ from gpctools.qc.specs import (
     Limit,
     ProductSpec,
     SpecSheet,
+    label_text,
     read_specs,
     specs_from_frame,
 )
@@ -85,6 +90,11 @@ __all__ = [
     "SpecSheet",
     "read_specs",
     "specs_from_frame",
+    "label_text",
+    "role_of",
+    "ROLE_SAMPLE",
+    "ROLE_CHECK",
+    "ROLE_BLANK",
     "SuitabilityCheck",
     "SuitabilityLimits",
     "SuitabilityResult",

@@ -18,7 +18,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from gpctools._atomic import write_text
+from gpctools.report.files import write_text
 
 __all__ = ["TEMPLATE", "png_data_uri", "figure", "format_value", "table_context", "render_html", "write_html"]
 

@@ -1,8 +1,20 @@
-"""Report figures as PNG bytes (matplotlib's Agg canvas, imported inside each function).
+"""Every figure of gpctools, in one style (matplotlib, imported inside each function).
 
-No pyplot and no global state: each function builds a :class:`matplotlib.figure.Figure`,
-draws it on an Agg canvas and returns the PNG bytes, so plots can be made from threads
-and servers without a display. Axis labels carry units in square brackets.
+No pyplot and no global state: figures are :class:`matplotlib.figure.Figure` objects
+rendered on their own Agg canvas by :func:`png_bytes`, so plots can be made from threads,
+worker processes and servers without a display, and a notebook's backend is never
+touched. PNG files carry no metadata, so the bytes are deterministic and re-runs compare
+equal. Axis labels carry units in square brackets.
+
+Each ``plot_*`` function draws on the ``ax=`` it is given (any Axes of a user's figure)
+or, without one, on a new styled Figure of its usual size, and returns the Axes; the
+report writers turn ``ax.figure`` into PNG bytes with :func:`png_bytes`.
+
+QC figures: :func:`plot_distributions`, :func:`plot_calibration` with
+:func:`plot_calibration_residuals` (both in :func:`calibration_figure`),
+:func:`plot_control_chart`, :func:`plot_mayo`. Run-series figures: :func:`plot_mayo_panel`
+(all panels of a group in :func:`mayo_group_figure`), :func:`plot_lnP`,
+:func:`plot_arrhenius`.
 """
 
 from __future__ import annotations
@@ -10,55 +22,129 @@ from __future__ import annotations
 import io
 import math
 from collections.abc import Mapping, Sequence
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
+if TYPE_CHECKING:  # pragma: no cover
+    from matplotlib.axes import Axes
+    from matplotlib.figure import Figure
+
 __all__ = [
     "PALETTE",
-    "distribution_overlay",
-    "calibration_plot",
-    "control_chart_plot",
-    "mayo_plot",
+    "DPI",
+    "new_figure",
+    "png_bytes",
+    "plot_distributions",
+    "plot_calibration",
+    "plot_calibration_residuals",
+    "calibration_figure",
+    "plot_control_chart",
+    "plot_mayo",
+    "plot_mayo_panel",
+    "mayo_group_figure",
+    "plot_lnP",
+    "plot_arrhenius",
 ]
 
-#: Line colours of the reports (our own plain palette).
+#: Line colours of every figure (our own plain palette).
 PALETTE = ("#1f3a5f", "#c26b1a", "#2e7d6b", "#8a2c4f", "#6b6b1f", "#4f5d8a", "#a34a28", "#3f7f3f")
+#: Resolution of the PNG files [dots per inch].
+DPI = 100
 _FAIL = "#b3261e"
 _GRID = "#d9d9d9"
 _INK = "#222222"
+_BAND = 0.22  # opacity of confidence bands
 
 
-def _figure(width: float, height: float, rows: int = 1, height_ratios=None):
+# ----------------------------------------------------------------------------- style
+
+
+def _style(ax: Axes) -> Axes:
+    ax.grid(True, color=_GRID, linewidth=0.6)
+    ax.set_axisbelow(True)
+    for side in ("top", "right"):
+        ax.spines[side].set_visible(False)
+    ax.tick_params(colors=_INK, labelsize=8)
+    return ax
+
+
+def new_figure(
+    width: float,
+    height: float,
+    *,
+    rows: int = 1,
+    cols: int = 1,
+    height_ratios: Sequence[float] | None = None,
+) -> tuple[Figure, list[Axes]]:
+    """A Figure in the report style with a grid of styled Axes.
+
+    Parameters
+    ----------
+    width, height : float
+        Figure size [inch]; the PNG is ``DPI`` times that in pixels.
+    rows, cols : int
+        Grid of Axes.
+    height_ratios : sequence of float, optional
+        Relative heights of the rows.
+
+    Returns
+    -------
+    (matplotlib.figure.Figure, list of matplotlib.axes.Axes)
+        The Axes row by row.
+    """
     from matplotlib.figure import Figure
 
-    fig = Figure(figsize=(width, height), dpi=100, layout="constrained")
-    if rows == 1:
+    fig = Figure(figsize=(width, height), dpi=DPI, layout="constrained")
+    if rows == 1 and cols == 1:
         axes = [fig.add_subplot(1, 1, 1)]
     else:
-        gs = fig.add_gridspec(rows, 1, height_ratios=height_ratios)
-        axes = [fig.add_subplot(gs[i, 0]) for i in range(rows)]
-    for ax in axes:
-        ax.grid(True, color=_GRID, linewidth=0.6)
-        ax.set_axisbelow(True)
-        for side in ("top", "right"):
-            ax.spines[side].set_visible(False)
-        ax.tick_params(colors=_INK, labelsize=8)
-    return fig, axes
+        gs = fig.add_gridspec(rows, cols, height_ratios=height_ratios)
+        axes = [fig.add_subplot(gs[i, j]) for i in range(rows) for j in range(cols)]
+    return fig, [_style(ax) for ax in axes]
 
 
-def _png(fig) -> bytes:
+def _axes(ax: Axes | None, width: float, height: float) -> Axes:
+    """``ax`` itself, or the single Axes of a new styled figure of the given size [inch]."""
+    if ax is not None:
+        return ax
+    return new_figure(width, height)[1][0]
+
+
+def _title(ax: Axes, text: str, **kw: Any) -> None:
+    ax.set_title(text, fontsize=10, loc="left", color=_INK, **kw)
+
+
+def png_bytes(fig: Any) -> bytes:
+    """Render a Figure to PNG bytes on its own Agg canvas (no metadata: deterministic).
+
+    Parameters
+    ----------
+    fig : matplotlib.figure.Figure
+        E.g. ``ax.figure`` of an Axes returned by a ``plot_*`` function.
+
+    Returns
+    -------
+    bytes
+        PNG image at :data:`DPI`.
+    """
     from matplotlib.backends.backend_agg import FigureCanvasAgg
 
     FigureCanvasAgg(fig)
     buf = io.BytesIO()
-    fig.savefig(buf, format="png", dpi=100, metadata={"Software": None})
+    fig.savefig(buf, format="png", dpi=DPI, metadata={"Software": None})
     return buf.getvalue()
 
 
-def distribution_overlay(
-    curves: Sequence[tuple[str, Any, Any]], *, title: str = "Molar-mass distributions"
-) -> bytes:
+# ----------------------------------------------------------------------------- QC figures
+
+
+def plot_distributions(
+    curves: Sequence[tuple[str, Any, Any]],
+    *,
+    title: str = "Molar-mass distributions",
+    ax: Axes | None = None,
+) -> Axes:
     """Overlay of differential distributions dw/dlogM against M.
 
     Parameters
@@ -66,13 +152,14 @@ def distribution_overlay(
     curves : sequence of (label, M, dwdlogM)
         M [g/mol] and dw/dlogM [-] per slice (any order).
     title : str
+    ax : matplotlib.axes.Axes, optional
+        Draw here; default a new 7.5 × 4.2 inch figure.
 
     Returns
     -------
-    bytes
-        PNG image.
+    matplotlib.axes.Axes
     """
-    fig, (ax,) = _figure(7.5, 4.2)
+    ax = _axes(ax, 7.5, 4.2)
     for k, (label, M, y) in enumerate(curves):
         M = np.asarray(M, dtype=float)
         y = np.asarray(y, dtype=float)
@@ -83,11 +170,11 @@ def distribution_overlay(
     ax.set_xscale("log")
     ax.set_xlabel("M [g/mol]")
     ax.set_ylabel("dw/dlogM [-]")
-    ax.set_title(title, fontsize=10, loc="left", color=_INK)
+    _title(ax, title)
     if curves:
         ax.legend(fontsize=7, frameon=False, ncol=2 if len(curves) > 8 else 1,
                   loc="upper left", bbox_to_anchor=(1.0, 1.0))
-    return _png(fig)
+    return ax
 
 
 def _standards(calibration: Any) -> tuple[np.ndarray, np.ndarray, np.ndarray, list[str]]:
@@ -100,23 +187,22 @@ def _standards(calibration: Any) -> tuple[np.ndarray, np.ndarray, np.ndarray, li
     return V, Mp, res, names
 
 
-def calibration_plot(calibration: Any, *, residual_limit_pct: float = 5.0) -> bytes:
-    """Calibration curve (log Mp against V) with a residual panel.
+def plot_calibration(calibration: Any, *, ax: Axes | None = None) -> Axes:
+    """Calibration curve: Mp of the standards against elution volume, with the fit.
 
     Parameters
     ----------
     calibration : gpctools.calibration.Calibration or its ``summary()`` dict
         Standards are plotted on the standard-polymer scale they were fitted on.
-    residual_limit_pct : float
-        Acceptance band drawn in the residual panel [%] (±5 %, common practice).
+    ax : matplotlib.axes.Axes, optional
+        Draw here; default a new 7.0 × 3.8 inch figure.
 
     Returns
     -------
-    bytes
-        PNG image.
+    matplotlib.axes.Axes
     """
-    V, Mp, res, names = _standards(calibration)
-    fig, (ax, axr) = _figure(7.0, 5.4, rows=2, height_ratios=(3, 1.4))
+    ax = _axes(ax, 7.0, 3.8)
+    V, Mp, _res, _names = _standards(calibration)
     ax.semilogy(V, Mp, "o", color=PALETTE[0], markersize=5, label="narrow standards")
     if hasattr(calibration, "log_M") and V.size:
         grid = np.linspace(float(calibration.v_min), float(calibration.v_max), 200)
@@ -129,39 +215,83 @@ def calibration_plot(calibration: Any, *, residual_limit_pct: float = 5.0) -> by
         order = np.argsort(V)
         ax.semilogy(V[order], fitted[order], "-", color=PALETTE[1], linewidth=1.3, label="fit")
     ax.set_ylabel("Mp [g/mol]")
-    ax.set_title("Calibration curve", fontsize=10, loc="left", color=_INK)
+    _title(ax, "Calibration curve")
     ax.legend(fontsize=8, frameon=False)
-    ax.tick_params(labelbottom=False)
+    return ax
+
+
+def plot_calibration_residuals(
+    calibration: Any, *, residual_limit_pct: float = 5.0, ax: Axes | None = None
+) -> Axes:
+    """Residual of each standard, 100·(M_fit/Mp − 1) [%], with the acceptance band.
+
+    Parameters
+    ----------
+    calibration : gpctools.calibration.Calibration or its ``summary()`` dict
+    residual_limit_pct : float
+        Acceptance band [%] (±5 %, common practice); standards outside it are marked
+        and named.
+    ax : matplotlib.axes.Axes, optional
+        Draw here; default a new 7.0 × 1.8 inch figure.
+
+    Returns
+    -------
+    matplotlib.axes.Axes
+    """
+    ax = _axes(ax, 7.0, 1.8)
+    V, _Mp, res, names = _standards(calibration)
     ok = np.abs(res) <= residual_limit_pct
-    axr.axhspan(-residual_limit_pct, residual_limit_pct, color="#eef3ee", zorder=0)
-    axr.axhline(0.0, color=_INK, linewidth=0.8)
-    axr.plot(V[ok], res[ok], "o", color=PALETTE[2], markersize=4)
-    axr.plot(V[~ok], res[~ok], "X", color=_FAIL, markersize=6)
+    ax.axhspan(-residual_limit_pct, residual_limit_pct, color="#eef3ee", zorder=0)
+    ax.axhline(0.0, color=_INK, linewidth=0.8)
+    ax.plot(V[ok], res[ok], "o", color=PALETTE[2], markersize=4)
+    ax.plot(V[~ok], res[~ok], "X", color=_FAIL, markersize=6)
     for v, r, n in zip(V[~ok], res[~ok], np.asarray(names, dtype=object)[~ok], strict=False):
-        axr.annotate(n, (v, r), fontsize=7, color=_FAIL, xytext=(3, 3), textcoords="offset points")
+        ax.annotate(n, (v, r), fontsize=7, color=_FAIL, xytext=(3, 3), textcoords="offset points")
     lim = max(residual_limit_pct * 1.6, float(np.nanmax(np.abs(res))) * 1.2 if res.size else 1.0)
-    axr.set_ylim(-lim, lim)
-    axr.set_xlabel("elution volume [mL]")
-    axr.set_ylabel("residual [%]")
+    ax.set_ylim(-lim, lim)
+    ax.set_xlabel("elution volume [mL]")
+    ax.set_ylabel("residual [%]")
+    return ax
+
+
+def calibration_figure(calibration: Any, *, residual_limit_pct: float = 5.0) -> Figure:
+    """Calibration curve above its residual panel (shared volume axis).
+
+    Parameters
+    ----------
+    calibration : gpctools.calibration.Calibration or its ``summary()`` dict
+    residual_limit_pct : float
+        Acceptance band of the residual panel [%].
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
+    fig, (ax, axr) = new_figure(7.0, 5.4, rows=2, height_ratios=(3, 1.4))
+    plot_calibration(calibration, ax=ax)
+    ax.tick_params(labelbottom=False)
+    plot_calibration_residuals(calibration, residual_limit_pct=residual_limit_pct, ax=axr)
     axr.sharex(ax)
-    return _png(fig)
+    return fig
 
 
-def control_chart_plot(chart: Any) -> bytes:
+def plot_control_chart(chart: Any, *, ax: Axes | None = None) -> Axes:
     """Individuals control chart with centre line, ±1/2/3 sigma and flagged points.
 
     Parameters
     ----------
     chart : gpctools.qc.ControlChart
+        Values in the unit of ``chart.quantity``.
+    ax : matplotlib.axes.Axes, optional
+        Draw here; default a new 7.5 × 3.6 inch figure.
 
     Returns
     -------
-    bytes
-        PNG image.
+    matplotlib.axes.Axes
     """
+    ax = _axes(ax, 7.5, 3.6)
     x = np.arange(len(chart.labels))
     y = np.asarray(chart.values, dtype=float)
-    fig, (ax,) = _figure(7.5, 3.6)
     c, s = chart.centre, chart.sigma
     ax.axhline(c, color=_INK, linewidth=1.0)
     if s > 0:
@@ -191,12 +321,32 @@ def control_chart_plot(chart: Any) -> bytes:
     ax.set_xticklabels(chart.labels, rotation=45 if len(x) > 6 else 0, ha="right" if len(x) > 6 else "center",
                        fontsize=7)
     ax.set_ylabel(chart.quantity)
-    ax.set_title(f"{chart.group}: {chart.quantity}", fontsize=10, loc="left", color=_INK)
+    _title(ax, f"{chart.group}: {chart.quantity}")
     ax.legend(fontsize=7, frameon=False, loc="upper left", bbox_to_anchor=(1.02, 1.0))
-    return _png(fig)
+    return ax
 
 
-def mayo_plot(fit: Any, *, title: str | None = None) -> bytes:
+# ----------------------------------------------------------------------------- Mayo plots
+
+
+def _mayo_line(ax: Axes, xs: np.ndarray, line: np.ndarray, label: str,
+               band: tuple[np.ndarray, np.ndarray] | None = None, band_label: str = "") -> None:
+    """The fitted Mayo line (and its confidence band) in the one Mayo style."""
+    ax.plot(xs, line, "-", color=PALETTE[1], linewidth=1.2, label=label)
+    if band is not None:
+        ax.fill_between(xs, band[0], band[1], color=PALETTE[1], alpha=_BAND, linewidth=0,
+                        label=band_label)
+
+
+def _mayo_finish(ax: Axes, xlabel: str, ylabel: str, title: str, legend_size: float) -> None:
+    ax.set_xlabel(xlabel)
+    ax.set_ylabel(ylabel)
+    ax.ticklabel_format(axis="both", style="sci", scilimits=(-3, 3))
+    _title(ax, title, pad=16)
+    ax.legend(fontsize=legend_size, frameon=False)
+
+
+def plot_mayo(fit: Any, *, title: str | None = None, ax: Axes | None = None) -> Axes:
     """Mayo plot: 1/DPn against the first design term ([A]/[M]) with the fitted line.
 
     Parameters
@@ -204,29 +354,32 @@ def mayo_plot(fit: Any, *, title: str | None = None) -> bytes:
     fit : object
         A Mayo fit with ``design`` (n × terms), ``y`` (1/DPn [-]), ``terms``, ``constants``
         and ``predict(columns)`` (as :class:`gpctools.transfer.mayo.MayoFit`), or a mapping
-        with ``"x"``, ``"y"`` and optionally ``"slope"``, ``"intercept"``, ``"label"``.
+        with ``"x"``, ``"y"`` and optionally ``"slope"``, ``"intercept"``, ``"label"``,
+        ``"xlabel"``.
     title : str, optional
+    ax : matplotlib.axes.Axes, optional
+        Draw here; default a new 6.0 × 4.0 inch figure.
 
     Returns
     -------
-    bytes
-        PNG image.
+    matplotlib.axes.Axes
 
     References
     ----------
-    Mayo equation 1/DPn = 1/DPn0 + C_A·[A]/[M] (Mayo, J. Am. Chem. Soc. 1943; SCIENCE.md §3).
+    Mayo equation 1/DPn = 1/DPn0 + C_A·[A]/[M] (F. R. Mayo, J. Am. Chem. Soc. 65, 2324, 1943).
     """
-    fig, (ax,) = _figure(6.0, 4.0)
+    ax = _axes(ax, 6.0, 4.0)
     if isinstance(fit, Mapping):
         x = np.asarray(fit["x"], dtype=float)
         y = np.asarray(fit["y"], dtype=float)
         label = str(fit.get("label", "runs"))
         xs = np.linspace(0.0, float(np.nanmax(x)) * 1.05 if x.size else 1.0, 50)
         if "slope" in fit and "intercept" in fit:
-            ax.plot(xs, fit["intercept"] + fit["slope"] * xs, "-", color=PALETTE[1], linewidth=1.2,
-                    label="fit")
+            _mayo_line(ax, xs, fit["intercept"] + fit["slope"] * xs, "fit")
         xlabel = str(fit.get("xlabel", "[A]/[M] [-]"))
     else:
+        from gpctools.transfer.mayo import term_label
+
         design = np.atleast_2d(np.asarray(fit.design, dtype=float))
         x = design[:, 0] if design.size else np.array([])
         y = np.asarray(fit.y, dtype=float)
@@ -235,21 +388,196 @@ def mayo_plot(fit: Any, *, title: str | None = None) -> bytes:
         xs = np.linspace(0.0, float(np.nanmax(x)) * 1.05 if x.size else 1.0, 50)
         cols = {t: (xs if j == 0 else np.full(xs.size, float(np.mean(design[:, j]))))
                 for j, t in enumerate(fit.terms)}
-        line = fit.predict(cols)
         c0 = fit.constants[0]
-        ax.plot(xs, line, "-", color=PALETTE[1], linewidth=1.2,
-                label=f"fit: {c0.name} = {c0.value:.4g} ± {c0.stderr:.2g}")
-        try:
-            from gpctools.transfer.mayo import term_label
-
-            xlabel = term_label(term)
-        except ImportError:  # pragma: no cover - the transfer package ships with gpctools
-            xlabel = f"{term} column [-]"
+        _mayo_line(ax, xs, fit.predict(cols), f"fit: {c0.name} = {c0.value:.4g} ± {c0.stderr:.2g}")
+        xlabel = term_label(term)
     ax.plot(x, y, "o", color=PALETTE[0], markersize=5, label=label)
-    ax.set_xlabel(xlabel)
-    ax.set_ylabel("1/DPn [-]")
-    ax.set_xlim(left=0.0)
-    ax.ticklabel_format(axis="both", style="sci", scilimits=(-3, 3))
-    ax.set_title(title or "Mayo plot", fontsize=10, loc="left", color=_INK, pad=16)
+    _mayo_finish(ax, xlabel, "1/DPn [-]", title or "Mayo plot", 8)
+    return ax
+
+
+_Y_LABEL = {"Mn": "1/DPn (Mn) [-]", "Mw/2": "1/DPn (Mw/2) [-]", "CLD": "Λ (CLD) [-]"}
+
+
+def _ratio(run: Any, term: str) -> float:
+    """The design column of ``term`` for one run: its ratio [-] (1 for C_M)."""
+    return 1.0 if term == "C_M" else float(run.ratios.get(term, 0.0))
+
+
+def plot_mayo_panel(result: Any, group: Any, estimator: str, term: str, *,
+                    ax: Axes | None = None) -> Axes:
+    """Partial Mayo plot of one group, estimator and term.
+
+    y (1/DPn, or Λ for the CLD estimator) minus the fitted contributions of the group's
+    other terms, against the term's ratio; the weighted initial-ratio fit with its
+    confidence band, runs flagged for impurity transfer marked, and the values of the
+    cumulative (conversion-drift) model when it was fitted.
+
+    Parameters
+    ----------
+    result : gpctools.transfer.TransferResult
+    group : gpctools.transfer.GroupResult
+        One of ``result.groups``.
+    estimator : str
+        ``"Mn"``, ``"Mw/2"`` or ``"CLD"`` (a key of ``group.mayo``).
+    term : str
+        One of ``group.terms`` (``C_A``, ``C_S``, ...).
+    ax : matplotlib.axes.Axes, optional
+        Draw here; default a new 4.2 × 3.4 inch figure.
+
+    Returns
+    -------
+    matplotlib.axes.Axes
+
+    References
+    ----------
+    Mayo equation (F. R. Mayo, J. Am. Chem. Soc. 65, 2324, 1943); the band is the
+    pointwise confidence band of :meth:`gpctools.transfer.MayoFit.band`.
+    """
+    from gpctools.transfer.mayo import term_label
+
+    ax = _axes(ax, 4.2, 3.4)
+    est = {e.run.run_id: e for e in result.estimates}
+    runs = {r.run_id: r for r in result.series.runs}
+    terms = list(group.terms)
+    fit = group.mayo[estimator]
+    beta = {c.name: c.value for c in fit.constants}
+    ids = list(group.run_ids)
+    x = np.array([_ratio(runs[k], term) for k in ids])
+    y = np.array([est[k].y(estimator) for k in ids])
+    others = np.zeros_like(y)
+    for t2 in terms:
+        if t2 != term:
+            others += beta[t2] * np.array([_ratio(runs[k], t2) for k in ids])
+    yp = y - others
+    flagged = set(group.impurity.flagged_ids) if group.impurity else set()
+    mask = np.array([k in flagged for k in ids], dtype=bool)
+    xs = np.linspace(0, max(float(x.max()), 1e-30) * 1.05, 100)
+    cols = {t2: (xs if t2 == term else np.zeros_like(xs)) for t2 in terms}
+    _mayo_line(ax, xs, fit.predict(cols),
+               f"Mayo, initial ratios: {term} = {beta[term]:.4g} ± {fit.constant(term).stderr:.2g}",
+               band=fit.band(cols), band_label=f"{100 * fit.confidence:g} % band")
+    ax.plot(x[~mask], yp[~mask], "o", color=PALETTE[0], markersize=5, label="runs")
+    if mask.any():
+        ax.plot(x[mask], yp[mask], "s", color=_FAIL, markersize=6, label="flagged (impurity?)")
+    if estimator in group.drift:
+        d = group.drift[estimator]
+        dx = np.array([runs[k].ratios.get(term, 0.0) for k in d.run_ids])
+        ax.plot(dx, d.fitted, "x", color=PALETTE[2], markersize=6,
+                label=f"drift model: {term} = {d.constant(term).value:.4g}")
+    ylabel = _Y_LABEL[estimator] + (" (partial)" if len(terms) > 1 else "")
+    _mayo_finish(ax, term_label(term), ylabel, f"{group.label}: {estimator}", 7)
+    return ax
+
+
+def mayo_group_figure(result: Any, group: Any) -> Figure:
+    """All partial Mayo plots of a group: one column per estimator, one row per term.
+
+    Parameters
+    ----------
+    result : gpctools.transfer.TransferResult
+    group : gpctools.transfer.GroupResult
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        4.2 inch wide per estimator, 3.4 inch high per term.
+    """
+    from gpctools.transfer.estimators import ESTIMATORS
+
+    names = [e for e in ESTIMATORS if e in group.mayo]
+    terms = list(group.terms)
+    fig, axes = new_figure(4.2 * len(names), 3.4 * len(terms), rows=len(terms), cols=len(names))
+    for i, t in enumerate(terms):
+        for j, e in enumerate(names):
+            plot_mayo_panel(result, group, e, t, ax=axes[i * len(names) + j])
+    return fig
+
+
+def plot_lnP(result: Any, group: Any, *, ax: Axes | None = None) -> Axes | None:
+    """ln P(M) against M for every run of a group with its fitted CLD window.
+
+    Each run's number distribution ln P(M) = ln(dw/dlogM) − 2 ln M is shifted to 0 at the
+    centre of its CLD window; the thick line over the window has the fitted slope
+    −Λ/M0 [mol/g].
+
+    Parameters
+    ----------
+    result : gpctools.transfer.TransferResult
+    group : gpctools.transfer.GroupResult
+    ax : matplotlib.axes.Axes, optional
+        Draw here; default a new 6.4 × 4.4 inch figure.
+
+    Returns
+    -------
+    matplotlib.axes.Axes or None
+        None (nothing drawn) when no run of the group has a CLD slope.
+
+    References
+    ----------
+    Chain-length-distribution method: P(M) ∝ exp(−Λ M/M0) for a most-probable
+    distribution (Clay and Gilbert, Macromolecules 28, 552, 1995).
+    """
+    from gpctools.transfer.estimators import ln_number_distribution
+
+    est = {e.run.run_id: e for e in result.estimates}
+    items = [est[k] for k in group.run_ids if est[k].cld is not None and est[k].M is not None]
+    if not items:
+        return None
+    ax = _axes(ax, 6.4, 4.4)
+    xmax = 0.0
+    for n, e in enumerate(items):
+        lo, hi = e.cld.window
+        M = e.M
+        lnp = ln_number_distribution(M, e.dwdlogM)
+        centre = 0.5 * (lo + hi)
+        ref = np.interp(centre, M[np.argsort(M)], lnp[np.argsort(M)])
+        sel = (M > 0) & (M < 3 * hi) & np.isfinite(lnp)
+        color = PALETTE[n % len(PALETTE)]
+        ax.plot(M[sel], lnp[sel] - ref, "-", color=color, linewidth=0.8, alpha=0.7, label=e.run.run_id)
+        xs = np.linspace(lo, hi, 20)
+        ax.plot(xs, -(xs - centre) * e.cld.Lambda / e.run.M0, "-", color=color, linewidth=2.5)
+        xmax = max(xmax, 3 * hi)
+    ax.set_xlim(0, xmax)
+    ax.set_xlabel("M [g/mol]")
+    ax.set_ylabel("ln P(M) − ln P(window centre) [-]")
+    _title(ax, f"{group.label}: ln P(M) with fitted CLD windows (thick)")
+    ax.legend(fontsize=7, ncol=2, frameon=False)
+    return ax
+
+
+def plot_arrhenius(label: Mapping[str, str], fit: Any, *, ax: Axes | None = None) -> Axes:
+    """ln C against 1000/T with the fitted line and the standard error of each C.
+
+    Parameters
+    ----------
+    label : mapping
+        ``agent``, ``term``, ``estimator`` and ``model`` of the fit (as in
+        ``TransferResult.arrhenius``).
+    fit : gpctools.transfer.ArrheniusFit
+        T [K], C [-] and its standard errors, E_tr − E_p [kJ/mol].
+    ax : matplotlib.axes.Axes, optional
+        Draw here; default a new 5.2 × 4.0 inch figure.
+
+    Returns
+    -------
+    matplotlib.axes.Axes
+
+    References
+    ----------
+    ln C = ln(A_tr/A_p) − (E_tr − E_p)/(R T) (Arrhenius law applied to k_tr/k_p).
+    """
+    ax = _axes(ax, 5.2, 4.0)
+    x = 1.0 / fit.T
+    y = np.log(fit.C)
+    err = fit.C_stderr / fit.C
+    xs = np.linspace(x.min(), x.max(), 50)
+    ax.plot(xs * 1e3, np.log(fit.predict(1 / xs)), "-", color=PALETTE[1], linewidth=1.2,
+            label=f"E_tr − E_p = {fit.delta_E.value:.1f} ± {fit.delta_E.stderr:.1f} kJ/mol")
+    ax.errorbar(x * 1e3, y, yerr=np.where(np.isfinite(err), err, 0), fmt="o", color=PALETTE[0],
+                markersize=5, capsize=2, label="ln C ± its standard error")
+    ax.set_xlabel("1000/T [1/K]")
+    ax.set_ylabel(f"ln {label['term']} [-]")
+    _title(ax, f"{label['agent']} ({label['estimator']}, {label['model']})")
     ax.legend(fontsize=8, frameon=False)
-    return _png(fig)
+    return ax

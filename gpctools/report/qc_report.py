@@ -21,7 +21,6 @@ from __future__ import annotations
 import json
 import math
 import os
-import re
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -30,14 +29,27 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from gpctools._atomic import write_bytes, write_text
 from gpctools.errors import DataError, InputFormatError
-from gpctools.qc import _table as T
-from gpctools.qc.decisions import FAIL, NO_RESULT, NO_SPEC, NOT_REPORTABLE, PASS, SEVERITY
-from gpctools.qc.evaluate import QCResult, QCSettings, evaluate_qc
-from gpctools.qc.specs import SpecSheet, read_specs
-from gpctools.qc.trends import RULE_SET_NAME
+from gpctools.qc import (
+    FAIL,
+    NO_RESULT,
+    NO_SPEC,
+    NOT_REPORTABLE,
+    PASS,
+    ROLE_CHECK,
+    ROLE_SAMPLE,
+    RULE_SET_NAME,
+    QCResult,
+    QCSettings,
+    SpecSheet,
+    evaluate_qc,
+    label_text,
+    read_specs,
+    role_of,
+)
+from gpctools.qc.decisions import SEVERITY
 from gpctools.report.audit import AuditTrail, build_audit
+from gpctools.report.files import safe_name, unique_name, write_bytes, write_text
 
 __all__ = ["QCReport", "run_qc", "EXIT_OK", "EXIT_FINDINGS"]
 
@@ -131,9 +143,9 @@ def _read_results_table(path: Path) -> pd.DataFrame:
     if not path.exists():
         raise InputFormatError("results table not found; give results.csv written by 'gpctools batch'",
                                path=path)
-    from gpctools.io._files import detect_kind, read_bytes
+    from gpctools.io import file_kind
 
-    detect_kind(path, read_bytes(path))  # folder, empty file, image or binary: clear message
+    file_kind(path)  # folder, empty file, image or binary: clear message
     if path.suffix.lower() == ".csv":
         try:
             header = pd.read_csv(path, nrows=0).columns
@@ -165,76 +177,97 @@ def _chromatogram_files(table: pd.DataFrame, sheet: str | os.PathLike[str] | Non
     if sheet is None or "file" not in table.columns:
         return []
     base = Path(sheet).parent
-    out = []
-    for f in T.labels(table, "file"):
-        if f:
-            out.append(("chromatogram", str(base / f)))
-    return out
+    names = (label_text(v) for v in table["file"].tolist())
+    return [("chromatogram", str(base / f)) for f in names if f]
+
+
+def _from_batch(results: Any, method: Any, calibration: Any) -> _Inputs:
+    """Inputs from a :class:`gpctools.batch.BatchResult` (curves of samples and check standards)."""
+    inp = _Inputs(table=results.table, method=method or results.method, source=str(results.sheet))
+    inp.files.append(("batch sheet", str(results.sheet)))
+    inp.files.extend(("chromatogram", str(e.path)) for e in results.entries if e.file)
+    for entry, res in zip(results.entries, results.injections or [], strict=False):
+        if res is None:
+            continue
+        role = role_of(entry.role)
+        if role in (ROLE_SAMPLE, ROLE_CHECK):
+            group = "check standards" if role == ROLE_CHECK else (
+                label_text(entry.metadata.get("product")) or "(no product)")
+            d = res.distribution
+            inp.curves.append((group, entry.sample_id, np.asarray(d.M), np.asarray(d.dwdlogM)))
+    inp.calibration = calibration if calibration is not None else results.calibration
+    return inp
+
+
+def _read_manifest(path: Path) -> dict[str, Any]:
+    """``manifest.json`` beside a results table (empty when there is none)."""
+    if not path.exists():
+        return {}
+    try:
+        info = json.loads(path.read_text(encoding="utf-8"))
+    except (OSError, ValueError) as exc:
+        raise InputFormatError(f"cannot read the batch manifest: {exc}", path=path) from None
+    if not isinstance(info, dict):
+        raise InputFormatError(
+            "the batch manifest is not a JSON object; write it again with 'gpctools batch' "
+            "or remove it", path=path)
+    return info
+
+
+def _folder_curves(folder: Path) -> list[tuple[str, str, np.ndarray, np.ndarray]]:
+    """Distribution tables written beside a results table (unreadable ones are skipped)."""
+    curves = []
+    if folder.is_dir():
+        for f in sorted(folder.glob("*.csv")):
+            try:
+                d = pd.read_csv(f)
+                curves.append(("all injections", f.stem, d["M [g/mol]"].to_numpy(float),
+                               d["dw/dlogM [-]"].to_numpy(float)))
+            except (OSError, KeyError, ValueError, pd.errors.ParserError):
+                continue
+    return curves
+
+
+def _from_file(path: Path, method: Any, calibration: Any) -> _Inputs:
+    """Inputs from ``results.csv`` and what ``gpctools batch`` wrote beside it."""
+    table = _read_results_table(path)
+    inp = _Inputs(table=table, method=method, source=str(path))
+    inp.files.append(("results table", str(path)))
+    manifest = path.parent / "manifest.json"
+    info = _read_manifest(manifest)
+    if manifest.exists():
+        inp.files.append(("batch manifest", str(manifest)))
+    sheet = info.get("batch sheet")
+    if sheet and Path(sheet).exists():
+        inp.files.append(("batch sheet", str(sheet)))
+        inp.files.extend(_chromatogram_files(table, sheet))
+    if inp.method is None and isinstance(info.get("method"), Mapping):
+        src = info["method"].get("source")
+        if src and Path(src).exists():
+            inp.method = _method_from(src)
+        elif isinstance(info["method"].get("settings"), Mapping):
+            ref = info["method"]["settings"].get("flow marker reference [mL]")
+            inp.reference_flow_marker = float(ref) if ref is not None else None
+    if calibration is not None:
+        inp.calibration = calibration
+    elif inp.method is not None:
+        inp.calibration = inp.method.calibration
+    elif isinstance(info.get("calibration"), Mapping):
+        inp.calibration = info["calibration"]
+    inp.curves.extend(_folder_curves(path.parent / "distributions"))
+    return inp
 
 
 def _resolve_results(results: Any, method: Any, calibration: Any) -> _Inputs:
     method = _method_from(method)
     if hasattr(results, "table") and hasattr(results, "entries"):  # gpctools.batch.BatchResult
-        method = method or results.method
-        inp = _Inputs(table=results.table, method=method, source=str(results.sheet))
-        inp.files.append(("batch sheet", str(results.sheet)))
-        inp.files.extend(("chromatogram", str(e.path)) for e in results.entries if e.file)
-        for entry, res in zip(results.entries, results.injections or [], strict=False):
-            if res is not None:
-                d = res.distribution
-                role = T.role_of(entry.role)
-                group = "check standards" if role == T.ROLE_CHECK else (
-                    T.label_text(entry.metadata.get("product")) or "(no product)")
-                if role in (T.ROLE_SAMPLE, T.ROLE_CHECK):
-                    inp.curves.append((group, entry.sample_id, np.asarray(d.M), np.asarray(d.dwdlogM)))
-        inp.calibration = calibration if calibration is not None else results.calibration
+        inp = _from_batch(results, method, calibration)
     elif isinstance(results, pd.DataFrame):
         inp = _Inputs(table=results, method=method, source="results table (in memory)")
         inp.calibration = calibration if calibration is not None else (
             method.calibration if method is not None else None)
     elif isinstance(results, (str, os.PathLike)):
-        path = Path(results)
-        table = _read_results_table(path)
-        inp = _Inputs(table=table, method=method, source=str(path))
-        inp.files.append(("results table", str(path)))
-        manifest = path.parent / "manifest.json"
-        info: dict[str, Any] = {}
-        if manifest.exists():
-            try:
-                info = json.loads(manifest.read_text(encoding="utf-8"))
-            except (OSError, ValueError) as exc:
-                raise InputFormatError(f"cannot read the batch manifest: {exc}", path=manifest) from None
-            if not isinstance(info, dict):
-                raise InputFormatError(
-                    "the batch manifest is not a JSON object; write it again with 'gpctools batch' "
-                    "or remove it", path=manifest)
-            inp.files.append(("batch manifest", str(manifest)))
-        sheet = info.get("batch sheet")
-        if sheet and Path(sheet).exists():
-            inp.files.append(("batch sheet", str(sheet)))
-            inp.files.extend(_chromatogram_files(table, sheet))
-        if inp.method is None and isinstance(info.get("method"), Mapping):
-            src = info["method"].get("source")
-            if src and Path(src).exists():
-                inp.method = _method_from(src)
-            elif isinstance(info["method"].get("settings"), Mapping):
-                ref = info["method"]["settings"].get("flow marker reference [mL]")
-                inp.reference_flow_marker = float(ref) if ref is not None else None
-        if calibration is not None:
-            inp.calibration = calibration
-        elif inp.method is not None:
-            inp.calibration = inp.method.calibration
-        elif isinstance(info.get("calibration"), Mapping):
-            inp.calibration = info["calibration"]
-        dist = path.parent / "distributions"
-        if dist.is_dir():
-            for f in sorted(dist.glob("*.csv")):
-                try:
-                    d = pd.read_csv(f)
-                    inp.curves.append(("all injections", f.stem, d["M [g/mol]"].to_numpy(float),
-                                       d["dw/dlogM [-]"].to_numpy(float)))
-                except (OSError, KeyError, ValueError, pd.errors.ParserError):
-                    continue
+        inp = _from_file(Path(results), method, calibration)
     else:
         raise DataError(
             f"run_qc needs a BatchResult, a results DataFrame or the path of results.csv, "
@@ -301,13 +334,13 @@ def _transfer_tables(title: str, fit: Any) -> tuple[pd.DataFrame, pd.DataFrame]:
                      f"{round(100 * getattr(c, 'confidence', 0.95))} % CI low [-]": c.ci_low,
                      f"{round(100 * getattr(c, 'confidence', 0.95))} % CI high [-]": c.ci_high})
     design = np.atleast_2d(np.asarray(getattr(fit, "design", np.empty((0, 0))), dtype=float))
-    pts = {"fit": title, "run": list(getattr(fit, "run_ids", ()))}
+    points: dict[str, Any] = {"fit": title, "run": list(getattr(fit, "run_ids", ()))}
     for j, t in enumerate(getattr(fit, "terms", ())):
-        if design.shape[0] == len(pts["run"]) and j < design.shape[1]:
-            pts[f"{t} column [-]"] = design[:, j]
-    pts["1/DPn observed [-]"] = np.asarray(getattr(fit, "y", []), float)
-    pts["1/DPn fitted [-]"] = np.asarray(getattr(fit, "fitted", []), float)
-    return pd.DataFrame(rows), pd.DataFrame(pts)
+        if design.shape[0] == len(points["run"]) and j < design.shape[1]:
+            points[f"{t} column [-]"] = design[:, j]
+    points["1/DPn observed [-]"] = np.asarray(getattr(fit, "y", []), float)
+    points["1/DPn fitted [-]"] = np.asarray(getattr(fit, "fitted", []), float)
+    return pd.DataFrame(rows), pd.DataFrame(points)
 
 
 # ----------------------------------------------------------------------------- tables
@@ -394,11 +427,6 @@ def _trends_sheet(result: QCResult) -> pd.DataFrame:
     return df.rename(columns=ren)
 
 
-def _safe(text: str) -> str:
-    s = re.sub(r"[^A-Za-z0-9._-]+", "_", text).strip("._")
-    return s or "plot"
-
-
 # ----------------------------------------------------------------------------- run_qc
 
 
@@ -459,13 +487,37 @@ def run_qc(
     gpctools.errors.GpcError
         Unreadable inputs (spec sheet, results table, method) with file/row/column.
     """
+    ev = _evaluate(results, specs, method=method, calibration=calibration, history=history,
+                   transfer=transfer, settings=settings, timestamp=timestamp)
+    sheets = _workbook_sheets(ev)
+    if outdir is None:
+        return QCReport(ev.result, ev.audit, {}, sheets)
+    written = _write_reports(ev, sheets, Path(outdir), title=title, plots=plots)
+    return QCReport(ev.result, ev.audit, written, sheets)
+
+
+@dataclass(frozen=True)
+class _Evaluated:
+    """Everything :func:`run_qc` knows before it writes."""
+
+    inp: _Inputs
+    spec_sheet: SpecSheet
+    settings: QCSettings
+    result: QCResult
+    audit: AuditTrail
+    #: Transfer fits by title, and their (constants, points) tables in the same order.
+    items: list[tuple[str, Any]]
+    transfer_tables: list[tuple[pd.DataFrame, pd.DataFrame]]
+
+
+def _evaluate(results: Any, specs: SpecSheet | str | os.PathLike[str], *, method: Any,
+              calibration: Any, history: Any, transfer: Any, settings: QCSettings | None,
+              timestamp: str | None) -> _Evaluated:
+    """Step 1: read the inputs, evaluate QC and build the audit trail (nothing written)."""
     inp = _resolve_results(results, method, calibration)
     if settings is None:
         settings = QCSettings.from_method(inp.method)
-    if isinstance(specs, SpecSheet):
-        spec_sheet = specs
-    else:
-        spec_sheet = read_specs(specs)
+    spec_sheet = specs if isinstance(specs, SpecSheet) else read_specs(specs)
     hist_tables, hist_files = _history_tables(history)
     result = evaluate_qc(inp.table, spec_sheet, calibration=inp.calibration,
                          reference_flow_marker=inp.reference_flow_marker, history=hist_tables,
@@ -482,80 +534,103 @@ def run_qc(
     }
     audit = build_audit(inputs=files, method=inp.method, settings=audit_settings, timestamp=timestamp)
     items = _transfer_items(transfer)
+    return _Evaluated(inp, spec_sheet, settings, result, audit, items,
+                      [_transfer_tables(t, f) for t, f in items])
 
+
+def _workbook_sheets(ev: _Evaluated) -> dict[str, pd.DataFrame]:
+    """Step 2: the workbook's tables by sheet name (also returned when nothing is written)."""
+    result = ev.result
     sheets: dict[str, pd.DataFrame] = {
-        "summary": _summary_frame(result, audit, inp.source),
+        "summary": _summary_frame(result, ev.audit, ev.inp.source),
         "batches": result.decisions.batches_frame(),
         "samples": result.decisions.samples_frame(),
-        "injections": inp.table,
-        "specs": spec_sheet.to_frame(),
+        "injections": ev.inp.table,
+        "specs": ev.spec_sheet.to_frame(),
         "calibration": _calibration_frame(result.calibration),
         "suitability": _suitability_sheet(result),
         "trends": _trends_sheet(result),
         "trend signals": result.trend_violations_frame(),
     }
-    transfer_tables = [_transfer_tables(t, f) for t, f in items]
-    if items:
-        sheets["transfer"] = pd.concat([c for c, _ in transfer_tables], ignore_index=True)
-        sheets["transfer points"] = pd.concat([p for _, p in transfer_tables], ignore_index=True)
-    sheets["audit"] = audit.to_frame()
+    if ev.items:
+        sheets["transfer"] = pd.concat([c for c, _ in ev.transfer_tables], ignore_index=True)
+        sheets["transfer points"] = pd.concat([p for _, p in ev.transfer_tables], ignore_index=True)
+    sheets["audit"] = ev.audit.to_frame()
+    return sheets
+
+
+@dataclass
+class _Figures:
+    """PNG figures for the HTML page (``html.figure`` dicts), by section."""
+
+    calibration: list[dict[str, str]] = field(default_factory=list)
+    distributions: list[dict[str, str]] = field(default_factory=list)
+    transfer: list[dict[str, str]] = field(default_factory=list)
+    #: One entry per control chart (None when it was not drawn).
+    charts: list[dict[str, str] | None] = field(default_factory=list)
+
+
+def _draw_plots(ev: _Evaluated, out: Path) -> tuple[dict[str, Path], _Figures]:
+    """Step 3: draw and write ``plots/*.png``; returns the files and the HTML figures."""
+    from gpctools.report import html as H
+    from gpctools.report import plots as P
 
     written: dict[str, Path] = {}
-    if outdir is None:
-        return QCReport(result, audit, written, sheets)
+    figs = _Figures(charts=[None] * len(ev.result.trends))
 
+    def save(name: str, png: bytes) -> None:
+        written[f"plots/{name}.png"] = write_bytes(out / "plots" / f"{name}.png", png)
+
+    if ev.result.calibration:
+        cal = ev.inp.calibration if hasattr(ev.inp.calibration, "standards_table") else ev.result.calibration
+        png = P.png_bytes(P.calibration_figure(
+            cal, residual_limit_pct=ev.settings.suitability.max_calibration_residual_pct))
+        save("calibration", png)
+        figs.calibration.append(H.figure(png, "Calibration curve (standards and fit) with the "
+                                              "residual of each standard; band: acceptance limit."))
+    groups: dict[str, list[tuple[str, np.ndarray, np.ndarray]]] = {}
+    for g, label, M, y in ev.inp.curves:
+        groups.setdefault(g, []).append((label, M, y))
+    seen: set[str] = set()
+    for g, curves in groups.items():
+        png = P.png_bytes(P.plot_distributions(curves, title=f"Distributions: {g}").figure)
+        save(unique_name(f"distributions_{safe_name(g, 'plot')}", seen), png)
+        figs.distributions.append(H.figure(png, f"dw/dlogM of each injection, {g}."))
+    for k, chart in enumerate(ev.result.trends):
+        png = P.png_bytes(P.plot_control_chart(chart).figure)
+        save(f"control_{k + 1:02d}_{safe_name(chart.group, 'plot')}_{safe_name(chart.quantity, 'plot')}", png)
+        figs.charts[k] = H.figure(png, f"Individuals chart of {chart.quantity} for {chart.group}: "
+                                       "centre line, ±1/2/3 sigma; circled points break a run rule.")
+    for k, (t, f) in enumerate(ev.items):
+        png = P.png_bytes(P.plot_mayo(f, title=f"Mayo plot: {t}").figure)
+        save(f"mayo_{k + 1:02d}_{safe_name(t, 'plot')}", png)
+        figs.transfer.append(H.figure(png, f"1/DPn against the agent ratio with the fitted line, {t}."))
+    return written, figs
+
+
+def _write_reports(ev: _Evaluated, sheets: dict[str, pd.DataFrame], out: Path, *,
+                   title: str | None, plots: bool) -> dict[str, Path]:
+    """Step 4: plots, workbook, HTML page, QC summary and audit trail into ``out``."""
     from gpctools.report import html as H
     from gpctools.report.xlsx import write_workbook
 
-    out = Path(outdir)
     out.mkdir(parents=True, exist_ok=True)
-    figures: dict[str, list[dict[str, str]]] = {"calibration": [], "distributions": [], "transfer": []}
-    chart_figs: list[dict[str, str] | None] = [None] * len(result.trends)
+    written: dict[str, Path] = {}
+    figs = _Figures(charts=[None] * len(ev.result.trends))
     if plots:
-        from gpctools.report import plots as P
-
-        if result.calibration:
-            cal_obj = inp.calibration if hasattr(inp.calibration, "standards_table") else result.calibration
-            png = P.calibration_plot(cal_obj, residual_limit_pct=settings.suitability.max_calibration_residual_pct)
-            written["plots/calibration.png"] = write_bytes(out / "plots" / "calibration.png", png)
-            figures["calibration"].append(H.figure(png, "Calibration curve (standards and fit) with the "
-                                                   "residual of each standard; band: acceptance limit."))
-        groups: dict[str, list[tuple[str, np.ndarray, np.ndarray]]] = {}
-        for g, label, M, y in inp.curves:
-            groups.setdefault(g, []).append((label, M, y))
-        for g, curves in groups.items():
-            png = P.distribution_overlay(curves, title=f"Distributions: {g}")
-            name = f"plots/distributions_{_safe(g)}.png"
-            written[name] = write_bytes(out / name, png)
-            figures["distributions"].append(H.figure(png, f"dw/dlogM of each injection, {g}."))
-        for k, chart in enumerate(result.trends):
-            png = P.control_chart_plot(chart)
-            name = f"plots/control_{k + 1:02d}_{_safe(chart.group)}_{_safe(chart.quantity)}.png"
-            written[name] = write_bytes(out / name, png)
-            chart_figs[k] = H.figure(png, f"Individuals chart of {chart.quantity} for {chart.group}: "
-                                          "centre line, ±1/2/3 sigma; circled points break a run rule.")
-        for k, (t, f) in enumerate(items):
-            png = P.mayo_plot(f, title=f"Mayo plot: {t}")
-            name = f"plots/mayo_{k + 1:02d}_{_safe(t)}.png"
-            written[name] = write_bytes(out / name, png)
-            figures["transfer"].append(H.figure(png, f"1/DPn against the agent ratio with the fitted line, {t}."))
-
+        written, figs = _draw_plots(ev, out)
     written["qc_report.xlsx"] = write_workbook(out / "qc_report.xlsx", sheets)
-    context = _html_context(result, audit, spec_sheet, inp, title, figures, chart_figs, items,
-                            transfer_tables)
-    written["qc_report.html"] = H.write_html(out / "qc_report.html", context)
+    written["qc_report.html"] = H.write_html(out / "qc_report.html", _html_context(ev, title, figs))
     written["qc_summary.json"] = write_text(
-        out / "qc_summary.json", json.dumps(result.summary(), indent=2, ensure_ascii=False, default=str) + "\n")
-    written["audit.json"] = write_text(out / "audit.json", audit.to_json())
-    return QCReport(result, audit, written, sheets)
+        out / "qc_summary.json",
+        json.dumps(ev.result.summary(), indent=2, ensure_ascii=False, default=str) + "\n")
+    written["audit.json"] = write_text(out / "audit.json", ev.audit.to_json())
+    return written
 
 
-def _html_context(result, audit, spec_sheet, inp, title, figures, chart_figs, items, transfer_tables):
+def _suitability_context(result: QCResult) -> list[dict[str, Any]]:
     from gpctools.report import html as H
 
-    overall = _overall(result)
-    counts = result.decisions.counts()
-    inj_cols = [c for c in _INJECTION_COLUMNS if c in inp.table.columns]
     suit = []
     for s in result.suitability:
         df = s.to_frame().drop(columns=["sequence", "comparison"]).rename(
@@ -564,8 +639,14 @@ def _html_context(result, audit, spec_sheet, inp, title, figures, chart_figs, it
                      "text": "pass" if s.passed else "fail",
                      "table": H.table_context(df, formats={"value [unit as in check]": "[-]",
                                                            "limit [unit as in check]": "[-]"})})
+    return suit
+
+
+def _charts_context(result: QCResult, figs: _Figures) -> list[dict[str, Any]]:
+    from gpctools.report import html as H
+
     charts = []
-    for chart, fig in zip(result.trends, chart_figs, strict=False):
+    for chart, fig in zip(result.trends, figs.charts, strict=False):
         rows = [{"point": v.label, chart.quantity: v.value, "rule": v.rule, "side": v.side,
                  "description": v.description} for v in chart.violations]
         df = pd.DataFrame(rows, columns=["point", chart.quantity, "rule", "side", "description"])
@@ -575,10 +656,21 @@ def _html_context(result, audit, spec_sheet, inp, title, figures, chart_figs, it
         charts.append({"title": f"{chart.group}: {chart.quantity}; {limits}",
                        "figure": fig or {"src": "", "caption": "plot not drawn", "alt": "no plot"},
                        "table": H.table_context(df, empty="No run rule broken.")})
+    return charts
+
+
+def _html_context(ev: _Evaluated, title: str | None, figs: _Figures) -> dict[str, Any]:
+    """The template's context: every section of the page as plain values."""
+    from gpctools.report import html as H
+
+    result, audit, inp, spec_sheet = ev.result, ev.audit, ev.inp, ev.spec_sheet
+    overall = _overall(result)
+    counts = result.decisions.counts()
+    inj_cols = [c for c in _INJECTION_COLUMNS if c in inp.table.columns]
     transfer = []
-    for k, (t, _f) in enumerate(items):
-        consts, _pts = transfer_tables[k]
-        transfer.append({"title": t, "figure": figures["transfer"][k] if k < len(figures["transfer"]) else None,
+    for k, (t, _f) in enumerate(ev.items):
+        consts, _pts = ev.transfer_tables[k]
+        transfer.append({"title": t, "figure": figs.transfer[k] if k < len(figs.transfer) else None,
                          "table": H.table_context(consts)})
     audit_df = audit.to_frame()
     audit_df = audit_df[audit_df["section"] != "method text"]
@@ -603,16 +695,16 @@ def _html_context(result, audit, spec_sheet, inp, title, figures, chart_figs, it
         "specs": H.table_context(spec_sheet.to_frame(), formats={
             "min [unit of quantity]": "", "max [unit of quantity]": "", "target [unit of quantity]": ""}),
         "injections": H.table_context(inp.table[inj_cols]),
-        "suitability": suit,
+        "suitability": _suitability_context(result),
         "calibration_items": H.table_context(_calibration_items(result.calibration), unit_from="item",
                                              empty="No calibration was supplied."),
-        "calibration_figures": figures["calibration"],
+        "calibration_figures": figs.calibration,
         "standards": H.table_context(_calibration_frame(result.calibration)),
-        "distribution_figures": figures["distributions"],
+        "distribution_figures": figs.distributions,
         "rule_set_note": (f"Shewhart individuals charts, sigma = mean moving range / 1.128; run rules: "
                           f"{RULE_SET_NAME} - WE1 one point beyond 3 sigma, WE2 2 of 3 beyond 2 sigma, "
                           "WE3 4 of 5 beyond 1 sigma (same side), WE4 8 in a row on one side."),
-        "charts": charts,
+        "charts": _charts_context(result, figs),
         "transfer": transfer,
         "audit": H.table_context(audit_df),
         "method_text": audit.method_text or "",

@@ -10,7 +10,6 @@ Public API
 ----------
 analyse_series(sheet_path, method=None, options=None, **overrides) -> TransferResult
 TransferOptions(terms=None, estimators=..., drift="auto", ...): the analysis settings
-write_transfer_outputs(result, outdir) -> dict of paths
 read_run_series(path) -> RunSeries
 fit_mayo(y, columns, ...) -> MayoFit;  check_design(columns) -> DesignCheck
 cld_slope(M, dwdlogM, M0, ...) -> CLDSlope
@@ -19,7 +18,9 @@ consumption_constant(A0, A, ...) -> ConsumptionResult
 fit_arrhenius(T_K, C, C_stderr) -> ArrheniusFit
 flag_runs(y, columns, ...) -> ImpurityCheck;  check_intercept(fit, expected, ...)
 
-Heavy modules (lmfit, matplotlib) are imported inside the functions that need them.
+Nothing here writes files: :func:`gpctools.report.write_transfer` writes the tables,
+summary and plots of a :class:`TransferResult`. Heavy modules (lmfit, scipy.optimize) are
+imported inside the functions that need them.
 """
 
 from __future__ import annotations
@@ -29,7 +30,6 @@ from gpctools.transfer.analysis import (
     RunEstimate,
     TransferResult,
     analyse_series,
-    write_transfer_outputs,
 )
 from gpctools.transfer.arrhenius import ArrheniusFit, fit_arrhenius
 from gpctools.transfer.drift import (
@@ -56,7 +56,6 @@ from gpctools.transfer.series import Run, RunSeries, read_run_series, run_series
 __all__ = [
     "analyse_series",
     "TransferOptions",
-    "write_transfer_outputs",
     "TransferResult",
     "GroupResult",
     "RunEstimate",

@@ -14,8 +14,9 @@ temperature):
 4. compares the estimators and names likely causes where they disagree;
 5. applies the consumption method where residual agent was measured.
 
-Across temperatures it fits ln C against 1/T. :func:`write_transfer_outputs` writes the
-tables (CSV + XLSX), a JSON summary and the PNG plots.
+Across temperatures it fits ln C against 1/T. Nothing is written here:
+:func:`gpctools.report.write_transfer` writes the tables (CSV + XLSX), a JSON summary and
+the PNG plots.
 
 References
 ----------
@@ -26,7 +27,6 @@ See :mod:`gpctools.transfer.mayo`, :mod:`~gpctools.transfer.estimators`,
 
 from __future__ import annotations
 
-import json
 import math
 import warnings as _warnings
 from collections.abc import Mapping, Sequence
@@ -69,7 +69,6 @@ __all__ = [
     "GroupResult",
     "TransferResult",
     "analyse_series",
-    "write_transfer_outputs",
     "MODEL_MAYO",
     "MODEL_DRIFT",
     "MODEL_CONSUMPTION",
@@ -1208,52 +1207,3 @@ def _arrhenius_rows(res: TransferResult) -> list[dict[str, Any]]:
         })
     return rows
 
-
-# --------------------------------------------------------------------------- outputs
-
-
-def write_transfer_outputs(result: TransferResult, outdir: str | Path, *,
-                           plots: bool = True) -> dict[str, Path]:
-    """Write the tables, the summary and the plots of a :class:`TransferResult` atomically.
-
-    Files: ``constants.csv``, ``runs.csv``, ``arrhenius.csv`` (when fitted),
-    ``transfer.xlsx`` (sheets constants, runs, arrhenius), ``constants.xlsx``,
-    ``summary.json`` and ``plots/mayo_<group>.png``, ``plots/lnP_<group>.png``,
-    ``plots/arrhenius_<agent>.png``.
-
-    Parameters
-    ----------
-    result : TransferResult
-    outdir : str or Path
-        Output folder (created).
-    plots : bool
-        Also draw the PNG plots (matplotlib, Agg backend).
-
-    Returns
-    -------
-    dict of str to Path
-    """
-    from gpctools._atomic import write_csv, write_text
-    from gpctools._workbook import write_workbook
-
-    out = Path(outdir)
-    out.mkdir(parents=True, exist_ok=True)
-    paths: dict[str, Path] = {}
-    ct = result.constants_table()
-    rt = result.runs_table()
-    at = result.arrhenius_table()
-    paths["constants.csv"] = write_csv(out / "constants.csv", ct)
-    paths["runs.csv"] = write_csv(out / "runs.csv", rt)
-    sheets = {"constants": ct, "runs": rt}
-    if len(at):
-        paths["arrhenius.csv"] = write_csv(out / "arrhenius.csv", at)
-        sheets["arrhenius"] = at
-    paths["constants.xlsx"] = write_workbook(out / "constants.xlsx", {"constants": ct})
-    paths["transfer.xlsx"] = write_workbook(out / "transfer.xlsx", sheets)
-    paths["summary.json"] = write_text(
-        out / "summary.json", json.dumps(result.summary(), indent=2, default=str) + "\n")
-    if plots:
-        from gpctools.transfer import plots as _plots
-
-        paths.update(_plots.write_plots(result, out / "plots"))
-    return paths

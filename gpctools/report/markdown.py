@@ -1,9 +1,17 @@
-"""Markdown text for predictions and diagnoses (compact, every number with its unit)."""
+"""Markdown text for predictions and diagnoses (compact, every number with its unit).
+
+:func:`prediction_markdown` shows the parameters used, each formula with its numbers and
+the 1/DPn budget of a :class:`gpctools.kinetics.Prediction`; :func:`diagnosis_markdown`
+is the ``diagnosis.md`` report of a :class:`gpctools.kinetics.Diagnosis` (verdict,
+measured against expected, ranked causes, checks, the prediction and the safety notes).
+"""
 
 from __future__ import annotations
 
 import math
 from typing import TYPE_CHECKING, Any
+
+__all__ = ["prediction_markdown", "diagnosis_markdown"]
 
 if TYPE_CHECKING:  # pragma: no cover
     from gpctools.kinetics.diagnose import Diagnosis
@@ -36,7 +44,19 @@ def _table(header: list[str], rows: list[list[Any]]) -> list[str]:
 
 
 def prediction_markdown(pred: Prediction, level: int = 1) -> str:
-    """Parameters used, the formulas with their numbers, results and the 1/DPn budget."""
+    """Parameters used, the formulas with their numbers, results and the 1/DPn budget.
+
+    Parameters
+    ----------
+    pred : gpctools.kinetics.Prediction
+    level : int
+        Heading level of the title (sections are one level deeper).
+
+    Returns
+    -------
+    str
+        Markdown; rates in mol/L/s, concentrations in mol/L, molar masses in g/mol.
+    """
     p = pred.parameters
     h = "#" * level
     lines = [f"{h} Prediction: {p.label}", ""]
@@ -117,7 +137,17 @@ def prediction_markdown(pred: Prediction, level: int = 1) -> str:
 
 
 def diagnosis_markdown(d: Diagnosis) -> str:
-    """Verdict, measured vs expected, ranked causes, checks, prediction and safety."""
+    """Verdict, measured vs expected, ranked causes, checks, prediction and safety.
+
+    Parameters
+    ----------
+    d : gpctools.kinetics.Diagnosis
+
+    Returns
+    -------
+    str
+        Markdown (the content of ``diagnosis.md``).
+    """
     top = d.causes[0]
     lines = [f"# Why is the molar mass low? {d.label}", ""]
     verdict = {

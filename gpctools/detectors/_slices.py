@@ -1,0 +1,162 @@
+"""Slice bookkeeping shared by the light-scattering and viscometry analyses (private).
+
+The integration window, the "good signal" region, and the straight (or low-order) fit of
+log10 M against V that replaces noisy slice molar masses (DETECTORS.md §2.8).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from gpctools.distribution import averages, slice_widths
+from gpctools.errors import DataError
+
+from ._common import LineFit, finite_or_none, polyfit
+
+
+def window_mask(volume: np.ndarray, limits: tuple[float, float] | None) -> np.ndarray:
+    """Slices inside the integration limits (all slices when ``limits`` is None)."""
+    if limits is None:
+        return np.ones(volume.size, dtype=bool)
+    lo, hi = sorted(float(v) for v in limits)
+    mask = (volume >= lo) & (volume <= hi)
+    if mask.sum() < 10:
+        raise DataError(f"the integration limits [{lo:g}, {hi:g}] mL hold {int(mask.sum())} slices (need 10)")
+    return mask
+
+
+def good_signal_mask(conc: np.ndarray, other: np.ndarray, inside: np.ndarray, fraction: float) -> np.ndarray:
+    """Slices where both traces exceed ``fraction`` of their maxima, contiguous around
+    the other detector's peak (DETECTORS.md §2.8: e.g. LS above 10 % of its maximum)."""
+    if not 0.0 < fraction < 1.0:
+        raise DataError(f"the good-signal fraction must lie between 0 and 1, got {fraction}")
+    c = np.where(inside, conc, -np.inf)
+    o = np.where(inside, other, -np.inf)
+    if not (np.max(c) > 0 and np.max(o) > 0):
+        raise DataError("no positive signal inside the integration limits")
+    ok = (c >= fraction * np.max(c)) & (o >= fraction * np.max(o))
+    start = int(np.argmax(np.where(ok, o, -np.inf)))
+    mask = np.zeros(ok.size, dtype=bool)
+    if not ok[start]:
+        return mask
+    lo = hi = start
+    while lo - 1 >= 0 and ok[lo - 1]:
+        lo -= 1
+    while hi + 1 < ok.size and ok[hi + 1]:
+        hi += 1
+    mask[lo : hi + 1] = True
+    return mask
+
+
+@dataclass(frozen=True)
+class LogMFit:
+    """log10 M = Σ b_k (V − V_c)^k fitted over the good-signal slices.
+
+    Attributes
+    ----------
+    coef : tuple of float
+        b_0, b_1, ... in increasing power of (V − V_c) [-, 1/mL, ...].
+    stderr : tuple of float
+        Their standard errors (widened for serial correlation of the residuals).
+    center : float
+        V_c [mL].
+    volume_range : tuple of float
+        Fit range [mL].
+    M_range : tuple of float
+        Fitted M at the ends of the range [g/mol].
+    n_points : int
+        Slices fitted.
+    residual_sd : float
+        Scatter of log10 M_i about the fit [-].
+    """
+
+    coef: tuple[float, ...]
+    stderr: tuple[float, ...]
+    center: float
+    volume_range: tuple[float, float]
+    M_range: tuple[float, float]
+    n_points: int
+    residual_sd: float
+
+    @property
+    def order(self) -> int:
+        return len(self.coef) - 1
+
+    def log_M(self, volume: Any) -> np.ndarray:
+        """Fitted log10 M at ``volume`` [mL] (extrapolated outside the fit range)."""
+        return np.polynomial.polynomial.polyval(np.asarray(volume, dtype=float) - self.center,
+                                                np.asarray(self.coef))
+
+    def slope(self, volume: Any) -> np.ndarray:
+        """d log10 M/dV [1/mL]."""
+        d = np.polynomial.polynomial.polyder(np.asarray(self.coef))
+        return np.polynomial.polynomial.polyval(np.asarray(volume, dtype=float) - self.center, d)
+
+    def intercept_at_zero(self) -> float:
+        """log10 M at V = 0 for a straight line (the A of log M = A − B·V) [-]."""
+        return float(self.log_M(0.0))
+
+    def summary(self) -> dict[str, Any]:
+        out: dict[str, Any] = {
+            "order": self.order,
+            "center [mL]": self.center,
+            "coefficients [-, 1/mL, ...]": [finite_or_none(c) for c in self.coef],
+            "standard errors": [finite_or_none(s) for s in self.stderr],
+            "fit range [mL]": list(self.volume_range),
+            "M at the range ends [g/mol]": [finite_or_none(m) for m in self.M_range],
+            "slices fitted": self.n_points,
+            "residual sd log10 M [-]": finite_or_none(self.residual_sd),
+        }
+        if self.order == 1:
+            out["slope d log10 M/dV [1/mL]"] = finite_or_none(self.coef[1])
+            out["log10 M at V = 0 [-]"] = finite_or_none(self.intercept_at_zero())
+        return out
+
+
+def fit_log_M(volume: np.ndarray, M: np.ndarray, mask: np.ndarray, order: int, what: str) -> LogMFit:
+    """Least-squares log10 M(V) over ``mask`` slices with finite positive M."""
+    if order not in (1, 2, 3):
+        raise DataError(f"{what}: the log M(V) fit order must be 1, 2 or 3, got {order}")
+    ok = mask & np.isfinite(M) & (M > 0)
+    n = int(ok.sum())
+    if n < order + 3:
+        raise DataError(
+            f"{what}: only {n} slices have good signal on both detectors (need {order + 3}); lower the "
+            "good-signal fraction, check the offsets, or use Mw from the areas only"
+        )
+    V = volume[ok]
+    center = float(V.mean())
+    f: LineFit = polyfit(V - center, np.log10(M[ok]), order, what=what)
+    lo, hi = float(V.min()), float(V.max())
+    fit = LogMFit(coef=tuple(float(c) for c in f.coef),
+                  stderr=tuple(f.stderr(k) for k in range(order + 1)),
+                  center=center, volume_range=(lo, hi), M_range=(math.nan, math.nan),
+                  n_points=n, residual_sd=f.residual_sd)
+    ends = 10.0 ** fit.log_M(np.array([lo, hi]))
+    return LogMFit(coef=fit.coef, stderr=fit.stderr, center=center, volume_range=(lo, hi),
+                   M_range=(float(ends[0]), float(ends[1])), n_points=n, residual_sd=f.residual_sd)
+
+
+def slice_averages(M: np.ndarray, c: np.ndarray, widths: np.ndarray, mask: np.ndarray) -> dict[str, float]:
+    """Mn, Mw, Mz, Mz+1 [g/mol] and Đ of the slices in ``mask`` with finite positive M."""
+    ok = mask & np.isfinite(M) & (M > 0)
+    if ok.sum() < 3:
+        return {k: math.nan for k in ("Mn", "Mw", "Mz", "Mz1", "dispersity")}
+    return averages(M[ok], c[ok] * widths[ok])
+
+
+def widths(volume: np.ndarray) -> np.ndarray:
+    """Midpoint slice widths ΔV [mL] (the project's rule, gpctools.distribution)."""
+    return slice_widths(volume)
+
+
+def extrapolation_decades(fit: LogMFit, volume: np.ndarray, inside: np.ndarray) -> float:
+    """How far (in decades of M) the window reaches beyond the fitted range."""
+    lg = fit.log_M(volume[inside])
+    lo, hi = (math.log10(m) for m in fit.M_range)
+    top, bottom = max(lo, hi), min(lo, hi)
+    return float(max(np.max(lg) - top, bottom - np.min(lg), 0.0))
