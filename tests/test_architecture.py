@@ -51,6 +51,7 @@ LAYERS: tuple[tuple[str, ...], ...] = (
     ("gpctools.io", "gpctools.sheets"),
     ("gpctools.signal", "gpctools.calibration"),
     ("gpctools.method", "gpctools.distribution"),
+    ("gpctools.detectors",),  # multi-detector numerics: above distribution, below batch
     ("gpctools.batch",),
     ("gpctools.chainlength", "gpctools.refdata"),
     ("gpctools.transfer", "gpctools.kinetics"),

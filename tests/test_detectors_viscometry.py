@@ -40,7 +40,7 @@ from gpctools.errors import CalibrationWarning, DataError
 # Reference analytic sample of DETECTORS.md §0: A = 12, B = 0.3 1/mL, Gaussian c at 22 mL, σ 0.8 mL
 A, B, V0, SIG = 12.0, 0.3, 22.0, 0.8
 MN_REF, MW_REF = 215_618.0, 292_627.0  # DETECTORS.md §0, DERIVED (closed forms of a log-normal)
-K_PS, A_PS = 1.14e-4, 0.716  # PS in THF, dL/g (= 1.14e-2 mL/g), DETECTORS.md §3.2 (from SCIENCE.md)
+K_PS, A_PS = 1.14e-4, 0.716  # PS in THF, dL/g (= 1.14e-2 mL/g), DETECTORS.md §3.2 (from docs/science.md)
 
 
 # -- detector designs ----------------------------------------------------------------------
@@ -105,7 +105,7 @@ def test_universal_calibration_check_values():
     # DETECTORS.md §3.3, DERIVED: PS-equivalent 1e5 → J = 4.3342e6 mL/mol = 4.3342e4 dL/mol
     J = hydrodynamic_volume(5.0, K_PS, A_PS)
     assert J == pytest.approx(4.3342e4, rel=1e-4)  # printed to 5 figures
-    # → PMMA (9.44e-5 dL/g, 0.719): M = 109 380, [η] = 39.63 mL/g (also in SCIENCE.md)
+    # → PMMA (9.44e-5 dL/g, 0.719): M = 109 380, [η] = 39.63 mL/g (also in docs/science.md)
     K_x, a_x = 9.44e-5, 0.719
     M_x = (J / K_x) ** (1 / (1 + a_x))
     assert M_x == pytest.approx(109_380, rel=1e-4)
