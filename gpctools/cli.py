@@ -314,10 +314,11 @@ def transfer_cmd(
 ) -> None:
     """Chain-transfer constants from a run series (Mayo, Mw/2, CLD; drift; impurity flags; ln C vs 1/T)."""
     from .report import write_transfer
-    from .transfer import analyse_series
+    from .transfer import TransferOptions, analyse_series
 
     _check_out(out)
-    drift_opt = {"auto": "auto", "yes": True, "no": False}.get(drift.strip().lower())
+    drift_choices: dict[str, str | bool] = {"auto": "auto", "yes": True, "no": False}
+    drift_opt = drift_choices.get(drift.strip().lower())
     if drift_opt is None:
         from .errors import DataError
 
@@ -333,16 +334,17 @@ def transfer_cmd(
         vals = val if isinstance(val, tuple) else (val,)
         if any(v is not None and not (v >= 0 and v != float("inf")) for v in vals):
             raise DataError(f"{', '.join(map(str, vals))} must be finite and not negative [-]", key=name)
-    result = analyse_series(
-        sheet, method=method, sheet=sheet_name,
-        terms=[t.strip() for t in terms.split(",") if t.strip()] if terms else None,
-        estimators=[e.strip() for e in estimators.split(",") if e.strip()],
-        drift=drift_opt, cld_window=window, cld_fraction=cld_fraction, confidence=confidence,
+    options = TransferOptions(
+        terms=tuple(t.strip() for t in terms.split(",") if t.strip()) if terms else None,
+        estimators=tuple(e.strip() for e in estimators.split(",") if e.strip()),
+        drift=drift_opt, cld_window=(window[0], window[1]) if window else None,
+        cld_fraction=cld_fraction, confidence=confidence,
         impurity_confidence=impurity_confidence, impurity_adjust="run" if per_run else "series",
         impurity_C=impurity_C, rel_error=rel_error,
         expected_intercept=(expected if expected is None or len(expected) == 2 else expected[0]),
         C_M=C_M, kinetic_term=kinetic_term,
     )
+    result = analyse_series(sheet, method, options, sheet=sheet_name)
     paths = write_transfer(result, out, plots=not no_plots)
     _print_table(result.constants_table().to_dict("records"), TRANSFER_COLUMNS)
     for g in result.groups:
