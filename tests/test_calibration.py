@@ -3,7 +3,7 @@ tangent extrapolation, flow-marker factor and universal (Mark-Houwink) calibrati
 
 References for check values: numpy's own least-squares polynomial fit (a reference
 library), exact consequences of the formulas [derived], and the universal-calibration
-values of SCIENCE.md section 2 [derived from the IUPAC pairs; pairs from memory].
+values of docs/science.md, section 2 [derived from the IUPAC pairs; pairs from memory].
 """
 
 from __future__ import annotations
@@ -28,7 +28,7 @@ from gpctools.errors import CalibrationError, CalibrationWarning, GpcError
 from gpctools.simulate import DEFAULT_STANDARDS, default_calibration
 
 # Mark-Houwink pairs in THF, K in dL/g [from memory: pairs used in the IUPAC
-# propagation-rate benchmark papers, SCIENCE.md section 2].
+# propagation-rate benchmark papers, docs/science.md, section 2].
 PS = (1.14e-4, 0.716)
 PMMA = (9.44e-5, 0.719)
 
@@ -61,7 +61,7 @@ def test_fit_matches_numpy_polyfit(order: int) -> None:
     # Same least-squares problem, other parametrisation: 1e-9 in log M (conditioning).
     assert cal.log_M(grid) == pytest.approx(np.polyval(ref, grid), abs=1e-9)
     assert cal.dlogM_dV(grid) == pytest.approx(np.polyval(np.polyder(ref), grid), abs=1e-8)
-    # residuals in percent: 100·(M_fit/M_nominal - 1) [SCIENCE.md section 2]
+    # residuals in percent: 100·(M_fit/M_nominal - 1) [docs/science.md, section 2]
     expected = 100.0 * (10.0 ** (fitted - y) - 1.0)
     assert cal.residuals_pct == pytest.approx(expected, abs=1e-7)  # %, from 1e-9 in log M
     tss = ((y - y.mean()) ** 2).sum()
@@ -176,7 +176,7 @@ def test_select_order_by_aicc(seed: int) -> None:
     noise = rng.normal(0.0, 0.01, V.size)  # 0.01 in log M ≈ 2.3 % in M: realistic scatter
     linear = 10.0 - 0.4 * V + noise
     cubic = 5.0 - 1.8 * t + 0.25 * t**2 - 0.35 * t**3 + noise
-    # AICc (common practice for order choice, SCIENCE.md section 2): the cubic terms are
+    # AICc (common practice for order choice, docs/science.md, section 2): the cubic terms are
     # 25-35× the noise, so they are found; for a straight line the penalty for each extra
     # term (about 6 units at n = 10) outweighs the fit gain.
     assert select_order(V, 10.0**linear) == 1
@@ -251,17 +251,17 @@ def test_scale_label_semantics() -> None:
     assert same.is_absolute and "same-polymer standards" in same.scale_label()
     other = fit_calibration(V, Mp, order=3, sample_polymer="PMMA")
     assert not other.is_absolute and "relative" in other.scale_label()
-    conv = other.converted(*PS, *PMMA, sample_polymer="PMMA", source="SCIENCE.md section 2")
+    conv = other.converted(*PS, *PMMA, sample_polymer="PMMA", source="docs/science.md, section 2")
     assert conv.is_absolute and conv.scale_label() == "absolute PMMA (universal calibration)"
     assert conv.mark_houwink["K_sample [dL/g]"] == PMMA[0]
-    assert conv.mark_houwink["source"] == "SCIENCE.md section 2"
+    assert conv.mark_houwink["source"] == "docs/science.md, section 2"
     json.dumps(conv.summary())
 
 
 # ============================================================================ universal calibration
 
 UC_CASES = [
-    # PS-equivalent M -> PMMA M [derived from the IUPAC pairs, SCIENCE.md section 2;
+    # PS-equivalent M -> PMMA M [derived from the IUPAC pairs, docs/science.md, section 2;
     # the pairs themselves are from memory]
     (1e4, 10_982.0),
     (1e5, 109_380.0),
@@ -333,7 +333,7 @@ def test_converted_rejects_bad_mark_houwink(args) -> None:
 
 
 def test_flow_marker_factor() -> None:
-    # definition: V_corr = V_obs·reference/observed (SCIENCE.md section 2); exact arithmetic
+    # definition: V_corr = V_obs·reference/observed (docs/science.md, section 2); exact arithmetic
     assert flow_marker_factor(25.0, 25.05) == pytest.approx(25.0 / 25.05, rel=1e-15)
     assert flow_marker_factor(25.0, 25.0) == 1.0
     for bad in [

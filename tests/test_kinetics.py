@@ -57,7 +57,7 @@ def no_transfer(conc_M=6.0, conc_I=0.02):
 
 
 def test_dpn_and_rate_scaling_at_steady_state():
-    # derived (SCIENCE §3): R_p = k_p[M](f k_d [I]/k_t)^½, DPn = 2ν/(1+δ) with
+    # derived (docs/science.md, section 3): R_p = k_p[M](f k_d [I]/k_t)^½, DPn = 2ν/(1+δ) with
     # ν = k_p[M]/(2 (f k_d k_t [I])^½): DPn ∝ [M]/[I]^½ and R_p ∝ [M][I]^½.
     # rtol 1e-12: exact algebra, only rounding.
     a = predict(no_transfer())
@@ -72,7 +72,7 @@ def test_dpn_and_rate_scaling_at_steady_state():
 
 
 def test_rate_independent_of_transfer_agent():
-    # derived (SCIENCE §3): transfer with fast re-initiation leaves [R•] and R_p unchanged;
+    # derived (docs/science.md, section 3): transfer with fast re-initiation leaves [R•] and R_p unchanged;
     # the Mayo sum gains exactly C_A[A]/[M]. rtol 1e-12: exact algebra.
     plain = predict(recipe())
     with_agent = predict(recipe(agent=[{"name": "NDM", "concentration [mol/L]": 1e-3}]))
@@ -119,7 +119,7 @@ def test_report_prints_every_parameter_used():
 
 
 def test_thiol_check_value_from_science_notes():
-    # derived (SCIENCE §9): 10 ppm (mol) of a thiol with C = 15 adds 1.5e-4 to 1/DPn;
+    # derived (docs/science.md, section 9): 10 ppm (mol) of a thiol with C = 15 adds 1.5e-4 to 1/DPn;
     # DPn 2000 -> 1/(1/2000 + 1.5e-4) = 1538.5 ("about 1540"). rtol 1e-10: exact algebra.
     base = predict(recipe())
     conc = 10e-6 * 6.0
@@ -144,7 +144,7 @@ def test_kt_convention_from_user_table(tmp_path):
     user.write_text("monomer,k_t [L/mol/s],convention,delta [-],source\nstyrene,2e8,kt,0.1,test\n")
     r = recipe(data_files={"termination": str(user)})
     # a handbook-convention k_t (k_t[R]^2) is twice the IUPAC one (2k_t[R]^2) [derived,
-    # SCIENCE.md §3]: 2e8 -> 1e8; default rel tolerance, the conversion is exact.
+    # docs/science.md, section 3]: 2e8 -> 1e8; default rel tolerance, the conversion is exact.
     assert predict(r).parameters.k_t == pytest.approx(1e8)
     assert predict(r).R_p == pytest.approx(predict(recipe()).R_p, rel=1e-12)
 
@@ -170,7 +170,7 @@ def test_regression_user_monomer_C_M_without_temperature(tmp_path):
 
 def test_dispersity_limits_and_mixed_case():
     # published: Schulz-Zimm b = 1 (most probable) D = 2, b = 2 (combination) D = 1.5
-    # (IUPAC Gold Book; SCIENCE §8). Exact.
+    # (IUPAC Gold Book; docs/science.md, section 8). Exact.
     assert dispersity_instantaneous(0.0) == 2.0
     assert dispersity_instantaneous(1.0) == 1.5
     # derived: numerical check of D = (2tau+3beta)(tau+beta/2)/(tau+beta)^2 = 2 - u^2/2
@@ -194,7 +194,7 @@ def test_mixed_dispersity_follows_delta():
 
 
 def test_temperature_overshoot_fingerprint():
-    # from memory (Odian, SCIENCE §9): a 10 °C overshoot roughly doubles R_p and cuts DPn by
+    # from memory (Odian, docs/science.md, section 9): a 10 °C overshoot roughly doubles R_p and cuts DPn by
     # about 30 % for thermal initiators. Bounds are wide because the statement is rough.
     p = resolve_parameters(recipe())
     s0, s1 = evaluate(p), evaluate(p, dT=10.0)
@@ -386,7 +386,7 @@ def test_impurity_with_user_constant_and_ppm_mass():
     r, p, _ = normal_recipe(candidate=[{"name": "thiol X", "C [-]": 15.0, "M [g/mol]": 200.0}])
     d = diagnose(r, meas_from(p, extra_transfer=1.5e-4))
     est = next(i for i in d.impurities if i.name == "thiol X")
-    assert est.ppm_mol == pytest.approx(10.0, rel=1e-6)  # SCIENCE §9 check value, exact
+    assert est.ppm_mol == pytest.approx(10.0, rel=1e-6)  # docs/science.md, section 9 check value, exact
     assert est.ppm_mass == pytest.approx(10.0 * 200.0 / 104.15, rel=1e-6)
 
 
@@ -436,7 +436,7 @@ def test_integration_limit_artefact_is_told_apart():
 
 
 def test_flow_rate_error_is_told_apart_from_impurity():
-    # derived (SCIENCE §2): an uncorrected relative flow error eps moves every average by
+    # derived (docs/science.md, section 2): an uncorrected relative flow error eps moves every average by
     # 10^(-B V eps); Đ unchanged, R_p unchanged; the check standard moves too.
     eps, B, V = 0.006, 0.4, 25.0
     factor = 10 ** (-B * V * eps)
@@ -473,7 +473,7 @@ def test_ps_equivalent_values_converted_for_pmma():
         "measured": {"Mn [g/mol]": 1e5, "scale": "relative to polystyrene"},
     })
     d = diagnose(r)
-    # derived (SCIENCE §2, IUPAC pairs): PS-equivalent 1e5 -> PMMA 109 380. rtol: 5 digits.
+    # derived (docs/science.md, section 2, IUPAC pairs): PS-equivalent 1e5 -> PMMA 109 380. rtol: 5 digits.
     assert d.measured["Mn [g/mol]"] == pytest.approx(109380.0, rel=1e-4)
     assert next(c for c in d.checks if c.check == "molar-mass scale").status == "flag"
 
@@ -535,7 +535,7 @@ def test_measured_from_results_table(tmp_path):
 
 def test_regression_unrecognised_scale_is_not_taken_as_absolute(tmp_path):
     # An unknown scale text was once read as absolute; a PS-equivalent Mn taken as absolute
-    # is a classic mis-diagnosis (SCIENCE.md section 9), so it is refused.
+    # is a classic mis-diagnosis (docs/science.md, section 9), so it is refused.
     table = tmp_path / "results.csv"
     table.write_text("sample_id,status,Mn [g/mol],Mw [g/mol],molar-mass scale\n"
                      "A,ok,40000,80000,PS cal\n", encoding="utf-8")

@@ -39,7 +39,7 @@ How the diagnosis works
 
 The unexplained transfer is also expressed as the equivalent concentration of candidate
 impurities: [X] = Δ(1/DPn)·[M]/C_X, or Δ(1/DPn)/C_X·10⁶ ppm (mol of X per mol monomer);
-e.g. 10 ppm of a thiol with C = 15 adds 1.5e-4 to 1/DPn (SCIENCE.md §9).
+e.g. 10 ppm of a thiol with C = 15 adds 1.5e-4 to 1/DPn (docs/science.md, section 9).
 
 Where the parts live: the measurement checks (step 2) are registered in
 :mod:`gpctools.kinetics.checks`, the causes (step 3) in
@@ -48,11 +48,11 @@ Where the parts live: the measurement checks (step 2) are registered in
 
 References
 ----------
-- Mayo, J. Am. Chem. Soc. 1943; IUPAC steady-state kinetics (SCIENCE.md §3).
-- Fingerprints of low molar mass: SCIENCE.md §9 (transfer keeps R_p, more initiator or
+- Mayo, J. Am. Chem. Soc. 1943; IUPAC steady-state kinetics (docs/science.md, section 3).
+- Fingerprints of low molar mass: docs/science.md, section 9 (transfer keeps R_p, more initiator or
   heat raises R_p with R_p·DPn about constant, retarders lower both, measurement
   artefacts shift all averages or only Mn).
-- Flow-error sensitivity Δ logM = B·V·ε: SCIENCE.md §2 [derived].
+- Flow-error sensitivity Δ logM = B·V·ε: docs/science.md, section 2 [derived].
 - Akaike, IEEE Trans. Autom. Control 1974; Burnham and Anderson, Model Selection and
   Multimodel Inference, 2002 (Akaike weights) [from memory].
 """
@@ -117,7 +117,7 @@ __all__ = [
 # Default relative standard uncertainties [%], each with its basis (the checks' σ and
 # priors are in gpctools.kinetics.checks).
 DEFAULT_UNCERTAINTY = {
-    # published: SEC round robins, repeatability under 3 % (SCIENCE.md §7); Mn is more
+    # published: SEC round robins, repeatability under 3 % (docs/science.md, section 7); Mn is more
     # sensitive to baseline and limits, hence 4 %.
     "Mn": 4.0,
     "Mw": 3.0,
@@ -273,7 +273,7 @@ def rate_from_conversion(
 
     References
     ----------
-    SCIENCE.md §3 (R_p = k_p[M][R•]).
+    docs/science.md, section 3 (R_p = k_p[M][R•]).
     """
     t = np.asarray(time_min, dtype=float) * 60.0
     x = np.asarray(conversion, dtype=float)
@@ -472,7 +472,7 @@ def _ps_to_absolute(
     """Convert a standard-equivalent average to the sample polymer (Mark-Houwink).
 
     log M_x = [log(K_s/K_x) + (1 + a_s)·log M_s]/(1 + a_x) (Benoit, Grubisic and Rempp,
-    1967; SCIENCE.md §2), applied to the average itself: exact per slice, approximate
+    1967; docs/science.md, section 2), applied to the average itself: exact per slice, approximate
     for an average (the map is a power law with exponent close to 1).
     Returns (converted value, factor) or (M, None) if no pair is known.
     """
