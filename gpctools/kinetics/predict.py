@@ -46,7 +46,7 @@ import pandas as pd
 from gpctools.chainlength import dispersity_instantaneous, mayo_inv_dpn, mixed_termination
 from gpctools.errors import DataError, GpcWarning, MethodError
 from gpctools.kinetics.recipe import Component, Recipe
-from gpctools.refdata import R_GAS, ReferenceData, convert_kt
+from gpctools.refdata import R_GAS, ReferenceData, ReferenceWarning, convert_kt
 
 __all__ = [
     "KineticsWarning",
@@ -105,7 +105,8 @@ class KineticParameters:
     """Every number the prediction uses, with its source (all at the recipe temperature).
 
     Units: T [K], concentrations [mol/L], k_p and k_t [L/mol/s], k_d [1/s], energies
-    [kJ/mol], M0 [g/mol]; k_t is in the IUPAC convention.
+    [kJ/mol], M0 [g/mol]; k_t is in the IUPAC convention. ``E_t`` is the activation
+    energy of k_t (None: k_t held constant when the temperature is varied).
     """
 
     label: str
@@ -129,6 +130,7 @@ class KineticParameters:
     notes: tuple[str, ...] = ()
     warnings: tuple[str, ...] = ()
     initiator_caution: str = ""
+    E_t: float | None = None
 
     @property
     def T_C(self) -> float:
@@ -180,6 +182,7 @@ class KineticParameters:
             "f [-]": self.f,
             "C_I [-]": self.C_I,
             "k_t (IUPAC) [L/mol/s]": self.k_t,
+            "E_t [kJ/mol]": self.E_t,
             "delta [-]": self.delta,
             "C_M [-]": self.C_M,
             "transfer": [
@@ -232,6 +235,21 @@ def _component_term(
     )
 
 
+def _table_value(ref_warns: list[str], method: Any, *args: float) -> float:
+    """Call a reference-record method; collect its ReferenceWarnings (validity range,
+    backbiting) into ``ref_warns`` instead of letting them through."""
+    with _warnings.catch_warnings(record=True) as caught:
+        _warnings.simplefilter("always")
+        value = float(method(*args))
+    for w in caught:
+        if issubclass(w.category, ReferenceWarning):
+            if str(w.message) not in ref_warns:
+                ref_warns.append(str(w.message))
+        else:
+            _warnings.warn(w.message, w.category, stacklevel=3)
+    return value
+
+
 def resolve_parameters(recipe: Recipe, ref: ReferenceData | None = None) -> KineticParameters:
     """Collect every kinetic parameter for a recipe: recipe overrides, else the tables.
 
@@ -246,7 +264,10 @@ def resolve_parameters(recipe: Recipe, ref: ReferenceData | None = None) -> Kine
     KineticParameters
         All values at the recipe temperature, k_t converted to the IUPAC convention,
         with the source of each value and notes on assumptions. Missing δ (0.5 assumed)
-        or C_M (0 assumed) issue a :class:`KineticsWarning`, also listed in ``warnings``.
+        or C_M (0 assumed) issue a :class:`KineticsWarning`, a table value used outside
+        its validity range a :class:`gpctools.refdata.ReferenceWarning`; both are also
+        listed in ``warnings``. k_t follows its tabulated activation energy; acrylates
+        use the effective k_p with backbiting (docs/science.md, section 7).
     """
     ref = ref if ref is not None else recipe.reference_data()
     T = recipe.T
@@ -254,6 +275,7 @@ def resolve_parameters(recipe: Recipe, ref: ReferenceData | None = None) -> Kine
     sources: dict[str, str] = {}
     notes: list[str] = []
     warns: list[str] = []
+    ref_warns: list[str] = []
 
     try:
         mon = ref.monomer(ms.name)
@@ -281,8 +303,7 @@ def resolve_parameters(recipe: Recipe, ref: ReferenceData | None = None) -> Kine
                 f"no k_p for {name!r} in the tables; give 'k_p [L/mol/s]' in [monomer]",
                 key='monomer."k_p [L/mol/s]"', path=recipe.path,
             )
-        k_p, E_p = mon.k_p(T), mon.kp_E
-        sources["k_p"] = f"{mon.kp_source}; k_p = {mon.kp_A:.5g}·exp(−{mon.kp_E:g} kJ/mol/RT)"
+        k_p, E_p = math.nan, mon.kp_E  # set below, once [M] is known
 
     if ms.bulk:
         density = ms.density if ms.density is not None else (mon.density if mon else None)
@@ -301,6 +322,21 @@ def resolve_parameters(recipe: Recipe, ref: ReferenceData | None = None) -> Kine
     else:
         conc_M = float(ms.concentration)
         sources["[M]"] = "recipe"
+
+    if "k_p" not in sources:  # from the tables; acrylates: effective k_p with backbiting
+        k_p = _table_value(ref_warns, mon.k_p_effective, T, conc_M)
+        E_p = mon.k_p_effective_E(T, conc_M)
+        sources["k_p"] = f"{mon.kp_source}; k_p = {mon.kp_A:.5g}·exp(−{mon.kp_E:g} kJ/mol/RT)"
+        if mon.has_backbiting:
+            k_end = mon.kp_A * math.exp(-mon.kp_E * 1e3 / (R_GAS * T))
+            x = _table_value(ref_warns, mon.mcr_fraction, T, conc_M)
+            sources["k_p"] += (f" (chain ends); effective k_p with backbiting: "
+                               f"{mon.backbiting_source}")
+            notes.append(
+                f"{name}: {mon.backbiting_caution}. Effective k_p {k_p:.4g} L/mol/s = "
+                f"{k_p / k_end:.2f} × the chain-end value {k_end:.4g} at [M] = {conc_M:g} "
+                f"mol/L (mid-chain radical fraction {x:.2f}); it changes with [M]"
+            )
 
     if ms.C_M is not None:
         C_M = ms.C_M
@@ -347,13 +383,13 @@ def resolve_parameters(recipe: Recipe, ref: ReferenceData | None = None) -> Kine
             T_ref = ini.T_ref + 273.15
             k_d = ini.k_d_ref * math.exp(-E_d * 1e3 / R_GAS * (1 / T - 1 / T_ref))
         else:
-            k_d = ini.k_d(T)
+            k_d = _table_value(ref_warns, ini.k_d, T)
         sources["k_d"] = (
-            f"{ini.source}; k_d = {ini.k_d_ref:g}·exp(−{E_d:g} kJ/mol/R·(1/T − 1/"
+            f"{ini.kd_source}; k_d = {ini.k_d_ref:g}·exp(−{E_d:g} kJ/mol/R·(1/T − 1/"
             f"{ini.T_ref + 273.15:g} K))"
         )
     f = ins.f if ins.f is not None else ini.f
-    sources["f"] = "recipe" if ins.f is not None else ini.source
+    sources["f"] = "recipe" if ins.f is not None else ini.f_source
     C_I = ins.C_I if ins.C_I is not None else 0.0
     sources["C_I"] = "recipe" if ins.C_I is not None else "assumed 0 (not tabulated)"
     if ins.C_I is None:
@@ -371,15 +407,15 @@ def resolve_parameters(recipe: Recipe, ref: ReferenceData | None = None) -> Kine
             f" ({ts.k_t:g} in the 'kt' convention, halved)" if ts.convention == "kt" else ""
         )
     elif k_t_row is not None:
-        k_t = k_t_row.k_t_iupac
+        k_t = _table_value(ref_warns, k_t_row.k_t, T)
         sources["k_t"] = k_t_row.source + (
-            f" ({k_t_row.k_t:g} in the 'kt' convention, halved)"
+            f" ({k_t_row.k_t_ref:g} in the 'kt' convention, halved)"
             if k_t_row.convention == "kt" else ""
-        )
-        if k_t_row.T is not None and abs(k_t_row.T + 273.15 - T) > 5.0:
-            notes.append(
-                f"k_t is tabulated at {k_t_row.T:g} °C and used unchanged at {T - 273.15:g} °C"
-            )
+        ) + (f"; k_t = {k_t_row.k_t_iupac:g}·exp(−{k_t_row.E:g} kJ/mol/R·(1/T − 1/"
+             f"{k_t_row.T + 273.15:g} K))" if (k_t_row.E is not None and k_t_row.T is not None)
+             else "")
+        if k_t_row.temperature_note(T):
+            notes.append(str(k_t_row.temperature_note(T)))
     else:
         raise MethodError(
             f"no termination row for {name!r}; give 'k_t [L/mol/s]' in [termination]",
@@ -390,7 +426,7 @@ def resolve_parameters(recipe: Recipe, ref: ReferenceData | None = None) -> Kine
         sources["delta"] = "recipe"
     elif k_t_row is not None and k_t_row.delta is not None:
         delta = k_t_row.delta
-        sources["delta"] = k_t_row.source
+        sources["delta"] = k_t_row.delta_source or k_t_row.source
     else:
         delta = 0.5
         sources["delta"] = "assumed 0.5 (not tabulated)"
@@ -409,6 +445,8 @@ def resolve_parameters(recipe: Recipe, ref: ReferenceData | None = None) -> Kine
 
     for w in warns:
         _warnings.warn(w, KineticsWarning, stacklevel=2)
+    for w in ref_warns:
+        _warnings.warn(w, ReferenceWarning, stacklevel=2)
 
     return KineticParameters(
         label=recipe.label,
@@ -430,8 +468,9 @@ def resolve_parameters(recipe: Recipe, ref: ReferenceData | None = None) -> Kine
         transfer=tuple(terms),
         sources=tuple(sources.items()),
         notes=tuple(notes),
-        warnings=tuple(warns),
+        warnings=tuple(warns + ref_warns),
         initiator_caution=ini.caution if ini else "",
+        E_t=k_t_row.E if k_t_row is not None else None,
     )
 
 
@@ -478,7 +517,7 @@ def evaluate(
         Factor on f·k_d·[I] (more or less initiator, or efficiency) [-].
     dT : float
         Temperature change [K]; k_p and k_d follow their Arrhenius energies, C values
-        with a tabulated ΔE follow C ∝ exp(−ΔE/RT); k_t is held constant.
+        with a tabulated ΔE follow C ∝ exp(−ΔE/RT); k_t follows ``E_t`` when known.
     extra_transfer : float
         Added 1/DPn from unexplained transfer [-] (Σ C_x[x]/[M] of an impurity).
     retarder : float
@@ -509,7 +548,7 @@ def evaluate(
     conc_M = p.conc_M * monomer_factor
     conc_I = p.conc_I * radical_flux_factor
     R_i = 2.0 * p.f * k_d * conc_I
-    k_t = p.k_t
+    k_t = arrh(p.k_t, p.E_t)
     if retarder > 0.0:
         radicals = (-retarder + math.sqrt(retarder**2 + 8.0 * k_t * R_i)) / (4.0 * k_t)
     else:
