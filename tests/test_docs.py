@@ -21,7 +21,6 @@ NOT_YET_SWEPT: frozenset[str] = frozenset({
     "gpctools/calibration.py",
     "gpctools/distribution.py",
     "gpctools/kinetics/predict.py",
-    "gpctools/refdata.py",
     "gpctools/signal.py",
     "gpctools/transfer/analysis.py",
     "gpctools/transfer/arrhenius.py",
@@ -31,7 +30,6 @@ NOT_YET_SWEPT: frozenset[str] = frozenset({
     "gpctools/transfer/mayo.py",
     "tests/test_batch.py",
     "tests/test_method.py",
-    "tests/test_refdata.py",
     "tests/test_transfer.py",
     "tests/test_transfer_e2e.py",
 })

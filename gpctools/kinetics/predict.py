@@ -57,6 +57,7 @@ from gpctools.refdata import (
     Initiator,
     Monomer,
     ReferenceData,
+    ReferenceWarning,
     Termination,
     convert_kt,
 )
@@ -118,7 +119,8 @@ class KineticParameters:
     """Every number the prediction uses, with its source (all at the recipe temperature).
 
     Units: T [K], concentrations [mol/L], k_p and k_t [L/mol/s], k_d [1/s], energies
-    [kJ/mol], M0 [g/mol]; k_t is in the IUPAC convention.
+    [kJ/mol], M0 [g/mol]; k_t is in the IUPAC convention. ``E_t`` is the activation
+    energy of k_t (None: k_t held constant when the temperature is varied).
     """
 
     label: str
@@ -142,6 +144,7 @@ class KineticParameters:
     notes: tuple[str, ...] = ()
     warnings: tuple[str, ...] = ()
     initiator_caution: str = ""
+    E_t: float | None = None
 
     @property
     def T_C(self) -> float:
@@ -193,6 +196,7 @@ class KineticParameters:
             "f [-]": self.f,
             "C_I [-]": self.C_I,
             "k_t (IUPAC) [L/mol/s]": self.k_t,
+            "E_t [kJ/mol]": self.E_t,
             "delta [-]": self.delta,
             "C_M [-]": self.C_M,
             "transfer": [
@@ -253,6 +257,21 @@ class _Provenance:
     sources: dict[str, str] = field(default_factory=dict)
     notes: list[str] = field(default_factory=list)
     warnings: list[str] = field(default_factory=list)
+    reference_warnings: list[str] = field(default_factory=list)
+
+    def table_value(self, method: Any, *args: float) -> float:
+        """Call a reference-record method, collecting its ReferenceWarnings (validity
+        range, backbiting) in ``reference_warnings`` instead of letting them through."""
+        with _warnings.catch_warnings(record=True) as caught:
+            _warnings.simplefilter("always")
+            value = float(method(*args))
+        for w in caught:
+            if issubclass(w.category, ReferenceWarning):
+                if str(w.message) not in self.reference_warnings:
+                    self.reference_warnings.append(str(w.message))
+            else:
+                _warnings.warn(w.message, w.category, stacklevel=3)
+        return value
 
 
 def _monomer_row(ms: MonomerSpec, ref: ReferenceData, prov: _Provenance) -> Monomer | None:
@@ -279,9 +298,13 @@ def _repeat_unit_mass(ms: MonomerSpec, mon: Monomer | None, prov: _Provenance) -
 
 
 def _propagation(
-    ms: MonomerSpec, mon: Monomer | None, name: str, T: float, prov: _Provenance
+    ms: MonomerSpec, mon: Monomer | None, name: str, T: float, conc_M: float, prov: _Provenance
 ) -> tuple[float, float | None]:
-    """k_p [L/mol/s] at T and E_p [kJ/mol]: recipe value, recipe Arrhenius pair, or table."""
+    """k_p [L/mol/s] at T and E_p [kJ/mol]: recipe value, recipe Arrhenius pair, or table.
+
+    From the table, acrylates get the effective k_p with backbiting at the recipe's [M]
+    [mol/L] (docs/science.md, section 7), with a note giving the chain-end value.
+    """
     if ms.k_p is not None:
         prov.sources["k_p"] = "recipe"
         return ms.k_p, ms.k_p_E
@@ -293,9 +316,19 @@ def _propagation(
             f"no k_p for {name!r} in the tables; give 'k_p [L/mol/s]' in [monomer]",
             key='monomer."k_p [L/mol/s]"', path=prov.path,
         )
-    k_p = mon.k_p(T)  # refuses a row without E
+    k_p = prov.table_value(mon.k_p_effective, T, conc_M)  # refuses a row without E
+    E_p = mon.k_p_effective_E(T, conc_M)
     prov.sources["k_p"] = f"{mon.kp_source}; k_p = {mon.kp_A:.5g}·exp(−{mon.kp_E:g} kJ/mol/RT)"
-    return k_p, mon.kp_E
+    if mon.has_backbiting:
+        k_end = mon.kp_A * math.exp(-mon.kp_E * 1e3 / (R_GAS * T))
+        x = prov.table_value(mon.mcr_fraction, T, conc_M)
+        prov.sources["k_p"] += f" (chain ends); effective k_p with backbiting: {mon.backbiting_source}"
+        prov.notes.append(
+            f"{name}: {mon.backbiting_caution}. Effective k_p {k_p:.4g} L/mol/s = "
+            f"{k_p / k_end:.2f} × the chain-end value {k_end:.4g} at [M] = {conc_M:g} "
+            f"mol/L (mid-chain radical fraction {x:.2f}); it changes with [M]"
+        )
+    return k_p, E_p
 
 
 def _monomer_concentration(
@@ -379,9 +412,9 @@ def _decomposition(
         T_ref = ini.T_ref + 273.15
         k_d = ini.k_d_ref * math.exp(-E_d * 1e3 / R_GAS * (1 / T - 1 / T_ref))
     else:
-        k_d = ini.k_d(T)
+        k_d = prov.table_value(ini.k_d, T)
     prov.sources["k_d"] = (
-        f"{ini.source}; k_d = {ini.k_d_ref:g}·exp(−{E_d:g} kJ/mol/R·(1/T − 1/"
+        f"{ini.kd_source}; k_d = {ini.k_d_ref:g}·exp(−{E_d:g} kJ/mol/R·(1/T − 1/"
         f"{ini.T_ref + 273.15:g} K))"
     )
     return k_d, E_d
@@ -395,7 +428,7 @@ def _efficiency_and_C_I(
         f, prov.sources["f"] = ins.f, "recipe"
     else:
         assert ini is not None  # _initiator_row refuses an unknown initiator without f
-        f, prov.sources["f"] = ini.f, ini.source
+        f, prov.sources["f"] = ini.f, ini.f_source
     C_I = ins.C_I if ins.C_I is not None else 0.0
     prov.sources["C_I"] = "recipe" if ins.C_I is not None else "assumed 0 (not tabulated)"
     if ins.C_I is None:
@@ -405,8 +438,13 @@ def _efficiency_and_C_I(
 
 def _termination(
     ts: TerminationSpec, ref: ReferenceData, name: str, T: float, prov: _Provenance
-) -> tuple[float, float]:
-    """k_t in the IUPAC convention [L/mol/s] and δ [-]: recipe, else table, δ else 0.5 (warned)."""
+) -> tuple[float, float, float | None]:
+    """k_t in the IUPAC convention [L/mol/s], δ [-] and E_t [kJ/mol].
+
+    k_t from the recipe, else the table's k_t at T (Arrhenius with the tabulated E_t);
+    δ from the recipe, else the table, else 0.5 (warned); E_t from the table (None when
+    not tabulated: k_t is then held constant when the temperature is varied).
+    """
     try:
         row: Termination | None = ref.termination(name)
     except MethodError:
@@ -417,31 +455,32 @@ def _termination(
             f" ({ts.k_t:g} in the 'kt' convention, halved)" if ts.convention == "kt" else ""
         )
     elif row is not None:
-        k_t = row.k_t_iupac
+        k_t = prov.table_value(row.k_t, T)
         prov.sources["k_t"] = row.source + (
-            f" ({row.k_t:g} in the 'kt' convention, halved)" if row.convention == "kt" else ""
-        )
-        if row.T is not None and abs(row.T + 273.15 - T) > 5.0:
-            prov.notes.append(
-                f"k_t is tabulated at {row.T:g} °C and used unchanged at {T - 273.15:g} °C"
-            )
+            f" ({row.k_t_ref:g} in the 'kt' convention, halved)" if row.convention == "kt" else ""
+        ) + (f"; k_t = {row.k_t_iupac:g}·exp(−{row.E:g} kJ/mol/R·(1/T − 1/"
+             f"{row.T + 273.15:g} K))" if (row.E is not None and row.T is not None) else "")
+        note = row.temperature_note(T)
+        if note:
+            prov.notes.append(str(note))
     else:
         raise MethodError(
             f"no termination row for {name!r}; give 'k_t [L/mol/s]' in [termination]",
             key='termination."k_t [L/mol/s]"', path=prov.path,
         )
+    E_t = row.E if row is not None else None
     if ts.delta is not None:
         prov.sources["delta"] = "recipe"
-        return k_t, ts.delta
+        return k_t, ts.delta, E_t
     if row is not None and row.delta is not None:
-        prov.sources["delta"] = row.source
-        return k_t, row.delta
+        prov.sources["delta"] = row.delta_source or row.source
+        return k_t, row.delta, E_t
     prov.sources["delta"] = "assumed 0.5 (not tabulated)"
     prov.warnings.append(
         f"fraction by disproportionation for {name} not tabulated; 0.5 used (DPn "
         "uncertain by up to 33 %) — give 'delta [-]' in [termination]"
     )
-    return k_t, 0.5
+    return k_t, 0.5, E_t
 
 
 def _transfer_terms(
@@ -472,7 +511,10 @@ def resolve_parameters(recipe: Recipe, ref: ReferenceData | None = None) -> Kine
     KineticParameters
         All values at the recipe temperature, k_t converted to the IUPAC convention,
         with the source of each value and notes on assumptions. Missing δ (0.5 assumed)
-        or C_M (0 assumed) issue a :class:`KineticsWarning`, also listed in ``warnings``.
+        or C_M (0 assumed) issue a :class:`KineticsWarning`, a table value used outside
+        its validity range a :class:`gpctools.refdata.ReferenceWarning`; both are also
+        listed in ``warnings``. k_t follows its tabulated activation energy; acrylates
+        use the effective k_p with backbiting (docs/science.md, section 7).
     """
     ref = ref if ref is not None else recipe.reference_data()
     T = recipe.T
@@ -481,22 +523,25 @@ def resolve_parameters(recipe: Recipe, ref: ReferenceData | None = None) -> Kine
     mon = _monomer_row(ms, ref, prov)
     name = mon.name if mon else ms.name
     M0 = _repeat_unit_mass(ms, mon, prov)
-    k_p, E_p = _propagation(ms, mon, name, T, prov)
     conc_M = _monomer_concentration(ms, mon, name, M0, prov)
+    k_p, E_p = _propagation(ms, mon, name, T, conc_M, prov)
     C_M = _transfer_to_monomer(ms, mon, name, T, prov)
     ini = _initiator_row(ins, ref, prov)
     k_d, E_d = _decomposition(ins, ini, T, prov)
     f, C_I = _efficiency_and_C_I(ins, ini, prov)
-    k_t, delta = _termination(recipe.termination, ref, name, T, prov)
+    k_t, delta, E_t = _termination(recipe.termination, ref, name, T, prov)
     terms = _transfer_terms(recipe, ref, name, T, prov)
     for w in prov.warnings:
         _warnings.warn(w, KineticsWarning, stacklevel=2)
+    for w in prov.reference_warnings:
+        _warnings.warn(w, ReferenceWarning, stacklevel=2)
     return KineticParameters(
         label=recipe.label, T=T, monomer=name, M0=M0, conc_M=conc_M, k_p=k_p, E_p=E_p,
         initiator=ini.name if ini else ins.name, conc_I=ins.concentration, k_d=k_d, E_d=E_d,
         f=f, C_I=C_I, k_t=k_t, delta=delta, C_M=C_M, transfer=terms,
         sources=tuple(prov.sources.items()), notes=tuple(prov.notes),
-        warnings=tuple(prov.warnings), initiator_caution=ini.caution if ini else "",
+        warnings=tuple(prov.warnings + prov.reference_warnings),
+        initiator_caution=ini.caution if ini else "", E_t=E_t,
     )
 
 
@@ -543,7 +588,7 @@ def evaluate(
         Factor on f·k_d·[I] (more or less initiator, or efficiency) [-].
     dT : float
         Temperature change [K]; k_p and k_d follow their Arrhenius energies, C values
-        with a tabulated ΔE follow C ∝ exp(−ΔE/RT); k_t is held constant.
+        with a tabulated ΔE follow C ∝ exp(−ΔE/RT); k_t follows ``E_t`` when known.
     extra_transfer : float
         Added 1/DPn from unexplained transfer [-] (Σ C_x[x]/[M] of an impurity).
     retarder : float
@@ -574,7 +619,7 @@ def evaluate(
     conc_M = p.conc_M * monomer_factor
     conc_I = p.conc_I * radical_flux_factor
     R_i = 2.0 * p.f * k_d * conc_I
-    k_t = p.k_t
+    k_t = arrh(p.k_t, p.E_t)
     if retarder > 0.0:
         radicals = (-retarder + math.sqrt(retarder**2 + 8.0 * k_t * R_i)) / (4.0 * k_t)
     else:
