@@ -134,6 +134,8 @@ def detect_kind(path: str | os.PathLike[str], data: bytes) -> str:
             path=path,
         )
     if not _looks_like_text(data):
+        if _looks_like_text(data[:8192].replace(b"\x00", b"")):
+            return "text"  # text with stray NUL bytes: decode_text names their line
         raise InputFormatError(
             "this is a binary file, not a text table; export the data as CSV/text or .xlsx",
             path=path,
@@ -200,10 +202,16 @@ def decode_text(path: str | os.PathLike[str], data: bytes, encoding: str | None 
                 try:
                     text = data[len(bom) :].decode(codec.replace("-sig", ""))
                 except UnicodeDecodeError as exc:
+                    body = data[len(bom) :]
+                    good = body[: exc.start].decode(codec.replace("-sig", ""), "replace")
+                    line = good.count("\n") + 1
+                    cut = " (the file is cut off)" if exc.end >= len(body) else ""
                     raise InputFormatError(
-                        f"the file starts with a {codec} byte-order mark but is not valid "
-                        f"{codec} (byte {exc.start}); export it again",
+                        f"line {line}: the file starts with a {codec} byte-order mark but "
+                        f"byte {exc.start + len(bom)} is not valid {codec}{cut}; the file "
+                        "is damaged - export it again",
                         path=path,
+                        row=line,
                     ) from exc
                 break
         if text is None:
@@ -218,4 +226,16 @@ def decode_text(path: str | os.PathLike[str], data: bytes, encoding: str | None 
         assert text is not None  # latin-1 decodes any bytes
     if "\r" in text:
         text = text.replace("\r\n", "\n").replace("\r", "\n")
+    nul = text.find("\x00")
+    if nul >= 0:
+        line = text.count("\n", 0, nul) + 1
+        count = text.count("\x00")
+        raise InputFormatError(
+            f"line {line} holds a NUL byte (character code 0; {count:,} in the file): "
+            "the export is damaged (a disk or transfer fault, or a crash while it was "
+            "written); export the chromatogram again, or delete those characters in a "
+            "text editor",
+            row=line,
+            path=path,
+        )
     return text
