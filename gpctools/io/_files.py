@@ -110,11 +110,11 @@ def detect_kind(path: str | os.PathLike[str], data: bytes) -> str:
         if is_zip:
             return "xlsx"
         if binary:
-            what = binary
+            what = f"{binary}; export the data as .xlsx or CSV"
         elif _looks_like_text(data):
             what = "a text file (CSV or similar); rename it to .csv or .txt"
         else:
-            what = "not a workbook"
+            what = "not a workbook; export the data again as .xlsx or CSV"
         raise InputFormatError(
             f"the extension says .xlsx workbook, but the file is not a zip archive: it is {what}",
             path=path,

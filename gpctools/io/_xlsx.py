@@ -78,6 +78,8 @@ _ENCODING_DECL = re.compile(rb"""<\?xml[^>]{0,200}?encoding\s*=\s*["']([A-Za-z0-
 # or more than 7 row digits are out of range whatever follows.
 _REF = re.compile(rb"""(?<=\s)(?:r|ref|sqref)\s*=\s*["'][^"']{0,64}""")
 _CELL = re.compile(r"\$?([A-Za-z]*)\$?(\d*)")
+# The root element of a sheet part (any namespace prefix).
+_SHEET_ROOT = re.compile(rb"<(?:[A-Za-z_][\w.-]*:)?(?:worksheet|dialogsheet|chartsheet)[\s>/]")
 
 
 def cell_name(row: int, col: int) -> str:
@@ -242,6 +244,7 @@ def _scan_member(path: Any, zf: zipfile.ZipFile, info: zipfile.ZipInfo) -> None:
     tail = b""
     first = True
     is_xml = False
+    is_sheet = False
     with zf.open(info) as member:
         while True:
             chunk = member.read(_CHUNK)
@@ -252,6 +255,9 @@ def _scan_member(path: Any, zf: zipfile.ZipFile, info: zipfile.ZipInfo) -> None:
                 is_xml = _looks_like_xml(info.filename, chunk)
                 if is_xml:
                     _check_encoding(path, part, chunk)
+                    # Cell references are checked in sheet parts only: in drawings and
+                    # themes an attribute "r" means something else (a right edge).
+                    is_sheet = _SHEET_ROOT.search(chunk[:4096].replace(b"\x00", b"")) is not None
             if is_xml:
                 window = tail + chunk
                 if _DECL.search(window):
@@ -262,7 +268,8 @@ def _scan_member(path: Any, zf: zipfile.ZipFile, info: zipfile.ZipInfo) -> None:
                         "the file is refused - " + _ADVICE,
                         path=path,
                     )
-                _check_refs(path, part, window)
+                if is_sheet:
+                    _check_refs(path, part, window)
                 tail = window[-96:]
 
 

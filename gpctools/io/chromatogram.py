@@ -586,6 +586,24 @@ def _footer_start(text: str, offset: int, d: Dialect, width: int) -> int:
     return len(text)
 
 
+def _note_footer(text: str, end: int, notes: list[str]) -> None:
+    """Say which lines after the table were set aside as a footer (never silently)."""
+    tail = text[end:]
+    if not tail.strip():
+        return
+    first = text.count("\n", 0, end) + 1
+    lines = tail.rstrip("\n").split("\n")
+    first += next(k for k, ln in enumerate(lines) if ln.strip())
+    last = text.count("\n", 0, end) + len(lines)
+    shown = next(ln for ln in lines if ln.strip()).strip()
+    shown = shown if len(shown) <= 40 else shown[:37] + "..."
+    span = f"line {first}" if first == last else f"lines {first} to {last}"
+    notes.append(
+        f"{span} after the data table (starting {shown!r}) are a footer and were not "
+        "read as slices; if they are slices, the table is damaged there"
+    )
+
+
 def _refuse_long_lines(text: str, err: dict[str, Any]) -> None:
     """Refuse a file with a line longer than :data:`MAX_LINE_CHARS`, naming the line."""
     found = find_long_line(text)
@@ -659,7 +677,8 @@ def _no_table_error(
     return InputFormatError(
         f"no table of numbers found{forced} in the first {len(head)} lines: expected "
         "rows with at least two numbers (x and signal) separated by tab, ';', ',' or "
-        "spaces, under a header row such as 'Volume (mL);RI (mV)'",
+        "spaces, under a header row such as 'Volume (mL);RI (mV)'; check that this is "
+        "the slice export (not a report or another file) and export it again",
         **err,
     )
 
@@ -702,6 +721,7 @@ def _read_text(
     )
     offset = sum(len(ln) + 1 for ln in head[: layout.start])
     end = _footer_start(text, offset, d, layout.width)
+    _note_footer(text, end, notes)
     table_start = layout.header if layout.header is not None else layout.start
     table_offset = sum(len(ln) + 1 for ln in head[:table_start])
     _refuse_long_cells(text, table_offset, end, table_start + 1, d, err)
@@ -1131,7 +1151,8 @@ def _read_xlsx_sheet(
         raise _NoTableInSheet(
             f"no table of numbers found in the first {len(lines)} rows: expected rows with "
             "at least two numbers (x and signal) under a header row such as "
-            "'Volume (mL)' | 'RI (mV)'",
+            "'Volume (mL)' | 'RI (mV)'; check that this is the slice export and choose "
+            "the sheet that holds the slices (import.sheet in the method file)",
             **err,
         )
     has_header = layout.header is not None
