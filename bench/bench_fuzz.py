@@ -159,7 +159,7 @@ def main() -> int:
                 detail = f"{dt:.1f} s"
             counts[outcome] += 1
             for kind in kinds:
-                by_kind.setdefault(kind, Counter())[outcome.split(",")[0]] += 1
+                by_kind.setdefault(kind, Counter())[outcome] += 1
             if outcome not in ("accepted, same", "accepted, changed", "refused, plain"):
                 examples.setdefault(outcome, [])
                 if len(examples[outcome]) < 5:

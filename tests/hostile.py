@@ -560,6 +560,7 @@ def hostile_corpus(big: bool = False) -> list[Case]:
         Case("cut_last_row.csv", raw[: raw.rstrip(b"\n").rfind(b",") + 1], r"line \d+: the value in column 'RI signal \[mV\]' is missing"),
         Case("footer_ok.csv", raw + b"\nEnd of data\nPeak table\nPeak,Start,End,Area\n1,12.5,18.0,99.1\n", None),
         Case("x_repeats.csv", with_line(mid, lines[mid - 1]), rf"line {mid + 1}: x value .* repeats"),
+        Case("text_first_row.csv", with_line(first_data, "n/a,3.2"), rf"line {n1}: 'n/a' in column 'Elution volume \[mL\]' is not a number"),
         Case("text_inside.csv", with_line(mid, "Detector overload", replace=False), rf"line {mid + 1} holds text"),
         Case("inf_cell.csv", with_line(mid, lines[mid].split(",")[0] + ",inf"), rf"line {mid + 1}: 'inf' .* not a finite number"),
         Case("huge_cell.csv", with_line(mid, lines[mid].split(",")[0] + ",1e999"), rf"line {mid + 1}: '1e999' .* too large a number"),
@@ -591,6 +592,7 @@ def hostile_corpus(big: bool = False) -> list[Case]:
         Case("wb_bad_xml.xlsx", rezip(wb, replace={SHEET: _sheet_xml(wb)[:-40]}), r"not well-formed XML"),
         Case("wb_not_workbook.xlsx", rezip(wb, drop=tuple(n for n in zipfile.ZipFile(io.BytesIO(wb)).namelist() if n.startswith("xl/workbook"))), r"not an .xlsx workbook"),
         Case("wb_text.xlsx", raw, r"rename it to .csv"),
+        Case("wb_row_order.xlsx", rezip(wb, replace={SHEET: _sheet_xml(wb).replace(b'<row r="355"', b'<row r="351"')}), r"row 351 comes after row 354"),
     ]
     if big:
         cases.append(Case("one_line_50mb.csv", b"1," * 25_000_000, r"line 1 is 50,000,000 characters long"))

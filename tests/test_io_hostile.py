@@ -327,3 +327,20 @@ def test_footer_is_set_aside_with_a_warning_naming_the_lines(tmp_path: Path) -> 
     with pytest.warns(ReaderWarning, match=r"lines 607 to 609 after the data table \(starting 'End of data'\)"):
         c = read_chromatogram(_put(tmp_path, "foot.csv", text))
     assert len(c) == 600 and "footer" in c.warnings[0]
+
+
+def test_large_sheet_scanned_across_chunks_without_false_alarms(tmp_path: Path) -> None:
+    # A sheet part of several MB crosses the scanner's 1 MB chunks many times: row order
+    # and references must be judged once per row, not twice at a boundary.
+    import openpyxl
+
+    wb = openpyxl.Workbook()
+    ws = wb.active
+    ws.append(["Volume (mL)", "RI (mV)"])
+    for k in range(40_000):
+        ws.append([10.0 + k * 1e-4, float(np.sin(k / 500.0)) + 2.0])
+    p = tmp_path / "big.xlsx"
+    wb.save(p)
+    sheet = zipfile.ZipFile(p).getinfo("xl/worksheets/sheet1.xml")
+    assert sheet.file_size > 3 * (1 << 20)
+    assert len(read_chromatogram(p)) == 40_000

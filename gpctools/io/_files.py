@@ -49,8 +49,11 @@ _BOMS = (
 )
 
 
-def read_bytes(path: str | os.PathLike[str]) -> bytes:
-    """Return the whole content of ``path``; clear errors for missing, empty or huge files."""
+def read_bytes(path: str | os.PathLike[str], limit: int = MAX_FILE_BYTES) -> bytes:
+    """Return the whole content of ``path``; clear errors for missing, empty or huge files.
+
+    ``limit`` is the largest size accepted [bytes] (default :data:`MAX_FILE_BYTES`).
+    """
     p = Path(path)
     if not p.exists():
         raise InputFormatError(
@@ -59,9 +62,9 @@ def read_bytes(path: str | os.PathLike[str]) -> bytes:
     if p.is_dir():
         raise InputFormatError("this is a folder, not a file; give the path of a file", path=path)
     size = p.stat().st_size
-    if size > MAX_FILE_BYTES:
+    if size > limit:
         raise InputFormatError(
-            f"file is {size / 1e6:.0f} MB, more than the {MAX_FILE_BYTES / 1e6:.0f} MB accepted; "
+            f"file is {size / 1e6:.0f} MB, more than the {limit / 1e6:.0f} MB accepted; "
             "export a single chromatogram or sheet per file",
             path=path,
         )

@@ -1,8 +1,10 @@
 """Delimited-text dialects: finding the numeric block, its separator and decimal mark.
 
 Detection works on the first :data:`SCAN_LINES` lines only; the numeric block itself is
-parsed by one call of :func:`pandas.read_csv` (C engine). Python loops over data lines
-happen only on the error path, to name the offending line.
+parsed by :func:`pandas.read_csv` (C engine). Python loops over data lines happen only on
+the error path, to name the offending line. Every pattern here is unambiguous, so that
+matching costs time linear in the length of the text, and lines, cells and fields are
+capped (:data:`MAX_LINE_CHARS`, :data:`MAX_CELL_CHARS`, :data:`MAX_FIELDS`).
 """
 
 from __future__ import annotations
@@ -409,12 +411,29 @@ def _extend_back(lines: list[str], start: int, width: int, d: Dialect) -> int:
         else:
             # A text line with data rows above it is inside the block (reported later).
             j = above(i)
+            if j is not None and _bad_first_row(lines[i], lines[j], width, d, pat):
+                return i  # a damaged first row right under the header
             if skips >= 3 or j is None or not damaged_row(j):
                 break
             skips += 1
             new_start = i
         i = above(i)
     return new_start
+
+
+def _bad_first_row(line: str, above: str, width: int, d: Dialect, pat: re.Pattern[str]) -> bool:
+    """True for a row with a number and text in ``width`` cells right under a line that
+    names the columns (``width`` cells, none a number): the table's first row, damaged."""
+    if width < 2 or too_many_fields(line, d.sep) or too_many_fields(above, d.sep):
+        return False
+    cells = split_cells(line, d.sep)
+    names = split_cells(above, d.sep, quoted=True)
+    return (
+        len(cells) == width
+        and any(pat.fullmatch(c) for c in cells)
+        and len(names) == width
+        and all(c and not is_number_any_mark(c) for c in names)
+    )
 
 
 def locate_block(

@@ -78,6 +78,9 @@ _ENCODING_DECL = re.compile(rb"""<\?xml[^>]{0,200}?encoding\s*=\s*["']([A-Za-z0-
 # or more than 7 row digits are out of range whatever follows.
 _REF = re.compile(rb"""(?<=\s)(?:r|ref|sqref)\s*=\s*["'][^"']{0,64}""")
 _CELL = re.compile(r"\$?([A-Za-z]*)\$?(\d*)")
+# A row element with its number (the closing quote is required, so a tag cut by a chunk
+# boundary is not read as a shorter number).
+_ROW = re.compile(rb"""<(?:[A-Za-z_][\w.-]*:)?row\s[^>]*?\br\s*=\s*["'](\d{1,8})["']""")
 # The root element of a sheet part (any namespace prefix).
 _SHEET_ROOT = re.compile(rb"<(?:[A-Za-z_][\w.-]*:)?(?:worksheet|dialogsheet|chartsheet)[\s>/]")
 
@@ -245,6 +248,7 @@ def _scan_member(path: Any, zf: zipfile.ZipFile, info: zipfile.ZipInfo) -> None:
     first = True
     is_xml = False
     is_sheet = False
+    last_row = 0
     with zf.open(info) as member:
         while True:
             chunk = member.read(_CHUNK)
@@ -270,6 +274,7 @@ def _scan_member(path: Any, zf: zipfile.ZipFile, info: zipfile.ZipInfo) -> None:
                     )
                 if is_sheet:
                     _check_refs(path, part, window)
+                    last_row = _check_row_order(path, part, window, len(tail), last_row)
                 tail = window[-96:]
 
 
@@ -289,6 +294,29 @@ def _check_encoding(path: Any, part: str, head: bytes) -> None:
             + _ADVICE,
             path=path,
         )
+
+
+def _check_row_order(path: Any, part: str, window: bytes, seen: int, last: int) -> int:
+    """Refuse row numbers that do not increase; return the last row number seen.
+
+    The workbook library skips a row whose number is not above the one before without a
+    word, so a damaged row number would silently drop a slice. Matches ending inside the
+    first ``seen`` bytes of ``window`` were checked with the previous chunk.
+    """
+    for m in _ROW.finditer(window):
+        if m.end() <= seen:
+            continue
+        r = int(m.group(1))
+        if r <= last:
+            raise InputFormatError(
+                f"archive part {part!r}: row {r} comes after row {last}; rows must be "
+                "stored in increasing order, and a row out of order would be lost - the "
+                "file is damaged; " + _ADVICE,
+                path=path,
+                row=r,
+            )
+        last = r
+    return last
 
 
 def _check_refs(path: Any, part: str, window: bytes) -> None:

@@ -15,9 +15,16 @@ How a text file is read
    non-empty line just above the run is the header if most of its cells are not numbers
    (a units row under the names, e.g. ``min;mV``, is merged into the names). Lines above
    the header are metadata.
-3. Footer lines after the block (text, or rows of a different width, such as a peak
-   table) are set aside; the block is parsed by one :func:`pandas.read_csv` call (C
-   engine). Only if that fails does a line-by-line pass run, to name the offending line.
+3. Footer lines after the block (a text line and what follows it, such as a peak
+   table) are set aside with a :class:`ReaderWarning` naming them; rows of numbers right
+   after the data are never a footer. The block is parsed in pieces of about 2 MB, each
+   by one :func:`pandas.read_csv` call (C engine). Only where that fails does a
+   line-by-line pass run over the piece, to name the offending line.
+
+Hostile input: lines, cells and fields are capped (:data:`~gpctools.io._text.MAX_LINE_CHARS`,
+:data:`~gpctools.io._text.MAX_CELL_CHARS`, :data:`~gpctools.io._text.MAX_FIELDS`) and every
+pattern is linear-time; workbooks are screened by :func:`gpctools.io._xlsx.check_archive`
+before the workbook library reads them.
 """
 
 from __future__ import annotations
@@ -66,6 +73,11 @@ __all__ = ["Chromatogram", "read_chromatogram", "MIN_POINTS", "ReaderWarning"]
 
 #: Fewest data rows (slices) accepted; fewer cannot describe a peak.
 MIN_POINTS = 10
+#: Largest slice export read [bytes]: about 2.5 million slices of 25 characters, far
+#: beyond any real run (6,000 slices are about 150 kB). The cap keeps the time budget:
+#: a file within it is read or refused within 10 s on a 2-core machine (measured by
+#: bench/bench_fuzz.py; 2 s for a 39 MB export of 2 million slices).
+MAX_EXPORT_BYTES = 64 * 1024 * 1024
 #: Footer lines set aside at most; a longer tail is treated as part of the table.
 MAX_FOOTER_LINES = 1000
 
@@ -292,7 +304,7 @@ def read_chromatogram(
     unit_arg = _unit_argument(x_unit)
     sep = _separator_argument(separator)
     dec = _decimal_argument(decimal)
-    data = read_bytes(path)
+    data = read_bytes(path, MAX_EXPORT_BYTES)
     kind = detect_kind(path, data)
     if kind == "xlsx":
         return _read_xlsx(path, data, sheet, x_column, signal_column, unit_arg, dec)
@@ -727,21 +739,11 @@ def _read_text(
     _refuse_long_cells(text, table_offset, end, table_start + 1, d, err)
     block = text[offset:end]
     first_line = layout.start + 1
-    x, y = _parse_fast(block, d, xi, yi, layout.width)
-    lines_arr: np.ndarray | None = None
-    if x is None or y is None:
-        x, y, lines_arr = _parse_lines(block, first_line, d, xi, yi, layout.names,
-                                       layout.width, err)
+    x, y, lines_arr = _parse_block(block, first_line, d, xi, yi, layout.names,
+                                   layout.width, err)
 
     def line_of(k: int) -> int:
-        """Line number of data row ``k`` (computed only on the error path)."""
-        nonlocal lines_arr
-        if lines_arr is None:
-            n_lines = block.count("\n") + (0 if block.endswith("\n") else 1)
-            if n_lines == x.size:
-                return first_line + k
-            lines_arr = _parse_lines(block, first_line, d, xi, yi, layout.names,
-                                     layout.width, err)[2]
+        """Line number of data row ``k``."""
         return int(lines_arr[k])
 
     return _finish(
@@ -763,6 +765,59 @@ def _read_text(
     )
 
 
+#: The data block is parsed in pieces of about this many characters, so that a bad line
+#: costs a line-by-line pass over one piece only (a few hundred milliseconds), not over
+#: the whole file.
+_PIECE_CHARS = 1 << 21
+
+
+def _parse_block(
+    block: str,
+    first_line: int,
+    d: Dialect,
+    xi: int,
+    yi: int,
+    names: tuple[str, ...],
+    width: int,
+    err: dict[str, Any],
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """(x, signal, line number of each row) of the data block; raises at the first bad line.
+
+    Each piece (cut at a line end) is parsed by :func:`_parse_fast`; a piece that fails
+    there goes through :func:`_parse_lines`, which names the offending line.
+    """
+    xs: list[np.ndarray] = []
+    ys: list[np.ndarray] = []
+    ns: list[np.ndarray] = []
+    pos, line, n = 0, first_line, len(block)
+    while pos < n:
+        cut = block.find("\n", min(pos + _PIECE_CHARS, n))
+        end = n if cut < 0 else cut + 1
+        part = block[pos:end]
+        breaks = part.count("\n")
+        count = breaks + (0 if part.endswith("\n") else 1)
+        x, y = _parse_fast(part, d, xi, yi, width)
+        nums: np.ndarray | None = None
+        if x is not None and y is not None:
+            if x.size == count:
+                nums = np.arange(line, line + count)
+            else:  # blank lines were skipped: number the rows by their lines
+                filled = [k for k, ln in enumerate(part.split("\n")) if ln.strip()]
+                if len(filled) == x.size:
+                    nums = line + np.asarray(filled, dtype=np.int64)
+        if x is None or y is None or nums is None:
+            x, y, nums = _parse_lines(part, line, d, xi, yi, names, width, err)
+        xs.append(x)
+        ys.append(y)
+        ns.append(nums)
+        line += breaks
+        pos = end
+    if not xs:
+        empty = np.zeros(0)
+        return empty, empty, np.zeros(0, dtype=np.int64)
+    return np.concatenate(xs), np.concatenate(ys), np.concatenate(ns)
+
+
 def _parse_fast(
     block: str, d: Dialect, xi: int, yi: int, width: int
 ) -> tuple[np.ndarray | None, np.ndarray | None]:
@@ -777,16 +832,19 @@ def _parse_fast(
 
     try:
         # No dtype and no usecols: letting the C parser infer types is the fastest way;
-        # the two columns used are checked to be numeric right after.
-        frame = pd.read_csv(
-            io.StringIO(block),
-            sep=d.pandas_sep,
-            decimal=d.decimal,
-            header=None,
-            na_filter=False,
-            engine="c",
-            skip_blank_lines=True,
-        )
+        # the two columns used are checked to be numeric right after (a mixed-type
+        # warning of the parser is one of the ways to fail, not news for the caller).
+        with _warnings.catch_warnings():
+            _warnings.simplefilter("ignore")
+            frame = pd.read_csv(
+                io.StringIO(block),
+                sep=d.pandas_sep,
+                decimal=d.decimal,
+                header=None,
+                na_filter=False,
+                engine="c",
+                skip_blank_lines=True,
+            )
         for j in range(width, frame.shape[1]):
             extra = frame[j]
             if extra.dtype.kind in "fiu" and not extra.isna().all():
