@@ -832,19 +832,19 @@ def _parse_fast(
 
     try:
         # No dtype and no usecols: letting the C parser infer types is the fastest way;
-        # the two columns used are checked to be numeric right after (a mixed-type
-        # warning of the parser is one of the ways to fail, not news for the caller).
-        with _warnings.catch_warnings():
-            _warnings.simplefilter("ignore")
-            frame = pd.read_csv(
-                io.StringIO(block),
-                sep=d.pandas_sep,
-                decimal=d.decimal,
-                header=None,
-                na_filter=False,
-                engine="c",
-                skip_blank_lines=True,
-            )
+        # the two columns used are checked to be numeric right after. low_memory=False
+        # types each column once per piece (pieces are small), so mixed types give an
+        # object column, not a warning for the caller.
+        frame = pd.read_csv(
+            io.StringIO(block),
+            sep=d.pandas_sep,
+            decimal=d.decimal,
+            header=None,
+            na_filter=False,
+            engine="c",
+            skip_blank_lines=True,
+            low_memory=False,
+        )
         for j in range(width, frame.shape[1]):
             extra = frame[j]
             if extra.dtype.kind in "fiu" and not extra.isna().all():
