@@ -80,9 +80,19 @@ def clean_workbook(step: int = 10) -> bytes:
     ws.append(["Elution volume [mL]", "RI signal [mV]"])
     for a, b in rows:
         ws.append([float(a), float(b)])
+    # Fixed times in the document properties and the archive: the same bytes in every
+    # run, so that seeded damage hits the same places.
+    import datetime
+
+    fixed = datetime.datetime(2024, 1, 1, 12, 0, 0)
+    wb.properties.created = fixed
+    wb.properties.modified = fixed
     buf = io.BytesIO()
     wb.save(buf)
-    return buf.getvalue()
+    data = buf.getvalue()
+    core = zipfile.ZipFile(io.BytesIO(data)).read("docProps/core.xml")
+    core = re.sub(rb"(<dcterms:modified[^>]*>)[^<]*", rb"\g<1>2024-01-01T12:00:00Z", core)
+    return rezip(data, replace={"docProps/core.xml": core})
 
 
 # ============================================================================ text damage
@@ -331,10 +341,17 @@ def rezip(
             if info.filename in drop:
                 continue
             body = replace.get(info.filename, src.read(info.filename))
-            out.writestr(info.filename, body)
+            out.writestr(_fixed_info(info.filename, compression), body)
         for name, body in (add or {}).items():
-            out.writestr(name, body)
+            out.writestr(_fixed_info(name, compression), body)
     return buf.getvalue()
+
+
+def _fixed_info(name: str, compression: int) -> zipfile.ZipInfo:
+    """Member header with a fixed time stamp (deterministic archive bytes)."""
+    info = zipfile.ZipInfo(name, date_time=(2024, 1, 1, 12, 0, 0))
+    info.compress_type = compression
+    return info
 
 
 def _central_entries(data: bytes) -> list[tuple[int, str, int]]:

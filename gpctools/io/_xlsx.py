@@ -217,7 +217,8 @@ def _check_members(path: Any, infos: list[zipfile.ZipInfo]) -> None:
                 raise InputFormatError(
                     f"archive part {info.filename!r} expands {ratio:.0f}-fold "
                     f"(limit {MAX_COMPRESSION_RATIO:.0f}); this is not a normal workbook "
-                    "and is refused as a possible zip bomb",
+                    "and is refused as a possible zip bomb (or its size fields are "
+                    "damaged); " + _ADVICE,
                     path=path,
                 )
     if total > MAX_UNCOMPRESSED_BYTES:
