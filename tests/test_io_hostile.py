@@ -344,3 +344,31 @@ def test_large_sheet_scanned_across_chunks_without_false_alarms(tmp_path: Path) 
     sheet = zipfile.ZipFile(p).getinfo("xl/worksheets/sheet1.xml")
     assert sheet.file_size > 3 * (1 << 20)
     assert len(read_chromatogram(p)) == 40_000
+
+
+# -- sheets (batch sheet, standards, run series, specs) share the text-sheet reader ------
+def test_sheet_with_an_open_quote_is_refused_at_its_line(tmp_path):
+    """An unmatched quote must not merge the following rows into one cell (common practice:
+    RFC 4180 quoting; a sheet cell never spans lines)."""
+    from gpctools.errors import InputFormatError
+    from gpctools.io import read_sheet
+
+    p = tmp_path / "batch.csv"
+    p.write_text('sample_id,file\nA,"a.csv\nB,b.csv\nC,c.csv\n', encoding="utf-8")
+    with pytest.raises(InputFormatError) as info:
+        read_sheet(p)
+    msg = str(info.value)
+    assert "batch.csv" in msg and "line 2" in msg and "quote" in msg
+
+
+def test_sheet_with_a_huge_line_is_refused_before_splitting(tmp_path):
+    """A line far past the cap is named, not reported as a quoting problem."""
+    from gpctools.errors import InputFormatError
+    from gpctools.io import read_sheet
+    from gpctools.io._text import MAX_LINE_CHARS
+
+    p = tmp_path / "specs.csv"
+    p.write_text("product,Mn min [g/mol]\n" + "x" * (MAX_LINE_CHARS + 10) + ",1\n", encoding="utf-8")
+    with pytest.raises(InputFormatError) as info:
+        read_sheet(p)
+    assert "line 2" in str(info.value) and "characters long" in str(info.value)
