@@ -13,9 +13,13 @@ import os
 import sys
 import warnings
 from pathlib import Path
-from typing import Optional
+from typing import TYPE_CHECKING, Optional
 
 import typer
+
+if TYPE_CHECKING:  # pragma: no cover
+    from .io.describe import ExportDescription
+    from .method import Method
 
 app = typer.Typer(
     add_completion=False,
@@ -253,22 +257,100 @@ def calibrate_cmd(
 @_guard
 def inspect_cmd(
     file: Path = typer.Argument(..., help="One slice export (CSV, TXT or XLSX)."),
+    method: Optional[Path] = typer.Option(None, "--method", "-m", help="Method file (TOML): read with its "
+                                          "[import] options and show its volume range and limits."),
     sheet: Optional[str] = typer.Option(None, "--sheet", help="Workbook sheet (name or 0-based index)."),
 ) -> None:
-    """Show how a slice export is read: columns, units, points and metadata."""
-    from .io import read_chromatogram
+    """Show how a slice export is read: dialect, every column and its kind, what is used."""
+    from .errors import InputFormatError
+    from .io.describe import describe_export
 
-    sh = int(sheet) if sheet is not None and sheet.isdigit() else sheet
-    c = read_chromatogram(file, sheet=sh)
-    typer.echo(f"file: {c.path}")
-    typer.echo(f"x: {c.x_column!r} ({c.x_kind}, {c.x_unit}), {c.x[0]:g} to {c.x[-1]:g}")
-    header = f"header on line/row {c.header_row}" if c.header_row else "no header row"
-    typer.echo(f"signal: {c.signal_column!r}, {c.x.size} slices, {header}")
-    if c.sheet:
-        typer.echo(f"sheet: {c.sheet}")
-    for k, v in c.metadata.items():
-        typer.echo(f"  {k}: {v}")
+    m = None
+    options: dict = {}
+    if method is not None:
+        from .method import load_method
 
+        m = load_method(method)
+        options = m.import_options.as_kwargs()
+    if sheet is not None:
+        options["sheet"] = int(sheet) if sheet.isdigit() else sheet
+    d = describe_export(file, **options)
+    _print_description(d, m)
+    for w in d.warnings:
+        _err(f"warning: {w}")
+    if d.problem is not None:
+        raise InputFormatError(d.problem.removeprefix(f"{file}: ").removeprefix(f"{d.path}: "),
+                               path=file)
+
+
+def _print_description(d: ExportDescription, m: Method | None) -> None:
+    """The lines of ``gpctools inspect`` (see :class:`gpctools.io.describe.ExportDescription`)."""
+    typer.echo(f"file: {d.path}")
+    if d.file_kind == "workbook":
+        sheets = ", ".join(repr(s) for s in d.sheets)
+        typer.echo(f"kind: workbook, sheet {d.sheet!r}" if d.sheet else "kind: workbook")
+        typer.echo(f"sheets: {sheets}")
+    else:
+        typer.echo(f"kind: text, encoding {d.encoding}")
+        if d.separator is not None:
+            mark = "decimal comma (,)" if d.decimal == "," else "decimal point (.)"
+            sep = {",": "comma (,)", ";": "semicolon (;)"}.get(d.separator, d.separator)
+            typer.echo(f"separator: {sep}; decimal mark: {mark}")
+    word = "row" if d.file_kind == "workbook" else "line"
+    if d.columns or d.problem is None:
+        typer.echo(f"header: {word} {d.header_row}" if d.header_row else "header: none (columns numbered from 0)")
+    if d.units_row:
+        typer.echo(f"units: {word} {d.units_row} (merged into the names)")
+    if d.options:
+        typer.echo("import options: " + ", ".join(f"{k}={v!r}" for k, v in d.options.items()))
+    if d.columns:
+        typer.echo("columns:")
+        width = max(len(repr(c.header)) for c in d.columns)
+        kinds = [c.kind + ("" if c.numeric else " (not numeric)") for c in d.columns]
+        kw = max(len(k) for k in kinds)
+        for c, k in zip(d.columns, kinds):
+            use = {"x": "<- x", "signal": "<- signal"}.get(c.use, "")
+            typer.echo(f"  {c.index:>2}  {repr(c.header).ljust(width)}  {k.ljust(kw)}  {use}".rstrip())
+    x0, x1 = d.x_first, d.x_last
+    if x0 is not None and x1 is not None:
+        step = (x1 - x0) / (d.points - 1) if d.points > 1 else float("nan")
+        typer.echo(f"x: {d.x_column!r} ({d.x_kind}, {d.x_unit}), {x0:g} to {x1:g} "
+                   f"{d.x_unit}, {d.points} slices (mean step {step:.4g} {d.x_unit})")
+        typer.echo(f"signal: {d.signal_column!r}")
+        if m is not None:
+            _print_method_view(d, m, x0, x1)
+    if d.metadata:
+        typer.echo("metadata:")
+        for k, v in d.metadata.items():
+            typer.echo(f"  {k}: {v}")
+
+
+def _print_method_view(d: ExportDescription, m: Method, x0: float, x1: float) -> None:
+    """What the method makes of the export (x from x0 to x1): volumes, calibrated range, limits."""
+    rate = m.flow_rate
+    if d.x_kind == "time":
+        if rate is None:
+            typer.echo("volume: the method has no flow.rate to turn these times into volumes")
+            return
+        f = rate / 60.0 if d.x_unit == "s" else rate
+        v0, v1 = x0 * f, x1 * f
+        typer.echo(f"volume at {rate:g} mL/min: {v0:.4g} to {v1:.4g} mL")
+    else:
+        v0, v1 = x0, x1
+    cal = m.calibration
+    typer.echo(f"calibrated range: {cal.v_min:.4g} to {cal.v_max:.4g} mL "
+               f"({_fmt(float(cal.M(cal.v_max)))} to {_fmt(float(cal.M(cal.v_min)))} g/mol)")
+    lim = m.volume_limits()
+    if lim is None:
+        typer.echo("integration limits: automatic")
+    else:
+        given = (f" (from {_fmt(m.limits_M[0])} to {_fmt(m.limits_M[1])} g/mol)"
+                 if m.limits_M is not None else "")
+        inside = "" if v0 <= lim[0] and lim[1] <= v1 else "; not all inside the recorded volumes"
+        typer.echo(f"integration limits: {lim[0]:.4g} to {lim[1]:.4g} mL{given}{inside} "
+                   "(after the flow-marker correction)")
+    if m.exclusions:
+        typer.echo("excluded regions: " + ", ".join(f"{a:g} to {b:g} mL" for a, b in m.exclusions))
 
 
 def _numbers(text: Optional[str], count: tuple[int, ...], option: str) -> Optional[tuple[float, ...]]:
