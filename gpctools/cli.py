@@ -139,16 +139,16 @@ def _print_table(rows: list[dict], columns: list[str]) -> None:
         typer.echo("  ".join(_fmt(r.get(c, "")).ljust(widths[c]) for c in columns))
 
 
-def _run_batch_with_progress(sheet: Path, method, out: Path, workers: int, sheet_name=None):
-    from .batch import read_batch_sheet, run_batch
+def _run_batch_with_progress(sheet: Path, method, out: Path, workers: int | None,
+                             sheet_name: str | None = None):
+    from .batch import run_batch
     from .report import DistributionWriter, write_batch
 
-    total = len(read_batch_sheet(sheet, sheet=sheet_name))
-    with _progress_bar(total, "injections") as prog:
-        task = prog.add_task("batch", total=total)
+    with _progress_bar(0, "injections") as prog:
+        task = prog.add_task("batch", total=None)
         result = run_batch(
             sheet, method, sheet=sheet_name, workers=workers,
-            progress=lambda done, tot: prog.update(task, completed=done),
+            progress=lambda done, tot: prog.update(task, completed=done, total=tot),
             on_result=DistributionWriter(out / "distributions"),
         )
     write_batch(result, out, distributions=False)  # distributions were written while running
@@ -162,21 +162,33 @@ SUMMARY_COLUMNS = ["sample_id", "status", "Mn [g/mol]", "Mw [g/mol]", "Mp [g/mol
 @app.command("batch")
 @_guard
 def batch_cmd(
-    sheet: Path = typer.Argument(..., help="Batch sheet (CSV or XLSX): sample_id, file, optional role and metadata."),
-    method: Path = typer.Option(..., "--method", "-m", help="Method file (TOML)."),
+    sheet: Path = typer.Argument(..., help="Batch sheet (CSV or XLSX): sample_id, file, optional role, "
+                                 "method file, overrides and metadata."),
+    method: Optional[Path] = typer.Option(None, "--method", "-m", help="Method file (TOML) for the rows "
+                                          "whose 'method file' cell is blank; optional when every row names one."),
     out: Path = typer.Option(Path("gpctools-out"), "--out", "-o", help="Output folder."),
     workers: int = typer.Option(0, "--workers", "-j", min=0, help="Processes to use (0 = choose from batch size and cores)."),
     sheet_name: Optional[str] = typer.Option(None, "--sheet", help="Workbook sheet of the batch sheet."),
 ) -> None:
-    """Process every injection of a batch sheet and write the results table."""
+    """Process every injection of a batch sheet and write the results table.
+
+    One sheet can name a method per row ('method file' column) and override the
+    integration limits (in mL or g/mol) and baseline windows per row; see
+    templates/batch.csv.
+    """
     from .method import load_method
 
     _check_out(out)
-    m = load_method(method)
+    m = load_method(method) if method is not None else None
     result = _run_batch_with_progress(sheet, m, out, workers or None, sheet_name)
     rows = result.table.to_dict("records")
     _print_table(rows, SUMMARY_COLUMNS)
-    typer.echo(f"\nmolar-mass scale: {m.calibration.scale_label()}")
+    if len(result.methods) > 1:
+        typer.echo("")
+        for label, used in result.methods.items():
+            typer.echo(f"method {label}: molar-mass scale {used.calibration.scale_label()}")
+    else:
+        typer.echo(f"\nmolar-mass scale: {result.method.calibration.scale_label()}")
     typer.echo(f"wrote {out}/results.csv, results.xlsx, calibration.csv, manifest.json, distributions/")
     if result.failed:
         for r in rows:

@@ -114,6 +114,38 @@ def test_demo_runs_on_bundled_sample_runs(tmp_path):
     assert (tmp_path / "demo" / "batch" / "results.csv").exists()
 
 
+# ------------------------------------------------ batch: a method per row (issue 10)
+
+
+def _mixed_sheet(d: Path, blank_row: int | None = None) -> Path:
+    rows = (d / "batch.csv").read_text().splitlines()
+    body = [r + ("," if i == blank_row else ",method.toml") for i, r in enumerate(rows[1:])]
+    p = d / "mixed.csv"
+    p.write_text("\n".join([rows[0] + ",method file", *body]) + "\n")
+    return p
+
+
+def test_batch_without_method_option_when_every_row_names_one(demo_dir, tmp_path):
+    d = tmp_path / "d"
+    shutil.copytree(demo_dir, d)
+    r = runner.invoke(app, ["batch", str(_mixed_sheet(d)), "-o", str(tmp_path / "o")])
+    assert r.exit_code == 0, r.output
+    import pandas as pd
+
+    t = pd.read_csv(tmp_path / "o" / "results.csv")
+    assert set(t["method file"]) == {"method.toml"} and t["method SHA-256"].str.len().eq(64).all()
+    assert {"integration start [mL]", "M at integration end [g/mol]", "overrides"} <= set(t.columns)
+
+
+def test_batch_without_method_option_names_the_rows_without_one(demo_dir, tmp_path):
+    d = tmp_path / "d"
+    shutil.copytree(demo_dir, d)
+    r = runner.invoke(app, ["batch", str(_mixed_sheet(d, blank_row=1)), "-o", str(tmp_path / "o")])
+    assert r.exit_code == 2, r.output
+    assert "mixed.csv" in r.output and "no method for row(s) 3" in r.output and "--method" in r.output
+    _ok_no_traceback(r)
+
+
 # ------------------------------------------------------------------ inspect (issue 10)
 
 
