@@ -345,8 +345,7 @@ def process_injection(
             exc.path = str(path)
         raise
     note = response_note(chrom.signal_column)  # UV or ELSD taken as mass concentration
-    if note is not None:
-        warnings.warn(f"{path}: {note}", InputWarning, stacklevel=2)
+    if note is not None:  # listed with the injection's other warnings (as process_trace does)
         res = replace(res, warnings=(*res.warnings, note))
     return res
 
@@ -742,10 +741,14 @@ def load_batch_methods(
         missing = [e.row for e in entries if not e.method_file]
         if missing:
             shown = ", ".join(str(r) for r in missing[:10]) + (" ..." if len(missing) > 10 else "")
+            hint = ""
+            if any(k.strip().casefold() == "method" for e in entries for k in e.metadata):
+                hint = (" (the sheet's 'method' column is kept as metadata; name it 'method file' "
+                        "if it holds method files)")
             raise InputFormatError(
                 f"no method for row(s) {shown}: give a method for the whole batch (gpctools "
-                "batch --method METHOD.toml) or fill the 'method file' column of every row",
-                path=str(sheet_path), column=C.METHOD_FILE)
+                "batch --method METHOD.toml) or fill the 'method file' column of every row"
+                + hint, path=str(sheet_path), column=C.METHOD_FILE)
     methods: dict[str, Method] = {}
     failed: dict[str, str] = {}
     out = []

@@ -21,7 +21,7 @@ import warnings
 from dataclasses import dataclass, field
 from typing import Any
 
-from gpctools.errors import GpcError
+from gpctools.errors import GpcError, GpcWarning
 from gpctools.io import _files, _xlsx
 from gpctools.io._columns import detector_rank, split_header, x_kind_of
 from gpctools.io._text import SCAN_LINES, locate_block, number_pattern, split_cells
@@ -323,12 +323,15 @@ def describe_export(
     problem: str | None = None
     chrom = None
     with warnings.catch_warnings(record=True) as caught:
-        warnings.simplefilter("always")
+        warnings.simplefilter("always", GpcWarning)
         try:
             chrom = gio.read_chromatogram(path, **options)
         except GpcError as exc:
             problem = str(exc)
-    notes = [str(w.message) for w in caught]
+    notes = [str(w.message) for w in caught if issubclass(w.category, GpcWarning)]
+    for w in caught:
+        if not issubclass(w.category, GpcWarning):
+            warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
     if kind == "xlsx":
         desc = _describe_workbook(path, data, sheet, chrom)
     else:
