@@ -69,6 +69,13 @@ __all__ = [
     "OUTSIDE_CALIBRATION",
     "BASELINE_WINDOWS",
     "LIMITS",
+    "INTEGRATION_START",
+    "INTEGRATION_END",
+    "M_AT_INTEGRATION_START",
+    "M_AT_INTEGRATION_END",
+    "METHOD_FILE",
+    "METHOD_SHA256",
+    "OVERRIDES",
     "FLOW_MARKER",
     "FLOW_MARKER_STATUS",
     "FLOW_FACTOR",
@@ -90,6 +97,7 @@ __all__ = [
     "peak_column",
     "PEAK_COLUMNS",
     "mass_fraction_column",
+    "is_mass_fraction_column",
     "format_molar_mass",
     # QC
     "INJECTIONS",
@@ -155,6 +163,11 @@ def format_molar_mass(M: float) -> str:
         return str(int(round(M)))
     text = f"{M:.10f}".rstrip("0").rstrip(".")
     return text
+
+
+def is_mass_fraction_column(name: object) -> bool:
+    """True for a header of the mass-fraction family (``mass below 1000 g/mol [%]``)."""
+    return isinstance(name, str) and _FRACTION_PATTERN.fullmatch(name) is not None
 
 
 def mass_fraction_column(side: str, M: float) -> str:
@@ -253,6 +266,22 @@ OUTSIDE_CALIBRATION = _column("outside calibration [% mass]", "% mass",
 BASELINE_WINDOWS = _column("baseline windows [mL]", "mL",
                            "the two baseline windows used ('auto' when chosen automatically)")
 LIMITS = _column("limits [mL]", "mL", "integration limits used ('auto' when chosen automatically)")
+INTEGRATION_START = _column("integration start [mL]", "mL",
+                            "early (high-M) integration limit used, on the flow-corrected "
+                            "volume axis")
+INTEGRATION_END = _column("integration end [mL]", "mL",
+                          "late (low-M) integration limit used, on the flow-corrected volume axis")
+M_AT_INTEGRATION_START = _column("M at integration start [g/mol]", "g/mol",
+                                 "molar mass the calibration gives at the integration start")
+M_AT_INTEGRATION_END = _column("M at integration end [g/mol]", "g/mol",
+                               "molar mass the calibration gives at the integration end")
+METHOD_FILE = _column("method file", "",
+                      "method file used for the injection (batch-sheet cell, or the --method "
+                      "given for rows without one)")
+METHOD_SHA256 = _column("method SHA-256", "", "SHA-256 of the method file as read")
+OVERRIDES = _column("overrides", "",
+                    "method settings changed for this injection by batch-sheet columns "
+                    "(empty when none)")
 FLOW_MARKER = _column("flow marker [mL]", "mL",
                       "observed flow-marker position of the injection (empty when none was found or given)")
 FLOW_MARKER_STATUS = _column("flow marker status", "",

@@ -4,14 +4,24 @@ The values live in CSV files inside the package (``gpctools/data/*.csv``), one t
 file, with a source on every row. A source starts with its status:
 
 - ``published: ...`` where the value was taken from the publication named;
-- ``from memory: ...`` where it is recalled and should be treated as approximate;
-- ``derived: ...`` for exact consequences (e.g. a molar mass from a formula);
+- ``from memory: ...`` where it is recalled from the named source and should be treated
+  as approximate;
+- ``derived: ...`` for exact consequences (e.g. a molar mass from a formula, a k_t from
+  a tabulated k_p and a tabulated ratio k_p/k_t^½);
 - ``typical: ...`` for an order-of-magnitude placeholder;
 - ``user: <file>`` for rows or cells supplied by the user.
 
 Tables with values from more than one source carry one source column per group of
-values (``k_p source`` for the propagation Arrhenius pair, ``C_M source`` for transfer to
-monomer, ``source`` for the rest).
+values (``k_p source`` for the propagation Arrhenius pair and its validity range,
+``backbiting source``, ``C_M source``, ``k_d source``, ``f source``, ``delta source``,
+``source`` for the rest).
+
+Every Arrhenius row (k_p, k_t, k_d, and C where a temperature dependence is tabulated)
+carries the temperature range of the data behind it (``... T min [°C]``, ``... T max
+[°C]``). A record method evaluated outside that range still returns the Arrhenius value
+but issues a :class:`ReferenceWarning` (an extrapolation; see docs/science.md, section 7).
+Acrylate rows carry a backbiting caution and the parameters for the effective k_p of a
+conventional polymerization (:meth:`Monomer.k_p_effective`).
 
 Users add rows or override single cells from their own CSV/XLSX file with the same
 column names (only the key columns are required)::
@@ -33,20 +43,22 @@ from __future__ import annotations
 import functools
 import math
 import os
-from collections.abc import Mapping, Sequence
+import warnings
+from collections.abc import Callable, Mapping, Sequence
 from dataclasses import asdict, dataclass
 from importlib import resources
 from pathlib import Path
 from typing import Any
 
-import pandas as pd
+import pandas as pd  # type: ignore[import-untyped]
 
-from gpctools.errors import DataError, InputFormatError, MethodError
+from gpctools.errors import DataError, InputFormatError, MethodError, RangeWarning
 
 __all__ = [
     "R_GAS",
     "TABLE_NAMES",
     "KT_CONVENTIONS",
+    "ReferenceWarning",
     "Monomer",
     "Initiator",
     "Termination",
@@ -76,6 +88,11 @@ KT_CONVENTIONS = ("IUPAC 2kt", "kt")
 _STATUS_PREFIXES = ("published:", "from memory:", "derived:", "typical:", "user:")
 
 
+class ReferenceWarning(RangeWarning):
+    """A reference value is used outside the temperature range of the data behind it
+    (an Arrhenius extrapolation), or with a caution (e.g. acrylate backbiting)."""
+
+
 def celsius_to_kelvin(T_celsius: float) -> float:
     """Convert a temperature from degrees Celsius to kelvin [K]."""
     return float(T_celsius) + 273.15
@@ -103,63 +120,53 @@ class _Schema:
         return None
 
 
+_KP = ("k_p A [L/mol/s]", "k_p E [kJ/mol]", "k_p uncertainty [%]", "k_p T min [°C]",
+       "k_p T max [°C]")
+_BACKBITING = ("k_bb A [1/s]", "k_bb E [kJ/mol]", "k_p MCR A [L/mol/s]", "k_p MCR E [kJ/mol]",
+               "backbiting T min [°C]", "backbiting T max [°C]")
+_C_M = ("C_M [-]", "C_M T [°C]", "C_M uncertainty [%]", "C_M low [-]", "C_M high [-]")
+_K_D = ("k_d [1/s]", "k_d T [°C]", "E_d [kJ/mol]", "k_d T min [°C]", "k_d T max [°C]")
+_K_T = ("k_t [L/mol/s]", "k_t T [°C]", "k_t E [kJ/mol]", "k_t T min [°C]", "k_t T max [°C]",
+        "k_t low [L/mol/s]", "k_t high [L/mol/s]")
+_C = ("C [-]", "C T [°C]", "dE [kJ/mol]", "C T min [°C]", "C T max [°C]", "C uncertainty [%]")
+
 _SCHEMAS: dict[str, _Schema] = {
     "monomers": _Schema(
         key=("name",),
-        text=("aliases", "polymer"),
-        numeric=(
-            "M0 [g/mol]",
-            "density [g/mL]",
-            "density T [°C]",
-            "k_p A [L/mol/s]",
-            "k_p E [kJ/mol]",
-            "k_p uncertainty",
-            "C_M [-]",
-            "C_M T [°C]",
-            "C_M uncertainty",
-        ),
+        text=("aliases", "polymer", "backbiting caution"),
+        numeric=("M0 [g/mol]", "density [g/mL]", "density T [°C]") + _KP + _BACKBITING + _C_M,
         sources=(
             ("source", ("aliases", "polymer", "M0 [g/mol]")),
             ("density source", ("density [g/mL]", "density T [°C]")),
-            ("k_p source", ("k_p A [L/mol/s]", "k_p E [kJ/mol]", "k_p uncertainty")),
-            ("C_M source", ("C_M [-]", "C_M T [°C]", "C_M uncertainty")),
+            ("k_p source", _KP),
+            ("backbiting source", _BACKBITING + ("backbiting caution",)),
+            ("C_M source", _C_M),
         ),
     ),
     "initiators": _Schema(
         key=("name",),
         text=("aliases", "caution"),
-        numeric=("M [g/mol]", "k_d [1/s]", "k_d T [°C]", "E_d [kJ/mol]", "f [-]"),
+        numeric=("M [g/mol]",) + _K_D + ("f [-]",),
         sources=(
-            (
-                "source",
-                ("aliases", "M [g/mol]", "k_d [1/s]", "k_d T [°C]", "E_d [kJ/mol]", "f [-]"),
-            ),
+            ("source", ("aliases", "M [g/mol]")),
+            ("k_d source", _K_D),
+            ("f source", ("f [-]",)),
         ),
     ),
     "termination": _Schema(
         key=("monomer",),
-        text=("convention",),
-        numeric=("k_t [L/mol/s]", "k_t T [°C]", "delta [-]"),
-        sources=(("source", ("convention", "k_t [L/mol/s]", "k_t T [°C]", "delta [-]")),),
+        text=("convention", "note"),
+        numeric=_K_T + ("delta [-]",),
+        sources=(
+            ("source", ("convention",) + _K_T),
+            ("delta source", ("delta [-]",)),
+        ),
     ),
     "agents": _Schema(
         key=("agent", "monomer"),
         text=("aliases", "role", "caution"),
-        numeric=("M [g/mol]", "C [-]", "C T [°C]", "dE [kJ/mol]", "C uncertainty"),
-        sources=(
-            (
-                "source",
-                (
-                    "aliases",
-                    "role",
-                    "M [g/mol]",
-                    "C [-]",
-                    "C T [°C]",
-                    "dE [kJ/mol]",
-                    "C uncertainty",
-                ),
-            ),
-        ),
+        numeric=("M [g/mol]",) + _C,
+        sources=(("source", ("aliases", "role", "M [g/mol]") + _C),),
     ),
     "mark_houwink": _Schema(
         key=("polymer", "solvent", "T [°C]"),
@@ -174,6 +181,13 @@ TABLE_NAMES = tuple(_SCHEMAS)
 
 # Key columns that hold numbers rather than names.
 _NUMERIC_KEYS = {"T [°C]"}
+
+# Column names of earlier versions, still accepted in user files.
+_LEGACY_COLUMNS = {
+    "k_p uncertainty": "k_p uncertainty [%]",
+    "C_M uncertainty": "C_M uncertainty [%]",
+    "C uncertainty": "C uncertainty [%]",
+}
 
 
 # --------------------------------------------------------------------------- records
@@ -199,6 +213,35 @@ def _aliases(value: Any) -> tuple[str, ...]:
     return tuple(a.strip() for a in _text(value).split(";") if a.strip())
 
 
+def _arrhenius(A: float, E: float, T: float) -> float:
+    """A·exp(−E/(R·T)) with E in kJ/mol and T in K."""
+    return A * math.exp(-E * 1e3 / (R_GAS * float(T)))
+
+
+def _range_note(what: str, T: float, T_min: float | None, T_max: float | None) -> str | None:
+    """Text when ``T`` [K] lies outside [T_min, T_max] [°C]; None inside or without a range.
+
+    The limits are inclusive; a missing limit is open on that side.
+    """
+    t_c = float(T) - 273.15
+    below = T_min is not None and t_c < T_min - 1e-9
+    above = T_max is not None and t_c > T_max + 1e-9
+    if not (below or above):
+        return None
+    lo = "" if T_min is None else f"{T_min:g}"
+    hi = "" if T_max is None else f"{T_max:g}"
+    return (
+        f"{what} evaluated at {t_c:.4g} °C, outside the range of the data behind it "
+        f"({lo} to {hi} °C): the Arrhenius value is an extrapolation; give your own value "
+        "in the recipe if you have one"
+    )
+
+
+def _warn(note: str | None) -> None:
+    if note:
+        warnings.warn(note, ReferenceWarning, stacklevel=3)
+
+
 @dataclass(frozen=True)
 class Monomer:
     """A monomer row: repeat-unit mass, density, propagation and transfer to monomer.
@@ -212,10 +255,26 @@ class Monomer:
     density : float or None
         Liquid density [g/mL] at ``density_T`` [°C].
     kp_A, kp_E : float or None
-        Propagation Arrhenius parameters: A [L/mol/s], E [kJ/mol].
+        Propagation Arrhenius parameters: A [L/mol/s], E [kJ/mol]. For acrylates these
+        are the chain-end (secondary-radical) values of the pulsed-laser benchmark.
+    kp_uncertainty : float or None
+        Relative standard uncertainty of k_p stated by the source [%].
+    kp_T_min, kp_T_max : float or None
+        Temperature range of the data behind the k_p pair [°C].
     C_M, C_M_T : float or None
         Transfer-to-monomer constant k_tr,M/k_p [-] at ``C_M_T`` [°C].
-    source, density_source, kp_source, C_M_source : str
+    C_M_low, C_M_high : float or None
+        Spread of C_M between sources near ``C_M_T`` [-].
+    kbb_A, kbb_E : float or None
+        Backbiting (1,5-hydrogen shift) rate coefficient: A [1/s], E [kJ/mol].
+    kpt_A, kpt_E : float or None
+        Propagation of the mid-chain (tertiary) radical: A [L/mol/s], E [kJ/mol].
+    bb_T_min, bb_T_max : float or None
+        Temperature range of the backbiting parameters [°C].
+    backbiting_caution : str
+        Caution shown when the chain-end k_p of this monomer is used for a conventional
+        polymerization (empty for monomers without significant backbiting).
+    source, density_source, kp_source, backbiting_source, C_M_source : str
         Status and source of each group of values (``source`` covers M0, aliases and
         polymer).
     """
@@ -236,24 +295,126 @@ class Monomer:
     C_M_uncertainty: float | None
     C_M_source: str
     source: str
+    kp_T_min: float | None = None
+    kp_T_max: float | None = None
+    C_M_low: float | None = None
+    C_M_high: float | None = None
+    kbb_A: float | None = None
+    kbb_E: float | None = None
+    kpt_A: float | None = None
+    kpt_E: float | None = None
+    bb_T_min: float | None = None
+    bb_T_max: float | None = None
+    backbiting_caution: str = ""
+    backbiting_source: str = ""
 
-    def k_p(self, T: float) -> float:
-        """Propagation rate coefficient at temperature ``T`` [K], in L/mol/s.
-
-        k_p = A·exp(−E/(R·T)).
-
-        References
-        ----------
-        IUPAC critically evaluated propagation rate coefficients (pulsed-laser
-        polymerization benchmark series); the source of each pair is in ``kp_source``.
-        """
+    def _kp_pair(self) -> tuple[float, float]:
         if self.kp_A is None or self.kp_E is None:
             raise DataError(
                 f"no propagation Arrhenius parameters for {self.name!r}; give "
                 "'monomer.k_p' [L/mol/s] or 'monomer.k_p_A' and 'monomer.k_p_E' in the recipe",
                 key="monomer.k_p",
             )
-        return self.kp_A * math.exp(-self.kp_E * 1e3 / (R_GAS * float(T)))
+        return self.kp_A, self.kp_E
+
+    def k_p(self, T: float) -> float:
+        """Propagation rate coefficient at temperature ``T`` [K], in L/mol/s.
+
+        k_p = A·exp(−E/(R·T)). Outside ``kp_T_min``–``kp_T_max`` the value is an
+        extrapolation and a :class:`ReferenceWarning` is issued; for an acrylate above the
+        range the warning carries the backbiting caution (use :meth:`k_p_effective` for a
+        conventional polymerization).
+
+        References
+        ----------
+        IUPAC critically evaluated propagation rate coefficients (pulsed-laser
+        polymerization benchmark series); the source of each pair is in ``kp_source``.
+        """
+        A, E = self._kp_pair()
+        note = _range_note(f"k_p of {self.name}", T, self.kp_T_min, self.kp_T_max)
+        if note and self.backbiting_caution and self.kp_T_max is not None and (
+            float(T) - 273.15 > self.kp_T_max
+        ):
+            note += (f". {self.backbiting_caution[:1].upper()}{self.backbiting_caution[1:]}; "
+                     "the effective k_p (Monomer.k_p_effective) accounts for it")
+        _warn(note)
+        return _arrhenius(A, E, T)
+
+    @property
+    def has_backbiting(self) -> bool:
+        """True when the backbiting and mid-chain-radical parameters are tabulated."""
+        return None not in (self.kbb_A, self.kbb_E, self.kpt_A, self.kpt_E)
+
+    def _backbiting_terms(self, T: float, conc_M: float) -> tuple[float, float, float, float]:
+        """(k_p chain end, k_p mid-chain, k_bb, x_MCR) at ``T`` [K] and [M] [mol/L]."""
+        if not self.has_backbiting:
+            raise DataError(
+                f"no backbiting parameters for {self.name!r} (k_bb A/E, k_p MCR A/E)",
+                key="monomer.backbiting",
+            )
+        if not conc_M > 0:
+            raise DataError(f"monomer concentration must be > 0 mol/L, got {conc_M}")
+        A, E = self._kp_pair()
+        k_s = _arrhenius(A, E, T)
+        k_mcr = _arrhenius(float(self.kpt_A), float(self.kpt_E), T)  # type: ignore[arg-type]
+        k_bb = _arrhenius(float(self.kbb_A), float(self.kbb_E), T)  # type: ignore[arg-type]
+        x = k_bb / (k_bb + k_mcr * float(conc_M))
+        return k_s, k_mcr, k_bb, x
+
+    def mcr_fraction(self, T: float, conc_M: float) -> float:
+        """Fraction of radicals that are mid-chain radicals at ``T`` [K], [M] [mol/L] [-].
+
+        Quasi-steady state between chain-end radicals (which backbite at k_bb) and
+        mid-chain radicals (which add monomer at k_p,MCR), termination of mid-chain
+        radicals neglected: x_MCR = k_bb/(k_bb + k_p,MCR·[M]).
+
+        References
+        ----------
+        docs/science.md, section 7 (acrylates); parameters in ``backbiting_source``.
+        """
+        _warn(_range_note(f"backbiting parameters of {self.name}", T, self.bb_T_min,
+                          self.bb_T_max))
+        return self._backbiting_terms(T, conc_M)[3]
+
+    def k_p_effective(self, T: float, conc_M: float) -> float:
+        """Effective propagation rate coefficient of a conventional polymerization [L/mol/s].
+
+        k_p,eff = (1 − x_MCR)·k_p + x_MCR·k_p,MCR with x_MCR from :meth:`mcr_fraction`.
+        Monomers without backbiting parameters return :meth:`k_p`. A
+        :class:`ReferenceWarning` is issued outside the range of the backbiting data.
+
+        Parameters
+        ----------
+        T : float
+            Temperature [K].
+        conc_M : float
+            Monomer concentration [mol/L] (x_MCR falls as [M] rises).
+
+        References
+        ----------
+        docs/science.md, section 7 (acrylates); parameters in ``backbiting_source``.
+        """
+        if not self.has_backbiting:
+            return self.k_p(T)
+        _warn(_range_note(f"backbiting parameters of {self.name}", T, self.bb_T_min,
+                          self.bb_T_max))
+        k_s, k_mcr, _, x = self._backbiting_terms(T, conc_M)
+        return (1.0 - x) * k_s + x * k_mcr
+
+    def k_p_effective_E(self, T: float, conc_M: float) -> float:
+        """Apparent activation energy of :meth:`k_p_effective` at ``T`` [K] [kJ/mol].
+
+        E_app = −R·d ln k_p,eff/d(1/T), exact for the two-radical model:
+        E_app = [(1 − x)E_p k_p + x E_MCR k_p,MCR + (k_p,MCR − k_p)·x(1 − x)(E_bb − E_MCR)]
+        / k_p,eff. Without backbiting parameters this is E of k_p.
+        """
+        if not self.has_backbiting:
+            return self._kp_pair()[1]
+        k_s, k_mcr, _, x = self._backbiting_terms(T, conc_M)
+        E_s, E_mcr, E_bb = self._kp_pair()[1], float(self.kpt_E), float(self.kbb_E)  # type: ignore[arg-type]
+        k_eff = (1.0 - x) * k_s + x * k_mcr
+        dk = (1.0 - x) * E_s * k_s + x * E_mcr * k_mcr + (k_mcr - k_s) * x * (1.0 - x) * (E_bb - E_mcr)
+        return dk / k_eff
 
     def bulk_concentration(self) -> float:
         """Concentration of neat monomer [mol/L] = 1000·density/M0 (at ``density_T``)."""
@@ -285,6 +446,10 @@ class Initiator:
         Activation energy of decomposition [kJ/mol].
     f : float
         Initiator efficiency [-].
+    T_min, T_max : float or None
+        Temperature range of the data behind k_d and E_d [°C].
+    source, kd_source, f_source : str
+        Status and source of M and aliases, of the k_d group, of f.
     caution : str
         Handling caution for the initiator.
     """
@@ -298,6 +463,10 @@ class Initiator:
     f: float
     source: str
     caution: str
+    T_min: float | None = None
+    T_max: float | None = None
+    kd_source: str = ""
+    f_source: str = ""
 
     @property
     def A(self) -> float:
@@ -307,8 +476,10 @@ class Initiator:
     def k_d(self, T: float) -> float:
         """Decomposition rate coefficient at ``T`` [K], in 1/s.
 
-        k_d(T) = k_d(T_ref)·exp(−E_d/R·(1/T − 1/T_ref)) (Arrhenius).
+        k_d(T) = k_d(T_ref)·exp(−E_d/R·(1/T − 1/T_ref)) (Arrhenius). Outside
+        ``T_min``–``T_max`` a :class:`ReferenceWarning` is issued.
         """
+        _warn(_range_note(f"k_d of {self.name}", T, self.T_min, self.T_max))
         T_ref = celsius_to_kelvin(self.T_ref)
         return self.k_d_ref * math.exp(-self.E_d * 1e3 / R_GAS * (1.0 / float(T) - 1.0 / T_ref))
 
@@ -337,8 +508,8 @@ def convert_kt(value: float, from_convention: str, to_convention: str = "IUPAC 2
 
     References
     ----------
-    IUPAC recommendation on the definition of the termination rate coefficient (see
-    SCIENCE.md §3).
+    IUPAC recommendation on the definition of the termination rate coefficient
+    (docs/science.md, section 3).
     """
     for c in (from_convention, to_convention):
         if c not in KT_CONVENTIONS:
@@ -355,35 +526,91 @@ def convert_kt(value: float, from_convention: str, to_convention: str = "IUPAC 2
 
 @dataclass(frozen=True)
 class Termination:
-    """Termination row: k_t with its convention and the fraction by disproportionation.
+    """Termination row: k_t with its convention and temperature dependence, and δ.
 
     Attributes
     ----------
-    k_t : float
-        As tabulated [L/mol/s], in ``convention``.
+    k_t_ref : float
+        As tabulated [L/mol/s], in ``convention``, at ``T`` [°C].
     convention : {"IUPAC 2kt", "kt"}
     T : float or None
         Temperature of the tabulated k_t [°C].
     delta : float or None
         δ = k_td/k_t, fraction of terminations by disproportionation [-].
+    E : float or None
+        Activation energy of k_t [kJ/mol]; None: temperature dependence unknown.
+    T_min, T_max : float or None
+        Temperature range of the data behind k_t and E [°C].
+    k_t_low, k_t_high : float or None
+        Spread of k_t between sources at ``T`` [L/mol/s], in ``convention``.
+    source, delta_source : str
+        Status and source of the k_t group and of δ.
+    note : str
+        Caveats (chain length, conversion).
     """
 
     monomer: str
-    k_t: float
+    k_t_ref: float
     convention: str
     T: float | None
     delta: float | None
     source: str
+    E: float | None = None
+    T_min: float | None = None
+    T_max: float | None = None
+    k_t_low: float | None = None
+    k_t_high: float | None = None
+    delta_source: str = ""
+    note: str = ""
 
     @property
     def k_t_iupac(self) -> float:
-        """k_t in the IUPAC convention (−d[R•]/dt = 2k_t[R•]²) [L/mol/s]."""
-        return convert_kt(self.k_t, self.convention, "IUPAC 2kt")
+        """k_t at the tabulated temperature, IUPAC convention (−d[R•]/dt = 2k_t[R•]²) [L/mol/s]."""
+        return convert_kt(self.k_t_ref, self.convention, "IUPAC 2kt")
+
+    def k_t(self, T: float) -> float:
+        """k_t at ``T`` [K] in the IUPAC convention [L/mol/s].
+
+        k_t(T) = k_t(T_ref)·exp(−E/R·(1/T − 1/T_ref)). Without E (or without T_ref) the
+        tabulated value is returned unchanged (see :meth:`temperature_note`). Outside
+        ``T_min``–``T_max`` a :class:`ReferenceWarning` is issued.
+
+        References
+        ----------
+        docs/science.md, sections 3 (convention) and 7 (values).
+        """
+        _warn(_range_note(f"k_t of {self.monomer}", T, self.T_min, self.T_max))
+        k0 = self.k_t_iupac
+        if self.E is None or self.T is None:
+            return k0
+        T_ref = celsius_to_kelvin(self.T)
+        return k0 * math.exp(-self.E * 1e3 / R_GAS * (1.0 / float(T) - 1.0 / T_ref))
+
+    @property
+    def A(self) -> float | None:
+        """Arrhenius pre-exponential factor of k_t (IUPAC convention) [L/mol/s]; None
+        without E or T."""
+        if self.E is None or self.T is None:
+            return None
+        return self.k_t_iupac * math.exp(self.E * 1e3 / (R_GAS * celsius_to_kelvin(self.T)))
+
+    def temperature_note(self, T: float) -> str | None:
+        """A note when ``T`` [K] is more than 5 K from the tabulated temperature and no
+        activation energy is known; None otherwise."""
+        if self.T is None or self.E is not None:
+            return None
+        if abs(float(T) - celsius_to_kelvin(self.T)) > 5.0:
+            return (
+                f"k_t of {self.monomer} is tabulated at {self.T:g} °C and used unchanged at "
+                f"{float(T) - 273.15:g} °C (no activation energy tabulated)"
+            )
+        return None
 
     def summary(self) -> dict[str, Any]:
-        """JSON-safe dict of all fields plus ``k_t_iupac``."""
+        """JSON-safe dict of all fields plus ``k_t_iupac`` and ``A``."""
         d = asdict(self)
         d["k_t_iupac"] = self.k_t_iupac
+        d["A"] = self.A
         return d
 
 
@@ -397,6 +624,8 @@ class Agent:
         Transfer constant k_tr/k_p [-] at ``T_ref`` [°C].
     dE : float or None
         E_tr − E_p [kJ/mol] if known; None means the temperature dependence is unknown.
+    T_min, T_max : float or None
+        Temperature range over which ``dE`` was established [°C].
     M : float or None
         Molar mass of the agent [g/mol].
     """
@@ -412,19 +641,23 @@ class Agent:
     C_uncertainty: float | None
     source: str
     caution: str
+    T_min: float | None = None
+    T_max: float | None = None
 
     def C(self, T: float) -> float:
         """Transfer constant at ``T`` [K] [-].
 
         C(T) = C(T_ref)·exp(−ΔE/R·(1/T − 1/T_ref)) with ΔE = E_tr − E_p when tabulated;
         otherwise the tabulated value is returned unchanged (see :meth:`temperature_note`).
+        With ΔE, a :class:`ReferenceWarning` is issued outside ``T_min``–``T_max``.
 
         References
         ----------
-        SCIENCE.md §6: C = (A_tr/A_p)·exp(−(E_tr − E_p)/RT).
+        docs/science.md, section 6: C = (A_tr/A_p)·exp(−(E_tr − E_p)/RT).
         """
         if self.dE is None or self.T_ref is None:
             return self.C_ref
+        _warn(_range_note(f"C of {self.agent} in {self.monomer}", T, self.T_min, self.T_max))
         T_ref = celsius_to_kelvin(self.T_ref)
         return self.C_ref * math.exp(-self.dE * 1e3 / R_GAS * (1.0 / float(T) - 1.0 / T_ref))
 
@@ -467,7 +700,7 @@ class MarkHouwinkPair:
 # --------------------------------------------------------------------------- tables
 
 
-def _bundled_path(name: str):
+def _bundled_path(name: str) -> Any:
     return resources.files("gpctools").joinpath("data", f"{name}.csv")
 
 
@@ -495,6 +728,7 @@ def _read_any(path: Path) -> pd.DataFrame:
 def _clean(frame: pd.DataFrame, schema: _Schema, path: Any, *, partial: bool) -> pd.DataFrame:
     """Check columns, parse numbers (one object column per field, None for blanks)."""
     frame = frame.rename(columns=lambda c: str(c).strip())
+    frame = frame.rename(columns=lambda c: _LEGACY_COLUMNS.get(c, c) if c not in schema.columns else c)
     unknown = [c for c in frame.columns if c not in schema.columns]
     if unknown:
         raise InputFormatError(
@@ -549,8 +783,10 @@ def _bundled(name: str) -> pd.DataFrame:
         return _clean(frame, schema, f"gpctools/data/{name}.csv", partial=False)
 
 
-def _key_of(row: Mapping[str, Any], schema: _Schema, resolve) -> tuple:
-    out = []
+def _key_of(
+    row: Mapping[str, Any], schema: _Schema, resolve: Callable[[str, Any], str]
+) -> tuple[Any, ...]:
+    out: list[Any] = []
     for k in schema.key:
         v = row.get(k)
         if k in _NUMERIC_KEYS:
@@ -600,7 +836,7 @@ def _merge(base: pd.DataFrame, user: pd.DataFrame, schema: _Schema, label: str) 
             given_groups = {s for s, _ in schema.sources}
             for s in given_groups:
                 target[s] = f"user: {label}"
-        touched = {schema.source_of(c) for c in given} - {None}
+        touched = {g for g in (schema.source_of(c) for c in given) if g is not None}
         for c in given:
             if c in {s for s, _ in schema.sources}:
                 continue
@@ -707,7 +943,7 @@ class ReferenceData:
         for r in rows:
             names = [_norm(r[col])] + [_norm(a) for a in _aliases(r.get("aliases"))]
             if want in names:
-                return r
+                return dict(r)
         known = sorted({r[col] for r in rows})
         raise MethodError(
             f"unknown {what} {name!r}; known: {', '.join(known)}. Add a row with your own "
@@ -736,13 +972,25 @@ class ReferenceData:
             density_source=_text(r["density source"]),
             kp_A=_opt(r["k_p A [L/mol/s]"]),
             kp_E=_opt(r["k_p E [kJ/mol]"]),
-            kp_uncertainty=_opt(r["k_p uncertainty"]),
+            kp_uncertainty=_opt(r["k_p uncertainty [%]"]),
             kp_source=_text(r["k_p source"]),
             C_M=_opt(r["C_M [-]"]),
             C_M_T=_opt(r["C_M T [°C]"]),
-            C_M_uncertainty=_opt(r["C_M uncertainty"]),
+            C_M_uncertainty=_opt(r["C_M uncertainty [%]"]),
             C_M_source=_text(r["C_M source"]),
             source=_text(r["source"]),
+            kp_T_min=_opt(r["k_p T min [°C]"]),
+            kp_T_max=_opt(r["k_p T max [°C]"]),
+            C_M_low=_opt(r["C_M low [-]"]),
+            C_M_high=_opt(r["C_M high [-]"]),
+            kbb_A=_opt(r["k_bb A [1/s]"]),
+            kbb_E=_opt(r["k_bb E [kJ/mol]"]),
+            kpt_A=_opt(r["k_p MCR A [L/mol/s]"]),
+            kpt_E=_opt(r["k_p MCR E [kJ/mol]"]),
+            bb_T_min=_opt(r["backbiting T min [°C]"]),
+            bb_T_max=_opt(r["backbiting T max [°C]"]),
+            backbiting_caution=_text(r["backbiting caution"]),
+            backbiting_source=_text(r["backbiting source"]),
         )
 
     def initiator(self, name: str) -> Initiator:
@@ -764,6 +1012,10 @@ class ReferenceData:
             f=float(r["f [-]"]),
             source=_text(r["source"]),
             caution=_text(r["caution"]),
+            T_min=_opt(r["k_d T min [°C]"]),
+            T_max=_opt(r["k_d T max [°C]"]),
+            kd_source=_text(r["k_d source"]),
+            f_source=_text(r["f source"]),
         )
 
     def termination(self, monomer: str) -> Termination:
@@ -792,11 +1044,18 @@ class ReferenceData:
             raise DataError(f"termination row for {canon!r} has no k_t", column="k_t [L/mol/s]")
         return Termination(
             monomer=canon,
-            k_t=float(r["k_t [L/mol/s]"]),
+            k_t_ref=float(r["k_t [L/mol/s]"]),
             convention=conv,
             T=_opt(r["k_t T [°C]"]),
             delta=_opt(r["delta [-]"]),
             source=_text(r["source"]),
+            E=_opt(r["k_t E [kJ/mol]"]),
+            T_min=_opt(r["k_t T min [°C]"]),
+            T_max=_opt(r["k_t T max [°C]"]),
+            k_t_low=_opt(r["k_t low [L/mol/s]"]),
+            k_t_high=_opt(r["k_t high [L/mol/s]"]),
+            delta_source=_text(r["delta source"]),
+            note=_text(r["note"]),
         )
 
     def _agent_rows(self, monomer: str) -> tuple[str, list[dict[str, Any]]]:
@@ -822,9 +1081,11 @@ class ReferenceData:
             C_ref=float(r["C [-]"]),
             T_ref=_opt(r["C T [°C]"]),
             dE=_opt(r["dE [kJ/mol]"]),
-            C_uncertainty=_opt(r["C uncertainty"]),
+            C_uncertainty=_opt(r["C uncertainty [%]"]),
             source=_text(r["source"]),
             caution=_text(r["caution"]),
+            T_min=_opt(r["C T min [°C]"]),
+            T_max=_opt(r["C T max [°C]"]),
         )
 
     def agent(self, name: str, monomer: str) -> Agent:
@@ -876,8 +1137,11 @@ class ReferenceData:
                 key="mark_houwink",
             )
         if T is not None:
-            rows.sort(key=lambda r: abs((1e9 if _opt(r["T [°C]"]) is None else _opt(r["T [°C]"]))
-                                        - float(T)))
+            def distance(r: Mapping[str, Any]) -> float:
+                t = _opt(r["T [°C]"])
+                return abs((1e9 if t is None else t) - float(T))
+
+            rows.sort(key=distance)
         r = rows[0]
         return MarkHouwinkPair(
             polymer=r["polymer"],

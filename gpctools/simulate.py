@@ -152,7 +152,7 @@ def mixture(parts: Sequence[tuple[float, DistributionModel]]) -> DistributionMod
 
 
 # Polystyrene narrow standards of an invented 3-column set, 10 standards, peak volumes in mL
-# at 1.0 mL/min. Only used to build the demo and test calibration (SCIENCE.md section 2:
+# at 1.0 mL/min. Only used to build the demo and test calibration (docs/science.md, section 2:
 # 8-10 evenly spread standards).
 DEFAULT_STANDARDS: tuple[tuple[str, float, float], ...] = (
     ("PS 2.5M", 2.52e6, 11.20),
@@ -308,7 +308,7 @@ def averages_from_dwdlogM(M: Any, dwdlogM: Any) -> tuple[float, float]:
 
     References
     ----------
-    SCIENCE.md section 1: Mn = Σw/Σ(w/M), Mw = ΣwM/Σw with w ∝ dw/dlogM · Δlog M.
+    docs/science.md, section 1: Mn = Σw/Σ(w/M), Mw = ΣwM/Σw with w ∝ dw/dlogM · Δlog M.
     """
     M = np.asarray(M, dtype=float)
     h = np.asarray(dwdlogM, dtype=float)

@@ -57,7 +57,7 @@ def no_transfer(conc_M=6.0, conc_I=0.02):
 
 
 def test_dpn_and_rate_scaling_at_steady_state():
-    # derived (SCIENCE §3): R_p = k_p[M](f k_d [I]/k_t)^½, DPn = 2ν/(1+δ) with
+    # derived (docs/science.md, section 3): R_p = k_p[M](f k_d [I]/k_t)^½, DPn = 2ν/(1+δ) with
     # ν = k_p[M]/(2 (f k_d k_t [I])^½): DPn ∝ [M]/[I]^½ and R_p ∝ [M][I]^½.
     # rtol 1e-12: exact algebra, only rounding.
     a = predict(no_transfer())
@@ -72,7 +72,7 @@ def test_dpn_and_rate_scaling_at_steady_state():
 
 
 def test_rate_independent_of_transfer_agent():
-    # derived (SCIENCE §3): transfer with fast re-initiation leaves [R•] and R_p unchanged;
+    # derived (docs/science.md, section 3): transfer with fast re-initiation leaves [R•] and R_p unchanged;
     # the Mayo sum gains exactly C_A[A]/[M]. rtol 1e-12: exact algebra.
     plain = predict(recipe())
     with_agent = predict(recipe(agent=[{"name": "NDM", "concentration [mol/L]": 1e-3}]))
@@ -85,41 +85,42 @@ def test_rate_independent_of_transfer_agent():
 def test_hand_computed_prediction_from_bundled_values():
     # Hand arithmetic from the bundled values (styrene 6.0 mol/L, AIBN 0.02 mol/L,
     # toluene 3.0 mol/L, 60 °C = 333.15 K):
-    #   k_p = 4.266e7*exp(-32510/(8.314462618*333.15)) = 4.266e7*exp(-11.73671) = 341.09
-    #   k_d = 8.7e-6 1/s (tabulated at 60 °C), f = 0.6, k_t = 1e8 (IUPAC), delta = 0.1
-    #   [R] = (0.6*8.7e-6*0.02/1e8)^0.5 = (1.044e-15)^0.5 = 3.2311e-8 mol/L
-    #   R_p = 341.09*6*3.2311e-8 = 6.6126e-5 mol/L/s
-    #   termination = 1.1*1e8*6.6126e-5/(341.09^2*36) = 7273.9/4.18830e6 = 1.7367e-3
+    #   k_p = 4.266e7*exp(-32510/(8.314462618*333.15)) = 4.266e7*exp(-11.73662) = 341.09
+    #   k_d = 9.86e-6 1/s, k_t = 2.56e8 (IUPAC), both tabulated at 60 °C; f = 0.6, delta = 0.1
+    #   [R] = (0.6*9.86e-6*0.02/2.56e8)^0.5 = (4.6219e-16)^0.5 = 2.1499e-8 mol/L
+    #   R_p = 341.09*6*2.1499e-8 = 4.3998e-5 mol/L/s
+    #   termination = 1.1*2.56e8*4.3998e-5/(341.09^2*36) = 12389.8/4.18839e6 = 2.9581e-3
     #   C_M = 5.27e-5; toluene 1.05e-5*3/6 = 5.25e-6
-    #   1/DPn = 1.7367e-3 + 5.27e-5 + 5.25e-6 = 1.79465e-3 -> DPn = 557.21, Mn = 58034
-    #   beta = 2*0.9*1e8*3.2311e-8/(341.09*6) = 2.8418e-3, tau = 1.79465e-3 - 1.4209e-3
-    #   = 3.7375e-4, u = 0.88376, D = 2 - u^2/2 = 1.6095
+    #   1/DPn = 2.9581e-3 + 5.27e-5 + 5.25e-6 = 3.01609e-3 -> DPn = 331.56, Mn = 34532
+    #   beta = 2*0.9*2.56e8*2.1499e-8/(341.09*6) = 4.8406e-3, tau = 3.01609e-3 - 2.4203e-3
+    #   = 5.9579e-4, u = 0.89041, D = 2 - u^2/2 = 1.6036
+    # (before issue 13, with k_t = 1e8 and k_d = 8.7e-6: R_p 6.6126e-5, DPn 557.21, D 1.6095)
     # rtol 2e-4: five-digit hand arithmetic.
     pr = predict(recipe())
     p = pr.parameters
     assert p.k_p == pytest.approx(341.09, rel=2e-4)
-    assert pr.radicals == pytest.approx(3.2311e-8, rel=2e-4)
-    assert pr.R_p == pytest.approx(6.6126e-5, rel=2e-4)
-    assert pr.inv_DPn == pytest.approx(1.79465e-3, rel=2e-4)
-    assert pr.DPn == pytest.approx(557.21, rel=2e-4)
-    assert pr.Mn == pytest.approx(58034.0, rel=2e-4)
-    assert pr.dispersity == pytest.approx(1.6095, rel=2e-4)
-    assert pr.Mw == pytest.approx(58034.0 * 1.6095, rel=3e-4)
+    assert pr.radicals == pytest.approx(2.1499e-8, rel=2e-4)
+    assert pr.R_p == pytest.approx(4.3998e-5, rel=2e-4)
+    assert pr.inv_DPn == pytest.approx(3.01609e-3, rel=2e-4)
+    assert pr.DPn == pytest.approx(331.56, rel=2e-4)
+    assert pr.Mn == pytest.approx(34532.0, rel=2e-4)
+    assert pr.dispersity == pytest.approx(1.6036, rel=2e-4)
+    assert pr.Mw == pytest.approx(34532.0 * 1.6036, rel=3e-4)
     shares = {b.term: b.share for b in pr.budget}
     assert sum(shares.values()) == pytest.approx(100.0, rel=1e-12)
-    assert shares["transfer to monomer"] == pytest.approx(100 * 5.27e-5 / 1.79465e-3, rel=2e-4)
+    assert shares["transfer to monomer"] == pytest.approx(100 * 5.27e-5 / 3.01609e-3, rel=2e-4)
 
 
 def test_report_prints_every_parameter_used():
     pr = predict(recipe())
     md = prediction_markdown(pr)
-    for text in ("341.09", "8.7e-06", "0.6", "1e+08", "0.1", "5.27e-05", "1.05e-05", "104.15"):
+    for text in ("341.09", "9.86e-06", "0.6", "2.56e+08", "0.1", "5.27e-05", "1.05e-05", "104.15"):
         assert text in md
     assert "IUPAC" in md and "2k_t" in md
 
 
 def test_thiol_check_value_from_science_notes():
-    # derived (SCIENCE §9): 10 ppm (mol) of a thiol with C = 15 adds 1.5e-4 to 1/DPn;
+    # derived (docs/science.md, section 9): 10 ppm (mol) of a thiol with C = 15 adds 1.5e-4 to 1/DPn;
     # DPn 2000 -> 1/(1/2000 + 1.5e-4) = 1538.5 ("about 1540"). rtol 1e-10: exact algebra.
     base = predict(recipe())
     conc = 10e-6 * 6.0
@@ -144,9 +145,10 @@ def test_kt_convention_from_user_table(tmp_path):
     user.write_text("monomer,k_t [L/mol/s],convention,delta [-],source\nstyrene,2e8,kt,0.1,test\n")
     r = recipe(data_files={"termination": str(user)})
     # a handbook-convention k_t (k_t[R]^2) is twice the IUPAC one (2k_t[R]^2) [derived,
-    # SCIENCE.md §3]: 2e8 -> 1e8; default rel tolerance, the conversion is exact.
+    # docs/science.md, section 3]: 2e8 -> 1e8; default rel tolerance, the conversion is exact.
     assert predict(r).parameters.k_t == pytest.approx(1e8)
-    assert predict(r).R_p == pytest.approx(predict(recipe()).R_p, rel=1e-12)
+    same_in_recipe = predict(recipe(termination={"k_t [L/mol/s]": 1e8}))
+    assert predict(r).R_p == pytest.approx(same_in_recipe.R_p, rel=1e-12)
 
 
 def test_regression_user_monomer_C_M_without_temperature(tmp_path):
@@ -170,7 +172,7 @@ def test_regression_user_monomer_C_M_without_temperature(tmp_path):
 
 def test_dispersity_limits_and_mixed_case():
     # published: Schulz-Zimm b = 1 (most probable) D = 2, b = 2 (combination) D = 1.5
-    # (IUPAC Gold Book; SCIENCE §8). Exact.
+    # (IUPAC Gold Book; docs/science.md, section 8). Exact.
     assert dispersity_instantaneous(0.0) == 2.0
     assert dispersity_instantaneous(1.0) == 1.5
     # derived: numerical check of D = (2tau+3beta)(tau+beta/2)/(tau+beta)^2 = 2 - u^2/2
@@ -194,7 +196,7 @@ def test_mixed_dispersity_follows_delta():
 
 
 def test_temperature_overshoot_fingerprint():
-    # from memory (Odian, SCIENCE §9): a 10 °C overshoot roughly doubles R_p and cuts DPn by
+    # from memory (Odian, docs/science.md, section 9): a 10 °C overshoot roughly doubles R_p and cuts DPn by
     # about 30 % for thermal initiators. Bounds are wide because the statement is rough.
     p = resolve_parameters(recipe())
     s0, s1 = evaluate(p), evaluate(p, dT=10.0)
@@ -222,8 +224,40 @@ def test_missing_delta_warns_and_is_listed():
     assert any("C_M" in m for m in messages)
     assert any("disproportionation" in w for w in pr.warnings)
     assert any("C_M" in w for w in pr.warnings)
-    # published: IUPAC part 5, BA A = 2.21e7, E = 17.9 -> 2.825e4 at 50 °C (hand, 4 digits)
-    assert pr.parameters.k_p == pytest.approx(2.825e4, rel=1e-3)
+    # The prediction uses the effective k_p with backbiting (docs/science.md, section 7):
+    # chain ends: published: IUPAC part 5, BA A = 2.21e7, E = 17.9 -> 2.825e4 at 50 °C;
+    # from memory: Nikitin et al. 2007, k_bb = 1.6e8*exp(-12.9149) = 393.78 1/s and mid-chain
+    # k_p = 9.2e5*exp(-10.5329) = 24.514 L/mol/s; derived: x = 393.78/(393.78 + 24.514*4)
+    # = 0.80063, k_p,eff = 0.19937*2.8252e4 + 0.80063*24.514 = 5652 (hand, 4 digits).
+    assert pr.parameters.k_p == pytest.approx(5652.0, rel=1e-3)
+    assert "2.825e+04" in " ".join(pr.notes)
+
+
+def test_reference_values_outside_their_range_are_warned_and_listed():
+    # styrene at 120 °C: k_p benchmark data end near 93 °C, k_t's range at 90 °C, AIBN's
+    # at 100 °C (docs/science.md, section 7); each is named once, as a ReferenceWarning.
+    from gpctools.refdata import ReferenceWarning
+
+    with pytest.warns(ReferenceWarning) as caught:
+        pr = predict(recipe(**{"T [°C]": 120.0}))
+    texts = [str(w.message) for w in caught if issubclass(w.category, ReferenceWarning)]
+    for what in ("k_p of styrene", "k_t of styrene", "k_d of 2,2'-azobis"):
+        assert sum(what in t for t in texts) == 1, what
+        assert any(what in w for w in pr.warnings)
+    with warnings.catch_warnings():  # inside every range at 60 °C: no warning at all
+        warnings.simplefilter("error", ReferenceWarning)
+        assert not any("outside the range" in w for w in predict(recipe()).warnings)
+
+
+def test_kt_follows_its_activation_energy():
+    # derived: k_t(70 °C) = k_t(60 °C)*exp(-E_t/R (1/343.15 - 1/333.15)), E_t = 8.0 kJ/mol
+    # (bundled styrene row, from memory: Odian); evaluate(dT) moves k_t the same way.
+    # rtol 1e-12: the same closed form, only rounding.
+    factor = np.exp(-8.0e3 / 8.314462618 * (1 / 343.15 - 1 / 333.15))
+    p60, p70 = resolve_parameters(recipe()), resolve_parameters(recipe(**{"T [°C]": 70.0}))
+    assert p70.k_t == pytest.approx(p60.k_t * factor, rel=1e-12)
+    assert p60.E_t == 8.0
+    assert evaluate(p60, dT=10.0).R_p == pytest.approx(evaluate(p70).R_p, rel=1e-9)
 
 
 def test_bulk_monomer_from_density():
@@ -386,7 +420,7 @@ def test_impurity_with_user_constant_and_ppm_mass():
     r, p, _ = normal_recipe(candidate=[{"name": "thiol X", "C [-]": 15.0, "M [g/mol]": 200.0}])
     d = diagnose(r, meas_from(p, extra_transfer=1.5e-4))
     est = next(i for i in d.impurities if i.name == "thiol X")
-    assert est.ppm_mol == pytest.approx(10.0, rel=1e-6)  # SCIENCE §9 check value, exact
+    assert est.ppm_mol == pytest.approx(10.0, rel=1e-6)  # docs/science.md, section 9 check value, exact
     assert est.ppm_mass == pytest.approx(10.0 * 200.0 / 104.15, rel=1e-6)
 
 
@@ -436,7 +470,7 @@ def test_integration_limit_artefact_is_told_apart():
 
 
 def test_flow_rate_error_is_told_apart_from_impurity():
-    # derived (SCIENCE §2): an uncorrected relative flow error eps moves every average by
+    # derived (docs/science.md, section 2): an uncorrected relative flow error eps moves every average by
     # 10^(-B V eps); Đ unchanged, R_p unchanged; the check standard moves too.
     eps, B, V = 0.006, 0.4, 25.0
     factor = 10 ** (-B * V * eps)
@@ -473,7 +507,7 @@ def test_ps_equivalent_values_converted_for_pmma():
         "measured": {"Mn [g/mol]": 1e5, "scale": "relative to polystyrene"},
     })
     d = diagnose(r)
-    # derived (SCIENCE §2, IUPAC pairs): PS-equivalent 1e5 -> PMMA 109 380. rtol: 5 digits.
+    # derived (docs/science.md, section 2, IUPAC pairs): PS-equivalent 1e5 -> PMMA 109 380. rtol: 5 digits.
     assert d.measured["Mn [g/mol]"] == pytest.approx(109380.0, rel=1e-4)
     assert next(c for c in d.checks if c.check == "molar-mass scale").status == "flag"
 
@@ -535,7 +569,7 @@ def test_measured_from_results_table(tmp_path):
 
 def test_regression_unrecognised_scale_is_not_taken_as_absolute(tmp_path):
     # An unknown scale text was once read as absolute; a PS-equivalent Mn taken as absolute
-    # is a classic mis-diagnosis (SCIENCE.md section 9), so it is refused.
+    # is a classic mis-diagnosis (docs/science.md, section 9), so it is refused.
     table = tmp_path / "results.csv"
     table.write_text("sample_id,status,Mn [g/mol],Mw [g/mol],molar-mass scale\n"
                      "A,ok,40000,80000,PS cal\n", encoding="utf-8")

@@ -2,7 +2,7 @@
 
 The end-to-end batch is simulated with gpctools.simulate from Schulz-Zimm distributions,
 whose averages are known exactly: Mn = b/a, Mw = (b+1)/a [published: IUPAC Gold Book,
-Schulz-Zimm distribution; SCIENCE.md section 8], so b = 1 gives Mw = 2 Mn. Its scenario
+Schulz-Zimm distribution; docs/science.md, section 8], so b = 1 gives Mw = 2 Mn. Its scenario
 has one out-of-spec sample, one failed check standard and a trend point that breaks a
 Western Electric run rule (Western Electric Statistical Quality Control Handbook, 1956).
 """

@@ -2,7 +2,7 @@
 
 The distribution callables must integrate to 1 over log10 M and their stated averages
 must equal the moments integrated numerically with scipy.integrate.quad. Closed forms:
-Schulz-Zimm [published: IUPAC Gold Book], log-normal [derived, SCIENCE.md section 8].
+Schulz-Zimm [published: IUPAC Gold Book], log-normal [derived, docs/science.md, section 8].
 """
 
 from __future__ import annotations
@@ -115,7 +115,7 @@ def test_schulz_zimm_from_averages() -> None:
 
 
 def test_averages_from_dwdlogM_on_a_lognormal_grid() -> None:
-    # derived, SCIENCE.md section 8: Mn = Mp e^(-s²/2), Mw = Mp e^(s²/2), s² = ln Đ;
+    # derived, docs/science.md, section 8: Mn = Mp e^(-s²/2), Mw = Mp e^(s²/2), s² = ln Đ;
     # trapezoid on 20,001 log-spaced points over ±8 SD: error O(h²) ~ 1e-8; 1e-6
     M = np.geomspace(1e2, 1e8, 20_001)
     Mn, Mw = averages_from_dwdlogM(M, lognormal(1e5, 1.8)(M))
@@ -149,7 +149,7 @@ def test_simulate_series_rows() -> None:
 def test_lognormal_closed_forms() -> None:
     model = lognormal(1e5, 2.0)
     s2 = math.log(2.0)
-    # derived, SCIENCE.md section 8 (dw/dlnM Gaussian): rounding only
+    # derived, docs/science.md, section 8 (dw/dlnM Gaussian): rounding only
     assert model.averages["Mn"] == pytest.approx(1e5 * math.exp(-s2 / 2), rel=1e-12)
     assert model.averages["Mw"] == pytest.approx(1e5 * math.exp(s2 / 2), rel=1e-12)
     assert model.averages["Mz"] == pytest.approx(1e5 * math.exp(3 * s2 / 2), rel=1e-12)

@@ -39,15 +39,20 @@ How the diagnosis works
 
 The unexplained transfer is also expressed as the equivalent concentration of candidate
 impurities: [X] = Δ(1/DPn)·[M]/C_X, or Δ(1/DPn)/C_X·10⁶ ppm (mol of X per mol monomer);
-e.g. 10 ppm of a thiol with C = 15 adds 1.5e-4 to 1/DPn (SCIENCE.md §9).
+e.g. 10 ppm of a thiol with C = 15 adds 1.5e-4 to 1/DPn (docs/science.md, section 9).
+
+Where the parts live: the measurement checks (step 2) are registered in
+:mod:`gpctools.kinetics.checks`, the causes (step 3) in
+:mod:`gpctools.kinetics.hypotheses`, the fit and the Akaike score (steps 3-4) in
+:mod:`gpctools.kinetics.scoring`; :func:`diagnose` assembles them.
 
 References
 ----------
-- Mayo, J. Am. Chem. Soc. 1943; IUPAC steady-state kinetics (SCIENCE.md §3).
-- Fingerprints of low molar mass: SCIENCE.md §9 (transfer keeps R_p, more initiator or
+- Mayo, J. Am. Chem. Soc. 1943; IUPAC steady-state kinetics (docs/science.md, section 3).
+- Fingerprints of low molar mass: docs/science.md, section 9 (transfer keeps R_p, more initiator or
   heat raises R_p with R_p·DPn about constant, retarders lower both, measurement
   artefacts shift all averages or only Mn).
-- Flow-error sensitivity Δ logM = B·V·ε: SCIENCE.md §2 [derived].
+- Flow-error sensitivity Δ logM = B·V·ε: docs/science.md, section 2 [derived].
 - Akaike, IEEE Trans. Autom. Control 1974; Burnham and Anderson, Model Selection and
   Multimodel Inference, 2002 (Akaike weights) [from memory].
 """
@@ -55,7 +60,7 @@ References
 from __future__ import annotations
 
 import math
-from collections.abc import Callable, Mapping
+from collections.abc import Mapping
 from dataclasses import dataclass, replace
 from pathlib import Path
 from typing import Any
@@ -66,6 +71,8 @@ import pandas as pd
 from gpctools import columns
 from gpctools.chainlength import impurity_ratio
 from gpctools.errors import DataError, InputFormatError, MethodError
+from gpctools.kinetics.checks import CheckInputs, CheckLine, flow_sensitivity, run_checks
+from gpctools.kinetics.hypotheses import HYPOTHESES, AnchoredModel, Evidence, hypothesis
 from gpctools.kinetics.predict import (
     KineticParameters,
     KineticState,
@@ -76,15 +83,22 @@ from gpctools.kinetics.predict import (
     resolve_parameters,
 )
 from gpctools.kinetics.recipe import (
-    Checks,
     Measured,
     NormalBatch,
     Recipe,
+    Uncertainty,
     load_recipe,
     normalize_scale,
 )
 from gpctools.kinetics.safety import safety_lines
-from gpctools.refdata import R_GAS, ReferenceData
+from gpctools.kinetics.scoring import (
+    HypothesisFit,
+    Observation,
+    akaike_shares,
+    fit_hypothesis,
+    fit_probability,
+)
+from gpctools.refdata import ReferenceData
 
 __all__ = [
     "Observation",
@@ -100,9 +114,10 @@ __all__ = [
     "DEFAULT_UNCERTAINTY",
 ]
 
-# Default relative standard uncertainties [%] and check tolerances, each with its basis.
+# Default relative standard uncertainties [%], each with its basis (the checks' σ and
+# priors are in gpctools.kinetics.checks).
 DEFAULT_UNCERTAINTY = {
-    # published: SEC round robins, repeatability under 3 % (SCIENCE.md §7); Mn is more
+    # published: SEC round robins, repeatability under 3 % (docs/science.md, section 7); Mn is more
     # sensitive to baseline and limits, hence 4 %.
     "Mn": 4.0,
     "Mw": 3.0,
@@ -112,18 +127,6 @@ DEFAULT_UNCERTAINTY = {
     "model": 10.0,
 }
 _SIGMA_DISPERSITY_MODEL = 0.15  # typical: real Đ exceeds Đ_inst (drift, band broadening)
-_SIGMA_CHECK_STANDARD = 0.03  # published: repeatability under 3 % (SCIENCE.md §7)
-_PRIOR_CHECK_STANDARD = 0.05  # common practice: standards accepted within ±5 %
-_SIGMA_FLOW_MARKER = 0.001  # common practice: marker position reproducible to about 0.1 %
-_PRIOR_FLOW = 0.002  # common practice: pump flow accuracy about 0.2 % when not checked
-_PRIOR_FLOW_CORRECTED = 0.0005  # residual flow error after marker correction
-_SIGMA_LIMIT = 0.03  # common practice: a well-placed limit moves Mn by less than ~3 %
-_SIGMA_OUTSIDE = 1.0  # % mass; common practice: warn above about 1 % (SCIENCE.md §1)
-_SIGMA_INDUCTION = 5.0  # min; common practice: about one sampling interval
-_DEFAULT_SLOPE = 0.4  # decades/mL, typical 0.3-0.5 (SCIENCE.md §2)
-_DEFAULT_PEAK_VOLUME = 25.0  # mL, typical 20-30 (SCIENCE.md §2)
-_BV_REL_DEFAULT = 0.3  # B·V range 6-15 around 10
-_BV_REL_GIVEN = 0.1
 
 _MAX_IMPURITY_PPM = 1e4  # 1 mol % of the monomer
 _CLEAR_SHARE = 50.0
@@ -131,24 +134,6 @@ _CLEAN_MAX_SHARE = 20.0
 
 
 # --------------------------------------------------------------------------- records
-
-
-@dataclass(frozen=True)
-class Observation:
-    """One observation: y = ln(measured/expected) (or a raw check value) and σ.
-
-    ``name`` is one of "R_p", "Mn", "Mw", "check standard", "flow marker",
-    "low-M limit", "outside calibration", "induction period"; ``recorded`` is False for
-    priors of checks that were not made.
-    """
-
-    name: str
-    y: float
-    sigma: float
-    recorded: bool
-    measured: float | None
-    expected: float | None
-    unit: str
 
 
 @dataclass(frozen=True)
@@ -205,27 +190,6 @@ class Cause:
             "numbers": {k: v for k, v in self.numbers},
             "next step": self.next_step,
             "residuals [sigma]": {k: v for k, v in self.residuals},
-        }
-
-
-@dataclass(frozen=True)
-class CheckLine:
-    """A measurement check: status ``ok``, ``flag`` or ``not recorded``, with its numbers."""
-
-    check: str
-    status: str
-    text: str
-    numbers: tuple[tuple[str, float], ...]
-    action: str
-
-    def summary(self) -> dict[str, Any]:
-        """JSON-safe dict."""
-        return {
-            "check": self.check,
-            "status": self.status,
-            "text": self.text,
-            "numbers": {k: v for k, v in self.numbers},
-            "action": self.action,
         }
 
 
@@ -309,7 +273,7 @@ def rate_from_conversion(
 
     References
     ----------
-    SCIENCE.md §3 (R_p = k_p[M][R•]).
+    docs/science.md, section 3 (R_p = k_p[M][R•]).
     """
     t = np.asarray(time_min, dtype=float) * 60.0
     x = np.asarray(conversion, dtype=float)
@@ -499,16 +463,16 @@ class Diagnosis:
 
 
 
-# --------------------------------------------------------------------------- helpers
+# --------------------------------------------------------------------------- steps
 
 
 def _ps_to_absolute(
-    M: float | None, scale: str, monomer_polymer: str, ref: ReferenceData, notes: list[str]
+    M: float | None, scale: str, monomer_polymer: str, ref: ReferenceData
 ) -> tuple[float | None, float | None]:
     """Convert a standard-equivalent average to the sample polymer (Mark-Houwink).
 
     log M_x = [log(K_s/K_x) + (1 + a_s)·log M_s]/(1 + a_x) (Benoit, Grubisic and Rempp,
-    1967; SCIENCE.md §2), applied to the average itself: exact per slice, approximate
+    1967; docs/science.md, section 2), applied to the average itself: exact per slice, approximate
     for an average (the map is a power law with exponent close to 1).
     Returns (converted value, factor) or (M, None) if no pair is known.
     """
@@ -526,68 +490,327 @@ def _ps_to_absolute(
     return 10**log_mx, 10**log_mx / M
 
 
-def _sig(x: float | None, n: int = 4) -> str:
-    if x is None or (isinstance(x, float) and not math.isfinite(x)):
-        return "n/a"
-    return f"{x:.{n}g}"
+def _absolute(
+    m: Measured, polymer: str, ref: ReferenceData
+) -> tuple[float | None, float | None, float | None]:
+    """Mn, Mw on the absolute scale [g/mol] and the conversion factor (None: no pair)."""
+    Mn, f_n = _ps_to_absolute(m.Mn, m.scale, polymer, ref)
+    Mw, f_w = _ps_to_absolute(m.Mw, m.scale, polymer, ref)
+    return Mn, Mw, (f_n if f_n is not None else f_w)
 
 
-class _Hyp:
-    """One hypothesis: a parameter grid and a prediction μ(θ) for each observation."""
+def _polymer(p: KineticParameters, ref: ReferenceData) -> str:
+    """The polymer of the recipe's monomer (the monomer name when not tabulated)."""
+    try:
+        return ref.monomer(p.monomer).polymer
+    except MethodError:
+        return p.monomer
 
-    def __init__(
-        self,
-        key: str,
-        title: str,
-        category: str,
-        grid: np.ndarray,
-        mu: Callable[[float], dict[str, float]],
-        *,
-        free: tuple[str, ...] = (),
-        extra_sigma: Callable[[float, str], float] | None = None,
-        k: int = 1,
-        parameter: str = "",
-        unit: str = "",
-        to_value: Callable[[float], float] = lambda t: t,
-    ) -> None:
-        self.key, self.title, self.category = key, title, category
-        self.grid, self.mu, self.free = grid, mu, free
-        self.extra_sigma = extra_sigma
-        self.k, self.parameter, self.unit, self.to_value = k, parameter, unit, to_value
 
-    def chi2(self, theta: float, obs: Mapping[str, Observation]) -> tuple[float, dict[str, float]]:
-        mu = self.mu(theta)
-        total = 0.0
-        res = {}
-        for name, o in obs.items():
-            if name in self.free:
-                continue
-            s = o.sigma
-            if self.extra_sigma is not None:
-                s = math.hypot(s, self.extra_sigma(theta, name))
-            r = (o.y - mu.get(name, 0.0)) / s
-            res[name] = r
-            total += r * r
-        return total, res
+def _normal_batch(recipe: Recipe, reference: Recipe | NormalBatch | None) -> NormalBatch | None:
+    if reference is None:
+        return recipe.normal_batch
+    if isinstance(reference, Recipe):
+        return NormalBatch(recipe=reference, measured=reference.measured)
+    return reference
 
-    def fit(self, obs: Mapping[str, Observation]) -> tuple[float, float, dict[str, float]]:
-        from scipy.optimize import minimize_scalar
 
-        vals = [self.chi2(t, obs)[0] for t in self.grid]
-        i = int(np.argmin(vals))
-        best_t, best = float(self.grid[i]), vals[i]
-        if len(self.grid) > 2:
-            lo = float(self.grid[max(i - 1, 0)])
-            hi = float(self.grid[min(i + 1, len(self.grid) - 1)])
-            if hi > lo:
-                r = minimize_scalar(
-                    lambda t: self.chi2(t, obs)[0], bounds=(lo, hi), method="bounded",
-                    options={"xatol": 1e-10 * max(1.0, abs(hi - lo))},
-                )
-                if r.success and r.fun < best:
-                    best_t, best = float(r.x), float(r.fun)
-        chi2, res = self.chi2(best_t, obs)
-        return best_t, chi2, res
+@dataclass(frozen=True)
+class _BatchValues:
+    """This batch as measured: Mn, Mw on the absolute scale [g/mol], R_p [mol/L/s]."""
+
+    Mn: float | None
+    Mw: float | None
+    scale_factor: float | None
+    R_p: float | None
+    R_p_rel_se: float | None
+    induction: float | None
+    note: str | None
+
+    def table(self, M0: float) -> dict[str, float | None]:
+        """Unit-named measured values (``Diagnosis.measured``)."""
+        Mn, Mw = self.Mn, self.Mw
+        return {
+            "R_p [mol/L/s]": self.R_p,
+            "Mn [g/mol]": Mn,
+            "Mw [g/mol]": Mw,
+            "dispersity [-]": (Mw / Mn) if (Mw and Mn) else None,
+            "1/DPn [-]": (M0 / Mn) if Mn else None,
+            "induction period [min]": self.induction,
+        }
+
+
+def _batch_values(
+    meas: Measured, p: KineticParameters, polymer: str, ref: ReferenceData
+) -> _BatchValues:
+    """Measured values on the absolute scale; R_p and induction from conversion if needed."""
+    Mn, Mw, fac = _absolute(meas, polymer, ref)
+    Rp, Rp_rel_se, induction, note = meas.R_p, None, meas.induction_min, None
+    if Rp is None and meas.conversion:
+        rc = rate_from_conversion(meas.time_min, meas.conversion, p.conc_M)
+        Rp = rc.R_p
+        Rp_rel_se = rc.R_p_se / rc.R_p if math.isfinite(rc.R_p_se) else None
+        if induction is None:
+            induction = rc.induction_min
+        note = (
+            f"R_p from conversion: k_app = {rc.k_app:.4g} 1/s from {rc.n_points} points, "
+            f"R_p = k_app·[M]0 = {rc.R_p:.4g} mol/L/s"
+        )
+    return _BatchValues(Mn, Mw, fac, Rp, Rp_rel_se, induction, note)
+
+
+@dataclass(frozen=True)
+class _Anchor:
+    """The model anchored to the normal batch.
+
+    ``parameters``: this recipe's parameters with f × φ and the 1/DPn offset term;
+    ``has``: which of "R_p", "Mn", "Mw" the normal batch measured.
+    """
+
+    parameters: KineticParameters
+    Mw_factor: float
+    has: frozenset[str]
+    info: dict[str, Any]
+    note: str | None
+
+
+def _offset_term(conc_M: float, offset: float) -> TransferTerm:
+    # a term C·[X]/[M] with [X] = [M] contributes exactly the offset
+    return TransferTerm("normal-batch offset", "offset", conc_M, offset, None, None, "anchor")
+
+
+def _anchor(
+    recipe: Recipe, normal: NormalBatch | None, p: KineticParameters, polymer: str,
+    ref: ReferenceData,
+) -> _Anchor:
+    """Scale f·k_d·[I] to the normal batch's R_p (φ), offset 1/DPn to its Mn, Mw to its Mw.
+
+    φ = (R_p,normal/R_p,model)²; offset = M0/Mn,normal − 1/DPn(model with φ);
+    Mw factor = Mw,normal/(DPn·M0·Đ_inst) of the anchored normal-batch model. The same
+    φ and offset are carried to this recipe.
+    """
+    if normal is None or normal.measured.is_empty:
+        return _Anchor(p, 1.0, frozenset(), {}, None)
+    nrec = normal.recipe if normal.recipe is not None else recipe
+    p_ref = resolve_parameters(nrec, ref) if normal.recipe is not None else p
+    nm = normal.measured
+    nMn, nMw, _ = _absolute(nm, polymer, ref)
+    nRp = nm.R_p
+    if nRp is None and nm.conversion:
+        nRp = rate_from_conversion(nm.time_min, nm.conversion, p_ref.conc_M).R_p
+    has: set[str] = set()
+    phi = 1.0
+    if nRp is not None:
+        phi = (nRp / evaluate(p_ref).R_p) ** 2
+        has.add("R_p")
+    p_ref_cal = replace(p_ref, f=p_ref.f * phi)
+    offset = 0.0
+    if nMn is not None:
+        offset = p_ref.M0 / nMn - evaluate(p_ref_cal).inv_DPn
+        has.add("Mn")
+    if offset:
+        p_ref_cal = replace(p_ref_cal, transfer=p_ref_cal.transfer + (
+            _offset_term(p_ref.conc_M, offset),))
+    Mw_factor = 1.0
+    if nMw is not None:
+        s_ref = evaluate(p_ref_cal)
+        Mw_factor = nMw / (s_ref.DPn * p_ref.M0 * s_ref.dispersity)
+        has.add("Mw")
+    transfer = p.transfer + ((_offset_term(p.conc_M, offset),) if offset else ())
+    info = {
+        "radical flux factor (f·k_d·[I]) [-]": phi,
+        "1/DPn offset [-]": offset,
+        "Mw factor [-]": Mw_factor,
+        "normal batch": nrec.label if normal.recipe is not None else "same recipe",
+    }
+    note = ("expected values anchored to the normal batch: radical flux × "
+            f"{phi:.4g}, 1/DPn offset {offset:+.4g}, Mw × {Mw_factor:.4g}")
+    return _Anchor(replace(p, f=p.f * phi, transfer=transfer), Mw_factor, frozenset(has),
+                   info, note)
+
+
+@dataclass(frozen=True)
+class _Expected:
+    """Expected R_p [mol/L/s], Mn, Mw [g/mol] and 1/DPn [-] of the anchored model."""
+
+    R_p: float
+    Mn: float
+    Mw: float
+    inv_DPn: float
+
+    def table(self) -> dict[str, float | None]:
+        """Unit-named expected values (``Diagnosis.expected``)."""
+        return {
+            "R_p [mol/L/s]": self.R_p,
+            "Mn [g/mol]": self.Mn,
+            "Mw [g/mol]": self.Mw,
+            "dispersity [-]": self.Mw / self.Mn,
+            "1/DPn [-]": self.inv_DPn,
+        }
+
+
+def _expected(base: KineticState, M0: float, Mw_factor: float) -> _Expected:
+    return _Expected(R_p=base.R_p, Mn=base.DPn * M0,
+                     Mw=base.DPn * M0 * base.dispersity * Mw_factor, inv_DPn=base.inv_DPn)
+
+
+def _value_observations(
+    u: Uncertainty, v: _BatchValues, e: _Expected, anchored: frozenset[str]
+) -> dict[str, Observation]:
+    """y = ln(measured/expected) of R_p, Mn, Mw with σ (see ``DEFAULT_UNCERTAINTY``).
+
+    σ = (σ_meas²·(2 if the normal batch measured it) + σ_model²)^½, σ_model 0 when
+    anchored; an un-anchored Mw adds the dispersity-model σ (0.15).
+    """
+    sMn = (u.Mn if u.Mn is not None else DEFAULT_UNCERTAINTY["Mn"]) / 100.0
+    sMw = (u.Mw if u.Mw is not None else DEFAULT_UNCERTAINTY["Mw"]) / 100.0
+    sRp = (u.R_p if u.R_p is not None else DEFAULT_UNCERTAINTY["R_p"]) / 100.0
+    if u.R_p is None and v.R_p_rel_se is not None and math.isfinite(v.R_p_rel_se):
+        sRp = max(v.R_p_rel_se, 0.05)
+
+    def model_sigma(is_anchored: bool) -> float:
+        if u.model is not None:
+            return u.model / 100.0
+        return 0.0 if is_anchored else DEFAULT_UNCERTAINTY["model"] / 100.0
+
+    def sigma(s_meas: float, name: str) -> float:
+        return math.hypot(s_meas * (math.sqrt(2) if name in anchored else 1.0),
+                          model_sigma(name in anchored))
+
+    obs: dict[str, Observation] = {}
+    if v.R_p is not None:
+        obs["R_p"] = Observation("R_p", math.log(v.R_p / e.R_p), sigma(sRp, "R_p"), True,
+                                 v.R_p, e.R_p, "mol/L/s")
+    if v.Mn is not None:
+        obs["Mn"] = Observation("Mn", math.log(v.Mn / e.Mn), sigma(sMn, "Mn"), True, v.Mn, e.Mn,
+                                "g/mol")
+    if v.Mw is not None:
+        if "Mw" in anchored:
+            s = math.hypot(sMw * math.sqrt(2), model_sigma(True))
+        else:
+            s = math.sqrt(sMw**2 + model_sigma(False) ** 2 + _SIGMA_DISPERSITY_MODEL**2)
+        obs["Mw"] = Observation("Mw", math.log(v.Mw / e.Mw), s, True, v.Mw, e.Mw, "g/mol")
+    return obs
+
+
+def _excess(
+    M0: float, v: _BatchValues, e: _Expected, fits: list[HypothesisFit]
+) -> float | None:
+    """1/DPn measured − expected [-]: from Mn, else the transfer fit when Mw was measured."""
+    if v.Mn is not None:
+        return M0 / v.Mn - e.inv_DPn
+    if v.Mw is None:
+        return None
+    return next(f.value for f in fits if f.hypothesis.key == "transfer")
+
+
+def _impurity_candidates(
+    recipe: Recipe, ref: ReferenceData, p: KineticParameters
+) -> list[tuple[str, float, float | None, str]]:
+    """(name, C [-], M [g/mol], source): the recipe's candidates, then the table's agents."""
+    cands: list[tuple[str, float, float | None, str]] = []
+    for c in recipe.candidates:
+        if c.C is not None:
+            M = c.M
+            if M is None:
+                try:
+                    M = ref.agent(c.name, p.monomer).M
+                except MethodError:
+                    M = None
+            cands.append((c.name, c.C, M, "recipe"))
+        else:
+            try:
+                a = ref.agent(c.name, p.monomer)
+            except MethodError as exc:
+                raise MethodError(exc.message, key="candidate.name", path=recipe.path) from None
+            cands.append((a.agent, a.C(p.T), c.M if c.M is not None else a.M, a.source))
+    try:
+        table_agents = ref.agents_for(p.monomer)
+    except MethodError:  # monomer not in the tables
+        table_agents = []
+    for a in sorted(table_agents, key=lambda a: -a.C(p.T)):
+        cands.append((a.agent, a.C(p.T), a.M, a.source))
+    return cands
+
+
+def _impurity_estimates(
+    recipe: Recipe, ref: ReferenceData, p: KineticParameters, excess: float | None
+) -> tuple[ImpurityEstimate, ...]:
+    """Level of each candidate that would explain ``excess`` (none when there is no excess)."""
+    if not (excess is not None and excess > 0):
+        return ()
+    impurities: list[ImpurityEstimate] = []
+    seen = set()
+    n_recipe = len(recipe.candidates)
+    for j, (name, C, M, src) in enumerate(_impurity_candidates(recipe, ref, p)):
+        if name.lower() in seen or C <= 0:
+            continue
+        # table candidates needing more than 1 mol % of the monomer are not a hidden
+        # impurity (common practice); candidates named in the recipe are always shown
+        ratio = float(impurity_ratio(excess, C))  # [X]/[M], instantaneous
+        if j >= n_recipe and 1e6 * ratio > _MAX_IMPURITY_PPM:
+            continue
+        seen.add(name.lower())
+        ppm = 1e6 * ratio
+        impurities.append(ImpurityEstimate(
+            name=name, C=C, concentration=ratio * p.conc_M, ppm_mol=ppm,
+            ppm_mass=ppm * M / p.M0 if M else None, source=src,
+        ))
+    return tuple(impurities)
+
+
+def _ranked_causes(
+    fits: list[HypothesisFit], shares: np.ndarray, ev: Evidence
+) -> tuple[Cause, ...]:
+    """One Cause per fit with its explanation, highest share first (then lowest χ²)."""
+    causes = []
+    for f, share in zip(fits, shares, strict=True):
+        h = f.hypothesis
+        x = h.explain(f.value, ev)
+        causes.append(Cause(
+            key=h.key, title=h.title, category=h.category, share=float(share), chi2=f.chi2,
+            parameter=h.parameter, value=f.value, unit=h.unit, text=x.text,
+            numbers=x.numbers, next_step=x.next_step, residuals=f.residuals,
+        ))
+    causes.sort(key=lambda c: (-c.share, c.chi2))
+    return tuple(causes)
+
+
+def _closing_notes(obs: Mapping[str, Observation], causes: tuple[Cause, ...]) -> list[str]:
+    """Notes on what cannot be told apart and on a poor fit of the best single cause."""
+    notes = []
+    if "R_p" not in obs and any(k in obs for k in ("Mn", "Mw")):
+        notes.append(
+            "R_p not measured: unexplained transfer, extra initiator and a temperature "
+            "overshoot lower Mn alike and cannot be told apart; measure conversion against "
+            "time (the rate goes up with initiator or heat, not with transfer)"
+        )
+    top = causes[0]
+    h = hypothesis(top.key)
+    # goodness of fit of the best single cause: chi-square with (observations - k) dof
+    n_obs = len(obs) - sum(1 for f in h.free if f in obs)
+    fit_p, dof = fit_probability(top.chi2, n_obs, h.k)
+    if fit_p < 0.01:
+        notes.append(
+            f"no single cause explains all numbers well (best χ² = {top.chi2:.3g} for {dof} "
+            f"degrees of freedom, p = {fit_p:.2g}): two causes may act together, or an "
+            "input value is off; check the residuals"
+        )
+    return notes
+
+
+def _safety(p: KineticParameters, causes: tuple[Cause, ...]) -> tuple[str, ...]:
+    """Cautions: runaway when heat or initiator is a likely cause, and the tables' cautions."""
+    runaway = causes[0].key in ("initiator", "temperature") or any(
+        c.key in ("initiator", "temperature") and c.share >= 20.0 for c in causes
+    )
+    cautions: list[str] = []
+    if p.initiator_caution:
+        cautions.append(f"{p.initiator}: {p.initiator_caution}")
+    for t in p.transfer:
+        if t.caution:
+            cautions.append(f"{t.name}: {t.caution}")
+    return safety_lines(runaway=runaway, cautions=tuple(dict.fromkeys(cautions)))
 
 
 # --------------------------------------------------------------------------- main entry
@@ -629,12 +852,7 @@ def diagnose(
     """
     ref = ref if ref is not None else recipe.reference_data()
     meas = measured if measured is not None else recipe.measured
-    if reference is None:
-        normal = recipe.normal_batch
-    elif isinstance(reference, Recipe):
-        normal = NormalBatch(recipe=reference, measured=reference.measured)
-    else:
-        normal = reference
+    normal = _normal_batch(recipe, reference)
     if meas.is_empty:
         raise DataError(
             "nothing measured to compare: give [measured] 'Mn [g/mol]' and/or 'Mw [g/mol]', "
@@ -642,632 +860,55 @@ def diagnose(
             key="measured",
             path=recipe.path,
         )
-    notes: list[str] = []
     pred = predict(recipe, ref)
     p = pred.parameters
-    warns = list(pred.warnings)
-    notes.extend(pred.notes)
-    mon = None
-    try:
-        mon = ref.monomer(p.monomer)
-        polymer = mon.polymer
-    except MethodError:
-        polymer = p.monomer
-    checks: list[CheckLine] = []
-
-    # ---- measured values on the absolute scale
-    def absolute(m: Measured, what: str) -> tuple[float | None, float | None, float | None]:
-        Mn, f_n = _ps_to_absolute(m.Mn, m.scale, polymer, ref, notes)
-        Mw, f_w = _ps_to_absolute(m.Mw, m.scale, polymer, ref, notes)
-        return Mn, Mw, (f_n if f_n is not None else f_w)
-
-    Mn_m, Mw_m, fac = absolute(meas, "measured")
-    if meas.scale != "absolute":
-        std = meas.scale[len("relative to "):]
-        if fac is None:
-            checks.append(CheckLine(
-                "molar-mass scale", "flag",
-                f"Mn/Mw are {std}-equivalent values and no Mark-Houwink pair is bundled to "
-                f"convert them to {polymer}; they are used as if absolute",
-                (), "use universal calibration with a Mark-Houwink pair for the polymer, or "
-                "absolute (light-scattering) detection; add the pair to the mark_houwink table",
-            ))
-            warns.append(f"{std}-equivalent Mn/Mw used as absolute (no Mark-Houwink pair)")
-        elif abs(fac - 1.0) > 1e-12:
-            checks.append(CheckLine(
-                "molar-mass scale", "flag",
-                f"Mn/Mw are {std}-equivalent; converted to {polymer} with the bundled "
-                f"Mark-Houwink pairs (factor {fac:.4g} at Mn; about 5 % uncertain by the "
-                "choice of pair). Using equivalent values as absolute would misstate the gap",
-                (("conversion factor at Mn [-]", fac),),
-                "report which pair was used; prefer universal calibration in the method",
-            ))
-        else:
-            checks.append(CheckLine(
-                "molar-mass scale", "ok", f"{std}-equivalent values of {polymer} are absolute",
-                (), "",
-            ))
-    else:
-        checks.append(CheckLine("molar-mass scale", "ok", "values entered as absolute", (), ""))
-
-    # ---- measured R_p
-    Rp_m, Rp_rel_se, induction = meas.R_p, None, meas.induction_min
-    if Rp_m is None and meas.conversion:
-        rc = rate_from_conversion(meas.time_min, meas.conversion, p.conc_M)
-        Rp_m = rc.R_p
-        Rp_rel_se = rc.R_p_se / rc.R_p if math.isfinite(rc.R_p_se) else None
-        if induction is None:
-            induction = rc.induction_min
-        notes.append(
-            f"R_p from conversion: k_app = {rc.k_app:.4g} 1/s from {rc.n_points} points, "
-            f"R_p = k_app·[M]0 = {rc.R_p:.4g} mol/L/s"
-        )
-
-    # ---- anchoring to the normal batch
-    anchor: dict[str, Any] = {}
-    p_cal = p
-    Mw_factor = 1.0
-    normal_has = {"Mn": False, "Mw": False, "R_p": False}
-    if normal is not None and not normal.measured.is_empty:
-        nrec = normal.recipe if normal.recipe is not None else recipe
-        p_ref = resolve_parameters(nrec, ref) if normal.recipe is not None else p
-        nm = normal.measured
-        nMn, nMw, _ = absolute(nm, "normal batch")
-        nRp = nm.R_p
-        if nRp is None and nm.conversion:
-            nRp = rate_from_conversion(nm.time_min, nm.conversion, p_ref.conc_M).R_p
-        phi = 1.0
-        if nRp is not None:
-            phi = (nRp / evaluate(p_ref).R_p) ** 2
-            normal_has["R_p"] = True
-        p_ref_cal = replace(p_ref, f=p_ref.f * phi)
-        offset = 0.0
-        if nMn is not None:
-            offset = p_ref.M0 / nMn - evaluate(p_ref_cal).inv_DPn
-            normal_has["Mn"] = True
-        if offset:
-            # a term C·[X]/[M] with [X] = [M] contributes exactly the offset
-            off_term = TransferTerm("normal-batch offset", "offset", p_ref.conc_M, offset,
-                                    None, None, "anchor")
-            p_ref_cal = replace(p_ref_cal, transfer=p_ref_cal.transfer + (off_term,))
-        if nMw is not None:
-            s_ref = evaluate(p_ref_cal)
-            Mw_factor = nMw / (s_ref.DPn * p_ref.M0 * s_ref.dispersity)
-            normal_has["Mw"] = True
-        # carry the anchor to this recipe
-        transfer = p.transfer
-        if offset:
-            transfer = transfer + (
-                TransferTerm("normal-batch offset", "offset", p.conc_M, offset, None, None,
-                             "anchor"),
-            )
-        p_cal = replace(p, f=p.f * phi, transfer=transfer)
-        anchor = {
-            "radical flux factor (f·k_d·[I]) [-]": phi,
-            "1/DPn offset [-]": offset,
-            "Mw factor [-]": Mw_factor,
-            "normal batch": nrec.label if normal.recipe is not None else "same recipe",
-        }
-        notes.append(
-            "expected values anchored to the normal batch: radical flux × "
-            f"{phi:.4g}, 1/DPn offset {offset:+.4g}, Mw × {Mw_factor:.4g}"
-        )
-    base = evaluate(p_cal)
-
-    # ---- expected values
-    Rp_e = base.R_p
-    Mn_e = base.DPn * p.M0
-    Mw_e = base.DPn * p.M0 * base.dispersity * Mw_factor
-    inv_e = base.inv_DPn
-
-    # ---- uncertainties
-    u = recipe.uncertainty
-    sMn = (u.Mn if u.Mn is not None else DEFAULT_UNCERTAINTY["Mn"]) / 100.0
-    sMw = (u.Mw if u.Mw is not None else DEFAULT_UNCERTAINTY["Mw"]) / 100.0
-    sRp = (u.R_p if u.R_p is not None else DEFAULT_UNCERTAINTY["R_p"]) / 100.0
-    if u.R_p is None and Rp_rel_se is not None and math.isfinite(Rp_rel_se):
-        sRp = max(Rp_rel_se, 0.05)
-    def model_sigma(anchored: bool) -> float:
-        if u.model is not None:
-            return u.model / 100.0
-        return 0.0 if anchored else DEFAULT_UNCERTAINTY["model"] / 100.0
-
-    obs: dict[str, Observation] = {}
-    if Rp_m is not None:
-        s = math.hypot(sRp * (math.sqrt(2) if normal_has["R_p"] else 1.0),
-                       model_sigma(normal_has["R_p"]))
-        obs["R_p"] = Observation("R_p", math.log(Rp_m / Rp_e), s, True, Rp_m, Rp_e, "mol/L/s")
-    if Mn_m is not None:
-        s = math.hypot(sMn * (math.sqrt(2) if normal_has["Mn"] else 1.0),
-                       model_sigma(normal_has["Mn"]))
-        obs["Mn"] = Observation("Mn", math.log(Mn_m / Mn_e), s, True, Mn_m, Mn_e, "g/mol")
-    if Mw_m is not None:
-        if normal_has["Mw"]:
-            s = math.hypot(sMw * math.sqrt(2), model_sigma(True))
-        else:
-            s = math.sqrt(sMw**2 + model_sigma(False) ** 2 + _SIGMA_DISPERSITY_MODEL**2)
-        obs["Mw"] = Observation("Mw", math.log(Mw_m / Mw_e), s, True, Mw_m, Mw_e, "g/mol")
+    polymer = _polymer(p, ref)
+    # 1. measured and expected values, the model anchored to the normal batch
+    values = _batch_values(meas, p, polymer, ref)
+    anchor = _anchor(recipe, normal, p, polymer, ref)
+    notes = [*pred.notes, *(n for n in (values.note, anchor.note) if n)]
+    base = evaluate(anchor.parameters)
+    model = AnchoredModel(anchor.parameters, base, flow_sensitivity(recipe.checks))
+    expected = _expected(base, p.M0, anchor.Mw_factor)
+    # 2. observations: measured values, then the registered measurement checks
+    obs = _value_observations(recipe.uncertainty, values, expected, anchor.has)
     if not any(k in obs for k in ("Mn", "Mw")):
         notes.append("no Mn or Mw measured: only the rate can be compared")
-
-    ch: Checks = recipe.checks
-    # check standard
-    if ch.check_standard_deviation is not None:
-        y = math.log1p(ch.check_standard_deviation / 100.0)
-        obs["check standard"] = Observation(
-            "check standard", y, _SIGMA_CHECK_STANDARD, True, ch.check_standard_deviation, 0.0,
-            "%")
-        status = "flag" if abs(ch.check_standard_deviation) > 100 * _SIGMA_CHECK_STANDARD else "ok"
-        checks.append(CheckLine(
-            "check standard", status,
-            f"check standard {ch.check_standard_deviation:+.3g} % from its assigned value "
-            f"(repeatability under 3 %)",
-            (("check standard deviation [%]", ch.check_standard_deviation),),
-            "recalibrate and re-run the check standard before judging the sample"
-            if status == "flag" else "",
-        ))
-    else:
-        obs["check standard"] = Observation(
-            "check standard", 0.0, _PRIOR_CHECK_STANDARD, False, None, None, "%")
-        checks.append(CheckLine(
-            "check standard", "not recorded", "no check-standard result given", (),
-            "run a check standard with the samples; give 'check standard deviation [%]'",
-        ))
-    # flow marker
-    BV_given = ch.calibration_slope is not None and ch.peak_volume is not None
-    B = ch.calibration_slope if ch.calibration_slope is not None else _DEFAULT_SLOPE
-    V = ch.peak_volume if ch.peak_volume is not None else _DEFAULT_PEAK_VOLUME
-    BV = B * V
-    BV_rel = _BV_REL_GIVEN if BV_given else _BV_REL_DEFAULT
-    k_flow = math.log(10.0) * BV
-    fe = ch.flow_error
-    if fe is not None and not ch.flow_marker_corrected:
-        obs["flow marker"] = Observation("flow marker", fe, _SIGMA_FLOW_MARKER, True,
-                                         ch.flow_marker_observed, ch.flow_marker_reference, "mL")
-        shift = 100.0 * (10 ** (-BV * fe) - 1.0)
-        status = "flag" if abs(fe) > 2 * _SIGMA_FLOW_MARKER else "ok"
-        checks.append(CheckLine(
-            "flow marker", status,
-            f"flow marker at {ch.flow_marker_observed:g} mL against {ch.flow_marker_reference:g}"
-            f" mL ({100 * fe:+.3g} %); uncorrected this moves every average by about "
-            f"{shift:+.3g} % (B·V = {BV:.3g}), dispersity unchanged",
-            (("flow marker shift [%]", 100 * fe), ("expected shift of averages [%]", shift),
-             ("B·V [decades]", BV)),
-            "re-process with the flow-marker correction; check pump flow, leaks and degassing"
-            if status == "flag" else "",
-        ))
-    elif fe is not None:
-        obs["flow marker"] = Observation("flow marker", 0.0, _PRIOR_FLOW_CORRECTED, False,
-                                         ch.flow_marker_observed, ch.flow_marker_reference, "mL")
-        checks.append(CheckLine(
-            "flow marker", "ok",
-            f"results corrected with the flow marker ({100 * fe:+.3g} % shift)",
-            (("flow marker shift [%]", 100 * fe),), "",
-        ))
-    else:
-        obs["flow marker"] = Observation("flow marker", 0.0, _PRIOR_FLOW, False, None, None, "mL")
-        checks.append(CheckLine(
-            "flow marker", "not recorded", "no flow-marker positions given", (),
-            "use a flow marker and give its observed and reference volumes",
-        ))
-    # low-M limit
-    if ch.Mn_shift_low_limit is not None:
-        y = ch.Mn_shift_low_limit / 100.0
-        obs["low-M limit"] = Observation("low-M limit", y, _SIGMA_LIMIT, True,
-                                         ch.Mn_shift_low_limit, 0.0, "%")
-        status = "flag" if abs(y) > _SIGMA_LIMIT else "ok"
-        checks.append(CheckLine(
-            "low-M integration limit", status,
-            f"Mn changes by {ch.Mn_shift_low_limit:+.3g} % when the low-M limit moves 0.2 mL "
-            "earlier" + (" (a low-M tail or system peak inside the limits)" if status == "flag"
-                         else ""),
-            (("Mn shift, low-M limit -0.2 mL [%]", ch.Mn_shift_low_limit),),
-            "move the limit before the system/solvent peaks, check the baseline end, and "
-            "judge on Mw, which is far less sensitive" if status == "flag" else "",
-        ))
-    else:
-        checks.append(CheckLine(
-            "low-M integration limit", "not recorded", "Mn sensitivity to the limit not given",
-            (), "re-integrate with the low-M limit 0.2 mL earlier and compare Mn",
-        ))
-    # outside calibration
-    if ch.outside_calibration is not None:
-        obs["outside calibration"] = Observation(
-            "outside calibration", ch.outside_calibration, _SIGMA_OUTSIDE, True,
-            ch.outside_calibration, 0.0, "% mass")
-        status = "flag" if ch.outside_calibration > _SIGMA_OUTSIDE else "ok"
-        checks.append(CheckLine(
-            "calibrated range", status,
-            f"{ch.outside_calibration:.3g} % of the mass elutes outside the calibrated range",
-            (("outside calibration [% mass]", ch.outside_calibration),),
-            "add standards covering the range (do not extrapolate the calibration)"
-            if status == "flag" else "",
-        ))
-    # induction period
-    if induction is not None:
-        obs["induction period"] = Observation("induction period", induction, _SIGMA_INDUCTION,
-                                              True, induction, 0.0, "min")
-
-    # ---- hypotheses
-    kin_cache: dict[tuple, KineticState] = {}
-
-    def kin(**kw: float) -> dict[str, float]:
-        key = tuple(sorted(kw.items()))
-        s = kin_cache.get(key)
-        if s is None:
-            s = evaluate(p_cal, **kw)
-            kin_cache[key] = s
-        return {
-            "R_p": math.log(s.R_p / base.R_p),
-            "Mn": math.log(s.DPn / base.DPn),
-            "Mw": math.log(s.DPn * s.dispersity / (base.DPn * base.dispersity)),
-        }
-
-    R0 = base.radicals
-    hyps: list[_Hyp] = [
-        _Hyp("none", "no cause: as expected", "none", np.array([0.0]), lambda t: {}, k=0,
-             parameter="-", unit="-"),
-        _Hyp(
-            "transfer", "unexplained chain transfer (impurity or agent overcharge)", "process",
-            np.linspace(0.02, 1.0, 197)[::-1],
-            lambda r: kin(extra_transfer=inv_e * (1.0 / r - 1.0)),
-            parameter="excess 1/DPn", unit="-", to_value=lambda r: inv_e * (1.0 / r - 1.0),
-        ),
-        _Hyp(
-            "initiator", "excess initiation (initiator overcharge)", "process",
-            np.linspace(0.0, math.log(1000.0), 241),
-            lambda lf: kin(radical_flux_factor=math.exp(lf)),
-            parameter="initiator factor F", unit="-", to_value=math.exp,
-        ),
-        _Hyp(
-            "retarder", "inhibition or retardation (stabilizer, oxygen)", "process",
-            np.linspace(0.02, 1.0, 197)[::-1],
-            lambda h: kin(retarder=2.0 * p_cal.k_t * R0 * (1.0 - h * h) / h),
-            free=("induction period",),
-            parameter="radical loss to retarder ζ = k_z[Z]", unit="1/s",
-            to_value=lambda h: 2.0 * p_cal.k_t * R0 * (1.0 - h * h) / h,
-        ),
-        _Hyp(
-            "dilution", "dilution or monomer loss", "process",
-            np.linspace(0.02, 1.0, 197)[::-1],
-            lambda g: kin(monomer_factor=g),
-            parameter="[M] factor g", unit="-",
-        ),
-        _Hyp(
-            "flow", "flow-rate error (uncorrected flow-marker drift)", "measurement",
-            np.linspace(-0.1, 0.1, 801),
-            lambda e: {"Mn": -k_flow * e, "Mw": -k_flow * e, "check standard": -k_flow * e,
-                       "flow marker": e},
-            extra_sigma=lambda e, name: BV_rel * abs(k_flow * e)
-            if name in ("Mn", "Mw", "check standard") else 0.0,
-            parameter="relative flow error ε", unit="-",
-        ),
-        _Hyp(
-            "calibration", "calibration drift (check standard off)", "measurement",
-            np.linspace(-2.0, 2.0, 801),
-            lambda s: {"Mn": s, "Mw": s, "check standard": s},
-            parameter="shift of all averages ln(factor)", unit="-",
-        ),
-        _Hyp(
-            "limit", "integration-limit artefact (low-M tail inside the limits)", "measurement",
-            np.linspace(-2.0, 0.0, 401),
-            lambda t: {"Mn": t},
-            free=("low-M limit", "outside calibration"),
-            parameter="Mn bias ln(factor)", unit="-",
-        ),
-    ]
-    if p.E_p is not None and p.E_d is not None:
-        hyps.insert(3, _Hyp(
-            "temperature", "temperature overshoot", "process",
-            np.linspace(0.0, 80.0, 321),
-            lambda dT: kin(dT=dT),
-            parameter="temperature rise ΔT", unit="K",
-        ))
-    else:
-        notes.append("temperature overshoot not evaluated: activation energy of k_p or k_d unknown")
-
-    fits = []
-    for h in hyps:
-        theta, chi2, res = h.fit(obs)
-        fits.append((h, theta, chi2, res))
-    aic = np.array([chi2 + 2 * h.k for h, _, chi2, _ in fits])
-    w = np.exp(-(aic - aic.min()) / 2.0)
-    share = 100.0 * w / w.sum()
-
-    # ---- excess 1/DPn and impurity levels
-    excess = None
-    if Mn_m is not None:
-        excess = p.M0 / Mn_m - inv_e
-    else:
-        tr = next(f for f in fits if f[0].key == "transfer")
-        excess = tr[0].to_value(tr[1]) if Mw_m is not None else None
-    impurities: list[ImpurityEstimate] = []
-    if excess is not None and excess > 0:
-        seen = set()
-        cands: list[tuple[str, float, float | None, str]] = []
-        for c in recipe.candidates:
-            if c.C is not None:
-                M = c.M
-                if M is None:
-                    try:
-                        M = ref.agent(c.name, p.monomer).M
-                    except MethodError:
-                        M = None
-                cands.append((c.name, c.C, M, "recipe"))
-            else:
-                try:
-                    a = ref.agent(c.name, p.monomer)
-                except MethodError as exc:
-                    raise MethodError(exc.message, key="candidate.name", path=recipe.path) from None
-                cands.append((a.agent, a.C(p.T), c.M if c.M is not None else a.M, a.source))
-        try:
-            table_agents = ref.agents_for(p.monomer)
-        except MethodError:  # monomer not in the tables
-            table_agents = []
-        for a in sorted(table_agents, key=lambda a: -a.C(p.T)):
-            cands.append((a.agent, a.C(p.T), a.M, a.source))
-        n_recipe = len(recipe.candidates)
-        for j, (name, C, M, src) in enumerate(cands):
-            if name.lower() in seen or C <= 0:
-                continue
-            # table candidates needing more than 1 mol % of the monomer are not a hidden
-            # impurity (common practice); candidates named in the recipe are always shown
-            ratio = float(impurity_ratio(excess, C))  # [X]/[M], instantaneous
-            if j >= n_recipe and 1e6 * ratio > _MAX_IMPURITY_PPM:
-                continue
-            seen.add(name.lower())
-            ppm = 1e6 * ratio
-            impurities.append(ImpurityEstimate(
-                name=name, C=C, concentration=ratio * p.conc_M, ppm_mol=ppm,
-                ppm_mass=ppm * M / p.M0 if M else None, source=src,
-            ))
-
-    # ---- texts
-    rp_ratio = Rp_m / Rp_e if Rp_m is not None else None
-    dp_ratio = Mn_m / Mn_e if Mn_m is not None else None
-    causes = []
-    for (h, theta, chi2, res), sh in zip(fits, share, strict=True):
-        value = float(h.to_value(theta))
-        text, numbers, nxt = _explain(
-            h.key, value, theta, p=p, p_cal=p_cal, base=base, rp_ratio=rp_ratio,
-            dp_ratio=dp_ratio, Mn_m=Mn_m, Mw_m=Mw_m, Mn_e=Mn_e, Mw_e=Mw_e, inv_e=inv_e,
-            excess=excess, impurities=impurities, induction=induction, checks=ch,
-            BV=BV, obs=obs,
-        )
-        causes.append(Cause(
-            key=h.key, title=h.title, category=h.category, share=float(sh), chi2=float(chi2),
-            parameter=h.parameter, value=value, unit=h.unit, text=text,
-            numbers=tuple(numbers), next_step=nxt,
-            residuals=tuple((k, float(v)) for k, v in res.items()),
-        ))
-    causes.sort(key=lambda c: (-c.share, c.chi2))
-    if "R_p" not in obs and any(k in obs for k in ("Mn", "Mw")):
-        notes.append(
-            "R_p not measured: unexplained transfer, extra initiator and a temperature "
-            "overshoot lower Mn alike and cannot be told apart; measure conversion against "
-            "time (the rate goes up with initiator or heat, not with transfer)"
-        )
-
-    top = causes[0]
-    # goodness of fit of the best single cause: chi-square with (observations - k) dof
-    n_obs = len(obs) - sum(1 for h in hyps if h.key == top.key for f in h.free if f in obs)
-    k_top = next(h.k for h in hyps if h.key == top.key)
-    dof = max(n_obs - k_top, 1)
-    from scipy.stats import chi2 as _chi2
-
-    fit_p = float(_chi2.sf(top.chi2, dof))
-    if fit_p < 0.01:
-        notes.append(
-            f"no single cause explains all numbers well (best χ² = {top.chi2:.3g} for {dof} "
-            f"degrees of freedom, p = {fit_p:.2g}): two causes may act together, or an "
-            "input value is off; check the residuals"
-        )
-    runaway = top.key in ("initiator", "temperature") or any(
-        c.key in ("initiator", "temperature") and c.share >= 20.0 for c in causes
+    checks = run_checks(CheckInputs(recipe.checks, meas.scale, values.scale_factor, polymer,
+                                    values.induction))
+    obs.update(checks.observations)
+    # 3. fit and score every registered hypothesis that applies
+    notes.extend(h.skipped_note for h in HYPOTHESES if not h.applies(p))
+    fits = [fit_hypothesis(h, model, obs) for h in HYPOTHESES if h.applies(p)]
+    shares = akaike_shares([f.chi2 for f in fits], [f.hypothesis.k for f in fits])
+    # 4. the excess 1/DPn as impurity levels, explanations, ranking
+    excess = _excess(p.M0, values, expected, fits)
+    impurities = _impurity_estimates(recipe, ref, p, excess)
+    evidence = Evidence(
+        parameters=p, model=model,
+        rp_ratio=values.R_p / expected.R_p if values.R_p is not None else None,
+        mn_ratio=values.Mn / expected.Mn if values.Mn is not None else None,
+        mw_ratio=values.Mw / expected.Mw if values.Mw is not None else None,
+        excess=excess, impurities=impurities, induction=values.induction,
+        Mn_shift_low_limit=recipe.checks.Mn_shift_low_limit,
     )
-    cautions: list[str] = []
-    if p.initiator_caution:
-        cautions.append(f"{p.initiator}: {p.initiator_caution}")
-    for t in p.transfer:
-        if t.caution:
-            cautions.append(f"{t.name}: {t.caution}")
-
-    expected = {
-        "R_p [mol/L/s]": Rp_e,
-        "Mn [g/mol]": Mn_e,
-        "Mw [g/mol]": Mw_e,
-        "dispersity [-]": Mw_e / Mn_e,
-        "1/DPn [-]": inv_e,
-    }
-    measured_d = {
-        "R_p [mol/L/s]": Rp_m,
-        "Mn [g/mol]": Mn_m,
-        "Mw [g/mol]": Mw_m,
-        "dispersity [-]": (Mw_m / Mn_m) if (Mw_m and Mn_m) else None,
-        "1/DPn [-]": (p.M0 / Mn_m) if Mn_m else None,
-        "induction period [min]": induction,
-    }
+    causes = _ranked_causes(fits, shares, evidence)
+    notes.extend(_closing_notes(obs, causes))
     return Diagnosis(
         label=recipe.label,
         prediction=pred,
-        expected=expected,
-        measured=measured_d,
-        anchor=anchor,
+        expected=expected.table(),
+        measured=values.table(p.M0),
+        anchor=anchor.info,
         observations=tuple(obs.values()),
-        causes=tuple(causes),
-        checks=tuple(checks),
-        impurities=tuple(impurities),
+        causes=causes,
+        checks=checks.lines,
+        impurities=impurities,
         excess_inv_DPn=excess,
-        safety=safety_lines(runaway=runaway, cautions=tuple(dict.fromkeys(cautions))),
+        safety=_safety(p, causes),
         notes=tuple(dict.fromkeys(notes)),
-        warnings=tuple(dict.fromkeys(warns)),
+        warnings=tuple(dict.fromkeys([*pred.warnings, *checks.warnings])),
     )
-
-
-def _explain(key: str, value: float, theta: float, **c: Any):
-    """Plain-language text, numbers and next step for one cause."""
-    p: KineticParameters = c["p"]
-    p_cal: KineticParameters = c["p_cal"]
-    base: KineticState = c["base"]
-    rp, dp = c["rp_ratio"], c["dp_ratio"]
-    nums: list[tuple[str, float]] = []
-    if rp is not None:
-        nums.append(("R_p measured/expected [-]", rp))
-    if dp is not None:
-        nums.append(("Mn measured/expected [-]", dp))
-    if c["Mw_m"] is not None:
-        nums.append(("Mw measured/expected [-]", c["Mw_m"] / c["Mw_e"]))
-    rp_txt = f"R_p is {_sig(rp, 3)}× expected" if rp is not None else "R_p was not measured"
-    dp_txt = f"Mn is {_sig(dp, 3)}× expected" if dp is not None else "Mn was not measured"
-
-    if key == "none":
-        return (
-            f"Measured values agree with the expected ones within their uncertainties "
-            f"({dp_txt}; {rp_txt}).",
-            nums,
-            "nothing to chase; if the product is still off-spec, check the specification "
-            "and the sampling",
-        )
-    if key == "transfer":
-        ex = c["excess"]
-        nums.insert(0, ("excess 1/DPn (from Mn) [-]", ex if ex is not None else float("nan")))
-        nums.append(("1/DPn expected [-]", c["inv_e"]))
-        lines = ""
-        if c["impurities"]:
-            top = c["impurities"][:3]
-            lines = "; ".join(
-                f"{i.name} (C = {i.C:.3g}): {i.ppm_mol:.3g} ppm mol"
-                + (f" ({i.ppm_mass:.3g} ppm by mass)" if i.ppm_mass else "")
-                for i in top
-            )
-            nums.append((f"equivalent {top[0].name} [ppm mol]", top[0].ppm_mol))
-        return (
-            f"Chains stop more often than the recipe explains while the radicals keep "
-            f"going: {dp_txt}, {rp_txt}. Excess 1/DPn = {_sig(ex, 4)} "
-            f"(1/DPn measured − expected). Equivalent impurity levels: "
-            f"{lines or 'no candidates'}.",
-            nums,
-            "look for a transfer-active contaminant: thiols or halocarbons in monomer or "
-            "solvent lots (GC), shared lines and cleaning residues, an agent charged twice; "
-            "compare with a retained sample of the previous lot",
-        )
-    if key == "initiator":
-        F = value
-        s = evaluate(p_cal, radical_flux_factor=F)
-        nums.append(("best-fit initiator factor F [-]", F))
-        if rp is not None:
-            nums.append(("initiator factor from R_p, (R_p ratio)² [-]", rp**2))
-        nums.append(("Mn ratio predicted at F [-]", s.DPn / base.DPn))
-        if rp is not None and dp is not None:
-            nums.append(("R_p·DPn measured/expected [-]", rp * dp))
-        prod = (
-            f"; R_p·DPn is {rp * dp:.3g}× expected (about 1 for extra initiator)"
-            if (rp is not None and dp is not None) else ""
-        )
-        from_rate = (
-            f" The rate corresponds to {rp**2:.3g}× the radical flux (R_p ∝ [I]^½)."
-            if rp is not None else ""
-        )
-        return (
-            f"More radicals than the recipe gives: {rp_txt} and {dp_txt}{prod}.{from_rate} "
-            f"Best fit F = {F:.3g} (× f·k_d·[I]), which predicts R_p × "
-            f"{s.R_p / base.R_p:.3g} and Mn × {s.DPn / base.DPn:.3g}.",
-            nums,
-            "check the initiator weighing, assay and charge records, dosing and any "
-            "second charge; do not change initiator or temperature without a heat-balance "
-            "review (runaway risk)",
-        )
-    if key == "temperature":
-        dT = value
-        s = evaluate(p_cal, dT=dT)
-        Ep, Ed = p.E_p, p.E_d
-        nums.append(("best-fit temperature rise [K]", dT))
-        if rp is not None and rp > 1:
-            inv_T = 1.0 / p.T - R_GAS * math.log(rp) / ((Ep + Ed / 2.0) * 1e3)
-            dT_rp = 1.0 / inv_T - p.T
-            nums.append(("temperature rise from R_p alone [K]", dT_rp))
-        nums.append(("Mn ratio predicted at that rise [-]", s.DPn / base.DPn))
-        return (
-            f"A higher temperature speeds up decomposition (E_d = {Ed:g} kJ/mol) and "
-            f"propagation (E_p = {Ep:g} kJ/mol): {rp_txt}, {dp_txt}. A rise of "
-            f"{dT:.3g} K explains it best; it predicts R_p × {s.R_p / base.R_p:.3g} and "
-            f"Mn × {s.DPn / base.DPn:.3g} (heat lowers Mn less than extra initiator at the "
-            "same rate).",
-            nums,
-            "check the temperature record and probe calibration, jacket control and the "
-            "start-up exotherm; an overshoot means the heat removal was short: review it "
-            "before the next batch (runaway risk)",
-        )
-    if key == "retarder":
-        zeta = value
-        s = evaluate(p_cal, retarder=zeta)
-        nums.append(("radical loss to retarder ζ [1/s]", zeta))
-        nums.append(("R_p ratio predicted [-]", s.R_p / base.R_p))
-        nums.append(("Mn ratio predicted [-]", s.DPn / base.DPn))
-        ind = c["induction"]
-        if ind is not None:
-            nums.append(("induction period [min]", ind))
-        return (
-            f"Something consumes radicals: {rp_txt}, {dp_txt}"
-            + (f", induction period {ind:.3g} min" if ind else "")
-            + f". A radical loss ζ = {zeta:.3g} 1/s (each loss ends a chain) reproduces "
-            f"R_p × {s.R_p / base.R_p:.3g} and Mn × {s.DPn / base.DPn:.3g}.",
-            nums,
-            "check inhibitor (stabilizer) removal, degassing and the nitrogen purge "
-            "(oxygen), and the monomer lot's stabilizer content",
-        )
-    if key == "dilution":
-        g = value
-        s = evaluate(p_cal, monomer_factor=g)
-        nums.append(("[M] factor g [-]", g))
-        nums.append(("[M] implied [mol/L]", p.conc_M * g))
-        return (
-            f"Less monomer than the recipe: {rp_txt}, {dp_txt}. [M] × {g:.3g} "
-            f"({p.conc_M * g:.4g} mol/L) lowers R_p and DPn together "
-            f"(R_p × {s.R_p / base.R_p:.3g}, Mn × {s.DPn / base.DPn:.3g}).",
-            nums,
-            "check the monomer and solvent charges, evaporation or venting losses, and the "
-            "monomer assay",
-        )
-    if key == "flow":
-        e = value
-        shift = 100.0 * (10 ** (-c["BV"] * e) - 1.0)
-        nums.insert(0, ("relative flow error [%]", 100 * e))
-        nums.append(("shift of every average [%]", shift))
-        return (
-            f"A flow-rate error of {100 * e:+.3g} % moves every average by {shift:+.3g} % "
-            f"(B·V = {c['BV']:.3g}) and leaves the dispersity unchanged; {rp_txt}.",
-            nums,
-            "re-process with the flow-marker correction; check pump flow (timed volume), "
-            "leaks and degassing; re-run the check standard",
-        )
-    if key == "calibration":
-        shift = 100.0 * (math.exp(value) - 1.0)
-        nums.insert(0, ("shift of every average [%]", shift))
-        return (
-            f"All averages shifted together by {shift:+.3g} % as a calibration drift "
-            f"would do (check standard and sample alike); {rp_txt}.",
-            nums,
-            "recalibrate with fresh narrow standards, check column condition (broadened "
-            "standards) and re-run the check standard",
-        )
-    if key == "limit":
-        shift = 100.0 * (math.exp(value) - 1.0)
-        nums.insert(0, ("Mn bias [%]", shift))
-        lim = c["checks"].Mn_shift_low_limit
-        if lim is not None:
-            nums.append(("Mn shift, low-M limit -0.2 mL [%]", lim))
-        return (
-            f"Mn is low by {shift:+.3g} % while Mw is "
-            f"{_sig(c['Mw_m'] / c['Mw_e'] if c['Mw_m'] else None, 3)}× expected: a low-M tail, "
-            "system peak or baseline end inside the integration limits"
-            + (f"; Mn moves {lim:+.3g} % when the limit moves 0.2 mL" if lim is not None else "")
-            + ".",
-            nums,
-            "re-integrate with the low-M limit before the system peak and a longer baseline "
-            "window; judge on Mw",
-        )
-    raise MethodError(f"unknown cause {key!r}")  # pragma: no cover
 
 
 # --------------------------------------------------------------------------- file entry

@@ -38,15 +38,29 @@ from __future__ import annotations
 
 import math
 import warnings as _warnings
-from dataclasses import dataclass, replace
+from dataclasses import dataclass, field, replace
 from typing import Any
 
 import pandas as pd
 
 from gpctools.chainlength import dispersity_instantaneous, mayo_inv_dpn, mixed_termination
 from gpctools.errors import DataError, GpcWarning, MethodError
-from gpctools.kinetics.recipe import Component, Recipe
-from gpctools.refdata import R_GAS, ReferenceData, convert_kt
+from gpctools.kinetics.recipe import (
+    Component,
+    InitiatorSpec,
+    MonomerSpec,
+    Recipe,
+    TerminationSpec,
+)
+from gpctools.refdata import (
+    R_GAS,
+    Initiator,
+    Monomer,
+    ReferenceData,
+    ReferenceWarning,
+    Termination,
+    convert_kt,
+)
 
 __all__ = [
     "KineticsWarning",
@@ -105,7 +119,8 @@ class KineticParameters:
     """Every number the prediction uses, with its source (all at the recipe temperature).
 
     Units: T [K], concentrations [mol/L], k_p and k_t [L/mol/s], k_d [1/s], energies
-    [kJ/mol], M0 [g/mol]; k_t is in the IUPAC convention.
+    [kJ/mol], M0 [g/mol]; k_t is in the IUPAC convention. ``E_t`` is the activation
+    energy of k_t (None: k_t held constant when the temperature is varied).
     """
 
     label: str
@@ -129,6 +144,7 @@ class KineticParameters:
     notes: tuple[str, ...] = ()
     warnings: tuple[str, ...] = ()
     initiator_caution: str = ""
+    E_t: float | None = None
 
     @property
     def T_C(self) -> float:
@@ -180,6 +196,7 @@ class KineticParameters:
             "f [-]": self.f,
             "C_I [-]": self.C_I,
             "k_t (IUPAC) [L/mol/s]": self.k_t,
+            "E_t [kJ/mol]": self.E_t,
             "delta [-]": self.delta,
             "C_M [-]": self.C_M,
             "transfer": [
@@ -232,6 +249,254 @@ def _component_term(
     )
 
 
+@dataclass
+class _Provenance:
+    """Sources of the values, notes on assumptions and warnings, in the order found."""
+
+    path: str | None
+    sources: dict[str, str] = field(default_factory=dict)
+    notes: list[str] = field(default_factory=list)
+    warnings: list[str] = field(default_factory=list)
+    reference_warnings: list[str] = field(default_factory=list)
+
+    def table_value(self, method: Any, *args: float) -> float:
+        """Call a reference-record method, collecting its ReferenceWarnings (validity
+        range, backbiting) in ``reference_warnings`` instead of letting them through."""
+        with _warnings.catch_warnings(record=True) as caught:
+            _warnings.simplefilter("always")
+            value = float(method(*args))
+        for w in caught:
+            if issubclass(w.category, ReferenceWarning):
+                if str(w.message) not in self.reference_warnings:
+                    self.reference_warnings.append(str(w.message))
+            else:
+                _warnings.warn(w.message, w.category, stacklevel=3)
+        return value
+
+
+def _monomer_row(ms: MonomerSpec, ref: ReferenceData, prov: _Provenance) -> Monomer | None:
+    """The monomer's table row; None for an unknown monomer whose M0 and k_p are given."""
+    try:
+        return ref.monomer(ms.name)
+    except MethodError as exc:
+        if ms.M0 is None or (ms.k_p is None and ms.k_p_A is None):
+            raise MethodError(
+                exc.message + "; or give 'M0 [g/mol]' and 'k_p [L/mol/s]' in [monomer]",
+                key="monomer.name", path=prov.path,
+            ) from None
+        return None
+
+
+def _repeat_unit_mass(ms: MonomerSpec, mon: Monomer | None, prov: _Provenance) -> float:
+    """M0 [g/mol]: the recipe's, else the table's (one of them exists, see _monomer_row)."""
+    if ms.M0 is not None:
+        prov.sources["M0"] = "recipe"
+        return ms.M0
+    assert mon is not None  # _monomer_row refuses an unknown monomer without M0
+    prov.sources["M0"] = mon.source
+    return mon.M0
+
+
+def _propagation(
+    ms: MonomerSpec, mon: Monomer | None, name: str, T: float, conc_M: float, prov: _Provenance
+) -> tuple[float, float | None]:
+    """k_p [L/mol/s] at T and E_p [kJ/mol]: recipe value, recipe Arrhenius pair, or table.
+
+    From the table, acrylates get the effective k_p with backbiting at the recipe's [M]
+    [mol/L] (docs/science.md, section 7), with a note giving the chain-end value.
+    """
+    if ms.k_p is not None:
+        prov.sources["k_p"] = "recipe"
+        return ms.k_p, ms.k_p_E
+    if ms.k_p_A is not None and ms.k_p_E is not None:  # the recipe gives both or neither
+        prov.sources["k_p"] = "recipe (Arrhenius A, E)"
+        return ms.k_p_A * math.exp(-ms.k_p_E * 1e3 / (R_GAS * T)), ms.k_p_E
+    if mon is None or mon.kp_A is None:
+        raise MethodError(
+            f"no k_p for {name!r} in the tables; give 'k_p [L/mol/s]' in [monomer]",
+            key='monomer."k_p [L/mol/s]"', path=prov.path,
+        )
+    k_p = prov.table_value(mon.k_p_effective, T, conc_M)  # refuses a row without E
+    E_p = mon.k_p_effective_E(T, conc_M)
+    prov.sources["k_p"] = f"{mon.kp_source}; k_p = {mon.kp_A:.5g}·exp(−{mon.kp_E:g} kJ/mol/RT)"
+    if mon.has_backbiting:
+        k_end = mon.kp_A * math.exp(-mon.kp_E * 1e3 / (R_GAS * T))
+        x = prov.table_value(mon.mcr_fraction, T, conc_M)
+        prov.sources["k_p"] += f" (chain ends); effective k_p with backbiting: {mon.backbiting_source}"
+        prov.notes.append(
+            f"{name}: {mon.backbiting_caution}. Effective k_p {k_p:.4g} L/mol/s = "
+            f"{k_p / k_end:.2f} × the chain-end value {k_end:.4g} at [M] = {conc_M:g} "
+            f"mol/L (mid-chain radical fraction {x:.2f}); it changes with [M]"
+        )
+    return k_p, E_p
+
+
+def _monomer_concentration(
+    ms: MonomerSpec, mon: Monomer | None, name: str, M0: float, prov: _Provenance
+) -> float:
+    """[M] [mol/L]: the recipe's, or 1000·density/M0 for neat monomer (bulk = true)."""
+    if not ms.bulk:
+        assert ms.concentration is not None  # the recipe refuses neither bulk nor [M]
+        prov.sources["[M]"] = "recipe"
+        return float(ms.concentration)
+    density = ms.density if ms.density is not None else (mon.density if mon else None)
+    if density is None:
+        raise MethodError(
+            f"no density for {name!r}; give 'density [g/mL]' or the concentration",
+            key='monomer."density [g/mL]"', path=prov.path,
+        )
+    dT = f" at {mon.density_T:g} °C" if (mon and ms.density is None and mon.density_T) else ""
+    prov.sources["[M]"] = f"bulk: 1000·density/M0 with density {density:g} g/mL{dT}"
+    prov.notes.append(
+        f"[M] of neat monomer from its density{dT}; the density at the reaction "
+        "temperature is lower by a few percent"
+    )
+    return 1000.0 * density / M0
+
+
+def _transfer_to_monomer(
+    ms: MonomerSpec, mon: Monomer | None, name: str, T: float, prov: _Provenance
+) -> float:
+    """C_M [-]: recipe, else table (noting a temperature mismatch over 5 K), else 0 (warned)."""
+    if ms.C_M is not None:
+        prov.sources["C_M"] = "recipe"
+        return ms.C_M
+    if mon is None or mon.C_M is None:
+        prov.sources["C_M"] = "assumed 0 (not tabulated)"
+        prov.warnings.append(
+            f"C_M for {name} is not tabulated; 0 used — give 'C_M [-]' in [monomer]")
+        return 0.0
+    if mon.C_M_T is None:
+        # a user table may give C_M without 'C_M T [°C]'
+        prov.sources["C_M"] = mon.C_M_source
+        prov.notes.append(
+            f"C_M of {name} is tabulated without its temperature and used unchanged at "
+            f"{T - 273.15:g} °C"
+        )
+    else:
+        prov.sources["C_M"] = f"{mon.C_M_source} (at {mon.C_M_T:g} °C)"
+        if abs(mon.C_M_T + 273.15 - T) > 5.0:
+            prov.notes.append(
+                f"C_M of {name} is tabulated at {mon.C_M_T:g} °C and used unchanged at "
+                f"{T - 273.15:g} °C"
+            )
+    return mon.C_M
+
+
+def _initiator_row(ins: InitiatorSpec, ref: ReferenceData, prov: _Provenance) -> Initiator | None:
+    """The initiator's table row; None for an unknown initiator whose k_d and f are given."""
+    try:
+        return ref.initiator(ins.name)
+    except MethodError as exc:
+        if ins.k_d is None or ins.f is None:
+            raise MethodError(
+                exc.message + "; or give 'k_d [1/s]' and 'f [-]' in [initiator]",
+                key="initiator.name", path=prov.path,
+            ) from None
+        return None
+
+
+def _decomposition(
+    ins: InitiatorSpec, ini: Initiator | None, T: float, prov: _Provenance
+) -> tuple[float, float | None]:
+    """k_d [1/s] at T and E_d [kJ/mol]: recipe k_d, else the table's k_d_ref moved to T.
+
+    k_d(T) = k_d,ref·exp(−E_d/R·(1/T − 1/T_ref)), with the recipe's E_d when given.
+    """
+    if ins.k_d is not None:
+        prov.sources["k_d"] = "recipe"
+        return ins.k_d, (ins.E_d if ins.E_d is not None else (ini.E_d if ini else None))
+    assert ini is not None  # _initiator_row refuses an unknown initiator without k_d
+    E_d = ins.E_d if ins.E_d is not None else ini.E_d
+    if ins.E_d is not None:
+        T_ref = ini.T_ref + 273.15
+        k_d = ini.k_d_ref * math.exp(-E_d * 1e3 / R_GAS * (1 / T - 1 / T_ref))
+    else:
+        k_d = prov.table_value(ini.k_d, T)
+    prov.sources["k_d"] = (
+        f"{ini.kd_source}; k_d = {ini.k_d_ref:g}·exp(−{E_d:g} kJ/mol/R·(1/T − 1/"
+        f"{ini.T_ref + 273.15:g} K))"
+    )
+    return k_d, E_d
+
+
+def _efficiency_and_C_I(
+    ins: InitiatorSpec, ini: Initiator | None, prov: _Provenance
+) -> tuple[float, float]:
+    """f [-] (recipe, else table) and C_I [-] (recipe, else 0 with a note)."""
+    if ins.f is not None:
+        f, prov.sources["f"] = ins.f, "recipe"
+    else:
+        assert ini is not None  # _initiator_row refuses an unknown initiator without f
+        f, prov.sources["f"] = ini.f, ini.f_source
+    C_I = ins.C_I if ins.C_I is not None else 0.0
+    prov.sources["C_I"] = "recipe" if ins.C_I is not None else "assumed 0 (not tabulated)"
+    if ins.C_I is None:
+        prov.notes.append("transfer to initiator not tabulated; C_I = 0 used")
+    return f, C_I
+
+
+def _termination(
+    ts: TerminationSpec, ref: ReferenceData, name: str, T: float, prov: _Provenance
+) -> tuple[float, float, float | None]:
+    """k_t in the IUPAC convention [L/mol/s], δ [-] and E_t [kJ/mol].
+
+    k_t from the recipe, else the table's k_t at T (Arrhenius with the tabulated E_t);
+    δ from the recipe, else the table, else 0.5 (warned); E_t from the table (None when
+    not tabulated: k_t is then held constant when the temperature is varied).
+    """
+    try:
+        row: Termination | None = ref.termination(name)
+    except MethodError:
+        row = None
+    if ts.k_t is not None:
+        k_t = convert_kt(ts.k_t, ts.convention, "IUPAC 2kt")
+        prov.sources["k_t"] = "recipe" + (
+            f" ({ts.k_t:g} in the 'kt' convention, halved)" if ts.convention == "kt" else ""
+        )
+    elif row is not None:
+        k_t = prov.table_value(row.k_t, T)
+        prov.sources["k_t"] = row.source + (
+            f" ({row.k_t_ref:g} in the 'kt' convention, halved)" if row.convention == "kt" else ""
+        ) + (f"; k_t = {row.k_t_iupac:g}·exp(−{row.E:g} kJ/mol/R·(1/T − 1/"
+             f"{row.T + 273.15:g} K))" if (row.E is not None and row.T is not None) else "")
+        note = row.temperature_note(T)
+        if note:
+            prov.notes.append(str(note))
+    else:
+        raise MethodError(
+            f"no termination row for {name!r}; give 'k_t [L/mol/s]' in [termination]",
+            key='termination."k_t [L/mol/s]"', path=prov.path,
+        )
+    E_t = row.E if row is not None else None
+    if ts.delta is not None:
+        prov.sources["delta"] = "recipe"
+        return k_t, ts.delta, E_t
+    if row is not None and row.delta is not None:
+        prov.sources["delta"] = row.delta_source or row.source
+        return k_t, row.delta, E_t
+    prov.sources["delta"] = "assumed 0.5 (not tabulated)"
+    prov.warnings.append(
+        f"fraction by disproportionation for {name} not tabulated; 0.5 used (DPn "
+        "uncertain by up to 33 %) — give 'delta [-]' in [termination]"
+    )
+    return k_t, 0.5, E_t
+
+
+def _transfer_terms(
+    recipe: Recipe, ref: ReferenceData, name: str, T: float, prov: _Provenance
+) -> tuple[TransferTerm, ...]:
+    """One Mayo term per solvent and agent of the recipe (solvents first)."""
+    terms = []
+    for key, comps in (("solvent", recipe.solvents), ("agent", recipe.agents)):
+        for j, comp in enumerate(comps):
+            term, note = _component_term(comp, ref, name, T, f"{key}[{j + 1}]", prov.path)
+            terms.append(term)
+            if note:
+                prov.notes.append(note)
+    return tuple(terms)
+
+
 def resolve_parameters(recipe: Recipe, ref: ReferenceData | None = None) -> KineticParameters:
     """Collect every kinetic parameter for a recipe: recipe overrides, else the tables.
 
@@ -246,192 +511,37 @@ def resolve_parameters(recipe: Recipe, ref: ReferenceData | None = None) -> Kine
     KineticParameters
         All values at the recipe temperature, k_t converted to the IUPAC convention,
         with the source of each value and notes on assumptions. Missing δ (0.5 assumed)
-        or C_M (0 assumed) issue a :class:`KineticsWarning`, also listed in ``warnings``.
+        or C_M (0 assumed) issue a :class:`KineticsWarning`, a table value used outside
+        its validity range a :class:`gpctools.refdata.ReferenceWarning`; both are also
+        listed in ``warnings``. k_t follows its tabulated activation energy; acrylates
+        use the effective k_p with backbiting (docs/science.md, section 7).
     """
     ref = ref if ref is not None else recipe.reference_data()
     T = recipe.T
-    ms, ins, ts = recipe.monomer, recipe.initiator, recipe.termination
-    sources: dict[str, str] = {}
-    notes: list[str] = []
-    warns: list[str] = []
-
-    try:
-        mon = ref.monomer(ms.name)
-    except MethodError as exc:
-        if ms.M0 is None or (ms.k_p is None and ms.k_p_A is None):
-            raise MethodError(
-                exc.message + "; or give 'M0 [g/mol]' and 'k_p [L/mol/s]' in [monomer]",
-                key="monomer.name", path=recipe.path,
-            ) from None
-        mon = None
+    ms, ins = recipe.monomer, recipe.initiator
+    prov = _Provenance(recipe.path)
+    mon = _monomer_row(ms, ref, prov)
     name = mon.name if mon else ms.name
-
-    M0 = ms.M0 if ms.M0 is not None else mon.M0
-    sources["M0"] = "recipe" if ms.M0 is not None else mon.source
-
-    if ms.k_p is not None:
-        k_p, E_p = ms.k_p, ms.k_p_E
-        sources["k_p"] = "recipe"
-    elif ms.k_p_A is not None:
-        k_p, E_p = ms.k_p_A * math.exp(-ms.k_p_E * 1e3 / (R_GAS * T)), ms.k_p_E
-        sources["k_p"] = "recipe (Arrhenius A, E)"
-    else:
-        if mon.kp_A is None:
-            raise MethodError(
-                f"no k_p for {name!r} in the tables; give 'k_p [L/mol/s]' in [monomer]",
-                key='monomer."k_p [L/mol/s]"', path=recipe.path,
-            )
-        k_p, E_p = mon.k_p(T), mon.kp_E
-        sources["k_p"] = f"{mon.kp_source}; k_p = {mon.kp_A:.5g}·exp(−{mon.kp_E:g} kJ/mol/RT)"
-
-    if ms.bulk:
-        density = ms.density if ms.density is not None else (mon.density if mon else None)
-        if density is None:
-            raise MethodError(
-                f"no density for {name!r}; give 'density [g/mL]' or the concentration",
-                key='monomer."density [g/mL]"', path=recipe.path,
-            )
-        conc_M = 1000.0 * density / M0
-        dT = f" at {mon.density_T:g} °C" if (mon and ms.density is None and mon.density_T) else ""
-        sources["[M]"] = f"bulk: 1000·density/M0 with density {density:g} g/mL{dT}"
-        notes.append(
-            f"[M] of neat monomer from its density{dT}; the density at the reaction "
-            "temperature is lower by a few percent"
-        )
-    else:
-        conc_M = float(ms.concentration)
-        sources["[M]"] = "recipe"
-
-    if ms.C_M is not None:
-        C_M = ms.C_M
-        sources["C_M"] = "recipe"
-    elif mon is not None and mon.C_M is not None:
-        C_M = mon.C_M
-        if mon.C_M_T is None:
-            # a user table may give C_M without 'C_M T [°C]'
-            sources["C_M"] = mon.C_M_source
-            notes.append(
-                f"C_M of {name} is tabulated without its temperature and used unchanged at "
-                f"{T - 273.15:g} °C"
-            )
-        else:
-            sources["C_M"] = f"{mon.C_M_source} (at {mon.C_M_T:g} °C)"
-            if abs(mon.C_M_T + 273.15 - T) > 5.0:
-                notes.append(
-                    f"C_M of {name} is tabulated at {mon.C_M_T:g} °C and used unchanged at "
-                    f"{T - 273.15:g} °C"
-                )
-    else:
-        C_M = 0.0
-        sources["C_M"] = "assumed 0 (not tabulated)"
-        warns.append(f"C_M for {name} is not tabulated; 0 used — give 'C_M [-]' in [monomer]")
-
-    # initiator
-    try:
-        ini = ref.initiator(ins.name)
-    except MethodError as exc:
-        if ins.k_d is None or ins.f is None:
-            raise MethodError(
-                exc.message + "; or give 'k_d [1/s]' and 'f [-]' in [initiator]",
-                key="initiator.name", path=recipe.path,
-            ) from None
-        ini = None
-    ini_name = ini.name if ini else ins.name
-    if ins.k_d is not None:
-        k_d = ins.k_d
-        E_d = ins.E_d if ins.E_d is not None else (ini.E_d if ini else None)
-        sources["k_d"] = "recipe"
-    else:
-        E_d = ins.E_d if ins.E_d is not None else ini.E_d
-        if ins.E_d is not None:
-            T_ref = ini.T_ref + 273.15
-            k_d = ini.k_d_ref * math.exp(-E_d * 1e3 / R_GAS * (1 / T - 1 / T_ref))
-        else:
-            k_d = ini.k_d(T)
-        sources["k_d"] = (
-            f"{ini.source}; k_d = {ini.k_d_ref:g}·exp(−{E_d:g} kJ/mol/R·(1/T − 1/"
-            f"{ini.T_ref + 273.15:g} K))"
-        )
-    f = ins.f if ins.f is not None else ini.f
-    sources["f"] = "recipe" if ins.f is not None else ini.source
-    C_I = ins.C_I if ins.C_I is not None else 0.0
-    sources["C_I"] = "recipe" if ins.C_I is not None else "assumed 0 (not tabulated)"
-    if ins.C_I is None:
-        notes.append("transfer to initiator not tabulated; C_I = 0 used")
-
-    # termination
-    k_t_row = None
-    try:
-        k_t_row = ref.termination(name)
-    except MethodError:
-        k_t_row = None
-    if ts.k_t is not None:
-        k_t = convert_kt(ts.k_t, ts.convention, "IUPAC 2kt")
-        sources["k_t"] = "recipe" + (
-            f" ({ts.k_t:g} in the 'kt' convention, halved)" if ts.convention == "kt" else ""
-        )
-    elif k_t_row is not None:
-        k_t = k_t_row.k_t_iupac
-        sources["k_t"] = k_t_row.source + (
-            f" ({k_t_row.k_t:g} in the 'kt' convention, halved)"
-            if k_t_row.convention == "kt" else ""
-        )
-        if k_t_row.T is not None and abs(k_t_row.T + 273.15 - T) > 5.0:
-            notes.append(
-                f"k_t is tabulated at {k_t_row.T:g} °C and used unchanged at {T - 273.15:g} °C"
-            )
-    else:
-        raise MethodError(
-            f"no termination row for {name!r}; give 'k_t [L/mol/s]' in [termination]",
-            key='termination."k_t [L/mol/s]"', path=recipe.path,
-        )
-    if ts.delta is not None:
-        delta = ts.delta
-        sources["delta"] = "recipe"
-    elif k_t_row is not None and k_t_row.delta is not None:
-        delta = k_t_row.delta
-        sources["delta"] = k_t_row.source
-    else:
-        delta = 0.5
-        sources["delta"] = "assumed 0.5 (not tabulated)"
-        warns.append(
-            f"fraction by disproportionation for {name} not tabulated; 0.5 used (DPn "
-            "uncertain by up to 33 %) — give 'delta [-]' in [termination]"
-        )
-
-    terms = []
-    for key, comps in (("solvent", recipe.solvents), ("agent", recipe.agents)):
-        for j, comp in enumerate(comps):
-            term, note = _component_term(comp, ref, name, T, f"{key}[{j + 1}]", recipe.path)
-            terms.append(term)
-            if note:
-                notes.append(note)
-
-    for w in warns:
+    M0 = _repeat_unit_mass(ms, mon, prov)
+    conc_M = _monomer_concentration(ms, mon, name, M0, prov)
+    k_p, E_p = _propagation(ms, mon, name, T, conc_M, prov)
+    C_M = _transfer_to_monomer(ms, mon, name, T, prov)
+    ini = _initiator_row(ins, ref, prov)
+    k_d, E_d = _decomposition(ins, ini, T, prov)
+    f, C_I = _efficiency_and_C_I(ins, ini, prov)
+    k_t, delta, E_t = _termination(recipe.termination, ref, name, T, prov)
+    terms = _transfer_terms(recipe, ref, name, T, prov)
+    for w in prov.warnings:
         _warnings.warn(w, KineticsWarning, stacklevel=2)
-
+    for w in prov.reference_warnings:
+        _warnings.warn(w, ReferenceWarning, stacklevel=2)
     return KineticParameters(
-        label=recipe.label,
-        T=T,
-        monomer=name,
-        M0=M0,
-        conc_M=conc_M,
-        k_p=k_p,
-        E_p=E_p,
-        initiator=ini_name,
-        conc_I=ins.concentration,
-        k_d=k_d,
-        E_d=E_d,
-        f=f,
-        C_I=C_I,
-        k_t=k_t,
-        delta=delta,
-        C_M=C_M,
-        transfer=tuple(terms),
-        sources=tuple(sources.items()),
-        notes=tuple(notes),
-        warnings=tuple(warns),
-        initiator_caution=ini.caution if ini else "",
+        label=recipe.label, T=T, monomer=name, M0=M0, conc_M=conc_M, k_p=k_p, E_p=E_p,
+        initiator=ini.name if ini else ins.name, conc_I=ins.concentration, k_d=k_d, E_d=E_d,
+        f=f, C_I=C_I, k_t=k_t, delta=delta, C_M=C_M, transfer=terms,
+        sources=tuple(prov.sources.items()), notes=tuple(prov.notes),
+        warnings=tuple(prov.warnings + prov.reference_warnings),
+        initiator_caution=ini.caution if ini else "", E_t=E_t,
     )
 
 
@@ -478,7 +588,7 @@ def evaluate(
         Factor on f·k_d·[I] (more or less initiator, or efficiency) [-].
     dT : float
         Temperature change [K]; k_p and k_d follow their Arrhenius energies, C values
-        with a tabulated ΔE follow C ∝ exp(−ΔE/RT); k_t is held constant.
+        with a tabulated ΔE follow C ∝ exp(−ΔE/RT); k_t follows ``E_t`` when known.
     extra_transfer : float
         Added 1/DPn from unexplained transfer [-] (Σ C_x[x]/[M] of an impurity).
     retarder : float
@@ -509,7 +619,7 @@ def evaluate(
     conc_M = p.conc_M * monomer_factor
     conc_I = p.conc_I * radical_flux_factor
     R_i = 2.0 * p.f * k_d * conc_I
-    k_t = p.k_t
+    k_t = arrh(p.k_t, p.E_t)
     if retarder > 0.0:
         radicals = (-retarder + math.sqrt(retarder**2 + 8.0 * k_t * R_i)) / (4.0 * k_t)
     else:

@@ -435,8 +435,8 @@ def _components(items: Any, section: str, path, role: str) -> tuple[Component, .
     for i, item in enumerate(items):
         sec = f"{section}[{i + 1}]"
         _check_keys(item, allowed, sec, path)
-        name = _str(item, "name", sec, path, required=True)
-        conc = 0.0 if role == "candidate" else _num(item, _CONC, sec, path, required=True, nonneg=True)
+        name = _required_str(item, "name", sec, path)
+        conc = 0.0 if role == "candidate" else _required_num(item, _CONC, sec, path, nonneg=True)
         out.append(
             Component(
                 name=name,
@@ -451,8 +451,7 @@ def _components(items: Any, section: str, path, role: str) -> tuple[Component, .
 
 def _measured(d: Mapping[str, Any], section: str, path, extra_allowed=()) -> Measured:
     _check_keys(d, _MEASURED + tuple(extra_allowed), section, path)
-    scale = _str(d, "scale", section, path) or "absolute"
-    scale = normalize_scale(scale)
+    scale = normalize_scale(_str(d, "scale", section, path) or "absolute")
     if scale is None:
         raise MethodError(
             f"unknown scale {d['scale']!r}; use 'absolute' or 'relative to <standard polymer>', "
@@ -507,13 +506,21 @@ def _measured(d: Mapping[str, Any], section: str, path, extra_allowed=()) -> Mea
     )
 
 
-def _parse(d: Mapping[str, Any], base: Path, path, depth: int) -> Recipe:
-    _check_keys(d, _TOP, "", path)
-    label = d.get("label", Path(path).stem if path else "recipe")
-    if not isinstance(label, str):
-        raise MethodError("must be a text", key="label", path=path)
-    T_C = _num(d, "T [°C]", "", path, required=True, lo=-80.0, hi=300.0)
+def _required_num(d: Mapping[str, Any], key: str, section: str, path: Any, **bounds: Any) -> float:
+    """:func:`_num` with ``required=True`` (which raises when the key is missing)."""
+    v = _num(d, key, section, path, required=True, **bounds)
+    assert v is not None
+    return v
 
+
+def _required_str(d: Mapping[str, Any], key: str, section: str, path: Any) -> str:
+    """:func:`_str` with ``required=True`` (which raises when the key is missing)."""
+    v = _str(d, key, section, path, required=True)
+    assert v is not None
+    return v
+
+
+def _monomer_section(d: Mapping[str, Any], path: Any) -> MonomerSpec:
     if "monomer" not in d:
         raise MethodError("required table is missing; add [monomer]", key="monomer", path=path)
     m = d["monomer"]
@@ -533,7 +540,7 @@ def _parse(d: Mapping[str, Any], base: Path, path, depth: int) -> Recipe:
             path=path,
         )
     monomer = MonomerSpec(
-        name=_str(m, "name", "monomer", path, required=True),
+        name=_required_str(m, "name", "monomer", path),
         concentration=conc,
         bulk=bulk,
         M0=_num(m, "M0 [g/mol]", "monomer", path, positive=True),
@@ -549,20 +556,25 @@ def _parse(d: Mapping[str, Any], base: Path, path, depth: int) -> Recipe:
             key='monomer."k_p A [L/mol/s]"' if monomer.k_p_A is None else 'monomer."k_p E [kJ/mol]"',
             path=path,
         )
+    return monomer
 
+
+def _initiator_section(d: Mapping[str, Any], path: Any) -> InitiatorSpec:
     if "initiator" not in d:
         raise MethodError("required table is missing; add [initiator]", key="initiator", path=path)
     i = d["initiator"]
     _check_keys(i, _INITIATOR, "initiator", path)
-    initiator = InitiatorSpec(
-        name=_str(i, "name", "initiator", path, required=True),
-        concentration=_num(i, _CONC, "initiator", path, required=True, positive=True),
+    return InitiatorSpec(
+        name=_required_str(i, "name", "initiator", path),
+        concentration=_required_num(i, _CONC, "initiator", path, positive=True),
         k_d=_num(i, "k_d [1/s]", "initiator", path, positive=True),
         E_d=_num(i, "E_d [kJ/mol]", "initiator", path, positive=True),
         f=_num(i, "f [-]", "initiator", path, positive=True, lo=0.0, hi=1.0),
         C_I=_num(i, "C_I [-]", "initiator", path, nonneg=True),
     )
 
+
+def _termination_section(d: Mapping[str, Any], path: Any) -> TerminationSpec:
     t = d.get("termination", {})
     _check_keys(t, _TERMINATION, "termination", path)
     conv = _str(t, "convention", "termination", path) or "IUPAC 2kt"
@@ -575,17 +587,14 @@ def _parse(d: Mapping[str, Any], base: Path, path, depth: int) -> Recipe:
             key="termination.convention",
             path=path,
         )
-    termination = TerminationSpec(
+    return TerminationSpec(
         k_t=_num(t, "k_t [L/mol/s]", "termination", path, positive=True),
         convention=conv,
         delta=_num(t, "delta [-]", "termination", path, lo=0.0, hi=1.0),
     )
 
-    solvents = _components(d.get("solvent", []), "solvent", path, "solvent")
-    agents = _components(d.get("agent", []), "agent", path, "agent")
-    candidates = _components(d.get("candidate", []), "candidate", path, "candidate")
-    measured = _measured(d.get("measured", {}), "measured", path)
 
+def _checks_section(d: Mapping[str, Any], path: Any) -> Checks:
     c = d.get("checks", {})
     _check_keys(c, _CHECKS, "checks", path)
     checks = Checks(
@@ -607,35 +616,46 @@ def _parse(d: Mapping[str, Any], base: Path, path, depth: int) -> Recipe:
             key='checks."flow marker reference [mL]"',
             path=path,
         )
+    return checks
 
-    normal = None
-    if "normal_batch" in d:
-        nb = d["normal_batch"]
-        _check_keys(nb, _MEASURED + ("recipe",), "normal_batch", path)
-        nb_recipe = None
-        if "recipe" in nb:
-            if depth > 0:
-                raise MethodError(
-                    "a normal batch cannot name another normal batch",
-                    key="normal_batch.recipe",
-                    path=path,
-                )
-            rel = _str(nb, "recipe", "normal_batch", path)
-            nb_recipe = load_recipe(base / rel, _depth=depth + 1)
-        nb_meas = _measured({k: v for k, v in nb.items() if k != "recipe"}, "normal_batch", path)
-        if nb_meas.is_empty and nb_recipe is not None:
-            nb_meas = nb_recipe.measured
-        normal = NormalBatch(recipe=nb_recipe, measured=nb_meas)
 
+def _normal_batch_section(
+    d: Mapping[str, Any], base: Path, path: Any, depth: int
+) -> NormalBatch | None:
+    if "normal_batch" not in d:
+        return None
+    nb = d["normal_batch"]
+    _check_keys(nb, _MEASURED + ("recipe",), "normal_batch", path)
+    nb_recipe = None
+    if "recipe" in nb:
+        if depth > 0:
+            raise MethodError(
+                "a normal batch cannot name another normal batch",
+                key="normal_batch.recipe",
+                path=path,
+            )
+        rel = _required_str(nb, "recipe", "normal_batch", path)
+        nb_recipe = load_recipe(base / rel, _depth=depth + 1)
+    nb_meas = _measured({k: v for k, v in nb.items() if k != "recipe"}, "normal_batch", path)
+    if nb_meas.is_empty and nb_recipe is not None:
+        nb_meas = nb_recipe.measured
+    return NormalBatch(recipe=nb_recipe, measured=nb_meas)
+
+
+def _uncertainty_section(d: Mapping[str, Any], path: Any) -> Uncertainty:
     u = d.get("uncertainty", {})
     _check_keys(u, _UNCERTAINTY, "uncertainty", path)
-    uncertainty = Uncertainty(
+    return Uncertainty(
         Mn=_num(u, "Mn [%]", "uncertainty", path, positive=True, hi=100.0),
         Mw=_num(u, "Mw [%]", "uncertainty", path, positive=True, hi=100.0),
         R_p=_num(u, "R_p [%]", "uncertainty", path, positive=True, hi=100.0),
         model=_num(u, "model [%]", "uncertainty", path, nonneg=True, hi=300.0),
     )
 
+
+def _data_files_section(
+    d: Mapping[str, Any], base: Path, path: Any
+) -> tuple[tuple[str, tuple[str, ...]], ...]:
     df = d.get("data_files", {})
     _check_keys(df, TABLE_NAMES, "data_files", path)
     files = []
@@ -651,7 +671,27 @@ def _parse(d: Mapping[str, Any], base: Path, path, depth: int) -> Recipe:
                     f"reference file named in data_files.{table} not found", path=p
                 )
         files.append((table, paths))
+    return tuple(files)
 
+
+def _parse(d: Mapping[str, Any], base: Path, path: Any, depth: int) -> Recipe:
+    """Check every section of a parsed recipe, in file order, and build the Recipe."""
+    _check_keys(d, _TOP, "", path)
+    label = d.get("label", Path(path).stem if path else "recipe")
+    if not isinstance(label, str):
+        raise MethodError("must be a text", key="label", path=path)
+    T_C = _required_num(d, "T [°C]", "", path, lo=-80.0, hi=300.0)
+    monomer = _monomer_section(d, path)
+    initiator = _initiator_section(d, path)
+    termination = _termination_section(d, path)
+    solvents = _components(d.get("solvent", []), "solvent", path, "solvent")
+    agents = _components(d.get("agent", []), "agent", path, "agent")
+    candidates = _components(d.get("candidate", []), "candidate", path, "candidate")
+    measured = _measured(d.get("measured", {}), "measured", path)
+    checks = _checks_section(d, path)
+    normal = _normal_batch_section(d, base, path, depth)
+    uncertainty = _uncertainty_section(d, path)
+    files = _data_files_section(d, base, path)
     return Recipe(
         label=label,
         T_C=T_C,
@@ -665,7 +705,7 @@ def _parse(d: Mapping[str, Any], base: Path, path, depth: int) -> Recipe:
         checks=checks,
         normal_batch=normal,
         uncertainty=uncertainty,
-        data_files=tuple(files),
+        data_files=files,
         path=None if path is None else str(path),
     )
 

@@ -1,6 +1,6 @@
 """Safety cautions shown with every prediction and diagnosis.
 
-The text follows SCIENCE.md §10. gpctools gives no process-safety advice beyond these
+The text follows docs/science.md, section 10. gpctools gives no process-safety advice beyond these
 general cautions: site safety rules, local codes and licensed practice always take
 precedence.
 """

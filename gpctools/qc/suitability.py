@@ -3,18 +3,18 @@
 Checks, each with its value, limit, pass/fail and a reason in words:
 
 * calibration quality: R² of the log M(V) fit, and the worst standard residual
-  ``100·(M_fit/Mp - 1)`` against ±5 % (common practice, see SCIENCE.md §2);
+  ``100·(M_fit/Mp - 1)`` against ±5 % (common practice, see docs/science.md, section 2);
 * check standards: the average Mw (and Mn) of each check standard's injections in the
   sequence against its assigned value, within the tolerance of its spec-sheet row
   (``check-standard tolerance [%]``) or the default;
 * flow-marker drift: ``100·(V_marker,observed / V_marker,reference - 1)`` [%] for every
   injection with an observed marker, worst value against the limit. A 0.1 % flow error
-  moves every average by about 1.4-3.5 % (SCIENCE.md §2, derived), so the default limit
+  moves every average by about 1.4-3.5 % (docs/science.md, section 2, derived), so the default limit
   is tight (0.3 %, common practice);
 * replicate agreement: relative standard deviation (ddof = 1) of Mw and Mn over the
   injections that share a ``sample_id``; worst group against the limit;
 * fraction outside calibration: worst ``outside calibration [% mass]`` of any usable
-  injection against 1 % (common practice, SCIENCE.md §1).
+  injection against 1 % (common practice, docs/science.md, section 1).
 
 A check that cannot be evaluated (no replicates, no flow-marker values) is listed as
 "not evaluated" and does not fail the sequence.
@@ -64,7 +64,7 @@ class SuitabilityLimits:
     min_r_squared : float
         Lowest acceptable R² of the calibration fit in log10 M [-] (0.999, common practice).
     max_calibration_residual_pct : float
-        Largest acceptable |residual| of any standard [%] (5, common practice; SCIENCE.md §2).
+        Largest acceptable |residual| of any standard [%] (5, common practice; docs/science.md, section 2).
     check_standard_tolerance_pct : float
         Default allowed |average/assigned - 1| of a check standard [%] when its spec row
         gives none (5, common practice; between-lab Mw spread is 6-10 % [published: Japan
@@ -226,7 +226,7 @@ def calibration_quality(calibration: Any, limits: SuitabilityLimits) -> tuple[Su
 
     References
     ----------
-    Residual definition 100·(M_fit/Mp - 1) and the ±5 % acceptance: SCIENCE.md §2
+    Residual definition 100·(M_fit/Mp - 1) and the ±5 % acceptance: docs/science.md, section 2
     (common practice).
     """
     r2_name = "calibration R² [-]"
@@ -260,7 +260,7 @@ def calibration_quality(calibration: Any, limits: SuitabilityLimits) -> tuple[Su
         checks.append(_check(res_name, worst_abs, limits.max_calibration_residual_pct, "<=",
                              f"standard {worst_name}: {worst:+.2f} % "
                              f"(limit ±{limits.max_calibration_residual_pct:g} %)",
-                             "common practice (SCIENCE.md §2)"))
+                             "common practice (docs/science.md, section 2)"))
     else:
         checks.append(SuitabilityCheck(res_name, math.nan, limits.max_calibration_residual_pct, "<=", False,
                                        "the calibration lists no standard residuals", "common practice"))
@@ -314,7 +314,7 @@ def sequence_suitability(
     References
     ----------
     Relative standard deviation ``100·s/mean`` with the sample standard deviation (ddof = 1)
-    [common practice]. Flow-marker correction factor V_ref/V_obs: SCIENCE.md §2.
+    [common practice]. Flow-marker correction factor V_ref/V_obs: docs/science.md, section 2.
     """
     limits = limits or SuitabilityLimits()
     checks: list[SuitabilityCheck] = list(calibration_quality(calibration, limits))
@@ -419,7 +419,7 @@ def sequence_suitability(
         checks.append(_check(fm_name, float(abs(drift[j])), limits.max_flow_marker_drift_pct, "<=",
                              f"worst {sid[i] or 'row ' + str(i + 1)}: {obs[i]:g} mL vs {ref_text}, "
                              f"{drift[j]:+.3f} % (limit ±{limits.max_flow_marker_drift_pct:g} %)",
-                             "common practice (0.1 % flow error moves averages 1.4-3.5 %, SCIENCE.md §2)"))
+                             "common practice (0.1 % flow error moves averages 1.4-3.5 %, docs/science.md, section 2)"))
 
     # -- replicates -------------------------------------------------------------------------------
     usable = ok & np.isin(role, [T.ROLE_SAMPLE, T.ROLE_CHECK])
@@ -456,12 +456,12 @@ def sequence_suitability(
     idx = np.flatnonzero(usable & np.isfinite(out))
     if idx.size == 0:
         checks.append(_not_evaluated(oc_name, limits.max_outside_calibration_pct, "<=",
-                                     f"no '{OUTSIDE}' values", "common practice (SCIENCE.md §1)"))
+                                     f"no '{OUTSIDE}' values", "common practice (docs/science.md, section 1)"))
     else:
         i = int(idx[np.argmax(out[idx])])
         checks.append(_check(oc_name, float(out[i]), limits.max_outside_calibration_pct, "<=",
                              f"worst {sid[i] or 'row ' + str(i + 1)}: {out[i]:.2f} % (limit "
-                             f"{limits.max_outside_calibration_pct:g} %)", "common practice (SCIENCE.md §1)"))
+                             f"{limits.max_outside_calibration_pct:g} %)", "common practice (docs/science.md, section 1)"))
     return SuitabilityResult(str(sequence), tuple(checks), tuple(warnings))
 
 

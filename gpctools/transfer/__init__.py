@@ -8,7 +8,8 @@ conversion-drift correction, impurity flags and ln C against 1/T.
 
 Public API
 ----------
-analyse_series(sheet_path, *, method=None, terms=None, estimators=..., ...) -> TransferResult
+analyse_series(sheet_path, method=None, options=None, **overrides) -> TransferResult
+TransferOptions(terms=None, estimators=..., drift="auto", ...): the analysis settings
 read_run_series(path) -> RunSeries
 fit_mayo(y, columns, ...) -> MayoFit;  check_design(columns) -> DesignCheck
 cld_slope(M, dwdlogM, M0, ...) -> CLDSlope
@@ -49,10 +50,12 @@ from gpctools.transfer.impurity import (
     impurity_level,
 )
 from gpctools.transfer.mayo import DesignCheck, FittedValue, MayoFit, check_design, fit_mayo
+from gpctools.transfer.options import TransferOptions
 from gpctools.transfer.series import Run, RunSeries, read_run_series, run_series_from_rows
 
 __all__ = [
     "analyse_series",
+    "TransferOptions",
     "TransferResult",
     "GroupResult",
     "RunEstimate",

@@ -29,7 +29,7 @@ from __future__ import annotations
 
 import math
 import warnings as _warnings
-from collections.abc import Sequence
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -52,7 +52,7 @@ from gpctools.transfer.drift import (
     consumption_constant,
     fit_cumulative,
 )
-from gpctools.transfer.estimators import DEFAULT_FRACTION, ESTIMATORS, CLDSlope, cld_slope
+from gpctools.transfer.estimators import ESTIMATORS, CLDSlope, cld_slope
 from gpctools.transfer.impurity import (
     ImpurityCheck,
     InterceptCheck,
@@ -61,6 +61,7 @@ from gpctools.transfer.impurity import (
     flag_runs_cumulative,
 )
 from gpctools.transfer.mayo import FittedValue, MayoFit, fit_mayo, term_label
+from gpctools.transfer.options import TransferOptions, check_names
 from gpctools.transfer.series import Run, RunSeries, read_run_series
 
 __all__ = [
@@ -332,8 +333,9 @@ ARRHENIUS_COLUMNS = [
 # --------------------------------------------------------------------------- estimates
 
 
-def _estimate_runs(series: RunSeries, method: Any, *, cld_window: Any, cld_fraction: float,
-                   want_cld: bool) -> list[RunEstimate]:
+def _estimate_runs(series: RunSeries, method: Any, opts: TransferOptions) -> list[RunEstimate]:
+    """Chain-length estimates of every run: the chromatogram when named, else the sheet."""
+    want_cld = "CLD" in opts.estimators
     out = []
     for run in series.runs:
         if run.role == "skip" or run.file is None:
@@ -354,10 +356,11 @@ def _estimate_runs(series: RunSeries, method: Any, *, cld_window: Any, cld_fract
         notes.extend(inj.warnings)
         cld = None
         if want_cld:
-            window = cld_window.get(run.run_id) if isinstance(cld_window, dict) else cld_window
+            w = opts.cld_window
+            window = w.get(run.run_id) if isinstance(w, Mapping) else w
             try:
-                cld = cld_slope(d.M, d.dwdlogM, run.M0, window=window, fraction=cld_fraction,
-                                what=f"run {run.run_id}")
+                cld = cld_slope(d.M, d.dwdlogM, run.M0, window=window,
+                                fraction=opts.cld_fraction, what=f"run {run.run_id}")
                 notes.extend(cld.warnings)
             except DataError as exc:
                 notes.append(f"CLD: {exc.message}")
@@ -368,7 +371,7 @@ def _estimate_runs(series: RunSeries, method: Any, *, cld_window: Any, cld_fract
 
 
 def _scale_warnings(estimates: Sequence[RunEstimate], reference: Any) -> list[str]:
-    msgs = []
+    msgs: list[str] = []
     relative = [e for e in estimates if "relative" in (e.scale or "")]
     if not relative:
         return msgs
@@ -464,7 +467,7 @@ def _columns(runs: Sequence[Run], terms: Sequence[str]) -> dict[str, np.ndarray]
                 else np.array([r.ratios.get(t, 0.0) for r in runs])) for t in terms}
 
 
-def _collect(caught: list, sink: list[str]) -> None:
+def _collect(caught: list[_warnings.WarningMessage], sink: list[str]) -> None:
     for w in caught:
         if issubclass(w.category, GpcWarning):
             msg = str(w.message)
@@ -472,42 +475,46 @@ def _collect(caught: list, sink: list[str]) -> None:
                 sink.append(msg)
 
 
-def _analyse_group(
-    key: tuple[str, float],
-    runs_all: list[Run],
-    est: dict[str, RunEstimate],
-    series: RunSeries,
-    *,
-    terms: Sequence[str] | None,
-    estimators: Sequence[str],
-    drift: str | bool,
-    confidence: float,
-    impurity_confidence: float,
-    impurity_adjust: str,
-    impurity_C: float | None,
-    rel_error: float | None,
-    flag_estimator: str | None,
-    exclude_flagged: bool,
-    expected_intercept: Any,
-    C_M: float | None,
-    kinetic_term: float | None,
-    fixed_intercept: float | None,
-    reference: Any = None,
-) -> GroupResult:
-    series_label, T = key
-    label = _group_label(series_label, T)
-    warns: list[str] = []
-    runs = [r for r in runs_all if r.role == "run" and not est[r.run_id].error]
-    controls = [r for r in runs_all if r.role == "control" and not est[r.run_id].error]
-    failed = [r.run_id for r in runs_all if r.role != "skip" and est[r.run_id].error]
-    if failed:
-        warns.append(f"{label}: runs {', '.join(failed)} could not be processed and are left out")
-    chosen = _choose_terms(runs, series.terms, terms, label)
-    agents = _agent_names(runs, chosen, label)
-    monomers = sorted({r.monomer or f"M0 = {r.M0:g} g/mol" for r in runs})
-    if len(monomers) > 1:
-        warns.append(f"{label}: runs of different monomers ({', '.join(monomers)}) are fitted "
-                     "together; give them different series labels")
+@dataclass(frozen=True)
+class _Group:
+    """One group's usable runs and what each step of its analysis reads.
+
+    ``runs`` are the processed runs with role ``run`` (``ids`` their run ids, ``cols`` the
+    term columns, ``conv`` conversions [-], ``mconc`` [M] [mol/L]); ``primary`` is the
+    estimator of the impurity test and the intercept check.
+    """
+
+    series: str
+    T: float
+    label: str
+    runs: list[Run]
+    controls: list[Run]
+    est: dict[str, RunEstimate]
+    terms: list[str]
+    agents: dict[str, str]
+    monomers: list[str]
+    available: list[str]
+    primary: str
+    use_drift: bool
+    conv: np.ndarray
+    mconc: np.ndarray
+    ids: list[str]
+    cols: dict[str, np.ndarray]
+
+    def y(self, estimator: str, ids: Sequence[str]) -> np.ndarray:
+        """1/DPn (Λ for CLD) of the runs ``ids`` [-]."""
+        return np.array([self.est[i].y(estimator) for i in ids])
+
+    def windows(self, estimator: str, ids: Sequence[str]) -> list[tuple[float, float]] | None:
+        """CLD windows of the runs ``ids`` [g/mol] (None for the other estimators)."""
+        if estimator != "CLD":
+            return None
+        return [self.est[i].cld.window for i in ids]  # type: ignore[union-attr]  # CLD: cld set
+
+
+def _available_estimators(runs: Sequence[Run], est: dict[str, RunEstimate],
+                          estimators: Sequence[str], label: str, warns: list[str]) -> list[str]:
+    """Estimators with a positive value for every run (others left out with a warning)."""
     available = []
     for e in estimators:
         ys = [est[r.run_id].y(e) for r in runs]
@@ -519,128 +526,194 @@ def _analyse_group(
     if not available:
         raise DesignError(f"{label}: no estimator has a chain length for every run "
                           "(give Mn or Mw for each run, or a chromatogram)")
-    primary = flag_estimator if flag_estimator in available else next(
-        e for e in PREFERENCE if e in available)
+    return available
+
+
+def _drift_use(runs: Sequence[Run], opts: TransferOptions, label: str,
+               warns: list[str]) -> tuple[np.ndarray, bool]:
+    """Conversions [-] and whether the cumulative (drift) model is fitted for the group."""
     conv = np.array([r.conversion for r in runs])
     have_conv = bool(np.all(np.isfinite(conv)) and np.all(conv > 0))
-    if drift is True and not have_conv:
+    if opts.drift is True and not have_conv:
         raise DesignError(f"{label}: the drift correction needs 'conversion [-]' (0 < x < 1) for "
                           "every run", column="conversion [-]")
-    use_drift = bool(drift) and have_conv and fixed_intercept is None
-    if drift == "auto" and np.any(np.isfinite(conv)) and not have_conv:
+    use_drift = bool(opts.drift) and have_conv and opts.fixed_intercept is None
+    if opts.drift == "auto" and np.any(np.isfinite(conv)) and not have_conv:
         warns.append(f"{label}: conversion is given for some runs only (or is 0); no drift "
                      "correction")
-    mconc = np.array([r.monomer_conc for r in runs])
-    ids = [r.run_id for r in runs]
-    cols_all = _columns(runs, chosen)
+    return conv, use_drift
+
+
+def _group(key: tuple[str, float], runs_all: list[Run], est: dict[str, RunEstimate],
+           series: RunSeries, opts: TransferOptions, warns: list[str]) -> _Group:
+    """The usable runs of a group, its terms, estimators and drift setting."""
+    series_label, T = key
+    label = _group_label(series_label, T)
+    runs = [r for r in runs_all if r.role == "run" and not est[r.run_id].error]
+    controls = [r for r in runs_all if r.role == "control" and not est[r.run_id].error]
+    failed = [r.run_id for r in runs_all if r.role != "skip" and est[r.run_id].error]
+    if failed:
+        warns.append(f"{label}: runs {', '.join(failed)} could not be processed and are left out")
+    chosen = _choose_terms(runs, series.terms, opts.terms, label)
+    agents = _agent_names(runs, chosen, label)
+    monomers = sorted({r.monomer or f"M0 = {r.M0:g} g/mol" for r in runs})
+    if len(monomers) > 1:
+        warns.append(f"{label}: runs of different monomers ({', '.join(monomers)}) are fitted "
+                     "together; give them different series labels")
+    available = _available_estimators(runs, est, opts.estimators, label, warns)
+    primary = (opts.flag_estimator if opts.flag_estimator in available
+               else next(e for e in PREFERENCE if e in available))
+    conv, use_drift = _drift_use(runs, opts, label, warns)
+    return _Group(series=series_label, T=T, label=label, runs=runs, controls=controls, est=est,
+                  terms=chosen, agents=agents, monomers=monomers, available=available,
+                  primary=primary, use_drift=use_drift, conv=conv,
+                  mconc=np.array([r.monomer_conc for r in runs]), ids=[r.run_id for r in runs],
+                  cols=_columns(runs, chosen))
+
+
+def _impurity_test(g: _Group, opts: TransferOptions, warns: list[str]) -> ImpurityCheck | None:
+    """Flag runs above the Mayo line of the others on the primary estimator.
+
+    With the drift model the test runs on the cumulative model, linearised at a first fit
+    of all runs. A design the test cannot handle skips it, with a warning.
+    """
+    y = g.y(g.primary, g.ids)
+    try:
+        if g.use_drift:
+            pre_naive = fit_mayo(y, g.cols, estimator=g.primary, what=g.label)
+            pwin = g.windows(g.primary, g.ids)
+            pre = fit_cumulative(y, g.conv, g.cols, estimator=g.primary, naive=pre_naive,
+                                 run_ids=g.ids, what=g.label, windows=pwin, M0=g.runs[0].M0)
+            start = [pre.intercept.value] + [c.value for c in pre.constants]
+            imp = flag_runs_cumulative(
+                y, g.conv, g.cols, start, estimator=g.primary, windows=pwin, M0=g.runs[0].M0,
+                run_ids=g.ids, monomer_conc=g.mconc, C_X=opts.impurity_C,
+                confidence=opts.impurity_confidence, adjust=opts.impurity_adjust,
+                rel_error=opts.rel_error, what=g.label)
+        else:
+            imp = flag_runs(
+                y, g.cols, intercept=opts.fixed_intercept, estimator=g.primary, run_ids=g.ids,
+                monomer_conc=g.mconc, C_X=opts.impurity_C, confidence=opts.impurity_confidence,
+                adjust=opts.impurity_adjust, rel_error=opts.rel_error, what=g.label)
+    except DesignError as exc:
+        warns.append(f"{g.label}: impurity test ({g.primary}) not run, no run is flagged: "
+                     f"{exc.message}")
+        return None
+    warns.extend(imp.warnings)
+    return imp
+
+
+def _final_fits(g: _Group, keep: list[str],
+                opts: TransferOptions) -> tuple[dict[str, MayoFit], dict[str, DriftFit]]:
+    """Mayo fit on initial ratios per estimator, and the drift fit when it applies."""
+    kidx = [g.ids.index(i) for i in keep]
+    cols = {t: v[kidx] for t, v in g.cols.items()}
+    mayo: dict[str, MayoFit] = {}
+    dfits: dict[str, DriftFit] = {}
+    for e in g.available:
+        y = g.y(e, keep)
+        mayo[e] = fit_mayo(y, cols, intercept=opts.fixed_intercept, estimator=e, run_ids=keep,
+                           confidence=opts.confidence, what=g.label)
+        if g.use_drift:
+            dfits[e] = fit_cumulative(y, g.conv[kidx], cols, estimator=e, naive=mayo[e],
+                                      run_ids=keep, confidence=opts.confidence, what=g.label,
+                                      windows=g.windows(e, keep), M0=g.runs[kidx[0]].M0)
+    return mayo, dfits
+
+
+def _consumption(g: _Group, keep: list[str], opts: TransferOptions,
+                 warns: list[str]) -> dict[str, ConsumptionResult]:
+    """The consumption method for each term whose residual agent was measured."""
+    kruns = [r for r in g.runs if r.run_id in keep]
+    out: dict[str, ConsumptionResult] = {}
+    for t in g.terms:
+        rr = [r for r in kruns if t in r.residual_agent]
+        if not rr:
+            continue
+        try:
+            out[t] = consumption_constant(
+                [r.agent_conc.get(t, float("nan")) for r in rr],
+                [r.residual_agent[t] for r in rr],
+                monomer_initial=([r.monomer_conc for r in rr]
+                                 if all(math.isfinite(r.residual_monomer) for r in rr) else None),
+                monomer_residual=([r.residual_monomer for r in rr]
+                                  if all(math.isfinite(r.residual_monomer) for r in rr) else None),
+                conversion=[r.conversion for r in rr],
+                u_agent_residual=([r.u_residual_agent[t] for r in rr]
+                                  if all(t in r.u_residual_agent for r in rr) else None),
+                u_monomer_residual=([r.u_residual_monomer for r in rr]
+                                    if all(math.isfinite(r.u_residual_monomer) for r in rr)
+                                    else None),
+                u_conversion=([r.u_conversion for r in rr]
+                              if all(math.isfinite(r.u_conversion) for r in rr) else None),
+                run_ids=[r.run_id for r in rr], name=t, confidence=opts.confidence,
+                what=g.label)
+        except DataError as exc:
+            warns.append(f"{g.label}: consumption method for {t} not applied: {exc.message}")
+    return out
+
+
+def _naive_bias_notes(g: _Group, dfits: dict[str, DriftFit], pref_est: str) -> tuple[str, ...]:
+    """Where the naive Mayo fit is more than 2 % off the drift-corrected constant."""
+    notes: list[str] = []
+    if not dfits:
+        return ()
+    d = dfits[pref_est]
+    for t in g.terms:
+        j = d.terms.index(t)
+        if d.naive_bias and math.isfinite(d.naive_bias[j]) and abs(d.naive_bias[j]) > 0.02:
+            notes.append(
+                f"{g.label}: the naive Mayo fit on initial ratios gives {t} = "
+                f"{d.naive[j].value:.4g}, {100 * d.naive_bias[j]:+.1f} % off the "
+                f"drift-corrected {d.constants[j].value:.4g} ({pref_est}); the agent is "
+                "consumed faster than the monomer, so the naive value is biased")
+    return tuple(notes)
+
+
+def _analyse_group(key: tuple[str, float], runs_all: list[Run], est: dict[str, RunEstimate],
+                   series: RunSeries, opts: TransferOptions, reference: Any = None) -> GroupResult:
+    """Analyse one group (series label, temperature) in the steps of the module docstring."""
+    warns: list[str] = []
+    g = _group(key, runs_all, est, series, opts, warns)
     with _warnings.catch_warnings(record=True) as caught:
         _warnings.simplefilter("always", GpcWarning)
-        # 1. impurity flags on the primary estimator (the drift model linearised when used)
-        y_p = np.array([est[i].y(primary) for i in ids])
-        imp: ImpurityCheck | None = None
-        imp_kw = dict(run_ids=ids, monomer_conc=mconc, C_X=impurity_C,
-                      confidence=impurity_confidence, adjust=impurity_adjust,
-                      rel_error=rel_error, what=label)
-        try:
-            if use_drift:
-                pre_naive = fit_mayo(y_p, cols_all, estimator=primary, what=label)
-                pwin = [est[i].cld.window for i in ids] if primary == "CLD" else None  # type: ignore[union-attr]
-                pre = fit_cumulative(y_p, conv, cols_all, estimator=primary, naive=pre_naive,
-                                     run_ids=ids, what=label, windows=pwin, M0=runs[0].M0)
-                start = [pre.intercept.value] + [c.value for c in pre.constants]
-                imp = flag_runs_cumulative(y_p, conv, cols_all, start, estimator=primary,
-                                           windows=pwin, M0=runs[0].M0, **imp_kw)
-            else:
-                imp = flag_runs(y_p, cols_all, intercept=fixed_intercept, estimator=primary,
-                                **imp_kw)
-            warns.extend(imp.warnings)
-        except DesignError:
-            imp = None
+        # 1. impurity flags on the primary estimator; flagged runs left out
+        imp = _impurity_test(g, opts, warns)
         flagged = set(imp.flagged_ids) if imp else set()
-        keep = [i for i in ids if not (exclude_flagged and i in flagged)]
-        kidx = [ids.index(i) for i in keep]
-        cols = {t: v[kidx] for t, v in cols_all.items()}
-        kruns = [runs[j] for j in kidx]
+        keep = [i for i in g.ids if not (opts.exclude_flagged and i in flagged)]
         # 2. Mayo and drift fits per estimator
-        mayo: dict[str, MayoFit] = {}
-        dfits: dict[str, DriftFit] = {}
-        for e in available:
-            y = np.array([est[i].y(e) for i in keep])
-            mayo[e] = fit_mayo(y, cols, intercept=fixed_intercept, estimator=e, run_ids=keep,
-                               confidence=confidence, what=label)
-            if use_drift:
-                windows = ([est[i].cld.window for i in keep] if e == "CLD" else None)  # type: ignore[union-attr]
-                dfits[e] = fit_cumulative(y, conv[kidx], cols, estimator=e, naive=mayo[e],
-                                          run_ids=keep, confidence=confidence, what=label,
-                                          windows=windows, M0=kruns[0].M0)
+        mayo, dfits = _final_fits(g, keep, opts)
         # 3. intercept check on the preferred model of the primary estimator
         ic = None
-        pfit: Any = dfits.get(primary) or mayo.get(primary)
-        if pfit is not None and fixed_intercept is None:
-            ic = _intercept_check(pfit, controls, est, primary, label, expected_intercept,
-                                  C_M, kinetic_term, impurity_confidence, impurity_C,
-                                  float(np.nanmean(mconc)) if np.any(np.isfinite(mconc)) else None,
-                                  warns)
+        pfit: Any = dfits.get(g.primary) or mayo.get(g.primary)
+        if pfit is not None and opts.fixed_intercept is None:
+            ic = _intercept_check(pfit, g, opts)
         # 4. consumption method
-        consumption: dict[str, ConsumptionResult] = {}
-        for t in chosen:
-            rr = [r for r in kruns if t in r.residual_agent]
-            if not rr:
-                continue
-            try:
-                consumption[t] = consumption_constant(
-                    [r.agent_conc.get(t, float("nan")) for r in rr],
-                    [r.residual_agent[t] for r in rr],
-                    monomer_initial=([r.monomer_conc for r in rr]
-                                     if all(math.isfinite(r.residual_monomer) for r in rr) else None),
-                    monomer_residual=([r.residual_monomer for r in rr]
-                                      if all(math.isfinite(r.residual_monomer) for r in rr) else None),
-                    conversion=[r.conversion for r in rr],
-                    u_agent_residual=([r.u_residual_agent[t] for r in rr]
-                                      if all(t in r.u_residual_agent for r in rr) else None),
-                    u_monomer_residual=([r.u_residual_monomer for r in rr]
-                                        if all(math.isfinite(r.u_residual_monomer) for r in rr)
-                                        else None),
-                    u_conversion=([r.u_conversion for r in rr]
-                                  if all(math.isfinite(r.u_conversion) for r in rr) else None),
-                    run_ids=[r.run_id for r in rr], name=t, confidence=confidence, what=label)
-            except DataError as exc:
-                warns.append(f"{label}: consumption method for {t} not applied: {exc.message}")
+        consumption = _consumption(g, keep, opts, warns)
     _collect(caught, warns)
     # 5. preferred constant and comparison of the estimators
     model = MODEL_DRIFT if dfits else MODEL_MAYO
     fits: dict[str, Any] = dfits if dfits else mayo
     pref_est = next(e for e in PREFERENCE if e in fits)
-    preferred = {t: (pref_est, model) for t in chosen}
-    comparison = _compare(fits, chosen, runs, est, label, model)
-    if dfits:
-        for t in chosen:
-            d = dfits[pref_est]
-            j = d.terms.index(t)
-            if d.naive_bias and math.isfinite(d.naive_bias[j]) and abs(d.naive_bias[j]) > 0.02:
-                comparison = comparison + (
-                    f"{label}: the naive Mayo fit on initial ratios gives {t} = "
-                    f"{d.naive[j].value:.4g}, {100 * d.naive_bias[j]:+.1f} % off the "
-                    f"drift-corrected {d.constants[j].value:.4g} ({pref_est}); the agent is "
-                    "consumed faster than the monomer, so the naive value is biased",)
-    literature = _literature(runs, chosen, agents, T, reference)
+    comparison = (_compare(fits, g.terms, g.runs, est, g.label, model)
+                  + _naive_bias_notes(g, dfits, pref_est))
     return GroupResult(
-        series=series_label,
-        T_C=T,
-        label=label,
-        terms=tuple(chosen),
-        agents=agents,
-        monomer=", ".join(monomers),
-        run_ids=tuple(ids),
-        excluded=tuple(i for i in ids if i not in keep),
+        series=g.series,
+        T_C=g.T,
+        label=g.label,
+        terms=tuple(g.terms),
+        agents=g.agents,
+        monomer=", ".join(g.monomers),
+        run_ids=tuple(g.ids),
+        excluded=tuple(i for i in g.ids if i not in keep),
         mayo=mayo,
         drift=dfits,
         impurity=imp,
         intercept_check=ic,
         consumption=consumption,
         comparison=comparison,
-        preferred=preferred,
-        literature=literature,
+        preferred={t: (pref_est, model) for t in g.terms},
+        literature=_literature(g.runs, g.terms, g.agents, g.T, reference),
         warnings=tuple(dict.fromkeys(warns)),
     )
 
@@ -673,19 +746,20 @@ def _literature(runs: Sequence[Run], terms: Sequence[str], agents: dict[str, str
     return out
 
 
-def _intercept_check(fit: Any, controls: list[Run], est: dict[str, RunEstimate], estimator: str,
-                     label: str, expected_intercept: Any, C_M: float | None,
-                     kinetic_term: float | None, conf: float, C_X: float | None,
-                     mconc: float | None, warns: list[str]) -> InterceptCheck | None:
-    if expected_intercept is not None:
-        if isinstance(expected_intercept, (tuple, list)):
-            e, se = float(expected_intercept[0]), float(expected_intercept[1])
+def _intercept_check(fit: Any, g: _Group, opts: TransferOptions) -> InterceptCheck | None:
+    """Check 1/DPn0 against, in this order: a given value, control runs, C_M (+ kinetic term)."""
+    conf, C_X = opts.impurity_confidence, opts.impurity_C
+    mconc = float(np.nanmean(g.mconc)) if np.any(np.isfinite(g.mconc)) else None
+    expected, C_M, kinetic_term = opts.expected_intercept, opts.C_M, opts.kinetic_term
+    if expected is not None:
+        if isinstance(expected, (tuple, list)):
+            e, se = float(expected[0]), float(expected[1])
         else:
-            e, se = float(expected_intercept), 0.0
+            e, se = float(expected), 0.0
         return check_intercept(fit, e, se, source="given value", confidence=conf, C_X=C_X,
                                monomer_conc=mconc)
-    if controls:
-        ys = np.array([est[r.run_id].y(estimator) for r in controls])
+    if g.controls:
+        ys = np.array([g.est[r.run_id].y(g.primary) for r in g.controls])
         ys = ys[np.isfinite(ys)]
         if ys.size:
             if ys.size > 1:
@@ -695,7 +769,8 @@ def _intercept_check(fit: Any, controls: list[Run], est: dict[str, RunEstimate],
                 if not math.isfinite(rel):
                     rel = math.sqrt(fit.redchi) if math.isfinite(fit.redchi) else 0.0
                 e, se = float(ys[0]), float(ys[0] * rel)
-            src = f"control run{'s' if ys.size > 1 else ''} {', '.join(r.run_id for r in controls)}"
+            src = (f"control run{'s' if ys.size > 1 else ''} "
+                   f"{', '.join(r.run_id for r in g.controls)}")
             return check_intercept(fit, e, se, source=src, confidence=conf, C_X=C_X,
                                    monomer_conc=mconc)
     if C_M is not None:
@@ -719,8 +794,8 @@ def _compare(fits: dict[str, Any], terms: Sequence[str], runs: Sequence[Run],
                      if math.isfinite(est[r.run_id].Mw) and math.isfinite(est[r.run_id].Mn)])
     shifts = np.array([est[r.run_id].Mn_shift_pct for r in runs
                        if math.isfinite(est[r.run_id].Mn_shift_pct)])
-    curv = np.array([est[r.run_id].cld.curvature for r in runs
-                     if est[r.run_id].cld is not None and math.isfinite(est[r.run_id].cld.curvature)])
+    clds = [c for c in (est[r.run_id].cld for r in runs) if c is not None]
+    curv = np.array([c.curvature for c in clds if math.isfinite(c.curvature)])
     for t in terms:
         for i in range(len(names)):
             for j in range(i + 1, len(names)):
@@ -788,31 +863,78 @@ def _as_method(method: Any) -> Any:
     return method
 
 
+def _options(options: TransferOptions | None, overrides: dict[str, Any]) -> TransferOptions:
+    """``options`` (default: all defaults) with the keyword overrides, checked."""
+    check_names(overrides)
+    if options is None:
+        return TransferOptions(**overrides)
+    if not isinstance(options, TransferOptions):
+        raise TypeError(f"options must be a TransferOptions, not {type(options).__name__}")
+    return options.with_changes(**overrides) if overrides else options
+
+
+def _read_series(sheet_path: str | Path | None, series: RunSeries | None,
+                 sheet: str | int | None, M0: float | None, monomer: str | None,
+                 reference: Any, warns: list[str]) -> RunSeries:
+    """The given RunSeries, or the sheet read (its warnings collected into ``warns``)."""
+    with _warnings.catch_warnings(record=True) as caught:
+        _warnings.simplefilter("always", GpcWarning)
+        if series is None:
+            if sheet_path is None:
+                raise DataError("give a run-series sheet (sheet_path) or a RunSeries (series)")
+            series = read_run_series(sheet_path, sheet=sheet, M0=M0, monomer=monomer,
+                                     reference=reference)
+    _collect(caught, warns)
+    return series
+
+
+def _method_for(series: RunSeries, method: Any) -> Any:
+    """The loaded method; refused when the sheet names chromatograms and none is given."""
+    files = [r.run_id for r in series.runs if r.file and r.role != "skip"]
+    m = _as_method(method)
+    if files and m is None:
+        raise MethodError(
+            f"runs {', '.join(files[:5])}{' ...' if len(files) > 5 else ''} name chromatogram "
+            "files: give a method file (--method METHOD.toml) to process them", key="method")
+    return m
+
+
+def _run_warnings(estimates: Sequence[RunEstimate]) -> list[str]:
+    out = []
+    for e in estimates:
+        if e.error:
+            out.append(f"run {e.run.run_id}: {e.error}")
+        for w in e.warnings:
+            out.append(f"run {e.run.run_id}: {w}")
+    return out
+
+
+def _group_warnings(groups: Sequence[GroupResult]) -> list[str]:
+    """Each group's warnings, estimator comparison, intercept and impurity flags."""
+    out: list[str] = []
+    for g in groups:
+        out.extend(g.warnings)
+        out.extend(g.comparison)
+        if g.intercept_check is not None and g.intercept_check.flagged:
+            out.append(f"{g.label}: {g.intercept_check.message}")
+        if g.impurity is not None:
+            for f in g.impurity.flags:
+                if f.flagged:
+                    out.append(f"{g.label}: run {f.run_id} {f.reason}")
+    return out
+
+
 def analyse_series(
     sheet_path: str | Path | None = None,
+    method: Any = None,
+    options: TransferOptions | None = None,
     *,
     series: RunSeries | None = None,
-    method: Any = None,
     sheet: str | int | None = None,
-    terms: Sequence[str] | None = None,
-    estimators: Sequence[str] = ESTIMATORS,
-    drift: str | bool = "auto",
-    cld_window: tuple[float, float] | dict[str, tuple[float, float]] | None = None,
-    cld_fraction: float = DEFAULT_FRACTION,
-    confidence: float = 0.95,
-    impurity_confidence: float = 0.99,
-    impurity_adjust: str = "series",
-    impurity_C: float | None = None,
-    rel_error: float | None = None,
-    flag_estimator: str | None = None,
-    exclude_flagged: bool = True,
-    expected_intercept: float | tuple[float, float] | None = None,
-    C_M: float | None = None,
-    kinetic_term: float | None = None,
-    fixed_intercept: float | None = None,
     M0: float | None = None,
     monomer: str | None = None,
     reference: Any = None,
+    **overrides: Any,
 ) -> TransferResult:
     """Chain-transfer constants from a run series.
 
@@ -820,52 +942,23 @@ def analyse_series(
     ----------
     sheet_path : str or Path, optional
         Run-series sheet (CSV or XLSX); see :mod:`gpctools.transfer.series` for columns.
-    series : RunSeries, optional
-        Already-read runs (instead of ``sheet_path``).
     method : str, Path or Method, optional
         Method file for the chromatograms (required when the sheet names files).
+    options : TransferOptions, optional
+        The analysis settings (terms, estimators, drift, CLD window, confidence levels,
+        impurity test, intercept check); default :class:`TransferOptions()`.
+    series : RunSeries, optional
+        Already-read runs (instead of ``sheet_path``).
     sheet : str or int, optional
         Workbook sheet.
-    terms : sequence of str, optional
-        Constants to fit: ``"C_A"``, ``"C_A:<agent>"``, ``"C_S"``, ``"C_I"``, ``"C_M"``.
-        Default: every ratio that varies within a group.
-    estimators : sequence of str
-        Any of ``"Mn"``, ``"Mw/2"``, ``"CLD"`` (CLD needs chromatograms).
-    drift : {"auto", True, False}
-        Fit the cumulative (conversion-drift) model: "auto" when every run of a group
-        has a conversion; True requires it; False never.
-    cld_window : (float, float) or dict, optional
-        CLD window (M_low, M_high) [g/mol] for every run, or per run id.
-    cld_fraction : float
-        Automatic CLD window: dw/dlogM >= this fraction of its maximum [-].
-    confidence : float
-        Level of the constants' intervals [-] (default 0.95).
-    impurity_confidence : float
-        One-sided confidence of impurity flags and the intercept check [-] (default 0.99).
-    impurity_adjust : {"series", "run"}
-        Whether the flag level holds for the whole series (default) or per run.
-    impurity_C : float, optional
-        Transfer constant of the suspected impurity [-], for ppm and mol/L.
-    rel_error : float, optional
-        Known relative standard error of one 1/DPn [-] (e.g. from replicate
-        injections), used by the impurity test instead of the runs' scatter.
-    flag_estimator : str, optional
-        Estimator for the impurity test (default: Mw/2, else Mn, else CLD).
-    exclude_flagged : bool
-        Leave flagged runs out of the final fits (default True).
-    expected_intercept : float or (float, float), optional
-        Expected 1/DPn0 [-] (and its standard error) for the intercept check.
-    C_M : float, optional
-        Known transfer-to-monomer constant [-] (expected intercept = C_M + kinetic term).
-    kinetic_term : float, optional
-        Known kinetic part of 1/DPn0, (1 + δ) k_t R_p/(k_p² [M]²) [-].
-    fixed_intercept : float, optional
-        Hold 1/DPn0 at this value [-] (lets ``C_M`` be fitted; no drift model then).
     M0 : float, optional
         Default repeat-unit molar mass [g/mol] for rows without monomer/M0.
     monomer : str, optional
         Default monomer name.
     reference : gpctools.refdata.ReferenceData, optional
+    **overrides
+        Any :class:`TransferOptions` field, replacing the value in ``options``
+        (e.g. ``analyse_series(path, impurity_C=15.0)``); an unknown name is a TypeError.
 
     Returns
     -------
@@ -877,7 +970,8 @@ def analyse_series(
         A group cannot separate the requested terms (too few ratios, collinear columns,
         no more runs than parameters).
     InputFormatError, DataError, MethodError
-        Unreadable sheet or values, naming file, row and column.
+        Unreadable sheet or values, naming file, row and column; a bad option value
+        (DataError whose key is the option).
 
     References
     ----------
@@ -885,88 +979,29 @@ def analyse_series(
     Clay and Gilbert, Macromolecules 1995; van Berkel, Russell, Gilbert, Macromolecules
     2005; SCIENCE.md sections 3 to 6.
     """
-    for e in estimators:
-        if e not in ESTIMATORS:
-            raise DataError(f"unknown estimator {e!r}; use Mn, Mw/2 or CLD", key="estimators")
-    if not estimators:
-        raise DataError("choose at least one estimator (Mn, Mw/2, CLD)", key="estimators")
-    if drift not in ("auto", True, False):
-        raise DataError(f"drift must be 'auto', True or False, not {drift!r}", key="drift")
+    opts = _options(options, overrides)
     warns: list[str] = []
-    with _warnings.catch_warnings(record=True) as caught:
-        _warnings.simplefilter("always", GpcWarning)
-        if series is None:
-            if sheet_path is None:
-                raise DataError("give a run-series sheet (sheet_path) or a RunSeries (series)")
-            series = read_run_series(sheet_path, sheet=sheet, M0=M0, monomer=monomer,
-                                     reference=reference)
-    _collect(caught, warns)
-    files = [r.run_id for r in series.runs if r.file and r.role != "skip"]
-    m = _as_method(method)
-    if files and m is None:
-        raise MethodError(
-            f"runs {', '.join(files[:5])}{' ...' if len(files) > 5 else ''} name chromatogram "
-            "files: give a method file (--method METHOD.toml) to process them", key="method")
-    estimates = _estimate_runs(series, m, cld_window=cld_window, cld_fraction=cld_fraction,
-                               want_cld="CLD" in estimators)
+    series = _read_series(sheet_path, series, sheet, M0, monomer, reference, warns)
+    m = _method_for(series, method)
+    estimates = _estimate_runs(series, m, opts)
     est = {e.run.run_id: e for e in estimates}
-    for e in estimates:
-        if e.error:
-            warns.append(f"run {e.run.run_id}: {e.error}")
-        for w in e.warnings:
-            warns.append(f"run {e.run.run_id}: {w}")
+    warns.extend(_run_warnings(estimates))
     warns.extend(_scale_warnings(estimates, reference))
-    groups = []
-    for key, runs in series.groups().items():
-        if all(r.role != "run" for r in runs):
-            continue
-        groups.append(_analyse_group(
-            key, runs, est, series, terms=terms, estimators=estimators, drift=drift,
-            confidence=confidence, impurity_confidence=impurity_confidence,
-            impurity_adjust=impurity_adjust, impurity_C=impurity_C, rel_error=rel_error,
-            flag_estimator=flag_estimator, exclude_flagged=exclude_flagged,
-            expected_intercept=expected_intercept, C_M=C_M, kinetic_term=kinetic_term,
-            fixed_intercept=fixed_intercept, reference=reference))
+    groups = [_analyse_group(key, runs, est, series, opts, reference)
+              for key, runs in series.groups().items() if any(r.role == "run" for r in runs)]
     if not groups:
         raise DesignError("the sheet has no runs with role 'run' to fit")
     arr = _arrhenius(groups, warns)
-    for g in groups:
-        warns.extend(g.warnings)
-        warns.extend(g.comparison)
-        if g.intercept_check is not None and g.intercept_check.flagged:
-            warns.append(f"{g.label}: {g.intercept_check.message}")
-        if g.impurity is not None:
-            for f in g.impurity.flags:
-                if f.flagged:
-                    warns.append(f"{g.label}: run {f.run_id} {f.reason}")
+    warns.extend(_group_warnings(groups))
     warns = list(dict.fromkeys(warns))
     for msg in warns:
         _warnings.warn(msg, EstimatorWarning, stacklevel=2)
-    options = {
-        "terms": list(terms) if terms else "auto",
-        "estimators": list(estimators),
-        "drift": drift,
-        "CLD window [g/mol]": list(cld_window) if isinstance(cld_window, tuple) else (
-            {k: list(v) for k, v in cld_window.items()} if isinstance(cld_window, dict) else "auto"),
-        "CLD fraction [-]": cld_fraction,
-        "confidence [-]": confidence,
-        "impurity confidence [-]": impurity_confidence,
-        "impurity level applies to": impurity_adjust,
-        "impurity C_X [-]": impurity_C,
-        "relative error of 1/DPn [-]": rel_error,
-        "exclude flagged runs": exclude_flagged,
-        "expected intercept [-]": (list(expected_intercept) if isinstance(expected_intercept, (tuple, list))
-                                   else expected_intercept),
-        "C_M [-]": C_M,
-        "kinetic term [-]": kinetic_term,
-        "fixed intercept [-]": fixed_intercept,
-    }
     return TransferResult(
         series=series,
         estimates=tuple(estimates),
         groups=tuple(groups),
         arrhenius=tuple(arr),
-        options=options,
+        options=opts.summary(),
         method_source=(getattr(m, "source", None) if m is not None else None),
         warnings=tuple(warns),
     )
@@ -1018,7 +1053,9 @@ def _constants_rows(res: TransferResult) -> list[dict[str, Any]]:
     rows = []
     for g in res.groups:
         for t in g.terms:
-            for model, fits in ((MODEL_MAYO, g.mayo), (MODEL_DRIFT, g.drift)):
+            model_fits: tuple[tuple[str, dict[str, Any]], ...] = (
+                (MODEL_MAYO, g.mayo), (MODEL_DRIFT, g.drift))
+            for model, fits in model_fits:
                 for e in ESTIMATORS:
                     if e not in fits:
                         continue
@@ -1080,10 +1117,7 @@ def _constants_rows(res: TransferResult) -> list[dict[str, Any]]:
 
 def _run_rows(res: TransferResult) -> list[dict[str, Any]]:
     est = {e.run.run_id: e for e in res.estimates}
-    group_of: dict[str, GroupResult] = {}
-    for g in res.groups:
-        for i in g.run_ids:
-            group_of[i] = g
+    group_of: dict[str, GroupResult] = {i: gr for gr in res.groups for i in gr.run_ids}
     terms = list(res.series.terms)
     rows = []
     for r in res.series.runs:

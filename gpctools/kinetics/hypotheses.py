@@ -1,0 +1,618 @@
+"""The causes of a low molar mass the diagnosis weighs, one small class each.
+
+Every hypothesis declares its key, title, category, its one fitted parameter θ with the
+reported value and unit, its model μ(θ) of the observations, and its explanation. The
+kinetic causes perturb the anchored steady-state model
+(:func:`gpctools.kinetics.predict.evaluate`) and predict y = ln(perturbed/base) for R_p,
+Mn and Mw; the measurement causes shift the averages directly.
+
+============================  ===============================  ===============================
+cause                         θ (grid) -> reported value       model of the observations
+============================  ===============================  ===============================
+no cause                      none (k = 0)                     every y = 0
+unexplained transfer          r = DPn/DPn_base in [0.02, 1]    Δ(1/DPn) = (1/DPn)·(1/r − 1);
+                              -> Δ(1/DPn) [-]                  R_p unchanged
+excess initiation             ln F in [0, ln 1000] -> F [-]    f·k_d·[I] × F: R_p ∝ F^½
+temperature overshoot         ΔT in [0, 80] K                  k_p, k_d by Arrhenius, k_t fixed
+inhibition / retardation      h = [R•]/[R•]_base in [0.02, 1]  ζ = 2k_t[R•]_base(1 − h²)/h;
+                              -> ζ = k_z[Z] [1/s]              induction period free
+dilution / monomer loss       g in [0.02, 1]                   [M] × g
+flow-rate error               ε in [−0.1, 0.1]                 Mn, Mw, check standard:
+                                                               −ln10·B·V·ε; flow marker: ε
+calibration drift             s in [−2, 2]                     Mn, Mw, check standard: s
+integration-limit artefact    t in [−2, 0]                     Mn: t; limit checks free
+============================  ===============================  ===============================
+
+The retarder steady state 2k_t[R•]² + ζ[R•] = R_i holds with [R•] = h·[R•]_base for the ζ
+above (R_i = 2k_t[R•]_base²), so R_p falls exactly by h [derived].
+
+The registry is the explicit tuple :data:`HYPOTHESES` (its order is the order of the
+causes before ranking and breaks ties). Each class has ``prior_range``, the place for a
+plausibility range of its fitted value; it is None for every cause now (no prior: every
+value on the grid is equally plausible), which is how the scoring has always worked.
+
+References
+----------
+- Fingerprints of low molar mass: docs/science.md, section 9 (transfer keeps R_p, more initiator or
+  heat raises R_p with R_p·DPn about constant, retarders lower both, measurement
+  artefacts shift all averages or only Mn).
+- Steady state and the Mayo equation: docs/science.md, section 3.2; Mayo, J. Am. Chem. Soc. 1943.
+- Flow-error sensitivity Δlog M = −B·V·ε: docs/science.md, section 2.2 [derived].
+"""
+
+from __future__ import annotations
+
+import math
+from abc import ABC, abstractmethod
+from dataclasses import dataclass, field
+from typing import ClassVar, Protocol
+
+import numpy as np
+
+from gpctools.kinetics.checks import FlowSensitivity
+from gpctools.kinetics.predict import KineticParameters, KineticState, evaluate
+from gpctools.refdata import R_GAS
+
+__all__ = [
+    "AnchoredModel",
+    "Evidence",
+    "Explanation",
+    "Hypothesis",
+    "HYPOTHESES",
+    "hypothesis",
+]
+
+
+# --------------------------------------------------------------------------- inputs
+
+
+@dataclass(frozen=True)
+class AnchoredModel:
+    """The anchored steady-state model the kinetic causes perturb.
+
+    Attributes
+    ----------
+    parameters : KineticParameters
+        Parameters after anchoring to the normal batch (flux factor, 1/DPn offset).
+    base : KineticState
+        ``evaluate(parameters)``: the expected state of this batch.
+    flow : FlowSensitivity
+        B·V and its uncertainty, for the flow-rate cause.
+    """
+
+    parameters: KineticParameters
+    base: KineticState
+    flow: FlowSensitivity
+    _cache: dict[tuple[tuple[str, float], ...], KineticState] = field(
+        default_factory=dict, compare=False, repr=False)
+
+    @property
+    def inv_DPn(self) -> float:
+        """Expected 1/DPn of this batch [-]."""
+        return self.base.inv_DPn
+
+    def state(self, **perturbation: float) -> KineticState:
+        """``evaluate(parameters, **perturbation)``, cached (the fits revisit grid points)."""
+        key = tuple(sorted(perturbation.items()))
+        s = self._cache.get(key)
+        if s is None:
+            s = evaluate(self.parameters, **perturbation)
+            self._cache[key] = s
+        return s
+
+    def response(self, **perturbation: float) -> dict[str, float]:
+        """y = ln(perturbed/base) of R_p, Mn and Mw [-] for a perturbation of ``evaluate``."""
+        s = self.state(**perturbation)
+        base = self.base
+        return {
+            "R_p": math.log(s.R_p / base.R_p),
+            "Mn": math.log(s.DPn / base.DPn),
+            "Mw": math.log(s.DPn * s.dispersity / (base.DPn * base.dispersity)),
+        }
+
+
+class CandidateLevel(Protocol):
+    """What an explanation reads of one impurity candidate (see ``ImpurityEstimate``)."""
+
+    @property
+    def name(self) -> str: ...
+    @property
+    def C(self) -> float: ...
+    @property
+    def ppm_mol(self) -> float: ...
+    @property
+    def ppm_mass(self) -> float | None: ...
+
+
+@dataclass(frozen=True)
+class Evidence:
+    """What the explanations quote: measured/expected ratios and the derived numbers.
+
+    Attributes
+    ----------
+    parameters : KineticParameters
+        The un-anchored parameters of the recipe (T [K], E_p, E_d [kJ/mol], [M] [mol/L]).
+    model : AnchoredModel
+    rp_ratio, mn_ratio, mw_ratio : float or None
+        Measured/expected R_p, Mn, Mw [-] (None when not measured).
+    excess : float or None
+        1/DPn measured − expected [-].
+    impurities : tuple
+        Candidate levels that would explain the excess, best first.
+    induction : float or None
+        Induction period [min].
+    Mn_shift_low_limit : float or None
+        Mn change when the low-M limit moves 0.2 mL earlier [%].
+    """
+
+    parameters: KineticParameters
+    model: AnchoredModel
+    rp_ratio: float | None = None
+    mn_ratio: float | None = None
+    mw_ratio: float | None = None
+    excess: float | None = None
+    impurities: tuple[CandidateLevel, ...] = ()
+    induction: float | None = None
+    Mn_shift_low_limit: float | None = None
+
+    @property
+    def rp_text(self) -> str:
+        """'R_p is 1.23× expected' or 'R_p was not measured'."""
+        if self.rp_ratio is None:
+            return "R_p was not measured"
+        return f"R_p is {_sig(self.rp_ratio, 3)}× expected"
+
+    @property
+    def mn_text(self) -> str:
+        """'Mn is 0.8× expected' or 'Mn was not measured'."""
+        if self.mn_ratio is None:
+            return "Mn was not measured"
+        return f"Mn is {_sig(self.mn_ratio, 3)}× expected"
+
+    def ratio_numbers(self) -> list[tuple[str, float]]:
+        """The measured/expected ratios that were measured, unit-named."""
+        nums: list[tuple[str, float]] = []
+        if self.rp_ratio is not None:
+            nums.append(("R_p measured/expected [-]", self.rp_ratio))
+        if self.mn_ratio is not None:
+            nums.append(("Mn measured/expected [-]", self.mn_ratio))
+        if self.mw_ratio is not None:
+            nums.append(("Mw measured/expected [-]", self.mw_ratio))
+        return nums
+
+
+@dataclass(frozen=True)
+class Explanation:
+    """Plain-language text, the numbers behind it (unit in each label) and the next step."""
+
+    text: str
+    numbers: tuple[tuple[str, float], ...]
+    next_step: str
+
+
+def _sig(x: float | None, n: int = 4) -> str:
+    if x is None or (isinstance(x, float) and not math.isfinite(x)):
+        return "n/a"
+    return f"{x:.{n}g}"
+
+
+# --------------------------------------------------------------------------- the base
+
+
+class Hypothesis(ABC):
+    """One cause: a parameter grid, a model μ(θ) of the observations and an explanation.
+
+    Class attributes
+    ----------------
+    key, title, category : str
+        Short key, plain title, ``process``, ``measurement`` or ``none``.
+    parameter, unit : str
+        Name and unit of the reported value of the fitted parameter.
+    k : int
+        Number of fitted parameters (for the Akaike score).
+    free : tuple of str
+        Observations this cause leaves unexplained on purpose (not counted in χ²).
+    prior_range : (float, float) or None
+        Plausible range of the reported value [unit], for a plausibility prior on it;
+        None: no prior (the current scoring).
+    skipped_note : str
+        Note when :meth:`applies` is False.
+    """
+
+    key: ClassVar[str] = ""
+    title: ClassVar[str] = ""
+    category: ClassVar[str] = "process"
+    parameter: ClassVar[str] = ""
+    unit: ClassVar[str] = "-"
+    k: ClassVar[int] = 1
+    free: ClassVar[tuple[str, ...]] = ()
+    prior_range: ClassVar[tuple[float, float] | None] = None
+    skipped_note: ClassVar[str] = ""
+
+    def applies(self, parameters: KineticParameters) -> bool:
+        """Whether the cause can be evaluated for these parameters."""
+        return True
+
+    @abstractmethod
+    def grid(self) -> np.ndarray:
+        """Grid of θ searched before the bounded refinement."""
+        raise NotImplementedError
+
+    @abstractmethod
+    def predict(self, theta: float, model: AnchoredModel) -> dict[str, float]:
+        """μ(θ) for each observation it affects (others are predicted as 0)."""
+        raise NotImplementedError
+
+    def extra_sigma(self, theta: float, name: str, model: AnchoredModel) -> float | None:
+        """Extra standard uncertainty of observation ``name`` at θ (None: none)."""
+        return None
+
+    def value(self, theta: float, model: AnchoredModel) -> float:
+        """The reported value of the fitted parameter, in ``unit``."""
+        return theta
+
+    @abstractmethod
+    def explain(self, value: float, ev: Evidence) -> Explanation:
+        """Text, numbers and next step for the best-fit ``value``."""
+        raise NotImplementedError
+
+    def __repr__(self) -> str:
+        return f"<hypothesis {self.key}>"
+
+
+# --------------------------------------------------------------------------- the causes
+
+
+class NoCause(Hypothesis):
+    """Everything as expected: μ = 0 for every observation, nothing fitted."""
+
+    key = "none"
+    title = "no cause: as expected"
+    category = "none"
+    parameter = "-"
+    k = 0
+
+    def grid(self) -> np.ndarray:
+        return np.array([0.0])
+
+    def predict(self, theta: float, model: AnchoredModel) -> dict[str, float]:
+        return {}
+
+    def explain(self, value: float, ev: Evidence) -> Explanation:
+        return Explanation(
+            f"Measured values agree with the expected ones within their uncertainties "
+            f"({ev.mn_text}; {ev.rp_text}).",
+            tuple(ev.ratio_numbers()),
+            "nothing to chase; if the product is still off-spec, check the specification "
+            "and the sampling",
+        )
+
+
+class UnexplainedTransfer(Hypothesis):
+    """Chains stop more often than the recipe explains; the radicals keep going.
+
+    θ = r = DPn/DPn_base; Δ(1/DPn) = (1/DPn_base)·(1/r − 1) added to the Mayo sum.
+    """
+
+    key = "transfer"
+    title = "unexplained chain transfer (impurity or agent overcharge)"
+    parameter = "excess 1/DPn"
+
+    def grid(self) -> np.ndarray:
+        return np.linspace(0.02, 1.0, 197)[::-1]
+
+    def predict(self, theta: float, model: AnchoredModel) -> dict[str, float]:
+        return model.response(extra_transfer=self.value(theta, model))
+
+    def value(self, theta: float, model: AnchoredModel) -> float:
+        return model.inv_DPn * (1.0 / theta - 1.0)
+
+    def explain(self, value: float, ev: Evidence) -> Explanation:
+        ex = ev.excess
+        nums = ev.ratio_numbers()
+        nums.insert(0, ("excess 1/DPn (from Mn) [-]", ex if ex is not None else float("nan")))
+        nums.append(("1/DPn expected [-]", ev.model.inv_DPn))
+        lines = ""
+        if ev.impurities:
+            top = ev.impurities[:3]
+            lines = "; ".join(
+                f"{i.name} (C = {i.C:.3g}): {i.ppm_mol:.3g} ppm mol"
+                + (f" ({i.ppm_mass:.3g} ppm by mass)" if i.ppm_mass else "")
+                for i in top
+            )
+            nums.append((f"equivalent {top[0].name} [ppm mol]", top[0].ppm_mol))
+        return Explanation(
+            f"Chains stop more often than the recipe explains while the radicals keep "
+            f"going: {ev.mn_text}, {ev.rp_text}. Excess 1/DPn = {_sig(ex, 4)} "
+            f"(1/DPn measured − expected). Equivalent impurity levels: "
+            f"{lines or 'no candidates'}.",
+            tuple(nums),
+            "look for a transfer-active contaminant: thiols or halocarbons in monomer or "
+            "solvent lots (GC), shared lines and cleaning residues, an agent charged twice; "
+            "compare with a retained sample of the previous lot",
+        )
+
+
+class ExcessInitiation(Hypothesis):
+    """More radicals than the recipe gives: θ = ln F, F the factor on f·k_d·[I]."""
+
+    key = "initiator"
+    title = "excess initiation (initiator overcharge)"
+    parameter = "initiator factor F"
+
+    def grid(self) -> np.ndarray:
+        return np.linspace(0.0, math.log(1000.0), 241)
+
+    def predict(self, theta: float, model: AnchoredModel) -> dict[str, float]:
+        return model.response(radical_flux_factor=math.exp(theta))
+
+    def value(self, theta: float, model: AnchoredModel) -> float:
+        return math.exp(theta)
+
+    def explain(self, value: float, ev: Evidence) -> Explanation:
+        F = value
+        rp, dp = ev.rp_ratio, ev.mn_ratio
+        base = ev.model.base
+        s = ev.model.state(radical_flux_factor=F)
+        nums = ev.ratio_numbers()
+        nums.append(("best-fit initiator factor F [-]", F))
+        if rp is not None:
+            nums.append(("initiator factor from R_p, (R_p ratio)² [-]", rp**2))
+        nums.append(("Mn ratio predicted at F [-]", s.DPn / base.DPn))
+        if rp is not None and dp is not None:
+            nums.append(("R_p·DPn measured/expected [-]", rp * dp))
+        prod = (
+            f"; R_p·DPn is {rp * dp:.3g}× expected (about 1 for extra initiator)"
+            if (rp is not None and dp is not None) else ""
+        )
+        from_rate = (
+            f" The rate corresponds to {rp**2:.3g}× the radical flux (R_p ∝ [I]^½)."
+            if rp is not None else ""
+        )
+        return Explanation(
+            f"More radicals than the recipe gives: {ev.rp_text} and {ev.mn_text}{prod}."
+            f"{from_rate} Best fit F = {F:.3g} (× f·k_d·[I]), which predicts R_p × "
+            f"{s.R_p / base.R_p:.3g} and Mn × {s.DPn / base.DPn:.3g}.",
+            tuple(nums),
+            "check the initiator weighing, assay and charge records, dosing and any "
+            "second charge; do not change initiator or temperature without a heat-balance "
+            "review (runaway risk)",
+        )
+
+
+class TemperatureOvershoot(Hypothesis):
+    """A temperature rise ΔT [K]: k_p and k_d follow Arrhenius, k_t is held constant."""
+
+    key = "temperature"
+    title = "temperature overshoot"
+    parameter = "temperature rise ΔT"
+    unit = "K"
+    skipped_note = "temperature overshoot not evaluated: activation energy of k_p or k_d unknown"
+
+    def applies(self, parameters: KineticParameters) -> bool:
+        return parameters.E_p is not None and parameters.E_d is not None
+
+    def grid(self) -> np.ndarray:
+        return np.linspace(0.0, 80.0, 321)
+
+    def predict(self, theta: float, model: AnchoredModel) -> dict[str, float]:
+        return model.response(dT=theta)
+
+    def explain(self, value: float, ev: Evidence) -> Explanation:
+        dT = value
+        p, rp = ev.parameters, ev.rp_ratio
+        base = ev.model.base
+        s = ev.model.state(dT=dT)
+        Ep, Ed = p.E_p, p.E_d
+        assert Ep is not None and Ed is not None  # applies() holds
+        nums = ev.ratio_numbers()
+        nums.append(("best-fit temperature rise [K]", dT))
+        if rp is not None and rp > 1:
+            # R_p ∝ k_p·k_d^½: 1/T' = 1/T − R·ln(R_p ratio)/(E_p + E_d/2)
+            inv_T = 1.0 / p.T - R_GAS * math.log(rp) / ((Ep + Ed / 2.0) * 1e3)
+            nums.append(("temperature rise from R_p alone [K]", 1.0 / inv_T - p.T))
+        nums.append(("Mn ratio predicted at that rise [-]", s.DPn / base.DPn))
+        return Explanation(
+            f"A higher temperature speeds up decomposition (E_d = {Ed:g} kJ/mol) and "
+            f"propagation (E_p = {Ep:g} kJ/mol): {ev.rp_text}, {ev.mn_text}. A rise of "
+            f"{dT:.3g} K explains it best; it predicts R_p × {s.R_p / base.R_p:.3g} and "
+            f"Mn × {s.DPn / base.DPn:.3g} (heat lowers Mn less than extra initiator at the "
+            "same rate).",
+            tuple(nums),
+            "check the temperature record and probe calibration, jacket control and the "
+            "start-up exotherm; an overshoot means the heat removal was short: review it "
+            "before the next batch (runaway risk)",
+        )
+
+
+class Retardation(Hypothesis):
+    """Radicals lost to a retarder: θ = h = [R•]/[R•]_base, ζ = 2k_t[R•]_base(1 − h²)/h."""
+
+    key = "retarder"
+    title = "inhibition or retardation (stabilizer, oxygen)"
+    parameter = "radical loss to retarder ζ = k_z[Z]"
+    unit = "1/s"
+    free = ("induction period",)
+
+    def grid(self) -> np.ndarray:
+        return np.linspace(0.02, 1.0, 197)[::-1]
+
+    def predict(self, theta: float, model: AnchoredModel) -> dict[str, float]:
+        return model.response(retarder=self.value(theta, model))
+
+    def value(self, theta: float, model: AnchoredModel) -> float:
+        h = theta
+        return 2.0 * model.parameters.k_t * model.base.radicals * (1.0 - h * h) / h
+
+    def explain(self, value: float, ev: Evidence) -> Explanation:
+        zeta = value
+        base = ev.model.base
+        s = ev.model.state(retarder=zeta)
+        nums = ev.ratio_numbers()
+        nums.append(("radical loss to retarder ζ [1/s]", zeta))
+        nums.append(("R_p ratio predicted [-]", s.R_p / base.R_p))
+        nums.append(("Mn ratio predicted [-]", s.DPn / base.DPn))
+        ind = ev.induction
+        if ind is not None:
+            nums.append(("induction period [min]", ind))
+        return Explanation(
+            f"Something consumes radicals: {ev.rp_text}, {ev.mn_text}"
+            + (f", induction period {ind:.3g} min" if ind else "")
+            + f". A radical loss ζ = {zeta:.3g} 1/s (each loss ends a chain) reproduces "
+            f"R_p × {s.R_p / base.R_p:.3g} and Mn × {s.DPn / base.DPn:.3g}.",
+            tuple(nums),
+            "check inhibitor (stabilizer) removal, degassing and the nitrogen purge "
+            "(oxygen), and the monomer lot's stabilizer content",
+        )
+
+
+class Dilution(Hypothesis):
+    """Less monomer than the recipe: θ = g, the factor on [M]."""
+
+    key = "dilution"
+    title = "dilution or monomer loss"
+    parameter = "[M] factor g"
+
+    def grid(self) -> np.ndarray:
+        return np.linspace(0.02, 1.0, 197)[::-1]
+
+    def predict(self, theta: float, model: AnchoredModel) -> dict[str, float]:
+        return model.response(monomer_factor=theta)
+
+    def explain(self, value: float, ev: Evidence) -> Explanation:
+        g = value
+        p = ev.parameters
+        base = ev.model.base
+        s = ev.model.state(monomer_factor=g)
+        nums = ev.ratio_numbers()
+        nums.append(("[M] factor g [-]", g))
+        nums.append(("[M] implied [mol/L]", p.conc_M * g))
+        return Explanation(
+            f"Less monomer than the recipe: {ev.rp_text}, {ev.mn_text}. [M] × {g:.3g} "
+            f"({p.conc_M * g:.4g} mol/L) lowers R_p and DPn together "
+            f"(R_p × {s.R_p / base.R_p:.3g}, Mn × {s.DPn / base.DPn:.3g}).",
+            tuple(nums),
+            "check the monomer and solvent charges, evaporation or venting losses, and the "
+            "monomer assay",
+        )
+
+
+class FlowError(Hypothesis):
+    """An uncorrected relative flow error ε: every average × 10^(−B·V·ε), marker shifted by ε.
+
+    The uncertainty of B·V adds rel·|ln10·B·V·ε| to the σ of Mn, Mw and the check standard.
+    """
+
+    key = "flow"
+    title = "flow-rate error (uncorrected flow-marker drift)"
+    category = "measurement"
+    parameter = "relative flow error ε"
+    _SHIFTED: ClassVar[tuple[str, ...]] = ("Mn", "Mw", "check standard")
+
+    def grid(self) -> np.ndarray:
+        return np.linspace(-0.1, 0.1, 801)
+
+    def predict(self, theta: float, model: AnchoredModel) -> dict[str, float]:
+        k = model.flow.k
+        return {"Mn": -k * theta, "Mw": -k * theta, "check standard": -k * theta,
+                "flow marker": theta}
+
+    def extra_sigma(self, theta: float, name: str, model: AnchoredModel) -> float | None:
+        return model.flow.rel * abs(model.flow.k * theta) if name in self._SHIFTED else 0.0
+
+    def explain(self, value: float, ev: Evidence) -> Explanation:
+        e = value
+        BV = ev.model.flow.BV
+        shift = 100.0 * (10 ** (-BV * e) - 1.0)
+        nums = ev.ratio_numbers()
+        nums.insert(0, ("relative flow error [%]", 100 * e))
+        nums.append(("shift of every average [%]", shift))
+        return Explanation(
+            f"A flow-rate error of {100 * e:+.3g} % moves every average by {shift:+.3g} % "
+            f"(B·V = {BV:.3g}) and leaves the dispersity unchanged; {ev.rp_text}.",
+            tuple(nums),
+            "re-process with the flow-marker correction; check pump flow (timed volume), "
+            "leaks and degassing; re-run the check standard",
+        )
+
+
+class CalibrationDrift(Hypothesis):
+    """Every average and the check standard × e^s (θ = s)."""
+
+    key = "calibration"
+    title = "calibration drift (check standard off)"
+    category = "measurement"
+    parameter = "shift of all averages ln(factor)"
+
+    def grid(self) -> np.ndarray:
+        return np.linspace(-2.0, 2.0, 801)
+
+    def predict(self, theta: float, model: AnchoredModel) -> dict[str, float]:
+        return {"Mn": theta, "Mw": theta, "check standard": theta}
+
+    def explain(self, value: float, ev: Evidence) -> Explanation:
+        shift = 100.0 * (math.exp(value) - 1.0)
+        nums = ev.ratio_numbers()
+        nums.insert(0, ("shift of every average [%]", shift))
+        return Explanation(
+            f"All averages shifted together by {shift:+.3g} % as a calibration drift "
+            f"would do (check standard and sample alike); {ev.rp_text}.",
+            tuple(nums),
+            "recalibrate with fresh narrow standards, check column condition (broadened "
+            "standards) and re-run the check standard",
+        )
+
+
+class LimitArtefact(Hypothesis):
+    """Mn × e^t (t ≤ 0), Mw unchanged; the limit checks are left free."""
+
+    key = "limit"
+    title = "integration-limit artefact (low-M tail inside the limits)"
+    category = "measurement"
+    parameter = "Mn bias ln(factor)"
+    free = ("low-M limit", "outside calibration")
+
+    def grid(self) -> np.ndarray:
+        return np.linspace(-2.0, 0.0, 401)
+
+    def predict(self, theta: float, model: AnchoredModel) -> dict[str, float]:
+        return {"Mn": theta}
+
+    def explain(self, value: float, ev: Evidence) -> Explanation:
+        shift = 100.0 * (math.exp(value) - 1.0)
+        nums = ev.ratio_numbers()
+        nums.insert(0, ("Mn bias [%]", shift))
+        lim = ev.Mn_shift_low_limit
+        if lim is not None:
+            nums.append(("Mn shift, low-M limit -0.2 mL [%]", lim))
+        return Explanation(
+            f"Mn is low by {shift:+.3g} % while Mw is {_sig(ev.mw_ratio, 3)}× expected: a "
+            "low-M tail, system peak or baseline end inside the integration limits"
+            + (f"; Mn moves {lim:+.3g} % when the limit moves 0.2 mL" if lim is not None else "")
+            + ".",
+            tuple(nums),
+            "re-integrate with the low-M limit before the system peak and a longer baseline "
+            "window; judge on Mw",
+        )
+
+
+#: The registered causes, in the order they are fitted (ties keep this order).
+HYPOTHESES: tuple[Hypothesis, ...] = (
+    NoCause(),
+    UnexplainedTransfer(),
+    ExcessInitiation(),
+    TemperatureOvershoot(),
+    Retardation(),
+    Dilution(),
+    FlowError(),
+    CalibrationDrift(),
+    LimitArtefact(),
+)
+
+
+def hypothesis(key: str) -> Hypothesis:
+    """The registered hypothesis with ``key``."""
+    for h in HYPOTHESES:
+        if h.key == key:
+            return h
+    raise KeyError(f"no hypothesis {key!r}; known: {', '.join(h.key for h in HYPOTHESES)}")
