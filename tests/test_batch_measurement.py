@@ -398,3 +398,22 @@ def test_a_cut_off_outside_the_integrated_masses_is_warned() -> None:
     res = process_trace(V, gaussian(V, 16.5, 0.9, 80.0) + 3.0, m)
     assert res.fractions[0].percent == 0.0
     assert any("cut-off 10 g/mol lies outside the molar masses integrated" in w for w in res.warnings)
+
+
+def test_fraction_columns_in_every_row_of_a_batch(tmp_path) -> None:
+    """A failed row still has the method's fraction columns (empty), and the table puts
+    them right after ``outside calibration [% mass]`` whatever row comes first."""
+    from gpctools.batch import run_batch
+    from gpctools.demo import write_chromatogram
+
+    m = method(fractions={"below": [1000]}, **WIDE)
+    write_chromatogram(tmp_path / "ok.csv", V, gaussian(V, 16.5, 0.9, 80.0) + 3.0)
+    (tmp_path / "batch.csv").write_text("sample_id,file\nGONE,missing.csv\nOK,ok.csv\n", encoding="utf-8")
+    table = run_batch(tmp_path / "batch.csv", m).table
+    cols = list(table.columns)
+    name = C.mass_fraction_column("below", 1000)
+    assert cols.index(name) == cols.index(C.OUTSIDE_CALIBRATION) + 1
+    rows = table.set_index(C.SAMPLE_ID)
+    assert rows.loc["GONE", C.STATUS] == "error" and math.isnan(rows.loc["GONE", name])
+    assert rows.loc["OK", name] == pytest.approx(100 * norm.cdf(
+        (math.log(1000) - lognormal_truth(16.5, 0.9)["mu"]) / lognormal_truth(16.5, 0.9)["s"]), abs=1e-3)
