@@ -691,11 +691,13 @@ def process_injection(
     """Read and process one slice export.
 
     Steps: read (:func:`gpctools.io.read_chromatogram` with the method's import options),
-    convert time to volume with the flow rate, correct volumes with the flow marker
-    (V_corr = V·V_ref/V_obs, docs/science.md, section 2.2), subtract the baseline, apply limits
-    and exclusions (:func:`gpctools.signal.correct_signal`), compute the distribution and
-    averages (:func:`gpctools.distribution.compute_distribution`) and the Mn/Mw
-    sensitivity to the low-M limit.
+    convert time to volume with the flow rate, then :func:`process_trace`: correct volumes
+    with the flow marker when one is recognised (V_corr = V·V_ref/V_obs, docs/science.md,
+    sections 2.2 and 19.1), subtract the baseline, apply limits and exclusions with the
+    polymer peak searched inside the calibrated range
+    (:func:`gpctools.signal.correct_signal`), compute the distribution and averages
+    (:func:`gpctools.distribution.compute_distribution`), the Mn/Mw sensitivity to the
+    low-M limit, the uncertainty of Mn, Mw and Mz, the peaks and the mass fractions.
 
     Parameters
     ----------
