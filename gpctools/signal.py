@@ -740,6 +740,43 @@ class Peaks:
         }
 
 
+def _maxima_with_dips(y: np.ndarray, delta: float) -> list[int]:
+    """Indices of maxima of ``y`` separated from each other by dips of at least ``delta``.
+
+    The classical peak-and-valley hysteresis ("a maximum counts once the curve has fallen
+    ``delta`` below it, a minimum once it has risen ``delta`` above it"), run over the
+    turning points of ``y`` only (between them ``y`` is monotonic, so the running extremes
+    are reached at turning points): O(n) in numpy plus a loop over the turning points.
+    """
+    n = y.size
+    if n < 3:
+        return [int(np.argmax(y))] if n else []
+    step = np.sign(np.diff(y))
+    last = np.maximum.accumulate(np.where(step != 0, np.arange(step.size), 0))
+    step = step[last]  # flat stretches take the direction before them
+    turns = np.flatnonzero(step[1:] != step[:-1]) + 1
+    points = np.concatenate(([0], turns, [n - 1]))
+    maxima: list[int] = []
+    hi, hi_i, lo = -math.inf, 0, math.inf
+    looking_for_max = True
+    for i in points.tolist():
+        v = float(y[i])
+        if looking_for_max:
+            if v > hi:
+                hi, hi_i = v, i
+            elif v < hi - delta:
+                maxima.append(hi_i)
+                lo, looking_for_max = v, False
+        else:
+            if v < lo:
+                lo = v
+            elif v > lo + delta:
+                hi, hi_i, looking_for_max = v, i, True
+    if looking_for_max and hi > -math.inf and (not maxima or maxima[-1] != hi_i):
+        maxima.append(hi_i)
+    return maxima
+
+
 def find_peaks(
     volume: Any,
     signal: Any,
@@ -784,8 +821,6 @@ def find_peaks(
     -------
     Peaks
     """
-    from scipy.signal import find_peaks as _scipy_find_peaks  # type: ignore[import-untyped]
-
     V, h, order = _as_trace(volume, signal)
     V, h = V[order], h[order]
     sel = np.ones(V.shape, dtype=bool) if mask is None else np.asarray(mask, dtype=bool)[order]
@@ -803,10 +838,10 @@ def find_peaks(
     top = float(sm.max())
     if not top > 0:
         return empty
-    # Candidate maxima: scipy's prominence prunes the noise wiggles; the highest point is
-    # always a candidate (scipy skips maxima at the ends of the array).
-    cand, _ = _scipy_find_peaks(sm, prominence=max(5.0 * sigma_s, 1e-12 * top))
-    cand = sorted(set(int(c) for c in cand) | {int(np.argmax(sm))})
+    # Candidate maxima: those separated by dips of at least 5 σ_s (noise wiggles pruned);
+    # the highest point is always a candidate.
+    cand = _maxima_with_dips(sm, max(5.0 * sigma_s, 1e-12 * top))
+    cand = sorted(set(cand) | {int(np.argmax(sm))})
     keep = [c for c in cand if sm[c] >= min_height * top]
     while len(keep) > 1:
         worst, worst_margin = None, math.inf
