@@ -126,7 +126,7 @@ def test_batch_sheet_needs_sample_id_and_file(tmp_path):
 
 def test_batch_sheet_template_reads(tmp_path):
     for name in ("batch.csv", "batch.xlsx"):
-        entries = read_batch_sheet(ROOT / "templates" / name)
+        entries = read_batch_sheet(ROOT / "gpctools" / "templates" / name)
         assert [e.sample_id for e in entries] == ["GRADE-A-01", "GRADE-A-01", "CHECK-01"]
         assert entries[2].role == "check_standard"
         assert entries[2].metadata["assigned Mw [g/mol]"] in (180000, 180000.0, "180000")
@@ -141,9 +141,9 @@ def test_low_m_tail_raises_mn_sensitivity(tmp_path):
     V, h = simulate.chromatogram(mix, cal, noise=0.02, seed=3)
     write_chromatogram(tmp_path / "t.csv", V, h)
     write_chromatogram(tmp_path / "c.csv", *simulate.chromatogram(main, cal, noise=0.02, seed=3))
-    mtext = (ROOT / "templates" / "method.toml").read_text()
+    mtext = (ROOT / "gpctools" / "templates" / "method.toml").read_text()
     (tmp_path / "method.toml").write_text(mtext)
-    shutil.copy(ROOT / "templates" / "standards.csv", tmp_path / "standards.csv")
+    shutil.copy(ROOT / "gpctools" / "templates" / "standards.csv", tmp_path / "standards.csv")
     m = load_method(tmp_path / "method.toml")
     m = type(m)(**{**m.__dict__, "marker_search": None, "marker_reference": None})
     r_tail = process_injection(tmp_path / "t.csv", m)
@@ -157,9 +157,9 @@ def test_regression_limit_shift_with_decreasing_volumes(tmp_path):
     # do); the Mn/Mw limit sensitivity used to come out NaN for decreasing volumes because
     # the slice widths were taken on the unsorted axis. Same trace reversed, same answer
     # (derived: the sums do not depend on slice order); 1e-9 relative allows summation order.
-    mtext = (ROOT / "templates" / "method.toml").read_text()
+    mtext = (ROOT / "gpctools" / "templates" / "method.toml").read_text()
     (tmp_path / "method.toml").write_text(mtext)
-    shutil.copy(ROOT / "templates" / "standards.csv", tmp_path / "standards.csv")
+    shutil.copy(ROOT / "gpctools" / "templates" / "standards.csv", tmp_path / "standards.csv")
     m = load_method(tmp_path / "method.toml")
     m = type(m)(**{**m.__dict__, "marker_search": None, "marker_reference": None})
     V, h = simulate.chromatogram(simulate.schulz_zimm(80_000, 2.0), simulate.default_calibration(),
