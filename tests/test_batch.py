@@ -38,10 +38,10 @@ def test_demo_batch_matches_truth_within_1_percent(demo_dir, tmp_path):
     # SCIENCE.md section 8); 1 % is the acceptance stated for the demo.
     method = load_method(demo_dir / "method.toml")
     res = run_batch(demo_dir / "batch.csv", method, on_result=DistributionWriter(tmp_path / "out" / "distributions"))
-    truth = pd.read_csv(demo_dir / "truth.csv").set_index("sample_id")
+    truth = pd.read_csv(demo_dir / "truth.csv").set_index("file")  # replicates share a sample_id
     assert res.failed == 0
     for _, r in res.table.iterrows():
-        t = truth.loc[r["sample_id"]]
+        t = truth.loc[r["file"]]
         for col in ("Mn [g/mol]", "Mw [g/mol]", "Mz [g/mol]", "dispersity [-]"):
             assert r[col] == pytest.approx(t[col], rel=0.01), (r["sample_id"], col)
         # The flow marker undoes the simulated pump error (V_obs = V_true (1 + err)).
@@ -51,9 +51,9 @@ def test_demo_batch_matches_truth_within_1_percent(demo_dir, tmp_path):
 def test_bundled_sample_runs_are_what_the_generator_writes(tmp_path):
     # Guards against a hand edit of sample_runs/ drifting from truth.csv.
     write_sample_runs(tmp_path)
-    names = ["batch.csv", "truth.csv", "method.toml", "standards.csv"]
+    names = ["batch.csv", "truth.csv", "method.toml", "standards.csv", "spec_limits.csv"]
     names += [f"history/{p.name}" for p in sorted((tmp_path / "history").glob("*.csv"))]
-    assert len(names) == 10
+    assert len(names) == 11
     for name in names:
         assert (tmp_path / name).read_text() == (ROOT / "sample_runs" / name).read_text(), name
 
@@ -92,7 +92,7 @@ def test_outputs_written_and_readable(demo_dir, tmp_path):
     ws = wb["results"]
     header = [c.value for c in next(ws.iter_rows(max_row=1))]
     assert header == [str(c) for c in res.table.columns]
-    dist = pd.read_csv(next((out / "distributions").glob("LC110-A1*.csv")))
+    dist = pd.read_csv(next((out / "distributions").glob("LC110-A_row*.csv")))
     assert {"volume [mL]", "M [g/mol]", "dw/dlogM [-]", "cumulative mass fraction [-]"} <= set(dist.columns)
     # dw/dlogM integrates to 1 over log10 M (definition of the normalised distribution)
     logm = np.log10(dist["M [g/mol]"].to_numpy())
@@ -177,10 +177,10 @@ def test_regression_replicate_distributions_each_in_written_paths(demo_dir, tmp_
     d = tmp_path / "b"
     shutil.copytree(demo_dir, d)
     sheet = d / "batch.csv"
-    sheet.write_text(sheet.read_text() + "LC110-A1,exports/LC110-A1.csv,sample,,,,,\n")
+    sheet.write_text(sheet.read_text() + "LC110-A,exports/LC110-A1.csv,sample,,,,,\n")
     res = run_batch(sheet, load_method(d / "method.toml"))
     ids = [e.sample_id for e, r in zip(res.entries, res.injections) if r is not None]
-    assert len(ids) == len(set(ids)) + 1  # one replicate injection added above
+    assert len(ids) == len(set(ids)) + 4  # three replicate pairs in the demo, one injection added above
     paths = write_batch(res, tmp_path / "o")
     written = [p for k, p in paths.items() if k.startswith("distributions/")]
     assert len(written) == len(ids)

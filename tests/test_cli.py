@@ -38,7 +38,7 @@ def test_batch_success(demo_dir, tmp_path):
     r = runner.invoke(app, ["batch", str(demo_dir / "batch.csv"), "-m", str(demo_dir / "method.toml"),
                             "-o", str(tmp_path / "o")])
     assert r.exit_code == 0, r.output
-    assert "LC110-A1" in r.output and "Mn [g/mol]" in r.output
+    assert "LC110-A" in r.output and "Mn [g/mol]" in r.output
     assert (tmp_path / "o" / "results.csv").exists()
     assert len(list((tmp_path / "o" / "distributions").glob("*.csv"))) == 8
 
