@@ -157,6 +157,7 @@ def _write_xlsx(path: Path, x: np.ndarray, h: np.ndarray, meta: dict[str, str]) 
 
     wb = Workbook()
     ws = wb.active
+    assert ws is not None  # a new workbook has one sheet
     ws.title = "Slices"
     info = wb.create_sheet("Info")
     info.append(["Export of one injection"])
