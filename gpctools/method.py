@@ -3,7 +3,7 @@
 A method is read once, checked key by key, and turned into a frozen :class:`Method`
 holding a fitted :class:`~gpctools.calibration.Calibration`. Unknown keys and bad values
 raise :class:`~gpctools.errors.MethodError` naming the dotted key (``baseline.windows``)
-and what to write instead. The commented starter file is ``templates/method.toml``.
+and what to write instead. The commented starter file is ``gpctools/templates/method.toml`` (``gpctools template method.toml``).
 
 Schema (all sections optional except ``[calibration]``)::
 

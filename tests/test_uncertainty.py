@@ -197,11 +197,11 @@ def test_limits_part_is_half_the_shift(linear_cal) -> None:
     assert math.isnan(u["Mz"])
 
 
-def test_injection_reports_every_part(tmp_path: Path, repo_root: Path) -> None:
+def test_injection_reports_every_part(tmp_path: Path, templates_dir: Path) -> None:
     import shutil
 
-    shutil.copy(repo_root / "templates" / "method.toml", tmp_path / "method.toml")
-    shutil.copy(repo_root / "templates" / "standards.csv", tmp_path / "standards.csv")
+    shutil.copy(templates_dir / "method.toml", tmp_path / "method.toml")
+    shutil.copy(templates_dir / "standards.csv", tmp_path / "standards.csv")
     method = load_method(tmp_path / "method.toml")
     V = np.linspace(8.0, 26.0, 6000)
     raw = gaussian(V, 16.4, 0.8, 120.0) + 3.5 + np.random.default_rng(7).normal(0.0, 0.24, V.size)
