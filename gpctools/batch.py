@@ -893,8 +893,8 @@ def _replicate_note(entries: list[BatchEntry], rows: Any, path: Path) -> str | N
         return None
     listed = "; ".join(f"{k!r} (rows {', '.join(str(n) for n in v)})" for k, v in repeated.items())
     return (f"{path}: sample ids on more than one row: {listed}; they are treated as replicate "
-            "injections of one sample (reported per injection, averaged together in QC); give "
-            "different samples different ids")
+            "injections of one sample (reported per injection, averaged together in QC); if "
+            "some are different samples, give them different ids")
 
 
 # -- running a batch ----------------------------------------------------------------------
