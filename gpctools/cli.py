@@ -13,7 +13,7 @@ import os
 import sys
 import warnings
 from pathlib import Path
-from typing import Optional
+from typing import Any, Optional
 
 import typer
 
@@ -396,7 +396,8 @@ def diagnose_cmd(
     typer.echo(f"\nwrote {out}/: " + ", ".join(p.name for p in paths.values()))
 
 
-def _echo_diagnosis(d) -> None:
+def _echo_diagnosis(d: Any) -> None:
+    """Print the verdict, findings, leading causes, impurity amount and flagged checks."""
     typer.echo(f"{d.label}: verdict {d.verdict}")
     for f in d.findings:
         typer.echo(f"instrument finding ({f.check}): {f.text}")

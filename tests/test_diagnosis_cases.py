@@ -395,3 +395,26 @@ def test_cli_slow_pump_corrected_is_an_instrument_finding(tmp_path):
     assert [f["check"] for f in s["instrument findings"]] == ["pump flow"]
     assert "slow" in s["instrument findings"][0]["text"] and "instrument finding" in r.output
     assert "Instrument findings" in (tmp_path / "d" / "diagnosis.md").read_text(encoding="utf-8")
+
+
+def test_a_normal_batch_the_exact_parameters_cannot_match_is_said():
+    # every parameter given as exact, and a normal lot 30 % off in Mn: nothing can absorb
+    # it, and the report says so (the lot in question is still judged against the model)
+    r = Recipe.from_dict(build(**given(P_TRUE), uncertainty={"R_p [%]": 3.0, "Mw breadth [%]": 0},
+                               measured=lot(P_TRUE, extra_transfer=40e-6 * C_THIOL),
+                               normal_batch={**lot(P_TRUE), "Mn [g/mol]":
+                                             lot(P_TRUE)["Mn [g/mol]"] * 1.3}))
+    d = diagnose(r)
+    assert any("further from the model than the parameter uncertainties allow" in n
+               for n in d.notes)
+    assert d.top.key == "transfer"
+
+
+def test_a_cause_that_does_not_describe_the_numbers_is_not_clear():
+    # R_p 40 % up with Mn 40 % up: no single cause of a LOW molar mass fits (χ² far beyond
+    # its 99.9 % quantile), so whatever ranks first the verdict is not "clear"
+    r = Recipe.from_dict(build(measured={k: v * 1.4 for k, v in lot(P_TRUE).items()},
+                               normal_batch=lot(P_TRUE)))
+    d = diagnose(r)
+    assert d.fit_probability < 1e-3 and d.verdict != "clear"
+    assert any("no single cause explains all numbers well" in n for n in d.notes)

@@ -41,8 +41,9 @@ How the diagnosis works
    causes [%]. It says how much better one single cause explains all numbers than the
    others, assuming one cause and normal errors; it is not a probability that the cause
    is real. The diagnosis is *clear* when the top cause is not "no cause", has a share of
-   at least 50 % and at least twice the runner-up's, and "no cause" has less than 20 %
-   (error rates on noisy lots: bench/bench_diagnosis.py).
+   at least 50 % and at least twice the runner-up's, "no cause" has less than 20 %, and
+   the top cause describes the numbers (χ² fit probability at least 0.001) (error rates
+   on noisy lots: bench/bench_diagnosis.py).
 
 The excess 1/DPn (the transfer cause's fitted value, with its 95 % interval) is always
 turned into impurity levels: named candidates, or generic transfer constants
@@ -142,6 +143,9 @@ _CLEAN_MAX_SHARE = 20.0
 #: (evidence ratio 2, ΔAIC ≥ 1.4): on noisy simulated lots it halves the clear verdicts
 #: that name a wrong cause (bench/bench_diagnosis.py, docs/science.md, section 9.4).
 _CLEAR_RATIO = 2.0
+#: ... and the top cause must describe the numbers: a χ² beyond its 99.9 % quantile
+#: (fit probability below 0.001) makes the verdict "ambiguous" [common practice].
+_MIN_FIT_P = 1e-3
 #: Causes drawn in the distribution overlay (besides "no cause"), best first.
 _CURVES = 3
 
@@ -364,6 +368,8 @@ class Diagnosis:
     excess : ExcessEstimate or None
     curves : tuple of DistributionCurve
         Measured and predicted distributions for the overlay plot.
+    fit_probability : float
+        χ² upper-tail probability of the top cause's fit [-] (goodness of fit).
     """
 
     label: str
@@ -383,6 +389,7 @@ class Diagnosis:
     findings: tuple[CheckLine, ...] = ()
     excess: ExcessEstimate | None = None
     curves: tuple[DistributionCurve, ...] = ()
+    fit_probability: float = 1.0
 
     @property
     def top(self) -> Cause:
@@ -398,7 +405,7 @@ class Diagnosis:
         if top.key == "none":
             return "no strong cause"
         if (top.share >= _CLEAR_SHARE and none_share < _CLEAN_MAX_SHARE
-                and top.share >= _CLEAR_RATIO * runner_up):
+                and top.share >= _CLEAR_RATIO * runner_up and self.fit_probability >= _MIN_FIT_P):
             return "clear"
         if none_share >= _CLEAN_MAX_SHARE and top.share < _CLEAR_SHARE:
             return "no strong cause"
@@ -478,6 +485,7 @@ class Diagnosis:
         return {
             "label": self.label,
             "verdict": self.verdict,
+            "fit probability of the top cause [-]": self.fit_probability,
             "prediction": self.prediction.summary(),
             "expected": dict(self.expected),
             "measured": dict(self.measured),
@@ -765,7 +773,7 @@ def _curves(
     """Measured, expected and the leading causes' distributions on one M grid."""
     base = model.base
     Mw = base.DPn * M0 * base.dispersity
-    M = np.logspace(math.log10(Mw / 1000.0), math.log10(Mw * 30.0), 400)
+    M = np.logspace(math.log10(Mw / 300.0), math.log10(Mw * 20.0), 400)
     out: list[DistributionCurve] = []
     if dist is not None:
         out.append(DistributionCurve("measured", "measured", dist.M, dist.dwdlogM))
@@ -820,6 +828,13 @@ def _separation_note(
             f"{100 * (math.exp(d / 3) - 1):.2g} % would tell them apart")
 
 
+def _top_fit(obs: Mapping[str, Observation], top: Cause) -> tuple[float, int]:
+    """χ² upper-tail probability of the best cause and its degrees of freedom."""
+    h = hypothesis(top.key)
+    n_obs = len(obs) - sum(1 for f in h.free if f in obs)
+    return fit_probability(top.chi2, n_obs, h.k)
+
+
 def _closing_notes(
     obs: Mapping[str, Observation], causes: tuple[Cause, ...], mu: ModelUncertainty
 ) -> list[str]:
@@ -840,9 +855,7 @@ def _closing_notes(
             "cause'; give a normal batch or the recipe's measured parameters"
         )
     top = causes[0]
-    h = hypothesis(top.key)
-    n_obs = len(obs) - sum(1 for f in h.free if f in obs)
-    fit_p, dof = fit_probability(top.chi2, n_obs, h.k)
+    fit_p, dof = _top_fit(obs, top)
     if fit_p < 0.01:
         notes.append(
             f"no single cause explains all numbers well (best χ² = {top.chi2:.3g} for {dof} "
@@ -996,6 +1009,7 @@ def diagnose(
         warnings=tuple(dict.fromkeys([*st.prediction.warnings, *st.checks.warnings])),
         model=st.uncertainty, findings=st.checks.findings, excess=excess,
         curves=_curves(st.distribution, model, fits, shares, p.M0),
+        fit_probability=_top_fit(obs, causes[0])[0],
     )
     if diagnosis.verdict != "clear":
         sep = _separation_note(fits, shares, model, obs)
