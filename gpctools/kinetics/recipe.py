@@ -13,7 +13,8 @@ Sections
 top level      ``label``, ``"T [°C]"``, ``"volume [L]"`` (reaction volume, for charges in g)
 [monomer]      ``name`` (from the monomers table), ``"concentration [mol/L]"``,
                ``bulk = true`` or ``"charge [g]"``; optional overrides ``"M0 [g/mol]"``,
-               ``"k_p [L/mol/s]"``, ``"k_p A [L/mol/s]"`` + ``"k_p E [kJ/mol]"``,
+               ``"k_p [L/mol/s]"`` (with ``"k_p E [kJ/mol]"``, else E_p from the table),
+               or ``"k_p A [L/mol/s]"`` + ``"k_p E [kJ/mol]"``,
                ``"C_M [-]"``, ``"density [g/mL]"``; ``backbiting`` (true/false: false
                for pulsed-laser conditions, where chain ends propagate)
 [initiator]    ``name``, an amount (see below); overrides ``"k_d [1/s]"`` (at

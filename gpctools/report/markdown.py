@@ -262,9 +262,11 @@ def _distribution_lines(d: Diagnosis) -> list[str]:
         lines += ["", "Low-M tail: mass below Mw/20; high-M shoulder: mass above 5·Mw (each of "
                   "the distribution's own Mw)."]
     if d.curves:
-        lines += ["", "distributions.png overlays the measured distribution with the one "
-                  "predicted for the recipe and for the leading causes (instantaneous model: "
-                  "real samples are broader)."]
+        what = ("the measured distribution with the one" if shape else "the distribution")
+        lines += (["", ""] if shape else []) + [
+            f"distributions.png overlays {what} predicted for the recipe and for the leading "
+            "causes (instantaneous model: real samples are broader)."]
+        lines = [x for i, x in enumerate(lines) if not (i > 0 and x == "" == lines[i - 1])]
     lines.append("")
     return lines
 
