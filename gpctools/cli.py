@@ -574,32 +574,52 @@ def transfer_cmd(
 @app.command("diagnose")
 @_guard
 def diagnose_cmd(
-    recipe: Path = typer.Argument(..., help="Recipe file (TOML); start from `gpctools template recipe.toml`."),
+    recipe: Path = typer.Argument(..., help="Recipe: TOML or a recipe sheet (CSV/XLSX); start from `gpctools template recipe.toml` (or recipe.csv)."),
     out: Path = typer.Option(Path("gpctools-diagnosis"), "--out", "-o", help="Output folder."),
-    measured: Optional[Path] = typer.Option(None, "--measured", help="Batch results table (results.csv/.xlsx) with this batch's Mn and Mw."),
+    measured: Optional[Path] = typer.Option(None, "--measured", help="Batch results table (results.csv/.xlsx) with this batch's Mn and Mw; its distributions/ folder gives the whole distribution."),
     sample: Optional[str] = typer.Option(None, "--sample", help="sample_id to take from --measured (needed when it holds several samples)."),
     xlsx: bool = typer.Option(True, "--xlsx/--no-xlsx", help="Also write diagnosis.xlsx."),
 ) -> None:
     """Why is the molar mass low? Predict the recipe, compare with the measurements, rank the causes."""
     from .kinetics import diagnose_recipe
     from .report import write_diagnosis
+    from .report.diagnosis import distribution_tables
 
     _check_out(out)
     if sample is not None and measured is None:
         from .errors import InputFormatError
 
         raise InputFormatError("--sample needs --measured RESULTS.csv to take the sample from", key="--sample")
+    dists: list[Path] = []
+    if measured is not None:
+        from .kinetics.inputs import results_sample
+
+        dists = distribution_tables(measured, results_sample(measured, sample))
     with _stage("diagnosis: prediction, checks, ranked causes"):
-        d = diagnose_recipe(recipe, measured_path=measured, sample_id=sample)
-        write_diagnosis(d, out, xlsx=xlsx)
+        d = diagnose_recipe(recipe, measured_path=measured, sample_id=sample, distribution_paths=dists)
+        paths = write_diagnosis(d, out, xlsx=xlsx)
+    _echo_diagnosis(d)
+    typer.echo(f"\nwrote {out}/: " + ", ".join(p.name for p in paths.values()))
+
+
+def _echo_diagnosis(d: Any) -> None:
+    """Print the verdict, findings, leading causes, impurity amount and flagged checks."""
     typer.echo(f"{d.label}: verdict {d.verdict}")
+    for f in d.findings:
+        typer.echo(f"instrument finding ({f.check}): {f.text}")
+        typer.echo(f"   fix: {f.action}")
     for i, c in enumerate(d.causes[:3], start=1):
-        typer.echo(f"{i}. {c.title}: {c.share:.3g} % likelihood share")
+        typer.echo(f"{i}. {c.title}: {c.share:.3g} % likelihood share"
+                   + ("" if c.key == "none" else f" ({c.plausibility})"))
         typer.echo(f"   {c.text}")
         typer.echo(f"   next: {c.next_step}")
-    if d.impurities:
-        i = d.impurities[0]
-        typer.echo(f"excess 1/DPn {d.excess_inv_DPn:.4g}: e.g. {i.name} at {i.ppm_mol:.3g} ppm (mol) relative to monomer")
+    if d.excess is not None:
+        ex = d.excess
+        typer.echo(f"excess 1/DPn {ex.value:.4g} (95 % interval {ex.low:.3g} to {ex.high:.3g}); "
+                   f"{ex.relation.split(':')[0]}")
+        for i in d.impurities[:3]:
+            typer.echo(f"   {i.name} (C = {i.C:.3g}): {i.ppm_mol:.3g} ppm (mol) relative to monomer "
+                       f"(95 %: {i.ppm_mol_low:.3g} to {i.ppm_mol_high:.3g})")
     for c in d.checks:
         if c.status == "flag":
             typer.echo(f"check {c.check}: {c.text}")
@@ -608,8 +628,6 @@ def diagnose_cmd(
     typer.echo("")
     for line in d.safety[:2]:
         typer.echo(line)
-    typer.echo(f"\nwrote {out}/diagnosis.md, diagnosis.json, causes.csv, budget.csv, parameters.csv, impurities.csv"
-               + (", diagnosis.xlsx" if xlsx else ""))
 
 
 @app.command("demo")

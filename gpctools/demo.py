@@ -600,18 +600,27 @@ def _demo_diagnosis(folder: Path, out: Path, method, echo: Callable[[str], None]
     from .batch import run_batch
     from .kinetics import diagnose_recipe
     from .report import write_batch, write_diagnosis
+    from .report.diagnosis import distribution_tables
 
     case = folder / "troubleshooting"
     res = run_batch(case / "batch.csv", method)
     write_batch(res, out / "troubleshooting" / "batch")
     low = res.table.iloc[-1]["sample_id"]
-    diag = diagnose_recipe(case / "recipe.toml",
-                           measured_path=out / "troubleshooting" / "batch" / "results.csv", sample_id=low)
+    results = out / "troubleshooting" / "batch" / "results.csv"
+    diag = diagnose_recipe(case / "recipe.toml", measured_path=results, sample_id=low,
+                           distribution_paths=distribution_tables(results, low))
     write_diagnosis(diag, out / "troubleshooting")
     echo(f"\nWhy is the molar mass of {low} low? (sample_runs/troubleshooting)")
     for i, c in enumerate(diag.causes[:3], start=1):
         echo(f"  {i}. {c.title}: {c.share:.1f} % likelihood share")
     echo(f"  verdict: {diag.verdict}")
+    if diag.impurities:
+        imp = diag.impurities[0]
+        echo(f"  {imp.name}: {imp.ppm_mol:.3g} ppm (mol) relative to monomer (95 %: "
+             f"{imp.ppm_mol_low:.3g} to {imp.ppm_mol_high:.3g}); true "
+             f"{DEMO_CASE['impurity [ppm mol]']:g}")
+    for f in diag.findings:
+        echo(f"  instrument finding: {f.text}")
     echo("  Safety: recipe changes that add initiator or raise the temperature can run away; "
          "follow site safety rules, local codes and licensed practice.")
     echo(f"diagnosis written to {out / 'troubleshooting'} (diagnosis.md, diagnosis.xlsx)")
@@ -771,20 +780,29 @@ def write_demo_series(folder: str | Path, *, seed: int = 20240611) -> dict[str, 
 #
 # Scenario (invented): at Larchmere Coatings grade LC-180 is made by solution
 # polymerization of styrene in toluene with AIBN at 60 °C. Lot LC180-0417 came out with Mn
-# about 16 % low. The feed line had been used the week before for a thiol-modified grade:
-# 25 ppm (mol, relative to monomer) of 1-dodecanethiol were carried over. The rate was
-# normal; the SEC checks were clean. The measured values in the recipe are the exact
-# averages of the simulated lots; processing the exports reproduces them within the SEC
-# processing error.
+# about 13 % low. The feed line had been used the week before for a thiol-modified grade:
+# 25 ppm (mol, relative to monomer) of 1-dodecanethiol were carried over. The rate,
+# measured with the reactor's calorimeter (rates repeat to 2 % between batches), was
+# normal; the SEC checks were clean apart from a pump that has started to run slow (the
+# flow marker corrected it). The plant's true kinetics differ from the bundled tables
+# within their uncertainty (k_t 0.8 times the tabulated value, initiator efficiency 0.5);
+# the normal lot LC180-0409 carries that. Both lots are generated from the steady-state
+# model with those true parameters (gpctools.kinetics.evaluate) and the instantaneous
+# chain-length distribution (gpctools.chainlength.MixedTermination), the low lot with the
+# thiol's Mayo term C·[X]/[M] added; the measured values in the recipe are the exact
+# averages of those distributions, and processing the exports reproduces them within the
+# SEC processing error.
 
-#: The hidden cause and the fixed numbers of the scenario.
+#: The hidden cause and the fixed numbers of the scenario (all invented).
 DEMO_CASE: dict[str, Any] = {
     "cause": "transfer",
     "impurity": "1-dodecanethiol",
     "impurity [ppm mol]": 25.0,
-    "normal Mn [g/mol]": 52_000.0,
-    "normal Mw [g/mol]": 96_000.0,
-    "normal R_p [mol/L/s]": 3.75e-5,
+    "true k_t factor [-]": 0.8,
+    "true f [-]": 0.5,
+    "R_p uncertainty [%]": 2.0,
+    "times [min]": (0, 20, 40, 60, 80, 100),
+    "pump flow error [-]": 0.003,
 }
 
 _CASE_BASE = {
@@ -824,12 +842,12 @@ name = "1-dodecanethiol"
 "Mn [g/mol]" = {Mn:.0f}
 "Mw [g/mol]" = {Mw:.0f}
 scale = "absolute"            # polystyrene measured against polystyrene standards
-"time [min]" = [0, 20, 40, 60, 80]
-conversion = [{conv}]
+"time [min]" = [{times}]
+conversion = [{conv}]         # from the reactor calorimeter
 
 [checks]
 "check standard deviation [%]" = 0.6
-"flow marker observed [mL]" = 22.61
+"flow marker observed [mL]" = {marker:.3f}
 "flow marker reference [mL]" = 22.60
 "flow marker corrected" = true
 "outside calibration [% mass]" = 0.03
@@ -838,41 +856,36 @@ conversion = [{conv}]
 [normal_batch]                # lot LC180-0409, same recipe, in specification
 "Mn [g/mol]" = {nMn:.0f}
 "Mw [g/mol]" = {nMw:.0f}
-"R_p [mol/L/s]" = {nRp:.4g}
+"R_p [mol/L/s]" = {nRp:.5g}
+
+[uncertainty]
+"R_p [%]" = {u_Rp:g}                 # calorimeter rates repeat to 2 % between batches (site data)
 """
 
 
-def _case_values() -> dict[str, float]:
-    """The low lot's values: the recipe model anchored to the normal lot, plus the thiol.
+def _case_values() -> dict[str, Any]:
+    """The two lots from the steady-state model with the plant's true parameters.
 
-    The anchoring is the diagnosis's own (radical flux from R_p, a 1/DPn offset from Mn,
-    a factor on Mw); the carried-over thiol adds its Mayo term C·[X]/[M] to 1/DPn.
+    Returns the true states of the normal and the low lot (``normal``, ``low``), their
+    exact averages and rates, the thiol's excess 1/DPn and C, and M0.
     """
     from dataclasses import replace
 
-    from .kinetics.predict import TransferTerm, evaluate, resolve_parameters
+    from .kinetics.predict import evaluate, resolve_parameters
     from .kinetics.recipe import Recipe
     from .refdata import agents_for
 
-    nMn, nMw, nRp = (DEMO_CASE["normal Mn [g/mol]"], DEMO_CASE["normal Mw [g/mol]"],
-                     DEMO_CASE["normal R_p [mol/L/s]"])
-    recipe = Recipe.from_dict(dict(_CASE_BASE, label="normal"))
-    p = resolve_parameters(recipe)
-    # anchor the model to the normal lot, as the diagnosis does
-    phi = (nRp / evaluate(p).R_p) ** 2
-    p1 = replace(p, f=p.f * phi)
-    offset = p.M0 / nMn - evaluate(p1).inv_DPn
-    p1 = replace(p1, transfer=p1.transfer + (
-        TransferTerm("normal-batch offset", "offset", p.conc_M, offset, None, None, "anchor"),))
-    s0 = evaluate(p1)
-    Mw_factor = nMw / (s0.DPn * p.M0 * s0.dispersity)
+    recipe = Recipe.from_dict(dict(_CASE_BASE, label="LC-180"))
+    p_tab = resolve_parameters(recipe)
+    p = replace(p_tab, k_t=p_tab.k_t * DEMO_CASE["true k_t factor [-]"], f=DEMO_CASE["true f [-]"])
     C = next(a for a in agents_for("styrene") if a.agent == DEMO_CASE["impurity"]).C(p.T)
     excess = float(mayo_inv_dpn(transfer=[(C, DEMO_CASE["impurity [ppm mol]"] * 1e-6)]))
-    s = evaluate(p1, extra_transfer=excess)
-    Mn = s.DPn * p.M0
-    Mw = Mn * s.dispersity * Mw_factor
-    return {"Mn": Mn, "Mw": Mw, "R_p": s.R_p, "k_app": s.R_p / p.conc_M,
-            "nMn": nMn, "nMw": nMw, "nRp": nRp, "excess": excess, "C": C}
+    normal, low = evaluate(p), evaluate(p, extra_transfer=excess)
+    M0 = p.M0
+    return {"normal": normal, "low": low, "M0": M0, "conc_M": p.conc_M,
+            "Mn": low.DPn * M0, "Mw": low.DPn * M0 * low.dispersity, "R_p": low.R_p,
+            "nMn": normal.DPn * M0, "nMw": normal.DPn * M0 * normal.dispersity,
+            "nRp": normal.R_p, "excess": excess, "C": C}
 
 
 def write_troubleshooting_case(folder: str | Path) -> dict[str, Any]:
@@ -880,7 +893,9 @@ def write_troubleshooting_case(folder: str | Path) -> dict[str, Any]:
 
     Files: ``recipe.toml``, ``batch.csv`` (for the demo method one level up,
     ``../method.toml``), ``exports/LC180-0409.csv`` (normal lot),
-    ``exports/LC180-0417.csv`` (low lot), ``truth.json``.
+    ``exports/LC180-0417.csv`` (low lot), ``truth.json``. The traces are the lots'
+    instantaneous distributions through the demo calibration, with the flow-marker peak
+    and every volume moved by the pump's flow error (which the marker corrects).
 
     Returns
     -------
@@ -890,24 +905,29 @@ def write_troubleshooting_case(folder: str | Path) -> dict[str, Any]:
     """
     out = Path(folder)
     v = _case_values()
-    times = [0, 20, 40, 60, 80]
-    conv = [1.0 - math.exp(-v["k_app"] * 60.0 * t) for t in times]
-    conv_txt = ", ".join(f"{x:.5f}" for x in conv)
+    times = list(DEMO_CASE["times [min]"])
+    k_app = v["R_p"] / v["conc_M"]
+    conv = [1.0 - math.exp(-k_app * 60.0 * t) for t in times]
+    flow_err = DEMO_CASE["pump flow error [-]"]
+    marker = MARKER_REFERENCE * (1.0 + flow_err)
     recipe_path = write_text(
         out / "recipe.toml",
-        _CASE_RECIPE.format(Mn=v["Mn"], Mw=v["Mw"], conv=conv_txt, nMn=v["nMn"], nMw=v["nMw"],
-                            nRp=v["nRp"]),
+        _CASE_RECIPE.format(Mn=v["Mn"], Mw=v["Mw"], times=", ".join(str(t) for t in times),
+                            conv=", ".join(f"{x:.6f}" for x in conv), nMn=v["nMn"],
+                            nMw=v["nMw"], nRp=v["nRp"], marker=marker,
+                            u_Rp=DEMO_CASE["R_p uncertainty [%]"]),
     )
     cal = simulate.default_calibration()
     exports = []
-    lots = (("LC180-0409", v["nMn"], v["nMw"], 71), ("LC180-0417", v["Mn"], v["Mw"], 72))
-    for lot, Mn, Mw, seed in lots:
+    lots = (("LC180-0409", v["normal"], 71), ("LC180-0417", v["low"], 72))
+    for lot, state, seed in lots:
         V, h = simulate.chromatogram(
-            simulate.schulz_zimm_from_averages(Mn, Mw), cal, height=100.0, baseline_offset=0.4,
-            baseline_drift=0.01, noise=0.01, extra_peaks=((22.61, 0.08, 12.0),), seed=seed,
+            state.distribution(v["M0"]), cal, height=100.0, baseline_offset=0.4,
+            baseline_drift=0.01, noise=0.01, extra_peaks=((MARKER_REFERENCE, 0.08, 12.0),),
+            seed=seed,
         )
         path = out / "exports" / f"{lot}.csv"
-        write_chromatogram(path, V, h, metadata={"sample": lot})
+        write_chromatogram(path, V * (1.0 + flow_err), h, metadata={"sample": lot})
         exports.append(str(path))
     sheet = write_text(
         out / "batch.csv",
@@ -915,8 +935,11 @@ def write_troubleshooting_case(folder: str | Path) -> dict[str, Any]:
         "LC180-0409,exports/LC180-0409.csv,sample,LC-180,normal lot\n"
         "LC180-0417,exports/LC180-0417.csv,sample,LC-180,low-Mn lot\n",
     )
-    truth = dict(DEMO_CASE)
+    truth = {k: (list(val) if isinstance(val, tuple) else val) for k, val in DEMO_CASE.items()}
     truth.update({
+        "normal Mn [g/mol]": v["nMn"],
+        "normal Mw [g/mol]": v["nMw"],
+        "normal R_p [mol/L/s]": v["nRp"],
         "low lot Mn [g/mol]": v["Mn"],
         "low lot Mw [g/mol]": v["Mw"],
         "R_p [mol/L/s]": v["R_p"],

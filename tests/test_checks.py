@@ -16,6 +16,7 @@ from gpctools.kinetics.checks import (
     induction_period,
     low_M_limit,
     molar_mass_scale,
+    pump_flow,
     run_checks,
 )
 from gpctools.kinetics.recipe import Checks
@@ -111,7 +112,8 @@ def test_induction_period():
 
 def test_run_checks_keeps_the_registry_order():
     assert [c.__name__ for c in CHECKS] == ["molar_mass_scale", "check_standard", "flow_marker",
-                                           "low_M_limit", "calibrated_range", "induction_period"]
+                                           "pump_flow", "low_M_limit", "calibrated_range",
+                                           "induction_period"]
     r = run_checks(CheckInputs(Checks(outside_calibration=2.0, Mn_shift_low_limit=1.0),
                                "relative to pullulan", None, "polystyrene", induction=3.0))
     assert [line.check for line in r.lines] == ["molar-mass scale", "check standard",
@@ -120,3 +122,30 @@ def test_run_checks_keeps_the_registry_order():
     assert list(r.observations) == ["check standard", "flow marker", "low-M limit",
                                     "outside calibration", "induction period"]
     assert len(r.warnings) == 1
+
+
+def test_pump_flow_is_an_instrument_finding_even_when_corrected():
+    # 22.668 mL against 22.60 mL: the pump is 0.3 % slow (V_obs/V_ref − 1 = 0.00301) [derived]
+    ch = Checks(flow_marker_observed=22.668, flow_marker_reference=22.60,
+                flow_marker_corrected=True)
+    out = pump_flow(CheckInputs(ch))
+    f = out.finding
+    assert f is not None and f.status == "fix" and f.check == "pump flow"
+    assert "0.301 % slow" in f.text and "corrected with the flow marker, but" in f.text
+    nums = dict(f.numbers)
+    assert nums["flow error [%]"] == pytest.approx(100 * (22.668 / 22.60 - 1), rel=1e-12)
+    # the batch's correction factor V_ref/V_obs [derived]
+    assert nums["flow correction factor [-]"] == pytest.approx(22.60 / 22.668, rel=1e-12)
+    assert "check the pump" in f.action
+    # the corrected marker check itself still reads ok: the results are right
+    assert flow_marker(CheckInputs(ch)).line.status == "ok"
+    # a fast pump, uncorrected
+    fast = pump_flow(CheckInputs(Checks(flow_marker_observed=22.55, flow_marker_reference=22.60)))
+    assert "fast" in fast.finding.text and "not corrected" in fast.finding.text
+    # at or below 0.1 % (common practice: pump flow held within about 0.1 %): no finding
+    assert pump_flow(CheckInputs(Checks(flow_marker_observed=22.62,
+                                        flow_marker_reference=22.60))).finding is None
+    assert pump_flow(CheckInputs(Checks())).finding is None
+    r = run_checks(CheckInputs(ch))
+    assert [x.check for x in r.findings] == ["pump flow"]
+    assert "pump flow" not in [x.check for x in r.lines]

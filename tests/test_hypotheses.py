@@ -20,6 +20,7 @@ from gpctools.kinetics.hypotheses import (
     HYPOTHESES,
     AnchoredModel,
     Evidence,
+    PriorRange,
     hypothesis,
 )
 from gpctools.kinetics.predict import KineticParameters, evaluate
@@ -63,7 +64,12 @@ def test_registry_holds_nine_causes_in_fitting_order():
     for h in HYPOTHESES:
         assert h.title and h.parameter and h.unit
         assert h.category in ("process", "measurement", "none")
-        assert h.prior_range is None  # no plausibility prior yet: flat over the grid
+        if h.key == "none":
+            assert h.prior_range is None  # nothing fitted, nothing to judge
+        else:  # every fitted value is judged against a range from practice, with its basis
+            assert isinstance(h.prior_range, PriorRange)
+            assert h.prior_range.lo < h.prior_range.hi and h.prior_range.scale > 0
+            assert h.prior_range.basis.startswith("common practice")
         assert hypothesis(h.key) is h
     with pytest.raises(KeyError, match="no hypothesis"):
         hypothesis("gremlins")
@@ -89,10 +95,11 @@ def test_unexplained_transfer(model):
     class Thiol:  # 10 ppm of C = 15 adds 1.5e-4 to 1/DPn (docs/science.md, section 9 check value)
         name, C, ppm_mol, ppm_mass = "thiol", 15.0, 10.0, 19.4
 
-    x = h.explain(1.5e-4, evidence(model, mn_ratio=0.95, excess=1.5e-4, impurities=(Thiol(),)))
-    assert "Excess 1/DPn = 0.00015" in x.text
-    assert "thiol (C = 15): 10 ppm mol (19.4 ppm by mass)" in x.text
-    assert x.numbers[0] == ("excess 1/DPn (from Mn) [-]", 1.5e-4)
+    x = h.explain(1.5e-4, evidence(model, mn_ratio=0.95, excess=1.5e-4, impurities=(Thiol(),),
+                                   excess_interval=(1e-4, 2e-4)))
+    assert "Excess 1/DPn = 0.00015 (95 % interval 0.0001–0.0002; from Mn alone 0.00015)" in x.text
+    assert "thiol (C = 15): 10 ppm mol" in x.text and "19.4 ppm by mass" in x.text
+    assert x.numbers[0] == ("excess 1/DPn (fit) [-]", 1.5e-4)
     assert ("equivalent thiol [ppm mol]", 10.0) in x.numbers
 
 
@@ -182,8 +189,11 @@ def test_calibration_drift(model):
 
 def test_limit_artefact(model):
     h = hypothesis("limit")
-    assert h.free == ("low-M limit", "outside calibration")
-    assert h.predict(-0.3, model) == {"Mn": -0.3}
+    assert h.free == ("outside calibration", "low-M tail")
+    # the limit check is predicted at half the bias, give or take the other half (typical)
+    assert h.predict(-0.3, model) == {"Mn": -0.3, "low-M limit": pytest.approx(0.15)}
+    assert h.extra_sigma(-0.3, "low-M limit", model) == pytest.approx(0.15)
+    assert h.extra_sigma(-0.3, "Mn", model) is None
     x = h.explain(math.log(0.75), evidence(model, mw_ratio=0.99, Mn_shift_low_limit=9.0))
     assert "Mn is low by -25 % while Mw is 0.99× expected" in x.text  # e^ln0.75 − 1 [derived]
     assert "Mn moves +9 % when the limit moves 0.2 mL" in x.text
@@ -191,10 +201,11 @@ def test_limit_artefact(model):
 
 @pytest.mark.parametrize(("key", "perturbation", "truth"), [
     # observations from the closed forms above (δ = 1), not from the model
-    ("dilution", {"R_p": math.log(0.7), "Mn": math.log(0.7), "Mw": math.log(0.7)}, 0.7),
-    ("initiator", {"R_p": math.log(3.0) / 2, "Mn": -math.log(3.0) / 2,
-                   "Mw": -math.log(3.0) / 2}, 3.0),
-    ("calibration", {"Mn": -0.2, "Mw": -0.2, "check standard": -0.2}, -0.2),
+    # (truths inside each cause's plausible range, so no penalty pulls the fit)
+    ("dilution", {"R_p": math.log(0.95), "Mn": math.log(0.95), "Mw": math.log(0.95)}, 0.95),
+    ("initiator", {"R_p": math.log(1.8) / 2, "Mn": -math.log(1.8) / 2,
+                   "Mw": -math.log(1.8) / 2}, 1.8),
+    ("calibration", {"Mn": -0.1, "Mw": -0.1, "check standard": -0.1}, -0.1),
 ])
 def test_fit_recovers_the_parameter_from_closed_form_observations(model, key, perturbation,
                                                                   truth):
@@ -204,3 +215,39 @@ def test_fit_recovers_the_parameter_from_closed_form_observations(model, key, pe
     assert f.value == pytest.approx(truth, rel=1e-6)
     assert f.chi2 == pytest.approx(0.0, abs=1e-9)
     assert np.isfinite([r for _, r in f.residuals]).all()
+
+
+def test_prior_range_penalty_by_hand():
+    # flat inside, ((distance)/scale)² outside; ln units for factors [derived from the doc]
+    pr = PriorRange("g", 0.9, 1.0, 0.05, True, "common practice: test")
+    assert pr.penalty(0.95) == 0.0 and pr.distance(0.9) == 0.0
+    assert pr.penalty(0.8) == pytest.approx((math.log(0.9 / 0.8) / 0.05) ** 2, rel=1e-12)
+    lin = PriorRange("dT", 0.0, 10.0, 5.0, False, "common practice: test")
+    assert lin.penalty(20.0) == pytest.approx(4.0, rel=1e-12) and lin.penalty(-5.0) == 1.0
+    assert "g 0.9–1 (common practice: test)" == pr.describe()
+
+
+def test_implausible_value_is_penalised_and_flagged(model):
+    # a 35 % monomer shortfall (the retarder-or-dilution coin flip of issue 13): the fit is
+    # pulled towards the plausible range and pays for what is left outside it
+    h = hypothesis("dilution")
+    g = 0.65
+    o = {k: Observation(k, math.log(g), 0.05, True, None, None, "-") for k in ("R_p", "Mn", "Mw")}
+    f = fit_hypothesis(h, model, o)
+    assert f.penalty > 4.0  # at least 2 tail scales outside [derived: ln(0.9/0.65)/0.05 = 6.5]
+    assert not h.plausible(f.theta, model)
+    assert g < f.value < 0.9  # the MAP lies between the data and the range
+    inside = fit_hypothesis(h, model, {k: Observation(k, math.log(0.95), 0.05, True, None,
+                                                      None, "-") for k in ("R_p", "Mn")})
+    assert inside.penalty == 0.0 and h.plausible(inside.theta, model)
+
+
+def test_profile_interval_brackets_the_fit(model):
+    # Mn and Mw both -0.1 with σ 0.05: calibration shift s = -0.1, σ_s = 0.05/√2 (two equal
+    # observations), so the 95 % profile interval is -0.1 ± 1.96·0.0354 [derived]
+    o = {k: Observation(k, -0.1, 0.05, True, None, None, "-") for k in ("Mn", "Mw")}
+    f = fit_hypothesis(hypothesis("calibration"), model, o)
+    half = 1.96 * 0.05 / math.sqrt(2.0)
+    # 2e-3: the profile is read on the 0.005-wide grid by linear interpolation of χ²
+    assert f.interval[0] == pytest.approx(-0.1 - half, abs=2e-3)
+    assert f.interval[1] == pytest.approx(-0.1 + half, abs=2e-3)

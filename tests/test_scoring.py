@@ -45,9 +45,10 @@ def test_chi_square_by_hand():
                 "low-M limit": 0.09 / 0.03}  # (y − μ)/σ [derived]
     assert res == pytest.approx(expected, rel=1e-12)
     assert chi2 == pytest.approx(sum(v * v for v in expected.values()), rel=1e-12)
-    # the limit artefact leaves the low-M limit check free: not counted
-    _, res_limit = chi_square(hypothesis("limit"), -0.1, MODEL, OBS)
-    assert "low-M limit" not in res_limit
+    # the retarder leaves the induction period free: not counted
+    induction = {**OBS, "induction period": o("induction period", 30.0, 5.0)}
+    _, res_free = chi_square(hypothesis("retarder"), 1.0, MODEL, induction)
+    assert "induction period" not in res_free and "Mn" in res_free
 
 
 def test_extra_sigma_is_added_in_quadrature():
@@ -98,3 +99,24 @@ def test_fit_probability_against_the_chi_square_table():
     assert dof == 2 and p == pytest.approx(0.05, abs=1e-6)
     # never fewer than one degree of freedom
     assert fit_probability(1.0, 1, 1)[1] == 1
+
+
+def test_model_covariance_enters_chi_square_by_hand():
+    # Mn and Mw both 0.1 low with σ 0.04 and 0.03, and a fully correlated model uncertainty
+    # of 0.1 on both (one common parameter): χ² = rᵀ(D + 0.01·11ᵀ)⁻¹r [derived, by hand
+    # with the Sherman-Morrison formula: rᵀD⁻¹r − (1ᵀD⁻¹r)²·0.01/(1 + 0.01·1ᵀD⁻¹1)]
+    cov = np.full((3, 3), 0.01)
+    model = AnchoredModel(P, evaluate(P), FlowSensitivity(BV=10.0, rel=0.3),
+                          covariance_names=("R_p", "Mn", "Mw"), covariance=cov)
+    obs = {"Mn": o("Mn", -0.1, 0.04), "Mw": o("Mw", -0.1, 0.03)}
+    chi2, res = chi_square(hypothesis("none"), 0.0, model, obs)
+    d = np.array([0.04**2, 0.03**2])
+    r = np.array([-0.1, -0.1])
+    a = np.sum(r / d)
+    expected = np.sum(r * r / d) - a * a * 0.01 / (1 + 0.01 * np.sum(1 / d))
+    assert chi2 == pytest.approx(expected, rel=1e-12)
+    # the reported residual is r_i/√C_ii
+    assert res["Mn"] == pytest.approx(-0.1 / math.sqrt(0.04**2 + 0.01), rel=1e-12)
+    # without the covariance the same residuals cost far more: the model's common-mode
+    # uncertainty absorbs a shift of every average
+    assert chi_square(hypothesis("none"), 0.0, MODEL, obs)[0] > 5 * chi2

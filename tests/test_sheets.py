@@ -319,7 +319,7 @@ def test_missing_required_column_lists_found_and_accepted(tmp_path, kind, requir
     found = ", ".join(repr(h) for h in text.splitlines()[0].split(","))
     assert re.fullmatch(
         rf"the {kind} needs a '{re.escape(required)}' column( \(also accepted: [^)]*\))?; "
-        rf"found columns: {re.escape(found)}; see templates/\S+", e.value.message), e.value.message
+        rf"found columns: {re.escape(found)}; see the starter file \(gpctools template \S+\)", e.value.message), e.value.message
     assert e.value.path == str(p)
 
 

@@ -32,7 +32,14 @@ calibration slope B                   0.4      decades/mL, typical 0.3–0.5
 peak volume V                         25 mL    typical 20–30 mL (docs/science.md,
                                                section 2.1)
 relative uncertainty of B·V           30 %     defaults (B·V 6–15 around 10); 10 % given
+flow finding threshold                0.1 %    common practice: a pump holds its flow
+                                               within about 0.1 %
 ====================================  =======  ============================================
+
+Instrument findings stand beside the chemistry: a flow error above 0.1 % is reported as
+an instrument fault to fix (:func:`pump_flow`) even when the flow marker corrected the
+results, because the next sequence may not have a marker, and a drifting pump also
+broadens peaks and moves retention of the standards.
 
 References
 ----------
@@ -58,7 +65,9 @@ __all__ = [
     "FlowSensitivity",
     "CHECKS",
     "flow_sensitivity",
+    "pump_flow",
     "run_checks",
+    "FLOW_FINDING_THRESHOLD",
 ]
 
 SIGMA_CHECK_STANDARD = 0.03  # published: repeatability under 3 % (docs/science.md, section 7.6)
@@ -73,6 +82,9 @@ DEFAULT_SLOPE = 0.4  # decades/mL, typical 0.3-0.5 (docs/science.md, section 2.1
 DEFAULT_PEAK_VOLUME = 25.0  # mL, typical 20-30 (docs/science.md, section 2.1)
 BV_REL_DEFAULT = 0.3  # B·V range 6-15 around 10
 BV_REL_GIVEN = 0.1
+#: A flow error above this is an instrument finding even when the results were corrected
+#: [common practice: a pump holds its flow within about 0.1 %; more is a fault to fix].
+FLOW_FINDING_THRESHOLD = 0.001
 
 
 @dataclass(frozen=True)
@@ -153,20 +165,24 @@ class CheckInputs:
 
 @dataclass(frozen=True)
 class CheckOutcome:
-    """What one check gives: a report line, an observation, a warning (each optional)."""
+    """What one check gives: a report line, an observation, a warning, an instrument
+    finding (each optional)."""
 
     line: CheckLine | None = None
     observation: Observation | None = None
     warning: str | None = None
+    finding: CheckLine | None = None
 
 
 @dataclass(frozen=True)
 class CheckReport:
-    """All checks: report lines, observations (name -> Observation) and warnings, in order."""
+    """All checks: report lines, observations (name -> Observation), warnings and
+    instrument findings, in order."""
 
     lines: tuple[CheckLine, ...]
     observations: dict[str, Observation]
     warnings: tuple[str, ...]
+    findings: tuple[CheckLine, ...] = ()
 
 
 def molar_mass_scale(c: CheckInputs) -> CheckOutcome:
@@ -260,6 +276,31 @@ def flow_marker(c: CheckInputs) -> CheckOutcome:
     )
 
 
+def pump_flow(c: CheckInputs) -> CheckOutcome:
+    """Instrument finding: the flow marker shows a flow error above 0.1 %, corrected or not.
+
+    With x exported as volume = time × nominal flow, the marker elutes late when the
+    pump is slow: flow actual/nominal = V_ref/V_obs, so the pump is 100·(V_obs/V_ref − 1)
+    % slow [derived, docs/science.md, section 2.2].
+    """
+    ch = c.checks
+    fe = ch.flow_error
+    if fe is None or abs(fe) <= FLOW_FINDING_THRESHOLD:
+        return CheckOutcome()
+    way = "slow" if fe > 0 else "fast"
+    done = ("the results were corrected with the flow marker, but"
+            if ch.flow_marker_corrected else "the results were not corrected, and")
+    return CheckOutcome(finding=CheckLine(
+        "pump flow", "fix",
+        f"pump flow {100 * abs(fe):.3g} % {way} (flow marker at "
+        f"{ch.flow_marker_observed:.4g} mL against {ch.flow_marker_reference:.4g} mL); {done} "
+        f"a flow error above {100 * FLOW_FINDING_THRESHOLD:g} % is an instrument fault",
+        (("flow error [%]", 100 * fe), ("flow correction factor [-]", 1.0 / (1.0 + fe))),
+        "check the pump: seals and check valves, leaks, degassing and bubbles; measure the "
+        "flow (timed volume) and recalibrate it before the next sequence",
+    ))
+
+
 def low_M_limit(c: CheckInputs) -> CheckOutcome:
     """Mn change when the low-M limit moves 0.2 mL earlier: y = shift/100, σ 3 %."""
     shift = c.checks.Mn_shift_low_limit
@@ -315,6 +356,7 @@ CHECKS: tuple[Callable[[CheckInputs], CheckOutcome], ...] = (
     molar_mass_scale,
     check_standard,
     flow_marker,
+    pump_flow,
     low_M_limit,
     calibrated_range,
     induction_period,
@@ -326,6 +368,7 @@ def run_checks(inputs: CheckInputs) -> CheckReport:
     lines: list[CheckLine] = []
     observations: dict[str, Observation] = {}
     warnings: list[str] = []
+    findings: list[CheckLine] = []
     for check in CHECKS:
         outcome = check(inputs)
         if outcome.line is not None:
@@ -334,4 +377,6 @@ def run_checks(inputs: CheckInputs) -> CheckReport:
             observations[outcome.observation.name] = outcome.observation
         if outcome.warning is not None:
             warnings.append(outcome.warning)
-    return CheckReport(tuple(lines), observations, tuple(warnings))
+        if outcome.finding is not None:
+            findings.append(outcome.finding)
+    return CheckReport(tuple(lines), observations, tuple(warnings), tuple(findings))

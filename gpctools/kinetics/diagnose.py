@@ -2,56 +2,66 @@
 
 How the diagnosis works
 -----------------------
-1. **Expected values.** The recipe is predicted with the steady-state model
-   (:mod:`gpctools.kinetics.predict`). When a normal batch with measured values is
-   given, the model is first *anchored* to it: the radical flux f·k_d·[I] is scaled so
-   that the model reproduces the normal batch's R_p, a constant offset is added to 1/DPn
-   so that it reproduces its Mn, and a factor on Mw absorbs its real breadth. The
-   anchored model then gives the expected R_p, Mn and Mw of this batch.
+1. **Expected values and their uncertainty.** The recipe is predicted with the
+   steady-state model (:mod:`gpctools.kinetics.predict`). Every uncertain input (k_p,
+   k_d, f, k_t, δ, C_M, transfer constants, the Mw breadth) carries a standard
+   uncertainty — stated in the recipe, taken as exact when the recipe gives the value
+   without one, else from the reference data's source status and spread — propagated to
+   the expected R_p, Mn and Mw as a covariance (:mod:`gpctools.kinetics.uncertainty`).
+   A normal batch (a lot that came out right) updates these parameters: the expected
+   values are the model at their posterior mode, with the posterior covariance.
 2. **Observations.** Each measured quantity becomes y = ln(measured/expected) with a
-   standard uncertainty σ (relative): R_p, Mn, Mw; plus the measurement checks:
-   check-standard deviation, flow-marker shift, Mn sensitivity to the low-M limit,
-   fraction outside the calibration, induction period. A check that was not recorded
-   enters as a prior (e.g. flow error 0 ± 0.2 %: typical pump accuracy).
+   standard measurement uncertainty σ: R_p, Mn, Mw; where a distribution is given, its
+   low-M tail and high-M shoulder (:mod:`gpctools.kinetics.evidence`); plus the
+   measurement checks: check-standard deviation, flow-marker shift, Mn sensitivity to
+   the low-M limit, fraction outside the calibration, induction period. A check that
+   was not recorded enters as a prior (e.g. flow error 0 ± 0.2 %: typical pump
+   accuracy).
 3. **Hypotheses.** Each cause predicts all observations from one parameter θ:
 
    ============================  ==========================================================
    unexplained transfer          Δ(1/DPn) ≥ 0; R_p unchanged
    excess initiation             factor F ≥ 1 on f·k_d·[I]; R_p ∝ F^½, DPn from the model
-   temperature overshoot         ΔT ≥ 0; k_p and k_d by Arrhenius, k_t constant
+   temperature overshoot         ΔT ≥ 0; k_p, k_d and k_t by Arrhenius
    inhibition / retardation      ζ = k_z[Z] (radical loss, each event ends a chain);
                                  R_p down; induction period free
    dilution / monomer loss       factor g ≤ 1 on [M]
    flow-rate error               relative flow error ε: every average × 10^(−B·V·ε),
                                  flow marker shifted by ε, check standard shifted too
    calibration drift             every average and the check standard × e^s
-   integration-limit artefact    Mn × e^t (t ≤ 0), Mw unchanged; limit sensitivity free
+   integration-limit artefact    Mn × e^t (t ≤ 0), Mw unchanged; limit checks and the
+                                 low-M tail free
    no cause                      everything as expected
    ============================  ==========================================================
 
-   θ is fitted by minimising χ² = Σ ((y − μ(θ))/σ)² (grid, then bounded refinement).
-4. **Score.** Akaike weights: AIC = χ²_min + 2k (k = 1 fitted parameter, 0 for "no
-   cause"); the *likelihood share* of a cause is exp(−AIC/2) normalised over all causes
-   [%]. It says how much better one single cause explains all numbers than the others,
-   assuming one cause and normal errors; it is not a probability that the cause is real.
-   The diagnosis is *clear* when the top cause is not "no cause", has a share of at least
-   50 % and "no cause" has less than 20 %.
+   θ minimises χ² = rᵀC⁻¹r plus a plausibility penalty outside the cause's prior range
+   from practice (:mod:`gpctools.kinetics.scoring`).
+4. **Score.** Akaike weights: AIC = χ²_min + penalty + 2k (k = 1 fitted parameter, 0 for
+   "no cause"); the *likelihood share* of a cause is exp(−AIC/2) normalised over all
+   causes [%]. It says how much better one single cause explains all numbers than the
+   others, assuming one cause and normal errors; it is not a probability that the cause
+   is real. The diagnosis is *clear* when the top cause is not "no cause", has a share of
+   at least 50 % and at least twice the runner-up's, "no cause" has less than 20 %, and
+   the top cause describes the numbers (χ² fit probability at least 0.001) (error rates
+   on noisy lots: bench/bench_diagnosis.py).
 
-The unexplained transfer is also expressed as the equivalent concentration of candidate
-impurities: [X] = Δ(1/DPn)·[M]/C_X, or Δ(1/DPn)/C_X·10⁶ ppm (mol of X per mol monomer);
-e.g. 10 ppm of a thiol with C = 15 adds 1.5e-4 to 1/DPn (docs/science.md, section 9).
+The excess 1/DPn (the transfer cause's fitted value, with its 95 % interval) is always
+turned into impurity levels: named candidates, or generic transfer constants
+(:mod:`gpctools.kinetics.impurity`). Instrument findings (a pump flow error above 0.1 %,
+even when corrected) are listed beside the causes.
 
 Where the parts live: the measurement checks (step 2) are registered in
 :mod:`gpctools.kinetics.checks`, the causes (step 3) in
 :mod:`gpctools.kinetics.hypotheses`, the fit and the Akaike score (steps 3-4) in
-:mod:`gpctools.kinetics.scoring`; :func:`diagnose` assembles them.
+:mod:`gpctools.kinetics.scoring`; :func:`diagnose` assembles them, and
+:mod:`gpctools.kinetics.inputs` reads results tables and distributions for it.
 
 References
 ----------
 - Mayo, J. Am. Chem. Soc. 1943; IUPAC steady-state kinetics (docs/science.md, section 3).
-- Fingerprints of low molar mass: docs/science.md, section 9 (transfer keeps R_p, more initiator or
-  heat raises R_p with R_p·DPn about constant, retarders lower both, measurement
-  artefacts shift all averages or only Mn).
+- Fingerprints of low molar mass: docs/science.md, section 9 (transfer keeps R_p, more
+  initiator or heat raises R_p with R_p·DPn about constant, retarders lower both,
+  measurement artefacts shift all averages or only Mn).
 - Flow-error sensitivity Δ logM = B·V·ε: docs/science.md, section 2 [derived].
 - Akaike, IEEE Trans. Autom. Control 1974; Burnham and Anderson, Model Selection and
   Multimodel Inference, 2002 (Akaike weights) [from memory].
@@ -62,34 +72,33 @@ from __future__ import annotations
 import math
 from collections.abc import Mapping
 from dataclasses import dataclass, replace
-from pathlib import Path
 from typing import Any
 
 import numpy as np
 import pandas as pd
 
-from gpctools import columns
-from gpctools.chainlength import impurity_ratio
-from gpctools.errors import DataError, InputFormatError, MethodError
+from gpctools.errors import DataError, MethodError
 from gpctools.kinetics.checks import CheckInputs, CheckLine, flow_sensitivity, run_checks
+from gpctools.kinetics.evidence import (
+    SIGMA_HIGH_SHOULDER,
+    SIGMA_LOW_TAIL,
+    DistributionCurve,
+    MeasuredDistribution,
+    Tails,
+    distribution_from_chromatogram,
+    read_distribution,
+)
 from gpctools.kinetics.hypotheses import HYPOTHESES, AnchoredModel, Evidence, hypothesis
+from gpctools.kinetics.impurity import ExcessEstimate, ImpurityEstimate, impurity_estimates
 from gpctools.kinetics.predict import (
     KineticParameters,
     KineticState,
     Prediction,
-    TransferTerm,
     evaluate,
     predict,
     resolve_parameters,
 )
-from gpctools.kinetics.recipe import (
-    Measured,
-    NormalBatch,
-    Recipe,
-    Uncertainty,
-    load_recipe,
-    normalize_scale,
-)
+from gpctools.kinetics.recipe import Checks, Measured, NormalBatch, Recipe, Uncertainty
 from gpctools.kinetics.safety import safety_lines
 from gpctools.kinetics.scoring import (
     HypothesisFit,
@@ -98,6 +107,7 @@ from gpctools.kinetics.scoring import (
     fit_hypothesis,
     fit_probability,
 )
+from gpctools.kinetics.uncertainty import OBSERVABLES, ModelUncertainty, model_uncertainty
 from gpctools.refdata import ReferenceData
 
 __all__ = [
@@ -105,32 +115,39 @@ __all__ = [
     "Cause",
     "CheckLine",
     "ImpurityEstimate",
+    "ExcessEstimate",
     "RateFromConversion",
     "Diagnosis",
     "rate_from_conversion",
     "diagnose",
-    "measured_from_results",
-    "diagnose_recipe",
     "DEFAULT_UNCERTAINTY",
 ]
 
-# Default relative standard uncertainties [%], each with its basis (the checks' σ and
-# priors are in gpctools.kinetics.checks).
+# Default relative standard measurement uncertainties [%], each with its basis (the
+# checks' σ and priors are in gpctools.kinetics.checks; the model's uncertainty comes from
+# its parameters, gpctools.kinetics.uncertainty).
 DEFAULT_UNCERTAINTY = {
-    # published: SEC round robins, repeatability under 3 % (docs/science.md, section 7); Mn is more
-    # sensitive to baseline and limits, hence 4 %.
+    # published: SEC round robins, repeatability under 3 % (docs/science.md, section 7.6);
+    # Mn is more sensitive to baseline and limits, hence 4 %.
     "Mn": 4.0,
     "Mw": 3.0,
     # common practice: gravimetric/spectroscopic initial rates repeat to about 10 %.
     "R_p": 10.0,
-    # typical: tabulated k_t is an order-of-magnitude value; a normal batch removes this.
-    "model": 10.0,
 }
-_SIGMA_DISPERSITY_MODEL = 0.15  # typical: real Đ exceeds Đ_inst (drift, band broadening)
-
-_MAX_IMPURITY_PPM = 1e4  # 1 mol % of the monomer
+#: Floor of the relative σ of an R_p fitted from conversion data (common practice: a few
+#: points on one run understate the run-to-run scatter of rates).
+_RP_FIT_FLOOR = 0.05
 _CLEAR_SHARE = 50.0
 _CLEAN_MAX_SHARE = 20.0
+#: A clear verdict also needs the top cause at least this many times the runner-up's share
+#: (evidence ratio 2, ΔAIC ≥ 1.4): on noisy simulated lots it halves the clear verdicts
+#: that name a wrong cause (bench/bench_diagnosis.py, docs/science.md, section 9.4).
+_CLEAR_RATIO = 2.0
+#: ... and the top cause must describe the numbers: a χ² beyond its 99.9 % quantile
+#: (fit probability below 0.001) makes the verdict "ambiguous" [common practice].
+_MIN_FIT_P = 1e-3
+#: Causes drawn in the distribution overlay (besides "no cause"), best first.
+_CURVES = 3
 
 
 # --------------------------------------------------------------------------- records
@@ -150,7 +167,7 @@ class Cause:
     share : float
         Likelihood share (Akaike weight) [%].
     chi2 : float
-        χ² at the best parameter [-].
+        χ² at the best parameter [-] (data only).
     parameter, value, unit : str, float, str
         The fitted parameter of the hypothesis.
     text : str
@@ -160,6 +177,14 @@ class Cause:
     next_step : str
         What to do next.
     residuals : tuple of (observation, residual in σ)
+    penalty : float
+        Plausibility penalty at the fitted value [-] (0 inside the prior range).
+    plausible : bool
+        Whether the fitted value lies inside the prior range.
+    prior : str
+        The prior range and its basis ("" for "no cause").
+    interval : (float, float)
+        95 % profile interval of ``value``.
     """
 
     key: str
@@ -174,6 +199,17 @@ class Cause:
     numbers: tuple[tuple[str, float], ...]
     next_step: str
     residuals: tuple[tuple[str, float], ...]
+    penalty: float = 0.0
+    plausible: bool = True
+    prior: str = ""
+    interval: tuple[float, float] = (math.nan, math.nan)
+
+    @property
+    def plausibility(self) -> str:
+        """'plausible', 'outside the plausible range' or '–' (no cause)."""
+        if self.key == "none":
+            return "–"
+        return "plausible" if self.plausible else "outside the plausible range"
 
     def summary(self) -> dict[str, Any]:
         """JSON-safe dict."""
@@ -183,40 +219,17 @@ class Cause:
             "category": self.category,
             "likelihood share [%]": self.share,
             "chi2 [-]": self.chi2,
+            "plausibility penalty [-]": self.penalty,
             "parameter": self.parameter,
             "value": self.value,
+            "95 % interval": list(self.interval),
             "unit": self.unit,
+            "plausible": self.plausible,
+            "plausible range": self.prior,
             "text": self.text,
             "numbers": {k: v for k, v in self.numbers},
             "next step": self.next_step,
             "residuals [sigma]": {k: v for k, v in self.residuals},
-        }
-
-
-@dataclass(frozen=True)
-class ImpurityEstimate:
-    """Level of one candidate impurity that would explain the excess 1/DPn.
-
-    [X] = Δ(1/DPn)·[M]/C [mol/L]; ppm (mol) = 10⁶·Δ(1/DPn)/C relative to monomer;
-    ppm (mass) = ppm (mol)·M_X/M0.
-    """
-
-    name: str
-    C: float
-    concentration: float
-    ppm_mol: float
-    ppm_mass: float | None
-    source: str
-
-    def row(self) -> dict[str, Any]:
-        """Unit-named dict for tables."""
-        return {
-            "candidate": self.name,
-            "C [-]": self.C,
-            "[X] [mol/L]": self.concentration,
-            "ratio [X]/[M] [ppm mol]": self.ppm_mol,
-            "mass ratio X/monomer [ppm mass]": self.ppm_mass,
-            "source": self.source,
         }
 
 
@@ -328,12 +341,13 @@ class Diagnosis:
     ----------
     label : str
     prediction : Prediction
-        The un-anchored prediction of the recipe (its budget and parameters).
+        The prediction of the recipe from the tables (its budget and parameters).
     expected, measured : dict
-        Expected (anchored) and measured R_p [mol/L/s], Mn, Mw [g/mol], dispersity [-],
-        1/DPn [-] (unit-named keys; measured values on the absolute scale).
+        Expected and measured R_p [mol/L/s], Mn, Mw [g/mol], dispersity [-], 1/DPn [-]
+        (unit-named keys; measured values on the absolute scale; expected values from the
+        model at the parameters updated by the normal batch, when one is given).
     anchor : dict
-        How the model was anchored to the normal batch (empty without one).
+        How the normal batch updated the model (empty without one).
     observations : tuple of Observation
     causes : tuple of Cause
         Ranked, highest likelihood share first.
@@ -341,10 +355,21 @@ class Diagnosis:
     impurities : tuple of ImpurityEstimate
         Candidate levels that would explain the excess 1/DPn (empty if no excess).
     excess_inv_DPn : float or None
-        1/DPn measured − 1/DPn expected [-] (from Mn).
+        The excess 1/DPn [-]: the unexplained-transfer fit over all observations
+        (``excess`` holds its interval and the value from Mn alone).
     safety : tuple of str
         Cautions (always present).
     notes, warnings : tuple of str
+    model : ModelUncertainty or None
+        Parameter uncertainties, their update by the normal batch, the expected values'
+        covariance.
+    findings : tuple of CheckLine
+        Instrument findings to fix (beside the chemistry).
+    excess : ExcessEstimate or None
+    curves : tuple of DistributionCurve
+        Measured and predicted distributions for the overlay plot.
+    fit_probability : float
+        χ² upper-tail probability of the top cause's fit [-] (goodness of fit).
     """
 
     label: str
@@ -360,6 +385,11 @@ class Diagnosis:
     safety: tuple[str, ...]
     notes: tuple[str, ...] = ()
     warnings: tuple[str, ...] = ()
+    model: ModelUncertainty | None = None
+    findings: tuple[CheckLine, ...] = ()
+    excess: ExcessEstimate | None = None
+    curves: tuple[DistributionCurve, ...] = ()
+    fit_probability: float = 1.0
 
     @property
     def top(self) -> Cause:
@@ -371,9 +401,11 @@ class Diagnosis:
         """``"clear"``, ``"no strong cause"`` or ``"ambiguous"`` (thresholds in the module doc)."""
         top = self.causes[0]
         none_share = next((c.share for c in self.causes if c.key == "none"), 0.0)
+        runner_up = self.causes[1].share if len(self.causes) > 1 else 0.0
         if top.key == "none":
             return "no strong cause"
-        if top.share >= _CLEAR_SHARE and none_share < _CLEAN_MAX_SHARE:
+        if (top.share >= _CLEAR_SHARE and none_share < _CLEAN_MAX_SHARE
+                and top.share >= _CLEAR_RATIO * runner_up and self.fit_probability >= _MIN_FIT_P):
             return "clear"
         if none_share >= _CLEAN_MAX_SHARE and top.share < _CLEAR_SHARE:
             return "no strong cause"
@@ -392,7 +424,7 @@ class Diagnosis:
         raise MethodError(f"no cause {key!r}; known: {', '.join(c.key for c in self.causes)}")
 
     def table(self) -> pd.DataFrame:
-        """Ranked causes with unit-named columns."""
+        """Ranked causes with unit-named columns, the fitted value and its plausibility."""
         rows = []
         for i, c in enumerate(self.causes, start=1):
             rows.append({
@@ -402,9 +434,14 @@ class Diagnosis:
                 "category": c.category,
                 "likelihood share [%]": c.share,
                 "chi2 [-]": c.chi2,
+                "plausibility penalty [-]": c.penalty,
                 "parameter": c.parameter,
                 "value": c.value,
+                "95 % interval low": c.interval[0],
+                "95 % interval high": c.interval[1],
                 "unit": c.unit,
+                "plausibility": c.plausibility,
+                "plausible range": c.prior,
                 "explanation": c.text,
                 "next step": c.next_step,
             })
@@ -426,28 +463,36 @@ class Diagnosis:
         ])
 
     def checks_table(self) -> pd.DataFrame:
-        """Measurement checks."""
+        """Measurement checks, then the instrument findings."""
         return pd.DataFrame([
             {"check": c.check, "status": c.status, "text": c.text, "action": c.action}
-            for c in self.checks
+            for c in (*self.checks, *self.findings)
         ])
 
     def impurities_table(self) -> pd.DataFrame:
-        """Candidate impurity levels."""
+        """Candidate impurity levels with their 95 % intervals."""
         cols = ["candidate", "C [-]", "[X] [mol/L]", "ratio [X]/[M] [ppm mol]",
-                "mass ratio X/monomer [ppm mass]", "source"]
+                "95 % interval low [ppm mol]", "95 % interval high [ppm mol]",
+                "mass ratio X/monomer [ppm mass]", "relation", "source"]
         return pd.DataFrame([i.row() for i in self.impurities], columns=cols)
+
+    def model_table(self) -> pd.DataFrame:
+        """Uncertain model inputs: prior σ and basis, update by the normal batch."""
+        return self.model.table() if self.model is not None else pd.DataFrame()
 
     def summary(self) -> dict[str, Any]:
         """JSON-safe dict of everything."""
         return {
             "label": self.label,
             "verdict": self.verdict,
+            "fit probability of the top cause [-]": self.fit_probability,
             "prediction": self.prediction.summary(),
             "expected": dict(self.expected),
             "measured": dict(self.measured),
             "anchor": dict(self.anchor),
             "excess 1/DPn [-]": self.excess_inv_DPn,
+            "excess": self.excess.summary() if self.excess is not None else None,
+            "model uncertainty": self.model.summary() if self.model is not None else None,
             "observations": [
                 {"name": o.name, "y": o.y, "sigma": o.sigma, "recorded": o.recorded,
                  "measured": o.measured, "expected": o.expected, "unit": o.unit}
@@ -455,12 +500,13 @@ class Diagnosis:
             ],
             "causes": [c.summary() for c in self.causes],
             "checks": [c.summary() for c in self.checks],
+            "instrument findings": [c.summary() for c in self.findings],
             "impurities": [i.row() for i in self.impurities],
+            "distributions": [c.summary() for c in self.curves],
             "safety": list(self.safety),
             "notes": list(self.notes),
             "warnings": list(self.warnings),
         }
-
 
 
 # --------------------------------------------------------------------------- steps
@@ -515,9 +561,18 @@ def _normal_batch(recipe: Recipe, reference: Recipe | NormalBatch | None) -> Nor
     return reference
 
 
+def _measured_distribution(meas: Measured) -> MeasuredDistribution | None:
+    """The distribution a [measured] section names (table, or export + method)."""
+    if meas.distribution is not None:
+        return read_distribution(meas.distribution)
+    if meas.chromatogram is not None and meas.method is not None:
+        return distribution_from_chromatogram(meas.chromatogram, meas.method)
+    return None
+
+
 @dataclass(frozen=True)
 class _BatchValues:
-    """This batch as measured: Mn, Mw on the absolute scale [g/mol], R_p [mol/L/s]."""
+    """A batch as measured: Mn, Mw on the absolute scale [g/mol], R_p [mol/L/s]."""
 
     Mn: float | None
     Mw: float | None
@@ -541,9 +596,13 @@ class _BatchValues:
 
 
 def _batch_values(
-    meas: Measured, p: KineticParameters, polymer: str, ref: ReferenceData
+    meas: Measured, p: KineticParameters, polymer: str, ref: ReferenceData,
+    dist: MeasuredDistribution | None = None,
 ) -> _BatchValues:
-    """Measured values on the absolute scale; R_p and induction from conversion if needed."""
+    """Measured values on the absolute scale; Mn/Mw from the distribution when the
+    recipe gives none; R_p and induction from conversion if needed."""
+    if dist is not None and not meas.has_molar_mass:
+        meas = replace(meas, Mn=dist.Mn, Mw=dist.Mw)
     Mn, Mw, fac = _absolute(meas, polymer, ref)
     Rp, Rp_rel_se, induction, note = meas.R_p, None, meas.induction_min, None
     if Rp is None and meas.conversion:
@@ -559,79 +618,38 @@ def _batch_values(
     return _BatchValues(Mn, Mw, fac, Rp, Rp_rel_se, induction, note)
 
 
-@dataclass(frozen=True)
-class _Anchor:
-    """The model anchored to the normal batch.
-
-    ``parameters``: this recipe's parameters with f × φ and the 1/DPn offset term;
-    ``has``: which of "R_p", "Mn", "Mw" the normal batch measured.
-    """
-
-    parameters: KineticParameters
-    Mw_factor: float
-    has: frozenset[str]
-    info: dict[str, Any]
-    note: str | None
+def _measurement_sigmas(u: Uncertainty, rp_rel_se: float | None) -> dict[str, float]:
+    """Relative σ of R_p, Mn, Mw: the recipe's, else the defaults; R_p from a conversion
+    fit uses its standard error (at least 5 %)."""
+    s = {k: (getattr(u, k) if getattr(u, k) is not None else DEFAULT_UNCERTAINTY[k]) / 100.0
+         for k in OBSERVABLES}
+    if u.R_p is None and rp_rel_se is not None and math.isfinite(rp_rel_se):
+        s["R_p"] = max(rp_rel_se, _RP_FIT_FLOOR)
+    return s
 
 
-def _offset_term(conc_M: float, offset: float) -> TransferTerm:
-    # a term C·[X]/[M] with [X] = [M] contributes exactly the offset
-    return TransferTerm("normal-batch offset", "offset", conc_M, offset, None, None, "anchor")
-
-
-def _anchor(
+def _normal_observations(
     recipe: Recipe, normal: NormalBatch | None, p: KineticParameters, polymer: str,
     ref: ReferenceData,
-) -> _Anchor:
-    """Scale f·k_d·[I] to the normal batch's R_p (φ), offset 1/DPn to its Mn, Mw to its Mw.
-
-    φ = (R_p,normal/R_p,model)²; offset = M0/Mn,normal − 1/DPn(model with φ);
-    Mw factor = Mw,normal/(DPn·M0·Đ_inst) of the anchored normal-batch model. The same
-    φ and offset are carried to this recipe.
-    """
+) -> tuple[KineticParameters | None, dict[str, tuple[float, float]], MeasuredDistribution | None,
+           str]:
+    """The normal batch: its parameters, ln of its measured R_p, Mn, Mw with σ, its
+    distribution and its label (nothing when there is no normal batch)."""
     if normal is None or normal.measured.is_empty:
-        return _Anchor(p, 1.0, frozenset(), {}, None)
+        return None, {}, None, ""
     nrec = normal.recipe if normal.recipe is not None else recipe
-    p_ref = resolve_parameters(nrec, ref) if normal.recipe is not None else p
-    nm = normal.measured
-    nMn, nMw, _ = _absolute(nm, polymer, ref)
-    nRp = nm.R_p
-    if nRp is None and nm.conversion:
-        nRp = rate_from_conversion(nm.time_min, nm.conversion, p_ref.conc_M).R_p
-    has: set[str] = set()
-    phi = 1.0
-    if nRp is not None:
-        phi = (nRp / evaluate(p_ref).R_p) ** 2
-        has.add("R_p")
-    p_ref_cal = replace(p_ref, f=p_ref.f * phi)
-    offset = 0.0
-    if nMn is not None:
-        offset = p_ref.M0 / nMn - evaluate(p_ref_cal).inv_DPn
-        has.add("Mn")
-    if offset:
-        p_ref_cal = replace(p_ref_cal, transfer=p_ref_cal.transfer + (
-            _offset_term(p_ref.conc_M, offset),))
-    Mw_factor = 1.0
-    if nMw is not None:
-        s_ref = evaluate(p_ref_cal)
-        Mw_factor = nMw / (s_ref.DPn * p_ref.M0 * s_ref.dispersity)
-        has.add("Mw")
-    transfer = p.transfer + ((_offset_term(p.conc_M, offset),) if offset else ())
-    info = {
-        "radical flux factor (f·k_d·[I]) [-]": phi,
-        "1/DPn offset [-]": offset,
-        "Mw factor [-]": Mw_factor,
-        "normal batch": nrec.label if normal.recipe is not None else "same recipe",
-    }
-    note = ("expected values anchored to the normal batch: radical flux × "
-            f"{phi:.4g}, 1/DPn offset {offset:+.4g}, Mw × {Mw_factor:.4g}")
-    return _Anchor(replace(p, f=p.f * phi, transfer=transfer), Mw_factor, frozenset(has),
-                   info, note)
+    pn = resolve_parameters(nrec, ref) if normal.recipe is not None else p
+    ndist = _measured_distribution(normal.measured)
+    v = _batch_values(normal.measured, pn, polymer, ref, ndist)
+    sig = _measurement_sigmas(nrec.uncertainty, v.R_p_rel_se)
+    obs = {k: (math.log(val), sig[k]) for k, val in (("R_p", v.R_p), ("Mn", v.Mn), ("Mw", v.Mw))
+           if val is not None}
+    return pn, obs, ndist, nrec.label if normal.recipe is not None else "same recipe"
 
 
 @dataclass(frozen=True)
 class _Expected:
-    """Expected R_p [mol/L/s], Mn, Mw [g/mol] and 1/DPn [-] of the anchored model."""
+    """Expected R_p [mol/L/s], Mn, Mw [g/mol] and 1/DPn [-] of the updated model."""
 
     R_p: float
     Mn: float
@@ -649,152 +667,206 @@ class _Expected:
         }
 
 
-def _expected(base: KineticState, M0: float, Mw_factor: float) -> _Expected:
+def _expected(base: KineticState, M0: float, ln_breadth: float) -> _Expected:
     return _Expected(R_p=base.R_p, Mn=base.DPn * M0,
-                     Mw=base.DPn * M0 * base.dispersity * Mw_factor, inv_DPn=base.inv_DPn)
+                     Mw=base.DPn * M0 * base.dispersity * math.exp(ln_breadth),
+                     inv_DPn=base.inv_DPn)
 
 
 def _value_observations(
-    u: Uncertainty, v: _BatchValues, e: _Expected, anchored: frozenset[str]
+    u: Uncertainty, v: _BatchValues, e: _Expected
 ) -> dict[str, Observation]:
-    """y = ln(measured/expected) of R_p, Mn, Mw with σ (see ``DEFAULT_UNCERTAINTY``).
-
-    σ = (σ_meas²·(2 if the normal batch measured it) + σ_model²)^½, σ_model 0 when
-    anchored; an un-anchored Mw adds the dispersity-model σ (0.15).
-    """
-    sMn = (u.Mn if u.Mn is not None else DEFAULT_UNCERTAINTY["Mn"]) / 100.0
-    sMw = (u.Mw if u.Mw is not None else DEFAULT_UNCERTAINTY["Mw"]) / 100.0
-    sRp = (u.R_p if u.R_p is not None else DEFAULT_UNCERTAINTY["R_p"]) / 100.0
-    if u.R_p is None and v.R_p_rel_se is not None and math.isfinite(v.R_p_rel_se):
-        sRp = max(v.R_p_rel_se, 0.05)
-
-    def model_sigma(is_anchored: bool) -> float:
-        if u.model is not None:
-            return u.model / 100.0
-        return 0.0 if is_anchored else DEFAULT_UNCERTAINTY["model"] / 100.0
-
-    def sigma(s_meas: float, name: str) -> float:
-        return math.hypot(s_meas * (math.sqrt(2) if name in anchored else 1.0),
-                          model_sigma(name in anchored))
-
+    """y = ln(measured/expected) of R_p, Mn, Mw with the measurement σ (and the recipe's
+    flat ``model [%]`` when given; the model's own uncertainty is a covariance)."""
+    sig = _measurement_sigmas(u, v.R_p_rel_se)
+    flat = (u.model or 0.0) / 100.0
     obs: dict[str, Observation] = {}
-    if v.R_p is not None:
-        obs["R_p"] = Observation("R_p", math.log(v.R_p / e.R_p), sigma(sRp, "R_p"), True,
-                                 v.R_p, e.R_p, "mol/L/s")
-    if v.Mn is not None:
-        obs["Mn"] = Observation("Mn", math.log(v.Mn / e.Mn), sigma(sMn, "Mn"), True, v.Mn, e.Mn,
-                                "g/mol")
-    if v.Mw is not None:
-        if "Mw" in anchored:
-            s = math.hypot(sMw * math.sqrt(2), model_sigma(True))
-        else:
-            s = math.sqrt(sMw**2 + model_sigma(False) ** 2 + _SIGMA_DISPERSITY_MODEL**2)
-        obs["Mw"] = Observation("Mw", math.log(v.Mw / e.Mw), s, True, v.Mw, e.Mw, "g/mol")
+    for name, m, x, unit in (("R_p", v.R_p, e.R_p, "mol/L/s"), ("Mn", v.Mn, e.Mn, "g/mol"),
+                             ("Mw", v.Mw, e.Mw, "g/mol")):
+        if m is not None:
+            obs[name] = Observation(name, math.log(m / x), math.hypot(sig[name], flat), True,
+                                    m, x, unit)
     return obs
 
 
+def _shape_observations(
+    dist: MeasuredDistribution | None, normal: MeasuredDistribution | None, model: AnchoredModel
+) -> dict[str, Observation]:
+    """Low-M tail and high-M shoulder: measured − expected mass fraction [-]; expected is
+    the normal batch's distribution, else the model's."""
+    if dist is None:
+        return {}
+    t = dist.tails
+    e: Tails = normal.tails if normal is not None else model.base_tails
+    unit = "mass fraction"
+    return {
+        "low-M tail": Observation("low-M tail", t.low - e.low, SIGMA_LOW_TAIL, True, t.low,
+                                  e.low, unit),
+        "high-M shoulder": Observation("high-M shoulder", t.high - e.high, SIGMA_HIGH_SHOULDER,
+                                       True, t.high, e.high, unit),
+    }
+
+
+def _checks_from_distribution(checks: Checks, dist: MeasuredDistribution | None) -> Checks:
+    """Checks a processed export adds when the recipe does not give them."""
+    if dist is None:
+        return checks
+    new: dict[str, Any] = {}
+    if checks.Mn_shift_low_limit is None and dist.Mn_shift_low_limit is not None:
+        new["Mn_shift_low_limit"] = dist.Mn_shift_low_limit
+    if checks.outside_calibration is None and dist.outside_calibration is not None:
+        new["outside_calibration"] = dist.outside_calibration
+    if (checks.flow_marker_observed is None and dist.marker_observed is not None
+            and dist.flow_factor is not None):
+        new.update(flow_marker_observed=dist.marker_observed,
+                   flow_marker_reference=dist.marker_observed * dist.flow_factor,
+                   flow_marker_corrected=True)
+    return replace(checks, **new) if new else checks
+
+
+def _anchor_info(mu: ModelUncertainty, label: str) -> dict[str, Any]:
+    if not mu.anchored:
+        return {}
+    info: dict[str, Any] = {"normal batch": label, "updated with": ", ".join(mu.anchored)}
+    for n in mu.nuisances:
+        if n.shared:
+            info[f"{n.name} factor [-]" if n.log else f"{n.name} shift [-]"] = mu.factor(n.name)
+    return info
+
+
 def _excess(
-    M0: float, v: _BatchValues, e: _Expected, fits: list[HypothesisFit]
-) -> float | None:
-    """1/DPn measured − expected [-]: from Mn, else the transfer fit when Mw was measured."""
-    if v.Mn is not None:
-        return M0 / v.Mn - e.inv_DPn
-    if v.Mw is None:
+    M0: float, v: _BatchValues, e: _Expected, fits: list[HypothesisFit],
+    final_conversion: float | None,
+) -> ExcessEstimate | None:
+    """The transfer fit's excess 1/DPn with its interval, and the value from Mn alone."""
+    if v.Mn is None and v.Mw is None:
         return None
-    return next(f.value for f in fits if f.hypothesis.key == "transfer")
-
-
-def _impurity_candidates(
-    recipe: Recipe, ref: ReferenceData, p: KineticParameters
-) -> list[tuple[str, float, float | None, str]]:
-    """(name, C [-], M [g/mol], source): the recipe's candidates, then the table's agents."""
-    cands: list[tuple[str, float, float | None, str]] = []
-    for c in recipe.candidates:
-        if c.C is not None:
-            M = c.M
-            if M is None:
-                try:
-                    M = ref.agent(c.name, p.monomer).M
-                except MethodError:
-                    M = None
-            cands.append((c.name, c.C, M, "recipe"))
-        else:
-            try:
-                a = ref.agent(c.name, p.monomer)
-            except MethodError as exc:
-                raise MethodError(exc.message, key="candidate.name", path=recipe.path) from None
-            cands.append((a.agent, a.C(p.T), c.M if c.M is not None else a.M, a.source))
-    try:
-        table_agents = ref.agents_for(p.monomer)
-    except MethodError:  # monomer not in the tables
-        table_agents = []
-    for a in sorted(table_agents, key=lambda a: -a.C(p.T)):
-        cands.append((a.agent, a.C(p.T), a.M, a.source))
-    return cands
-
-
-def _impurity_estimates(
-    recipe: Recipe, ref: ReferenceData, p: KineticParameters, excess: float | None
-) -> tuple[ImpurityEstimate, ...]:
-    """Level of each candidate that would explain ``excess`` (none when there is no excess)."""
-    if not (excess is not None and excess > 0):
-        return ()
-    impurities: list[ImpurityEstimate] = []
-    seen = set()
-    n_recipe = len(recipe.candidates)
-    for j, (name, C, M, src) in enumerate(_impurity_candidates(recipe, ref, p)):
-        if name.lower() in seen or C <= 0:
-            continue
-        # table candidates needing more than 1 mol % of the monomer are not a hidden
-        # impurity (common practice); candidates named in the recipe are always shown
-        ratio = float(impurity_ratio(excess, C))  # [X]/[M], instantaneous
-        if j >= n_recipe and 1e6 * ratio > _MAX_IMPURITY_PPM:
-            continue
-        seen.add(name.lower())
-        ppm = 1e6 * ratio
-        impurities.append(ImpurityEstimate(
-            name=name, C=C, concentration=ratio * p.conc_M, ppm_mol=ppm,
-            ppm_mass=ppm * M / p.M0 if M else None, source=src,
-        ))
-    return tuple(impurities)
+    f = next(f for f in fits if f.hypothesis.key == "transfer")
+    from_Mn = M0 / v.Mn - e.inv_DPn if v.Mn is not None else None
+    return ExcessEstimate(f.value, f.interval[0], f.interval[1], from_Mn, final_conversion)
 
 
 def _ranked_causes(
     fits: list[HypothesisFit], shares: np.ndarray, ev: Evidence
 ) -> tuple[Cause, ...]:
-    """One Cause per fit with its explanation, highest share first (then lowest χ²)."""
+    """One Cause per fit with its explanation, highest share first (then lowest score)."""
     causes = []
     for f, share in zip(fits, shares, strict=True):
         h = f.hypothesis
         x = h.explain(f.value, ev)
+        pr = h.prior_range
         causes.append(Cause(
             key=h.key, title=h.title, category=h.category, share=float(share), chi2=f.chi2,
             parameter=h.parameter, value=f.value, unit=h.unit, text=x.text,
             numbers=x.numbers, next_step=x.next_step, residuals=f.residuals,
+            penalty=f.penalty, plausible=h.plausible(f.theta, ev.model),
+            prior=pr.describe() if pr is not None else "", interval=f.interval,
         ))
-    causes.sort(key=lambda c: (-c.share, c.chi2))
+    causes.sort(key=lambda c: (-c.share, c.chi2 + c.penalty))
     return tuple(causes)
 
 
-def _closing_notes(obs: Mapping[str, Observation], causes: tuple[Cause, ...]) -> list[str]:
-    """Notes on what cannot be told apart and on a poor fit of the best single cause."""
-    notes = []
+def _curves(
+    dist: MeasuredDistribution | None, model: AnchoredModel, fits: list[HypothesisFit],
+    shares: np.ndarray, M0: float,
+) -> tuple[DistributionCurve, ...]:
+    """Measured, expected and the leading causes' distributions on one M grid."""
+    base = model.base
+    Mw = base.DPn * M0 * base.dispersity
+    M = np.logspace(math.log10(Mw / 300.0), math.log10(Mw * 20.0), 400)
+    out: list[DistributionCurve] = []
+    if dist is not None:
+        out.append(DistributionCurve("measured", "measured", dist.M, dist.dwdlogM))
+    f_base = base.distribution(M0)
+    out.append(DistributionCurve("expected from the recipe", "expected", M, f_base(M)))
+    order = np.argsort(-shares)
+    n = 0
+    for i in order:
+        f = fits[int(i)]
+        h = f.hypothesis
+        if h.key == "none" or n >= _CURVES:
+            continue
+        pert = h.perturbation(f.theta, model)
+        if pert is not None:
+            w = model.state(**pert).distribution(M0)(M)
+        else:
+            w = f_base(M / math.exp(h.molar_mass_shift(f.theta, model)))
+        out.append(DistributionCurve(f"{h.title} ({shares[int(i)]:.3g} %)", "cause", M, w))
+        n += 1
+    return tuple(out)
+
+
+def _separation_note(
+    fits: list[HypothesisFit], shares: np.ndarray, model: AnchoredModel,
+    obs: Mapping[str, Observation],
+) -> str | None:
+    """What would tell the two leading causes apart, when the verdict is not clear.
+
+    Their predictions at the fitted values differ most, relative to what is measured, in
+    one of R_p, Mn, Mw: the note names it and the precision that would separate them at
+    three standard uncertainties.
+    """
+    order = [int(i) for i in np.argsort(-shares)]
+    a, b = (fits[i] for i in order[:2])
+    if "none" in (a.hypothesis.key, b.hypothesis.key):
+        return None
+    mu_a = a.hypothesis.predict(a.theta, model)
+    mu_b = b.hypothesis.predict(b.theta, model)
+    best = None
+    for name in OBSERVABLES:
+        d = abs(mu_a.get(name, 0.0) - mu_b.get(name, 0.0))
+        sig = obs[name].sigma if name in obs else math.inf
+        if d > 0 and (best is None or d / sig > best[1] / best[2]):
+            best = (name, d, sig)
+    if best is None:
+        return None
+    name, d, sig = best
+    how = ("it was not measured" if not math.isfinite(sig)
+           else f"measured to ±{100 * sig:.2g} %")
+    return (f"{a.hypothesis.title} and {b.hypothesis.title} differ most in {name}, by "
+            f"{100 * (math.exp(d) - 1):.2g} % ({how}); measuring {name} to ±"
+            f"{100 * (math.exp(d / 3) - 1):.2g} % would tell them apart")
+
+
+def _top_fit(obs: Mapping[str, Observation], top: Cause) -> tuple[float, int]:
+    """χ² upper-tail probability of the best cause and its degrees of freedom."""
+    h = hypothesis(top.key)
+    n_obs = len(obs) - sum(1 for f in h.free if f in obs)
+    return fit_probability(top.chi2, n_obs, h.k)
+
+
+def _closing_notes(
+    obs: Mapping[str, Observation], causes: tuple[Cause, ...], mu: ModelUncertainty
+) -> list[str]:
+    """Notes on what cannot be told apart, on a poor or implausible best cause, and on
+    how uncertain the expected values are."""
+    notes = list(mu.notes)
     if "R_p" not in obs and any(k in obs for k in ("Mn", "Mw")):
         notes.append(
             "R_p not measured: unexplained transfer, extra initiator and a temperature "
             "overshoot lower Mn alike and cannot be told apart; measure conversion against "
             "time (the rate goes up with initiator or heat, not with transfer)"
         )
+    if not mu.anchored and "Mn" in obs and mu.sigma("Mn") > 0.08:
+        notes.append(
+            f"without a normal batch the expected Mn is uncertain by ±{100 * mu.sigma('Mn'):.2g} % "
+            f"and R_p by ±{100 * mu.sigma('R_p'):.2g} % (the tabulated parameters' "
+            "uncertainties, see the model table): smaller effects cannot be told from 'no "
+            "cause'; give a normal batch or the recipe's measured parameters"
+        )
     top = causes[0]
-    h = hypothesis(top.key)
-    # goodness of fit of the best single cause: chi-square with (observations - k) dof
-    n_obs = len(obs) - sum(1 for f in h.free if f in obs)
-    fit_p, dof = fit_probability(top.chi2, n_obs, h.k)
+    fit_p, dof = _top_fit(obs, top)
     if fit_p < 0.01:
         notes.append(
             f"no single cause explains all numbers well (best χ² = {top.chi2:.3g} for {dof} "
             f"degrees of freedom, p = {fit_p:.2g}): two causes may act together, or an "
             "input value is off; check the residuals"
+        )
+    if not top.plausible:
+        notes.append(
+            f"the best cause needs {top.parameter} = {top.value:.3g} {top.unit}, outside its "
+            f"plausible range ({top.prior}): look for a reason, or for two causes acting "
+            "together"
         )
     return notes
 
@@ -816,19 +888,65 @@ def _safety(p: KineticParameters, causes: tuple[Cause, ...]) -> tuple[str, ...]:
 # --------------------------------------------------------------------------- main entry
 
 
+@dataclass(frozen=True)
+class _Setup:
+    """The model and the observations of one diagnosis (step 1 and 2)."""
+
+    prediction: Prediction
+    model: AnchoredModel
+    uncertainty: ModelUncertainty
+    values: _BatchValues
+    expected: _Expected
+    observations: dict[str, Observation]
+    checks: Any
+    distribution: MeasuredDistribution | None
+    normal_label: str
+    notes: list[str]
+
+
+def _setup(
+    recipe: Recipe, meas: Measured, normal: NormalBatch | None, ref: ReferenceData,
+    distribution: MeasuredDistribution | None,
+) -> _Setup:
+    """Predict, update the model by the normal batch, and collect the observations."""
+    pred = predict(recipe, ref)
+    p = pred.parameters
+    polymer = _polymer(p, ref)
+    dist = distribution if distribution is not None else _measured_distribution(meas)
+    values = _batch_values(meas, p, polymer, ref, dist)
+    pn, nobs, ndist, nlabel = _normal_observations(recipe, normal, p, polymer, ref)
+    mu = model_uncertainty(recipe, p, ref, normal_parameters=pn, normal_observations=nobs)
+    base = evaluate(mu.parameters)
+    checks_in = _checks_from_distribution(recipe.checks, dist)
+    model = AnchoredModel(mu.parameters, base, flow_sensitivity(checks_in),
+                          covariance_names=OBSERVABLES, covariance=mu.covariance,
+                          shape=dist is not None)
+    expected = _expected(base, p.M0, mu.ln_breadth)
+    obs = _value_observations(recipe.uncertainty, values, expected)
+    obs.update(_shape_observations(dist, ndist, model))
+    checks = run_checks(CheckInputs(checks_in, meas.scale, values.scale_factor, polymer,
+                                    values.induction))
+    obs.update(checks.observations)
+    notes = [*pred.notes, *(n for n in (values.note,) if n)]
+    if not any(k in obs for k in ("Mn", "Mw")):
+        notes.append("no Mn or Mw measured: only the rate can be compared")
+    return _Setup(pred, model, mu, values, expected, obs, checks, dist, nlabel, notes)
+
+
 def diagnose(
     recipe: Recipe,
     measured: Measured | None = None,
     reference: Recipe | NormalBatch | None = None,
     *,
     ref: ReferenceData | None = None,
+    distribution: MeasuredDistribution | None = None,
 ) -> Diagnosis:
     """Compare measured with predicted and rank the causes of a low molar mass.
 
     Parameters
     ----------
     recipe : Recipe
-        The batch in question (its ``measured`` and ``checks`` are used).
+        The batch in question (its ``measured``, ``checks`` and ``uncertainty`` are used).
     measured : Measured, optional
         Replaces ``recipe.measured``.
     reference : Recipe or NormalBatch, optional
@@ -836,6 +954,8 @@ def diagnose(
         ``recipe.normal_batch``.
     ref : ReferenceData, optional
         Reference tables (default: the recipe's).
+    distribution : MeasuredDistribution, optional
+        This batch's measured distribution (default: the one ``[measured]`` names).
 
     Returns
     -------
@@ -844,7 +964,7 @@ def diagnose(
     Raises
     ------
     DataError
-        Nothing measured (no Mn, Mw, R_p or conversion).
+        Nothing measured (no Mn, Mw, R_p, conversion or distribution).
 
     References
     ----------
@@ -852,203 +972,47 @@ def diagnose(
     """
     ref = ref if ref is not None else recipe.reference_data()
     meas = measured if measured is not None else recipe.measured
-    normal = _normal_batch(recipe, reference)
-    if meas.is_empty:
+    if meas.is_empty and distribution is None:
         raise DataError(
             "nothing measured to compare: give [measured] 'Mn [g/mol]' and/or 'Mw [g/mol]', "
-            "'R_p [mol/L/s]' or conversion against time",
+            "'R_p [mol/L/s]', conversion against time, or a distribution",
             key="measured",
             path=recipe.path,
         )
-    pred = predict(recipe, ref)
-    p = pred.parameters
-    polymer = _polymer(p, ref)
-    # 1. measured and expected values, the model anchored to the normal batch
-    values = _batch_values(meas, p, polymer, ref)
-    anchor = _anchor(recipe, normal, p, polymer, ref)
-    notes = [*pred.notes, *(n for n in (values.note, anchor.note) if n)]
-    base = evaluate(anchor.parameters)
-    model = AnchoredModel(anchor.parameters, base, flow_sensitivity(recipe.checks))
-    expected = _expected(base, p.M0, anchor.Mw_factor)
-    # 2. observations: measured values, then the registered measurement checks
-    obs = _value_observations(recipe.uncertainty, values, expected, anchor.has)
-    if not any(k in obs for k in ("Mn", "Mw")):
-        notes.append("no Mn or Mw measured: only the rate can be compared")
-    checks = run_checks(CheckInputs(recipe.checks, meas.scale, values.scale_factor, polymer,
-                                    values.induction))
-    obs.update(checks.observations)
-    # 3. fit and score every registered hypothesis that applies
+    st = _setup(recipe, meas, _normal_batch(recipe, reference), ref, distribution)
+    p, model, obs = st.prediction.parameters, st.model, st.observations
+    notes = list(st.notes)
     notes.extend(h.skipped_note for h in HYPOTHESES if not h.applies(p))
     fits = [fit_hypothesis(h, model, obs) for h in HYPOTHESES if h.applies(p)]
-    shares = akaike_shares([f.chi2 for f in fits], [f.hypothesis.k for f in fits])
-    # 4. the excess 1/DPn as impurity levels, explanations, ranking
-    excess = _excess(p.M0, values, expected, fits)
-    impurities = _impurity_estimates(recipe, ref, p, excess)
+    shares = akaike_shares([f.score for f in fits], [f.hypothesis.k for f in fits])
+    excess = _excess(p.M0, st.values, st.expected, fits, meas.final_conversion)
+    impurities = impurity_estimates(recipe, ref, p, excess) if excess is not None else ()
+    v, e = st.values, st.expected
     evidence = Evidence(
         parameters=p, model=model,
-        rp_ratio=values.R_p / expected.R_p if values.R_p is not None else None,
-        mn_ratio=values.Mn / expected.Mn if values.Mn is not None else None,
-        mw_ratio=values.Mw / expected.Mw if values.Mw is not None else None,
-        excess=excess, impurities=impurities, induction=values.induction,
-        Mn_shift_low_limit=recipe.checks.Mn_shift_low_limit,
+        rp_ratio=v.R_p / e.R_p if v.R_p is not None else None,
+        mn_ratio=v.Mn / e.Mn if v.Mn is not None else None,
+        mw_ratio=v.Mw / e.Mw if v.Mw is not None else None,
+        excess=excess.from_Mn if excess is not None else None, impurities=impurities,
+        induction=v.induction, Mn_shift_low_limit=recipe.checks.Mn_shift_low_limit,
+        excess_interval=(excess.low, excess.high) if excess is not None else (math.nan,) * 2,
+        relation=excess.relation.split(":")[0] if excess is not None else "",
     )
     causes = _ranked_causes(fits, shares, evidence)
-    notes.extend(_closing_notes(obs, causes))
-    return Diagnosis(
-        label=recipe.label,
-        prediction=pred,
-        expected=expected.table(),
-        measured=values.table(p.M0),
-        anchor=anchor.info,
-        observations=tuple(obs.values()),
-        causes=causes,
-        checks=checks.lines,
-        impurities=impurities,
-        excess_inv_DPn=excess,
-        safety=_safety(p, causes),
-        notes=tuple(dict.fromkeys(notes)),
-        warnings=tuple(dict.fromkeys([*pred.warnings, *checks.warnings])),
+    notes.extend(_closing_notes(obs, causes, st.uncertainty))
+    diagnosis = Diagnosis(
+        label=recipe.label, prediction=st.prediction, expected=e.table(),
+        measured=v.table(p.M0), anchor=_anchor_info(st.uncertainty, st.normal_label),
+        observations=tuple(obs.values()), causes=causes, checks=st.checks.lines,
+        impurities=impurities, excess_inv_DPn=excess.value if excess is not None else None,
+        safety=_safety(p, causes), notes=tuple(dict.fromkeys(notes)),
+        warnings=tuple(dict.fromkeys([*st.prediction.warnings, *st.checks.warnings])),
+        model=st.uncertainty, findings=st.checks.findings, excess=excess,
+        curves=_curves(st.distribution, model, fits, shares, p.M0),
+        fit_probability=_top_fit(obs, causes[0])[0],
     )
-
-
-# --------------------------------------------------------------------------- file entry
-
-
-def measured_from_results(
-    path: str | Path, *, sample_id: str | None = None
-) -> tuple[Measured, dict[str, Any]]:
-    """Measured values and checks from a batch results table (results.csv/.xlsx).
-
-    Parameters
-    ----------
-    path : path
-        A table with the batch results columns (``sample_id``, ``Mn [g/mol]``,
-        ``Mw [g/mol]``, ``molar-mass scale``, ``outside calibration [% mass]``,
-        ``flow marker [mL]``, ``Mn shift, low-M limit -0.2 mL [%]``, ``role``,
-        ``assigned Mw [g/mol]``...).
-    sample_id : str, optional
-        Which sample; required when the table holds more than one sample. Replicate
-        rows are averaged.
-
-    Returns
-    -------
-    (Measured, dict)
-        The measured values, and check values to merge into the recipe's ``[checks]``
-        (``check_standard_deviation`` from check-standard rows with an assigned Mw,
-        ``outside_calibration``, ``Mn_shift_low_limit``, ``flow_marker_observed`` with
-        ``flow_marker_corrected = True`` since the batch applies the marker).
-    """
-    from gpctools.io import read_sheet
-
-    df = read_sheet(path)
-    if "sample_id" not in df.columns or "Mn [g/mol]" not in df.columns:
-        raise InputFormatError(
-            "not a results table: needs 'sample_id' and 'Mn [g/mol]' columns", path=path,
-            column="sample_id" if "sample_id" not in df.columns else "Mn [g/mol]",
-        )
-    role = df["role"].astype(str).str.strip().str.lower() if "role" in df.columns else None
-    status = df["status"].astype(str).str.strip().str.lower() if "status" in df.columns else None
-    samples = df
-    if role is not None:
-        samples = df[role.isin(["sample", "", "nan", "replicate"])]
-    if status is not None:
-        samples = samples[status.loc[samples.index] == "ok"]
-    ids = samples["sample_id"].astype(str).str.strip()
-    if sample_id is None:
-        uniq = list(dict.fromkeys(ids))
-        if len(uniq) != 1:
-            raise InputFormatError(
-                f"the results table holds {len(uniq)} samples ({', '.join(uniq[:6])}"
-                f"{', ...' if len(uniq) > 6 else ''}); choose one (CLI: --sample ID; "
-                "Python: sample_id=...)", path=path, column="sample_id",
-            )
-        sample_id = uniq[0]
-    rows = samples[ids == str(sample_id)]
-    if rows.empty:
-        raise InputFormatError(f"sample {sample_id!r} not found (or not ok)", path=path,
-                               column="sample_id")
-
-    def mean(col: str) -> float | None:
-        if col not in rows.columns:
-            return None
-        v = pd.to_numeric(rows[col], errors="coerce").dropna()
-        return float(v.mean()) if len(v) else None
-
-    scale = "absolute"
-    if "molar-mass scale" in rows.columns:
-        text = str(rows["molar-mass scale"].iloc[0])
-        s = normalize_scale(text)
-        if s is None:
-            # never assume absolute: a standard-equivalent Mn taken as absolute is the
-            # classic way to mis-diagnose a batch
-            raise InputFormatError(
-                f"molar-mass scale {text!r} is not recognised; write 'absolute ...' or "
-                "'relative to <standard polymer>' (as gpctools batch does)",
-                path=path, column="molar-mass scale")
-        scale = s
-    meas = Measured(Mn=mean("Mn [g/mol]"), Mw=mean("Mw [g/mol]"), scale=scale)
-    checks: dict[str, Any] = {}
-    oc = mean("outside calibration [% mass]")
-    if oc is not None:
-        checks["outside_calibration"] = oc
-    sh = mean(columns.find(rows.columns, columns.MN_SHIFT_LOW_M))  # also the old header
-    if sh is not None:
-        checks["Mn_shift_low_limit"] = sh
-    fm = mean("flow marker [mL]")
-    if fm is not None:
-        checks["flow_marker_observed"] = fm
-        checks["flow_marker_corrected"] = True
-    if role is not None and "assigned Mw [g/mol]" in df.columns:
-        cs = df[role == "check_standard"]
-        if status is not None:
-            cs = cs[status.loc[cs.index] == "ok"]
-        a = pd.to_numeric(cs["assigned Mw [g/mol]"], errors="coerce")
-        m = pd.to_numeric(cs["Mw [g/mol]"], errors="coerce")
-        ok = a.notna() & m.notna() & (a > 0)
-        if ok.any():
-            checks["check_standard_deviation"] = float((100.0 * (m[ok] / a[ok] - 1.0)).mean())
-    return meas, checks
-
-
-def diagnose_recipe(
-    recipe_path: str | Path,
-    *,
-    measured_path: str | Path | None = None,
-    sample_id: str | None = None,
-) -> Diagnosis:
-    """Load a recipe (and optionally a results table) and diagnose it (the CLI entry).
-
-    Nothing is written; :func:`gpctools.report.write_diagnosis` writes the report and
-    tables.
-
-    Parameters
-    ----------
-    recipe_path : path
-        Recipe TOML (see ``templates/recipe.toml``).
-    measured_path : path, optional
-        A batch results table; its Mn/Mw (and checks it records) replace the recipe's
-        ``[measured]`` molar masses, recipe values filling what the table lacks.
-    sample_id : str, optional
-        Sample to take from ``measured_path``.
-
-    Returns
-    -------
-    Diagnosis
-    """
-    recipe = load_recipe(recipe_path)
-    if measured_path is not None:
-        meas_file, chk = measured_from_results(measured_path, sample_id=sample_id)
-        m = recipe.measured
-        measured = replace(
-            m,
-            Mn=meas_file.Mn if meas_file.Mn is not None else m.Mn,
-            Mw=meas_file.Mw if meas_file.Mw is not None else m.Mw,
-            scale=meas_file.scale if meas_file.has_molar_mass else m.scale,
-        )
-        old = recipe.checks
-        new_checks = {k: v for k, v in chk.items() if getattr(old, k) in (None, False)}
-        if "flow_marker_observed" in new_checks and old.flow_marker_reference is None:
-            new_checks.pop("flow_marker_observed")
-            new_checks.pop("flow_marker_corrected", None)
-        recipe = replace(recipe, measured=measured, checks=replace(old, **new_checks))
-    return diagnose(recipe)
+    if diagnosis.verdict != "clear":
+        sep = _separation_note(fits, shares, model, obs)
+        if sep:
+            diagnosis = replace(diagnosis, notes=(*diagnosis.notes, sep))
+    return diagnosis

@@ -1,10 +1,12 @@
 """The causes of a low molar mass the diagnosis weighs, one small class each.
 
 Every hypothesis declares its key, title, category, its one fitted parameter θ with the
-reported value and unit, its model μ(θ) of the observations, and its explanation. The
-kinetic causes perturb the anchored steady-state model
-(:func:`gpctools.kinetics.predict.evaluate`) and predict y = ln(perturbed/base) for R_p,
-Mn and Mw; the measurement causes shift the averages directly.
+reported value and unit, its model μ(θ) of the observations, its plausible range from
+practice, and its explanation. The kinetic causes perturb the steady-state model at the
+expected parameters (:func:`gpctools.kinetics.predict.evaluate`, through
+:meth:`Hypothesis.perturbation`) and predict y = ln(perturbed/base) for R_p, Mn and Mw,
+and the change of the distribution's tails; the measurement causes shift the averages
+directly.
 
 ============================  ===============================  ===============================
 cause                         θ (grid) -> reported value       model of the observations
@@ -13,23 +15,26 @@ no cause                      none (k = 0)                     every y = 0
 unexplained transfer          r = DPn/DPn_base in [0.02, 1]    Δ(1/DPn) = (1/DPn)·(1/r − 1);
                               -> Δ(1/DPn) [-]                  R_p unchanged
 excess initiation             ln F in [0, ln 1000] -> F [-]    f·k_d·[I] × F: R_p ∝ F^½
-temperature overshoot         ΔT in [0, 80] K                  k_p, k_d by Arrhenius, k_t fixed
-inhibition / retardation      h = [R•]/[R•]_base in [0.02, 1]  ζ = 2k_t[R•]_base(1 − h²)/h;
-                              -> ζ = k_z[Z] [1/s]              induction period free
+temperature overshoot         ΔT in [0, 80] K                  k_p, k_d, k_t by Arrhenius
+inhibition / retardation      h = [R•]/[R•]_base in [0.02, 1]  ζ = 2k_t[R•]_base(1 − h²)/h
+                              -> ζ = k_z[Z] [1/s]              (+ ζ₀(1 − h)/h); induction
+                                                               period free
 dilution / monomer loss       g in [0.02, 1]                   [M] × g
 flow-rate error               ε in [−0.1, 0.1]                 Mn, Mw, check standard:
                                                                −ln10·B·V·ε; flow marker: ε
 calibration drift             s in [−2, 2]                     Mn, Mw, check standard: s
-integration-limit artefact    t in [−2, 0]                     Mn: t; limit checks free
+integration-limit artefact    t in [−2, 0]                     Mn: t; limit check −t/2 ±
+                                                               |t|/2; low-M tail free
 ============================  ===============================  ===============================
 
-The retarder steady state 2k_t[R•]² + ζ[R•] = R_i holds with [R•] = h·[R•]_base for the ζ
-above (R_i = 2k_t[R•]_base²), so R_p falls exactly by h [derived].
+The retarder steady state 2k_t[R•]² + (ζ₀ + ζ)[R•] = R_i holds with [R•] = h·[R•]_base for
+the ζ above (R_i = 2k_t[R•]_base² + ζ₀[R•]_base, ζ₀ from charged inhibitors), so R_p falls
+exactly by h [derived].
 
 The registry is the explicit tuple :data:`HYPOTHESES` (its order is the order of the
-causes before ranking and breaks ties). Each class has ``prior_range``, the place for a
-plausibility range of its fitted value; it is None for every cause now (no prior: every
-value on the grid is equally plausible), which is how the scoring has always worked.
+causes before ranking and breaks ties). Each class but "no cause" has a ``prior_range``
+(:class:`PriorRange`, with its basis; docs/science.md, section 9.5): the fit minimises
+χ² plus the penalty for a value outside it (:mod:`gpctools.kinetics.scoring`).
 
 References
 ----------
@@ -50,11 +55,13 @@ from typing import ClassVar, Protocol
 import numpy as np
 
 from gpctools.kinetics.checks import FlowSensitivity
+from gpctools.kinetics.evidence import Tails, model_tails
 from gpctools.kinetics.predict import KineticParameters, KineticState, evaluate
 from gpctools.refdata import R_GAS
 
 __all__ = [
     "AnchoredModel",
+    "PriorRange",
     "Evidence",
     "Explanation",
     "Hypothesis",
@@ -73,16 +80,26 @@ class AnchoredModel:
     Attributes
     ----------
     parameters : KineticParameters
-        Parameters after anchoring to the normal batch (flux factor, 1/DPn offset).
+        Parameters at the posterior mode (updated by the normal batch, when given).
     base : KineticState
         ``evaluate(parameters)``: the expected state of this batch.
     flow : FlowSensitivity
         B·V and its uncertainty, for the flow-rate cause.
+    covariance_names, covariance : tuple of str, ndarray or None
+        Covariance of the expected observations named (``R_p``, ``Mn``, ``Mw``) from the
+        parameter uncertainties [-] (:mod:`gpctools.kinetics.uncertainty`); None: none.
+    shape : bool
+        Also predict the change of the distribution's low-M tail and high-M shoulder
+        (mass fractions, :mod:`gpctools.kinetics.evidence`) when a distribution was
+        measured.
     """
 
     parameters: KineticParameters
     base: KineticState
     flow: FlowSensitivity
+    covariance_names: tuple[str, ...] = ()
+    covariance: np.ndarray | None = field(default=None, compare=False)
+    shape: bool = False
     _cache: dict[tuple[tuple[str, float], ...], KineticState] = field(
         default_factory=dict, compare=False, repr=False)
 
@@ -104,11 +121,21 @@ class AnchoredModel:
         """y = ln(perturbed/base) of R_p, Mn and Mw [-] for a perturbation of ``evaluate``."""
         s = self.state(**perturbation)
         base = self.base
-        return {
+        out = {
             "R_p": math.log(s.R_p / base.R_p),
             "Mn": math.log(s.DPn / base.DPn),
             "Mw": math.log(s.DPn * s.dispersity / (base.DPn * base.dispersity)),
         }
+        if self.shape:
+            t, t0 = model_tails(s.tau, s.beta), self.base_tails
+            out["low-M tail"] = t.low - t0.low
+            out["high-M shoulder"] = t.high - t0.high
+        return out
+
+    @property
+    def base_tails(self) -> Tails:
+        """Tails of the expected (base) instantaneous distribution."""
+        return model_tails(self.base.tau, self.base.beta)
 
 
 class CandidateLevel(Protocol):
@@ -143,6 +170,10 @@ class Evidence:
         Induction period [min].
     Mn_shift_low_limit : float or None
         Mn change when the low-M limit moves 0.2 mL earlier [%].
+    excess_interval : (float, float)
+        95 % interval of the excess 1/DPn [-].
+    relation : str
+        Which impurity relation the levels use (instantaneous or cumulative).
     """
 
     parameters: KineticParameters
@@ -154,6 +185,8 @@ class Evidence:
     impurities: tuple[CandidateLevel, ...] = ()
     induction: float | None = None
     Mn_shift_low_limit: float | None = None
+    excess_interval: tuple[float, float] = (math.nan, math.nan)
+    relation: str = ""
 
     @property
     def rp_text(self) -> str:
@@ -196,6 +229,56 @@ def _sig(x: float | None, n: int = 4) -> str:
     return f"{x:.{n}g}"
 
 
+# --------------------------------------------------------------------------- plausibility
+
+
+@dataclass(frozen=True)
+class PriorRange:
+    """Plausible range of a hypothesis' fitted quantity, from practice.
+
+    Inside [lo, hi] every value is equally plausible; outside, the penalty added to χ² is
+    (d/scale)², d the distance to the range (in ln units when ``log``): a flat prior with
+    half-normal tails (−2 ln prior, up to a constant).
+
+    Attributes
+    ----------
+    quantity : str
+        What the range is on (may differ from the reported value, e.g. the DPn ratio).
+    lo, hi : float
+        The range [quantity's unit].
+    scale : float
+        Tail scale (ln units when ``log``).
+    log : bool
+    basis : str
+        Where the range comes from.
+    """
+
+    quantity: str
+    lo: float
+    hi: float
+    scale: float
+    log: bool
+    basis: str
+
+    def distance(self, q: float) -> float:
+        """Distance of ``q`` outside the range, in tail scales (0 inside)."""
+        if self.log:
+            if not q > 0:
+                return math.inf
+            x, lo, hi = math.log(q), math.log(self.lo), math.log(self.hi)
+        else:
+            x, lo, hi = q, self.lo, self.hi
+        return max(lo - x, 0.0, x - hi) / self.scale
+
+    def penalty(self, q: float) -> float:
+        """(d/scale)² [-]."""
+        return self.distance(q) ** 2
+
+    def describe(self) -> str:
+        """'initiator factor F 1–2 (common practice: ...)'."""
+        return f"{self.quantity} {self.lo:g}–{self.hi:g} ({self.basis})"
+
+
 # --------------------------------------------------------------------------- the base
 
 
@@ -212,9 +295,9 @@ class Hypothesis(ABC):
         Number of fitted parameters (for the Akaike score).
     free : tuple of str
         Observations this cause leaves unexplained on purpose (not counted in χ²).
-    prior_range : (float, float) or None
-        Plausible range of the reported value [unit], for a plausibility prior on it;
-        None: no prior (the current scoring).
+    prior_range : PriorRange or None
+        Plausible range of the fitted quantity (:meth:`prior_quantity`) and how values
+        outside it are penalised; None: every value on the grid equally plausible.
     skipped_note : str
         Note when :meth:`applies` is False.
     """
@@ -226,7 +309,7 @@ class Hypothesis(ABC):
     unit: ClassVar[str] = "-"
     k: ClassVar[int] = 1
     free: ClassVar[tuple[str, ...]] = ()
-    prior_range: ClassVar[tuple[float, float] | None] = None
+    prior_range: ClassVar[PriorRange | None] = None
     skipped_note: ClassVar[str] = ""
 
     def applies(self, parameters: KineticParameters) -> bool:
@@ -238,10 +321,25 @@ class Hypothesis(ABC):
         """Grid of θ searched before the bounded refinement."""
         raise NotImplementedError
 
-    @abstractmethod
+    def perturbation(self, theta: float, model: AnchoredModel) -> dict[str, float] | None:
+        """Keyword perturbation of :func:`~gpctools.kinetics.predict.evaluate` at θ for a
+        cause in the chemistry; None for a measurement cause."""
+        return None
+
     def predict(self, theta: float, model: AnchoredModel) -> dict[str, float]:
-        """μ(θ) for each observation it affects (others are predicted as 0)."""
-        raise NotImplementedError
+        """μ(θ) for each observation it affects (others are predicted as 0).
+
+        A chemistry cause predicts the model's response to its perturbation; a
+        measurement cause overrides this.
+        """
+        pert = self.perturbation(theta, model)
+        if pert is None:  # pragma: no cover - measurement causes override predict
+            raise NotImplementedError
+        return model.response(**pert)
+
+    def molar_mass_shift(self, theta: float, model: AnchoredModel) -> float:
+        """ln of the factor a measurement cause puts on every M [-] (0: none)."""
+        return 0.0
 
     def extra_sigma(self, theta: float, name: str, model: AnchoredModel) -> float | None:
         """Extra standard uncertainty of observation ``name`` at θ (None: none)."""
@@ -250,6 +348,21 @@ class Hypothesis(ABC):
     def value(self, theta: float, model: AnchoredModel) -> float:
         """The reported value of the fitted parameter, in ``unit``."""
         return theta
+
+    def prior_quantity(self, theta: float, model: AnchoredModel) -> float:
+        """The quantity ``prior_range`` is on (default: the reported value)."""
+        return self.value(theta, model)
+
+    def penalty(self, theta: float, model: AnchoredModel) -> float:
+        """Plausibility penalty at θ [-] (0 inside the range or without one)."""
+        pr = self.prior_range
+        return 0.0 if pr is None else pr.penalty(self.prior_quantity(theta, model))
+
+    def plausible(self, theta: float, model: AnchoredModel) -> bool:
+        """Whether the fitted quantity lies inside the prior range."""
+        pr = self.prior_range
+        # a millionth of a tail scale: the optimiser's tolerance at the range's edge
+        return pr is None or pr.distance(self.prior_quantity(theta, model)) <= 1e-6
 
     @abstractmethod
     def explain(self, value: float, ev: Evidence) -> Explanation:
@@ -297,35 +410,50 @@ class UnexplainedTransfer(Hypothesis):
     key = "transfer"
     title = "unexplained chain transfer (impurity or agent overcharge)"
     parameter = "excess 1/DPn"
+    prior_range = PriorRange(
+        "DPn ratio with/without the excess", 0.1, 1.0, 0.5, True,
+        "common practice: a contaminant, or an agent charged twice, rarely takes DPn "
+        "below a tenth")
 
     def grid(self) -> np.ndarray:
         return np.linspace(0.02, 1.0, 197)[::-1]
 
-    def predict(self, theta: float, model: AnchoredModel) -> dict[str, float]:
-        return model.response(extra_transfer=self.value(theta, model))
+    def perturbation(self, theta: float, model: AnchoredModel) -> dict[str, float]:
+        return {"extra_transfer": self.value(theta, model)}
 
     def value(self, theta: float, model: AnchoredModel) -> float:
         return model.inv_DPn * (1.0 / theta - 1.0)
 
+    def prior_quantity(self, theta: float, model: AnchoredModel) -> float:
+        return theta
+
     def explain(self, value: float, ev: Evidence) -> Explanation:
         ex = ev.excess
+        lo, hi = ev.excess_interval
         nums = ev.ratio_numbers()
-        nums.insert(0, ("excess 1/DPn (from Mn) [-]", ex if ex is not None else float("nan")))
+        nums.insert(0, ("excess 1/DPn (fit) [-]", value))
+        nums.insert(1, ("excess 1/DPn 95 % interval low [-]", lo))
+        nums.insert(2, ("excess 1/DPn 95 % interval high [-]", hi))
+        nums.insert(3, ("excess 1/DPn (from Mn alone) [-]",
+                        ex if ex is not None else float("nan")))
         nums.append(("1/DPn expected [-]", ev.model.inv_DPn))
         lines = ""
         if ev.impurities:
             top = ev.impurities[:3]
             lines = "; ".join(
                 f"{i.name} (C = {i.C:.3g}): {i.ppm_mol:.3g} ppm mol"
-                + (f" ({i.ppm_mass:.3g} ppm by mass)" if i.ppm_mass else "")
+                + (f" (95 %: {getattr(i, 'ppm_mol_low', math.nan):.3g}–"
+                   f"{getattr(i, 'ppm_mol_high', math.nan):.3g})")
+                + (f", {i.ppm_mass:.3g} ppm by mass" if i.ppm_mass else "")
                 for i in top
             )
             nums.append((f"equivalent {top[0].name} [ppm mol]", top[0].ppm_mol))
         return Explanation(
             f"Chains stop more often than the recipe explains while the radicals keep "
-            f"going: {ev.mn_text}, {ev.rp_text}. Excess 1/DPn = {_sig(ex, 4)} "
-            f"(1/DPn measured − expected). Equivalent impurity levels: "
-            f"{lines or 'no candidates'}.",
+            f"going: {ev.mn_text}, {ev.rp_text}. Excess 1/DPn = {_sig(value, 4)} (95 % "
+            f"interval {_sig(lo, 3)}–{_sig(hi, 3)}; from Mn alone {_sig(ex, 4)}). "
+            f"Equivalent impurity levels ({ev.relation or 'instantaneous relation'}): "
+            f"{lines or 'none'}.",
             tuple(nums),
             "look for a transfer-active contaminant: thiols or halocarbons in monomer or "
             "solvent lots (GC), shared lines and cleaning residues, an agent charged twice; "
@@ -339,12 +467,15 @@ class ExcessInitiation(Hypothesis):
     key = "initiator"
     title = "excess initiation (initiator overcharge)"
     parameter = "initiator factor F"
+    prior_range = PriorRange(
+        "initiator factor F", 1.0, 2.0, 0.5, True,
+        "common practice: the largest usual charging error is a double or second charge")
 
     def grid(self) -> np.ndarray:
         return np.linspace(0.0, math.log(1000.0), 241)
 
-    def predict(self, theta: float, model: AnchoredModel) -> dict[str, float]:
-        return model.response(radical_flux_factor=math.exp(theta))
+    def perturbation(self, theta: float, model: AnchoredModel) -> dict[str, float]:
+        return {"radical_flux_factor": math.exp(theta)}
 
     def value(self, theta: float, model: AnchoredModel) -> float:
         return math.exp(theta)
@@ -387,6 +518,10 @@ class TemperatureOvershoot(Hypothesis):
     title = "temperature overshoot"
     parameter = "temperature rise ΔT"
     unit = "K"
+    prior_range = PriorRange(
+        "temperature rise ΔT [K]", 0.0, 10.0, 5.0, False,
+        "common practice: jacket control holds a few K; an exotherm or a controller fault "
+        "overshoots by up to about 10 K")
     skipped_note = "temperature overshoot not evaluated: activation energy of k_p or k_d unknown"
 
     def applies(self, parameters: KineticParameters) -> bool:
@@ -395,8 +530,8 @@ class TemperatureOvershoot(Hypothesis):
     def grid(self) -> np.ndarray:
         return np.linspace(0.0, 80.0, 321)
 
-    def predict(self, theta: float, model: AnchoredModel) -> dict[str, float]:
-        return model.response(dT=theta)
+    def perturbation(self, theta: float, model: AnchoredModel) -> dict[str, float]:
+        return {"dT": theta}
 
     def explain(self, value: float, ev: Evidence) -> Explanation:
         dT = value
@@ -426,23 +561,35 @@ class TemperatureOvershoot(Hypothesis):
 
 
 class Retardation(Hypothesis):
-    """Radicals lost to a retarder: θ = h = [R•]/[R•]_base, ζ = 2k_t[R•]_base(1 − h²)/h."""
+    """Radicals lost to a retarder: θ = h = [R•]/[R•]_base.
+
+    ζ = 2k_t[R•]_base(1 − h²)/h + ζ₀(1 − h)/h, ζ₀ the loss to charged inhibitors, solves
+    2k_t[R•]² + (ζ₀ + ζ)[R•] = R_i with [R•] = h·[R•]_base [derived].
+    """
 
     key = "retarder"
     title = "inhibition or retardation (stabilizer, oxygen)"
     parameter = "radical loss to retarder ζ = k_z[Z]"
     unit = "1/s"
     free = ("induction period",)
+    prior_range = PriorRange(
+        "[R•] ratio h", 0.3, 1.0, 0.5, True,
+        "common practice: stabilizer left in the monomer or an air leak slows a batch by "
+        "up to about threefold")
 
     def grid(self) -> np.ndarray:
         return np.linspace(0.02, 1.0, 197)[::-1]
 
-    def predict(self, theta: float, model: AnchoredModel) -> dict[str, float]:
-        return model.response(retarder=self.value(theta, model))
+    def perturbation(self, theta: float, model: AnchoredModel) -> dict[str, float]:
+        return {"retarder": self.value(theta, model)}
 
     def value(self, theta: float, model: AnchoredModel) -> float:
         h = theta
-        return 2.0 * model.parameters.k_t * model.base.radicals * (1.0 - h * h) / h
+        b = model.base
+        return 2.0 * b.k_t * b.radicals * (1.0 - h * h) / h + b.zeta * (1.0 - h) / h
+
+    def prior_quantity(self, theta: float, model: AnchoredModel) -> float:
+        return theta
 
     def explain(self, value: float, ev: Evidence) -> Explanation:
         zeta = value
@@ -472,12 +619,16 @@ class Dilution(Hypothesis):
     key = "dilution"
     title = "dilution or monomer loss"
     parameter = "[M] factor g"
+    prior_range = PriorRange(
+        "[M] factor g", 0.9, 1.0, 0.05, True,
+        "common practice: weighing and charging errors of a few percent, monomer lost by "
+        "evaporation or venting up to about 10 %; a larger shortfall needs a reason")
 
     def grid(self) -> np.ndarray:
         return np.linspace(0.02, 1.0, 197)[::-1]
 
-    def predict(self, theta: float, model: AnchoredModel) -> dict[str, float]:
-        return model.response(monomer_factor=theta)
+    def perturbation(self, theta: float, model: AnchoredModel) -> dict[str, float]:
+        return {"monomer_factor": theta}
 
     def explain(self, value: float, ev: Evidence) -> Explanation:
         g = value
@@ -507,6 +658,10 @@ class FlowError(Hypothesis):
     title = "flow-rate error (uncorrected flow-marker drift)"
     category = "measurement"
     parameter = "relative flow error ε"
+    prior_range = PriorRange(
+        "relative flow error ε", -0.01, 0.01, 0.005, False,
+        "common practice: a pump out of calibration, a leak or a bubble moves the flow by "
+        "up to about 1 %")
     _SHIFTED: ClassVar[tuple[str, ...]] = ("Mn", "Mw", "check standard")
 
     def grid(self) -> np.ndarray:
@@ -519,6 +674,9 @@ class FlowError(Hypothesis):
 
     def extra_sigma(self, theta: float, name: str, model: AnchoredModel) -> float | None:
         return model.flow.rel * abs(model.flow.k * theta) if name in self._SHIFTED else 0.0
+
+    def molar_mass_shift(self, theta: float, model: AnchoredModel) -> float:
+        return -model.flow.k * theta
 
     def explain(self, value: float, ev: Evidence) -> Explanation:
         e = value
@@ -543,12 +701,22 @@ class CalibrationDrift(Hypothesis):
     title = "calibration drift (check standard off)"
     category = "measurement"
     parameter = "shift of all averages ln(factor)"
+    prior_range = PriorRange(
+        "factor on all averages", 0.85, 1.15, 0.05, True,
+        "common practice: check standards are accepted within ±5 %; a calibration drifts "
+        "by up to about 15 % before it is caught")
 
     def grid(self) -> np.ndarray:
         return np.linspace(-2.0, 2.0, 801)
 
     def predict(self, theta: float, model: AnchoredModel) -> dict[str, float]:
         return {"Mn": theta, "Mw": theta, "check standard": theta}
+
+    def molar_mass_shift(self, theta: float, model: AnchoredModel) -> float:
+        return theta
+
+    def prior_quantity(self, theta: float, model: AnchoredModel) -> float:
+        return math.exp(theta)
 
     def explain(self, value: float, ev: Evidence) -> Explanation:
         shift = 100.0 * (math.exp(value) - 1.0)
@@ -564,19 +732,37 @@ class CalibrationDrift(Hypothesis):
 
 
 class LimitArtefact(Hypothesis):
-    """Mn × e^t (t ≤ 0), Mw unchanged; the limit checks are left free."""
+    """Mn × e^t (t ≤ 0), Mw unchanged; moving the low-M limit 0.2 mL earlier raises Mn.
+
+    The limit check (Mn change when the low-M limit moves 0.2 mL earlier, as a fraction)
+    is predicted as −κ·t with κ = 0.5 and an extra σ of 0.5·|t|: the part of the
+    artefact's low-M material in the last 0.2 mL of the window lies anywhere between none
+    and all of it [typical]. The mass outside the calibration and the low-M tail are
+    left free (their size does not follow from t).
+    """
 
     key = "limit"
     title = "integration-limit artefact (low-M tail inside the limits)"
     category = "measurement"
     parameter = "Mn bias ln(factor)"
-    free = ("low-M limit", "outside calibration")
+    free = ("outside calibration", "low-M tail")
+    _KAPPA: ClassVar[float] = 0.5
+    prior_range = PriorRange(
+        "factor on Mn", 0.3, 1.0, 0.3, True,
+        "common practice: a system peak or low-M tail inside the limits can take a large "
+        "part off Mn, rarely more than 70 %")
 
     def grid(self) -> np.ndarray:
         return np.linspace(-2.0, 0.0, 401)
 
     def predict(self, theta: float, model: AnchoredModel) -> dict[str, float]:
-        return {"Mn": theta}
+        return {"Mn": theta, "low-M limit": -self._KAPPA * theta}
+
+    def extra_sigma(self, theta: float, name: str, model: AnchoredModel) -> float | None:
+        return self._KAPPA * abs(theta) if name == "low-M limit" else None
+
+    def prior_quantity(self, theta: float, model: AnchoredModel) -> float:
+        return math.exp(theta)
 
     def explain(self, value: float, ev: Evidence) -> Explanation:
         shift = 100.0 * (math.exp(value) - 1.0)

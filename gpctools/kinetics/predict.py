@@ -43,7 +43,12 @@ from typing import Any
 
 import pandas as pd
 
-from gpctools.chainlength import dispersity_instantaneous, mayo_inv_dpn, mixed_termination
+from gpctools.chainlength import (
+    DistributionModel,
+    dispersity_instantaneous,
+    mayo_inv_dpn,
+    mixed_termination,
+)
 from gpctools.errors import DataError, GpcWarning, MethodError
 from gpctools.kinetics.recipe import (
     Component,
@@ -115,6 +120,32 @@ class TransferTerm:
 
 
 @dataclass(frozen=True)
+class InhibitorTerm:
+    """A charged inhibitor or retarder: radicals trapped at ζ = k_z[Z] [1/s].
+
+    Attributes
+    ----------
+    name : str
+    concentration : float
+        [Z] [mol/L].
+    k_z : float
+        Rate coefficient of radical trapping at the recipe temperature [L/mol/s].
+    z : float or None
+        k_z/k_p [-] when the recipe gave it (k_z then follows k_p with temperature).
+    stoichiometry : float
+        Radicals trapped per molecule [-] (induction period μ[Z]/R_i).
+    source : str
+    """
+
+    name: str
+    concentration: float
+    k_z: float
+    z: float | None
+    stoichiometry: float
+    source: str = "recipe"
+
+
+@dataclass(frozen=True)
 class KineticParameters:
     """Every number the prediction uses, with its source (all at the recipe temperature).
 
@@ -145,6 +176,7 @@ class KineticParameters:
     warnings: tuple[str, ...] = ()
     initiator_caution: str = ""
     E_t: float | None = None
+    inhibitors: tuple[InhibitorTerm, ...] = ()
 
     @property
     def T_C(self) -> float:
@@ -174,6 +206,13 @@ class KineticParameters:
         for t in self.transfer:
             rows.append((f"{t.role}: {t.name}", f"[{t.name}]", t.concentration, "mol/L", "recipe"))
             rows.append((f"transfer constant: {t.name}", f"C({t.name})", t.C, "-", t.source))
+        for z in self.inhibitors:
+            rows.append((f"inhibitor: {z.name}", f"[{z.name}]", z.concentration, "mol/L",
+                         "recipe"))
+            rows.append((f"radical trapping: {z.name}", f"k_z({z.name})", z.k_z, "L/mol/s",
+                         z.source))
+            rows.append((f"radicals trapped per molecule: {z.name}", f"mu({z.name})",
+                         z.stoichiometry, "-", z.source))
         return pd.DataFrame(
             rows, columns=["parameter", "symbol", "value", "unit", "source"]
         )
@@ -203,6 +242,11 @@ class KineticParameters:
                 {"name": t.name, "role": t.role, "[X] [mol/L]": t.concentration, "C [-]": t.C,
                  "dE [kJ/mol]": t.dE, "source": t.source}
                 for t in self.transfer
+            ],
+            "inhibitors": [
+                {"name": z.name, "[Z] [mol/L]": z.concentration, "k_z [L/mol/s]": z.k_z,
+                 "z [-]": z.z, "stoichiometric factor [-]": z.stoichiometry, "source": z.source}
+                for z in self.inhibitors
             ],
             "sources": dict(self.sources),
             "notes": list(self.notes),
@@ -307,7 +351,14 @@ def _propagation(
     """
     if ms.k_p is not None:
         prov.sources["k_p"] = "recipe"
-        return ms.k_p, ms.k_p_E
+        if ms.k_p_E is not None or mon is None or mon.kp_E is None:
+            return ms.k_p, ms.k_p_E
+        # k_p at the recipe temperature from the recipe, its temperature dependence from
+        # the table (as for k_d and k_t)
+        E = (mon.k_p_effective_E(T, conc_M) if (mon.has_backbiting and ms.backbiting is not False)
+             else mon.kp_E)
+        prov.sources["k_p"] = f"recipe; E_p {E:.4g} kJ/mol from the table ({mon.kp_source})"
+        return ms.k_p, E
     if ms.k_p_A is not None and ms.k_p_E is not None:  # the recipe gives both or neither
         prov.sources["k_p"] = "recipe (Arrhenius A, E)"
         return ms.k_p_A * math.exp(-ms.k_p_E * 1e3 / (R_GAS * T)), ms.k_p_E
@@ -316,11 +367,20 @@ def _propagation(
             f"no k_p for {name!r} in the tables; give 'k_p [L/mol/s]' in [monomer]",
             key='monomer."k_p [L/mol/s]"', path=prov.path,
         )
-    k_p = prov.table_value(mon.k_p_effective, T, conc_M)  # refuses a row without E
+    kp_E = mon.kp_E
+    assert kp_E is not None  # a row with A has E (refdata pins the pair)
+    prov.sources["k_p"] = f"{mon.kp_source}; k_p = {mon.kp_A:.5g}·exp(−{kp_E:g} kJ/mol/RT)"
+    if ms.backbiting is False or not mon.has_backbiting:
+        if ms.backbiting and not mon.has_backbiting:
+            prov.notes.append(f"{name}: backbiting asked for, but no backbiting parameters are "
+                              "tabulated; the chain-end k_p is used")
+        if ms.backbiting is False and mon.has_backbiting:
+            prov.sources["k_p"] += " (chain ends: backbiting = false, pulsed conditions)"
+        return prov.table_value(mon.k_p, T), kp_E
+    k_p = prov.table_value(mon.k_p_effective, T, conc_M)
     E_p = mon.k_p_effective_E(T, conc_M)
-    prov.sources["k_p"] = f"{mon.kp_source}; k_p = {mon.kp_A:.5g}·exp(−{mon.kp_E:g} kJ/mol/RT)"
     if mon.has_backbiting:
-        k_end = mon.kp_A * math.exp(-mon.kp_E * 1e3 / (R_GAS * T))
+        k_end = mon.kp_A * math.exp(-kp_E * 1e3 / (R_GAS * T))
         x = prov.table_value(mon.mcr_fraction, T, conc_M)
         prov.sources["k_p"] += f" (chain ends); effective k_p with backbiting: {mon.backbiting_source}"
         prov.notes.append(
@@ -404,8 +464,18 @@ def _decomposition(
     k_d(T) = k_d,ref·exp(−E_d/R·(1/T − 1/T_ref)), with the recipe's E_d when given.
     """
     if ins.k_d is not None:
-        prov.sources["k_d"] = "recipe"
-        return ins.k_d, (ins.E_d if ins.E_d is not None else (ini.E_d if ini else None))
+        E = ins.E_d if ins.E_d is not None else (ini.E_d if ini else None)
+        if ins.k_d_T is None or abs(ins.k_d_T + 273.15 - T) < 1e-9:
+            prov.sources["k_d"] = "recipe"
+            return ins.k_d, E
+        if E is None:
+            raise MethodError(
+                "the recipe gives k_d at another temperature: give 'E_d [kJ/mol]' to move it",
+                key='initiator."E_d [kJ/mol]"', path=prov.path)
+        T_kd = ins.k_d_T + 273.15
+        prov.sources["k_d"] = (f"recipe: k_d = {ins.k_d:g}·exp(−{E:g} kJ/mol/R·(1/T − 1/"
+                               f"{T_kd:g} K))")
+        return ins.k_d * math.exp(-E * 1e3 / R_GAS * (1 / T - 1 / T_kd)), E
     assert ini is not None  # _initiator_row refuses an unknown initiator without k_d
     E_d = ins.E_d if ins.E_d is not None else ini.E_d
     if ins.E_d is not None:
@@ -449,11 +519,27 @@ def _termination(
         row: Termination | None = ref.termination(name)
     except MethodError:
         row = None
+    E_t = ts.k_t_E if ts.k_t_E is not None else (row.E if row is not None else None)
     if ts.k_t is not None:
         k_t = convert_kt(ts.k_t, ts.convention, "IUPAC 2kt")
         prov.sources["k_t"] = "recipe" + (
             f" ({ts.k_t:g} in the 'kt' convention, halved)" if ts.convention == "kt" else ""
         )
+        if ts.k_t_T is not None and abs(ts.k_t_T + 273.15 - T) > 1e-9:
+            if E_t is None:
+                raise MethodError(
+                    "the recipe gives k_t at another temperature: give 'k_t E [kJ/mol]' to "
+                    "move it", key='termination."k_t E [kJ/mol]"', path=prov.path)
+            T_kt = ts.k_t_T + 273.15
+            k_t *= math.exp(-E_t * 1e3 / R_GAS * (1 / T - 1 / T_kt))
+            prov.sources["k_t"] += (f"; k_t(T) = k_t·exp(−{E_t:g} kJ/mol/R·(1/T − 1/"
+                                    f"{T_kt:g} K))")
+    elif row is not None and ts.k_t_E is not None and row.T is not None:
+        T_ref = row.T + 273.15
+        k_t = row.k_t_iupac * math.exp(-ts.k_t_E * 1e3 / R_GAS * (1 / T - 1 / T_ref))
+        prov.sources["k_t"] = (f"{row.source}; E_t {ts.k_t_E:g} kJ/mol from the recipe: "
+                               f"k_t = {row.k_t_iupac:g}·exp(−{ts.k_t_E:g} kJ/mol/R·(1/T − 1/"
+                               f"{T_ref:g} K))")
     elif row is not None:
         k_t = prov.table_value(row.k_t, T)
         prov.sources["k_t"] = row.source + (
@@ -468,7 +554,6 @@ def _termination(
             f"no termination row for {name!r}; give 'k_t [L/mol/s]' in [termination]",
             key='termination."k_t [L/mol/s]"', path=prov.path,
         )
-    E_t = row.E if row is not None else None
     if ts.delta is not None:
         prov.sources["delta"] = "recipe"
         return k_t, ts.delta, E_t
@@ -495,6 +580,19 @@ def _transfer_terms(
             if note:
                 prov.notes.append(note)
     return tuple(terms)
+
+
+def _inhibitor_terms(recipe: Recipe, k_p: float) -> tuple[InhibitorTerm, ...]:
+    """The recipe's charged inhibitors: k_z as given, or z·k_p [L/mol/s]."""
+    return tuple(
+        InhibitorTerm(
+            name=z.name, concentration=z.concentration,
+            k_z=z.k_z if z.k_z is not None else float(z.z or 0.0) * k_p, z=z.z,
+            stoichiometry=z.stoichiometry,
+            source="recipe" if z.k_z is not None else f"recipe: k_z = z·k_p with z = {z.z:g}",
+        )
+        for z in recipe.inhibitors
+    )
 
 
 def resolve_parameters(recipe: Recipe, ref: ReferenceData | None = None) -> KineticParameters:
@@ -531,6 +629,7 @@ def resolve_parameters(recipe: Recipe, ref: ReferenceData | None = None) -> Kine
     f, C_I = _efficiency_and_C_I(ins, ini, prov)
     k_t, delta, E_t = _termination(recipe.termination, ref, name, T, prov)
     terms = _transfer_terms(recipe, ref, name, T, prov)
+    prov.notes.extend(recipe.charge_notes)
     for w in prov.warnings:
         _warnings.warn(w, KineticsWarning, stacklevel=2)
     for w in prov.reference_warnings:
@@ -542,6 +641,7 @@ def resolve_parameters(recipe: Recipe, ref: ReferenceData | None = None) -> Kine
         sources=tuple(prov.sources.items()), notes=tuple(prov.notes),
         warnings=tuple(prov.warnings + prov.reference_warnings),
         initiator_caution=ini.caution if ini else "", E_t=E_t,
+        inhibitors=_inhibitor_terms(recipe, k_p),
     )
 
 
@@ -550,7 +650,10 @@ class KineticState:
     """Steady state of the model for one set of (possibly perturbed) parameters.
 
     Units: R_i, R_p [mol/L/s]; radicals [mol/L]; k's as in :class:`KineticParameters`.
-    ``terms`` holds each 1/DPn contribution [-] by name.
+    ``terms`` holds each 1/DPn contribution [-] by name; ``tau`` and ``beta`` are the
+    chain stops per propagation step that end one chain and that combine [-]
+    (:class:`gpctools.chainlength.MixedTermination`); ``zeta`` the first-order radical
+    loss to inhibitors and retarders [1/s].
     """
 
     T: float
@@ -568,6 +671,45 @@ class KineticState:
     u_combination: float
     fraction_chains_combination: float
     dispersity: float
+    tau: float = float("nan")
+    beta: float = float("nan")
+    zeta: float = 0.0
+    k_t: float = float("nan")
+
+    def distribution(self, M0: float) -> DistributionModel:
+        """dw/dlog10 M of the instantaneous distribution [-] for repeat unit M0 [g/mol]."""
+        return mixed_termination(self.tau, self.beta).distribution(M0)
+
+
+def _arrhenius_shift(k0: float, E: float | None, T0: float, T: float) -> float:
+    """k0·exp(−E/R·(1/T − 1/T0)) [k0's unit]; k0 when E is unknown or T = T0."""
+    if T == T0 or E is None:
+        return k0
+    return k0 * math.exp(-E * 1e3 / R_GAS * (1.0 / T - 1.0 / T0))
+
+
+def _radicals(k_t: float, R_i: float, zeta: float) -> float:
+    """[R•] [mol/L] from 2k_t[R•]² + ζ[R•] = R_i (ζ = 0: (R_i/2k_t)^½)."""
+    if zeta > 0.0:
+        return (-zeta + math.sqrt(zeta**2 + 8.0 * k_t * R_i)) / (4.0 * k_t)
+    return math.sqrt(R_i / (2.0 * k_t))
+
+
+def _stop_terms(
+    p: KineticParameters, T: float, conc_M: float, conc_I: float, k_p: float,
+    zetas: list[tuple[str, float]], extra_transfer: float,
+) -> list[tuple[str, float, float]]:
+    """(name, C, ratio) of every chain stop besides termination: C·ratio is its 1/DPn."""
+    kpM = k_p * conc_M
+    out: list[tuple[str, float, float]] = [("transfer to monomer", p.C_M, 1.0),
+                                           ("transfer to initiator", p.C_I, conc_I / conc_M)]
+    for t in p.transfer:
+        C = _arrhenius_shift(t.C, t.dE, p.T, T)
+        out.append((f"{t.role}: {t.name}", C, t.concentration / conc_M))
+    if extra_transfer:
+        out.append(("unexplained transfer", extra_transfer, 1.0))
+    out.extend((name, z / kpM, 1.0) for name, z in zetas if z)
+    return out
 
 
 def evaluate(
@@ -588,12 +730,14 @@ def evaluate(
         Factor on f·k_d·[I] (more or less initiator, or efficiency) [-].
     dT : float
         Temperature change [K]; k_p and k_d follow their Arrhenius energies, C values
-        with a tabulated ΔE follow C ∝ exp(−ΔE/RT); k_t follows ``E_t`` when known.
+        with a tabulated ΔE follow C ∝ exp(−ΔE/RT); k_t follows ``E_t`` when known;
+        an inhibitor given by z = k_z/k_p follows k_p.
     extra_transfer : float
         Added 1/DPn from unexplained transfer [-] (Σ C_x[x]/[M] of an impurity).
     retarder : float
-        ζ = k_z[Z], first-order radical loss to a retarder [1/s]; each such event ends a
-        chain. Steady state 2k_t[R•]² + ζ[R•] = R_i.
+        ζ = k_z[Z], first-order radical loss to an unplanned retarder [1/s], added to
+        the charged inhibitors' Σ k_z[Z]; each such event ends a chain. Steady state
+        2k_t[R•]² + ζ[R•] = R_i, and each trapped radical adds ζ/(k_p[M]) to 1/DPn.
     monomer_factor : float
         Factor on [M] (dilution or monomer loss) [-].
 
@@ -603,75 +747,43 @@ def evaluate(
 
     References
     ----------
-    SCIENCE.md §3 (steady state, Mayo equation), module docstring (dispersity).
+    docs/science.md, section 3 (steady state, Mayo equation); module docstring
+    (dispersity).
     """
     T = p.T + dT
     if T <= 0:
         raise DataError(f"temperature {T} K is not physical")
-
-    def arrh(k0: float, E: float | None) -> float:
-        if dT == 0.0 or E is None:
-            return k0
-        return k0 * math.exp(-E * 1e3 / R_GAS * (1.0 / T - 1.0 / p.T))
-
-    k_p = arrh(p.k_p, p.E_p)
-    k_d = arrh(p.k_d, p.E_d)
+    k_p = _arrhenius_shift(p.k_p, p.E_p, p.T, T)
+    k_d = _arrhenius_shift(p.k_d, p.E_d, p.T, T)
+    k_t = _arrhenius_shift(p.k_t, p.E_t, p.T, T)
     conc_M = p.conc_M * monomer_factor
     conc_I = p.conc_I * radical_flux_factor
     R_i = 2.0 * p.f * k_d * conc_I
-    k_t = arrh(p.k_t, p.E_t)
-    if retarder > 0.0:
-        radicals = (-retarder + math.sqrt(retarder**2 + 8.0 * k_t * R_i)) / (4.0 * k_t)
-    else:
-        radicals = math.sqrt(p.f * k_d * conc_I / k_t)
+    zetas = [(f"inhibitor: {z.name}",
+              (z.z * k_p if z.z is not None else z.k_z) * z.concentration) for z in p.inhibitors]
+    zetas.append(("retarder", retarder))
+    zeta = sum(v for _, v in zetas)
+    radicals = _radicals(k_t, R_i, zeta)
     R_p = k_p * conc_M * radicals
-    nu = R_p / R_i
     kpM = k_p * conc_M
     comb = (1.0 - p.delta) * k_t * radicals / kpM
     disp = 2.0 * p.delta * k_t * radicals / kpM
-    transfer: list[tuple[str, float, float]] = [("transfer to initiator", p.C_I, conc_I / conc_M)]
-    for t in p.transfer:
-        C = t.C
-        if dT != 0.0 and t.dE is not None:
-            C = C * math.exp(-t.dE * 1e3 / R_GAS * (1.0 / T - 1.0 / p.T))
-        transfer.append((f"{t.role}: {t.name}", C, t.concentration / conc_M))
-    terms: list[tuple[str, float]] = [
-        ("termination (combination)", comb),
-        ("termination (disproportionation)", disp),
-        ("transfer to monomer", p.C_M),
-    ] + [(name, C * ratio) for name, C, ratio in transfer]
-    stops = (retarder / kpM) if retarder else 0.0
-    if extra_transfer:
-        terms.append(("unexplained transfer", extra_transfer))
-    if retarder:
-        terms.append(("retarder", stops))
-    # the Mayo sum (in the budget's order), plus chain stops outside it
-    inv = float(mayo_inv_dpn(comb + disp, C_M=p.C_M,
-                             transfer=[(C, ratio) for _, C, ratio in transfer])) + extra_transfer + stops
+    stops = _stop_terms(p, T, conc_M, conc_I, k_p, zetas, extra_transfer)
+    terms = [("termination (combination)", comb), ("termination (disproportionation)", disp)]
+    terms += [(name, C * ratio) for name, C, ratio in stops]
+    # the Mayo sum (docs/science.md, section 3.3), in the budget's order
+    inv = float(mayo_inv_dpn(comb + disp, transfer=[(C, ratio) for _, C, ratio in stops]))
     if not inv > 0:
-        raise DataError(
-            "the 1/DPn sum is not positive (a normal-batch offset larger than the model "
-            "terms?); check the normal batch values"
-        )
+        raise DataError("the 1/DPn sum is not positive; check the recipe's parameters")
     # τ: everything that ends one chain; β = 2·comb: radical stops by combination
     mixed = mixed_termination(tau=inv - comb, beta=2.0 * comb)
     u = mixed.u_combination
     return KineticState(
-        T=T,
-        conc_M=conc_M,
-        conc_I=conc_I,
-        k_p=k_p,
-        k_d=k_d,
-        R_i=R_i,
-        radicals=radicals,
-        R_p=R_p,
-        nu=nu,
-        terms=tuple(terms),
-        inv_DPn=inv,
-        DPn=1.0 / inv,
-        u_combination=u,
-        fraction_chains_combination=mixed.fraction_chains_combination,
+        T=T, conc_M=conc_M, conc_I=conc_I, k_p=k_p, k_d=k_d, R_i=R_i, radicals=radicals,
+        R_p=R_p, nu=R_p / R_i, terms=tuple(terms), inv_DPn=inv, DPn=1.0 / inv,
+        u_combination=u, fraction_chains_combination=mixed.fraction_chains_combination,
         dispersity=dispersity_instantaneous(min(max(u, 0.0), 1.0)),
+        tau=inv - comb, beta=2.0 * comb, zeta=zeta, k_t=k_t,
     )
 
 
@@ -682,6 +794,7 @@ _FORMULAS = {
     "transfer to initiator": "C_I·[I]/[M]",
     "unexplained transfer": "Δ(1/DPn)",
     "retarder": "ζ/(k_p[M])",
+    "inhibitor": "k_z[Z]/(k_p[M])",
 }
 
 
@@ -719,6 +832,10 @@ class Prediction:
         The Mayo 1/DPn budget.
     half_life : float
         Initiator half-life ln2/k_d [s].
+    induction : tuple of (name, float)
+        Induction period of each charged inhibitor, μ[Z]/R_i [s]: the time the radicals
+        formed take to use it up when every molecule traps μ of them (docs/science.md,
+        section 9.1).
     """
 
     parameters: KineticParameters
@@ -737,6 +854,7 @@ class Prediction:
     half_life: float
     notes: tuple[str, ...] = ()
     warnings: tuple[str, ...] = ()
+    induction: tuple[tuple[str, float], ...] = ()
 
     @property
     def inv_DPn(self) -> float:
@@ -765,6 +883,7 @@ class Prediction:
             "dispersity (instantaneous) [-]": self.dispersity,
             "fraction of chains by combination [-]": self.fraction_chains_combination,
             "initiator half-life [h]": self.half_life / 3600.0,
+            **{f"induction period, {name} [min]": t / 60.0 for name, t in self.induction},
         }
 
     def table(self) -> pd.DataFrame:
@@ -791,7 +910,7 @@ def _from_state(p: KineticParameters, s: KineticState, notes=(), warns=()) -> Pr
     budget = tuple(
         BudgetTerm(
             term=name,
-            formula=_FORMULAS.get(name, "C·[X]/[M]"),
+            formula=_FORMULAS.get(name) or _FORMULAS.get(name.split(":")[0], "C·[X]/[M]"),
             value=v,
             share=100.0 * v / inv,
         )
@@ -815,6 +934,8 @@ def _from_state(p: KineticParameters, s: KineticState, notes=(), warns=()) -> Pr
         half_life=math.log(2.0) / s.k_d,
         notes=tuple(notes),
         warnings=tuple(warns),
+        induction=tuple((z.name, z.stoichiometry * z.concentration / s.R_i)
+                        for z in p.inhibitors),
     )
 
 

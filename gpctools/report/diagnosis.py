@@ -1,10 +1,18 @@
-"""Diagnosis outputs: the markdown report, the JSON summary and one table per part.
+"""Diagnosis outputs: the markdown report, the JSON summary, one table per part, the
+distribution overlay.
 
 Files written by :func:`write_diagnosis` into the output folder (each atomically):
 ``diagnosis.md`` (:func:`gpctools.report.markdown.diagnosis_markdown`), ``diagnosis.json``
-(``Diagnosis.summary()``), ``causes.csv``, ``observations.csv``, ``checks.csv``,
-``impurities.csv``, ``budget.csv``, ``parameters.csv``, ``prediction.csv`` and, with
-``xlsx=True``, ``diagnosis.xlsx`` with one sheet per table.
+(``Diagnosis.summary()``), ``causes.csv``, ``observations.csv``, ``checks.csv`` (with the
+instrument findings), ``impurities.csv``, ``model.csv`` (parameter uncertainties and
+their update by the normal batch), ``budget.csv``, ``parameters.csv``,
+``prediction.csv``, ``distributions.csv`` (the overlay's curves, long format) and
+``distributions.png`` (:func:`gpctools.report.plots.plot_diagnosis_distributions`), and
+with ``xlsx=True`` ``diagnosis.xlsx`` with one sheet per table.
+
+:func:`distribution_tables` finds the distribution tables ``gpctools batch`` wrote for a
+sample beside its results table (their names are made by
+:func:`gpctools.report.batch.distribution_name`).
 """
 
 from __future__ import annotations
@@ -14,7 +22,7 @@ import os
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
-from gpctools.report.files import atomic_path, write_csv, write_text
+from gpctools.report.files import atomic_path, safe_name, write_bytes, write_csv, write_text
 from gpctools.report.markdown import diagnosis_markdown
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -22,7 +30,40 @@ if TYPE_CHECKING:  # pragma: no cover
 
     from gpctools.kinetics import Diagnosis
 
-__all__ = ["write_diagnosis", "diagnosis_tables"]
+__all__ = ["write_diagnosis", "diagnosis_tables", "distribution_tables"]
+
+
+def distribution_tables(results: str | os.PathLike[str], sample_id: str) -> list[Path]:
+    """The distribution tables of ``sample_id`` in ``distributions/`` beside a results table.
+
+    Parameters
+    ----------
+    results : path
+        ``results.csv`` (or ``.xlsx``) of a batch.
+    sample_id : str
+
+    Returns
+    -------
+    list of Path
+        ``<sample>_row<n>.csv`` files, one per injection (replicates), sorted; empty when
+        the folder or the files are not there.
+    """
+    folder = Path(results).parent / "distributions"
+    if not folder.is_dir():
+        return []
+    stem = safe_name(str(sample_id), default="sample")
+    return sorted(p for p in folder.glob(f"{stem}_row*.csv")
+                  if p.stem[len(stem):].startswith("_row") and p.stem[len(stem) + 4:].isdigit())
+
+
+def _curves_table(diagnosis: Diagnosis) -> pd.DataFrame:
+    import pandas as pd
+
+    frames = [pd.DataFrame({"curve": c.label, "kind": c.kind, "M [g/mol]": c.M,
+                            "dw/dlogM [-]": c.dwdlogM}) for c in diagnosis.curves]
+    if not frames:
+        return pd.DataFrame(columns=["curve", "kind", "M [g/mol]", "dw/dlogM [-]"])
+    return pd.concat(frames, ignore_index=True)
 
 
 def diagnosis_tables(diagnosis: Diagnosis) -> dict[str, pd.DataFrame]:
@@ -35,17 +76,19 @@ def diagnosis_tables(diagnosis: Diagnosis) -> dict[str, pd.DataFrame]:
     Returns
     -------
     dict of str to pandas.DataFrame
-        causes, observations, checks, impurities, budget, parameters, prediction (unit
-        in every column name or in a unit column).
+        causes, observations, checks, impurities, model, budget, parameters, prediction,
+        distributions (unit in every column name or in a unit column).
     """
     return {
         "causes": diagnosis.table(),
         "observations": diagnosis.observations_table(),
         "checks": diagnosis.checks_table(),
         "impurities": diagnosis.impurities_table(),
+        "model": diagnosis.model_table(),
         "budget": diagnosis.prediction.budget_table(),
         "parameters": diagnosis.prediction.parameters.table(),
         "prediction": diagnosis.prediction.table(),
+        "distributions": _curves_table(diagnosis),
     }
 
 
@@ -58,9 +101,10 @@ def _json_default(o: Any) -> Any:
 
 
 def write_diagnosis(
-    diagnosis: Diagnosis, outdir: str | os.PathLike[str], *, xlsx: bool = True
+    diagnosis: Diagnosis, outdir: str | os.PathLike[str], *, xlsx: bool = True,
+    plots: bool = True,
 ) -> dict[str, Path]:
-    """Write the report and tables of a diagnosis atomically into ``outdir``.
+    """Write the report, tables and overlay plot of a diagnosis atomically into ``outdir``.
 
     Parameters
     ----------
@@ -69,11 +113,13 @@ def write_diagnosis(
         Output folder (created); the files are listed in the module docstring.
     xlsx : bool
         Also write ``diagnosis.xlsx`` (one sheet per table).
+    plots : bool
+        Also write ``distributions.png`` (when the diagnosis has curves).
 
     Returns
     -------
     dict of str to pathlib.Path
-        ``"markdown"``, ``"json"``, one key per table and ``"xlsx"``.
+        ``"markdown"``, ``"json"``, one key per table, ``"plot"`` and ``"xlsx"``.
     """
     import pandas as pd
 
@@ -87,6 +133,12 @@ def write_diagnosis(
     )
     for name, frame in frames.items():
         paths[name] = write_csv(out / f"{name}.csv", frame)
+    if plots and diagnosis.curves:
+        from gpctools.report.plots import plot_diagnosis_distributions, png_bytes
+
+        ax = plot_diagnosis_distributions(diagnosis.curves,
+                                          title=f"{diagnosis.label}: distributions")
+        paths["plot"] = write_bytes(out / "distributions.png", png_bytes(ax.figure))
     if xlsx:
         # pandas' writer, as before this module existed: keeping it keeps the workbook's
         # cells as they were (gpctools.report.xlsx would quote text starting with "-").

@@ -581,3 +581,52 @@ def plot_arrhenius(label: Mapping[str, str], fit: Any, *, ax: Axes | None = None
     _title(ax, f"{label['agent']} ({label['estimator']}, {label['model']})")
     ax.legend(fontsize=8, frameon=False)
     return ax
+
+
+# ----------------------------------------------------------------------------- diagnosis
+
+
+def plot_diagnosis_distributions(
+    curves: Sequence[Any], *, title: str | None = None, ax: Axes | None = None
+) -> Axes:
+    """Measured dw/dlogM over the distributions predicted for the recipe and the causes.
+
+    Parameters
+    ----------
+    curves : sequence of gpctools.kinetics.DistributionCurve
+        ``label``, ``kind`` (``measured``, ``expected`` or ``cause``), ``M`` [g/mol] and
+        ``dwdlogM`` [-] (as in ``Diagnosis.curves``).
+    title : str, optional
+    ax : matplotlib.axes.Axes, optional
+        Draw here; default a new 6.4 × 4.0 inch figure.
+
+    Returns
+    -------
+    matplotlib.axes.Axes
+
+    Notes
+    -----
+    Predicted curves are the instantaneous (low-conversion) distributions of the model;
+    real samples are broader (conversion drift, band broadening), so compare positions
+    and tails rather than heights.
+    """
+    ax = _axes(ax, 6.4, 4.0)
+    colours = iter(PALETTE[1:])
+    for c in curves:
+        M = np.asarray(c.M, dtype=float)
+        w = np.asarray(c.dwdlogM, dtype=float)
+        if c.kind == "measured":
+            ax.plot(M, w, "-", color=_INK, linewidth=2.0, label=c.label, zorder=3)
+        elif c.kind == "expected":
+            ax.plot(M, w, "--", color=PALETTE[0], linewidth=1.4, label=c.label)
+        else:
+            ax.plot(M, w, "-", color=next(colours, PALETTE[-1]), linewidth=1.1, label=c.label)
+    ax.set_xscale("log")
+    ax.set_xlabel("M [g/mol]")
+    ax.set_ylabel("dw/dlogM [-]")
+    _title(ax, title or "measured and predicted distributions (instantaneous model)")
+    ax.legend(fontsize=7, frameon=False)
+    return ax
+
+
+__all__ += ["plot_diagnosis_distributions"]

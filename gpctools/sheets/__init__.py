@@ -11,17 +11,20 @@ this package gives the table its meaning, the same way for every sheet:
 * one module per sheet kind with its schema: :mod:`~gpctools.sheets.standards`
   (:data:`STANDARDS`), :mod:`~gpctools.sheets.batch` (:data:`BATCH`),
   :mod:`~gpctools.sheets.run_series` (:data:`RUN_SERIES`),
-  :mod:`~gpctools.sheets.spec_limits` (:data:`SPEC_LIMITS`).
+  :mod:`~gpctools.sheets.spec_limits` (:data:`SPEC_LIMITS`),
+  :mod:`~gpctools.sheets.recipe` (:data:`RECIPE`, one row per recipe key).
 
 The domain readers build their results from the checked rows:
 :func:`gpctools.batch.read_batch_sheet`, :func:`gpctools.method.load_method` (standards
-file), :func:`gpctools.transfer.read_run_series`, :func:`gpctools.qc.read_specs`.
+file), :func:`gpctools.transfer.read_run_series`, :func:`gpctools.qc.read_specs`,
+:func:`gpctools.kinetics.load_recipe` (recipe sheets).
 """
 
 from __future__ import annotations
 
 from gpctools.sheets.batch import BATCH
 from gpctools.sheets.cells import CellError, finite_or_none, parse_number, split_header
+from gpctools.sheets.recipe import RECIPE
 from gpctools.sheets.run_series import RUN_SERIES
 from gpctools.sheets.schema import (
     CheckedSheet,
@@ -37,6 +40,7 @@ from gpctools.sheets.standards import STANDARDS
 
 __all__ = [
     "BATCH",
+    "RECIPE",
     "RUN_SERIES",
     "SPEC_LIMITS",
     "STANDARDS",

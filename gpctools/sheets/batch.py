@@ -119,7 +119,7 @@ BATCH = SheetSchema(
         Field("baseline_2_end", "baseline 2 end [mL]", aliases=("baseline window 2 end",),
               unit="mL", minimum=0.0, example="22.0", meaning="second baseline window, end"),
     ),
-    template="templates/batch.csv",
+    template="batch.csv",
     column_error=InputFormatError,
     cell_error=InputFormatError,
 )

@@ -143,7 +143,7 @@ RUN_SERIES = SheetSchema(
                     "'u(residual [A]) [mol/L]'"),
     ),
     one_of=(("file", "Mn", "Mw"),),
-    template="templates/run_series.csv",
+    template="run_series.csv",
     column_error=InputFormatError,
     cell_error=DataError,
 )

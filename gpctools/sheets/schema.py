@@ -228,7 +228,8 @@ class SheetSchema:
     extras : str
         ``"keep"``: other columns become row metadata; ``"refuse"``: they are an error.
     template : str or None
-        The starter file, named in column messages (``"templates/batch.csv"``).
+        The starter file, named in column messages (``"batch.csv"``: written by
+        ``gpctools template batch.csv``).
     column_error, cell_error : type of GpcError
         Error classes for faults of the table's shape and of single cells.
     row_hint : str
@@ -290,8 +291,13 @@ def message_missing_column(schema: SheetSchema, f: Field, found: Sequence[str]) 
     names = _accepted_names(f)
     also = f" (also accepted: {', '.join(repr(n) for n in names)})" if names else ""
     listed = ", ".join(repr(c) for c in found) if found else "none"
-    where = f"; see {schema.template}" if schema.template else ""
+    where = f"; see {_starter(schema)}" if schema.template else ""
     return f"the {schema.kind} needs a {f.header!r} column{also}; found columns: {listed}{where}"
+
+
+def _starter(schema: SheetSchema) -> str:
+    """How a user gets the starter file, installed or not: ``gpctools template NAME``."""
+    return f"the starter file (gpctools template {schema.template})"
 
 
 def _accepted_names(f: Field) -> list[str]:
@@ -313,7 +319,7 @@ def message_missing_one_of(schema: SheetSchema, fields: Sequence[Field], found: 
 
     heads = ", ".join(accepted(f) for f in fields)
     listed = ", ".join(repr(c) for c in found) if found else "none"
-    where = f"; see {schema.template}" if schema.template else ""
+    where = f"; see {_starter(schema)}" if schema.template else ""
     return f"the {schema.kind} needs one of the columns {heads}; found columns: {listed}{where}"
 
 
@@ -330,7 +336,7 @@ def message_two_columns(f: Field, first: str, second: str) -> str:
 
 def message_no_rows(schema: SheetSchema) -> str:
     """``the <sheet> has a header but no <row noun> rows; add one row per <row noun>``."""
-    where = f" (see {schema.template})" if schema.template else ""
+    where = f" (see {_starter(schema)})" if schema.template else ""
     return (f"the {schema.kind} has a header but no {schema.row_noun} rows; add one row per "
             f"{schema.row_noun}{where}")
 

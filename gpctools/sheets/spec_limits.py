@@ -99,7 +99,7 @@ SPEC_LIMITS = SheetSchema(
         FieldFamily("limit", r"(?P<q>.+?)\s+(?P<kind>min|max|target)(?:\s*\(.*\))?", _limit,
                     "'<quantity> <min|max|target> [<unit>]'"),
     ),
-    template="templates/spec_limits.csv",
+    template="spec_limits.csv",
     column_error=InputFormatError,
     cell_error=InputFormatError,
     check_extra=_refuse_unit_header,

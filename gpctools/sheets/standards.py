@@ -61,7 +61,7 @@ STANDARDS = SheetSchema(
               example="15.0", meaning="peak retention time"),
     ),
     one_of=(("volume", "time"),),
-    template="templates/standards.csv",
+    template="standards.csv",
     column_error=MethodError,
     cell_error=MethodError,
     row_hint=_ROW_HINT,
