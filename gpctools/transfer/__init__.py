@@ -49,7 +49,9 @@ from gpctools.transfer.impurity import (
     flag_runs,
     impurity_level,
 )
+from gpctools.transfer.kinetic import KineticTerm, Termination, kinetic_term, termination_mode
 from gpctools.transfer.mayo import DesignCheck, FittedValue, MayoFit, check_design, fit_mayo
+from gpctools.transfer.model import SeriesModel
 from gpctools.transfer.options import TransferOptions
 from gpctools.transfer.series import Run, RunSeries, read_run_series, run_series_from_rows
 
@@ -86,4 +88,9 @@ __all__ = [
     "ImpurityCheck",
     "InterceptCheck",
     "RunFlag",
+    "SeriesModel",
+    "KineticTerm",
+    "Termination",
+    "kinetic_term",
+    "termination_mode",
 ]

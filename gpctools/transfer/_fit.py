@@ -20,13 +20,19 @@ from __future__ import annotations
 
 import math
 from collections.abc import Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
 from gpctools.chainlength import apparent_constant, term_kind
 from gpctools.errors import DataError
-from gpctools.transfer._stats import gauss_newton, t_quantile, weighted_linear_fit, welch_dof
+from gpctools.transfer._stats import (
+    NonlinearFit,
+    gauss_newton,
+    t_quantile,
+    weighted_linear_fit,
+    welch_dof,
+)
 from gpctools.transfer.model import SeriesModel
 
 __all__ = ["Solution", "solve", "interval_parts"]
@@ -123,6 +129,23 @@ def _invert_capp(c_app: float, x: float) -> float:
     return math.sqrt(lo * hi)
 
 
+def _minimise(model: SeriesModel, y: np.ndarray, w: np.ndarray, th0: np.ndarray) -> NonlinearFit:
+    """Weighted least squares: one direct solve for a linear model, else Gauss–Newton."""
+    if not model.is_linear:
+        return gauss_newton(model.predict, model.jacobian, y, w, th0, lower=model.lower)
+    offset = model.predict(np.zeros(len(model.names)))
+    fit = linear_solve(model.linear_design(), y - offset, w)
+    return replace(fit, fitted=fit.fitted + offset)
+
+
+def linear_solve(X: np.ndarray, target: np.ndarray, w: np.ndarray) -> NonlinearFit:
+    """Direct weighted least squares X θ ≈ target in the shape of a Gauss–Newton result."""
+    lin = weighted_linear_fit(X, target, w, scale_covar=False)
+    return NonlinearFit(theta=lin.beta, jacobian=X, fitted=lin.fitted, unscaled=lin.covariance,
+                        chisqr=lin.chisqr, dof=lin.dof, iterations=1, success=lin.success,
+                        message=lin.message)
+
+
 def solve(
     model: SeriesModel,
     y: Sequence[float] | np.ndarray,
@@ -166,11 +189,11 @@ def solve(
         passes = [1.0 / yv]
     else:
         raise DataError(f"weights must be 'relative' or 'equal', not {weights!r}", key="weights")
-    fit = gauss_newton(model.predict, model.jacobian, yv, passes[0], th0, lower=model.lower)
+    fit = _minimise(model, yv, passes[0], th0)
     w = passes[0]
     if sigma is None and weights == "relative" and np.all(fit.fitted > 0):
         w = 1.0 / fit.fitted
-        fit = gauss_newton(model.predict, model.jacobian, yv, w, fit.theta, lower=model.lower)
+        fit = _minimise(model, yv, w, fit.theta)
     dof = yv.size - fit.theta.size
     chisq = float(np.sum(((fit.fitted - yv) * w) ** 2))
     redchi = chisq / dof if dof > 0 else float("nan")

@@ -197,12 +197,18 @@ class SeriesModel:
         R = self.ratios if rows is None else rows
         return {t: (float(c[j]), R[:, j]) for j, t in enumerate(self.terms)}
 
+    @property
+    def is_linear(self) -> bool:
+        """True when the observable is linear in θ (Mn at low conversion)."""
+        return self.estimator == "Mn" and self.conversion is None
+
     def inv_dpn(self, theta: np.ndarray, *, instantaneous: bool = False) -> np.ndarray:
         """1/DPn per run [-]: cumulative at each run's conversion, or at x = 0."""
-        terms = self._terms(theta)
         a0 = self.agent_free(theta)
         if instantaneous or self.conversion is None:
-            return instantaneous_inv_dpn(np.zeros(self.n), a0, terms)
+            # the Mayo sum with initial ratios (every kind of term is linear at x = 0)
+            return a0 + self.ratios @ self.split(theta)[2]
+        terms = self._terms(theta)
         return cumulative_inv_dpn(self.conversion, a0, terms)
 
     # ------------------------------------------------------------------ observables
@@ -220,7 +226,7 @@ class SeriesModel:
         a0 = self.agent_free(theta)
         terms = self._terms(theta)
         if x is None:
-            lam = instantaneous_inv_dpn(np.zeros(self.n), a0, terms)
+            lam = self.inv_dpn(theta, instantaneous=True)
             dpw = (2.0 * lam + 2.0 * b) / (lam + 0.5 * b) ** 2 - 1.0
             return 2.0 / dpw
         return 2.0 / cumulative_dpw(x, a0, terms, beta=b)
@@ -261,7 +267,7 @@ class SeriesModel:
         """d observable/d θ, shape (n, p): analytic for Mn at low conversion, else forward
         differences (each parameter stepped by 1e-6 of its size)."""
         th = np.asarray(theta, dtype=float)
-        if self.estimator == "Mn" and self.conversion is None and self.kinetic_known is None:
+        if self.is_linear:
             cols = [] if self.intercept is not None else [np.ones(self.n)]
             if self.kinetic is not None:
                 cols.append(self.kinetic)
