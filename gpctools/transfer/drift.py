@@ -220,6 +220,7 @@ class DriftFit(FittedConstants):
     kinetic: FittedValue | None = None
     weights: np.ndarray | None = None
     known_sigma: bool = False
+    dof_calibration: float = float("inf")
 
     @property
     def intercept_fixed(self) -> bool:
@@ -405,6 +406,7 @@ def _drift_result(sol: Any, ids: tuple[str, ...], naive: MayoFit | None, confide
         success=sol.success, message=sol.message, warnings=tuple(warns), model=model,
         theta=sol.theta, covariance_calibration=sol.cov_cal, kinetic=vals.get(KINETIC_NAME),
         weights=sol.weights, known_sigma=sol.known_sigma,
+        dof_calibration=sol.dof_cal,
     )
 
 

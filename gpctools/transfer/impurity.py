@@ -92,7 +92,7 @@ GENERIC_C_X = (1.0, 10.0, 100.0)
 #: Factor on the series level α of each ESD step, measured on simulated clean series so
 #: that the false-flag rate per series stays at or below α (bench/bench_transfer.py,
 #: "calibrate"); 1.0 would be Šidák at every step.
-ESD_LEVEL_FACTOR = 1.0
+ESD_LEVEL_FACTOR = 0.5
 #: One-sided level of the F test that decides whether measured noise may be pooled [-].
 POOL_F_LEVEL = 0.05
 #: Smallest relative scatter of one observation the test accepts from a few reference

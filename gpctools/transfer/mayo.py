@@ -431,6 +431,7 @@ class MayoFit(FittedConstants):
     theta: np.ndarray | None = None
     covariance_calibration: np.ndarray | None = None
     kinetic: FittedValue | None = None
+    dof_calibration: float = float("inf")
 
     def _row_matrix(self, columns: Mapping[str, Any]) -> np.ndarray:
         """Rows of the instantaneous line in θ order; missing columns take the design mean."""
@@ -711,4 +712,5 @@ def _mayo_result(sol: Solution, ids: tuple[str, ...], T: np.ndarray, check: Desi
         warnings=tuple(warns), known_sigma=known, model=model, theta=sol.theta,
         covariance_calibration=sol.cov_cal,
         kinetic=vals.get(KINETIC_NAME),
+        dof_calibration=sol.dof_cal,
     )
