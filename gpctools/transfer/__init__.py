@@ -19,7 +19,7 @@ fit_arrhenius(T_K, C, C_stderr) -> ArrheniusFit
 flag_runs(y, columns, ...) -> ImpurityCheck;  check_intercept(fit, expected, ...)
 
 Nothing here writes files: :func:`gpctools.report.write_transfer` writes the tables,
-summary and plots of a :class:`TransferResult`. Heavy modules (lmfit, scipy.optimize) are
+summary and plots of a :class:`TransferResult`. Heavy modules (scipy.special, pandas) are
 imported inside the functions that need them.
 """
 

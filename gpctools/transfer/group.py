@@ -112,6 +112,9 @@ class GroupResult:
         is part of the answer.
     monomer_conc : float
         Mean [M]0 of the fitted runs [mol/L] (NaN when not given).
+    plot_points : dict
+        Estimator -> run id -> the run's observation moved onto the instantaneous 1/DPn
+        scale with the recommended fit (flagged runs included) [-], for the Mayo plot.
     """
 
     series: str
@@ -135,6 +138,7 @@ class GroupResult:
     kinetic: KineticTerm | None = None
     spread: dict[str, dict[str, Any]] = field(default_factory=dict)
     monomer_conc: float = float("nan")
+    plot_points: dict[str, dict[str, float]] = field(default_factory=dict)
 
     def preferred_fit(self, term: str | None = None) -> MayoFit | DriftFit:
         """The fit behind the recommended constant (of ``term``, default the first)."""
@@ -555,15 +559,36 @@ def _group(key: tuple[str, float], runs_all: list[Run], est: dict[str, RunEstima
                   cols=_columns(runs, chosen), termination=term, kinetic=kin, cal=cal)
 
 
-def _test_model(g: _Group, opts: TransferOptions) -> SeriesModel:
-    """The model the impurity test uses: the primary estimator with drift, δ, kinetic term."""
-    kw = g.model_kwargs(g.primary, g.ids)
+def _model_for(g: _Group, estimator: str, opts: TransferOptions, drift: bool) -> SeriesModel:
+    """The model of ``estimator`` over all runs of the group (drift, δ, kinetic term)."""
+    kw = g.model_kwargs(estimator, g.ids)
     T = np.column_stack([g.cols[t] for t in g.terms])
-    return SeriesModel(g.primary, tuple(g.terms), T, g.conv if g.use_drift else None,
+    return SeriesModel(estimator, tuple(g.terms), T, g.conv if drift else None,
                        kw["kinetic"], kw["kinetic_known"], opts.fixed_intercept,
                        kw["delta"], kw["C_M_known"],
                        None if kw["windows"] is None else np.asarray(kw["windows"], dtype=float),
                        kw["M0"])
+
+
+def _test_model(g: _Group, opts: TransferOptions) -> SeriesModel:
+    """The model the impurity test uses: the primary estimator with drift, δ, kinetic term."""
+    return _model_for(g, g.primary, opts, g.use_drift)
+
+
+def _plot_points(g: _Group, fits: dict[str, Any], opts: TransferOptions,
+                 drift: bool) -> dict[str, dict[str, float]]:
+    """Every run's observation on the instantaneous 1/DPn scale with each estimator's
+    recommended fit (flagged runs included), for the Mayo plot: y·λ(0)/ŷ."""
+    out: dict[str, dict[str, float]] = {}
+    for e, f in fits.items():
+        if f.theta is None:
+            continue
+        try:
+            pts = _model_for(g, e, opts, drift).to_inv_dpn(g.y(e, g.ids), f.theta)
+        except (DataError, ValueError):
+            continue
+        out[e] = {i: float(v) for i, v in zip(g.ids, pts, strict=True)}
+    return out
 
 
 def _impurity_test(g: _Group, opts: TransferOptions, warns: list[str]) -> ImpurityCheck | None:
@@ -735,4 +760,5 @@ def analyse_group(key: tuple[str, float], runs_all: list[Run], est: dict[str, Ru
         literature=_literature(g.runs, g.terms, g.agents, g.T, reference),
         warnings=tuple(dict.fromkeys(warns)), termination=g.termination, kinetic=g.kinetic,
         spread=_spread(fits, g.terms), monomer_conc=float(mc.mean()) if mc.size else float("nan"),
+        plot_points=_plot_points(g, fits, opts, bool(dfits)),
     )

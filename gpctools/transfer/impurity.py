@@ -12,9 +12,10 @@ contaminant) adds Δ(1/DPn) = C_X [X]/[M] to the affected runs. Two signatures:
     t_i = r_i/(s_(i) √(1 − h_ii)) (weighted residual r, hat value h, scale s_(i) without
     the run) and declares as contaminated the runs removed up to the **last** step whose
     statistic exceeds its critical value, so two contaminated runs cannot hide each
-    other. The critical value of a step with n_a runs left is the one-sided t quantile at
-    α_k = 1 − (1 − f·α)^(1/n_a) (Šidák over the runs left; f = :data:`ESD_LEVEL_FACTOR`,
-    measured by simulation so that clean series keep the stated false-flag rate).
+    other. The critical value of step k with n_a runs left is the one-sided t quantile at
+    α_k = 1 − (1 − f_k·α)^(1/n_a) (Šidák over the runs left; f_1 = 1 and f_k =
+    :data:`ESD_LEVEL_FACTOR` for k >= 2, measured by simulation so that clean series keep
+    the stated false-flag rate).
     Finally every run is tested against the line of the runs not flagged, and
     "flagged" means exactly "statistic above its threshold" (iterated until stable).
 (b) **the intercept above its expected value** (all runs contaminated alike): 1/DPn0 is
@@ -89,10 +90,12 @@ HUBER_C = 1.345
 MAD_TO_SD = 1.482602218505602
 #: Impurity constants for the equivalent levels when no candidate is named [-].
 GENERIC_C_X = (1.0, 10.0, 100.0)
-#: Factor on the series level α of each ESD step, measured on simulated clean series so
-#: that the false-flag rate per series stays at or below α (bench/bench_transfer.py,
-#: "calibrate"); 1.0 would be Šidák at every step.
-ESD_LEVEL_FACTOR = 0.5
+#: Factor on the series level α of the second and later ESD steps, measured on simulated
+#: clean series so that the false-flag rate per series stays at or below α
+#: (``python bench/bench_transfer.py calibrate``). The first step keeps Šidák's level: on
+#: its own it holds α; the later steps, each another chance for a clean series to be
+#: flagged, share what is left.
+ESD_LEVEL_FACTOR = 0.3
 #: One-sided level of the F test that decides whether measured noise may be pooled [-].
 POOL_F_LEVEL = 0.05
 #: Smallest relative scatter of one observation the test accepts from a few reference
@@ -455,12 +458,15 @@ def _pool(s2: np.ndarray, nu: np.ndarray, ref: np.ndarray,
     return np.maximum(out_s2, SCALE_FLOOR**2), out_nu
 
 
-def _alpha(confidence: float, adjust: str, runs: int) -> float:
-    """Per-run level of a step with ``runs`` runs under test (Šidák for the series)."""
+def _alpha(confidence: float, adjust: str, runs: int, step: int = 1) -> float:
+    """Per-run level of ESD step ``step`` with ``runs`` runs under test: Šidák for the
+    series, times :data:`ESD_LEVEL_FACTOR` from the second step on."""
     a = 1.0 - confidence
+    if step > 1:
+        a *= ESD_LEVEL_FACTOR
     if adjust == "run":
         return a
-    return 1.0 - (1.0 - ESD_LEVEL_FACTOR * a) ** (1.0 / max(runs, 1))
+    return 1.0 - (1.0 - a) ** (1.0 / max(runs, 1))
 
 
 def _esd(lin: _Linear, noise: _Noise, K: int, confidence: float, adjust: str,
@@ -478,7 +484,7 @@ def _esd(lin: _Linear, noise: _Noise, K: int, confidence: float, adjust: str,
         if not np.isfinite(cand[i]):
             break
         runs = int(active.sum())
-        lam = t_upper(_alpha(confidence, adjust, runs), float(dof[i]))
+        lam = t_upper(_alpha(confidence, adjust, runs, len(steps) + 1), float(dof[i]))
         steps.append(ESDStep(ids[i], float(t[i]), lam, float(dof[i]), runs))
         order.append(i)
         active[i] = False
@@ -499,7 +505,9 @@ def _final(lin: _Linear, noise: _Noise, cand: set[int], confidence: float,
         ref = ~flagged
         e, se, t, dof = _loo(lin, ref, noise)
         n_clean = int(ref.sum())
-        thr = np.array([t_upper(_alpha(confidence, adjust, n_clean + (1 if flagged[i] else 0)),
+        k = int(flagged.sum())
+        thr = np.array([t_upper(_alpha(confidence, adjust, n_clean + (1 if flagged[i] else 0),
+                                       k if flagged[i] else k + 1),
                                 float(dof[i])) if np.isfinite(dof[i]) else np.nan
                         for i in range(n)])
         stats = (e, se, t, dof, thr)
