@@ -195,7 +195,15 @@ def _group_label(series: str, T: float) -> str:
 
 
 def _choose_terms(runs: Sequence[Run], all_terms: Sequence[str], terms: Sequence[str] | None,
-                  label: str) -> list[str]:
+                  label: str, notes: list[str] | None = None) -> list[str]:
+    """The terms to fit: those asked for, or every species whose amount varies by design.
+
+    Automatically a term enters when its concentration (where given, else its ratio)
+    spans about 2-fold (:func:`_spans`); a species diluted together with the monomer at a
+    constant charge is not a design for its constant. The initiator needs 3 or more
+    levels: with 2 any dependence on [I] can be written with the kinetic term √[I]/[M],
+    so C_I cannot be told from it (the refusal is noted).
+    """
     if terms:
         chosen = []
         for t in terms:
@@ -213,9 +221,17 @@ def _choose_terms(runs: Sequence[Run], all_terms: Sequence[str], terms: Sequence
         return chosen
     chosen = []
     for t in all_terms:
-        vals = np.array([r.ratios.get(t, 0.0) for r in runs])
-        if _spans(vals):
-            chosen.append(t)
+        conc = np.array([r.agent_conc.get(t, np.nan) for r in runs], dtype=float)
+        vals = conc if np.all(np.isfinite(conc)) else np.array([r.ratios.get(t, 0.0) for r in runs])
+        if not _spans(vals):
+            continue
+        if t == "C_I" and np.unique(np.round(vals, 12)).size < 3:
+            if notes is not None:
+                notes.append(f"{label}: C_I left out: [I] has only 2 levels, and with 2 levels "
+                             "the initiator's transfer cannot be told from the kinetic term "
+                             "sqrt([I])/[M]; use 3 or more levels, or ask for it (terms)")
+            continue
+        chosen.append(t)
     if not chosen:
         raise DesignError(
             f"{label}: no agent, solvent or initiator ratio varies across its runs, so there "
@@ -539,7 +555,7 @@ def _group(key: tuple[str, float], runs_all: list[Run], est: dict[str, RunEstima
     failed = [r.run_id for r in runs_all if r.role != "skip" and est[r.run_id].error]
     if failed:
         warns.append(f"{label}: runs {', '.join(failed)} could not be processed and are left out")
-    chosen = _choose_terms(runs, series.terms, opts.terms, label)
+    chosen = _choose_terms(runs, series.terms, opts.terms, label, warns)
     agents = _agent_names(runs, chosen, label)
     monomers = sorted({r.monomer or f"M0 = {r.M0:g} g/mol" for r in runs})
     if len(monomers) > 1:

@@ -335,7 +335,7 @@ def _kinetic_refusal(what: str, terms: Sequence[str], label: str, rank: int, p: 
         "1/[M] and [S]/[M] move together). Add one of: a second initiator level at each "
         "dilution ('[I] [mol/L]'), measured rates ('R_p [mol/L/s]') where they do not follow "
         "sqrt([I])/[M], or a known C_M (--C-M; C_S then rests on it), or ask for the kinetic "
-        "term from reference data (--kinetic-term-from reference)"
+        "term from reference data (kinetic = 'reference', --kinetic reference)"
     )
 
 
