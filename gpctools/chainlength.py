@@ -504,7 +504,7 @@ def _shape(x: np.ndarray, terms: Terms) -> tuple[int, ...]:
     return np.broadcast_shapes(x.shape, *[np.shape(r) for _, r in terms.values()])
 
 
-def instantaneous_inv_dpn(x: ArrayLike, inv_DPn0: float, terms: Terms) -> NDArray[np.float64]:
+def instantaneous_inv_dpn(x: ArrayLike, inv_DPn0: ArrayLike, terms: Terms) -> NDArray[np.float64]:
     """Instantaneous dead chains per monomer converted at conversion x, λ(x) = 1/DPn [-].
 
     λ(x) = 1/DPn0 + Σ_consumed C r0 (1 − x)^(C − 1) + C_I r0/(1 − x) + C_M: the Mayo sum
@@ -540,7 +540,7 @@ def instantaneous_inv_dpn(x: ArrayLike, inv_DPn0: float, terms: Terms) -> NDArra
     return lam
 
 
-def cumulative_inv_dpn(x: ArrayLike, inv_DPn0: float, terms: Terms) -> NDArray[np.float64]:
+def cumulative_inv_dpn(x: ArrayLike, inv_DPn0: ArrayLike, terms: Terms) -> NDArray[np.float64]:
     """Cumulative 1/DPn at conversion x, (1/x) ∫0^x λ dx' in closed form [-].
 
     Consumed terms give r0 (1 − (1 − x)^C)/x, the initiator term C r0 (−ln(1 − x))/x, C_M
@@ -582,7 +582,7 @@ def _unit_nodes(n: int) -> tuple[np.ndarray, np.ndarray]:
     return u, w
 
 
-def _lambda_nodes(x: ArrayLike, inv_DPn0: float, terms: Terms,
+def _lambda_nodes(x: ArrayLike, inv_DPn0: ArrayLike, terms: Terms,
                   nodes: int) -> tuple[np.ndarray, np.ndarray]:
     """λ at the conversion nodes, shape (..., nodes), and the weights of the mean over [0, x]."""
     u, w = _unit_nodes(nodes)
@@ -602,8 +602,8 @@ def conversion_nodes(nodes: int = N_NODES) -> tuple[np.ndarray, np.ndarray]:
     return _unit_nodes(nodes)
 
 
-def cumulative_dpw(x: ArrayLike, inv_DPn0: float, terms: Terms, *,
-                   nodes: int = N_NODES, beta: float = 0.0) -> NDArray[np.float64]:
+def cumulative_dpw(x: ArrayLike, inv_DPn0: ArrayLike, terms: Terms, *,
+                   nodes: int = N_NODES, beta: ArrayLike = 0.0) -> NDArray[np.float64]:
     """Cumulative weight-average degree of polymerization at conversion x [-].
 
     DPw,cum = (1/x) ∫0^x DPw,inst dx' (mass-weighted mixture of instantaneous

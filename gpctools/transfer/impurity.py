@@ -95,11 +95,11 @@ GENERIC_C_X = (1.0, 10.0, 100.0)
 #: (``python bench/bench_transfer.py calibrate``). The first step keeps Šidák's level: on
 #: its own it holds α; the later steps, each another chance for a clean series to be
 #: flagged, share what is left.
-ESD_LEVEL_FACTOR = 0.3
+ESD_LEVEL_FACTOR = 0.5
 #: Factor on the series level α of the first ESD step (and of the final test when nothing
 #: is flagged), from the same simulations: regression residuals are not independent, and
 #: Šidák's level alone let clean series be flagged about 1.3 % of the time at α = 1 %.
-ESD_FIRST_FACTOR = 0.7
+ESD_FIRST_FACTOR = 0.75
 #: One-sided level of the F test that decides whether measured noise may be pooled [-].
 POOL_F_LEVEL = 0.05
 #: Smallest relative scatter of one observation the test accepts from a few reference

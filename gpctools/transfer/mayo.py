@@ -287,8 +287,8 @@ def check_design(
         ss_res = float(resid @ resid)
         vif[name] = float("inf") if ss_res <= 1e-18 * max(ss_tot, 1e-300) else ss_tot / ss_res
     if rank < p and kinetic is not None and vif.get(KINETIC_NAME, 0.0) > 1e8:
-        others = [t for t in term_names if t in ("C_S", "C_I", "C_M") and vif.get(t, 0) > 1e8]
-        raise DesignError(_kinetic_refusal(what, others or term_names, kinetic_label, rank, p),
+        culprit_terms = [t for t in term_names if t in ("C_S", "C_I", "C_M") and vif.get(t, 0) > 1e8]
+        raise DesignError(_kinetic_refusal(what, culprit_terms or term_names, kinetic_label, rank, p),
                           key="kinetic_term")
     if rank < p:
         culprits = [k for k, v in vif.items() if not np.isfinite(v) or v > 1e8]
@@ -437,7 +437,7 @@ class MayoFit(FittedConstants):
         """Rows of the instantaneous line in θ order; missing columns take the design mean."""
         names = self.model.names if self.model is not None else (
             (() if self.intercept_fixed else ("1/DPn0",)) + self.terms)
-        cols = []
+        cols: list[np.ndarray | None] = []
         for name in names:
             if name == "1/DPn0":
                 cols.append(None)

@@ -219,7 +219,7 @@ def _dpn_from_mw(e: Any, g: GroupResult | None) -> float:
     beta = 0.0
     if g is not None:
         f = g.drift.get("Mw/2") or g.mayo.get("Mw/2")
-        if f is not None and f.model is not None and e.run.run_id in f.run_ids:
+        if f is not None and f.model is not None and f.theta is not None and e.run.run_id in f.run_ids:
             beta = float(f.model.beta(f.theta)[f.run_ids.index(e.run.run_id)])
     return float(1.0 / inv_dpn_from_dpw(2.0 / y, beta))
 
