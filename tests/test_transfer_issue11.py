@@ -424,3 +424,31 @@ def test_replicate_injections_give_the_noise(tmp_path):
     # the run's relative uncertainty is the replicate SD/√2 (numpy), with 1 dof
     assert e.rel_u["Mw/2"] == pytest.approx(np.std(obs, ddof=1) / np.mean(obs) / math.sqrt(2))
     assert e.rel_u_dof["Mw/2"] == 1.0
+
+
+# ======================================================================= plots
+
+
+def test_mayo_plot_leads_with_the_recommended_fit_and_keeps_the_legend_off_the_runs():
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+
+    from gpctools.report import plots as P
+
+    R = np.linspace(0, 4e-4, 8)
+    xs = np.linspace(0.03, 0.1, 8)
+    rows = simulate_series(R, C_A=C_DDM, inv_DPn0=5e-4, M0=M0_ST, conversion=xs,
+                           rel_noise=0.01, seed=3, impurity={2: 5e-4, 5: 8e-4})
+    res = analyse_series(series=run_series_from_rows(rows))
+    g = res.group()
+    assert set(g.impurity.flagged_ids) == {"R3", "R6"}
+    fig = P.mayo_group_figure(res, g)
+    FigureCanvasAgg(fig).draw()
+    ax = fig.axes[0]
+    assert ax.lines[0].get_label().startswith("recommended")  # drawn first
+    assert {t.get_text() for t in ax.texts} >= {"R3", "R6"}  # flagged runs labelled
+    leg = ax.get_legend().get_window_extent()
+    for line in ax.lines:
+        for xy in ax.transData.transform(np.column_stack(line.get_data())):
+            assert not leg.contains(*xy)  # no run (or line point) under the legend
+    res_ax = fig.axes[len(g.mayo)]  # first residual panel: one point per run
+    assert res_ax.get_ylabel().endswith("[%]")

@@ -530,12 +530,20 @@ def plot_mayo_residuals(result: Any, group: Any, estimator: str, *,
         what = "excess over the line of the other runs [%]"
     else:
         fit, _ = _recommended(group, estimator)
+        runs = {r.run_id: r for r in result.series.runs}
+        pts = group.plot_points.get(estimator, {})
         res = dict(zip(fit.run_ids, fit.residuals, strict=True))
-        ex = 100 * np.array([res.get(k, np.nan) for k in ids])
+        ex = np.empty(len(ids))
+        for j, k in enumerate(ids):
+            if k in pts:  # every run, flagged ones too, against the recommended line
+                line = float(fit.predict({t: np.array([_ratio(runs[k], t)]) for t in group.terms})[0])
+                ex[j] = 100 * (pts[k] / line - 1)
+            else:
+                ex[j] = 100 * res.get(k, np.nan)
         scat = math.sqrt(fit.redchi) if math.isfinite(fit.redchi) else np.nan
         err = np.full(len(ids), 100 * scat)
         flagged = np.array([k in group.excluded for k in ids])
-        what = "residual about the fit [%]"
+        what = "residual about the line [%]"
     ax.axhline(0.0, color=_INK, linewidth=0.8)
     ok = ~flagged
     ax.errorbar(pos[ok], ex[ok], yerr=np.where(np.isfinite(err[ok]), err[ok], 0), fmt="o",

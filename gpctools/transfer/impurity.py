@@ -99,7 +99,7 @@ ESD_LEVEL_FACTOR = 0.5
 #: Factor on the series level α of the first ESD step (and of the final test when nothing
 #: is flagged), from the same simulations: regression residuals are not independent, and
 #: Šidák's level alone let clean series be flagged about 1.3 % of the time at α = 1 %.
-ESD_FIRST_FACTOR = 0.75
+ESD_FIRST_FACTOR = 0.6
 #: One-sided level of the F test that decides whether measured noise may be pooled [-].
 POOL_F_LEVEL = 0.05
 #: Smallest relative scatter of one observation the test accepts from a few reference
