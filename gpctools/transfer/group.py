@@ -656,19 +656,25 @@ def _final_fits(g: _Group, keep: list[str],
     return mayo, dfits
 
 
-def _control_inv_dpn(g: _Group, fit: Any) -> np.ndarray:
+def _control_inv_dpn(g: _Group, fit: Any) -> tuple[np.ndarray, float]:
     """The control runs' observations on the 1/DPn scale (Mw/2: the mixed-termination
-    inversion with the fit's β; CLD: the model's ratio at zero agent)."""
+    inversion with the fit's β; CLD: the model's ratio at zero agent), and the
+    sensitivity d ln(1/DPn)/d ln(observation) that carries a relative error across
+    (with combination 2 M0/Mw moves less than 1/DPn, so its error is amplified)."""
     ys = np.array([g.est[r.run_id].y(g.primary) for r in g.controls])
     model = getattr(fit, "model", None)
     if model is None or g.primary == "Mn":
-        return ys
+        return ys, 1.0
     theta = fit.theta
     beta = float(np.mean(model.beta(theta)))
     if g.primary == "Mw/2":
-        return inv_dpn_from_dpw(2.0 / ys, beta)
+        lam = inv_dpn_from_dpw(2.0 / ys, beta)
+        eps = 1e-6
+        lam2 = inv_dpn_from_dpw(2.0 / (ys * (1 + eps)), beta)
+        sens = float(np.mean(np.abs(np.log(lam2 / lam)) / eps)) if ys.size else 1.0
+        return lam, sens
     ratio = float(np.mean(model.inv_dpn(theta, instantaneous=True) / model.predict(theta, instantaneous=True)))
-    return ys * ratio
+    return ys * ratio, 1.0
 
 
 def _intercept_check(fit: Any, g: _Group, opts: TransferOptions) -> InterceptCheck | None:
@@ -692,7 +698,7 @@ def _intercept_check(fit: Any, g: _Group, opts: TransferOptions) -> InterceptChe
         return check_intercept(fit, e, se, source="given value", confidence=conf, C_X=C_X,
                                monomer_conc=mconc)
     if g.controls:
-        ys = _control_inv_dpn(g, fit)
+        ys, sens = _control_inv_dpn(g, fit)
         ys = ys[np.isfinite(ys)]
         if ys.size:
             if ys.size > 1:
@@ -701,7 +707,7 @@ def _intercept_check(fit: Any, g: _Group, opts: TransferOptions) -> InterceptChe
                 rel = getattr(fit, "relative_scatter", float("nan"))
                 if not math.isfinite(rel):
                     rel = math.sqrt(fit.redchi) if math.isfinite(fit.redchi) else 0.0
-                e, se = float(ys[0]), float(ys[0] * rel)
+                e, se = float(ys[0]), float(ys[0] * rel * sens)
             src = (f"control run{'s' if ys.size > 1 else ''} "
                    f"{', '.join(r.run_id for r in g.controls)} (on the 1/DPn scale)")
             return check_intercept(fit, e, se, source=src, confidence=conf, C_X=C_X,
