@@ -452,3 +452,18 @@ def test_mayo_plot_leads_with_the_recommended_fit_and_keeps_the_legend_off_the_r
             assert not leg.contains(*xy)  # no run (or line point) under the legend
     res_ax = fig.axes[len(g.mayo)]  # first residual panel: one point per run
     assert res_ax.get_ylabel().endswith("[%]")
+
+
+def test_dispersities_that_contradict_delta_are_reported():
+    # most-probable polymer (simulate_series, no combination) labelled styrene (bundled
+    # δ = 0.1): Mw/Mn near 2 where δ = 0.1 predicts about 1.6-1.8 [derived, section 4.3]
+    R = np.array([0.0, 0.5e-4, 1.0e-4, 2.0e-4, 3.0e-4, 4.0e-4])
+    rows = simulate_series(R, C_A=C_DDM, inv_DPn0=5e-4, M0=M0_ST, rel_noise=0.01, seed=21)
+    for r in rows:
+        r["monomer"] = "styrene"
+    res = analyse_series(series=run_series_from_rows(rows))
+    assert any("do not match delta = 0.1" in w for w in res.warnings)
+    # consistent data (the kinetic scheme with the bundled δ): no such warning
+    spec = [{"[M]": 8.0, "[A]": 8.0 * r, "x": 0.05} for r in R]
+    ok = analyse_series(series=_rows(kinetic_series(spec, C_A=C_DDM, rel_noise=0.005, seed=3)))
+    assert not any("do not match" in w for w in ok.warnings)

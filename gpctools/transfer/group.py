@@ -725,6 +725,41 @@ def _intercept_check(fit: Any, g: _Group, opts: TransferOptions) -> InterceptChe
     return None
 
 
+#: Largest median |ln(Đ_observed/Đ_model)| before the termination mode is questioned [-]
+#: (our choice: band broadening alone raises Đ by a few %, docs/science.md, section 12).
+DISPERSITY_TOLERANCE = 0.08
+
+
+def _dispersity_check(g: _Group, fits: dict[str, Any], opts: TransferOptions,
+                      drift: bool) -> str | None:
+    """Do the runs' Mw/Mn agree with δ? Mn does not depend on δ, so the Mn fit's θ predicts
+    each run's dispersity 2 ŷ_n/ŷ_w through the Mw/2 model; a median mismatch beyond
+    DISPERSITY_TOLERANCE over the third of the runs with the longest chains is reported
+    with what to check."""
+    if "Mn" not in fits or "Mw/2" not in fits or fits["Mn"].theta is None:
+        return None
+    try:
+        th = fits["Mn"].theta
+        yn = _model_for(g, "Mn", opts, drift).predict(th)
+        yw = _model_for(g, "Mw/2", opts, drift).predict(th)
+    except (DataError, ValueError):
+        return None
+    obs = 2.0 * g.y("Mn", g.ids) / g.y("Mw/2", g.ids)
+    pred = 2.0 * yn / yw
+    # the longest chains (lowest 1/DPn, a third of the runs) carry the termination mode;
+    # at high agent levels transfer dominates and every δ predicts Đ near 2
+    low = np.argsort(yn)[: max(1, len(yn) // 3)]
+    obs, pred = obs[low], pred[low]
+    dev = float(np.median(np.log(obs / pred)))
+    if not math.isfinite(dev) or abs(dev) <= DISPERSITY_TOLERANCE:
+        return None
+    d = g.termination.delta
+    return (f"{g.label}: the runs' dispersities (median Mw/Mn {float(np.median(obs)):.3g}) do not "
+            f"match delta = {d:g} ({g.termination.source.split(':')[0]}), which predicts "
+            f"{float(np.median(pred)):.3g}: Mw/2 and CLD rest on delta; check it (sheet column "
+            "'delta [-]' or --delta), or band broadening; the Mn estimator does not depend on it")
+
+
 def _spread(fits: dict[str, Any], terms: Sequence[str]) -> dict[str, dict[str, Any]]:
     """Per term: each estimator's constant, min, max, and whether two disagree beyond
     DISAGREE_Z of their statistical standard errors (the calibration is common to both)."""
@@ -770,6 +805,9 @@ def analyse_group(key: tuple[str, float], runs_all: list[Run], est: dict[str, Ru
     model = MODEL_DRIFT if dfits else MODEL_MAYO
     fits: dict[str, Any] = dfits if dfits else mayo
     pref_est = next(e for e in PREFERENCE if e in fits)
+    disp = _dispersity_check(g, fits, opts, bool(dfits))
+    if disp:
+        warns.append(disp)
     comparison = (_compare(fits, g.terms, g.runs, est, g.label, model)
                   + _naive_bias_notes(g, dfits, pref_est))
     mc = g.mconc[np.isfinite(g.mconc)]
