@@ -475,8 +475,11 @@ def kinetic_series(
     term = ref.termination(monomer)
     ini = ref.initiator(initiator)
     kp, kt = mono.k_p(T), term.k_t_iupac
-    d = float(term.delta if delta is None else delta)
-    cm = float(mono.C_M if C_M is None else C_M)
+    d_val = term.delta if delta is None else delta
+    cm_val = mono.C_M if C_M is None else C_M
+    if d_val is None or cm_val is None:
+        raise DataError(f"no bundled delta or C_M for {monomer!r}: give delta and C_M")
+    d, cm = float(d_val), float(cm_val)
     rng = np.random.default_rng(seed)
     rows = []
     for i, spec in enumerate(runs):
