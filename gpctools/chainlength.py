@@ -60,6 +60,8 @@ __all__ = [
     "N_NODES",
     "agent_ratio",
     "apparent_constant",
+    "combination_stops",
+    "conversion_nodes",
     "cumulative_averages",
     "cumulative_dpw",
     "cumulative_inv_dpn",
@@ -69,6 +71,7 @@ __all__ = [
     "impurity_ratio",
     "impurity_ratio_cumulative",
     "instantaneous_inv_dpn",
+    "inv_dpn_from_dpw",
     "kinetic_inv_dpn",
     "mayo_inv_dpn",
     "mixed_termination",
@@ -501,7 +504,7 @@ def _shape(x: np.ndarray, terms: Terms) -> tuple[int, ...]:
     return np.broadcast_shapes(x.shape, *[np.shape(r) for _, r in terms.values()])
 
 
-def instantaneous_inv_dpn(x: ArrayLike, inv_DPn0: float, terms: Terms) -> NDArray[np.float64]:
+def instantaneous_inv_dpn(x: ArrayLike, inv_DPn0: ArrayLike, terms: Terms) -> NDArray[np.float64]:
     """Instantaneous dead chains per monomer converted at conversion x, λ(x) = 1/DPn [-].
 
     λ(x) = 1/DPn0 + Σ_consumed C r0 (1 − x)^(C − 1) + C_I r0/(1 − x) + C_M: the Mayo sum
@@ -511,8 +514,9 @@ def instantaneous_inv_dpn(x: ArrayLike, inv_DPn0: float, terms: Terms) -> NDArra
     ----------
     x : array-like
         Conversion(s) [-]; broadcast against the initial ratios.
-    inv_DPn0 : float
-        Agent-free 1/DPn0 (kinetic term), constant over conversion [-].
+    inv_DPn0 : float or array
+        Agent-free 1/DPn0 (kinetic term), constant over conversion [-]; an array gives one
+        value per run (broadcast against the ratios).
     terms : mapping
         Term (``C_A``, ``C_A:<agent>``, ``C_S``, ``C_I``, ``C_M``) -> (C [-], r0 [-]), r0 the
         initial ratio [X]0/[M]0 (array or float; for ``C_M`` it only sets the shape).
@@ -522,7 +526,8 @@ def instantaneous_inv_dpn(x: ArrayLike, inv_DPn0: float, terms: Terms) -> NDArra
     Mayo, J. Am. Chem. Soc. 1943; docs/science.md, section 5 [derived].
     """
     xp = np.asarray(x, dtype=float)
-    lam = np.full(_shape(xp, terms), float(inv_DPn0))
+    a = np.asarray(inv_DPn0, dtype=float)
+    lam = np.array(np.broadcast_to(a, np.broadcast_shapes(_shape(xp, terms), a.shape)))
     for term, (C, r0) in terms.items():
         kind = term_kind(term)
         r = np.asarray(r0, dtype=float)
@@ -535,7 +540,7 @@ def instantaneous_inv_dpn(x: ArrayLike, inv_DPn0: float, terms: Terms) -> NDArra
     return lam
 
 
-def cumulative_inv_dpn(x: ArrayLike, inv_DPn0: float, terms: Terms) -> NDArray[np.float64]:
+def cumulative_inv_dpn(x: ArrayLike, inv_DPn0: ArrayLike, terms: Terms) -> NDArray[np.float64]:
     """Cumulative 1/DPn at conversion x, (1/x) ∫0^x λ dx' in closed form [-].
 
     Consumed terms give r0 (1 − (1 − x)^C)/x, the initiator term C r0 (−ln(1 − x))/x, C_M
@@ -551,7 +556,8 @@ def cumulative_inv_dpn(x: ArrayLike, inv_DPn0: float, terms: Terms) -> NDArray[n
     docs/science.md, section 5 [derived]: DPn,cum(x) = x/[x/DPn0 + r0 (1 − (1 − x)^C_A)].
     """
     xv = np.asarray(x, dtype=float)
-    out = np.full(_shape(xv, terms), float(inv_DPn0))
+    a = np.asarray(inv_DPn0, dtype=float)
+    out = np.array(np.broadcast_to(a, np.broadcast_shapes(_shape(xv, terms), a.shape)))
     zero = xv == 0
     with np.errstate(divide="ignore", invalid="ignore"):
         for term, (C, r0) in terms.items():
@@ -576,23 +582,35 @@ def _unit_nodes(n: int) -> tuple[np.ndarray, np.ndarray]:
     return u, w
 
 
-def _lambda_nodes(x: ArrayLike, inv_DPn0: float, terms: Terms,
+def _lambda_nodes(x: ArrayLike, inv_DPn0: ArrayLike, terms: Terms,
                   nodes: int) -> tuple[np.ndarray, np.ndarray]:
     """λ at the conversion nodes, shape (..., nodes), and the weights of the mean over [0, x]."""
     u, w = _unit_nodes(nodes)
     xp = np.asarray(x, dtype=float)[..., None] * u
     columns = {k: (C, np.asarray(r, dtype=float)[..., None] if np.ndim(r) else r)
                for k, (C, r) in terms.items()}
-    return instantaneous_inv_dpn(xp, inv_DPn0, columns), w
+    a = np.asarray(inv_DPn0, dtype=float)
+    return instantaneous_inv_dpn(xp, a[..., None] if a.ndim else a, columns), w
 
 
-def cumulative_dpw(x: ArrayLike, inv_DPn0: float, terms: Terms, *,
-                   nodes: int = N_NODES) -> NDArray[np.float64]:
+def conversion_nodes(nodes: int = N_NODES) -> tuple[np.ndarray, np.ndarray]:
+    """Gauss–Legendre nodes u on [0, 1] and weights w with Σ w = 1 (read-only arrays).
+
+    The mean of f over conversion [0, x] is Σ w f(x u) (exact for polynomials of degree
+    < 2 ``nodes``); the conversion integrals of this module use them.
+    """
+    return _unit_nodes(nodes)
+
+
+def cumulative_dpw(x: ArrayLike, inv_DPn0: ArrayLike, terms: Terms, *,
+                   nodes: int = N_NODES, beta: ArrayLike = 0.0) -> NDArray[np.float64]:
     """Cumulative weight-average degree of polymerization at conversion x [-].
 
-    DPw,cum = (1/x) ∫0^x (2 − λ)/λ dx' (mass-weighted mixture of instantaneous discrete
-    most-probable distributions, whose DPw is (2 − λ)/λ), by Gauss–Legendre quadrature;
-    Mw,cum = M0 DPw,cum.
+    DPw,cum = (1/x) ∫0^x DPw,inst dx' (mass-weighted mixture of instantaneous
+    distributions), by Gauss–Legendre quadrature; Mw,cum = M0 DPw,cum. Without
+    combination (``beta = 0``) DPw,inst = (2 − λ)/λ, the discrete most-probable value;
+    with combination DPw,inst = (2τ + 3β)/σ² − 1 = (2λ + 2β)/(λ + β/2)² − 1
+    (:class:`MixedTermination`, discrete form), τ = λ − β/2, σ = λ + β/2.
 
     Parameters
     ----------
@@ -600,17 +618,27 @@ def cumulative_dpw(x: ArrayLike, inv_DPn0: float, terms: Terms, *,
         As for :func:`instantaneous_inv_dpn`.
     nodes : int
         Quadrature nodes over conversion.
+    beta : float or array
+        Radical stops by combination per propagation step, constant over conversion [-]
+        (:func:`combination_stops`); 0 for termination without combination. An array
+        broadcasts against the runs.
 
     References
     ----------
-    docs/science.md, section 5 [derived]; Flory 1953 (DPw of the discrete distribution).
+    docs/science.md, sections 4.3 and 5 [derived]; Flory 1953 (DPw of the discrete
+    distribution); Clay and Gilbert, Macromolecules 1995 (mixed termination).
     """
     lam, w = _lambda_nodes(x, inv_DPn0, terms, nodes)
-    return np.sum(w * (2.0 - lam) / lam, axis=-1)
+    b = np.asarray(beta, dtype=float)
+    if b.ndim:
+        b = b[..., None]
+    if not np.any(b):
+        return np.sum(w * (2.0 - lam) / lam, axis=-1)
+    return np.sum(w * ((2.0 * lam + 2.0 * b) / (lam + 0.5 * b) ** 2 - 1.0), axis=-1)
 
 
 def cumulative_averages(x: float, inv_DPn0: float, terms: Terms, M0: float, *,
-                        nodes: int = N_NODES) -> tuple[float, float]:
+                        nodes: int = N_NODES, beta: float = 0.0) -> tuple[float, float]:
     """Cumulative Mn and Mw [g/mol] of the polymer formed up to conversion x.
 
     Mn = M0/(1/DPn,cum) (closed form, :func:`cumulative_inv_dpn`) and
@@ -627,24 +655,29 @@ def cumulative_averages(x: float, inv_DPn0: float, terms: Terms, M0: float, *,
         Repeat-unit molar mass [g/mol].
     nodes : int
         Quadrature nodes over conversion.
+    beta : float
+        Radical stops by combination per propagation step [-] (:func:`cumulative_dpw`);
+        Mn does not depend on it (1/DPn = τ + β/2 is the Mayo sum either way).
 
     References
     ----------
-    docs/science.md, section 5 [derived].
+    docs/science.md, sections 4.3 and 5 [derived].
     """
     inv = cumulative_inv_dpn(x, inv_DPn0, terms)
-    dpw = cumulative_dpw(x, inv_DPn0, terms, nodes=nodes)
+    dpw = cumulative_dpw(x, inv_DPn0, terms, nodes=nodes, beta=beta)
     return float(M0 / inv), float(M0 * dpw)
 
 
 def cumulative_ln_number(N: ArrayLike, x: float, inv_DPn0: float, terms: Terms, *,
-                         nodes: int = N_NODES) -> NDArray[np.float64]:
+                         nodes: int = N_NODES, beta: float = 0.0) -> NDArray[np.float64]:
     """ln P_cum(N) of the polymer formed up to conversion x, up to an additive constant.
 
-    P_cum(N) ∝ ∫0^x λ(x')² (1 − λ(x'))^(N − 1) dx': chains formed per monomer converted
-    (λ dx'), each with the instantaneous discrete number distribution λ (1 − λ)^(N − 1).
-    Evaluated in log space (log-sum-exp over the quadrature nodes) so that long chains do
-    not underflow.
+    Dead chains of length N made per monomer converted at one instant are
+    n(N) = [τσ + (β/2) σ² N] (1 − σ)^(N − 1) with τ = λ − β/2 and σ = λ + β/2 (chains
+    stopped alone plus the products of combination; :class:`MixedTermination`); without
+    combination n(N) = λ² (1 − λ)^(N − 1), λ times the discrete most-probable
+    distribution. P_cum(N) ∝ ∫0^x n(N; x') dx', evaluated in log space (log-sum-exp over
+    the quadrature nodes) so that long chains do not underflow.
 
     Parameters
     ----------
@@ -656,26 +689,38 @@ def cumulative_ln_number(N: ArrayLike, x: float, inv_DPn0: float, terms: Terms, 
         As for :func:`instantaneous_inv_dpn` (scalar ratios).
     nodes : int
         Quadrature nodes over conversion.
+    beta : float
+        Radical stops by combination per propagation step, constant over conversion [-].
 
     References
     ----------
     docs/science.md, sections 4 and 5 [derived]; Clay and Gilbert, Macromolecules 1995.
     """
     lam, w = _lambda_nodes(x, inv_DPn0, terms, nodes)
-    lam = np.clip(lam, 1e-300, 1.0 - 1e-12)
     Nv = np.asarray(N, dtype=float)
-    logterm = (2.0 * np.log(lam))[None, :] + (Nv[:, None] - 1.0) * np.log1p(-lam)[None, :]
+    if beta:
+        sig = np.clip(lam + 0.5 * beta, 1e-300, 1.0 - 1e-12)
+        tau = lam - 0.5 * beta
+        front = np.log(np.maximum((tau * sig)[None, :] + (0.5 * beta) * (sig * sig)[None, :]
+                                  * Nv[:, None], 1e-300))
+        logterm = front + (Nv[:, None] - 1.0) * np.log1p(-sig)[None, :]
+    else:
+        lam = np.clip(lam, 1e-300, 1.0 - 1e-12)
+        logterm = (2.0 * np.log(lam))[None, :] + (Nv[:, None] - 1.0) * np.log1p(-lam)[None, :]
     mx = logterm.max(axis=1, keepdims=True)
     return mx[:, 0] + np.log(np.sum(w[None, :] * np.exp(logterm - mx), axis=1))
 
 
 def cumulative_most_probable(x: float, inv_DPn0: float, terms: Terms, M0: float, *,
-                             nodes: int = 200) -> DistributionModel:
+                             nodes: int = 200, beta: float = 0.0) -> DistributionModel:
     """dw/dlog10 M of the cumulative polymer formed up to conversion x.
 
-    dw/dlog10 M = (1/x) ∫0^x ln10 λ² N² (1 − λ)^(N − 1) dx' with N = M/M0: the
-    mass-weighted mixture over conversion of instantaneous discrete most-probable
-    distributions (x → 0 gives the instantaneous one), by Gauss–Legendre quadrature.
+    dw/dlog10 M = (1/x) ∫0^x ln10 N n(N; x') dx' with N = M/M0 and n the dead chains per
+    monomer converted (:func:`cumulative_ln_number`): without combination
+    n = λ² (1 − λ)^(N − 1), the mass-weighted mixture over conversion of instantaneous
+    discrete most-probable distributions (x → 0 gives the instantaneous one); with
+    combination (``beta`` > 0) each instant contributes the mixed-termination
+    distribution of :class:`MixedTermination`. Gauss–Legendre quadrature over x.
 
     Parameters
     ----------
@@ -687,38 +732,119 @@ def cumulative_most_probable(x: float, inv_DPn0: float, terms: Terms, M0: float,
         Repeat-unit molar mass [g/mol].
     nodes : int
         Quadrature nodes over conversion.
+    beta : float
+        Radical stops by combination per propagation step, constant over conversion [-]
+        (:func:`combination_stops`).
 
     Returns
     -------
     DistributionModel
-        Averages of the discrete distributions mixed over conversion (mass-weighted means
-        of the instantaneous moments, same quadrature): Mn, Mw, Mz, Mz+1 and the
-        dispersity; the dw/dlogM peak is NaN (no closed form).
+        Averages of the distributions mixed over conversion (mass-weighted means of the
+        instantaneous moments, same quadrature): Mn, Mw, Mz, Mz+1 and the dispersity; the
+        dw/dlogM peak is NaN (no closed form). With combination Mw uses the discrete
+        DPw,inst = (2τ + 3β)/σ² − 1 and Mz, Mz+1 the continuous moments.
 
     References
     ----------
-    docs/science.md, section 5 [derived]; Flory 1953.
+    docs/science.md, sections 4.3 and 5 [derived]; Flory 1953; Clay and Gilbert 1995.
     """
     lam, w = _lambda_nodes(x, inv_DPn0, terms, nodes)
-    log1m = np.log1p(-lam)
+    b = float(beta)
+    sig = lam + 0.5 * b
+    tau = lam - 0.5 * b
+    log1m = np.log1p(-sig)
+    front_a = tau * sig
+    front_b = 0.5 * b * sig * sig
 
     def f(M: np.ndarray) -> np.ndarray:
         N = np.atleast_1d(np.asarray(M, dtype=float)) / M0
-        dens = LN10 * (lam**2)[None, :] * (N**2)[:, None] * np.exp(
-            (N[:, None] - 1.0) * log1m[None, :])
+        dens = LN10 * (N**2)[:, None] * (front_a[None, :] + front_b[None, :] * N[:, None]) \
+            * np.exp((N[:, None] - 1.0) * log1m[None, :])
         out = dens @ w
         return out.reshape(np.shape(M)) if np.ndim(M) else out[0]
 
-    # instantaneous moments of λ(1 − λ)^(N−1), q = 1 − λ: Σ N² P / Σ N P = (1 + q)/λ,
-    # Σ N³ P / Σ N P = (1 + 4q + q²)/λ², Σ N⁴ P / Σ N P = (1 + 11q + 11q² + q³)/λ³
-    q = 1.0 - lam
-    m2 = float(np.sum(w * (1.0 + q) / lam))
-    m3 = float(np.sum(w * (1.0 + 4.0 * q + q * q) / lam**2))
-    m4 = float(np.sum(w * (1.0 + 11.0 * q + 11.0 * q * q + q**3) / lam**3))
+    if b == 0.0:
+        # instantaneous moments of λ(1 − λ)^(N−1), q = 1 − λ: Σ N² P / Σ N P = (1 + q)/λ,
+        # Σ N³ P / Σ N P = (1 + 4q + q²)/λ², Σ N⁴ P / Σ N P = (1 + 11q + 11q² + q³)/λ³
+        q = 1.0 - lam
+        m2 = float(np.sum(w * (1.0 + q) / lam))
+        m3 = float(np.sum(w * (1.0 + 4.0 * q + q * q) / lam**2))
+        m4 = float(np.sum(w * (1.0 + 11.0 * q + 11.0 * q * q + q**3) / lam**3))
+    else:
+        # mass moments of the mixed distribution (per unit mass): (2τ + 3β)/σ² (discrete:
+        # minus 1), (6τ + 12β)/σ³, (24τ + 60β)/σ⁴ [derived from MixedTermination]
+        m2 = float(np.sum(w * ((2.0 * tau + 3.0 * b) / sig**2 - 1.0)))
+        m3 = float(np.sum(w * (6.0 * tau + 12.0 * b) / sig**3))
+        m4 = float(np.sum(w * (24.0 * tau + 60.0 * b) / sig**4))
     Mn = float(M0 / cumulative_inv_dpn(x, inv_DPn0, terms))
     avg = {"Mn": Mn, "Mw": M0 * m2, "Mz": M0 * m3 / m2, "Mz1": M0 * m4 / m3,
            "dispersity": M0 * m2 / Mn, "Mp_dwdlogM": float("nan")}
-    return DistributionModel(f, avg, f"cumulative most probable (x={x:g}, M0={M0:g})")
+    label = "cumulative most probable" if b == 0.0 else f"cumulative mixed termination (beta={b:g})"
+    return DistributionModel(f, avg, f"{label} (x={x:g}, M0={M0:g})")
+
+
+# ==================================================================== combination
+
+
+def combination_stops(kinetic: ArrayLike, delta: float) -> NDArray[np.float64]:
+    """Radical stops by combination per propagation step, β = 2(1 − δ)/(1 + δ)·K [-].
+
+    K = (1 + δ) k_t [R•]/(k_p [M]) is the kinetic (termination) term of the Mayo sum;
+    termination stops radicals at 2 k_t [R•] per radical (IUPAC convention), a fraction
+    1 − δ of them by combination, so β = 2 (1 − δ) k_t [R•]/(k_p [M]) = 2(1 − δ)K/(1 + δ),
+    and the part of K from disproportionation, 2δK/(1 + δ), joins τ.
+
+    Parameters
+    ----------
+    kinetic : array-like
+        Kinetic term K of 1/DPn [-] (>= 0).
+    delta : float
+        δ = k_td/k_t, fraction of termination by disproportionation, 0 <= δ <= 1 [-].
+
+    Examples
+    --------
+    >>> float(combination_stops(5e-4, 1.0)), round(float(combination_stops(5e-4, 0.0)), 12)
+    (0.0, 0.001)
+
+    References
+    ----------
+    docs/science.md, sections 3.3 and 4.3 [derived]; Clay and Gilbert, Macromolecules 1995.
+    """
+    if not (math.isfinite(delta) and 0.0 <= delta <= 1.0):
+        raise DataError(f"δ (fraction of termination by disproportionation) must be in "
+                        f"[0, 1], got {delta!r}", key="delta")
+    return 2.0 * (1.0 - delta) / (1.0 + delta) * np.maximum(np.asarray(kinetic, dtype=float), 0.0)
+
+
+def inv_dpn_from_dpw(DPw: ArrayLike, beta: ArrayLike = 0.0) -> NDArray[np.float64]:
+    """1/DPn of an instantaneous distribution from its (discrete) DPw and β [-].
+
+    Inverts DPw = (2λ + 2β)/(λ + β/2)² − 1 (:class:`MixedTermination`, discrete form,
+    λ = 1/DPn = τ + β/2): with D = DPw + 1,
+
+        λ = [2 − Dβ + 2 √(1 + Dβ)] / (2D),
+
+    which for β = 0 is the exact discrete most-probable relation DPn = (DPw + 1)/2.
+
+    Parameters
+    ----------
+    DPw : array-like
+        Weight-average degree of polymerization Mw/M0 [-].
+    beta : array-like
+        Radical stops by combination per propagation step [-].
+
+    Examples
+    --------
+    >>> float(inv_dpn_from_dpw(1999.0))
+    0.001
+
+    References
+    ----------
+    docs/science.md, sections 4.2 and 4.3 [derived].
+    """
+    D = np.asarray(DPw, dtype=float) + 1.0
+    b = np.asarray(beta, dtype=float)
+    return (2.0 - D * b + 2.0 * np.sqrt(1.0 + D * b)) / (2.0 * D)
 
 
 # ==================================================================== impurity level

@@ -489,8 +489,57 @@ def _numbers(text: Optional[str], count: tuple[int, ...], option: str) -> Option
     return vals
 
 
-TRANSFER_COLUMNS = ["group", "term", "estimator", "model", "C [-]", "standard error [-]", "CI low [-]",
-                    "CI high [-]", "runs", "preferred"]
+TRANSFER_COLUMNS = ["group", "term", "estimator", "model", "C [-]", "standard error [-]",
+                    "statistical part [-]", "calibration part [-]", "CI low [-]", "CI high [-]", "runs",
+                    "preferred"]
+
+
+def _dosing_targets(target_Mn: Optional[float], target_Mw: Optional[float],
+                    conversion: Optional[float]) -> Optional[dict]:
+    """The dosing question of the transfer command (None when not asked)."""
+    from .errors import DataError
+
+    if target_Mn is None and target_Mw is None:
+        if conversion is not None:
+            raise DataError("--conversion is the final conversion of a dosing question: give "
+                            "--target-Mn or --target-Mw with it", key="--conversion")
+        return None
+    if target_Mn is not None and target_Mw is not None:
+        raise DataError("give --target-Mn or --target-Mw, not both", key="--target-Mw")
+    if conversion is None:
+        raise DataError("a dosing question needs the final conversion: --conversion X (0 < X < 1)",
+                        key="--conversion")
+    return {"target_Mn": target_Mn, "target_Mw": target_Mw, "conversion": conversion}
+
+
+def _dosing(result, targets: Optional[dict], monomer_conc: Optional[float], confidence: float) -> list:
+    """One dosing answer per group that has an agent term."""
+    if targets is None:
+        return []
+    from .transfer.dosing import agent_charge
+
+    return [agent_charge(g, monomer_conc=monomer_conc, confidence=confidence, **targets)
+            for g in result.groups if any(t.startswith("C_A") for t in g.terms)]
+
+
+def _echo_group(g) -> None:
+    """Flagged runs, the intercept check, the kinetic term and the estimators' spread."""
+    if g.impurity is not None:
+        for f in g.impurity.flags:
+            if f.flagged:
+                typer.echo(f"{g.label}: run {f.run_id} flagged: {f.reason}")
+    if g.intercept_check is not None:
+        typer.echo(f"{g.label}: {g.intercept_check.message}")
+    if g.kinetic is not None and g.kinetic.how != "constant":
+        typer.echo(f"{g.label}: {g.kinetic.note}")
+    if g.termination is not None and g.termination.delta < 1:
+        typer.echo(f"{g.label}: delta = {g.termination.delta:g} ({g.termination.source.split(':')[0]}); "
+                   "Mw/2 and CLD use the mixed-termination relations")
+    for t, sp in g.spread.items():
+        if sp["disagree"]:
+            vals = ", ".join(f"{e} {v:.4g}" for e, v in sp["values"].items())
+            typer.echo(f"{g.label}: {t} estimators disagree beyond their uncertainties ({vals}); "
+                       f"the spread {sp['min']:.4g} to {sp['max']:.4g} is part of the answer")
 
 
 @app.command("transfer")
@@ -514,8 +563,14 @@ def transfer_cmd(
     confidence: float = typer.Option(0.95, "--confidence", min=0.5, max=0.999999, help="Level of the constants' confidence intervals."),
     sheet_name: Optional[str] = typer.Option(None, "--sheet", help="Workbook sheet of the run-series sheet."),
     no_plots: bool = typer.Option(False, "--no-plots", help="Do not draw the PNG plots."),
+    delta: Optional[float] = typer.Option(None, "--delta", help="Share of termination by disproportionation, delta = k_td/k_t [-] (default: sheet column 'delta [-]', else the monomer's bundled value, else 1)."),
+    kinetic: str = typer.Option("auto", "--kinetic", help="Kinetic term when [M], [I] or R_p vary: auto (a regressor when it spans about 2-fold), regressor, reference (computed from bundled k_p, k_t, f k_d), none."),
+    target_Mn: Optional[float] = typer.Option(None, "--target-Mn", help="Dosing: target Mn [g/mol] of the polymer collected up to --conversion."),
+    target_Mw: Optional[float] = typer.Option(None, "--target-Mw", help="Dosing: target Mw [g/mol] (instead of --target-Mn)."),
+    conversion: Optional[float] = typer.Option(None, "--conversion", help="Dosing: final monomer conversion [-] (0 < x < 1)."),
+    monomer_conc: Optional[float] = typer.Option(None, "--monomer-conc", help="Dosing: [M]0 of the recipe [mol/L] (default: the series' mean)."),
 ) -> None:
-    """Chain-transfer constants from a run series (Mayo, Mw/2, CLD; drift; impurity flags; ln C vs 1/T)."""
+    """Chain-transfer constants from a run series (Mayo, Mw/2, CLD; drift; impurity flags; ln C vs 1/T; dosing)."""
     from .report import write_transfer
     from .transfer import TransferOptions, analyse_series
 
@@ -545,20 +600,23 @@ def transfer_cmd(
         impurity_confidence=impurity_confidence, impurity_adjust="run" if per_run else "series",
         impurity_C=impurity_C, rel_error=rel_error,
         expected_intercept=(expected if expected is None or len(expected) == 2 else expected[0]),
-        C_M=C_M, kinetic_term=kinetic_term,
+        C_M=C_M, kinetic_term=kinetic_term, delta=delta, kinetic=kinetic.strip().lower(),
     )
+    dosing_targets = _dosing_targets(target_Mn, target_Mw, conversion)
     with _stage("run series: chromatograms and fits"):
         result = analyse_series(sheet, method, options, sheet=sheet_name)
+    dosing = _dosing(result, dosing_targets, monomer_conc, confidence)
     with _stage("writing tables" + ("" if no_plots else " and plots")):
-        paths = write_transfer(result, out, plots=not no_plots)
+        paths = write_transfer(result, out, plots=not no_plots, dosing=dosing)
     _print_table(result.constants_table().to_dict("records"), TRANSFER_COLUMNS)
     for g in result.groups:
-        if g.impurity is not None:
-            for f in g.impurity.flags:
-                if f.flagged:
-                    typer.echo(f"{g.label}: run {f.run_id} flagged: {f.reason}")
-        if g.intercept_check is not None:
-            typer.echo(f"{g.label}: {g.intercept_check.message}")
+        _echo_group(g)
+    for d in dosing:
+        c, w = d.concentration, d.per_100g
+        typer.echo(f"{d.group}: for {d.target} = {d.target_value:g} g/mol at conversion {d.conversion:g}: "
+                   f"[A]0/[M]0 = {d.ratio.value:.4g} ({d.ratio.ci_low:.4g} to {d.ratio.ci_high:.4g}), "
+                   f"[A]0 = {c.value:.4g} mol/L ({c.ci_low:.4g} to {c.ci_high:.4g}), "
+                   f"{w.value:.4g} mol per 100 g monomer ({100 * d.ratio.confidence:g} % interval; {d.model})")
     for lbl, fit in result.arrhenius:
         typer.echo(f"{lbl['agent']} {lbl['term']} ({lbl['estimator']}, {lbl['model']}): "
                    f"E_tr - E_p = {fit.delta_E.value:.2f} ± {fit.delta_E.stderr:.2f} kJ/mol, "

@@ -38,6 +38,7 @@ import numpy as np
 from . import simulate
 from .chainlength import (
     DistributionModel,
+    combination_stops,
     cumulative_most_probable,
     mayo_inv_dpn,
     most_probable,
@@ -649,6 +650,11 @@ DEMO_SERIES: dict[str, Any] = {
     # agent-free 1/DPn0 (initiator charge, temperature) [-]
     "agent charge scatter [-]": 0.01,
     "1/DPn0 scatter [-]": 0.015,
+    # termination of polystyrene radicals: mostly combination. δ = k_td/k_t and C_M are the
+    # bundled styrene values (docs/science.md, sections 7.1 and 7.5); the kinetic part of
+    # 1/DPn0 (1/DPn0 − C_M) ends β = 2(1 − δ)K/(1 + δ) radicals per step by combination
+    "delta [-]": 0.1,
+    "C_M [-]": 5.27e-5,
 }
 
 
@@ -692,7 +698,9 @@ def write_demo_series(folder: str | Path, *, seed: int = 20240611) -> dict[str, 
     The scenario is our own invention: styrene at 50, 60 and 70 °C with an invented agent
     (``agent T``) whose constant follows C = A exp(−ΔE/RT) (ΔE = 8 kJ/mol, C(60 °C) = 12),
     six agent levels per temperature at 4 % conversion, run-to-run scatter (1 % on the agent
-    charge, 1.5 % on the agent-free 1/DPn0), detector noise and a small baseline drift. One
+    charge, 1.5 % on the agent-free 1/DPn0), detector noise and a small baseline drift.
+    Polystyrene radicals terminate mostly by combination (δ = 0.1, the bundled value), so
+    each trace is the mixed-termination distribution of its kinetic part. One
     run (``T60-4``) is contaminated: an impurity adds 1e-3 to its 1/DPn. Each run is the
     cumulative most-probable polymer at its conversion
     (:func:`gpctools.chainlength.cumulative_most_probable`), traced by
@@ -733,9 +741,10 @@ def write_demo_series(folder: str | Path, *, seed: int = 20240611) -> dict[str, 
             run = f"T{T:g}-{j + 1}"
             a = DEMO_SERIES["1/DPn0"][T] * (1 + DEMO_SERIES["1/DPn0 scatter [-]"] * rng.standard_normal())
             r_actual = r * (1 + DEMO_SERIES["agent charge scatter [-]"] * rng.standard_normal())
+            beta = float(combination_stops(a - DEMO_SERIES["C_M [-]"], DEMO_SERIES["delta [-]"]))
             if run == DEMO_SERIES["contaminated run"]:
                 a += DEMO_SERIES["impurity extra 1/DPn [-]"]
-            f = cumulative_most_probable(x, a, {"C_A": (C, r_actual)}, M0)
+            f = cumulative_most_probable(x, a, {"C_A": (C, r_actual)}, M0, beta=beta)
             volume, signal = simulate.chromatogram(
                 f, cal, volume=np.linspace(8.0, 26.0, SERIES_SLICES), height=100.0,
                 baseline_offset=0.5, baseline_drift=0.02, noise=0.05,
@@ -765,6 +774,8 @@ def write_demo_series(folder: str | Path, *, seed: int = 20240611) -> dict[str, 
         "E_tr - E_p [kJ/mol]": DEMO_SERIES["dE [kJ/mol]"],
         "1/DPn0 [-]": {f"{k:g}": v for k, v in DEMO_SERIES["1/DPn0"].items()},
         "conversion [-]": x,
+        "delta [-]": DEMO_SERIES["delta [-]"],
+        "C_M [-]": DEMO_SERIES["C_M [-]"],
         "contaminated run": DEMO_SERIES["contaminated run"],
         "impurity extra 1/DPn [-]": DEMO_SERIES["impurity extra 1/DPn [-]"],
         "run-to-run scatter [-]": {"agent charge": DEMO_SERIES["agent charge scatter [-]"],

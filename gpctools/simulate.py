@@ -59,6 +59,7 @@ __all__ = [
     "export_text",
     "averages_from_dwdlogM",
     "simulate_series",
+    "kinetic_series",
 ]
 
 LN10 = math.log(10.0)
@@ -396,5 +397,114 @@ def simulate_series(
         if x is not None:
             row["conversion [-]"] = x
         row.update({"Mn [g/mol]": Mn, "Mw [g/mol]": Mw, "M0 [g/mol]": M0})
+        rows.append(row)
+    return rows
+
+
+def kinetic_series(
+    runs: Sequence[Mapping[str, float]],
+    *,
+    monomer: str = "styrene",
+    initiator: str = "AIBN",
+    T_C: float = 60.0,
+    C_A: float = 0.0,
+    C_S: float = 0.0,
+    C_I: float = 0.0,
+    C_M: float | None = None,
+    delta: float | None = None,
+    rel_noise: float = 0.0,
+    impurity: Mapping[int, float] | None = None,
+    measured_rate: bool = False,
+    seed: int | None = None,
+    reference: Any = None,
+    run_prefix: str = "K",
+) -> list[dict[str, Any]]:
+    """Rows of a run-series sheet built from the steady-state kinetic scheme.
+
+    Each run's recipe ([M], [I], [S], [A], conversion) gives, with the bundled k_p(T),
+    k_t (IUPAC), δ and the initiator's f·k_d(T): [R•] = (f k_d [I]/k_t)^½,
+    R_p = k_p [M] [R•], the kinetic term K = (1 + δ) k_t [R•]/(k_p [M]), the combination
+    stops β = 2(1 − δ)K/(1 + δ), and with C_M, C_S [S]/[M], C_I [I]/[M] and C_A [A]/[M]
+    the cumulative Mn and Mw at the run's conversion
+    (:func:`gpctools.chainlength.cumulative_averages`, agent and solvent consumed by
+    transfer). The truth is the kinetic scheme, not a Mayo regression.
+
+    Parameters
+    ----------
+    runs : sequence of mapping
+        Per run ``"[M]"`` [mol/L] and optionally ``"[I]"``, ``"[S]"``, ``"[A]"`` [mol/L],
+        ``"x"`` (conversion [-]; default 0.002, about instantaneous).
+    monomer, initiator : str
+        Names in the bundled tables.
+    T_C : float
+        Temperature [°C].
+    C_A, C_S, C_I : float
+        Transfer constants of agent, solvent, initiator [-].
+    C_M : float, optional
+        Transfer to monomer [-] (default: the bundled value).
+    delta : float, optional
+        δ = k_td/k_t [-] (default: the bundled value); written to the sheet only when given.
+    rel_noise : float
+        Relative SD of independent multiplicative noise on Mn and Mw [-].
+    impurity : mapping of int to float, optional
+        Run index -> extra 1/DPn from an impurity (constant over conversion) [-].
+    measured_rate : bool
+        Write ``R_p [mol/L/s]`` (the steady-state value).
+    seed : int, optional
+    reference : gpctools.refdata.ReferenceData, optional
+    run_prefix : str
+
+    Returns
+    -------
+    list of dict
+        Sheet rows (``run``, ``monomer``, ``initiator``, ``T [°C]``, ``[M] [mol/L]``,
+        ``[I] [mol/L]``, ``[S] [mol/L]``, ``[A] [mol/L]``, ``conversion [-]``,
+        ``Mn [g/mol]``, ``Mw [g/mol]``, optionally ``R_p [mol/L/s]`` and ``delta [-]``)
+        plus ``"_truth"``: a dict with K, β and 1/DPn of the run.
+
+    References
+    ----------
+    docs/science.md, sections 3.2, 3.3, 4.3 and 5 [derived].
+    """
+    from . import refdata
+    from .chainlength import combination_stops, kinetic_inv_dpn
+
+    ref = reference or refdata.default_reference()
+    T = T_C + 273.15
+    mono = ref.monomer(monomer)
+    term = ref.termination(monomer)
+    ini = ref.initiator(initiator)
+    kp, kt = mono.k_p(T), term.k_t_iupac
+    d_val = term.delta if delta is None else delta
+    cm_val = mono.C_M if C_M is None else C_M
+    if d_val is None or cm_val is None:
+        raise DataError(f"no bundled delta or C_M for {monomer!r}: give delta and C_M")
+    d, cm = float(d_val), float(cm_val)
+    rng = np.random.default_rng(seed)
+    rows = []
+    for i, spec in enumerate(runs):
+        M, I0 = float(spec["[M]"]), float(spec.get("[I]", 0.01))
+        S, A, x = float(spec.get("[S]", 0.0)), float(spec.get("[A]", 0.0)), float(spec.get("x", 0.002))
+        radicals = math.sqrt(ini.f * ini.k_d(T) * I0 / kt)
+        Rp = kp * M * radicals
+        K = float(kinetic_inv_dpn(Rp, M, kp, kt, d))
+        beta = float(combination_stops(K, d))
+        inv0 = K + cm + (impurity or {}).get(i, 0.0)
+        terms: dict[str, tuple[float, float]] = {"C_A": (C_A, A / M), "C_S": (C_S, S / M),
+                                                  "C_I": (C_I, I0 / M)}
+        Mn, Mw = cumulative_averages(x, inv0, terms, mono.M0, beta=beta)
+        if rel_noise:
+            Mn *= 1 + rel_noise * rng.standard_normal()
+            Mw *= 1 + rel_noise * rng.standard_normal()
+        row: dict[str, Any] = {"run": f"{run_prefix}{i + 1}", "monomer": mono.name,
+                               "initiator": ini.name, "T [°C]": T_C, "[M] [mol/L]": M,
+                               "[I] [mol/L]": I0, "[S] [mol/L]": S, "[A] [mol/L]": A,
+                               "conversion [-]": x, "Mn [g/mol]": Mn, "Mw [g/mol]": Mw}
+        if measured_rate:
+            row["R_p [mol/L/s]"] = Rp
+        if delta is not None:
+            row["delta [-]"] = d
+        row["_truth"] = {"K": K, "beta": beta, "inv_DPn": inv0 + C_A * A / M + C_S * S / M
+                         + C_I * I0 / M, "R_p": Rp}
         rows.append(row)
     return rows

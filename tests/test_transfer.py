@@ -579,7 +579,10 @@ def _series_rows(C=C_DDM_STYRENE_60, xs=None, impurity=None, seed=21, noise=0.01
     for r in rows:
         r.pop("M0 [g/mol]")
         r.update({"monomer": "styrene", "agent": "1-dodecanethiol", "T [°C]": 60.0,
-                  "series": "DDM in styrene"})
+                  "series": "DDM in styrene",
+                  # simulate_series makes most-probable (no combination) polymer: say so,
+                  # or the analysis takes styrene's bundled delta (issue 11)
+                  "delta [-]": 1.0})
     return rows
 
 

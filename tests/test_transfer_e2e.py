@@ -66,7 +66,8 @@ def test_literature_constant_recovered_through_simulated_chromatograms(tmp_path)
                                      seed=40 + i)
         write_chromatogram(tmp_path / f"run{i}.csv", V, h)
         rows.append({"run": f"R{i + 1}", "file": f"run{i}.csv", "monomer": "styrene",
-                     "[M] [mol/L]": 8.0, "[A] [mol/L]": 8.0 * r})
+                     "[M] [mol/L]": 8.0, "[A] [mol/L]": 8.0 * r,
+                     "delta [-]": 1.0})  # most-probable traces: no combination (issue 11)
     pd.DataFrame(rows).to_csv(tmp_path / "series.csv", index=False)
     res = analyse_series(tmp_path / "series.csv", method=_write_method(tmp_path))
     ct = res.constants_table()

@@ -21,7 +21,8 @@ def _series():
     rows = simulate_series(RATIOS, C_A=C_DDM_STYRENE_60, inv_DPn0=5e-4, M0=M0_STYRENE,
                            rel_noise=0.01, seed=21)
     for r in rows:
-        r.update({"monomer": "styrene", "agent": "1-dodecanethiol", "T [°C]": 60.0})
+        r.update({"monomer": "styrene", "agent": "1-dodecanethiol", "T [°C]": 60.0,
+                  "delta [-]": 1.0})  # most-probable data (simulate_series): no combination
     return run_series_from_rows(rows)
 
 
@@ -35,6 +36,7 @@ def test_defaults_and_their_summary():
         "impurity C_X [-]": None, "relative error of 1/DPn [-]": None,
         "exclude flagged runs": True, "expected intercept [-]": None, "C_M [-]": None,
         "kinetic term [-]": None, "fixed intercept [-]": None,
+        "delta [-]": None, "kinetic term": "auto",  # issue 11: termination mode, kinetic term
     }
     json.dumps(o.summary())  # JSON-safe
 
@@ -108,12 +110,12 @@ def test_options_object_and_keyword_overrides_agree():
 
 def test_a_skipped_impurity_test_leaves_a_warning(monkeypatch):
     # a design the impurity test refuses must not pass silently as "nothing flagged"
-    import gpctools.transfer.analysis as analysis
+    import gpctools.transfer.group as group  # the per-group steps moved out of analysis.py
 
     def refuse(*args, **kwargs):
         raise DesignError("DDM: the test cannot run on this design")
 
-    monkeypatch.setattr(analysis, "flag_runs", refuse)
+    monkeypatch.setattr(group, "flag_runs", refuse)
     with pytest.warns(EstimatorWarning, match="impurity test"):
         res = analyse_series(series=_series(), impurity_C=15.0)
     g = res.group()

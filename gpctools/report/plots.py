@@ -42,6 +42,7 @@ __all__ = [
     "plot_control_chart",
     "plot_mayo",
     "plot_mayo_panel",
+    "plot_mayo_residuals",
     "mayo_group_figure",
     "plot_lnP",
     "plot_arrhenius",
@@ -339,11 +340,13 @@ def _mayo_line(ax: Axes, xs: np.ndarray, line: np.ndarray, label: str,
 
 
 def _mayo_finish(ax: Axes, xlabel: str, ylabel: str, title: str, legend_size: float) -> None:
+    """Labels, title, and the legend below the axes (it never covers a run)."""
     ax.set_xlabel(xlabel)
     ax.set_ylabel(ylabel)
     ax.ticklabel_format(axis="both", style="sci", scilimits=(-3, 3))
     _title(ax, title, pad=16)
-    ax.legend(fontsize=legend_size, frameon=False)
+    ax.legend(fontsize=legend_size, frameon=False, loc="upper left", bbox_to_anchor=(0.0, -0.16),
+              ncol=1)
 
 
 def plot_mayo(fit: Any, *, title: str | None = None, ax: Axes | None = None) -> Axes:
@@ -404,14 +407,24 @@ def _ratio(run: Any, term: str) -> float:
     return 1.0 if term == "C_M" else float(run.ratios.get(term, 0.0))
 
 
+def _recommended(group: Any, estimator: str) -> tuple[Any, str]:
+    """The recommended fit of an estimator (drift-corrected when fitted) and its label."""
+    if estimator in group.drift:
+        return group.drift[estimator], "drift-corrected"
+    return group.mayo[estimator], "initial ratios"
+
+
 def plot_mayo_panel(result: Any, group: Any, estimator: str, term: str, *,
                     ax: Axes | None = None) -> Axes:
-    """Partial Mayo plot of one group, estimator and term.
+    """Partial Mayo plot of one group, estimator and term, led by the recommended fit.
 
-    y (1/DPn, or Λ for the CLD estimator) minus the fitted contributions of the group's
-    other terms, against the term's ratio; the weighted initial-ratio fit with its
-    confidence band, runs flagged for impurity transfer marked, and the values of the
-    cumulative (conversion-drift) model when it was fitted.
+    The recommended line (drift-corrected constants when conversions were given; the
+    instantaneous Mayo line 1/DPn0 + C·[X]/[M]) and its confidence band are drawn first;
+    each run is shown on that line's scale (its observation moved to x = 0 and, for Mw/2
+    and CLD, onto the 1/DPn scale with the fitted model), minus the fitted contributions
+    of the group's other terms. The naive fit on initial ratios follows as a thin dashed
+    line with the raw observations as small open circles. Flagged runs are red squares
+    labelled with their run id. The legend sits below the axes, so it never covers a run.
 
     Parameters
     ----------
@@ -423,7 +436,7 @@ def plot_mayo_panel(result: Any, group: Any, estimator: str, term: str, *,
     term : str
         One of ``group.terms`` (``C_A``, ``C_S``, ...).
     ax : matplotlib.axes.Axes, optional
-        Draw here; default a new 4.2 × 3.4 inch figure.
+        Draw here; default a new 4.6 × 4.2 inch figure.
 
     Returns
     -------
@@ -432,46 +445,125 @@ def plot_mayo_panel(result: Any, group: Any, estimator: str, term: str, *,
     References
     ----------
     Mayo equation (F. R. Mayo, J. Am. Chem. Soc. 65, 2324, 1943); the band is the
-    pointwise confidence band of :meth:`gpctools.transfer.MayoFit.band`.
+    pointwise confidence band of :meth:`gpctools.transfer.MayoFit.band` with the combined
+    (statistical and calibration) covariance.
     """
     from gpctools.transfer.mayo import term_label
 
-    ax = _axes(ax, 4.2, 3.4)
+    ax = _axes(ax, 4.6, 4.2)
     est = {e.run.run_id: e for e in result.estimates}
     runs = {r.run_id: r for r in result.series.runs}
     terms = list(group.terms)
-    fit = group.mayo[estimator]
+    fit, how = _recommended(group, estimator)
+    naive = group.mayo[estimator]
     beta = {c.name: c.value for c in fit.constants}
     ids = list(group.run_ids)
     x = np.array([_ratio(runs[k], term) for k in ids])
-    y = np.array([est[k].y(estimator) for k in ids])
-    others = np.zeros_like(y)
+    pts = group.plot_points.get(estimator, {})
+    y_rec = np.array([pts.get(k, est[k].y(estimator)) for k in ids])
+    others = np.zeros_like(y_rec)
     for t2 in terms:
         if t2 != term:
             others += beta[t2] * np.array([_ratio(runs[k], t2) for k in ids])
-    yp = y - others
     flagged = set(group.impurity.flagged_ids) if group.impurity else set()
     mask = np.array([k in flagged for k in ids], dtype=bool)
     xs = np.linspace(0, max(float(x.max()), 1e-30) * 1.05, 100)
     cols = {t2: (xs if t2 == term else np.zeros_like(xs)) for t2 in terms}
+    c = fit.constant(term)
     _mayo_line(ax, xs, fit.predict(cols),
-               f"Mayo, initial ratios: {term} = {beta[term]:.4g} ± {fit.constant(term).stderr:.2g}",
+               f"recommended ({how}): {term} = {c.value:.4g} ± {c.stderr:.2g}",
                band=fit.band(cols), band_label=f"{100 * fit.confidence:g} % band")
-    ax.plot(x[~mask], yp[~mask], "o", color=PALETTE[0], markersize=5, label="runs")
+    ax.plot(x[~mask], (y_rec - others)[~mask], "o", color=PALETTE[0], markersize=5,
+            label="runs (on the recommended scale)")
+    if fit is not naive:
+        nb = {cc.name: cc.value for cc in naive.constants}
+        n_others = sum((nb[t2] * np.array([_ratio(runs[k], t2) for k in ids])
+                        for t2 in terms if t2 != term), np.zeros_like(y_rec))
+        ax.plot(xs, naive.predict(cols), "--", color="#8c8c8c", linewidth=0.9,
+                label=f"naive (initial ratios): {term} = {nb[term]:.4g}")
+        y_raw = np.array([est[k].y(estimator) for k in ids]) - n_others
+        ax.plot(x, y_raw, "o", mfc="none", mec="#8c8c8c", markersize=4, label="runs as measured")
     if mask.any():
-        ax.plot(x[mask], yp[mask], "s", color=_FAIL, markersize=6, label="flagged (impurity?)")
-    if estimator in group.drift:
-        d = group.drift[estimator]
-        dx = np.array([runs[k].ratios.get(term, 0.0) for k in d.run_ids])
-        ax.plot(dx, d.fitted, "x", color=PALETTE[2], markersize=6,
-                label=f"drift model: {term} = {d.constant(term).value:.4g}")
-    ylabel = _Y_LABEL[estimator] + (" (partial)" if len(terms) > 1 else "")
+        ax.plot(x[mask], (y_rec - others)[mask], "s", color=_FAIL, markersize=6,
+                label="flagged (impurity?)")
+        for xi, yi, k in zip(x[mask], (y_rec - others)[mask], np.array(ids)[mask], strict=True):
+            ax.annotate(k, (xi, yi), xytext=(4, 4), textcoords="offset points", fontsize=7,
+                        color=_FAIL)
+    ylabel = "1/DPn [-]" + (" (partial)" if len(terms) > 1 else "")
     _mayo_finish(ax, term_label(term), ylabel, f"{group.label}: {estimator}", 7)
     return ax
 
 
+def plot_mayo_residuals(result: Any, group: Any, estimator: str, *,
+                        ax: Axes | None = None) -> Axes:
+    """Each run's excess over the line of the other runs, relative, with its uncertainty.
+
+    For the estimator of the impurity test the excess and its standard error are those of
+    the test (prediction error from the runs not flagged); for the others, the residual
+    about the recommended fit with the fit's relative scatter. Flagged runs are red and
+    labelled; the threshold of the test is drawn as a line where it applies.
+
+    Parameters
+    ----------
+    result : gpctools.transfer.TransferResult
+    group : gpctools.transfer.GroupResult
+    estimator : str
+    ax : matplotlib.axes.Axes, optional
+        Draw here; default a new 4.6 × 2.4 inch figure.
+
+    Returns
+    -------
+    matplotlib.axes.Axes
+    """
+    ax = _axes(ax, 4.6, 2.4)
+    imp = group.impurity
+    ids = list(group.run_ids)
+    pos = np.arange(len(ids))
+    if imp is not None and imp.estimator == estimator:
+        fl = [imp.flag(k) for k in ids]
+        pts = group.plot_points.get(estimator, {})
+        est = {e.run.run_id: e for e in result.estimates}
+        ref = np.array([pts.get(k, est[k].y(estimator)) - f.excess for k, f in zip(ids, fl, strict=True)])
+        ex = 100 * np.array([f.excess for f in fl]) / ref
+        err = 100 * np.array([f.excess_stderr for f in fl]) / ref
+        flagged = np.array([f.flagged for f in fl])
+        what = "excess over the line of the other runs [%]"
+    else:
+        fit, _ = _recommended(group, estimator)
+        runs = {r.run_id: r for r in result.series.runs}
+        pts = group.plot_points.get(estimator, {})
+        res = dict(zip(fit.run_ids, fit.residuals, strict=True))
+        ex = np.empty(len(ids))
+        for j, k in enumerate(ids):
+            if k in pts:  # every run, flagged ones too, against the recommended line
+                line = float(fit.predict({t: np.array([_ratio(runs[k], t)]) for t in group.terms})[0])
+                ex[j] = 100 * (pts[k] / line - 1)
+            else:
+                ex[j] = 100 * res.get(k, np.nan)
+        scat = math.sqrt(fit.redchi) if math.isfinite(fit.redchi) else np.nan
+        err = np.full(len(ids), 100 * scat)
+        flagged = np.array([k in group.excluded for k in ids])
+        what = "residual about the line [%]"
+    ax.axhline(0.0, color=_INK, linewidth=0.8)
+    ok = ~flagged
+    ax.errorbar(pos[ok], ex[ok], yerr=np.where(np.isfinite(err[ok]), err[ok], 0), fmt="o",
+                color=PALETTE[0], markersize=4, capsize=2, label="runs ± standard error")
+    if flagged.any():
+        ax.errorbar(pos[flagged], ex[flagged], yerr=np.nan_to_num(err[flagged]), fmt="s",
+                    color=_FAIL, markersize=5, capsize=2, label="flagged")
+    ax.set_xticks(pos)
+    ax.set_xticklabels(ids, rotation=60, fontsize=6)
+    for p_ in pos[flagged]:
+        ax.get_xticklabels()[int(p_)].set_color(_FAIL)
+    ax.set_ylabel(what, fontsize=7)
+    _title(ax, f"{group.label}: {estimator}, each run against the line")
+    ax.legend(fontsize=6, frameon=False, loc="upper left", bbox_to_anchor=(0.0, -0.32), ncol=2)
+    return ax
+
+
 def mayo_group_figure(result: Any, group: Any) -> Figure:
-    """All partial Mayo plots of a group: one column per estimator, one row per term.
+    """All Mayo plots of a group: one column per estimator, one row per term, and a row of
+    residual panels (each run's excess with its uncertainty) at the bottom.
 
     Parameters
     ----------
@@ -481,16 +573,20 @@ def mayo_group_figure(result: Any, group: Any) -> Figure:
     Returns
     -------
     matplotlib.figure.Figure
-        4.2 inch wide per estimator, 3.4 inch high per term.
+        4.6 inch wide per estimator, 4.2 inch high per term plus 2.6 for the residuals.
     """
     from gpctools.transfer.estimators import ESTIMATORS
 
     names = [e for e in ESTIMATORS if e in group.mayo]
     terms = list(group.terms)
-    fig, axes = new_figure(4.2 * len(names), 3.4 * len(terms), rows=len(terms), cols=len(names))
+    rows = len(terms) + 1
+    fig, axes = new_figure(4.6 * len(names), 4.2 * len(terms) + 2.6, rows=rows, cols=len(names),
+                           height_ratios=[4.2] * len(terms) + [2.6])
     for i, t in enumerate(terms):
         for j, e in enumerate(names):
             plot_mayo_panel(result, group, e, t, ax=axes[i * len(names) + j])
+    for j, e in enumerate(names):
+        plot_mayo_residuals(result, group, e, ax=axes[len(terms) * len(names) + j])
     return fig
 
 

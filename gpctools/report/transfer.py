@@ -11,7 +11,9 @@ Files written by :func:`write_transfer` into the output folder (each atomically)
 ``transfer.xlsx``
     sheets constants, runs and (when fitted) arrhenius.
 ``summary.json``
-    ``TransferResult.summary()``.
+    ``TransferResult.summary()`` (plus the dosing answers when asked for).
+``dosing.csv``
+    the agent charge for a target Mn or Mw at a final conversion, when asked for.
 ``plots/mayo_<group>.png``, ``plots/lnP_<group>.png``, ``plots/arrhenius_<agent>_<term>_<estimator>.png``
     see :func:`write_transfer_plots`.
 """
@@ -20,8 +22,9 @@ from __future__ import annotations
 
 import json
 import os
+from collections.abc import Sequence
 from pathlib import Path
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any
 
 from gpctools.report.files import safe_name, unique_name, write_bytes, write_csv, write_text
 from gpctools.report.xlsx import write_workbook
@@ -35,7 +38,8 @@ __all__ = ["write_transfer", "write_transfer_plots"]
 
 
 def write_transfer(
-    result: TransferResult, outdir: str | os.PathLike[str], *, plots: bool = True
+    result: TransferResult, outdir: str | os.PathLike[str], *, plots: bool = True,
+    dosing: Sequence[Any] = (),
 ) -> dict[str, Path]:
     """Write the tables, the summary and the plots of a run-series analysis atomically.
 
@@ -46,6 +50,9 @@ def write_transfer(
         Output folder (created); the files are listed in the module docstring.
     plots : bool
         Also draw the PNG plots into ``outdir/plots``.
+    dosing : sequence of gpctools.transfer.dosing.DosingAnswer
+        Agent charges for target averages (``dosing.csv`` and a ``dosing`` key in the
+        summary) when asked for.
 
     Returns
     -------
@@ -67,8 +74,15 @@ def write_transfer(
         sheets["arrhenius"] = at
     paths["constants.xlsx"] = write_workbook(out / "constants.xlsx", {"constants": ct})
     paths["transfer.xlsx"] = write_workbook(out / "transfer.xlsx", sheets)
+    summary = result.summary()
+    if dosing:
+        import pandas as pd
+
+        dt = pd.DataFrame([d.row() for d in dosing])
+        paths["dosing.csv"] = write_csv(out / "dosing.csv", dt)
+        summary["dosing"] = [d.summary() for d in dosing]
     paths["summary.json"] = write_text(
-        out / "summary.json", json.dumps(result.summary(), indent=2, default=str) + "\n")
+        out / "summary.json", json.dumps(summary, indent=2, default=str) + "\n")
     if plots:
         paths.update(write_transfer_plots(result, out / "plots"))
     return paths

@@ -6,7 +6,8 @@ after a comma; the degree sign does not matter):
 
 ============================== ============================================================
 ``run``                        run id, unique (also ``run id``, ``sample_id``, ``id``)
-``file``                       chromatogram, relative to the sheet (also ``chromatogram``)
+``file``                       chromatogram, relative to the sheet (also ``chromatogram``);
+                               replicate injections of one run separated by ``;``
 ``Mn [g/mol]``, ``Mw [g/mol]`` measured averages (``[kg/mol]`` accepted)
 ``Mn scale``                   ``absolute`` or ``relative`` (also ``molar-mass scale``)
 ``monomer``, ``M0 [g/mol]``    monomer name in the bundled table, or the repeat-unit mass
@@ -16,6 +17,9 @@ after a comma; the degree sign does not matter):
 ``series``, ``agent``          group label, agent name
 ``role``                       ``run`` (default), ``control``, ``skip`` (also
                                ``exclude``, ``excluded``, ``ignore``)
+``R_p [mol/L/s]``              measured rate of polymerization (kinetic term R_p/[M]²)
+``initiator``                  initiator name (kinetic term from reference data)
+``delta [-]``                  δ = k_td/k_t, share of termination by disproportionation
 ``residual [M] [mol/L]``,      consumption method: monomer left, and the standard
 ``u(residual [M]) [mol/L]``,   uncertainties
 ``u(conversion) [-]``
@@ -43,7 +47,8 @@ __all__ = ["RUN_SERIES", "SHEET_COLUMNS", "ROLE_CHOICES", "term"]
 SHEET_COLUMNS = (
     "run", "file", "series", "agent", "monomer", "M0 [g/mol]", "T [°C]", "[M] [mol/L]",
     "[A] [mol/L]", "ratio [A]/[M] [-]", "[S] [mol/L]", "[I] [mol/L]", "conversion [-]",
-    "Mn [g/mol]", "Mw [g/mol]", "Mn scale", "role", "residual [A] [mol/L]",
+    "Mn [g/mol]", "Mw [g/mol]", "Mn scale", "role", "R_p [mol/L/s]", "initiator", "delta [-]",
+    "residual [A] [mol/L]",
     "residual [M] [mol/L]", "u(residual [A]) [mol/L]", "u(residual [M]) [mol/L]",
     "u(conversion) [-]",
 )
@@ -128,6 +133,16 @@ RUN_SERIES = SheetSchema(
               meaning="absolute or relative"),
         Field("role", "role", kind="choice", choices=ROLE_CHOICES, default="run",
               meaning="run, control or skip"),
+        Field("R_p", "R_p [mol/L/s]", aliases=("Rp", "rate of polymerization"),
+              unit="mol/L/s", conversions={"mol/L/min": (1.0 / 60.0, 0.0),
+                                           "mmol/L/s": (1e-3, 0.0)},
+              minimum=0.0, min_open=True, example="6.8e-5",
+              meaning="measured rate of polymerization (kinetic term R_p/[M]^2)"),
+        Field("initiator", "initiator", kind="text", aliases=("initiator name",),
+              meaning="initiator name in the bundled table (kinetic term from reference data)"),
+        Field("delta", "delta [-]", aliases=("δ", "disproportionation fraction"), unit="-",
+              minimum=0.0, maximum=1.0, example="0.1",
+              meaning="fraction of termination by disproportionation, δ = k_td/k_t"),
         _mol_l("res_M", "residual [M] [mol/L]"),
         _mol_l("u_res_M", "u(residual [M]) [mol/L]"),
         Field("u_conversion", "u(conversion) [-]", unit="-", minimum=0.0, example="0.005"),

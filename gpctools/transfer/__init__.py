@@ -3,8 +3,10 @@
 A chemist runs polymerizations at several ratios of transfer agent (or solvent) to
 monomer; the slope of 1/DPn against [A]/[M] is the chain-transfer constant (the Mayo
 equation). This package turns a run-series sheet (chromatograms or measured Mn/Mw) into
-constants with uncertainties, three ways (Mn, Mw/2, chain-length distribution), with the
-conversion-drift correction, impurity flags and ln C against 1/T.
+constants with uncertainties (statistical and calibration parts), three ways (Mn, Mw/2,
+chain-length distribution, with the mixed-termination relations), with the kinetic term
+as a regressor where [M] or [I] varies, the conversion-drift correction, impurity flags
+(generalized ESD), ln C against 1/T, and the agent charge for a target molar mass.
 
 Public API
 ----------
@@ -17,9 +19,12 @@ fit_cumulative(y, conversion, columns, ...) -> DriftFit;  apparent_constant(C, x
 consumption_constant(A0, A, ...) -> ConsumptionResult
 fit_arrhenius(T_K, C, C_stderr) -> ArrheniusFit
 flag_runs(y, columns, ...) -> ImpurityCheck;  check_intercept(fit, expected, ...)
+agent_charge(result, target_Mn=..., conversion=...) -> DosingAnswer
+SeriesModel(estimator, terms, ratios, ...): what each estimator measures (drift, δ, kinetic)
+kinetic_term(runs, mode, ...) -> KineticTerm;  termination_mode(runs, delta, C_M) -> Termination
 
 Nothing here writes files: :func:`gpctools.report.write_transfer` writes the tables,
-summary and plots of a :class:`TransferResult`. Heavy modules (lmfit, scipy.optimize) are
+summary and plots of a :class:`TransferResult`. Heavy modules (scipy.special, pandas) are
 imported inside the functions that need them.
 """
 
@@ -32,6 +37,7 @@ from gpctools.transfer.analysis import (
     analyse_series,
 )
 from gpctools.transfer.arrhenius import ArrheniusFit, fit_arrhenius
+from gpctools.transfer.dosing import DosingAnswer, agent_charge
 from gpctools.transfer.drift import (
     ConsumptionResult,
     DriftFit,
@@ -49,7 +55,9 @@ from gpctools.transfer.impurity import (
     flag_runs,
     impurity_level,
 )
+from gpctools.transfer.kinetic import KineticTerm, Termination, kinetic_term, termination_mode
 from gpctools.transfer.mayo import DesignCheck, FittedValue, MayoFit, check_design, fit_mayo
+from gpctools.transfer.model import SeriesModel
 from gpctools.transfer.options import TransferOptions
 from gpctools.transfer.series import Run, RunSeries, read_run_series, run_series_from_rows
 
@@ -86,4 +94,11 @@ __all__ = [
     "ImpurityCheck",
     "InterceptCheck",
     "RunFlag",
+    "SeriesModel",
+    "agent_charge",
+    "DosingAnswer",
+    "KineticTerm",
+    "Termination",
+    "kinetic_term",
+    "termination_mode",
 ]

@@ -21,9 +21,12 @@ from typing import Any
 import numpy as np
 
 from gpctools.errors import DataError, DesignError
-from gpctools.refdata import R_GAS
 from gpctools.transfer._stats import finite_or_none, t_quantile, weighted_linear_fit
 from gpctools.transfer.mayo import FittedValue
+
+#: Molar gas constant [J/mol/K] (CODATA 2018, exact; the value of gpctools.refdata.R_GAS,
+#: repeated so that the fits do not import the reference tables and pandas).
+R_GAS = 8.314462618
 
 __all__ = ["ArrheniusFit", "fit_arrhenius", "R_GAS"]
 
@@ -59,6 +62,10 @@ class ArrheniusFit:
     confidence : float
         Level of the intervals [-].
     warnings : tuple of str
+    interval_basis : str
+        Which distribution the intervals use, and why (known errors: normal quantile,
+        unscaled covariance; scatter above the errors or no errors: Student t on the
+        scaled covariance).
     """
 
     name: str
@@ -75,6 +82,7 @@ class ArrheniusFit:
     weighted: bool
     confidence: float
     warnings: tuple[str, ...] = ()
+    interval_basis: str = ""
 
     def predict(self, T_K: Any) -> np.ndarray:
         """Model C at temperature(s) ``T_K`` [K] [-]."""
@@ -95,6 +103,7 @@ class ArrheniusFit:
             "degrees of freedom": self.dof,
             "reduced chi-square": finite_or_none(self.redchi),
             "weighted": self.weighted,
+            "interval": self.interval_basis,
             "warnings": list(self.warnings),
         }
 
@@ -107,7 +116,7 @@ def fit_arrhenius(
     name: str = "C_A",
     confidence: float = 0.95,
 ) -> ArrheniusFit:
-    """Fit ln C = ln(A_tr/A_p) − ΔE/(R T) by weighted least squares (lmfit).
+    """Fit ln C = ln(A_tr/A_p) − ΔE/(R T) by weighted least squares.
 
     Parameters
     ----------
@@ -116,8 +125,10 @@ def fit_arrhenius(
     C : array-like
         Transfer constants [-] (positive).
     C_stderr : array-like, optional
-        Standard errors of C [-]; weights 1/u(ln C) = C/se(C). The parameter covariance is
-        then scaled by max(1, reduced chi-square) (the Birge ratio). Without them the fit
+        Standard errors of C [-]; weights 1/u(ln C) = C/se(C). With these known errors the
+        intervals use the normal quantile and the unscaled covariance; when the points
+        scatter more than the errors say (reduced chi-square > 1) the covariance is scaled
+        by it (the Birge ratio) and Student t with n − 2 dof is used. Without them the fit
         is unweighted and the uncertainties come from the scatter (needs 3 temperatures).
     name : str
         Name of the constant for labels.
@@ -158,8 +169,18 @@ def fit_arrhenius(
     if weighted:
         w = Cv / se
         fit = weighted_linear_fit(X, y, w, scale_covar=False)
-        cov = fit.covariance * (max(1.0, fit.redchi) if fit.dof > 0 else 1.0)
-        dof_q = fit.dof if fit.dof > 0 else 0
+        if fit.dof > 0 and fit.redchi > 1.0:
+            # the points scatter more than their errors say: scale by the reduced chi-square
+            # (Birge) and use Student t with n − 2 dof (docs/science.md, section 11.4)
+            cov = fit.covariance * fit.redchi
+            dof_q = fit.dof
+            basis = (f"Student t ({fit.dof} dof) on the covariance scaled by the reduced "
+                     f"chi-square {fit.redchi:.3g} (scatter above the stated errors)")
+        else:
+            # errors known from the fits of C: unscaled covariance, normal quantile
+            cov = fit.covariance
+            dof_q = 0
+            basis = "normal quantile on the unscaled covariance (errors of C known)"
     else:
         if T.size < 3:
             raise DesignError(f"{name}: without standard errors of C, ln C against 1/T needs at "
@@ -167,6 +188,7 @@ def fit_arrhenius(
         fit = weighted_linear_fit(X, y, np.ones_like(y), scale_covar=True)
         cov = fit.covariance
         dof_q = fit.dof
+        basis = f"Student t ({fit.dof} dof) on the covariance from the scatter (no errors of C)"
     q = t_quantile(0.5 + confidence / 2, dof_q)
     b0, b1 = fit.beta
     s0, s1 = np.sqrt(np.maximum(np.diag(cov), 0.0))
@@ -199,4 +221,5 @@ def fit_arrhenius(
         weighted=weighted,
         confidence=confidence,
         warnings=tuple(warns),
+        interval_basis=basis,
     )

@@ -47,8 +47,16 @@ from gpctools.chainlength import (
     term_kind,
 )
 from gpctools.errors import DataError, DesignError, EstimatorWarning
+from gpctools.transfer._fit import solve
 from gpctools.transfer._stats import FittedConstants, as_str_tuple, finite_or_none, t_quantile
-from gpctools.transfer.mayo import FittedValue, MayoFit, check_design
+from gpctools.transfer.mayo import (
+    FittedValue,
+    MayoFit,
+    check_design,
+    dpn0_value,
+    fitted_values,
+)
+from gpctools.transfer.model import KINETIC_NAME, SeriesModel
 
 __all__ = [
     "apparent_constant",
@@ -123,25 +131,24 @@ def cumulative_model(
     *,
     windows: Sequence[tuple[float, float]] | None = None,
     M0: float | None = None,
+    delta: float = 1.0,
 ) -> Any:
     """The cumulative model of one estimator as ``f(a, consts) -> prediction per run`` [-].
 
-    ``a`` is 1/DPn0 and ``consts`` the constants in the order of ``columns``.
+    ``a`` is 1/DPn0 and ``consts`` the constants in the order of ``columns`` (a thin
+    wrapper of :class:`gpctools.transfer.model.SeriesModel`).
     """
     names = list(columns)
-    if estimator not in ("Mn", "Mw/2", "CLD"):
-        raise DataError(f"unknown estimator {estimator!r}; use Mn, Mw/2 or CLD", key="estimators")
-    xv = np.asarray(conversion, dtype=float)
+    model = SeriesModel(estimator, tuple(names),
+                        np.column_stack([np.asarray(columns[k], dtype=float) for k in names]),
+                        np.asarray(conversion, dtype=float), delta=delta,
+                        windows=None if windows is None else np.asarray(windows, dtype=float),
+                        M0=M0)
 
-    def model(a: float, consts: Sequence[float]) -> np.ndarray:
-        terms = {k: (c, columns[k]) for k, c in zip(names, consts, strict=True)}
-        if estimator == "Mn":
-            return cumulative_inv_dpn(xv, a, terms)
-        if estimator == "Mw/2":
-            return cumulative_inv_dpw_half(xv, a, terms)
-        return cumulative_cld_lambda(xv, a, terms, windows, float(M0))  # type: ignore[arg-type]
+    def f(a: float, consts: Sequence[float]) -> np.ndarray:
+        return model.predict(np.array([a, *consts], dtype=float))
 
-    return model
+    return f
 
 
 @dataclass(frozen=True)
@@ -207,12 +214,44 @@ class DriftFit(FittedConstants):
     success: bool
     message: str
     warnings: tuple[str, ...] = field(default=())
+    model: SeriesModel | None = None
+    theta: np.ndarray | None = None
+    covariance_calibration: np.ndarray | None = None
+    kinetic: FittedValue | None = None
+    weights: np.ndarray | None = None
+    known_sigma: bool = False
+    dof_calibration: float = float("inf")
+
+    @property
+    def intercept_fixed(self) -> bool:
+        """Whether 1/DPn0 was held at a given value."""
+        return self.model is not None and self.model.intercept is not None
+
+    def predict(self, columns: Mapping[str, Any]) -> np.ndarray:
+        """Instantaneous (x = 0) model 1/DPn for design rows, term -> values [-]."""
+        return MayoFit.predict(self, columns)  # type: ignore[arg-type]
+
+    def band(self, columns: Mapping[str, Any], confidence: float | None = None):
+        """Pointwise band of the instantaneous line with the drift-corrected constants [-]."""
+        return MayoFit.band(self, columns, confidence)  # type: ignore[arg-type]
+
+    def _row_matrix(self, columns: Mapping[str, Any]) -> np.ndarray:
+        return MayoFit._row_matrix(self, columns)  # type: ignore[arg-type]
+
+    def _beta(self) -> np.ndarray:
+        return MayoFit._beta(self)  # type: ignore[arg-type]
+
+    def inv_dpn_points(self) -> np.ndarray:
+        """Observations moved to x = 0 and the 1/DPn scale with the fitted model [-]."""
+        return MayoFit.inv_dpn_points(self)  # type: ignore[arg-type]
 
     def summary(self) -> dict[str, Any]:
         """Plain JSON-safe dict."""
         return {
             "estimator": self.estimator,
             "model": "cumulative Mayo (conversion drift)",
+            "delta [-]": finite_or_none(self.model.delta) if self.model else None,
+            "kinetic term coefficient": self.kinetic.summary() if self.kinetic else None,
             "terms": list(self.terms),
             "constants": [c.summary() for c in self.constants],
             "intercept 1/DPn0 [-]": self.intercept.summary(),
@@ -233,24 +272,6 @@ class DriftFit(FittedConstants):
         }
 
 
-def _invert_capp(c_app: float, x: float) -> float:
-    """C with (1 − (1 − x)^C)/x = c_app (start value for the fit)."""
-    from scipy.optimize import brentq
-
-    if not (np.isfinite(c_app) and c_app > 0):
-        return 1.0
-    if c_app >= 1.0 / x * 0.999:
-        return 200.0
-    f = lambda C: float(apparent_constant(C, x)) - c_app  # noqa: E731
-    hi = 1.0
-    while f(hi) < 0 and hi < 1e4:
-        hi *= 2
-    try:
-        return float(brentq(f, 1e-9, hi))
-    except ValueError:
-        return float(c_app)
-
-
 def fit_cumulative(
     y: Sequence[float] | np.ndarray,
     conversion: Sequence[float] | np.ndarray,
@@ -264,13 +285,21 @@ def fit_cumulative(
     run_ids: Sequence[Any] | None = None,
     confidence: float = 0.95,
     what: str = "this run series",
+    delta: float = 1.0,
+    kinetic: Sequence[float] | np.ndarray | None = None,
+    kinetic_known: Sequence[float] | np.ndarray | None = None,
+    C_M_known: float = 0.0,
+    sigma: Sequence[float] | np.ndarray | None = None,
+    cal_cov_y: np.ndarray | None = None,
+    dof_cal: float = float("inf"),
+    kinetic_label: str = "kinetic term",
 ) -> DriftFit:
-    """Fit the cumulative (conversion-drift) Mayo model with lmfit (nonlinear in C).
+    """Fit the cumulative (conversion-drift) Mayo model (nonlinear in C; Gauss–Newton).
 
     Parameters
     ----------
     y : array-like
-        Observed 1/DPn (``"Mn"``: M0/Mn; ``"Mw/2"``: 2 M0/Mw; ``"CLD"``: Λ) per run [-].
+        Observed value per run [-] (``"Mn"``: M0/Mn; ``"Mw/2"``: 2 M0/Mw; ``"CLD"``: Λ).
     conversion : array-like
         Monomer conversion x of each run, 0 < x < 1 [-].
     columns : mapping
@@ -283,14 +312,16 @@ def fit_cumulative(
     M0 : float, optional
         Repeat-unit molar mass [g/mol]; required for ``"CLD"``.
     naive : MayoFit, optional
-        The naive fit on initial ratios, for the bias report and the start values.
+        The naive fit on initial ratios, for the bias report.
     weights : {"relative", "equal"}
         As in :func:`gpctools.transfer.mayo.fit_mayo`.
     run_ids : sequence, optional
     confidence : float
-        Two-sided level of the intervals (t distribution, n − p dof) [-].
+        Two-sided level of the intervals [-].
     what : str
         Series name for messages.
+    delta, kinetic, kinetic_known, C_M_known, sigma, cal_cov_y, dof_cal, kinetic_label
+        As in :func:`gpctools.transfer.mayo.fit_mayo`.
 
     Returns
     -------
@@ -298,21 +329,35 @@ def fit_cumulative(
 
     References
     ----------
-    SCIENCE.md section 5 [derived]; Mayo, J. Am. Chem. Soc. 1943. Newville et al., LMFIT
-    (Levenberg–Marquardt with covariance from the Jacobian).
+    docs/science.md, section 5 [derived]; Mayo, J. Am. Chem. Soc. 1943; Levenberg 1944 and
+    Marquardt 1963 (damped Gauss–Newton).
     """
-    import lmfit
-
     yv = np.asarray(y, dtype=float).ravel()
     xv = np.asarray(conversion, dtype=float).ravel()
     n = yv.size
     ids = as_str_tuple(run_ids) if run_ids is not None else tuple(str(i + 1) for i in range(n))
     names = list(columns)
     R = {k: np.asarray(columns[k], dtype=float).ravel() for k in names}
-    for k in names:
+    _check_inputs(yv, xv, R, ids, estimator, windows, M0, what)
+    z = None if kinetic is None else np.asarray(kinetic, dtype=float).ravel()
+    check_design(R, intercept=True, what=what, kinetic=z, kinetic_label=kinetic_label)
+    model = SeriesModel(estimator, tuple(names), np.column_stack([R[k] for k in names]), xv, z,
+                        None if kinetic_known is None else np.asarray(kinetic_known, dtype=float),
+                        None, float(delta), float(C_M_known),
+                        None if windows is None else np.asarray(windows, dtype=float), M0)
+    sig = None if sigma is None else np.asarray(sigma, dtype=float).ravel()
+    sol = solve(model, yv, weights=weights, sigma=sig, cal_cov_y=cal_cov_y, dof_cal=dof_cal)
+    return _drift_result(sol, ids, naive, confidence, estimator, what)
+
+
+def _check_inputs(yv: np.ndarray, xv: np.ndarray, R: Mapping[str, np.ndarray],
+                  ids: tuple[str, ...], estimator: str, windows: Any, M0: Any, what: str) -> None:
+    """Refuse conversions outside (0, 1), missing chain lengths and a CLD model without windows."""
+    n = yv.size
+    for k, r in R.items():
         term_kind(k)
-        if R[k].size != n:
-            raise DesignError(f"{what}: term {k} has {R[k].size} rows for {n} runs")
+        if r.size != n:
+            raise DesignError(f"{what}: term {k} has {r.size} rows for {n} runs")
     bad = np.flatnonzero(~np.isfinite(xv) | (xv <= 0) | (xv >= 1))
     if bad.size:
         i = int(bad[0])
@@ -327,95 +372,56 @@ def fit_cumulative(
         raise DataError(f"{what}: run {ids[i]!r} has no usable chain length for {estimator}")
     if estimator == "CLD" and (windows is None or M0 is None or len(windows) != n):
         raise DataError(f"{what}: the CLD drift model needs each run's window and M0")
-    check_design(R, intercept=True, what=what)
 
-    model = cumulative_model(estimator, xv, R, windows=windows, M0=M0)
 
-    # start values: naive fit, each consumed C corrected by inverting C_app at the mean x
-    xbar = float(np.mean(xv))
-    if naive is not None:
-        a0 = max(naive.intercept.value, 1e-12)
-        c0 = []
-        for k in names:
-            cn = naive.constant(k).value
-            c0.append(_invert_capp(cn, xbar) if term_kind(k) == "consumed" else cn)
-    else:
-        a0 = float(np.min(yv)) * 0.5
-        c0 = [1.0 for _ in names]
-    pars = lmfit.Parameters()
-    pars.add("a", value=a0)
-    for j, c in enumerate(c0):
-        pars.add(f"c{j}", value=max(float(c), 1e-6), min=0.0 if term_kind(names[j]) != "monomer" else -np.inf)
-
-    w = 1.0 / yv
-
-    def resid(p: Any, w: np.ndarray) -> np.ndarray:
-        m = model(p["a"].value, [p[f"c{j}"].value for j in range(len(names))])
-        return (m - yv) * w
-
-    mini = lmfit.Minimizer(resid, pars, fcn_args=(w,))
-    res = mini.minimize(method="leastsq")
-    if weights == "relative":
-        m1 = model(res.params["a"].value, [res.params[f"c{j}"].value for j in range(len(names))])
-        if np.all(m1 > 0):
-            w = 1.0 / m1
-            mini = lmfit.Minimizer(resid, res.params, fcn_args=(w,))
-            res = mini.minimize(method="leastsq")
-    elif weights == "equal":
-        w = np.ones(n)
-        mini = lmfit.Minimizer(resid, res.params, fcn_args=(w,))
-        res = mini.minimize(method="leastsq")
-    p = 1 + len(names)
-    dof = n - p
-    a = float(res.params["a"].value)
-    cs = [float(res.params[f"c{j}"].value) for j in range(len(names))]
-    fitted = model(a, cs)
-    chisqr = float(np.sum(((fitted - yv) * w) ** 2))
-    redchi = chisqr / dof if dof > 0 else float("nan")
-    names_all = ["a"] + [f"c{j}" for j in range(len(names))]
-    cov = res.covar
-    warns: list[str] = []
-    if cov is None or np.shape(cov) != (p, p):
-        cov = _numeric_covariance(model, a, cs, w, redchi)
-        if not np.all(np.isfinite(cov)):
-            warns.append(f"{what} ({estimator}, drift model): the covariance could not be "
-                         "estimated; the constants are poorly determined by these runs")
-    # lmfit's covar follows the order of varying parameters (all vary here)
-    var_names = list(res.var_names) if getattr(res, "var_names", None) else names_all
-    order = [var_names.index(nm) for nm in names_all] if set(var_names) == set(names_all) else list(range(p))
-    cov = np.asarray(cov, dtype=float)[np.ix_(order, order)]
-    se = np.sqrt(np.maximum(np.diag(cov), 0.0))
-    q = t_quantile(0.5 + confidence / 2, dof)
-    consts = tuple(
-        FittedValue(k, cs[j], float(se[1 + j]), float(cs[j] - q * se[1 + j]),
-                    float(cs[j] + q * se[1 + j]),
-                    confidence=confidence)
-        for j, k in enumerate(names)
-    )
-    sa = float(se[0])
-    icpt = FittedValue("1/DPn0", a, sa, a - q * sa, a + q * sa, confidence=confidence)
-    if a > 0:
-        dpn0 = FittedValue("DPn0", 1 / a, sa / a**2,
-                           1 / icpt.ci_high if icpt.ci_high > 0 else float("inf"),
-                           1 / icpt.ci_low if icpt.ci_low > 0 else float("inf"),
-                           confidence=confidence)
-    else:
-        dpn0 = FittedValue("DPn0", float("nan"), float("nan"), float("nan"), float("nan"),
-                           confidence=confidence)
+def _drift_result(sol: Any, ids: tuple[str, ...], naive: MayoFit | None, confidence: float,
+                  estimator: str, what: str) -> DriftFit:
+    """Assemble a :class:`DriftFit`: values with both error parts, naive bias,
+    identifiability of each consumed constant and its warnings."""
+    model = sol.model
+    names = list(model.terms)
+    xv = model.conversion
+    vals = fitted_values(sol, confidence)
+    consts = tuple(vals[t] for t in names)
+    icpt = vals["1/DPn0"]
+    dpn0 = dpn0_value(icpt)
     naive_vals: tuple[FittedValue, ...] = ()
     bias: tuple[float, ...] = ()
     if naive is not None:
         naive_vals = tuple(naive.constant(k) for k in names)
         bias = tuple(nv.value / c.value - 1.0 if c.value != 0 else float("nan")
                      for nv, c in zip(naive_vals, consts, strict=True))
+    warns: list[str] = []
+    if not sol.success:
+        warns.append(f"{what} ({estimator}, drift model): {sol.message}; the constants are "
+                     "poorly determined by these runs")
+    apparent, remaining, ident = _identifiability(consts, xv, ids, estimator, what, warns)
+    for msg in warns:
+        _warnings.warn(msg, EstimatorWarning, stacklevel=3)
+    return DriftFit(
+        estimator=estimator, terms=tuple(names), constants=consts, intercept=icpt, DPn0=dpn0,
+        naive=naive_vals, naive_bias=bias, apparent=apparent, remaining=remaining,
+        identifiable=ident, run_ids=ids, conversion=xv, y=sol.y, fitted=sol.fitted,
+        covariance=sol.cov, dof=sol.dof, redchi=sol.redchi, confidence=confidence,
+        success=sol.success, message=sol.message, warnings=tuple(warns), model=model,
+        theta=sol.theta, covariance_calibration=sol.cov_cal, kinetic=vals.get(KINETIC_NAME),
+        weights=sol.weights, known_sigma=sol.known_sigma,
+        dof_calibration=sol.dof_cal,
+    )
+
+
+def _identifiability(consts: Sequence[FittedValue], xv: np.ndarray, ids: tuple[str, ...],
+                     estimator: str, what: str, warns: list[str]):
+    """C_app, the remaining agent fraction and whether each consumed constant is identifiable."""
     apparent: dict[str, np.ndarray] = {}
     remaining: dict[str, np.ndarray] = {}
     ident: dict[str, bool] = {}
-    for j, k in enumerate(names):
+    for c in consts:
+        k = c.name
         if term_kind(k) != "consumed":
             continue
-        apparent[k] = apparent_constant(cs[j], xv)
-        remaining[k] = remaining_fraction(cs[j], xv)
+        apparent[k] = apparent_constant(c.value, xv)
+        remaining[k] = remaining_fraction(c.value, xv)
         low = remaining[k] < IDENTIFIABILITY_LIMIT
         ident[k] = not bool(np.all(low))
         if np.all(low):
@@ -430,52 +436,11 @@ def fit_cumulative(
                 f"{what} ({estimator}): in runs {lows} the agent is almost used up "
                 f"((1 − x)^{k} < {IDENTIFIABILITY_LIMIT:g}); they carry little information on {k}"
             )
-        rel = consts[j].stderr / abs(cs[j]) if cs[j] else float("inf")
+        rel = c.stderr / abs(c.value) if c.value else float("inf")
         if np.isfinite(rel) and rel > 0.5:
             warns.append(f"{what} ({estimator}): the drift-corrected {k} has a relative standard "
                          f"error of {100 * rel:.0f} %; the conversions make it poorly determined")
-    for msg in warns:
-        _warnings.warn(msg, EstimatorWarning, stacklevel=2)
-    return DriftFit(
-        estimator=estimator,
-        terms=tuple(names),
-        constants=consts,
-        intercept=icpt,
-        DPn0=dpn0,
-        naive=naive_vals,
-        naive_bias=bias,
-        apparent=apparent,
-        remaining=remaining,
-        identifiable=ident,
-        run_ids=ids,
-        conversion=xv,
-        y=yv,
-        fitted=fitted,
-        covariance=cov,
-        dof=dof,
-        redchi=redchi,
-        confidence=confidence,
-        success=bool(res.success),
-        message=str(res.message),
-        warnings=tuple(warns),
-    )
-
-
-def _numeric_covariance(model: Any, a: float, cs: Sequence[float], w: np.ndarray,
-                        redchi: float) -> np.ndarray:
-    theta = np.array([a, *cs], dtype=float)
-    base = model(theta[0], theta[1:])
-    J = np.empty((base.size, theta.size))
-    for j in range(theta.size):
-        h = 1e-6 * max(abs(theta[j]), 1e-8)
-        t2 = theta.copy()
-        t2[j] += h
-        J[:, j] = (model(t2[0], t2[1:]) - base) * w / h
-    try:
-        inv = np.linalg.inv(J.T @ J)
-    except np.linalg.LinAlgError:
-        return np.full((theta.size, theta.size), np.nan)
-    return inv * (redchi if np.isfinite(redchi) else 1.0)
+    return apparent, remaining, ident
 
 
 @dataclass(frozen=True)

@@ -29,13 +29,9 @@ from typing import Any
 import numpy as np
 
 from gpctools.errors import DataError, DesignError, EstimatorWarning
-from gpctools.transfer._stats import (
-    FittedConstants,
-    as_str_tuple,
-    finite_or_none,
-    t_quantile,
-    weighted_linear_fit,
-)
+from gpctools.transfer._fit import Solution, solve
+from gpctools.transfer._stats import FittedConstants, as_str_tuple, finite_or_none, t_quantile
+from gpctools.transfer.model import KINETIC_NAME, SeriesModel
 
 __all__ = [
     "FittedValue",
@@ -55,6 +51,8 @@ RANK_TOL = 1e-9
 
 def term_label(term: str) -> str:
     """The sheet-style ratio label of a term, e.g. ``"C_A:thiol"`` -> ``"ratio [A:thiol]/[M] [-]"``."""
+    if term == KINETIC_NAME:
+        return "kinetic term (R_p/[M]^2 or sqrt([I])/[M])"
     if term == "C_M":
         return "C_M (constant column)"
     if term.startswith("C_A"):
@@ -82,6 +80,11 @@ class FittedValue:
         Two-sided confidence level of the interval [-].
     unit : str
         Unit of the value ("-" for dimensionless).
+    stderr_statistical, stderr_calibration : float
+        The two parts of ``stderr`` (run-to-run scatter; the calibration common to every
+        run), combined in quadrature [unit]; NaN/0 where not separated.
+    dof : float
+        Degrees of freedom of the interval (Welch–Satterthwaite; inf: normal quantile).
     """
 
     name: str
@@ -91,6 +94,9 @@ class FittedValue:
     ci_high: float
     confidence: float = 0.95
     unit: str = "-"
+    stderr_statistical: float = float("nan")
+    stderr_calibration: float = 0.0
+    dof: float = float("nan")
 
     def summary(self) -> dict[str, Any]:
         """Plain JSON-safe dict."""
@@ -98,6 +104,9 @@ class FittedValue:
             "name": self.name,
             "value": finite_or_none(self.value),
             "standard error": finite_or_none(self.stderr),
+            "statistical part": finite_or_none(self.stderr_statistical),
+            "calibration part": finite_or_none(self.stderr_calibration),
+            "degrees of freedom": finite_or_none(self.dof),
             "CI low": finite_or_none(self.ci_low),
             "CI high": finite_or_none(self.ci_high),
             "confidence": self.confidence,
@@ -173,6 +182,8 @@ def check_design(
     *,
     intercept: bool = True,
     what: str = "this run series",
+    kinetic: np.ndarray | None = None,
+    kinetic_label: str = "kinetic term",
 ) -> DesignCheck:
     """Check that a run series can separate the chosen Mayo terms; raise if it cannot.
 
@@ -191,6 +202,13 @@ def check_design(
         Whether 1/DPn0 is fitted (a column of ones is added).
     what : str
         Name of the series for the messages.
+    kinetic : numpy.ndarray, optional
+        The kinetic regressor z per run (R_p/[M]² or √[I]/[M]) when it is fitted; it is
+        checked like a term, and a design that cannot tell it from the solvent or
+        initiator columns (e.g. a dilution series at one initiator level, where 1,
+        [S]/[M] and 1/[M] are exactly related) is refused with what to add.
+    kinetic_label : str
+        How z was formed, for the messages.
 
     Returns
     -------
@@ -202,6 +220,10 @@ def check_design(
     column-scaled design; variance-inflation factors (VIF > 10, common practice).
     """
     names, T = _columns_matrix(columns, None)
+    term_names = list(names)
+    if kinetic is not None:
+        names = [KINETIC_NAME, *names]
+        T = np.column_stack([np.asarray(kinetic, dtype=float).ravel(), T])
     n = T.shape[0]
     full_names = (["1/DPn0"] if intercept else []) + names
     X = np.column_stack([np.ones(n), T]) if intercept else T
@@ -264,6 +286,10 @@ def check_design(
             ss_tot = float(np.sum(target**2))
         ss_res = float(resid @ resid)
         vif[name] = float("inf") if ss_res <= 1e-18 * max(ss_tot, 1e-300) else ss_tot / ss_res
+    if rank < p and kinetic is not None and vif.get(KINETIC_NAME, 0.0) > 1e8:
+        culprit_terms = [t for t in term_names if t in ("C_S", "C_I", "C_M") and vif.get(t, 0) > 1e8]
+        raise DesignError(_kinetic_refusal(what, culprit_terms or term_names, kinetic_label, rank, p),
+                          key="kinetic_term")
     if rank < p:
         culprits = [k for k, v in vif.items() if not np.isfinite(v) or v > 1e8]
         pair = _most_correlated(T, names)
@@ -298,6 +324,21 @@ def check_design(
     )
 
 
+def _kinetic_refusal(what: str, terms: Sequence[str], label: str, rank: int, p: int) -> str:
+    """Why C_S / C_I cannot be told from the kinetic term, and what to add."""
+    which = ", ".join(terms)
+    return (
+        f"{what}: {which} cannot be separated from the kinetic (termination) term, which "
+        f"enters because {label} varies over the runs: the columns 1, {label} and "
+        f"{', '.join(term_label(t) for t in terms)} are linear combinations of one another "
+        f"(design rank {rank} < {p} parameters; in a dilution series at one initiator level "
+        "1/[M] and [S]/[M] move together). Add one of: a second initiator level at each "
+        "dilution ('[I] [mol/L]'), measured rates ('R_p [mol/L/s]') where they do not follow "
+        "sqrt([I])/[M], or a known C_M (--C-M; C_S then rests on it), or ask for the kinetic "
+        "term from reference data (kinetic = 'reference', --kinetic reference)"
+    )
+
+
 def _most_correlated(T: np.ndarray, names: list[str]) -> str:
     best = ""
     best_r = 0.0
@@ -324,18 +365,20 @@ class MayoFit(FittedConstants):
     terms : tuple of str
         Fitted constants, in design-column order.
     constants : tuple of FittedValue
-        One per term (dimensionless k_tr/k_p).
+        One per term (dimensionless k_tr/k_p), with statistical and calibration parts.
     intercept : FittedValue
-        1/DPn0 [-] (fitted, or the fixed value with zero standard error).
+        1/DPn0 [-] (fitted, or the fixed value with zero standard error); with a kinetic
+        regressor, the constant part only (C_M and any constant transfer).
     DPn0 : FittedValue
         1/intercept with propagated standard error se(a)/a^2 and the inverted interval [-].
     covariance : numpy.ndarray
-        Covariance of (intercept if free, then terms) [-].
+        Combined covariance of θ = (intercept if free, kinetic coefficient if fitted, then
+        terms) [-]; ``covariance_calibration`` is its calibration part.
     run_ids : tuple of str
     design : numpy.ndarray
         Term columns, shape (n, len(terms)) [-].
     y, fitted : numpy.ndarray
-        Observed and fitted 1/DPn (or Λ) per run [-].
+        Observed and fitted estimator values per run [-] (1/DPn, 2 M0/Mw or Λ).
     weights : numpy.ndarray
         Residual weights used (1/sigma up to a common factor) [-].
     dof : int
@@ -343,7 +386,7 @@ class MayoFit(FittedConstants):
     redchi : float
         Reduced chi-square of the weighted fit [-].
     relative_scatter : float
-        Estimated relative error of one 1/DPn (sqrt(redchi) with relative weights) [-].
+        Estimated relative error of one observation (sqrt(redchi) with relative weights) [-].
     confidence : float
         Level of the intervals [-].
     intercept_fixed : bool
@@ -354,6 +397,13 @@ class MayoFit(FittedConstants):
     known_sigma : bool
         True when absolute uncertainties of y were given: the covariance is then not
         scaled and the intervals use the normal quantile instead of Student's t.
+    model : SeriesModel or None
+        The observation model (δ, kinetic term, CLD windows) the fit used.
+    theta : numpy.ndarray or None
+        The fitted parameters in the order of ``model.names``.
+    covariance_calibration : numpy.ndarray or None
+    kinetic : FittedValue or None
+        Coefficient of the kinetic regressor, when it was fitted.
     """
 
     estimator: str
@@ -377,26 +427,48 @@ class MayoFit(FittedConstants):
     design_check: DesignCheck
     warnings: tuple[str, ...] = field(default=())
     known_sigma: bool = False
+    model: SeriesModel | None = None
+    theta: np.ndarray | None = None
+    covariance_calibration: np.ndarray | None = None
+    kinetic: FittedValue | None = None
+    dof_calibration: float = float("inf")
 
     def _row_matrix(self, columns: Mapping[str, Any]) -> np.ndarray:
-        cols = [np.atleast_1d(np.asarray(columns[t], dtype=float)) for t in self.terms]
-        n = max(len(c) for c in cols)
-        T = np.column_stack([np.broadcast_to(c, (n,)) for c in cols])
-        return T if self.intercept_fixed else np.column_stack([np.ones(n), T])
+        """Rows of the instantaneous line in θ order; missing columns take the design mean."""
+        names = self.model.names if self.model is not None else (
+            (() if self.intercept_fixed else ("1/DPn0",)) + self.terms)
+        cols: list[np.ndarray | None] = []
+        for name in names:
+            if name == "1/DPn0":
+                cols.append(None)
+            elif name in columns:
+                cols.append(np.atleast_1d(np.asarray(columns[name], dtype=float)))
+            elif name == KINETIC_NAME and self.model is not None and self.model.kinetic is not None:
+                cols.append(np.atleast_1d(float(np.mean(self.model.kinetic))))
+            else:
+                cols.append(np.atleast_1d(np.asarray(columns[name], dtype=float)))
+        n = max((c.size for c in cols if c is not None), default=1)
+        return np.column_stack([np.ones(n) if c is None else np.broadcast_to(c, (n,))
+                                for c in cols])
+
+    def _beta(self) -> np.ndarray:
+        if self.theta is not None:
+            return np.asarray(self.theta, dtype=float)
+        return np.array(([] if self.intercept_fixed else [self.intercept.value])
+                        + [c.value for c in self.constants])
 
     def predict(self, columns: Mapping[str, Any]) -> np.ndarray:
-        """Model 1/DPn for design rows given as term -> values [-]."""
+        """Instantaneous model 1/DPn for design rows given as term -> values [-]."""
         G = self._row_matrix(columns)
-        beta = np.array(([] if self.intercept_fixed else [self.intercept.value])
-                        + [c.value for c in self.constants])
         fixed = self.intercept.value if self.intercept_fixed else 0.0
-        return G @ beta + fixed
+        return G @ self._beta() + fixed
 
     def band(self, columns: Mapping[str, Any], confidence: float | None = None) -> tuple[np.ndarray, np.ndarray]:
-        """Pointwise confidence band of the fitted line (the mean 1/DPn) [-].
+        """Pointwise confidence band of the instantaneous line (the mean 1/DPn) [-].
 
-        Half-width ``t_{(1+c)/2, n-p} * sqrt(g' Cov g)`` with g the design row (the normal
-        quantile when the uncertainties of y were given, ``known_sigma``).
+        Half-width ``q * sqrt(g' Cov g)`` with g the design row and Cov the combined
+        covariance; q is Student's t with the fit's degrees of freedom (the normal quantile
+        when the uncertainties of y were given, ``known_sigma``).
 
         References
         ----------
@@ -411,19 +483,29 @@ class MayoFit(FittedConstants):
         half = t_quantile(0.5 + level / 2, dof) * np.sqrt(np.maximum(var, 0.0))
         return mean - half, mean + half
 
+    def inv_dpn_points(self) -> np.ndarray:
+        """Each run's observation on the instantaneous 1/DPn scale (see
+        :meth:`SeriesModel.to_inv_dpn`) [-]; ``y`` itself for a linear Mn fit."""
+        if self.model is None or self.theta is None:
+            return self.y
+        return self.model.to_inv_dpn(self.y, self.theta)
+
     def summary(self) -> dict[str, Any]:
         """Plain JSON-safe dict."""
+        m = self.model
         return {
             "estimator": self.estimator,
             "terms": list(self.terms),
             "constants": [c.summary() for c in self.constants],
             "intercept 1/DPn0 [-]": self.intercept.summary(),
             "DPn0 [-]": self.DPn0.summary(),
+            "kinetic term coefficient": self.kinetic.summary() if self.kinetic else None,
+            "delta [-]": finite_or_none(m.delta) if m is not None else None,
             "intercept fixed": self.intercept_fixed,
             "runs": list(self.run_ids),
             "degrees of freedom": self.dof,
             "reduced chi-square": finite_or_none(self.redchi),
-            "relative scatter of 1/DPn [-]": finite_or_none(self.relative_scatter),
+            "relative scatter [-]": finite_or_none(self.relative_scatter),
             "success": self.success,
             "message": self.message,
             "design": self.design_check.summary(),
@@ -433,6 +515,42 @@ class MayoFit(FittedConstants):
 
 def _interval(value: float, se: float, q: float) -> tuple[float, float]:
     return float(value - q * se), float(value + q * se)
+
+
+def fitted_values(sol: Solution, confidence: float) -> dict[str, FittedValue]:
+    """One :class:`FittedValue` per parameter of a solution, with both parts of the error."""
+    out = {}
+    for j, name in enumerate(sol.model.names):
+        s, c, tot, nu = sol.parts(j)
+        q = t_quantile(0.5 + confidence / 2, nu)
+        v = float(sol.theta[j])
+        out[name] = FittedValue(name, v, tot, *_interval(v, tot, q), confidence=confidence,
+                                stderr_statistical=s, stderr_calibration=c, dof=nu)
+    return out
+
+
+def dpn0_value(icpt: FittedValue) -> FittedValue:
+    """DPn0 = 1/intercept with se(a)/a² and the inverted interval (NaN when a <= 0)."""
+    a, sa = icpt.value, icpt.stderr
+    if not a > 0:
+        nan = float("nan")
+        return FittedValue("DPn0", nan, nan, nan, nan, confidence=icpt.confidence)
+    return FittedValue("DPn0", 1.0 / a, sa / a**2,
+                       1.0 / icpt.ci_high if icpt.ci_high > 0 else float("inf"),
+                       1.0 / icpt.ci_low if icpt.ci_low > 0 else float("inf"),
+                       confidence=icpt.confidence,
+                       stderr_statistical=icpt.stderr_statistical / a**2,
+                       stderr_calibration=icpt.stderr_calibration / a**2, dof=icpt.dof)
+
+
+def _check_y(yv: np.ndarray, ids: tuple[str, ...], estimator: str, what: str) -> None:
+    bad = np.flatnonzero(~np.isfinite(yv) | (yv <= 0))
+    if bad.size:
+        i = int(bad[0])
+        raise DataError(
+            f"{what}: run {ids[i]!r} has no usable chain length for estimator {estimator} "
+            f"(1/DPn = {yv[i]!r}); fix the run's molar mass or leave the run out"
+        )
 
 
 def fit_mayo(
@@ -446,13 +564,27 @@ def fit_mayo(
     estimator: str = "Mn",
     confidence: float = 0.95,
     what: str = "this run series",
+    delta: float = 1.0,
+    kinetic: Sequence[float] | np.ndarray | None = None,
+    kinetic_known: Sequence[float] | np.ndarray | None = None,
+    C_M_known: float = 0.0,
+    windows: Sequence[tuple[float, float]] | None = None,
+    M0: float | None = None,
+    cal_cov_y: np.ndarray | None = None,
+    dof_cal: float = float("inf"),
+    kinetic_label: str = "kinetic term",
 ) -> MayoFit:
-    """Fit 1/DPn = 1/DPn0 + sum_k C_k x_k by weighted least squares (lmfit).
+    """Fit the Mayo model on initial ratios by weighted least squares.
+
+    The instantaneous model is 1/DPn = 1/DPn0 [+ k z] + Σ_k C_k x_k; the estimator's
+    observable follows from it through :class:`~gpctools.transfer.model.SeriesModel`
+    (Mn: 1/DPn itself, a linear fit; Mw/2 and CLD with δ < 1: the mixed-termination
+    relations, a nonlinear fit).
 
     Parameters
     ----------
     y : array-like
-        Observed 1/DPn per run [-] (or Λ for the CLD estimator).
+        Observed estimator value per run [-]: 1/DPn = M0/Mn, 2 M0/Mw, or Λ for CLD.
     columns : mapping of str to array-like
         Term name (``"C_A"``, ``"C_A:<agent>"``, ``"C_S"``, ``"C_I"``, ``"C_M"``) ->
         design column: ratio [X]/[M] per run [-] (ones for ``C_M``).
@@ -471,12 +603,28 @@ def fit_mayo(
     run_ids : sequence, optional
         Run identifiers (for messages and tables).
     estimator : str
-        Label of the chain-length estimate (``"Mn"``, ``"Mw/2"``, ``"CLD"``).
+        ``"Mn"``, ``"Mw/2"`` or ``"CLD"``.
     confidence : float
-        Two-sided confidence level of the intervals [-], default 0.95; intervals use the
-        t distribution with n - p degrees of freedom (normal when ``sigma`` is given).
+        Two-sided confidence level of the intervals [-], default 0.95.
     what : str
         Name of the series for messages.
+    delta : float
+        δ = k_td/k_t [-]; 1 (default): no combination.
+    kinetic : array-like, optional
+        Kinetic regressor z per run (R_p/[M]² or √[I]/[M]); its coefficient is fitted.
+    kinetic_known : array-like, optional
+        Kinetic term per run from reference data [-], added as a known offset.
+    C_M_known : float
+        Known C_M [-], subtracted from the constant intercept to get the kinetic part
+        (only matters for Mw/2 and CLD with δ < 1).
+    windows, M0
+        CLD windows per run [g/mol] and the repeat-unit molar mass [g/mol] (CLD only).
+    cal_cov_y : numpy.ndarray, optional
+        Covariance of y from the common calibration, shape (n, n) [-].
+    dof_cal : float
+        Degrees of freedom of the calibration fit.
+    kinetic_label : str
+        How the kinetic regressor was formed (for messages).
 
     Returns
     -------
@@ -491,9 +639,10 @@ def fit_mayo(
 
     References
     ----------
-    Mayo, F. R., J. Am. Chem. Soc. 1943 (the model). SCIENCE.md section 3 (constant
-    relative error of 1/DPn, hence relative weights). Student t intervals with n - p
-    degrees of freedom: Draper and Smith, Applied Regression Analysis, 3rd ed., 1998.
+    Mayo, F. R., J. Am. Chem. Soc. 1943 (the model). docs/science.md, sections 3.5
+    (constant relative error of 1/DPn, hence relative weights), 4.3 (mixed termination)
+    and 11.4 (Student t with n − p degrees of freedom, normal with known σ); Draper and
+    Smith, Applied Regression Analysis, 3rd ed., 1998.
     """
     yv = np.asarray(y, dtype=float).ravel()
     n = yv.size
@@ -503,67 +652,46 @@ def fit_mayo(
     names, T = _columns_matrix(columns, n)
     if T.shape[0] != n:
         raise DesignError(f"{what}: {T.shape[0]} design rows for {n} values of 1/DPn")
-    bad = np.flatnonzero(~np.isfinite(yv) | (yv <= 0))
-    if bad.size:
-        i = int(bad[0])
-        raise DataError(
-            f"{what}: run {ids[i]!r} has no usable chain length for estimator {estimator} "
-            f"(1/DPn = {yv[i]!r}); fix the run's molar mass or leave the run out"
-        )
+    _check_y(yv, ids, estimator, what)
     fixed = intercept is not None
-    check = check_design(dict(zip(names, T.T, strict=True)), intercept=not fixed, what=what)
-    X = T if fixed else np.column_stack([np.ones(n), T])
-    target = yv - (float(intercept) if fixed else 0.0)
+    design_cols = dict(zip(names, T.T, strict=True))
+    z = None if kinetic is None else np.asarray(kinetic, dtype=float).ravel()
+    check = check_design(design_cols, intercept=not fixed, what=what, kinetic=z,
+                         kinetic_label=kinetic_label)
+    sig = None
     if sigma is not None:
-        s = np.asarray(sigma, dtype=float).ravel()
-        if s.size != n or np.any(~np.isfinite(s)) or np.any(s <= 0):
+        sig = np.asarray(sigma, dtype=float).ravel()
+        if sig.size != n or np.any(~np.isfinite(sig)) or np.any(sig <= 0):
             raise DataError(f"{what}: sigma must be {n} positive numbers")
-        w = 1.0 / s
-        fit = weighted_linear_fit(X, target, w, scale_covar=False)
-    elif weights == "equal":
-        w = np.ones(n)
-        fit = weighted_linear_fit(X, target, w)
-    elif weights == "relative":
-        w = 1.0 / yv
-        fit = weighted_linear_fit(X, target, w)
-        pred = fit.fitted + (float(intercept) if fixed else 0.0)
-        if np.all(pred > 0):
-            w = 1.0 / pred
-            fit = weighted_linear_fit(X, target, w)
+    model = SeriesModel(estimator, tuple(names), T, None, z,
+                        None if kinetic_known is None else np.asarray(kinetic_known, dtype=float),
+                        None if intercept is None else float(intercept), float(delta),
+                        float(C_M_known),
+                        None if windows is None else np.asarray(windows, dtype=float),
+                        M0)
+    sol = solve(model, yv, weights=weights, sigma=sig, cal_cov_y=cal_cov_y, dof_cal=dof_cal)
+    return _mayo_result(sol, ids, T, check, confidence, estimator, what, weights, sig is not None)
+
+
+def _mayo_result(sol: Solution, ids: tuple[str, ...], T: np.ndarray, check: DesignCheck,
+                 confidence: float, estimator: str, what: str, weights: str,
+                 known: bool) -> MayoFit:
+    """Assemble a :class:`MayoFit` (values, both error parts, DPn0, warnings) from a solution."""
+    model = sol.model
+    vals = fitted_values(sol, confidence)
+    consts = tuple(vals[t] for t in model.terms)
+    if model.intercept is not None:
+        a = float(model.intercept)
+        icpt = FittedValue("1/DPn0", a, 0.0, a, a, confidence=confidence,
+                           stderr_statistical=0.0, dof=float("inf"))
     else:
-        raise DataError(f"weights must be 'relative' or 'equal', not {weights!r}", key="weights")
-    # known sigma: the covariance is not estimated from the scatter, so the pivot is normal
-    q = t_quantile(0.5 + confidence / 2, 0 if sigma is not None else fit.dof)
-    beta = fit.beta
-    se = np.sqrt(np.maximum(np.diag(fit.covariance), 0.0))
-    offset = 0 if fixed else 1
-    consts = tuple(
-        FittedValue(name, float(beta[offset + j]), float(se[offset + j]),
-                    *_interval(float(beta[offset + j]), float(se[offset + j]), q),
-                    confidence=confidence)
-        for j, name in enumerate(names)
-    )
-    if fixed:
-        a, sa = float(intercept), 0.0
-        icpt = FittedValue("1/DPn0", a, 0.0, a, a, confidence=confidence)
-    else:
-        a, sa = float(beta[0]), float(se[0])
-        icpt = FittedValue("1/DPn0", a, sa, *_interval(a, sa, q), confidence=confidence)
+        icpt = vals["1/DPn0"]
     warns = list(check.warnings)
-    if a > 0:
-        lo_a, hi_a = icpt.ci_low, icpt.ci_high
-        dpn0 = FittedValue(
-            "DPn0", 1.0 / a, sa / a**2,
-            1.0 / hi_a if hi_a > 0 else float("inf"),
-            1.0 / lo_a if lo_a > 0 else float("inf"),
-            confidence=confidence,
-        )
-    else:
-        dpn0 = FittedValue("DPn0", float("nan"), float("nan"), float("nan"), float("nan"),
-                           confidence=confidence)
+    dpn0 = dpn0_value(icpt)
+    if not icpt.value > 0 and model.kinetic is None:
         warns.append(
-            f"{what} ({estimator}): the intercept 1/DPn0 = {a:.3g} is not positive, so DPn0 is "
-            "undefined; the line is probably curved or a high-ratio run is off"
+            f"{what} ({estimator}): the intercept 1/DPn0 = {icpt.value:.3g} is not positive, so "
+            "DPn0 is undefined; the line is probably curved or a high-ratio run is off"
         )
     for c in consts:
         if c.name != "C_M" and c.value < 0:
@@ -571,31 +699,18 @@ def fit_mayo(
                 f"{what} ({estimator}): {c.name} = {c.value:.3g} is negative; 1/DPn falls with "
                 f"{term_label(c.name)}: check the ratios and the molar masses"
             )
-    fitted = fit.fitted + (float(intercept) if fixed else 0.0)
-    rel_scatter = float(np.sqrt(fit.redchi)) if (sigma is None and weights == "relative"
-                                                 and fit.dof > 0) else float("nan")
+    rel_scatter = float(np.sqrt(sol.redchi)) if (not known and weights == "relative"
+                                                 and sol.dof > 0) else float("nan")
     for msg in warns[len(check.warnings):] + list(check.warnings):
-        _warnings.warn(msg, EstimatorWarning, stacklevel=2)
+        _warnings.warn(msg, EstimatorWarning, stacklevel=3)
     return MayoFit(
-        estimator=estimator,
-        terms=tuple(names),
-        constants=consts,
-        intercept=icpt,
-        DPn0=dpn0,
-        covariance=fit.covariance,
-        run_ids=ids,
-        design=T,
-        y=yv,
-        fitted=fitted,
-        weights=w,
-        dof=fit.dof,
-        redchi=fit.redchi,
-        relative_scatter=rel_scatter,
-        confidence=confidence,
-        intercept_fixed=fixed,
-        success=fit.success,
-        message=fit.message,
-        design_check=check,
-        warnings=tuple(warns),
-        known_sigma=sigma is not None,
+        estimator=estimator, terms=model.terms, constants=consts, intercept=icpt, DPn0=dpn0,
+        covariance=sol.cov, run_ids=ids, design=T, y=sol.y, fitted=sol.fitted,
+        weights=sol.weights, dof=sol.dof, redchi=sol.redchi, relative_scatter=rel_scatter,
+        confidence=confidence, intercept_fixed=model.intercept is not None,
+        success=sol.success, message=sol.message, design_check=check,
+        warnings=tuple(warns), known_sigma=known, model=model, theta=sol.theta,
+        covariance_calibration=sol.cov_cal,
+        kinetic=vals.get(KINETIC_NAME),
+        dof_calibration=sol.dof_cal,
     )

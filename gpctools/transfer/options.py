@@ -18,6 +18,7 @@ from typing import Any
 
 from gpctools.errors import DataError
 from gpctools.transfer.estimators import DEFAULT_FRACTION, ESTIMATORS
+from gpctools.transfer.kinetic import KINETIC_CHOICES
 
 __all__ = ["TransferOptions", "DRIFT_CHOICES", "ADJUST_CHOICES"]
 
@@ -69,6 +70,13 @@ class TransferOptions:
         Known kinetic part of 1/DPn0, (1 + δ) k_t R_p/(k_p² [M]²) [-] (>= 0).
     fixed_intercept : float or None
         Hold 1/DPn0 at this value [-] (>= 0); lets ``C_M`` be fitted, no drift model then.
+    delta : float or None
+        δ = k_td/k_t, share of termination by disproportionation, 0 <= δ <= 1 [-]. None
+        (default): the sheet's ``delta [-]``, else the monomer's bundled value, else 1.
+    kinetic : {"auto", "regressor", "reference", "none"}
+        How the kinetic term enters when [M], [I] or T varies in a group (see
+        :mod:`gpctools.transfer.kinetic`): "auto" fits R_p/[M]² or √[I]/[M] as a regressor
+        when it spans about 2-fold or more.
 
     Examples
     --------
@@ -92,6 +100,8 @@ class TransferOptions:
     C_M: float | None = None
     kinetic_term: float | None = None
     fixed_intercept: float | None = None
+    delta: float | None = None
+    kinetic: str = "auto"
 
     def __post_init__(self) -> None:
         set_ = object.__setattr__
@@ -119,6 +129,12 @@ class TransferOptions:
             raise DataError(f"rel_error must be positive, not {self.rel_error!r}",
                             key="rel_error")
         set_(self, "expected_intercept", _expected(self.expected_intercept))
+        if self.delta is not None and not (_finite(self.delta) and 0.0 <= self.delta <= 1.0):
+            raise DataError(f"delta must be between 0 and 1 (share of termination by "
+                            f"disproportionation), not {self.delta!r}", key="delta")
+        if self.kinetic not in KINETIC_CHOICES:
+            raise DataError(f"kinetic must be one of {', '.join(KINETIC_CHOICES)}, not "
+                            f"{self.kinetic!r}", key="kinetic")
 
     @classmethod
     def names(cls) -> tuple[str, ...]:
@@ -151,6 +167,8 @@ class TransferOptions:
             "C_M [-]": self.C_M,
             "kinetic term [-]": self.kinetic_term,
             "fixed intercept [-]": self.fixed_intercept,
+            "delta [-]": self.delta,
+            "kinetic term": self.kinetic,
         }
 
 

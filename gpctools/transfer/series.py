@@ -6,7 +6,8 @@ and the ratio(s) of the species whose constants are fitted:
 
 ============================== ============================================================
 ``run``                        run id (unique); also accepted: ``run id``, ``sample_id``
-``file``                       chromatogram (slice export), relative to the sheet
+``file``                       chromatogram (slice export), relative to the sheet;
+                               replicate injections of one run separated by ``;``
 ``Mn [g/mol]``, ``Mw [g/mol]`` measured averages, used when there is no ``file``
                                (``[kg/mol]`` also accepted)
 ``Mn scale``                   ``absolute`` or ``relative`` (standard-equivalent) for the
@@ -25,6 +26,10 @@ and the ratio(s) of the species whose constants are fitted:
 ``agent``                      name of the agent of ``[A]`` (label only)
 ``role``                       ``run`` (default), ``control`` (reference run without agent
                                for the intercept check, not fitted) or ``skip``
+``R_p [mol/L/s]``              measured rate of polymerization (kinetic regressor
+                               R_p/[M]² when [M] or [I] varies)
+``initiator``                  initiator name (kinetic term from reference data)
+``delta [-]``                  δ = k_td/k_t (default: the monomer's bundled value)
 ``residual [A] [mol/L]``       agent left at the end (consumption method); with
 ``residual [M] [mol/L]``       monomer left (or the conversion), and optional
 ``u(residual [A]) [mol/L]``,   standard uncertainties
@@ -67,7 +72,8 @@ class Run:
     row : int
         Row of the sheet as the user counts it (1-based, header included).
     file : str or None
-        Chromatogram path (resolved against the sheet's folder), if any.
+        Chromatogram path (resolved against the sheet's folder), if any; the first one
+        when the run has replicate injections (``files``).
     Mn, Mw : float
         Measured averages [g/mol] (NaN when taken from the chromatogram or not given).
     scale : str
@@ -94,6 +100,14 @@ class Run:
         [mol/L], [mol/L], [-] (NaN when not given).
     metadata : dict
         Other columns.
+    rate : float
+        Measured rate of polymerization R_p [mol/L/s] (NaN when not given).
+    initiator : str
+        Initiator name (for a kinetic term from reference data).
+    delta : float
+        δ = k_td/k_t given in the sheet [-] (NaN when not given).
+    files : tuple of str
+        Every chromatogram of the run (replicate injections; ``file;file`` in the sheet).
     """
 
     run_id: str
@@ -118,6 +132,16 @@ class Run:
     u_residual_monomer: float = float("nan")
     u_conversion: float = float("nan")
     metadata: dict[str, Any] = field(default_factory=dict)
+    rate: float = float("nan")
+    initiator: str = ""
+    delta: float = float("nan")
+    files: tuple[str, ...] = ()
+
+    @property
+    def initiator_conc(self) -> float:
+        """[I] at the start [mol/L] (NaN when not given)."""
+        v = self.agent_conc.get("C_I", float("nan"))
+        return v if (v > 0 or self.ratios.get("C_I", 0.0) > 0) else float("nan")
 
     @property
     def T_K(self) -> float:
@@ -143,6 +167,10 @@ class Run:
             "series": self.series,
             "agent": self.agent,
             "role": self.role,
+            "R_p [mol/L/s]": f(self.rate),
+            "initiator": self.initiator,
+            "delta [-]": f(self.delta),
+            "files": list(self.files),
         }
 
 
@@ -268,7 +296,8 @@ def _run(row: SheetRow, table: CheckedSheet, terms: tuple[str, ...], base: Path,
     """One :class:`Run` from a checked row (the steps below check what spans columns)."""
     cols = table.columns
     role = row.get("role", "run")
-    fpath = _chromatogram(row, table, base)
+    files = _chromatograms(row, table, base)
+    fpath = files[0] if files else None
     Mn, Mw = _averages(row, cols.header, fpath is not None or role == "skip")
     mono = row.get("monomer", "") or (m0.default_monomer or "")
     Mc = _num(row.get("M"))
@@ -285,6 +314,8 @@ def _run(row: SheetRow, table: CheckedSheet, terms: tuple[str, ...], base: Path,
         residual_monomer=_num(row.get("res_M")), u_residual_monomer=_num(row.get("u_res_M")),
         u_conversion=_num(row.get("u_conversion")),
         metadata={h: v for h, v in row.metadata.items() if v is not None},
+        rate=_num(row.get("R_p")), initiator=row.get("initiator", "") or "",
+        delta=_num(row.get("delta")), files=files,
     )
 
 
@@ -293,20 +324,24 @@ def _num(value: float | None) -> float:
     return _NAN if value is None else float(value)
 
 
-def _chromatogram(row: SheetRow, table: CheckedSheet, base: Path) -> str | None:
-    """The chromatogram path resolved against the sheet's folder (must exist), or None."""
-    file = row.get("file", "")
-    if not file:
-        return None
-    p = Path(file)
-    if not p.is_absolute():
-        p = base / p
-    if not p.exists():
-        raise InputFormatError(
-            f"chromatogram file {file!r} not found (looked for {p}); file paths are "
-            "relative to the sheet's folder", path=table.path, sheet=table.sheet, row=row.row,
-            column=table.columns.header("file"))
-    return str(p)
+def _chromatograms(row: SheetRow, table: CheckedSheet, base: Path) -> tuple[str, ...]:
+    """The chromatogram paths (replicate injections separated by ``;``) resolved against
+    the sheet's folder (each must exist)."""
+    cell = row.get("file", "")
+    out = []
+    for file in (f.strip() for f in str(cell or "").split(";")):
+        if not file:
+            continue
+        p = Path(file)
+        if not p.is_absolute():
+            p = base / p
+        if not p.exists():
+            raise InputFormatError(
+                f"chromatogram file {file!r} not found (looked for {p}); file paths are "
+                "relative to the sheet's folder", path=table.path, sheet=table.sheet,
+                row=row.row, column=table.columns.header("file"))
+        out.append(str(p))
+    return tuple(out)
 
 
 def _averages(row: SheetRow, header: Any, has_other_source: bool) -> tuple[float, float]:
