@@ -41,6 +41,7 @@ __all__ = [
     "RelativeUncertainty",
     "AverageUncertainty",
     "calibration_uncertainty",
+    "calibration_gradients",
     "noise_uncertainty",
     "limit_uncertainty",
     "average_uncertainty",
@@ -152,17 +153,32 @@ def calibration_uncertainty(dist: Distribution, calibration: Calibration) -> dic
     C = np.asarray(calibration.covariance, dtype=float)
     if not np.all(np.isfinite(C)):
         return out
+    for name, g in calibration_gradients(dist, calibration).items():
+        out[name] = math.sqrt(max(float(g @ C @ g), 0.0))
+    return out
+
+
+def calibration_gradients(dist: Distribution, calibration: Calibration) -> dict[str, np.ndarray]:
+    """∂ ln X/∂c of Mn, Mw and Mz with respect to the calibration coefficients c [-].
+
+    .. math:: \\nabla_c \\ln X = \\ln 10\\,(a\\,\\bar x_a - b\\,\\bar x_b)
+
+    with the moment-weighted mean gradients x̄_k of :func:`calibration_uncertainty`. A
+    calibration error is common to every injection measured with it, so a run series
+    carries these vectors to correlate its runs' errors (gpctools.transfer; docs/science.md,
+    section 11.5). Averages that are missing are left out of the mapping.
+    """
     G = calibration.log_M_gradient(dist.volume)  # (n, p)
     _, mk = _moment_weights(dist)
     ks = sorted({k for name in UNCERTAIN_AVERAGES for k in AVERAGE_MOMENTS[name]})
     Wk = np.stack([dist.w * mk[k] for k in ks])  # (moments, n)
     xbar = dict(zip(ks, (Wk @ G) / Wk.sum(axis=1)[:, None]))  # weighted mean gradient per moment
+    out: dict[str, np.ndarray] = {}
     for name in UNCERTAIN_AVERAGES:
-        a, b = AVERAGE_MOMENTS[name]
         if name in dist.missing:
             continue
-        g = LN10 * (a * xbar[a] - b * xbar[b])
-        out[name] = math.sqrt(max(float(g @ C @ g), 0.0))
+        a, b = AVERAGE_MOMENTS[name]
+        out[name] = LN10 * (a * xbar[a] - b * xbar[b])
     return out
 
 

@@ -7,7 +7,7 @@ chromatogram runs the analysis also keeps what the uncertainty budget needs:
 - the relative measurement uncertainty of each estimator's observation: from replicate
   injections when the run has several (their scatter, n − 1 degrees of freedom, divided
   by √n for the mean), else from the chromatogram itself (baseline noise and low-M limit
-  sensitivity, :mod:`gpctools.transfer._measurement`);
+  sensitivity: the injection's own uncertainty, :mod:`gpctools.uncertainty`);
 - the gradient of the observation's logarithm with respect to the calibration
   coefficients, so that the calibration covariance reaches the constants as one error
   common to every run (docs/science.md, section 11.5).
@@ -23,7 +23,6 @@ from typing import Any
 import numpy as np
 
 from gpctools.errors import DataError, GpcError
-from gpctools.transfer._measurement import calibration_basis, injection_uncertainty
 from gpctools.transfer.estimators import CLDSlope, cld_slope
 from gpctools.transfer.series import Run, RunSeries
 
@@ -125,11 +124,37 @@ def _one_injection(path: str, run: Run, method: Any, opts: Any, want_cld: bool):
             logc = 0.5 * (math.log10(cld.window[0]) + math.log10(cld.window[1]))
             order = np.argsort(np.log10(d.M))
             Vc = float(np.interp(logc, np.log10(d.M)[order], np.asarray(d.volume)[order]))
-            g_cld = -LN10 * calibration_basis(method.calibration, np.array([Vc]))[0]
+            g_cld = -LN10 * method.calibration.log_M_gradient(np.array([Vc]))[0]
         except DataError as exc:
             notes.append(f"CLD: {exc.message}")
-    unc = injection_uncertainty(inj, method.calibration)
-    return inj, cld, notes, unc, g_cld
+    return inj, cld, notes, _measurement_of(inj, method.calibration), g_cld
+
+
+@dataclass(frozen=True)
+class _Measurement:
+    """What a run needs of one injection's own uncertainty (gpctools.uncertainty)."""
+
+    u_Mn: float  # relative, noise and limit parts combined [-]
+    u_Mw: float
+    grad_ln_Mn: np.ndarray  # ∂ ln Mn/∂c over the calibration coefficients [-]
+    grad_ln_Mw: np.ndarray
+
+
+def _measurement_of(inj: Any, calibration: Any) -> _Measurement:
+    """The injection's noise and limit uncertainty of Mn and Mw (combined in quadrature;
+    the calibration part is carried separately, as gradients common to every run:
+    docs/science.md, sections 11.5 and 19.7)."""
+    from gpctools.uncertainty import calibration_gradients
+
+    def part(x: float) -> float:
+        return x if math.isfinite(x) else 0.0
+
+    u = inj.uncertainty
+    u_n = math.hypot(part(u.Mn.noise), part(u.Mn.limits)) if u is not None else 0.0
+    u_w = math.hypot(part(u.Mw.noise), part(u.Mw.limits)) if u is not None else 0.0
+    g = calibration_gradients(inj.distribution, calibration)
+    zero = np.zeros(calibration.order + 1)
+    return _Measurement(u_n, u_w, g.get("Mn", zero), g.get("Mw", zero))
 
 
 def _chromatogram_run(run: Run, method: Any, opts: Any, want_cld: bool) -> RunEstimate:
