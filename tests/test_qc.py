@@ -189,11 +189,13 @@ def test_suitability_passes_hand_worked():
     # derived: worst marker 23.62 vs 23.6 -> 100*(23.62/23.6 - 1) = 0.084746 %
     fm = c["flow-marker drift |V_obs/V_ref - 1| [%]"]
     assert fm.value == pytest.approx(100 * (23.62 / 23.6 - 1), rel=1e-12) and fm.passed
-    # derived: replicates A1 150000/152000 -> RSD 100*1414.21/151000 = 0.9366 %; CS-1
-    # 101000/99000 -> 100*1414.21/100000 = 1.4142 %, the worst group
-    rsd = c["replicate RSD of Mw [%]"]
-    assert rsd.value == pytest.approx(100 * math.sqrt(2e6) / 100000, rel=1e-12)
-    assert "CS-1" in rsd.reason and rsd.passed
+    # derived: replicates A1 150000/152000 -> RSD 100*1414.21/151000 = 0.9366 %, one degree
+    # of freedom, so the pooled RSD is that value. Check standards are judged against their
+    # assigned values, not as a replicate group (issue 12).
+    rsd = c["replicate RSD of Mw, pooled [%]"]
+    assert rsd.value == pytest.approx(100 * math.sqrt(2e6) / 151000, rel=1e-12)
+    assert "1 degree(s) of freedom" in rsd.reason and rsd.passed
+    assert "fails this pooled rule" in rsd.reason  # the false-fail rate is stated
     # derived: worst |residual| of (1, -2, 0.5) is 2 %
     assert c["worst calibration residual |M_fit/Mp - 1| [%]"].value == 2.0
     assert "-2.00 %" in c["worst calibration residual |M_fit/Mp - 1| [%]"].reason
@@ -222,11 +224,12 @@ def test_each_suitability_check_can_fail():
     (res,) = system_suitability(df, cal_summary(), specs=specs, reference_flow_marker=23.6)
     assert [c.name for c in res.failures] == ["flow-marker drift |V_obs/V_ref - 1| [%]"]
     assert "A1" in res.failures[0].reason and "+0.424 %" in res.failures[0].reason
-    # replicates: 150000 and 157000 -> RSD = 100*4949.747/153500 = 3.2246 % > 3 % (derived)
+    # replicates: 150000 and 157000 -> RSD = 100*4949.747/153500 = 3.2246 % > 3 % (derived);
+    # the only group, so the pooled RSD is that value
     df = good_table()
     df.loc[2, "Mw [g/mol]"] = 157000.0
     (res,) = system_suitability(df, cal_summary(), specs=specs)
-    assert [c.name for c in res.failures] == ["replicate RSD of Mw [%]"]
+    assert [c.name for c in res.failures] == ["replicate RSD of Mw, pooled [%]"]
     assert res.failures[0].value == pytest.approx(100 * np.std([150000, 157000], ddof=1) / 153500, rel=1e-12)
     # outside calibration 1.5 % > 1 %
     df = good_table()
@@ -434,7 +437,7 @@ def test_evaluate_qc_trend_flags_run_rule_with_history():
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
         res = evaluate_qc(good_table(), specs, calibration=cal_summary(), history=hist,
-                          settings=QCSettings(trend_columns=("Mw [g/mol]",)))
+                          settings=QCSettings(trend_columns=("Mw [g/mol]",), rules=WESTERN_ELECTRIC_RULES))
     (chart,) = [c for c in res.trends if c.group == "SG-150"]
     assert chart.labels[-1] == "B1" and chart.values[-1] == 145500.0
     assert int(chart.sets_limits.sum()) == 10  # limits from the history only
@@ -445,7 +448,8 @@ def test_evaluate_qc_trend_flags_run_rule_with_history():
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
         res_all = evaluate_qc(good_table(), specs, calibration=cal_summary(), history=hist,
-                              settings=QCSettings(trend_columns=("Mw [g/mol]",), trend_limits_from="all"))
+                              settings=QCSettings(trend_columns=("Mw [g/mol]",), trend_limits_from="all",
+                                                  rules=WESTERN_ELECTRIC_RULES))
     assert int(res_all.trends[0].sets_limits.sum()) == 11
     # one sequence only: no check-standard chart (two or more points are needed)
     assert not any(c.group.startswith("check standard") for c in res.trends)
@@ -463,7 +467,7 @@ def test_evaluate_qc_we4_across_batches_in_one_table():
     df = pd.DataFrame(rows)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        res = evaluate_qc(df, specs, calibration=cal_summary())
+        res = evaluate_qc(df, specs, calibration=cal_summary(), settings=QCSettings(rules=WESTERN_ELECTRIC_RULES))
     chart = next(c for c in res.trends if c.group == "SG-150" and c.quantity == "Mw [g/mol]")
     assert chart.centre == pytest.approx(np.mean(vals), rel=1e-15)
     found = {(v.label, v.rule) for v in chart.violations}

@@ -6,7 +6,9 @@ injection; column names carry units). These helpers only read it; they never mod
 
 from __future__ import annotations
 
+import datetime as _dt
 import math
+import re
 from typing import Any
 
 import numpy as np
@@ -23,7 +25,13 @@ __all__ = [
     "ROLE_SAMPLE",
     "ROLE_CHECK",
     "ROLE_BLANK",
+    "ROLE_CALIBRATION",
+    "ROLE_REPLICATE",
+    "SAMPLE_ROLES",
     "ALL_SEQUENCES",
+    "check_roles",
+    "date_column",
+    "dates",
     "role_of",
     "roles",
     "labels",
@@ -44,6 +52,11 @@ class QCWarning(GpcWarning):
 ROLE_SAMPLE = _batch_sheet.ROLE_SAMPLE
 ROLE_CHECK = _batch_sheet.ROLE_CHECK
 ROLE_BLANK = _batch_sheet.ROLE_BLANK
+ROLE_CALIBRATION = _batch_sheet.ROLE_CALIBRATION
+ROLE_REPLICATE = _batch_sheet.ROLE_REPLICATE
+#: Roles whose injections are judged against the product's spec (a replicate is a repeat
+#: injection of a sample and shares its ``sample_id``).
+SAMPLE_ROLES = (ROLE_SAMPLE, ROLE_REPLICATE)
 #: Sequence label used when the table has no ``sequence`` column (or it is empty).
 ALL_SEQUENCES = "(all)"
 
@@ -57,6 +70,21 @@ def role_of(value: Any) -> str:
     form and is ignored by the QC steps.
     """
     return _batch_sheet.role_of(value)
+
+
+def check_roles(table: pd.DataFrame, what: str = "the results table") -> None:
+    """Raise :class:`DataError` for a role that is none of the known ones, listing them.
+
+    A mistyped role (``"blnak"``) would otherwise drop the injection from every check.
+    """
+    if C.ROLE not in table.columns:
+        return
+    for i, v in enumerate(table[C.ROLE].tolist()):
+        r = role_of(v)
+        if r not in _batch_sheet.ROLES:
+            raise DataError(
+                f"{what}, row {i + 1}: unknown role {label_text(v)!r}; write one of: "
+                f"{', '.join(_batch_sheet.ROLES)}", column=C.ROLE, row=i + 1)
 
 
 def roles(table: pd.DataFrame) -> np.ndarray:
@@ -129,3 +157,57 @@ def first_number(values: np.ndarray) -> float:
         if math.isfinite(v):
             return float(v)
     return math.nan
+
+
+_DATE_NAME = re.compile(r"(?:.*\b)?(?:date|datetime|timestamp)(?:\b.*)?", re.IGNORECASE)
+
+
+def date_column(table: pd.DataFrame) -> str | None:
+    """The column holding the analysis date: ``date`` itself, else the first header whose
+    name (without its unit) contains the word ``date`` (``analysis date``, ``run date``)."""
+    names = [str(c) for c in table.columns]
+    for c in names:
+        if cells.split_header(c).key == "date":
+            return c
+    for c in names:
+        if _DATE_NAME.fullmatch(cells.split_header(c).name.strip()):
+            return c
+    return None
+
+
+def dates(table: pd.DataFrame, column: str | None) -> list[_dt.datetime | None]:
+    """Dates of a column as :class:`datetime.datetime` (None for blank cells).
+
+    Accepted: date/datetime cells of a workbook, and text in ISO 8601 (``2026-03-14``,
+    ``2026-03-14 09:30``, ``2026-03-14T09:30:00``). Day-first or month-first text such as
+    ``03/04/2026`` is refused: it reads two ways.
+
+    Raises
+    ------
+    DataError
+        Naming the row and column, for a cell that is not such a date.
+    """
+    if column is None:
+        return [None] * len(table)
+    out: list[_dt.datetime | None] = []
+    for i, v in enumerate(table[column].tolist()):
+        if cells.is_blank(v):
+            out.append(None)
+            continue
+        if isinstance(v, _dt.datetime):
+            out.append(v.replace(tzinfo=None))
+            continue
+        if isinstance(v, _dt.date):
+            out.append(_dt.datetime(v.year, v.month, v.day))
+            continue
+        if isinstance(v, pd.Timestamp):
+            out.append(v.to_pydatetime().replace(tzinfo=None))
+            continue
+        text = label_text(v)
+        try:
+            out.append(_dt.datetime.fromisoformat(text.replace("Z", "")).replace(tzinfo=None))
+        except ValueError:
+            raise DataError(
+                f"row {i + 1}: {text!r} is not a date; write dates as YYYY-MM-DD "
+                "(ISO 8601, e.g. 2026-03-14)", column=column, row=i + 1) from None
+    return out
