@@ -79,7 +79,7 @@ Window = tuple[float, float]
 
 _SCHEMA: dict[str, set[str] | None] = {
     "": {"name", "sample_polymer", "import", "flow", "flow_marker", "baseline", "integration",
-         "calibration", "mark_houwink", "thresholds", "description"},
+         "calibration", "mark_houwink", "thresholds", "description", "qc"},  # [qc]: read by gpctools.qc
     "import": {"x_column", "signal_column", "x_unit", "sheet", "decimal", "separator", "encoding"},
     "flow": {"rate"},
     "flow_marker": {"reference", "search"},

@@ -203,17 +203,24 @@ def test_suitability_passes_hand_worked():
 
 def test_check_standard_tolerance_is_inclusive_and_fails_beyond():
     df = good_table()
-    # derived: mean(106000, 104000) = 105000, +5.000 % of 100000, on the 5 % tolerance: passes
-    df.loc[df["sample_id"] == "CS-1", "Mw [g/mol]"] = [106000.0, 104000.0]
+    # derived: both injections 105000 = +5.000 % of 100000, on the 5 % tolerance: passes
+    # (each injection and the mean are judged since issue 12; 106000/104000 would now fail
+    # on the first injection, +6 %, although their mean is +5 %)
+    df.loc[df["sample_id"] == "CS-1", "Mw [g/mol]"] = [105000.0, 105000.0]
     (res,) = system_suitability(df, cal_summary(), specs=specs_from_frame(spec_frame()))
     assert res.passed
-    df.loc[df["sample_id"] == "CS-1", "Mw [g/mol]"] = [106200.0, 104000.0]
+    df.loc[df["sample_id"] == "CS-1", "Mw [g/mol]"] = [105100.0, 105100.0]
     (res,) = system_suitability(df, cal_summary(), specs=specs_from_frame(spec_frame()))
     assert not res.passed
-    (fail,) = res.failures
-    assert fail.name.startswith("check standard CHK-PS-BROAD: Mw")
+    mean = [c for c in res.failures if c.name == "check standard CHK-PS-BROAD: Mw deviation from assigned [%]"]
+    (fail,) = mean
     # derived: mean 105100 -> +5.10 %
     assert "+5.10 %" in fail.reason and fail.value == pytest.approx(5.1, rel=1e-9)
+    assert len(res.failures) == 3  # the two injections and the mean
+    df.loc[df["sample_id"] == "CS-1", "Mw [g/mol]"] = [106000.0, 104000.0]
+    (res,) = system_suitability(df, cal_summary(), specs=specs_from_frame(spec_frame()))
+    assert [c.name for c in res.failures] == [
+        "check standard CHK-PS-BROAD, injection 1 (CS-1): Mw deviation from assigned [%]"]
 
 
 def test_each_suitability_check_can_fail():

@@ -290,7 +290,8 @@ def test_e2e_files_and_workbook(scenario):
         assert p.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
     wb = openpyxl.load_workbook(out / "qc_report.xlsx")
     assert wb.sheetnames == ["summary", "batches", "samples", "injections", "specs", "calibration",
-                             "suitability", "trends", "trend signals", "transfer", "transfer points", "audit"]
+                             "suitability", "replicates", "trends", "trend signals", "transfer",
+                             "transfer points", "audit"]
     unit = re.compile(r"\[[^\]]+\]$")
     for ws in wb.worksheets:
         headers = [c.value for c in ws[1]]

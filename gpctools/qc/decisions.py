@@ -381,8 +381,10 @@ def _sample_spec(t: _Table, rows: list[int], usable: list[int], spec: ProductSpe
         v, r, _ = _judge(t, spec, [i])
         per[i] = (v, r)
     if judge == JUDGE_INJECTIONS and len(usable) > 1:
+        # injections failing a limit the mean already fails add nothing; list the others
+        failed_by_mean = {r.split(" ")[0] for r in reasons} if verdict == FAIL else set()
         extra = [f"{_injection_label(t, n, i, len(rows))}: {r}" for n, i in enumerate(rows, start=1)
-                 if i in per and per[i][0] == FAIL for r in per[i][1]]
+                 if i in per and per[i][0] == FAIL for r in per[i][1] if r.split(" ")[0] not in failed_by_mean]
         if extra:
             if verdict == PASS:
                 reasons = ["the mean is within limits but an injection is not"]
@@ -408,11 +410,12 @@ def _sample_decision(t: _Table, b: str, s: str, rows: list[int], specs: SpecShee
               for c in SPEC_QUANTITIES.values() if (col := t.column(c)) is not None
               for v in [col[usable]]}
     per: dict[int, tuple[str, list[str]]] = {}
+    reasons: list[str]
     spec, verdict, reasons = _spec_for(prods, specs)
     if not usable:
-        errs = [T.error_text(t.table, i) for i in rows]
+        texts = [T.error_text(t.table, i) for i in rows]
         verdict = NO_RESULT
-        reasons = list(dict.fromkeys(f"no usable injection: {e}" if e else "no usable injection" for e in errs))
+        reasons = list(dict.fromkeys(f"no usable injection: {e}" if e else "no usable injection" for e in texts))
     elif spec is not None:
         verdict, reasons, limited, per = _sample_spec(t, rows, usable, spec, judge)
         values.update(limited)

@@ -305,7 +305,8 @@ def _charts(table: pd.DataFrame, history: Sequence[pd.DataFrame], failed: frozen
     assert settings.baseline is not None
     charts: list[ControlChart] = []
     short: dict[str, list[str]] = {}
-    sources = [(h, frozenset(), "history") for h in history] + [(table, failed, "current")]
+    sources: list[tuple[pd.DataFrame, frozenset[str], str]] = [(h, frozenset(), "history") for h in history]
+    sources.append((table, failed, "current"))
     for column in settings.trend_columns:
         for g, pts in _series(column, sources, settings, notes).items():
             items = _ordered(pts)

@@ -115,8 +115,8 @@ def within(value: float, limit: float, comparison: str) -> bool:
     True
     """
     if comparison == "<=":
-        return value <= limit or _close(value, limit)
-    return value >= limit or _close(value, limit)
+        return bool(value <= limit or _close(value, limit))
+    return bool(value >= limit or _close(value, limit))
 
 
 def _fmt(value: float, unit: str) -> str:
@@ -472,11 +472,11 @@ def _long_products(frame: pd.DataFrame, path: str | None, sheet: str | None) -> 
         lim = _checked_limit(q, column, qunit, kinds, lambda msg, k, r=row: r.error(msg, cols[k]))
         seen[key] = (lim, row.row)
     out = []
-    for p in products.values():
-        lims = tuple(v[0] for v in p["limits"].values() if v[0] is not None)
-        tol = {k: v[0] for k, v in p["tol"].items()}
-        out.append(ProductSpec(p["product"], lims, tol.get("tolerance"), p["description"], p["row"],
-                               tol.get("tolerance_Mw"), tol.get("tolerance_Mn")))
+    for pr in products.values():
+        lims = tuple(v[0] for v in pr["limits"].values() if v[0] is not None)
+        tols = {k: v[0] for k, v in pr["tol"].items()}
+        out.append(ProductSpec(pr["product"], lims, tols.get("tolerance"), pr["description"], pr["row"],
+                               tols.get("tolerance_Mw"), tols.get("tolerance_Mn")))
     return tuple(out)
 
 

@@ -268,8 +268,9 @@ def injection_standards(metadata: dict[str, Any], sample_id: str, calibration: C
     Parameters
     ----------
     metadata : dict
-        The row's extra columns: ``standards`` (names or Mp values separated by ``;``) or
-        ``standards file`` (a standards-mix table, relative to the batch sheet).
+        The row's extra columns: ``standards`` (names or Mp values separated by ``;``),
+        ``standards file`` (a standards-mix table, relative to the batch sheet), or for a
+        single standard ``Mp [g/mol]`` (with an optional ``standard`` name).
     sample_id : str
     calibration : Calibration or None
         The method's calibration: its standards table gives the Mp of a name.
@@ -286,6 +287,9 @@ def injection_standards(metadata: dict[str, Any], sample_id: str, calibration: C
     if f:
         return read_standard_mix(folder / f, sample_id)
     text = cells.text(meta.get("standards"))
+    single = _single_standard(metadata, sample_id)
+    if not text and single is not None:
+        return [single]
     if not text:
         raise InputFormatError(
             f"calibration-standard injection {sample_id!r} names no standards: fill its 'standards' cell "
@@ -293,22 +297,42 @@ def injection_standards(metadata: dict[str, Any], sample_id: str, calibration: C
             "'standards file' cell", column="standards")
     known = {_key(n): (n, mp) for n, mp in zip(calibration.names, calibration.Mp, strict=True)} \
         if calibration is not None else {}
-    out = []
+    out: list[tuple[str, float]] = []
     for token in (t.strip() for t in re.split(r"[;|+]", text)):
-        if not token:
-            continue
-        if _key(token) in known:
-            out.append(known[_key(token)])
-            continue
-        mp = cells.number_or_none(token)
-        if mp is not None and mp > 0:
-            out.append((f"Mp {token}", float(mp)))
-            continue
-        names = ", ".join(n for n, _ in known.values()) or "none"
-        raise InputFormatError(
-            f"standard {token!r} of injection {sample_id!r} is not in the method's standards table "
-            f"({names}); write a name from it or the standard's Mp in g/mol", column="standards")
+        if token:
+            out.extend(_standard_token(token, known, sample_id))
     return out
+
+
+def _standard_token(token: str, known: dict[str, tuple[str, float]], sample_id: str) -> list[tuple[str, float]]:
+    """One ``standards`` token: a name of the table, an Mp, or comma-separated names."""
+    if _key(token) in known:
+        return [known[_key(token)]]
+    try:
+        mp = cells.number_or_none(token)
+    except cells.CellError:
+        mp = None
+    if mp is not None and mp > 0:
+        return [(f"Mp {token}", float(mp))]
+    if "," in token:
+        return [s for t in token.split(",") if t.strip() for s in _standard_token(t.strip(), known, sample_id)]
+    names = ", ".join(n for n, _ in known.values()) or "none"
+    raise InputFormatError(
+        f"standard {token!r} of injection {sample_id!r} is not in the method's standards table "
+        f"({names}); write a name from it or the standard's Mp in g/mol", column="standards")
+
+
+def _single_standard(metadata: dict[str, Any], sample_id: str) -> tuple[str, float] | None:
+    """A one-standard injection given by an ``Mp [g/mol]`` (or ``[kg/mol]``) column."""
+    for k, v in metadata.items():
+        h = cells.split_header(str(k))
+        unit = cells.canonical_unit(h.unit) if h.unit else None
+        if h.key == "mp" and unit in (None, "g/mol", "kg/mol"):
+            mp = cells.number_or_none(v)
+            if mp is not None and mp > 0:
+                name = cells.text(metadata.get("standard") or metadata.get("name")) or sample_id
+                return name, float(mp) * (1000.0 if unit == "kg/mol" else 1.0)
+    return None
 
 
 def calibration_from_standards(located: Sequence[LocatedStandard], method: Any) -> Calibration:

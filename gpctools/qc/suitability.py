@@ -429,9 +429,10 @@ def _check_standard_group(rows: _Rows, key: str, idx: list[int], sequence: str, 
     devs: dict[int, dict[str, float]] = {i: {} for i in idx}
     evaluated = False
     for q in ("Mw", "Mn"):
-        tol = spec.tolerance(q) if spec is not None and spec.tolerance(q) is not None else limits.tolerance(q)
+        own = spec.tolerance(q) if spec is not None else None
+        tol: float = own if own is not None else limits.tolerance(q)
         source = (f"spec sheet, product {spec.product} (row {spec.row})"
-                  if spec is not None and spec.tolerance(q) is not None else "QC settings (common practice: 5 %)")
+                  if spec is not None and own is not None else "QC settings (common practice: 5 %)")
         assigned = _assigned(rows, idx, q, key, spec, warnings)
         if assigned is None:
             continue
@@ -584,7 +585,7 @@ def _blank_checks(rows: _Rows, limits: SuitabilityLimits) -> list[SuitabilityChe
     peak = T.numbers(rows.table, C.BLANK_PEAK)
     details = T.labels(rows.table, C.BLANK_DETAILS)
     checks = []
-    for i in np.flatnonzero(rows.role == T.ROLE_BLANK):
+    for i in (int(k) for k in np.flatnonzero(rows.role == T.ROLE_BLANK)):
         name = f"blank {rows.name(i)}: largest peak in a product window [% of product peak]"
         if not rows.ok[i]:
             checks.append(SuitabilityCheck(name, math.nan, lim, "<=", False,
@@ -606,7 +607,7 @@ def _standard_injection_checks(rows: _Rows, limits: SuitabilityLimits) -> list[S
     res = T.numbers(rows.table, C.WORST_STANDARD_RESIDUAL)
     located = T.labels(rows.table, C.STANDARDS_LOCATED)
     checks = []
-    for i in np.flatnonzero(rows.role == T.ROLE_CALIBRATION):
+    for i in (int(k) for k in np.flatnonzero(rows.role == T.ROLE_CALIBRATION)):
         name = f"calibration standard {rows.name(i)}: worst residual [%]"
         if not rows.ok[i]:
             checks.append(SuitabilityCheck(name, math.nan, lim, "<=", False,

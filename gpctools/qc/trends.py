@@ -286,7 +286,7 @@ _SIDE_TEXT = {("zone", 1): "above", ("zone", -1): "below", ("trend", 1): "rising
 
 
 def rule_violations(
-    z: Sequence[float], rules: Sequence[RunRule] = WESTERN_ELECTRIC_RULES
+    z: Sequence[float] | np.ndarray, rules: Sequence[RunRule] = WESTERN_ELECTRIC_RULES
 ) -> list[tuple[int, RunRule, int]]:
     """Points breaking run rules, from standardized values ``z = (x - CL)/sigma``.
 
@@ -381,7 +381,7 @@ FALSE_ALARM_SIMULATIONS = 4000
 
 
 def false_alarm_rate(
-    sets_limits: Sequence[bool],
+    sets_limits: Sequence[bool] | np.ndarray,
     rules: Sequence[RunRule],
     *,
     simulations: int = FALSE_ALARM_SIMULATIONS,
@@ -579,7 +579,7 @@ def individuals_chart(
     *,
     quantity: str = "",
     group: str = "",
-    sets_limits: Sequence[bool] | None = None,
+    sets_limits: Sequence[bool] | np.ndarray | None = None,
     rules: Sequence[RunRule] = WESTERN_ELECTRIC_RULES,
     rule_set_name: str | None = None,
     false_alarm_simulations: int = 0,

@@ -1,0 +1,434 @@
+"""A whole QC sequence in one run: calibration standards, blanks, check standards, samples.
+
+:func:`run_sequence` reads a batch sheet whose ``role`` column describes the sequence as
+a lab runs it and processes each injection by its role:
+
+``calibration_standard``
+    its narrow standards are located (:mod:`gpctools.qc.standards_run`) and every such
+    injection of a sequence together builds **that sequence's calibration**, which then
+    processes the sequence's other injections (the method's calibration otherwise);
+``blank``
+    never processed as a sample (no averages of noise, no failed row): it is checked
+    for peaks inside each product's integration window (:mod:`gpctools.qc.blanks`), and
+    with ``blank_subtraction`` it is subtracted from the sequence's other injections;
+``check_standard``, ``sample``, ``replicate``
+    processed with the method of their product: the QC settings may give a product an
+    integration window in molar mass (converted to volumes with the sequence's
+    calibration) or a method file of its own (check standards included). Every method used
+    is recorded with its SHA-256.
+
+Nothing is written: :func:`gpctools.report.run_qc` writes the reports. The result has the
+attributes of a :class:`gpctools.batch.BatchResult` (``table``, ``injections``,
+``entries``, ``method``, ``sheet``), so :func:`gpctools.report.write_batch` writes its
+results table too.
+
+Per-product methods are made here, by replacing the method's calibration and limits
+(:func:`dataclasses.replace`), until the batch sheet carries per-row methods itself.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable
+from dataclasses import dataclass, field, replace
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from gpctools import columns as C
+from gpctools.batch import (
+    RESULT_COLUMNS,
+    BatchEntry,
+    InjectionResult,
+    iter_batch,
+    process_trace,
+    read_batch_sheet,
+)
+from gpctools.calibration import Calibration
+from gpctools.errors import CalibrationError, GpcError, InputFormatError
+from gpctools.method import Method
+from gpctools.qc import _table as T
+from gpctools.qc.blanks import BlankFinding, ProductWindow, check_blank, subtract_blank
+from gpctools.qc.settings import QCSettings
+from gpctools.qc.standards_run import (
+    LocatedStandard,
+    calibration_from_standards,
+    injection_standards,
+    locate_marker,
+    locate_peaks,
+)
+from gpctools.sheets import batch as _roles
+from gpctools.sheets import cells
+
+__all__ = ["SequenceRun", "run_sequence", "volume_at", "method_label"]
+
+
+def method_label(method: Method) -> str:
+    """``"<file name> (SHA-256 <first 12 hex digits>)"`` of a method, for tables."""
+    name = Path(method.source).name if method.source else (method.name or "method (in memory)")
+    return f"{name} (SHA-256 {method.sha256[:12]})" if method.sha256 else name
+
+
+def volume_at(calibration: Calibration, M: float) -> float:
+    """Elution volume at molar mass M [mL]: the inverse of ``calibration.M`` (tangent
+    continuation outside the calibrated range), by interpolation on a 0.0005 mL grid."""
+    grid = np.linspace(calibration.v_min - 15.0, calibration.v_max + 15.0, 80001)
+    logm = calibration.log_M(grid)
+    return float(np.interp(math.log10(M), logm[::-1], grid[::-1]))
+
+
+@dataclass
+class SequenceRun:
+    """Everything :func:`run_sequence` computed (nothing written).
+
+    Attributes
+    ----------
+    table : pandas.DataFrame
+        One row per injection, in sheet order: the batch result columns for processed
+        injections; ``blank peak [% of product peak]`` and ``blank check`` for blanks;
+        ``standards located`` and ``worst standard residual [%]`` for calibration
+        standards; ``calibration``, ``method used`` and ``sheet row [-]`` for all.
+    injections : list of InjectionResult or None
+        Same order; None for blanks, calibration standards and failed rows.
+    entries : list of BatchEntry
+    method : Method
+        The method the run was started with.
+    sheet : str
+    calibrations : dict
+        Sequence -> the calibration built from its own standard injections.
+    methods : dict
+        Label (:func:`method_label`) -> every method used.
+    standards : tuple of LocatedStandard
+    blanks : dict
+        Row position -> the blank's findings per product.
+    traces : dict
+        Row position -> (flow-corrected volume [mL], raw signal) of blanks and
+        calibration standards (for review plots).
+    settings : QCSettings
+    warnings : tuple of str
+    """
+
+    table: pd.DataFrame
+    injections: list[InjectionResult | None]
+    entries: list[BatchEntry]
+    method: Method
+    sheet: str
+    calibrations: dict[str, Calibration] = field(default_factory=dict)
+    methods: dict[str, Method] = field(default_factory=dict)
+    standards: tuple[LocatedStandard, ...] = ()
+    blanks: dict[int, list[BlankFinding]] = field(default_factory=dict)
+    traces: dict[int, tuple[np.ndarray, np.ndarray]] = field(default_factory=dict)
+    settings: QCSettings = field(default_factory=QCSettings)
+    warnings: tuple[str, ...] = ()
+
+    @property
+    def calibration(self) -> Calibration:
+        """The first sequence's own calibration, else the method's."""
+        return next(iter(self.calibrations.values()), self.method.calibration)
+
+    @property
+    def failed(self) -> int:
+        """Failed sample, replicate and check-standard injections (blanks and calibration
+        standards are judged, not counted here)."""
+        role = T.roles(self.table)
+        bad = ~T.ok_mask(self.table) & np.isin(role, (*T.SAMPLE_ROLES, T.ROLE_CHECK))
+        return int(bad.sum())
+
+    def summary(self) -> dict[str, Any]:
+        """JSON-safe description."""
+        return {"sheet": self.sheet, "injections": len(self.entries), "failed": self.failed,
+                "methods": {k: m.sha256 for k, m in self.methods.items()},
+                "sequence calibrations": {k: c.summary() for k, c in self.calibrations.items()},
+                "standards located": [s.summary() for s in self.standards],
+                "warnings": list(self.warnings)}
+
+
+@dataclass
+class _State:
+    """Work in progress of one run (rows and results by position)."""
+
+    entries: list[BatchEntry]
+    method: Method
+    settings: QCSettings
+    folder: Path
+    sequence: list[str]
+    rows: dict[int, dict[str, Any]] = field(default_factory=dict)
+    results: dict[int, InjectionResult | None] = field(default_factory=dict)
+    traces: dict[int, tuple[np.ndarray, np.ndarray]] = field(default_factory=dict)
+    markers: dict[int, float | None] = field(default_factory=dict)
+    calibrations: dict[str, Calibration] = field(default_factory=dict)
+    standards: list[LocatedStandard] = field(default_factory=list)
+    methods: dict[str, Method] = field(default_factory=dict)
+    blanks: dict[int, list[BlankFinding]] = field(default_factory=dict)
+    warnings: list[str] = field(default_factory=list)
+
+    def positions(self, *roles: str) -> list[int]:
+        return [i for i, e in enumerate(self.entries) if _roles.role_of(e.role) in roles]
+
+
+def _base_row(e: BatchEntry) -> dict[str, Any]:
+    row: dict[str, Any] = {C.SAMPLE_ID: e.sample_id, C.FILE: e.file, C.ROLE: e.role, **e.metadata}
+    for c in RESULT_COLUMNS:
+        row.setdefault(c, math.nan if C.describe(c).unit else "")
+    row[C.STATUS] = "ok"
+    row[C.SHEET_ROW] = e.row
+    return row
+
+
+def _error(row: dict[str, Any], message: str) -> dict[str, Any]:
+    row[C.STATUS] = "error"
+    row[C.ERROR] = message
+    return row
+
+
+def _refuse_unknown_roles(entries: list[BatchEntry]) -> None:
+    for e in entries:
+        if e.problem and "unknown role" in e.problem:
+            raise InputFormatError(e.problem)
+
+
+def _trace(st: _State, i: int, method: Method) -> tuple[np.ndarray, np.ndarray, float | None]:
+    """Raw trace of one entry on the flow-corrected volume axis, and its observed marker."""
+    from gpctools.io import read_chromatogram
+
+    e = st.entries[i]
+    if e.problem:
+        raise InputFormatError(e.problem)
+    chrom = read_chromatogram(e.path, **method.import_options.as_kwargs())
+    V = np.asarray(chrom.to_volume(method.flow_rate), dtype=float)
+    h = np.asarray(chrom.signal, dtype=float)
+    marker = e.marker_observed
+    if marker is None and method.marker_search is not None:
+        marker = locate_marker(V, h, method.marker_search)
+    if marker is not None and method.marker_reference is not None:
+        V = V * (method.marker_reference / marker)
+    return V, h, marker
+
+
+def _standards(st: _State) -> None:
+    """Locate the standards of every calibration-standard injection; fit each sequence."""
+    m = st.method
+    by_seq: dict[str, list[LocatedStandard]] = {}
+    for i in st.positions(_roles.ROLE_CALIBRATION):
+        e = st.entries[i]
+        row = st.rows[i] = _base_row(e)
+        try:
+            stds = injection_standards(e.metadata, e.sample_id, m.calibration, st.folder)
+            V, h, marker = _trace(st, i, m)
+            peaks = locate_peaks(V, h, len(stds), windows=m.windows, exclusions=m.exclusions)
+        except GpcError as exc:
+            _error(row, str(exc) if exc.path else f"{e.path}: {exc}")
+            continue
+        st.traces[i] = (V, h)
+        row[C.FLOW_MARKER] = math.nan if marker is None else marker
+        stds = sorted(stds, key=lambda s: -s[1])  # elution order: highest Mp first
+        loc = [LocatedStandard(n, mp, p, e.sample_id, i, st.sequence[i]) for (n, mp), p in zip(stds, peaks, strict=True)]
+        by_seq.setdefault(st.sequence[i], []).extend(loc)
+        row[C.STANDARDS_LOCATED] = "; ".join(f"{s.name} {s.peak.volume:.3f} mL" for s in loc)
+    for seq, loc in by_seq.items():
+        try:
+            cal = calibration_from_standards(loc, m)
+        except CalibrationError as exc:
+            st.warnings.append(f"sequence {seq}: its calibration-standard injections cannot build a "
+                               f"calibration ({exc.message}); the method's calibration is used")
+            continue
+        st.calibrations[seq] = cal
+        st.standards.extend(loc)
+        resid = dict(zip(range(len(loc)), cal.residuals_pct, strict=False))
+        order = np.argsort([s.peak.volume for s in loc], kind="stable")  # fit_calibration sorts by volume
+        by_pos: dict[int, list[float]] = {}
+        for k, j in enumerate(order):
+            by_pos.setdefault(loc[int(j)].position, []).append(resid[k])
+        for pos, rs in by_pos.items():
+            st.rows[pos][C.WORST_STANDARD_RESIDUAL] = max(rs, key=abs)
+
+
+def _product_method(st: _State, seq: str, product: str) -> Method:
+    """The method of one product in one sequence: its own file or the run's, with the
+    sequence's calibration and the product's molar-mass window."""
+    ps = st.settings.product(product) if product else None
+    m = st.method
+    if ps is not None and ps.method:
+        from gpctools.method import load_method
+
+        m = load_method(ps.method)
+    cal = m.calibration
+    located = [s for s in st.standards if s.sequence == seq]
+    if seq in st.calibrations:
+        cal = calibration_from_standards(located, m) if m is not st.method else st.calibrations[seq]
+    limits = m.limits
+    if ps is not None and ps.limits:
+        limits = (volume_at(cal, ps.limits[1]), volume_at(cal, ps.limits[0]))
+    out = replace(m, calibration=cal, limits=limits)
+    st.methods.setdefault(method_label(m), m)
+    return out
+
+
+def _blank_traces(st: _State) -> dict[str, list[tuple[np.ndarray, np.ndarray]]]:
+    """Read every blank (flow-corrected); error rows for those that cannot be read."""
+    out: dict[str, list[tuple[np.ndarray, np.ndarray]]] = {}
+    for i in st.positions(_roles.ROLE_BLANK):
+        e = st.entries[i]
+        row = st.rows[i] = _base_row(e)
+        try:
+            V, h, marker = _trace(st, i, st.method)
+        except GpcError as exc:
+            _error(row, str(exc) if exc.path else f"{e.path}: {exc}")
+            continue
+        row[C.FLOW_MARKER] = math.nan if marker is None else marker
+        st.traces[i] = (V, h)
+        out.setdefault(st.sequence[i], []).append((V, h))
+    return out
+
+
+def _subtracted(st: _State, idx: list[int], m: Method, blank: tuple[np.ndarray, np.ndarray],
+                on_result: Any) -> None:
+    """Process entries with the sequence's blank subtracted first."""
+    for i in idx:
+        e = st.entries[i]
+        try:
+            V, h, marker = _trace(st, i, m)
+            h2 = subtract_blank(V, h, *blank)
+            factor = (m.marker_reference / marker) if (marker is not None and m.marker_reference) else 1.0
+            res = process_trace(V / factor, h2, m, sample_id=e.sample_id, file=e.file, marker_observed=marker)
+        except GpcError as exc:
+            st.rows[i] = _error(_base_row(e), str(exc) if exc.path else f"{e.path}: {exc}")
+            st.results[i] = None
+            continue
+        row = _base_row(e)
+        row.update(res.row())
+        row[C.FILE] = e.file
+        row[C.WARNINGS] = "; ".join(filter(None, [row.get(C.WARNINGS, ""), "blank subtracted"]))
+        st.rows[i] = row
+        st.results[i] = res
+        if on_result is not None:
+            on_result(e, res)
+
+
+def _process(st: _State, blanks: dict[str, list[tuple[np.ndarray, np.ndarray]]], *, workers: int | None,
+             on_result: Any, progress: Callable[[int, int], None] | None) -> None:
+    """Samples, replicates and check standards, grouped by (sequence, product) method."""
+    groups: dict[tuple[str, str], list[int]] = {}
+    for i in st.positions(*T.SAMPLE_ROLES, T.ROLE_CHECK):
+        product = cells.text(st.entries[i].metadata.get(C.PRODUCT))
+        groups.setdefault((st.sequence[i], product), []).append(i)
+    done, total = 0, len(st.entries)
+    for (seq, product), idx in groups.items():
+        m = _product_method(st, seq, product)
+        label = method_label(m)
+        calib = (f"sequence {seq}: own standards ({sum(s.sequence == seq for s in st.standards)})"
+                 if seq in st.calibrations else "method's standards table")
+        if st.settings.blank_subtraction and blanks.get(seq):
+            _subtracted(st, idx, m, blanks[seq][0], on_result)
+        else:
+            for i, (row, res) in zip(idx, iter_batch([st.entries[i] for i in idx], m, workers=workers,
+                                                     on_result=on_result, keep=True), strict=True):
+                st.rows[i] = {**row, C.SHEET_ROW: st.entries[i].row}
+                st.results[i] = res
+        for i in idx:
+            st.rows[i][C.SEQUENCE_CALIBRATION] = calib
+            st.rows[i][C.METHOD_USED] = label
+        done += len(idx)
+        if progress is not None:
+            progress(done, total)
+
+
+def _product_windows(st: _State, seq: str) -> list[ProductWindow]:
+    """Each product's limits, baseline windows and peak height in one sequence."""
+    by_product: dict[str, list[InjectionResult]] = {}
+    for i, res in st.results.items():
+        if res is not None and st.sequence[i] == seq:
+            product = cells.text(st.entries[i].metadata.get(C.PRODUCT)) or st.entries[i].sample_id
+            by_product.setdefault(product, []).append(res)
+    out = []
+    for product, results in by_product.items():
+        cs = [r.corrected for r in results]
+        lo = min(c.limits[0] for c in cs)
+        hi = max(c.limits[1] for c in cs)
+        height = float(np.mean([np.max(c.signal[c.mask]) for c in cs]))
+        out.append(ProductWindow(product, (lo, hi), cs[0].baseline.windows, height))
+    return out
+
+
+def _check_blanks(st: _State) -> None:
+    for i in st.positions(_roles.ROLE_BLANK):
+        if i not in st.traces:
+            continue
+        row = st.rows[i]
+        windows = _product_windows(st, st.sequence[i])
+        if not windows:
+            row[C.BLANK_DETAILS] = "no processed injection in this sequence to compare with"
+            continue
+        found = check_blank(*st.traces[i], windows, exclusions=st.method.exclusions)
+        st.blanks[i] = found
+        if found:
+            worst = max(found, key=lambda f: f.peak_pct)
+            row[C.BLANK_PEAK] = worst.peak_pct
+            row[C.BLANK_DETAILS] = "; ".join(f.text() for f in found)
+
+
+def _table(st: _State) -> pd.DataFrame:
+    rows = [st.rows[i] for i in range(len(st.entries))]
+    meta = list(st.entries[0].metadata) if st.entries else []
+    front = [C.SAMPLE_ID, C.FILE, C.ROLE, *meta]
+    qc_cols = [C.SEQUENCE_CALIBRATION, C.METHOD_USED, C.STANDARDS_LOCATED, C.WORST_STANDARD_RESIDUAL,
+               C.BLANK_PEAK, C.BLANK_DETAILS, C.SHEET_ROW]
+    df = pd.DataFrame(rows)
+    for c in qc_cols:
+        if c not in df.columns:
+            df[c] = math.nan if C.describe(c).unit else ""
+    rest = [c for c in df.columns if c not in front and c not in qc_cols]
+    return df[[c for c in front if c in df.columns] + rest + qc_cols]
+
+
+def run_sequence(sheet: str | Path, method: Method, settings: QCSettings | None = None, *,
+                 sheet_name: str | int | None = None, workers: int | None = 1, on_result: Any = None,
+                 progress: Callable[[int, int], None] | None = None) -> SequenceRun:
+    """Process a QC sequence described by a batch sheet (see the module documentation).
+
+    Parameters
+    ----------
+    sheet : str or Path
+        The batch sheet (CSV or XLSX); roles ``calibration_standard``, ``blank``,
+        ``check_standard``, ``sample``, ``replicate``.
+    method : Method
+        The method of the run (calibration order and standards table, baseline,
+        integration, flow marker).
+    settings : QCSettings, optional
+        Per-product windows and methods, blank subtraction.
+    sheet_name : str or int, optional
+        Workbook sheet of the batch sheet.
+    workers : int or None
+        Processes per product group (see :func:`gpctools.batch.iter_batch`).
+    on_result : callable, optional
+        ``on_result(entry, result)`` for every processed sample and check standard (e.g.
+        :class:`gpctools.report.DistributionWriter`).
+    progress : callable, optional
+        ``progress(done, total)``.
+
+    Returns
+    -------
+    SequenceRun
+
+    Raises
+    ------
+    InputFormatError
+        An unknown role (the message lists the known ones), an unreadable sheet.
+    """
+    settings = settings or QCSettings()
+    entries = read_batch_sheet(sheet, sheet=sheet_name)
+    _refuse_unknown_roles(entries)
+    seqs = [cells.text(e.metadata.get(C.SEQUENCE)) or T.ALL_SEQUENCES for e in entries]
+    st = _State(entries, method, settings, Path(sheet).parent, seqs)
+    st.methods[method_label(method)] = method
+    _standards(st)
+    blanks = _blank_traces(st)
+    _process(st, blanks, workers=workers, on_result=on_result, progress=progress)
+    _check_blanks(st)
+    return SequenceRun(
+        table=_table(st), injections=[st.results.get(i) for i in range(len(entries))], entries=entries,
+        method=method, sheet=str(sheet), calibrations=dict(st.calibrations), methods=dict(st.methods),
+        standards=tuple(st.standards), blanks=dict(st.blanks), traces=dict(st.traces), settings=settings,
+        warnings=tuple(st.warnings))
