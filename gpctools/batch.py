@@ -1,17 +1,35 @@
-"""A whole batch: one batch sheet plus one method gives one result row per injection.
+"""A whole batch: one batch sheet plus its method(s) gives one result row per injection.
 
-The batch sheet (CSV or XLSX) has one row per injection:
+The batch sheet (CSV or XLSX) has one row per injection (schema and every accepted
+header in :mod:`gpctools.sheets.batch`):
 
-=====================  ==========================================================
-column                 meaning
-=====================  ==========================================================
-``sample_id``          required; repeated ids are replicate injections
-``file``               required; slice export, path relative to the sheet
-``role``               optional: ``sample`` (default), ``check_standard``, ``blank``
-``flow marker [mL]``   optional: observed marker position of that injection
-anything else          free metadata (``product``, ``batch``, ``sequence``,
-                       ``assigned Mw [g/mol]``, ...), copied to the results
-=====================  ==========================================================
+=========================  ======================================================
+column                     meaning
+=========================  ======================================================
+``sample_id``              required; repeated ids are replicate injections (a
+                           warning names them)
+``file``                   required; slice export, path relative to the sheet
+``role``                   optional: ``sample`` (default), ``check_standard``,
+                           ``blank``
+``flow marker [mL]``       optional: observed marker position of that injection
+``method file``            optional: the method of that injection (relative to the
+                           sheet); blank = the method given to :func:`run_batch`
+``limit start [mL]``,      optional overrides of that injection: integration
+``limit end [mL]``,        limits in mL or in molar mass, baseline windows
+``limit low M [g/mol]``,   (:class:`~gpctools.method.MethodOverrides`)
+``limit high M [g/mol]``,
+``baseline 1 start [mL]``
+... ``baseline 2 end [mL]``
+anything else              free metadata (``product``, ``batch``, ``sequence``,
+                           ``assigned Mw [g/mol]``, ...), copied to the results
+=========================  ======================================================
+
+A mixed sequence runs in one call: each distinct method file is loaded once, each row
+runs with its own method (with its overrides applied as a derived
+:class:`~gpctools.method.Method`), and each result row records the method file, its
+SHA-256 and the overrides used (``method file``, ``method SHA-256``, ``overrides``), as
+well as the integration limits used as numbers (``integration start [mL]``, ``M at
+integration start [g/mol]``, ...).
 
 One failing injection does not stop the batch: it gets a row with ``status = "error"``
 and its message, and :attr:`BatchResult.failed` counts it. Inputs are only read; this
@@ -24,8 +42,8 @@ from __future__ import annotations
 
 import math
 import warnings
-from collections.abc import Callable, Iterable, Iterator
-from dataclasses import dataclass, field
+from collections.abc import Callable, Iterable, Iterator, Mapping
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Any
 
@@ -39,8 +57,8 @@ from .distribution import (
     peak_position,
     slice_widths,
 )
-from .errors import DataError, GpcError, GpcWarning
-from .method import Method
+from .errors import DataError, GpcError, GpcWarning, InputFormatError, InputWarning, MethodError
+from .method import Method, MethodOverrides
 from .sheets import batch as _sheet
 from .signal import CorrectedSignal, correct_signal
 
@@ -53,6 +71,7 @@ __all__ = [
     "read_batch_sheet",
     "run_batch",
     "iter_batch",
+    "load_batch_methods",
     "ResultSink",
     "RESULT_COLUMNS",
 ]
@@ -73,12 +92,19 @@ RESULT_COLUMNS = (
     C.OUTSIDE_CALIBRATION,
     C.BASELINE_WINDOWS,
     C.LIMITS,
+    C.INTEGRATION_START,
+    C.INTEGRATION_END,
+    C.M_AT_INTEGRATION_START,
+    C.M_AT_INTEGRATION_END,
     C.FLOW_MARKER,
     C.FLOW_FACTOR,
     C.MN_SHIFT_LOW_M,
     C.MW_SHIFT_LOW_M,
     C.LIMIT_SHIFT,
     C.SCALE,
+    C.METHOD_FILE,
+    C.METHOD_SHA256,
+    C.OVERRIDES,
     C.WARNINGS,
     C.ERROR,
 )
@@ -232,7 +258,7 @@ def process_trace(
                     f"{method.marker_reference:.3f} mL: check the marker peak or the search window"
                 )
             V = V * factor
-        cs = correct_signal(V, h, windows=method.windows, limits=method.limits, exclusions=method.exclusions)
+        cs = correct_signal(V, h, windows=method.windows, limits=method.volume_limits(), exclusions=method.exclusions)
         dist = compute_distribution(
             V, cs.signal, method.calibration, mask=cs.mask,
             outside=method.outside, outside_warn_pct=method.outside_warn_pct,
@@ -303,12 +329,13 @@ def process_injection(
         Any reading or processing problem, with the file named.
     """
     from .io import read_chromatogram
+    from .io.describe import response_note
 
     p = Path(path)
     chrom = read_chromatogram(p, **method.import_options.as_kwargs())
     V = chrom.to_volume(method.flow_rate)
     try:
-        return process_trace(
+        res = process_trace(
             V, chrom.signal, method,
             sample_id=sample_id if sample_id is not None else p.stem,
             file=str(path), marker_observed=marker_observed, metadata=chrom.metadata,
@@ -317,6 +344,10 @@ def process_injection(
         if exc.path is None:
             exc.path = str(path)
         raise
+    note = response_note(chrom.signal_column)  # UV or ELSD taken as mass concentration
+    if note is not None:  # listed with the injection's other warnings (as process_trace does)
+        res = replace(res, warnings=(*res.warnings, note))
+    return res
 
 
 # -- the batch sheet ----------------------------------------------------------------------
@@ -340,6 +371,12 @@ class BatchEntry:
         The sheet's other columns (``None`` for blank cells).
     problem : str or None
         Why the row cannot be processed (it becomes an error row of the batch).
+    method_file : str
+        The ``method file`` cell as written (``""``: the batch's default method).
+    method_path : Path or None
+        That method file, resolved against the sheet's folder.
+    overrides : MethodOverrides
+        Settings the row changes in its method (limits, baseline windows).
     """
 
     row: int
@@ -350,6 +387,9 @@ class BatchEntry:
     marker_observed: float | None
     metadata: dict[str, Any]
     problem: str | None = None
+    method_file: str = ""
+    method_path: Path | None = None
+    overrides: MethodOverrides = field(default_factory=MethodOverrides)
 
 
 def read_batch_sheet(path: str | Path, *, sheet: str | int | None = None) -> list[BatchEntry]:
@@ -358,7 +398,7 @@ def read_batch_sheet(path: str | Path, *, sheet: str | int | None = None) -> lis
     Parameters
     ----------
     path : str or Path
-        The batch sheet (CSV or XLSX); export paths are relative to its folder.
+        The batch sheet (CSV or XLSX); export and method paths are relative to its folder.
     sheet : str or int, optional
         Workbook sheet (name or 0-based index).
 
@@ -371,9 +411,25 @@ def read_batch_sheet(path: str | Path, *, sheet: str | int | None = None) -> lis
     ------
     InputFormatError
         The sheet cannot be read, lacks the ``sample_id`` or ``file`` column, or has no
-        rows. Problems of single rows (empty file cell, unknown role, bad marker value) do
-        not raise: the entry carries a ``problem`` and becomes an error row of the batch.
+        rows. Problems of single rows (empty file cell, unknown role, bad marker value, an
+        override pair given half, limits in mL and g/mol in one row, a limit start after
+        its end) do not raise: the entry carries a ``problem`` and becomes an error row of
+        the batch.
+
+    Warns
+    -----
+    InputWarning
+        Sample ids used on more than one row: they are treated as replicate injections
+        of one sample (issue 9).
     """
+    entries, notes = _read_sheet(path, sheet)
+    for note in notes:
+        warnings.warn(note, InputWarning, stacklevel=2)
+    return entries
+
+
+def _read_sheet(path: str | Path, sheet: str | int | None) -> tuple[list[BatchEntry], list[str]]:
+    """The entries of a batch sheet and the warnings about it (see :func:`read_batch_sheet`)."""
     from .sheets import BATCH, read_file
 
     p = Path(path)
@@ -383,9 +439,75 @@ def read_batch_sheet(path: str | Path, *, sheet: str | int | None = None) -> lis
         sid = row["sample_id"] or f"(row {row.row})"
         f = row["file"]
         fp = (p.parent / f) if f else p.parent
+        overrides, problem = _row_overrides(row, table.columns)
+        mf = row.get("method_file") or ""
         entries.append(BatchEntry(row.row, sid, f, fp, row.get("role", _sheet.ROLE_SAMPLE),
-                                  row.get("flow_marker"), dict(row.metadata), row.problem))
-    return entries
+                                  row.get("flow_marker"), dict(row.metadata), row.problem or problem,
+                                  mf, (p.parent / mf) if mf else None, overrides))
+    note = _replicate_note(entries, table.rows, p)
+    return entries, ([] if note is None else [note])
+
+
+def _row_overrides(row: Any, columns: Any) -> tuple[MethodOverrides, str | None]:
+    """The overrides a batch-sheet row gives, or (no overrides, the problem as one line).
+
+    Each group of columns (:data:`gpctools.sheets.batch.OVERRIDE_PAIRS`) is given whole
+    or not at all; limits in mL and in molar mass exclude each other; a start must lie
+    below its end (checked by :class:`~gpctools.method.MethodOverrides`).
+    """
+    from .sheets import BATCH
+
+    def header(name: str) -> str:
+        return columns.header(name) or BATCH.field(name).header
+
+    got: dict[str, list[float]] = {}
+    for what, names in _sheet.OVERRIDE_PAIRS:
+        values = [row.get(n) for n in names]
+        given = [v is not None for v in values]
+        if not any(given):
+            continue
+        if not all(given):
+            empty = [header(n) for n, ok in zip(names, given) if not ok]
+            filled = [header(n) for n, ok in zip(names, given) if ok]
+            listed = " and ".join(repr(header(n)) for n in names)
+            return MethodOverrides(), str(row.error(
+                f"{what} need {listed}; {', '.join(repr(h) for h in filled)} is filled but "
+                f"{', '.join(repr(h) for h in empty)} is empty: fill it, or empty the group to "
+                "use the method's setting", empty[0]))
+        got[what] = [float(v) for v in values]
+    mL = got.get("integration limits in mL")
+    gmol = got.get("integration limits in molar mass")
+    bw = got.get("baseline windows")
+    first_col = header("limit_low_M") if gmol else header("limit_start") if mL else header("baseline_1_start")
+    try:
+        return MethodOverrides(
+            limits=(mL[0], mL[1]) if mL else None,
+            limits_M=(gmol[0], gmol[1]) if gmol else None,
+            windows=((bw[0], bw[1]), (bw[2], bw[3])) if bw else None,
+        ), None
+    except MethodError as exc:
+        if mL and gmol:
+            msg = (f"give the integration limits of one row in mL ({header('limit_start')!r}, "
+                   f"{header('limit_end')!r}) or in molar mass ({header('limit_low_M')!r}, "
+                   f"{header('limit_high_M')!r}), not both")
+        else:
+            msg = exc.message
+        return MethodOverrides(), str(row.error(msg, first_col))
+
+
+def _replicate_note(entries: list[BatchEntry], rows: Any, path: Path) -> str | None:
+    """The warning for sample ids used on several rows (None when every id is unique)."""
+    seen: dict[str, list[int]] = {}
+    for e, r in zip(entries, rows):
+        if r["sample_id"]:
+            seen.setdefault(e.sample_id, []).append(e.row)
+    repeated = {k: v for k, v in seen.items() if len(v) > 1}
+    if not repeated:
+        return None
+    listed = "; ".join(f"{k!r} (rows {', '.join(str(n) for n in v)})" for k, v in repeated.items())
+    return (f"{path}: sample ids on more than one row: {listed}; they are treated as replicate "
+            "injections of one sample (reported per injection, averaged together in QC); give "
+            "different samples different ids")
 
 
 # -- running a batch ----------------------------------------------------------------------
@@ -395,41 +517,83 @@ def read_batch_sheet(path: str | Path, *, sheet: str | int | None = None) -> lis
 ResultSink = Callable[[BatchEntry, InjectionResult], None]
 
 
-def _error_row(entry: BatchEntry, message: str) -> dict[str, Any]:
+def _error_row(entry: BatchEntry, message: str, method: Method | None = None) -> dict[str, Any]:
     row = {C.SAMPLE_ID: entry.sample_id, C.FILE: entry.file, C.ROLE: entry.role, **entry.metadata}
     for c in RESULT_COLUMNS:
         row.setdefault(c, float("nan") if C.describe(c).unit else "")
+    row.update(_method_columns(entry, method))
     row[C.STATUS] = "error"
     row[C.ERROR] = message
-    return row
+    return _ordered(row, entry)
+
+
+def _ordered(row: dict[str, Any], entry: BatchEntry) -> dict[str, Any]:
+    """The sheet's own columns, then :data:`RESULT_COLUMNS` in order, then any others."""
+    front = [C.SAMPLE_ID, C.FILE, C.ROLE, *entry.metadata, *RESULT_COLUMNS]
+    out = {k: row[k] for k in front if k in row}
+    out.update((k, v) for k, v in row.items() if k not in out)
+    return out
+
+
+def _method_columns(entry: BatchEntry, method: Method | None) -> dict[str, Any]:
+    """``method file``, ``method SHA-256`` and ``overrides`` of a row (the audit trail)."""
+    if entry.method_file:
+        name = entry.method_file
+    else:
+        name = method.label if method is not None else ""
+    return {
+        C.METHOD_FILE: name,
+        C.METHOD_SHA256: (method.sha256 or "") if method is not None else "",
+        C.OVERRIDES: entry.overrides.describe(),
+    }
+
+
+def _limit_columns(res: InjectionResult, method: Method) -> dict[str, float]:
+    """The integration limits used, as numbers [mL], and the molar mass at each [g/mol].
+
+    The limits are on the flow-corrected volume axis, where the calibration applies, so
+    ``M = calibration.M(V)`` (tangent continuation outside the calibrated range).
+    """
+    lo, hi = res.corrected.limits
+    M_lo, M_hi = (float(m) for m in method.calibration.M([lo, hi]))
+    return {C.INTEGRATION_START: float(lo), C.INTEGRATION_END: float(hi),
+            C.M_AT_INTEGRATION_START: M_lo, C.M_AT_INTEGRATION_END: M_hi}
 
 
 def _run_entry(
-    entry: BatchEntry, method: Method, on_result: ResultSink | None, keep: bool
+    entry: BatchEntry, method: Method | None, on_result: ResultSink | None, keep: bool
 ) -> tuple[dict[str, Any], InjectionResult | None]:
-    """Process one entry; returns (row, result-or-None). Never raises for bad data.
+    """Process one entry with its method; returns (row, result-or-None). Never raises for bad data.
 
+    The row's overrides give a derived method (:meth:`~gpctools.method.Method.with_overrides`).
     ``on_result`` is called with each processed injection (not for failed rows); what it
     raises (e.g. a full disk) stops the batch.
     """
     if entry.problem:
-        return _error_row(entry, entry.problem), None
+        return _error_row(entry, entry.problem, method), None
+    if method is None:
+        return _error_row(entry, "no method for this injection: fill its 'method file' cell or give "
+                                 "a method for the whole batch"), None
     try:
-        res = process_injection(entry.path, method, sample_id=entry.sample_id, marker_observed=entry.marker_observed)
+        used = method.with_overrides(entry.overrides)
+        res = process_injection(entry.path, used, sample_id=entry.sample_id, marker_observed=entry.marker_observed)
+        limits = _limit_columns(res, used)
     except GpcError as exc:
-        return _error_row(entry, str(exc)), None
+        return _error_row(entry, str(exc), method), None
     except Exception as exc:  # one bad injection must not sink the batch
-        return _error_row(entry, f"{entry.path}: unexpected {type(exc).__name__}: {exc}"), None
+        return _error_row(entry, f"{entry.path}: unexpected {type(exc).__name__}: {exc}", method), None
     row = {C.SAMPLE_ID: entry.sample_id, C.FILE: entry.file, C.ROLE: entry.role, **entry.metadata}
     row.update(res.row())
+    row.update(limits)
+    row.update(_method_columns(entry, method))
     row[C.FILE] = entry.file
     if on_result is not None:
         on_result(entry, res)
-    return row, (res if keep else None)
+    return _ordered(row, entry), (res if keep else None)
 
 
 def _worker(
-    args: tuple[BatchEntry, Method, ResultSink | None, bool],
+    args: tuple[BatchEntry, Method | None, ResultSink | None, bool],
 ) -> tuple[dict[str, Any], InjectionResult | None]:
     entry, method, on_result, keep = args
     with warnings.catch_warnings():
@@ -449,8 +613,16 @@ class BatchResult:
         Same order as the table; None for failed rows (or when not kept).
     entries : list of BatchEntry
     method : Method
+        The batch's method: the one given to :func:`run_batch`, else the first method
+        file the sheet names (its calibration is the one ``calibration.csv`` shows).
     sheet : str
         Path of the batch sheet.
+    methods : dict of str to Method
+        Every method the batch used, by its label (method file as written in the sheet,
+        or the path of the default method); each row's ``method file`` column is one of
+        these keys.
+    warnings : tuple of str
+        Warnings about the sheet (repeated sample ids).
     """
 
     table: Any
@@ -458,6 +630,8 @@ class BatchResult:
     entries: list[BatchEntry]
     method: Method
     sheet: str
+    methods: dict[str, Method] = field(default_factory=dict)
+    warnings: tuple[str, ...] = ()
 
     @property
     def calibration(self):
@@ -473,6 +647,9 @@ class BatchResult:
             "injections": len(self.entries),
             "failed": self.failed,
             "method": self.method.summary(),
+            "methods": [{C.METHOD_FILE: k, C.METHOD_SHA256: m.sha256, "name": m.name}
+                        for k, m in self.methods.items()],
+            "warnings": list(self.warnings),
         }
 
 
@@ -482,15 +659,28 @@ def _order_columns(df, meta_cols):
     return df[[c for c in front if c in df.columns] + rest]
 
 
+def _method_of(entry: BatchEntry, method: Method | None, methods: Mapping[str, Method] | None) -> Method | None:
+    """The method a row runs with: its own method file (loaded in ``methods``) or the default."""
+    if entry.method_path is not None:
+        return (methods or {}).get(str(entry.method_path))
+    return method
+
+
 def iter_batch(
     entries: Iterable[BatchEntry],
-    method: Method,
+    method: Method | None,
     *,
+    methods: Mapping[str, Method] | None = None,
     workers: int | None = 1,
     on_result: ResultSink | None = None,
     keep: bool = True,
 ) -> Iterator[tuple[dict[str, Any], InjectionResult | None]]:
     """Yield (row, result) per entry in order; parallel over processes when workers > 1.
+
+    Each entry runs with the method its ``method file`` names (looked up in ``methods``,
+    keyed by the resolved path as text; loaded here with :func:`load_batch_methods` when
+    ``methods`` is None) or, when it names none, with ``method``; its overrides are
+    applied to that method.
 
     ``workers=None`` chooses: one process for fewer than 16 injections (starting worker
     processes costs about a second), otherwise one per core, at most 4. ``on_result`` is
@@ -501,22 +691,86 @@ def iter_batch(
     import os
 
     entries = list(entries)
+    if methods is None and any(e.method_path is not None for e in entries):
+        entries, methods = load_batch_methods(entries, method, "the batch sheet")
+    jobs = [(e, _method_of(e, method, methods), on_result, keep) for e in entries]
     if workers is None:
         workers = min(os.cpu_count() or 1, 4) if len(entries) >= 16 else 1
     if workers <= 1 or len(entries) < 4:
-        for e in entries:
-            yield _run_entry(e, method, on_result, keep)
+        for job in jobs:
+            yield _run_entry(*job)
         return
     from concurrent.futures import ProcessPoolExecutor
 
     with ProcessPoolExecutor(max_workers=workers) as pool:
         chunk = max(1, min(32, len(entries) // (workers * 4) or 1))
-        yield from pool.map(_worker, [(e, method, on_result, keep) for e in entries], chunksize=chunk)
+        yield from pool.map(_worker, jobs, chunksize=chunk)
+
+
+def load_batch_methods(
+    entries: list[BatchEntry], method: Method | None, sheet_path: str | Path
+) -> tuple[list[BatchEntry], dict[str, Method]]:
+    """Load every method file the sheet names, once each.
+
+    Parameters
+    ----------
+    entries : list of BatchEntry
+        From :func:`read_batch_sheet`.
+    method : Method or None
+        The default method, for rows whose ``method file`` cell is blank.
+    sheet_path : str or Path
+        The batch sheet (named in messages).
+
+    Returns
+    -------
+    entries : list of BatchEntry
+        The same rows; a row whose method file cannot be loaded carries that error as
+        its ``problem`` (it becomes an error row: one bad method file does not stop the
+        injections that use another).
+    methods : dict of str to Method
+        Loaded methods by resolved path (as text).
+
+    Raises
+    ------
+    InputFormatError
+        No default method and some rows name none (the message lists them).
+    """
+    from .method import load_method
+
+    if method is None:
+        missing = [e.row for e in entries if not e.method_file]
+        if missing:
+            shown = ", ".join(str(r) for r in missing[:10]) + (" ..." if len(missing) > 10 else "")
+            hint = ""
+            if any(k.strip().casefold() == "method" for e in entries for k in e.metadata):
+                hint = (" (the sheet's 'method' column is kept as metadata; name it 'method file' "
+                        "if it holds method files)")
+            raise InputFormatError(
+                f"no method for row(s) {shown}: give a method for the whole batch (gpctools "
+                "batch --method METHOD.toml) or fill the 'method file' column of every row"
+                + hint, path=str(sheet_path), column=C.METHOD_FILE)
+    methods: dict[str, Method] = {}
+    failed: dict[str, str] = {}
+    out = []
+    for e in entries:
+        if e.method_path is None:
+            out.append(e)
+            continue
+        key = str(e.method_path)
+        if key not in methods and key not in failed:
+            try:
+                methods[key] = load_method(e.method_path)
+            except GpcError as exc:
+                failed[key] = f"method file {e.method_file!r} (row {e.row}, column {C.METHOD_FILE!r}): {exc}"
+        if key in failed and not e.problem:
+            e = replace(e, problem=failed[key])
+        out.append(e)
+    return out, methods
 
 
 def run_batch(
     sheet_path: str | Path,
-    method: Method,
+    method: Method | None = None,
     *,
     sheet: str | int | None = None,
     workers: int | None = 1,
@@ -530,8 +784,10 @@ def run_batch(
     ----------
     sheet_path : str or Path
         The batch sheet (CSV or XLSX).
-    method : Method
-        From :func:`gpctools.method.load_method`.
+    method : Method, optional
+        From :func:`gpctools.method.load_method`: the method of every row whose
+        ``method file`` cell is blank. May be omitted when every row names its method
+        file; each distinct file is then loaded once (:func:`load_batch_methods`).
     sheet : str or int, optional
         Workbook sheet of the batch sheet.
     workers : int or None
@@ -551,19 +807,39 @@ def run_batch(
     -------
     BatchResult
         Nothing is written; see :func:`gpctools.report.write_batch`.
+
+    Raises
+    ------
+    InputFormatError
+        The sheet cannot be read, or no method is given and some rows name none.
     """
     import pandas as pd
 
-    entries = read_batch_sheet(sheet_path, sheet=sheet)
+    entries, notes = _read_sheet(sheet_path, sheet)
+    for note in notes:
+        warnings.warn(note, InputWarning, stacklevel=2)
+    entries, loaded = load_batch_methods(entries, method, sheet_path)
+    used: dict[str, Method] = {}
+    if method is not None and any(not e.method_file for e in entries):
+        used[method.label] = method
+    for e in entries:
+        m = loaded.get(str(e.method_path)) if e.method_path is not None else None
+        if m is not None:
+            used.setdefault(e.method_file, m)
+    main = method if method is not None else next(iter(used.values()), None)
+    if main is None:
+        raise InputFormatError("no method file of the batch sheet could be loaded; see the error of "
+                               "each row: " + "; ".join(sorted({e.problem or "" for e in entries})),
+                               path=str(sheet_path))
     rows, results = [], []
     total = len(entries)
-    for i, (row, res) in enumerate(iter_batch(entries, method, workers=workers, on_result=on_result,
-                                              keep=keep_distributions), start=1):
+    for i, (row, res) in enumerate(iter_batch(entries, method, methods=loaded, workers=workers,
+                                              on_result=on_result, keep=keep_distributions), start=1):
         rows.append(row)
         results.append(res)
         if progress is not None:
             progress(i, total)
     meta_cols = list(entries[0].metadata) if entries else []
     table = _order_columns(pd.DataFrame(rows), meta_cols)
-    return BatchResult(table=table, injections=results, entries=entries, method=method, sheet=str(sheet_path))
-
+    return BatchResult(table=table, injections=results, entries=entries, method=main,
+                       sheet=str(sheet_path), methods=used, warnings=tuple(notes))

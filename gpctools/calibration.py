@@ -36,9 +36,23 @@ __all__ = [
     "select_order",
     "flow_marker_factor",
     "universal_log_M",
+    "mark_houwink_notes",
+    "K_PLAUSIBLE_DL_G",
 ]
 
 MAX_ORDER = 5
+
+#: Plausible span of a Mark-Houwink K in dL/g [dL/g]. Tabulated K of flexible polymers in
+#: organic eluents lie mostly between 1e-5 and 1e-3 dL/g (from memory: Polymer Handbook
+#: Mark-Houwink tables; the bundled pairs are 7.6e-5 to 1.2e-4), widened tenfold below and
+#: fivefold above (common practice) so that only a unit mix-up falls outside: the same K
+#: in mL/g is 100 times larger (1 dL/g = 100 mL/g), e.g. polystyrene 1.14e-2 mL/g.
+K_PLAUSIBLE_DL_G = (1e-6, 5e-3)
+#: Largest plausible ratio of the two K of a universal calibration [-]: pairs measured in
+#: one eluent differ by a factor of a few (the bundled THF pairs by at most 1.6; polystyrene
+#: and polyethylene in trichlorobenzene by about 3.4, from memory), while one K typed in
+#: mL/g next to one in dL/g makes the ratio 100 times larger (common practice).
+K_RATIO_LIMIT = 10.0
 
 
 @dataclass(frozen=True)
@@ -133,6 +147,82 @@ class Calibration:
         """Molar mass [g/mol] at elution volume(s) V [mL]."""
         return np.power(10.0, self.log_M(V))
 
+    def volume_at(self, M: Any) -> np.ndarray:
+        """Elution volume [mL] at which the calibration gives molar mass(es) M [g/mol].
+
+        The inverse of :meth:`M`, on the same curve: inside the calibrated range the
+        root of the fitted polynomial, outside it the tangent at the range end (as
+        :meth:`log_M` continues the curve), so ``volume_at(M(V)) == V`` for every V. With
+        y = (log10 M - log_offset) / log_factor the standard-polymer log M,
+
+        .. math:: V = v_{min} + (y - p(v_{min})) / p'(v_{min}) \\quad (y > p(v_{min}))
+
+        and likewise beyond ``v_max`` (docs/science.md, section 1.6: V_lim = V(M_lim)).
+
+        Parameters
+        ----------
+        M : float or array_like
+            Molar mass(es) [g/mol], positive.
+
+        Returns
+        -------
+        numpy.ndarray
+            Volume(s) [mL], same shape as ``M``.
+
+        Raises
+        ------
+        CalibrationError
+            M not positive, or the curve gives that M at several volumes (its slope
+            changes sign) or at none (a slope that is not negative at a range end).
+
+        Examples
+        --------
+        >>> cal = fit_calibration([12.0, 14.0, 16.0, 18.0], [1e6, 1e5, 1e4, 1e3], order=1)
+        >>> [round(float(v), 6) for v in cal.volume_at([1e5, 1e2])]
+        [14.0, 20.0]
+        """
+        M_arr = np.asarray(M, dtype=float)
+        flat = M_arr.ravel()
+        if not np.all(np.isfinite(flat) & (flat > 0)):
+            bad = next(float(m) for m in flat if not (math.isfinite(m) and m > 0))
+            raise CalibrationError(f"a molar mass must be a positive number in g/mol, got {bad:g}")
+        y = (np.log10(flat) - self.log_offset) / self.log_factor
+        out = np.array([self._volume_at_poly(float(v), float(m)) for v, m in zip(y, flat)])
+        return out.reshape(M_arr.shape)
+
+    def _volume_at_poly(self, y: float, M: float) -> float:
+        """The one volume where the (tangent-continued) polynomial equals y; see volume_at."""
+        t_lo = (self.v_min - self.center) / self.scale
+        t_hi = (self.v_max - self.center) / self.scale
+        coef = np.array(self.coefficients, dtype=float)
+        coef[0] -= y
+        found: list[float] = []
+        if self.order >= 1:
+            roots = np.polynomial.polynomial.polyroots(coef)
+            tol = 1e-9 * max(1.0, t_hi - t_lo)
+            for r in roots:
+                if abs(r.imag) <= 1e-9 and t_lo - tol <= r.real <= t_hi + tol:
+                    found.append(float(np.clip(r.real, t_lo, t_hi)) * self.scale + self.center)
+        for end, beyond in ((self.v_min, -1.0), (self.v_max, 1.0)):
+            p_end = float(self._poly_log_M(np.array([end]))[0])
+            slope = float(self._poly_slope(np.array([end]))[0])
+            if slope != 0.0:
+                v = end + (y - p_end) / slope
+                if (v - end) * beyond > 0:
+                    found.append(v)
+        found.sort()
+        unique = [v for i, v in enumerate(found) if i == 0 or v - found[i - 1] > 1e-9 * max(1.0, abs(v))]
+        if len(unique) == 1:
+            return unique[0]
+        if not unique:
+            raise CalibrationError(
+                f"the calibration never reaches {M:g} g/mol (its slope is not negative at the "
+                "end of the calibrated range); check the standards or lower calibration.order")
+        listed = ", ".join(f"{v:.3f}" for v in unique)
+        raise CalibrationError(
+            f"the calibration gives {M:g} g/mol at several volumes ({listed} mL): its slope "
+            "changes sign; lower calibration.order or check the standards")
+
     def dlogM_dV(self, V: Any) -> np.ndarray:
         """Calibration Jacobian d log10 M / dV [1/mL] (negative for a valid curve)."""
         V = np.asarray(V, dtype=float)
@@ -196,6 +286,13 @@ class Calibration:
             Where the Mark-Houwink pairs come from (recorded; literature pairs differ by
             about 5 % in the resulting M).
 
+        Warns
+        -----
+        CalibrationWarning
+            A K outside the plausible dL/g range or two K a factor of more than
+            :data:`K_RATIO_LIMIT` apart (:func:`mark_houwink_notes`): the sign of a K
+            typed in mL/g.
+
         Notes
         -----
         Not valid for branched polymers or samples that adsorb on the column.
@@ -209,8 +306,12 @@ class Calibration:
                     f"Mark-Houwink exponent {name} must lie between 0 and 2, got {value!r}"
                 )
         offset, factor = universal_transform(K_standard, a_standard, K_sample, a_sample)
+        notes = mark_houwink_notes(K_standard, K_sample)
+        for note in notes:
+            warnings.warn(note, CalibrationWarning, stacklevel=2)
         return replace(
             self,
+            warnings=(*self.warnings, *notes),
             log_offset=offset + factor * self.log_offset,
             log_factor=factor * self.log_factor,
             sample_polymer=sample_polymer,
@@ -314,6 +415,56 @@ def universal_log_M(
     """
     offset, factor = universal_transform(K_standard, a_standard, K_sample, a_sample)
     return np.power(10.0, offset + factor * np.log10(np.asarray(M_standard, dtype=float)))
+
+
+def mark_houwink_notes(K_standard: float, K_sample: float) -> list[str]:
+    """Warnings about Mark-Houwink K values that look like a unit mix-up.
+
+    The method takes K in dL/g; the same K in mL/g is 100 times larger (1 dL/g = 100
+    mL/g). Only the ratio K_s/K_x enters the universal calibration (offset
+    log10(K_s/K_x)/(1 + a_x), see :func:`universal_transform`), so one K in the wrong unit
+    moves every molar mass: with the polystyrene and PMMA pairs of docs/science.md,
+    section 2.3, a sample K typed in mL/g turns a PS-equivalent 100 000 g/mol into
+    7 507 g/mol [derived]. A K outside :data:`K_PLAUSIBLE_DL_G` or two K more than
+    :data:`K_RATIO_LIMIT` apart gets a note.
+
+    Parameters
+    ----------
+    K_standard, K_sample : float
+        Mark-Houwink K of the standard and the sample polymer [dL/g].
+
+    Returns
+    -------
+    list of str
+        One note per concern (empty when both K look like dL/g values).
+
+    Examples
+    --------
+    >>> mark_houwink_notes(1.14e-4, 9.44e-5)
+    []
+    >>> len(mark_houwink_notes(1.14e-4, 9.44e-3))
+    2
+    """
+    lo, hi = K_PLAUSIBLE_DL_G
+    notes = []
+    for key, K in (("K_standard", K_standard), ("K_sample", K_sample)):
+        if not lo <= K <= hi:
+            if K > hi:
+                guess = f"; if it is in mL/g, write {K / 100:.3g} (1 dL/g = 100 mL/g)"
+            else:
+                guess = "; check its unit and exponent"
+            notes.append(
+                f"Mark-Houwink {key} = {K:.3g} dL/g lies outside the plausible range "
+                f"{lo:g}-{hi:g} dL/g{guess} (mark_houwink.{key}; docs/science.md, section 2.3)")
+    ratio = K_standard / K_sample
+    if not 1.0 / K_RATIO_LIMIT <= ratio <= K_RATIO_LIMIT:
+        notes.append(
+            f"Mark-Houwink K_standard = {K_standard:.3g} and K_sample = {K_sample:.3g} differ "
+            f"by a factor {max(ratio, 1.0 / ratio):.3g}: is one of them in mL/g? Both must be "
+            "in dL/g (a K in mL/g is 100 times its dL/g value, and one K in the wrong unit "
+            "shifts every molar mass, e.g. a PS-equivalent 100 000 g/mol read as 7 507; "
+            "docs/science.md, section 2.3)")
+    return notes
 
 
 def flow_marker_factor(reference: float, observed: float) -> float:

@@ -13,9 +13,13 @@ import os
 import sys
 import warnings
 from pathlib import Path
-from typing import Optional
+from typing import TYPE_CHECKING, Optional
 
 import typer
+
+if TYPE_CHECKING:  # pragma: no cover
+    from .io.describe import ExportDescription
+    from .method import Method
 
 app = typer.Typer(
     add_completion=False,
@@ -135,16 +139,16 @@ def _print_table(rows: list[dict], columns: list[str]) -> None:
         typer.echo("  ".join(_fmt(r.get(c, "")).ljust(widths[c]) for c in columns))
 
 
-def _run_batch_with_progress(sheet: Path, method, out: Path, workers: int, sheet_name=None):
-    from .batch import read_batch_sheet, run_batch
+def _run_batch_with_progress(sheet: Path, method, out: Path, workers: int | None,
+                             sheet_name: str | None = None):
+    from .batch import run_batch
     from .report import DistributionWriter, write_batch
 
-    total = len(read_batch_sheet(sheet, sheet=sheet_name))
-    with _progress_bar(total, "injections") as prog:
-        task = prog.add_task("batch", total=total)
+    with _progress_bar(0, "injections") as prog:
+        task = prog.add_task("batch", total=None)
         result = run_batch(
             sheet, method, sheet=sheet_name, workers=workers,
-            progress=lambda done, tot: prog.update(task, completed=done),
+            progress=lambda done, tot: prog.update(task, completed=done, total=tot),
             on_result=DistributionWriter(out / "distributions"),
         )
     write_batch(result, out, distributions=False)  # distributions were written while running
@@ -158,21 +162,33 @@ SUMMARY_COLUMNS = ["sample_id", "status", "Mn [g/mol]", "Mw [g/mol]", "Mp [g/mol
 @app.command("batch")
 @_guard
 def batch_cmd(
-    sheet: Path = typer.Argument(..., help="Batch sheet (CSV or XLSX): sample_id, file, optional role and metadata."),
-    method: Path = typer.Option(..., "--method", "-m", help="Method file (TOML)."),
+    sheet: Path = typer.Argument(..., help="Batch sheet (CSV or XLSX): sample_id, file, optional role, "
+                                 "method file, overrides and metadata."),
+    method: Optional[Path] = typer.Option(None, "--method", "-m", help="Method file (TOML) for the rows "
+                                          "whose 'method file' cell is blank; optional when every row names one."),
     out: Path = typer.Option(Path("gpctools-out"), "--out", "-o", help="Output folder."),
     workers: int = typer.Option(0, "--workers", "-j", min=0, help="Processes to use (0 = choose from batch size and cores)."),
     sheet_name: Optional[str] = typer.Option(None, "--sheet", help="Workbook sheet of the batch sheet."),
 ) -> None:
-    """Process every injection of a batch sheet and write the results table."""
+    """Process every injection of a batch sheet and write the results table.
+
+    One sheet can name a method per row ('method file' column) and override the
+    integration limits (in mL or g/mol) and baseline windows per row; see
+    templates/batch.csv.
+    """
     from .method import load_method
 
     _check_out(out)
-    m = load_method(method)
+    m = load_method(method) if method is not None else None
     result = _run_batch_with_progress(sheet, m, out, workers or None, sheet_name)
     rows = result.table.to_dict("records")
     _print_table(rows, SUMMARY_COLUMNS)
-    typer.echo(f"\nmolar-mass scale: {m.calibration.scale_label()}")
+    if len(result.methods) > 1:
+        typer.echo("")
+        for label, used in result.methods.items():
+            typer.echo(f"method {label}: molar-mass scale {used.calibration.scale_label()}")
+    else:
+        typer.echo(f"\nmolar-mass scale: {result.method.calibration.scale_label()}")
     typer.echo(f"wrote {out}/results.csv, results.xlsx, calibration.csv, manifest.json, distributions/")
     if result.failed:
         for r in rows:
@@ -293,22 +309,100 @@ def calibrate_cmd(
 @_guard
 def inspect_cmd(
     file: Path = typer.Argument(..., help="One slice export (CSV, TXT or XLSX)."),
+    method: Optional[Path] = typer.Option(None, "--method", "-m", help="Method file (TOML): read with its "
+                                          "[import] options and show its volume range and limits."),
     sheet: Optional[str] = typer.Option(None, "--sheet", help="Workbook sheet (name or 0-based index)."),
 ) -> None:
-    """Show how a slice export is read: columns, units, points and metadata."""
-    from .io import read_chromatogram
+    """Show how a slice export is read: dialect, every column and its kind, what is used."""
+    from .errors import InputFormatError
+    from .io.describe import describe_export
 
-    sh = int(sheet) if sheet is not None and sheet.isdigit() else sheet
-    c = read_chromatogram(file, sheet=sh)
-    typer.echo(f"file: {c.path}")
-    typer.echo(f"x: {c.x_column!r} ({c.x_kind}, {c.x_unit}), {c.x[0]:g} to {c.x[-1]:g}")
-    header = f"header on line/row {c.header_row}" if c.header_row else "no header row"
-    typer.echo(f"signal: {c.signal_column!r}, {c.x.size} slices, {header}")
-    if c.sheet:
-        typer.echo(f"sheet: {c.sheet}")
-    for k, v in c.metadata.items():
-        typer.echo(f"  {k}: {v}")
+    m = None
+    options: dict = {}
+    if method is not None:
+        from .method import load_method
 
+        m = load_method(method)
+        options = m.import_options.as_kwargs()
+    if sheet is not None:
+        options["sheet"] = int(sheet) if sheet.isdigit() else sheet
+    d = describe_export(file, **options)
+    _print_description(d, m)
+    for w in d.warnings:
+        _err(f"warning: {w}")
+    if d.problem is not None:
+        raise InputFormatError(d.problem.removeprefix(f"{file}: ").removeprefix(f"{d.path}: "),
+                               path=file)
+
+
+def _print_description(d: ExportDescription, m: Method | None) -> None:
+    """The lines of ``gpctools inspect`` (see :class:`gpctools.io.describe.ExportDescription`)."""
+    typer.echo(f"file: {d.path}")
+    if d.file_kind == "workbook":
+        sheets = ", ".join(repr(s) for s in d.sheets)
+        typer.echo(f"kind: workbook, sheet {d.sheet!r}" if d.sheet else "kind: workbook")
+        typer.echo(f"sheets: {sheets}")
+    else:
+        typer.echo(f"kind: text, encoding {d.encoding}")
+        if d.separator is not None:
+            mark = "decimal comma (,)" if d.decimal == "," else "decimal point (.)"
+            sep = {",": "comma (,)", ";": "semicolon (;)"}.get(d.separator, d.separator)
+            typer.echo(f"separator: {sep}; decimal mark: {mark}")
+    word = "row" if d.file_kind == "workbook" else "line"
+    if d.columns or d.problem is None:
+        typer.echo(f"header: {word} {d.header_row}" if d.header_row else "header: none (columns numbered from 0)")
+    if d.units_row:
+        typer.echo(f"units: {word} {d.units_row} (merged into the names)")
+    if d.options:
+        typer.echo("import options: " + ", ".join(f"{k}={v!r}" for k, v in d.options.items()))
+    if d.columns:
+        typer.echo("columns:")
+        width = max(len(repr(c.header)) for c in d.columns)
+        kinds = [c.kind + ("" if c.numeric else " (not numeric)") for c in d.columns]
+        kw = max(len(k) for k in kinds)
+        for c, k in zip(d.columns, kinds):
+            use = {"x": "<- x", "signal": "<- signal"}.get(c.use, "")
+            typer.echo(f"  {c.index:>2}  {repr(c.header).ljust(width)}  {k.ljust(kw)}  {use}".rstrip())
+    x0, x1 = d.x_first, d.x_last
+    if x0 is not None and x1 is not None:
+        step = (x1 - x0) / (d.points - 1) if d.points > 1 else float("nan")
+        typer.echo(f"x: {d.x_column!r} ({d.x_kind}, {d.x_unit}), {x0:g} to {x1:g} "
+                   f"{d.x_unit}, {d.points} slices (mean step {step:.4g} {d.x_unit})")
+        typer.echo(f"signal: {d.signal_column!r}")
+        if m is not None:
+            _print_method_view(d, m, x0, x1)
+    if d.metadata:
+        typer.echo("metadata:")
+        for k, v in d.metadata.items():
+            typer.echo(f"  {k}: {v}")
+
+
+def _print_method_view(d: ExportDescription, m: Method, x0: float, x1: float) -> None:
+    """What the method makes of the export (x from x0 to x1): volumes, calibrated range, limits."""
+    rate = m.flow_rate
+    if d.x_kind == "time":
+        if rate is None:
+            typer.echo("volume: the method has no flow.rate to turn these times into volumes")
+            return
+        f = rate / 60.0 if d.x_unit == "s" else rate
+        v0, v1 = x0 * f, x1 * f
+        typer.echo(f"volume at {rate:g} mL/min: {v0:.4g} to {v1:.4g} mL")
+    else:
+        v0, v1 = x0, x1
+    cal = m.calibration
+    typer.echo(f"calibrated range: {cal.v_min:.4g} to {cal.v_max:.4g} mL "
+               f"({_fmt(float(cal.M(cal.v_max)))} to {_fmt(float(cal.M(cal.v_min)))} g/mol)")
+    lim = m.volume_limits()
+    if lim is None:
+        typer.echo("integration limits: automatic")
+    else:
+        given = (f" (from {_fmt(m.limits_M[0])} to {_fmt(m.limits_M[1])} g/mol)"
+                 if m.limits_M is not None else "")
+        inside = "" if v0 <= lim[0] and lim[1] <= v1 else "; not all inside the recorded volumes"
+        typer.echo(f"integration limits: {lim[0]:.4g} to {lim[1]:.4g} mL{given}{inside} "
+                   "(after the flow-marker correction)")
+    if m.exclusions:
+        typer.echo("excluded regions: " + ", ".join(f"{a:g} to {b:g} mL" for a, b in m.exclusions))
 
 
 def _numbers(text: Optional[str], count: tuple[int, ...], option: str) -> Optional[tuple[float, ...]]:

@@ -63,6 +63,13 @@ __all__ = [
     "OUTSIDE_CALIBRATION",
     "BASELINE_WINDOWS",
     "LIMITS",
+    "INTEGRATION_START",
+    "INTEGRATION_END",
+    "M_AT_INTEGRATION_START",
+    "M_AT_INTEGRATION_END",
+    "METHOD_FILE",
+    "METHOD_SHA256",
+    "OVERRIDES",
     "FLOW_MARKER",
     "FLOW_FACTOR",
     "MN_SHIFT_LOW_M",
@@ -89,7 +96,6 @@ __all__ = [
     "STANDARDS_LOCATED",
     "SEQUENCE_CALIBRATION",
     "SHEET_ROW",
-    "METHOD_USED",
 ]
 
 
@@ -205,6 +211,22 @@ OUTSIDE_CALIBRATION = _column("outside calibration [% mass]", "% mass",
 BASELINE_WINDOWS = _column("baseline windows [mL]", "mL",
                            "the two baseline windows used ('auto' when chosen automatically)")
 LIMITS = _column("limits [mL]", "mL", "integration limits used ('auto' when chosen automatically)")
+INTEGRATION_START = _column("integration start [mL]", "mL",
+                            "early (high-M) integration limit used, on the flow-corrected "
+                            "volume axis")
+INTEGRATION_END = _column("integration end [mL]", "mL",
+                          "late (low-M) integration limit used, on the flow-corrected volume axis")
+M_AT_INTEGRATION_START = _column("M at integration start [g/mol]", "g/mol",
+                                 "molar mass the calibration gives at the integration start")
+M_AT_INTEGRATION_END = _column("M at integration end [g/mol]", "g/mol",
+                               "molar mass the calibration gives at the integration end")
+METHOD_FILE = _column("method file", "",
+                      "method file used for the injection (batch-sheet cell, or the --method "
+                      "given for rows without one)")
+METHOD_SHA256 = _column("method SHA-256", "", "SHA-256 of the method file as read")
+OVERRIDES = _column("overrides", "",
+                    "method settings changed for this injection by batch-sheet columns "
+                    "(empty when none)")
 FLOW_MARKER = _column("flow marker [mL]", "mL", "observed flow-marker position of the injection")
 FLOW_FACTOR = _column("flow correction factor [-]", "-",
                       "volume correction V_ref/V_obs from the flow marker (1 without one)")
@@ -258,4 +280,3 @@ SEQUENCE_CALIBRATION = _column("calibration", "",
                                "which calibration processed the injection (the method's, or the "
                                "sequence's own standards)")
 SHEET_ROW = _column("sheet row [-]", "-", "row of the batch sheet the injection came from")
-METHOD_USED = _column("method used", "", "method file (and SHA-256) that processed the injection")

@@ -27,6 +27,7 @@ __all__ = [
     "RangeWarning",
     "SignalWarning",
     "EstimatorWarning",
+    "InputWarning",
 ]
 
 
@@ -137,3 +138,8 @@ class SignalWarning(GpcWarning):
 
 class EstimatorWarning(GpcWarning):
     """Disagreeing estimators, identifiability or fit-quality concerns in run-series fits."""
+
+
+class InputWarning(GpcWarning):
+    """Valid but surprising input: repeated sample ids in a batch sheet, a concentration
+    trace from a UV or evaporative light-scattering detector."""

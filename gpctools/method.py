@@ -31,6 +31,8 @@ Schema (all sections optional except ``[calibration]``)::
 
     [integration]
     limits = "auto"                   # or [low, high] [mL]
+    # limits_molar_mass = [1000, 1e6] # or the limits in molar mass [g/mol] (either order),
+    #                                   converted through the calibration (not with limits)
     exclude = [[23.2, 24.0]]          # excluded regions [mL]
     outside = "linear"                # "linear" | "exclude": slices outside the calibrated range
 
@@ -60,7 +62,7 @@ from __future__ import annotations
 import hashlib
 import math
 import sys
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Any
 
@@ -73,7 +75,7 @@ if sys.version_info >= (3, 11):
 else:  # pragma: no cover - exercised on 3.10 only
     import tomli as tomllib
 
-__all__ = ["Method", "ImportOptions", "load_method"]
+__all__ = ["Method", "MethodOverrides", "ImportOptions", "load_method"]
 
 Window = tuple[float, float]
 
@@ -84,7 +86,7 @@ _SCHEMA: dict[str, set[str] | None] = {
     "flow": {"rate"},
     "flow_marker": {"reference", "search"},
     "baseline": {"windows"},
-    "integration": {"limits", "exclude", "outside"},
+    "integration": {"limits", "limits_molar_mass", "exclude", "outside"},
     "calibration": {"order", "standard_polymer", "standards", "standard", "sheet"},
     "mark_houwink": {"sample_polymer", "K_standard", "a_standard", "K_sample", "a_sample", "source"},
     "thresholds": {"outside_calibration_pct", "standard_residual_pct", "limit_shift"},
@@ -124,7 +126,10 @@ class Method:
     windows : pair of windows or None
         Baseline windows [mL]; None = automatic.
     limits : (float, float) or None
-        Integration limits [mL]; None = automatic.
+        Integration limits [mL]; None = automatic (or given in molar mass).
+    limits_M : (float, float) or None
+        Integration limits in molar mass (low M, high M) [g/mol] (``integration.
+        limits_molar_mass``); converted to volumes by :meth:`volume_limits`.
     exclusions : tuple of windows
         Excluded regions [mL].
     outside : str
@@ -142,6 +147,7 @@ class Method:
     marker_search: Window | None = None
     windows: tuple[Window, Window] | None = None
     limits: Window | None = None
+    limits_M: Window | None = None
     exclusions: tuple[Window, ...] = ()
     outside: str = "linear"
     outside_warn_pct: float = 1.0
@@ -158,6 +164,63 @@ class Method:
         """Build a method from a parsed TOML mapping (paths relative to ``base_dir``)."""
         return _build(data, Path(base_dir), source)
 
+    def volume_limits(self) -> Window | None:
+        """The integration limits as volumes [mL] on the calibration's volume axis, or None.
+
+        Limits given in mL are returned as they are; limits given in molar mass
+        (``integration.limits_molar_mass``) are converted through the calibration,
+        V_lim = V(M_lim) (:meth:`~gpctools.calibration.Calibration.volume_at`, tangent
+        continuation outside the calibrated range; docs/science.md, section 1.6). The
+        volumes are those of the calibration, so they apply to a trace after its
+        flow-marker correction. None means automatic limits.
+
+        Raises
+        ------
+        MethodError
+            Key ``integration.limits_molar_mass``: the calibration cannot be inverted
+            at one of the limits.
+        """
+        if self.limits_M is None:
+            return self.limits
+        try:
+            v = self.calibration.volume_at(list(self.limits_M))
+        except CalibrationError as exc:
+            raise MethodError(exc.message, path=self.source,
+                              key="integration.limits_molar_mass") from None
+        lo, hi = sorted((float(v[0]), float(v[1])))
+        return lo, hi
+
+    def with_overrides(self, overrides: MethodOverrides) -> Method:
+        """This method with one injection's overrides applied (a new, derived Method).
+
+        Limits in mL replace any limits of the method (also limits in molar mass), and
+        limits in molar mass replace limits in mL; baseline windows replace the method's.
+        ``settings["overrides"]`` records what was changed; ``source`` and ``sha256``
+        stay those of the method file, so a result row names the file it started from.
+        """
+        if not overrides:
+            return self
+        changes: dict[str, Any] = {}
+        settings = dict(self.settings)
+        if overrides.limits is not None:
+            changes.update(limits=overrides.limits, limits_M=None)
+            settings["integration limits [mL]"] = list(overrides.limits)
+            settings.pop("integration limits [g/mol]", None)
+        elif overrides.limits_M is not None:
+            changes.update(limits=None, limits_M=overrides.limits_M)
+            settings["integration limits [mL]"] = "from molar mass"
+            settings["integration limits [g/mol]"] = list(overrides.limits_M)
+        if overrides.windows is not None:
+            changes["windows"] = overrides.windows
+            settings["baseline windows [mL]"] = [list(w) for w in overrides.windows]
+        settings["overrides"] = overrides.summary()
+        return replace(self, settings=settings, **changes)
+
+    @property
+    def label(self) -> str:
+        """How results name this method: the file it was read from (or its name)."""
+        return self.source if self.source is not None else (self.name or "(method without a file)")
+
     def summary(self) -> dict[str, Any]:
         """JSON-safe settings and calibration summary (for manifests and reports)."""
         return {
@@ -167,6 +230,78 @@ class Method:
             "settings": self.settings,
             "calibration": self.calibration.summary(),
         }
+
+
+def _num(x: float) -> str:
+    """A number as people write it (``1080000``, ``0.5``, ``1e-05``), never a numpy repr."""
+    return f"{float(x):.10g}"
+
+
+@dataclass(frozen=True)
+class MethodOverrides:
+    """Settings one injection changes in its method (batch-sheet columns).
+
+    Attributes
+    ----------
+    limits : (float, float) or None
+        Integration limits (start, end) [mL].
+    limits_M : (float, float) or None
+        Integration limits in molar mass (low M, high M) [g/mol]; not with ``limits``.
+    windows : pair of windows or None
+        Baseline windows ((a, b), (c, d)) [mL].
+
+    Examples
+    --------
+    >>> MethodOverrides(limits_M=(1000.0, 1e6)).describe()
+    'limits 1000-1000000 g/mol'
+    >>> bool(MethodOverrides())
+    False
+    """
+
+    limits: Window | None = None
+    limits_M: Window | None = None
+    windows: tuple[Window, Window] | None = None
+
+    def __post_init__(self) -> None:
+        if self.limits is not None and self.limits_M is not None:
+            raise MethodError("give the integration limits in mL or in g/mol, not both")
+        for label, pair, unit in (("limits", self.limits, "mL"), ("limits", self.limits_M, "g/mol")):
+            if pair is not None and not pair[0] < pair[1]:
+                raise MethodError(f"{label} {_num(pair[0])}-{_num(pair[1])} {unit}: the first must "
+                                  "be below the second")
+        if self.limits_M is not None and not self.limits_M[0] > 0:
+            raise MethodError(f"limits in molar mass must be positive, got {_num(self.limits_M[0])} g/mol")
+        if self.windows is not None:
+            (a, b), (c, d) = self.windows
+            if not (a < b <= c < d):
+                raise MethodError(f"baseline windows {_num(a)}-{_num(b)} and {_num(c)}-{_num(d)} mL: "
+                                  "each must start before it ends, the first before the second")
+
+    def __bool__(self) -> bool:
+        return self.limits is not None or self.limits_M is not None or self.windows is not None
+
+    def describe(self) -> str:
+        """One line for the results table (``""`` when nothing is overridden)."""
+        parts = []
+        if self.limits is not None:
+            parts.append(f"limits {_num(self.limits[0])}-{_num(self.limits[1])} mL")
+        if self.limits_M is not None:
+            parts.append(f"limits {_num(self.limits_M[0])}-{_num(self.limits_M[1])} g/mol")
+        if self.windows is not None:
+            (a, b), (c, d) = self.windows
+            parts.append(f"baseline windows {_num(a)}-{_num(b)}, {_num(c)}-{_num(d)} mL")
+        return "; ".join(parts)
+
+    def summary(self) -> dict[str, Any]:
+        """JSON-safe description (only what is overridden)."""
+        out: dict[str, Any] = {}
+        if self.limits is not None:
+            out["integration limits [mL]"] = list(self.limits)
+        if self.limits_M is not None:
+            out["integration limits [g/mol]"] = list(self.limits_M)
+        if self.windows is not None:
+            out["baseline windows [mL]"] = [list(w) for w in self.windows]
+        return out
 
 
 def load_method(path: str | Path) -> Method:
@@ -265,6 +400,7 @@ def _build(data: dict[str, Any], base: Path, source: str | None) -> Method:
     marker_ref, marker_search = _flow_marker(data, source, settings)
     windows = _baseline(data, source, settings)
     limits, exclusions, outside = _integration(data, source, settings)
+    limits_M = _integration_molar_mass(data, source, settings)
     out_pct, res_pct, shift = _thresholds(data, source, settings)
 
     sample_polymer = data.get("sample_polymer")
@@ -284,6 +420,7 @@ def _build(data: dict[str, Any], base: Path, source: str | None) -> Method:
         marker_search=marker_search,
         windows=windows,
         limits=limits,
+        limits_M=limits_M,
         exclusions=exclusions,
         outside=outside,
         outside_warn_pct=out_pct,
@@ -395,6 +532,35 @@ def _integration(
     return limits, exclusions, outside
 
 
+def _integration_molar_mass(data: dict[str, Any], source: str | None, settings: dict[str, Any]) -> Window | None:
+    """``integration.limits_molar_mass``: integration limits in molar mass [g/mol], or None.
+
+    Two positive numbers in either order (``[1000, 1e6]``); stored as (low M, high M).
+    Not together with ``integration.limits`` in mL. Converted to volumes through the
+    calibration by :meth:`Method.volume_limits`.
+    """
+    integ = data.get("integration", {})
+    key = "integration.limits_molar_mass"
+    value = integ.get("limits_molar_mass") if isinstance(integ, dict) else None
+    if value is None or _auto(value):
+        return None
+    if not isinstance(value, (list, tuple)) or len(value) != 2:
+        raise _err(f"must be a pair [low, high] of molar masses in g/mol, e.g. [1000, 1000000]; "
+                   f"got {value!r}", key, source)
+    a = _number(value[0], key, source, positive=True)
+    b = _number(value[1], key, source, positive=True)
+    if a == b:
+        raise _err(f"the two limits are equal ({_num(a)} g/mol); give a low and a high molar mass",
+                   key, source)
+    if "limits" in integ and not _auto(integ["limits"]):
+        raise _err("give the integration limits either in mL (integration.limits) or in g/mol "
+                   "(integration.limits_molar_mass), not both", key, source)
+    lo, hi = min(a, b), max(a, b)
+    settings["integration limits [mL]"] = "from molar mass"
+    settings["integration limits [g/mol]"] = [lo, hi]
+    return lo, hi
+
+
 def _thresholds(
     data: dict[str, Any], source: str | None, settings: dict[str, Any]
 ) -> tuple[float, float, float]:
@@ -408,8 +574,29 @@ def _thresholds(
     return out_pct, res_pct, shift
 
 
-def _standards_from_rows(rows: list[dict[str, Any]], key: str, source: str | None, flow_rate: float | None):
-    names, mps, vols = [], [], []
+@dataclass(frozen=True)
+class _Standards:
+    """Standards as read, with where each came from (for messages).
+
+    ``where`` holds one label per standard (``row 4`` of the file, or the method key
+    ``calibration.standard[2]``); ``path`` is the file that holds them (the standards
+    table, or the method file for inline standards) and ``key`` the method key naming
+    them when they are inline.
+    """
+
+    names: list[str]
+    Mp: list[float]
+    volume: list[float]
+    where: list[str]
+    rows: list[int | None]
+    path: str | None
+    key: str | None
+
+
+def _standards_from_rows(
+    rows: list[dict[str, Any]], key: str, source: str | None, flow_rate: float | None
+) -> _Standards:
+    names, mps, vols, where = [], [], [], []
     for i, row in enumerate(rows, start=1):
         k = f"{key}[{i}]"
         if not isinstance(row, dict):
@@ -431,12 +618,13 @@ def _standards_from_rows(rows: list[dict[str, Any]], key: str, source: str | Non
         names.append(str(row.get("name", f"standard {i}")))
         mps.append(mp)
         vols.append(v)
-    return names, mps, vols
+        where.append(k)
+    return _Standards(names, mps, vols, where, [None] * len(names), source, key)
 
 
 def _standards_from_file(
     path: Path, sheet: str | int | None, source: str | None, flow_rate: float | None
-) -> tuple[list[str], list[float], list[float]]:
+) -> _Standards:
     """Names, Mp [g/mol] and peak volumes [mL] from a standards table (CSV or XLSX).
 
     The table is read with :data:`gpctools.sheets.STANDARDS` (the one cell parser: a decimal
@@ -462,6 +650,7 @@ def _standards_from_file(
     names: list[str] = []
     mps: list[float] = []
     vols: list[float] = []
+    rows: list[int | None] = []
     for row in table.rows:
         x = row[x_field]
         if x is None:
@@ -469,7 +658,60 @@ def _standards_from_file(
         names.append(row.get("name") or f"standard {len(names) + 1}")
         mps.append(row["Mp"])
         vols.append(x if use_volume else x * flow_rate)
-    return names, mps, vols
+        rows.append(row.row)
+    where = [f"row {r}" for r in rows]
+    return _Standards(names, mps, vols, where, rows, table.path or str(path), None)
+
+
+def _check_standards(std: _Standards, order: int | str, source: str | None) -> None:
+    """Refuse standards no calibration should be fitted to, naming the rows.
+
+    Checks that span the rows of a standards table (issue 9): two standards at one peak
+    volume; Mp that does not fall as the volume rises (larger molecules elute first in
+    SEC, docs/science.md, section 2.1, so a rise points to swapped values or a wrong
+    row); too few standards for the order. Messages name the standards table (or the
+    method keys of inline standards) and show plain numbers.
+    """
+    n = len(std.Mp)
+    here = "the standards table" if std.key is None else "the method"
+    where_err: dict[str, Any] = {"path": std.path}
+    if std.key is not None:
+        where_err["key"] = std.key
+    order_key = f"calibration.order in {source}" if source and std.key is None else "calibration.order"
+    if isinstance(order, str):
+        need = 5  # select_order: order 1 needs order + 4 standards for AICc
+        what = ("choosing the order automatically (calibration.order = 'auto') needs at least "
+                "5 standards")
+        fix = f"add standards or set {order_key} to 1, 2 or 3"
+    else:
+        need = max(2, order + 1)
+        what = (f"an order-{order} calibration needs at least {need} standards (better "
+                f"{order + 2} or more)" if order > 1 else "a calibration needs at least 2 standards")
+        fix = "add standards" + (f" or lower {order_key}" if order > 1 else "")
+    if n < need:
+        raise MethodError(f"{here} holds {n} standard{'s' if n != 1 else ''}; {what}: {fix}",
+                          **where_err)
+
+    def label(i: int) -> str:
+        return f"{std.names[i]!r} ({std.where[i]}: {_num(std.volume[i])} mL, {_num(std.Mp[i])} g/mol)"
+
+    idx = sorted(range(n), key=lambda i: (std.volume[i], std.rows[i] or 0))
+    same = [(a, b) for a, b in zip(idx, idx[1:]) if std.volume[a] == std.volume[b]]
+    if same:
+        a, b = same[0]
+        more = f" (and {len(same) - 1} more pair(s))" if len(same) > 1 else ""
+        raise MethodError(
+            f"standards {std.names[a]!r} ({std.where[a]}) and {std.names[b]!r} ({std.where[b]}) "
+            f"have the same peak volume {_num(std.volume[a])} mL{more}; remove one or correct it",
+            row=std.rows[b], **where_err)
+    rising = [(a, b) for a, b in zip(idx, idx[1:]) if not std.Mp[b] < std.Mp[a]]
+    if rising:
+        listed = "; ".join(f"{label(a)} elutes before {label(b)}" for a, b in rising[:3])
+        more = f"; and {len(rising) - 3} more" if len(rising) > 3 else ""
+        raise MethodError(
+            f"Mp must fall as the peak volume rises (larger molecules elute first), but {listed}"
+            f"{more}: check for swapped Mp or volume values, or a standard in the wrong row",
+            row=std.rows[rising[0][1]], **where_err)
 
 
 def _build_calibration(data, base, source, flow_rate, res_pct, sample_polymer, settings) -> Calibration:
@@ -489,16 +731,18 @@ def _build_calibration(data, base, source, flow_rate, res_pct, sample_polymer, s
         f = cal["standards"]
         if not isinstance(f, str):
             raise _err("must be a file name (CSV or XLSX) relative to the method file", "calibration.standards", source)
-        names, mps, vols = _standards_from_file(base / f, cal.get("sheet"), source, flow_rate)
+        std = _standards_from_file(base / f, cal.get("sheet"), source, flow_rate)
         settings["standards file"] = f
     elif "standard" in cal:
         rows = cal["standard"]
         if not isinstance(rows, list):
             raise _err("use [[calibration.standard]] tables", "calibration.standard", source)
-        names, mps, vols = _standards_from_rows(rows, "calibration.standard", source, flow_rate)
+        std = _standards_from_rows(rows, "calibration.standard", source, flow_rate)
     else:
         raise _err("no standards: give calibration.standards = 'file.csv' or [[calibration.standard]] tables",
                    "calibration", source)
+    _check_standards(std, order if isinstance(order, int) else "auto", source)
+    names, mps, vols = std.names, std.Mp, std.volume
     mh = _section(data, "mark_houwink", source)
     try:
         calibration = fit_calibration(

@@ -110,7 +110,53 @@ def _as_trace(volume: Any, signal: Any) -> tuple[np.ndarray, np.ndarray, np.ndar
             f"slice {i + 1} (volume {float(V[i]):g} mL, signal {float(h[i]):g}) is not a finite number; "
             f"{int(bad.sum())} such slice(s) in all: remove or fill them"
         )
+    _refuse_huge(V, h)
     return V, h, np.argsort(V, kind="stable")
+
+
+#: Largest magnitude of a volume or signal value accepted [mL] / [signal units]. The
+#: sums behind the noise level, the baseline and the averages square the signal and
+#: multiply it by M^3 (up to about 1e30 [g^3/mol^3]); float64 ends at 1.8e308, so values
+#: up to 1e100 leave more than 1e70 of room for sums over any number of slices
+#: (derived). No detector or column produces such numbers: larger ones are a fault.
+HUGE_VALUE = 1e100
+
+
+def _refuse_huge(V: np.ndarray, h: np.ndarray) -> None:
+    """Refuse values so large that the sums over slices would overflow (become inf)."""
+    for name, arr, unit in (("signal", h, ""), ("volume", V, " mL")):
+        big = np.abs(arr) > HUGE_VALUE
+        if big.any():
+            i = int(np.flatnonzero(big)[0])
+            raise DataError(
+                f"slice {i + 1}: {name} {float(arr[i]):.3g}{unit} is too large to compute with "
+                f"({int(big.sum())} slice(s) above {HUGE_VALUE:.0e}): the sums over slices would "
+                "overflow; check the column chosen (import.x_column / import.signal_column in "
+                "the method file) and the decimal mark, or export the data in smaller units"
+            )
+
+
+def _refuse_flat(h: np.ndarray) -> None:
+    """Refuse a raw signal that is zero, or one value, in every slice.
+
+    Such a trace has no peak at all (an empty or disconnected detector channel, or the
+    wrong column); saying so is more useful than "no peak stands out of the noise".
+    """
+    if h.size == 0:
+        return
+    if not h.any():
+        raise DataError(
+            f"the signal is 0 in all {h.size} slices, so there is no positive peak: the "
+            "detector channel is empty or disconnected, or the wrong column was read - check "
+            "the export and the signal column (import.signal_column in the method file)"
+        )
+    if float(h.max()) == float(h.min()):
+        raise DataError(
+            f"the signal has the same value ({float(h[0]):g}) in all {h.size} slices, so "
+            "there is no positive peak: the detector channel is flat or saturated, or the "
+            "wrong column was read - check the export and the signal column "
+            "(import.signal_column in the method file)"
+        )
 
 
 def _window_mask(volume: np.ndarray, windows: Sequence[Window]) -> np.ndarray:
@@ -408,6 +454,7 @@ def correct_signal(
     CorrectedSignal
     """
     V_in, h_in, order = _as_trace(volume, signal)
+    _refuse_flat(h_in)
     # Work in order of increasing volume; results are returned in the caller's slice order.
     V, h = V_in[order], h_in[order]
     exclusions = tuple((float(a), float(b)) for a, b in exclusions)

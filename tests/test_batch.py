@@ -14,7 +14,7 @@ import pytest
 from gpctools import simulate
 from gpctools.batch import process_injection, process_trace, read_batch_sheet, run_batch
 from gpctools.demo import write_chromatogram, write_sample_runs
-from gpctools.errors import InputFormatError
+from gpctools.errors import GpcWarning, InputFormatError
 from gpctools.method import load_method
 from gpctools.report import DistributionWriter, write_batch
 
@@ -125,8 +125,11 @@ def test_batch_sheet_needs_sample_id_and_file(tmp_path):
 
 
 def test_batch_sheet_template_reads(tmp_path):
+    from gpctools.errors import InputWarning
+
     for name in ("batch.csv", "batch.xlsx"):
-        entries = read_batch_sheet(ROOT / "templates" / name)
+        with pytest.warns(InputWarning, match="'GRADE-A-01' \\(rows 2, 3\\)"):  # replicates, by design
+            entries = read_batch_sheet(ROOT / "templates" / name)
         assert [e.sample_id for e in entries] == ["GRADE-A-01", "GRADE-A-01", "CHECK-01"]
         assert entries[2].role == "check_standard"
         assert entries[2].metadata["assigned Mw [g/mol]"] in (180000, 180000.0, "180000")
@@ -178,7 +181,8 @@ def test_regression_replicate_distributions_each_in_written_paths(demo_dir, tmp_
     shutil.copytree(demo_dir, d)
     sheet = d / "batch.csv"
     sheet.write_text(sheet.read_text() + "LC110-A1,exports/LC110-A1.csv,sample,,,,,\n")
-    res = run_batch(sheet, load_method(d / "method.toml"))
+    with pytest.warns(GpcWarning, match="replicate"):
+        res = run_batch(sheet, load_method(d / "method.toml"))
     ids = [e.sample_id for e, r in zip(res.entries, res.injections) if r is not None]
     assert len(ids) == len(set(ids)) + 1  # one replicate injection added above
     paths = write_batch(res, tmp_path / "o")
@@ -204,3 +208,213 @@ def test_on_result_streams_each_processed_injection_also_from_workers(demo_dir, 
     streamed = {p.name: p for p in (tmp_path / "stream").glob("*.csv")}
     assert streamed.keys() == written.keys() and len(written) == int(ok.sum())
     assert all(streamed[n].read_bytes() == written[n].read_bytes() for n in written)
+
+
+# ------------------------------------------------- methods per row and overrides (issue 10)
+
+
+def _copy_runs(demo_dir: Path, tmp_path: Path) -> Path:
+    d = tmp_path / "runs"
+    shutil.copytree(demo_dir, d)
+    return d
+
+
+def test_limits_in_molar_mass_equal_the_same_limits_in_mL(demo_dir, tmp_path):
+    # V(M(V)) = V on the calibration curve [derived, docs/science.md, section 1.6], so
+    # limits given as M(V1), M(V2) integrate exactly the slices that V1, V2 do.
+    from dataclasses import replace
+
+    m = load_method(demo_dir / "method.toml")
+    V1, V2 = 13.1234, 20.4321
+    M_hi, M_lo = (float(x) for x in m.calibration.M([V1, V2]))
+    in_mL = process_injection(demo_dir / "exports" / "LC110-A1.csv", replace(m, limits=(V1, V2)))
+    in_M = process_injection(demo_dir / "exports" / "LC110-A1.csv", replace(m, limits_M=(M_lo, M_hi)))
+    assert in_M.corrected.limits == (pytest.approx(V1, abs=1e-9), pytest.approx(V2, abs=1e-9))
+    assert np.array_equal(in_M.corrected.mask, in_mL.corrected.mask)  # the same slices
+    for a in ("Mn", "Mw", "Mz", "Mz1", "Mp"):
+        # same slices, same sums: equal up to float rounding
+        assert getattr(in_M.distribution, a) == pytest.approx(getattr(in_mL.distribution, a), rel=1e-12), a
+
+
+def _override_sheet(d: Path, m) -> Path:
+    """A ';' sheet with decimal commas: mL limits, the same limits in kg/mol, windows, faults."""
+    V1, V2 = 13.1234, 20.4321
+    M_hi, M_lo = (float(x) for x in m.calibration.M([V1, V2]))
+
+    def dc(x: float) -> str:
+        return repr(x).replace(".", ",")
+
+    head = ("sample_id;file;limit start [mL];limit end [mL];limit low M [kg/mol];limit high M [kg/mol];"
+            "baseline 1 start [mL];baseline 1 end [mL];baseline 2 start [mL];baseline 2 end [mL]\n")
+    f = "exports/LC110-A1.csv"
+    rows = [
+        f"ML;{f};{dc(V1)};{dc(V2)};;;;;;",
+        f"GMOL;{f};;;{dc(M_lo / 1000)};{dc(M_hi / 1000)};;;;",
+        f"WIN;{f};;;;;10,9;11,8;23,2;24,1",
+        f"PLAIN;{f};;;;;;;;",
+        f"HALF;{f};13,5;;;;;;;",
+        f"BOTH;{f};13,5;20,0;1;1000;;;;",
+        f"BACKWARDS;{f};20,0;13,5;;;;;;",
+    ]
+    sheet = d / "overrides.csv"
+    sheet.write_text(head + "\n".join(rows) + "\n", encoding="utf-8")
+    return sheet
+
+
+def test_overrides_per_row(demo_dir, tmp_path):
+    from dataclasses import replace
+
+    d = _copy_runs(demo_dir, tmp_path)
+    m = load_method(d / "method.toml")
+    res = run_batch(_override_sheet(d, m), m)
+    t = res.table.set_index("sample_id")
+    # limits in mL and the same limits in kg/mol (decimal commas): the same numbers
+    for col in ("Mn [g/mol]", "Mw [g/mol]", "Mz [g/mol]", "integration start [mL]",
+                "integration end [mL]", "M at integration start [g/mol]"):
+        assert t.loc["GMOL", col] == pytest.approx(t.loc["ML", col], rel=1e-9), col  # float rounding
+    assert t.loc["ML", "integration start [mL]"] == pytest.approx(13.1234, abs=1e-12)
+    assert t.loc["ML", "overrides"] == "limits 13.1234-20.4321 mL"
+    assert t.loc["GMOL", "overrides"].startswith("limits ") and t.loc["GMOL", "overrides"].endswith(" g/mol")
+    assert t.loc["PLAIN", "overrides"] == "" and t.loc["PLAIN", "limits [mL]"].endswith("(auto)")
+    # baseline windows of one row: the same as a method with those windows
+    direct = process_injection(d / "exports" / "LC110-A1.csv",
+                               replace(m, windows=((10.9, 11.8), (23.2, 24.1))), sample_id="WIN")
+    assert t.loc["WIN", "Mn [g/mol]"] == direct.distribution.Mn  # same computation
+    assert t.loc["WIN", "baseline windows [mL]"] == "10.900-11.800; 23.200-24.100"
+    assert t.loc["WIN", "overrides"] == "baseline windows 10.9-11.8, 23.2-24.1 mL"
+    # faults of one row become error rows naming the file, row and column; the others run
+    assert res.failed == 3
+    half = t.loc["HALF", "error"]
+    assert "overrides.csv, row 6, column 'limit end [mL]'" in half and "is empty" in half
+    assert "in mL" in t.loc["BOTH", "error"] and "not both" in t.loc["BOTH", "error"]
+    assert "row 8, column 'limit start [mL]'" in t.loc["BACKWARDS", "error"]
+    assert "first must be below" in t.loc["BACKWARDS", "error"]
+    # every row records its method and hash (the SHA-256 of the file, computed here)
+    sha = hashlib.sha256((d / "method.toml").read_bytes()).hexdigest()
+    assert set(t["method SHA-256"]) == {sha}
+    assert set(t["method file"]) == {str(d / "method.toml")}
+
+
+def _second_method(d: Path) -> Path:
+    """A second method: the demo method with limits in molar mass and a PMMA conversion."""
+    text = (d / "method.toml").read_text()
+    text = text.replace('limits = "auto"', "limits_molar_mass = [2000, 2000000]")
+    text = text.replace('[thresholds]', '[mark_houwink]\nsample_polymer = "PMMA"\nK_standard = 1.14e-4\n'
+                        'a_standard = 0.716\nK_sample = 9.44e-5\na_sample = 0.719\n\n[thresholds]')
+    (d / "methods").mkdir()
+    shutil.copy(d / "standards.csv", d / "methods" / "standards.csv")
+    p = d / "methods" / "pmma.toml"
+    p.write_text(text)
+    return p
+
+
+def test_two_methods_in_one_batch(demo_dir, tmp_path, monkeypatch):
+    import gpctools.method
+
+    d = _copy_runs(demo_dir, tmp_path)
+    second = _second_method(d)
+    rows = (d / "batch.csv").read_text().splitlines()
+    header = rows[0] + ",method file"
+    body = [r + (",methods/pmma.toml" if i % 2 else ",method.toml") for i, r in enumerate(rows[1:])]
+    (d / "mixed.csv").write_text("\n".join([header, *body]) + "\n")
+    calls: list[Path] = []
+    real = gpctools.method.load_method
+    monkeypatch.setattr(gpctools.method, "load_method", lambda p: calls.append(Path(p)) or real(p))
+    res = run_batch(d / "mixed.csv")  # no default method: every row names one
+    assert len(calls) == 2  # each distinct method file loaded once for 8 rows
+    assert res.failed == 0 and set(res.methods) == {"method.toml", "methods/pmma.toml"}
+    # each row equals the same injection run with its own method alone
+    alone = {
+        "method.toml": run_batch(d / "batch.csv", real(d / "method.toml")).table.set_index("sample_id"),
+        "methods/pmma.toml": run_batch(d / "batch.csv", real(second)).table.set_index("sample_id"),
+    }
+    for _, r in res.table.iterrows():
+        ref = alone[r["method file"]].loc[r["sample_id"]]
+        for col in ("Mn [g/mol]", "Mw [g/mol]", "integration start [mL]", "M at integration end [g/mol]"):
+            assert r[col] == ref[col], (r["sample_id"], col)  # identical computation
+        sha = hashlib.sha256((d / r["method file"]).read_bytes()).hexdigest()
+        assert r["method SHA-256"] == sha
+    pmma = res.table[res.table["method file"] == "methods/pmma.toml"]
+    # limits of 2000 and 2e6 g/mol: the M columns give them back (PMMA scale, inverse of M(V))
+    assert pmma["M at integration start [g/mol]"].to_numpy() == pytest.approx(2e6, rel=1e-9)
+    assert pmma["M at integration end [g/mol]"].to_numpy() == pytest.approx(2000, rel=1e-9)
+    assert (pmma["molar-mass scale"].str.contains("PMMA")).all()
+    # the same in worker processes
+    par = run_batch(d / "mixed.csv", workers=2).table
+    pd.testing.assert_frame_equal(par, res.table)
+    # the manifest lists every method used with its hash (the audit trail)
+    write_batch(res, tmp_path / "o")
+    listed = json.loads((tmp_path / "o" / "manifest.json").read_text())["methods"]
+    assert {(x["method file"], x["method SHA-256"]) for x in listed} == {
+        (k, hashlib.sha256((d / k).read_bytes()).hexdigest()) for k in ("method.toml", "methods/pmma.toml")}
+
+
+def test_batch_without_method_names_the_rows_that_lack_one(demo_dir, tmp_path):
+    d = _copy_runs(demo_dir, tmp_path)
+    rows = (d / "batch.csv").read_text().splitlines()
+    body = [r + (",method.toml" if i != 2 else ",") for i, r in enumerate(rows[1:])]
+    (d / "mixed.csv").write_text("\n".join([rows[0] + ",method file", *body]) + "\n")
+    with pytest.raises(InputFormatError, match=r"no method for row\(s\) 4") as e:
+        run_batch(d / "mixed.csv")
+    assert e.value.path.endswith("mixed.csv") and e.value.column == "method file"
+    # a 'method' column is metadata: the message says how to name it
+    (d / "meta.csv").write_text((d / "mixed.csv").read_text().replace(",method file", ",method"))
+    with pytest.raises(InputFormatError, match="name it 'method file'"):
+        run_batch(d / "meta.csv")
+    # with a default method the blank row uses it, and says so
+    res = run_batch(d / "mixed.csv", load_method(d / "method.toml"))
+    assert res.failed == 0
+    assert res.table.loc[2, "method file"] == str(d / "method.toml")
+
+
+def test_a_bad_method_file_fails_only_its_rows(demo_dir, tmp_path):
+    d = _copy_runs(demo_dir, tmp_path)
+    (d / "bad.toml").write_text("[calibration]\norder = 9\n")
+    rows = (d / "batch.csv").read_text().splitlines()
+    body = [r + (",bad.toml" if i == 0 else ",method.toml") for i, r in enumerate(rows[1:])]
+    (d / "mixed.csv").write_text("\n".join([rows[0] + ",method file", *body]) + "\n")
+    res = run_batch(d / "mixed.csv")
+    assert res.failed == 1
+    err = res.table.loc[0, "error"]
+    assert "'bad.toml'" in err and "row 2" in err and "calibration.order" in err
+    assert res.table.loc[0, "method file"] == "bad.toml"
+
+
+def test_repeated_sample_ids_warn_as_replicates(demo_dir, tmp_path):
+    from gpctools.errors import InputWarning
+
+    d = _copy_runs(demo_dir, tmp_path)
+    sheet = d / "batch.csv"
+    sheet.write_text(sheet.read_text() + "LC110-A1,exports/LC110-A1.csv,sample,,,,,\n"
+                     "LC180-B1,exports/LC180-B1.csv,sample,,,,,\n")
+    with pytest.warns(InputWarning, match="treated as replicate") as caught:
+        res = run_batch(sheet, load_method(d / "method.toml"))
+    msg = str(caught[0].message)
+    assert "'LC110-A1' (rows 2, 10)" in msg and "'LC180-B1' (rows 4, 11)" in msg
+    assert res.warnings == (msg,)
+    # unique ids: no warning
+    import warnings
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", InputWarning)
+        read_batch_sheet(demo_dir / "batch.csv")
+
+
+@pytest.mark.parametrize("header, says", [("UV 254 nm [mAU]", "is a UV detector"),
+                                          ("ELSD signal [mV]", "evaporative light-scattering")])
+def test_uv_or_elsd_concentration_trace_warns(tmp_path, header, says):
+    from dataclasses import replace
+
+    cal = simulate.default_calibration()
+    V, h = simulate.chromatogram(simulate.schulz_zimm(80_000, 2.0), cal, noise=0.02, seed=3)
+    write_chromatogram(tmp_path / "uv.csv", V, h, signal_header=header)
+    write_chromatogram(tmp_path / "ri.csv", V, h)
+    shutil.copy(ROOT / "templates" / "standards.csv", tmp_path / "standards.csv")
+    (tmp_path / "method.toml").write_text((ROOT / "templates" / "method.toml").read_text())
+    m = replace(load_method(tmp_path / "method.toml"), marker_search=None, marker_reference=None)
+    r = process_injection(tmp_path / "uv.csv", m)  # listed with the injection's warnings
+    assert any(says in w for w in r.warnings)
+    assert "mass concentration" in r.row()["warnings"]
+    ri = process_injection(tmp_path / "ri.csv", m)  # an RI trace: no such warning
+    assert not any("mass concentration" in w for w in ri.warnings)
+    assert r.distribution.Mn == ri.distribution.Mn  # the same numbers: only a warning

@@ -298,7 +298,8 @@ def test_converted_calibration_check_values(M_ps: float, M_pmma: float) -> None:
     conv = cal.converted(*PS, *PMMA, sample_polymer="PMMA")
     # rounded check values ±0.5 g/mol, plus 1e-10 relative from the fitted line
     assert float(conv.M(V)) == pytest.approx(M_pmma, abs=0.5 + 1e-10 * M_pmma)
-    conv_mL = cal.converted(PS[0] * 100, PS[1], PMMA[0] * 100, PMMA[1], sample_polymer="PMMA")
+    with pytest.warns(CalibrationWarning, match="plausible range"):  # both K in mL/g (issue 10)
+        conv_mL = cal.converted(PS[0] * 100, PS[1], PMMA[0] * 100, PMMA[1], sample_polymer="PMMA")
     assert float(conv_mL.M(V)) == pytest.approx(float(conv.M(V)), rel=1e-12)  # same K ratio
     # the Jacobian is scaled by (1 + a_s)/(1 + a_x) [derived]
     assert float(conv.dlogM_dV(V)) == pytest.approx(-B * (1 + PS[1]) / (1 + PMMA[1]), rel=1e-10)
@@ -400,3 +401,78 @@ def test_no_degrees_of_freedom_gives_nan_standard_errors():
     with pytest.warns(CalibrationWarning):
         cal = fit_calibration([12.0, 18.0], [1e6, 1e4], order=1)
     assert all(math.isnan(s) for s in cal.coefficient_stderr)
+
+
+# ============================================================================ inverse V(M)
+
+
+def test_volume_at_inverts_a_line_in_closed_form() -> None:
+    # log M = A - B V exactly (A = 10, B = 0.4): V = (A - log10 M) / B [derived]; outside
+    # the standards the tangent is the same line, so the closed form holds everywhere.
+    A, B = 10.0, 0.4
+    V_std = np.linspace(11.0, 21.0, 6)
+    cal = _no_warnings_fit(V_std, 10.0 ** (A - B * V_std), order=1)
+    M = np.array([1e2, 1e3, 1e5, 1e6, 1e9])  # below, inside and above 1e1.6-1e5.6
+    expected = (A - np.log10(M)) / B
+    # float rounding of a fitted line and of log10 only
+    np.testing.assert_allclose(cal.volume_at(M), expected, rtol=0, atol=1e-9)
+    assert cal.volume_at(1e5).shape == ()  # a scalar in, a 0-d array out (like M(V))
+
+
+def test_volume_at_round_trips_the_cubic_inside_and_outside() -> None:
+    # V -> M(V) -> volume_at must give V back on the whole curve: polynomial root inside
+    # the standards' range, tangent continuation outside it [derived: the same curve].
+    cal = default_calibration()
+    V = np.concatenate([np.linspace(cal.v_min - 3.0, cal.v_min, 7), np.linspace(cal.v_min, cal.v_max, 41),
+                        np.linspace(cal.v_max, cal.v_max + 3.0, 7)])
+    # 1e-9 mL: polynomial roots in double precision on a well-scaled variable
+    np.testing.assert_allclose(cal.volume_at(cal.M(V)), V, rtol=0, atol=1e-9)
+
+
+def test_volume_at_after_universal_conversion() -> None:
+    # PMMA masses through the converted curve land where PS masses of equal hydrodynamic
+    # volume sit: V(M_PMMA) == V_PS(M_PS) for M_PMMA = universal_log_M(M_PS) [derived].
+    cal = default_calibration()
+    conv = cal.converted(*PS, *PMMA, sample_polymer="PMMA")
+    M_ps = np.array([3e3, 1e5, 2e6])
+    np.testing.assert_allclose(conv.volume_at(universal_log_M(M_ps, *PS, *PMMA)), cal.volume_at(M_ps),
+                               rtol=0, atol=1e-9)  # same root, float rounding only
+
+
+def test_volume_at_refuses_an_ambiguous_curve_and_bad_masses() -> None:
+    # The exact quadratic of test_warn_non_monotonic_slope_inside_range turns up near its
+    # high-volume end: some M occur at two volumes there, and the inverse says so.
+    V = np.linspace(11.0, 21.0, 10)
+    t = (V - 16.0) / 5.0
+    y = 5.0 - 1.5 * t + 0.9 * t**2
+    with pytest.warns(CalibrationWarning):
+        cal = fit_calibration(V, 10.0**y, order=2)
+    y_min = 5.0 - 1.5**2 / (4 * 0.9)  # vertex of the parabola, t = 0.833 [derived]
+    with pytest.raises(CalibrationError, match="several volumes"):
+        cal.volume_at(10 ** (y_min + 0.01))
+    for bad in (0.0, -5.0, float("nan")):
+        with pytest.raises(CalibrationError, match="positive number in g/mol"):
+            cal.volume_at(bad)
+
+
+# ============================================================================ Mark-Houwink K
+
+
+def test_mark_houwink_K_checks() -> None:
+    from gpctools.calibration import K_PLAUSIBLE_DL_G, mark_houwink_notes
+
+    # bundled THF pairs in dL/g pass (gpctools/data/mark_houwink.csv)
+    assert mark_houwink_notes(1.14e-4, 9.44e-5) == [] and mark_houwink_notes(1.14e-4, 7.56e-5) == []
+    lo, hi = K_PLAUSIBLE_DL_G
+    assert lo < 7.56e-5 and 1.22e-4 < hi  # every bundled K inside the span
+    assert 1.14e-4 * 100 > hi  # polystyrene's K in mL/g falls outside (1 dL/g = 100 mL/g)
+    mixed = mark_houwink_notes(1.14e-4, 9.44e-3)
+    assert len(mixed) == 2 and "mL/g" in mixed[1] and "K_sample" in mixed[0]
+    # a K that is in range but 100 times the other one: the ratio alone catches it
+    ratio_only = mark_houwink_notes(3e-5, 3e-3)
+    assert len(ratio_only) == 1 and "factor 100" in ratio_only[0]
+    cal = default_calibration()
+    with pytest.warns(CalibrationWarning, match="mL/g"):
+        conv = cal.converted(1.14e-4, 0.716, 9.44e-3, 0.719)
+    assert len(conv.warnings) == len(cal.warnings) + 2
+    assert any("mL/g" in w for w in conv.summary()["warnings"])

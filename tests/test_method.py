@@ -169,3 +169,199 @@ def test_regression_implausible_flow_rate_is_refused(tmp_path):
     with pytest.raises(MethodError, match="plausible") as e:
         load_method(p)
     assert e.value.key == "flow.rate"
+
+
+# ------------------------------------------------------- limits in molar mass (issue 10)
+
+
+def test_limits_in_molar_mass_convert_through_the_calibration(tmp_path):
+    # The inline standards lie exactly on log M = 6 - (V - 12)/3, so an order-1 fit is
+    # that line and V(M) = 12 + 3 (6 - log10 M) [derived, closed form]: 1e6 g/mol at 12 mL,
+    # 1e3 g/mol at 21 mL. Either order of the pair is accepted.
+    for pair in ("[1000, 1000000]", "[1e6, 1e3]"):
+        p = write(tmp_path, f"[integration]\nlimits_molar_mass = {pair}\n[calibration]\norder = 1\n" + STANDARDS)
+        m = load_method(p)
+        assert m.limits is None and m.limits_M == (1000.0, 1e6)
+        lo, hi = m.volume_limits()
+        assert lo == pytest.approx(12.0, abs=1e-9)  # root of a fitted line: float rounding only
+        assert hi == pytest.approx(21.0, abs=1e-9)
+        assert m.settings["integration limits [g/mol]"] == [1000.0, 1e6]
+    # beyond the standards the tangent continues the line: 1e7 g/mol at 9 mL [derived]
+    p = write(tmp_path, "[integration]\nlimits_molar_mass = [1e2, 1e7]\n[calibration]\norder = 1\n" + STANDARDS)
+    lo, hi = load_method(p).volume_limits()
+    assert (lo, hi) == (pytest.approx(9.0, abs=1e-9), pytest.approx(24.0, abs=1e-9))
+
+
+@pytest.mark.parametrize(
+    "integration, says",
+    [
+        ("limits = [14, 19]\nlimits_molar_mass = [1000, 1e6]", "not both"),
+        ("limits_molar_mass = [1000]", "pair"),
+        ("limits_molar_mass = [-1000, 1e6]", "positive"),
+        ("limits_molar_mass = [1e4, 1e4]", "equal"),
+        ("limits_molar_mass = '1000-1e6'", "pair"),
+    ],
+)
+def test_limits_in_molar_mass_refusals_name_the_key(tmp_path, integration, says):
+    p = write(tmp_path, f"[integration]\n{integration}\n[calibration]\norder = 1\n" + STANDARDS)
+    with pytest.raises(MethodError, match=says) as e:
+        load_method(p)
+    assert e.value.key == "integration.limits_molar_mass"
+
+
+def test_overrides_give_a_derived_method(tmp_path):
+    from gpctools.method import MethodOverrides
+
+    m = load_method(write(tmp_path, "[integration]\nlimits = [13, 20]\n[calibration]\norder = 1\n" + STANDARDS))
+    same = m.with_overrides(MethodOverrides())
+    assert same is m  # nothing to change: the method itself
+    by_mass = m.with_overrides(MethodOverrides(limits_M=(1000.0, 1e6)))
+    assert by_mass.limits is None and by_mass.volume_limits() == (pytest.approx(12.0), pytest.approx(21.0))
+    by_volume = by_mass.with_overrides(MethodOverrides(limits=(14.0, 19.0)))
+    assert by_volume.limits_M is None and by_volume.volume_limits() == (14.0, 19.0)
+    w = m.with_overrides(MethodOverrides(windows=((10.0, 11.0), (22.0, 23.0))))
+    assert w.windows == ((10.0, 11.0), (22.0, 23.0)) and w.limits == (13.0, 20.0)
+    # the file it came from stays named, the change is recorded
+    assert by_mass.sha256 == m.sha256 and by_mass.source == m.source
+    assert by_mass.settings["overrides"] == {"integration limits [g/mol]": [1000.0, 1e6]}
+    assert m.settings.get("overrides") is None  # the original is untouched (frozen)
+    with pytest.raises(MethodError, match="not both"):
+        MethodOverrides(limits=(14.0, 19.0), limits_M=(1e3, 1e6))
+    with pytest.raises(MethodError, match="first must be below"):
+        MethodOverrides(limits=(19.0, 14.0))
+
+
+# ---------------------------------------------------------- standards file (issues 9, 10)
+
+
+def _standards_method(tmp_path: Path, table: str, order: int | str = 1, flow: str = "") -> Path:
+    (tmp_path / "std.csv").write_text(table, encoding="utf-8")
+    o = f'"{order}"' if isinstance(order, str) else order
+    return write(tmp_path, f'{flow}[calibration]\norder = {o}\nstandards = "std.csv"\n')
+
+
+@pytest.mark.parametrize(
+    "header, factor",
+    [
+        ("name,Mp [g/mol],volume [mL]", 1.0),
+        ("name,Mp (kg/mol),Volume (mL)", 1000.0),
+        ("Standard,Mp/(g mol-1),Ve/mL", 1.0),
+        ('label,M_p [Da],"elution volume, mL"', 1.0),
+        ("name,Mp [kDa],Vp", 1000.0),
+        ("name,peak MW,retention volume (ml)", 1.0),
+        ("name,Molar mass in g/mol,Peak volume [cm3]", 1.0),
+    ],
+)
+def test_standards_headers_in_common_variants(tmp_path, header, factor):
+    # One table of exactly log-linear standards, written with the header variants labs use
+    # (brackets, parentheses, suffixes, quantity-calculus slashes; kg/mol = 1000 g/mol).
+    rows = "\n".join(f"s{i},{m / factor:g},{v}" for i, (m, v) in
+                     enumerate([(1e6, 12.0), (1e5, 15.0), (1e4, 18.0), (1e3, 21.0)]))
+    m = load_method(_standards_method(tmp_path, f"{header}\n{rows}\n"))
+    assert m.calibration.Mp == pytest.approx((1e6, 1e5, 1e4, 1e3), rel=1e-12)  # unit factor only
+    assert m.calibration.volume == (12.0, 15.0, 18.0, 21.0)
+
+
+@pytest.mark.parametrize(
+    "header, unit",
+    [("name,Mp,RT [s]", 60.0), ("name,Mp,retention time (min)", 1.0), ('name,Mp,"tR, min"', 1.0), ("name,Mp,t/s", 60.0)],
+)
+def test_standards_given_as_time_in_header_variants(tmp_path, header, unit):
+    # V = t [min] x F [mL/min] with F = 0.5 (definition of the flow rate)
+    rows = "\n".join(f"s{i},{m:g},{t * unit:g}" for i, (m, t) in
+                     enumerate([(1e6, 24.0), (1e5, 30.0), (1e4, 36.0)]))
+    m = load_method(_standards_method(tmp_path, f"{header}\n{rows}\n", flow="[flow]\nrate = 0.5\n"))
+    assert m.calibration.volume == pytest.approx((12.0, 15.0, 18.0), rel=1e-12)
+
+
+def test_standards_missing_column_lists_found_and_accepted_names(tmp_path):
+    with pytest.raises(MethodError) as e:
+        load_method(_standards_method(tmp_path, "name,Mw,Ve\na,1e5,14\nb,1e4,16\n"))
+    msg = str(e.value)
+    assert "std.csv" in msg and "found columns: 'name', 'Mw', 'Ve'" in msg
+    assert "'Mp [g/mol]'" in msg and "'peak molar mass'" in msg  # the names accepted, as written
+    with pytest.raises(MethodError) as e:
+        load_method(_standards_method(tmp_path, "name,Mp,position\na,1e5,14\nb,1e4,16\n"))
+    msg = str(e.value)
+    assert "'volume [mL]'" in msg and "'time [min]'" in msg and "'retention time'" in msg
+    assert "found columns: 'name', 'Mp', 'position'" in msg
+
+
+def test_standards_whose_mp_does_not_fall_with_volume_are_refused_with_rows(tmp_path):
+    # SEC elutes large molecules first, so Mp must fall as V rises (docs/science.md,
+    # section 2.1); rows 3 and 4 of this file are swapped in Mp.
+    table = "name,Mp [g/mol],volume [mL]\nA,1000000,12\nB,10000,15\nC,100000,18\nD,1000,21\n"
+    with pytest.raises(MethodError) as e:
+        load_method(_standards_method(tmp_path, table))
+    msg = str(e.value)
+    assert e.value.path.endswith("std.csv") and e.value.row == 4
+    assert "'B' (row 3: 15 mL, 10000 g/mol) elutes before 'C' (row 4: 18 mL, 100000 g/mol)" in msg
+    assert "np.float64" not in msg
+    # inline standards: named by their method key
+    body = "[calibration]\norder = 1\n" + STANDARDS.replace("Mp = 10000\n", "Mp = 200000\n")
+    with pytest.raises(MethodError, match=r"calibration\.standard\[3\]") as e:
+        load_method(write(tmp_path, body))
+
+
+def test_duplicate_positions_are_named_by_file_and_line(tmp_path):
+    table = "name,Mp [g/mol],volume [mL]\nA,1000000,12\nB,100000,15.0\nC,50000,15\nD,1000,21\n"
+    with pytest.raises(MethodError) as e:
+        load_method(_standards_method(tmp_path, table))
+    assert e.value.path.endswith("std.csv") and e.value.row == 4
+    assert "'B' (row 3) and 'C' (row 4) have the same peak volume 15 mL" in str(e.value)
+
+
+@pytest.mark.parametrize(
+    "order, n, says",
+    [(3, 3, "holds 3 standards; an order-3 calibration needs at least 4 standards"),
+     ("auto", 4, "needs at least 5 standards"),
+     (1, 1, "holds 1 standard; a calibration needs at least 2 standards")],
+)
+def test_too_few_standards_names_the_standards_file(tmp_path, order, n, says):
+    rows = "".join(f"s{i},{10 ** (6 - i)},{12 + 3 * i}\n" for i in range(n))
+    with pytest.raises(MethodError, match=says) as e:
+        load_method(_standards_method(tmp_path, "name,Mp [g/mol],volume [mL]\n" + rows, order=order))
+    assert e.value.path.endswith("std.csv")  # the standards table, not the method file
+
+
+def test_negative_mp_is_shown_as_a_plain_number(tmp_path):
+    table = "name,Mp [g/mol],volume [mL]\nA,1000000,12\nB,-1080000,15\nC,1000,21\n"
+    with pytest.raises(MethodError) as e:
+        load_method(_standards_method(tmp_path, table))
+    assert "-1080000 g/mol must be positive" in str(e.value) and "np." not in str(e.value)
+    assert e.value.row == 3
+
+
+# ----------------------------------------------------------- Mark-Houwink K unit (issue 10)
+
+
+def test_mark_houwink_K_in_mL_per_g_warns(tmp_path):
+    # K_sample typed in mL/g (9.44e-3) next to K_standard in dL/g: a factor 100 in K. The
+    # universal calibration log M_x = [log(K_s/K_x) + (1 + a_s) log M_s] / (1 + a_x)
+    # (Benoit, Grubisic, Rempp 1967) then turns PS 1e5 into 7 507 g/mol [derived, below].
+    body = "[calibration]\norder = 1\n" + STANDARDS + textwrap.dedent(
+        """
+        [mark_houwink]
+        K_standard = 1.14e-4
+        a_standard = 0.716
+        K_sample = 9.44e-3
+        a_sample = 0.719
+        """
+    )
+    with pytest.warns(CalibrationWarning, match="mL/g") as caught:
+        m = load_method(write(tmp_path, body))
+    texts = [str(w.message) for w in caught if issubclass(w.category, CalibrationWarning)]
+    assert any("K_sample = 0.00944 dL/g lies outside the plausible range" in t for t in texts)
+    assert any("differ by a factor 82.8" in t for t in texts)  # 9.44e-3 / 1.14e-4 = 82.8
+    assert any("mL/g" in w for w in m.calibration.warnings)  # also in the calibration summary
+    import math
+
+    expected = 10 ** ((math.log10(1.14e-4 / 9.44e-3) + 1.716 * 5.0) / 1.719)
+    assert expected == pytest.approx(7507, abs=0.5)  # the issue's figure, from the formula
+    assert float(m.calibration.M(15.0)) == pytest.approx(expected, rel=1e-9)  # exact line
+    # the same pairs in dL/g: no warning (bundled THF pairs, gpctools/data/mark_houwink.csv)
+    import warnings
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", CalibrationWarning)
+        load_method(write(tmp_path, body.replace("9.44e-3", "9.44e-5")))

@@ -315,21 +315,33 @@ def test_blank_with_and_without_a_ghost_peak(sequence):
 def test_two_products_with_different_windows_in_one_run(sequence):
     run = sequence["run"]
     a, b = row_of(run, "A-1"), row_of(run, "B-1")
-    # derived: window [20000, 5e7] g/mol -> V = (9 - log10 M)/0.3 = 3.333 ... 15.566 mL;
-    # [300, 5e7] -> 3.333 ... 21.742 mL (clipped to the record by the limits check)
-    lo_a, hi_a = (float(x) for x in a["limits [mL]"].split("-"))
-    lo_b, hi_b = (float(x) for x in b["limits [mL]"].split("-"))
+    # derived: window [20000, 5e7] g/mol -> V = (9 - log10 M)/0.3: 3.333 ... 15.566 mL;
+    # [300, 5e7] -> 3.333 ... 21.742 mL; the limits used are clipped to the record
     # 0.02 mL: the sequence calibration's cubic differs from the exact line by < 0.3 %
-    assert hi_a == pytest.approx(V_of(20000), abs=0.02)
-    assert hi_b == pytest.approx(V_of(300), abs=0.02)
-    assert lo_a == pytest.approx(lo_b, abs=1e-9)
+    assert a["integration end [mL]"] == pytest.approx(V_of(20000), abs=0.02)
+    assert b["integration end [mL]"] == pytest.approx(V_of(300), abs=0.02)
+    assert a["M at integration end [g/mol]"] == pytest.approx(20000, rel=1e-6)
+    assert a["overrides"] == "limits 20000-50000000 g/mol" and b["overrides"] == "limits 300-50000000 g/mol"
     # B integrates the low-M peak at 19.5 mL, A does not: B's Mn is far lower
     assert b["Mn [g/mol]"] < 0.7 * a["Mn [g/mol]"]
     # every method used is recorded with its SHA-256
     shas = {m.sha256 for m in run.methods.values()}
     assert len(run.methods) == 2 and all(s and len(s) == 64 for s in shas)
-    assert b["method used"].startswith("method_b.toml (SHA-256 ")
-    assert a["method used"].startswith("method.toml (SHA-256 ")
+    assert b["method file"].endswith("method_b.toml") and len(b["method SHA-256"]) == 64
+    assert a["method SHA-256"] != b["method SHA-256"]
+    # a row of the batch sheet that sets its own limits wins over the product's window
+    from gpctools.qc.sequence import expand_products
+
+    e = run.entries[[x.sample_id for x in run.entries].index("A-1")]
+    from dataclasses import replace as _replace
+
+    from gpctools.method import MethodOverrides
+
+    own = _replace(e, overrides=MethodOverrides(limits=(12.0, 18.0)))
+    (kept,) = expand_products([own], sequence["settings"])
+    assert kept.overrides.limits == (12.0, 18.0) and kept.overrides.limits_M is None
+    (expanded,) = expand_products([e], sequence["settings"])
+    assert expanded.overrides.limits_M == (20000.0, 50000000.0)
 
 
 # ============================================================================ trends
@@ -620,3 +632,26 @@ def test_sample_judged_per_injection_and_as_a_mean():
                               "injection 2 of 2 (P1): Mw 46 800 g/mol above max 46 000 g/mol")
     assert [v.verdict for v in dec.injections] == [PASS, FAIL]
     assert decide(table, SPECS, (), judge="mean").samples[0].decision == PASS
+
+
+def test_history_without_product_column_and_other_date_spellings():
+    # a history table of reported values only: batch, date (day.month.year), Mw; no
+    # product, sample_id, role or status. Its points join the current run's only product.
+    hist = pd.DataFrame({"batch": ["H2", "H1", "H3"], "date": ["03.01.2026", "02.01.2026", "04.01.2026"],
+                         "Mw [g/mol]": [101.0, 99.0, 100.0]})
+    current = pd.DataFrame([{"sample_id": "C1", "role": "sample", "product": "P", "batch": "NOW",
+                             "sequence": "S", "date": "2026-02-01", "status": "ok", "Mw [g/mol]": 100.5}])
+    settings = QCSettings(trend_columns=("Mw [g/mol]",), suitability=NO_CHECK, false_alarm_simulations=0)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        res = evaluate_qc(current, specs_from_frame(pd.DataFrame({"product": ["P"]})), calibration=CAL,
+                          history=[hist], settings=settings)
+    (chart,) = res.trends
+    assert chart.group == "P" and chart.labels == ("H1", "H2", "H3", "NOW")  # by date
+    assert any("no 'product' column" in w for w in res.warnings)
+    # a date that reads two ways is not guessed: a warning, and the file order is kept
+    hist["date"] = ["03/01/2026", "02/01/2026", "04/01/2026"]
+    with pytest.warns(Warning, match="is not a date"):
+        res = evaluate_qc(current, specs_from_frame(pd.DataFrame({"product": ["P"]})), calibration=CAL,
+                          history=[hist], settings=settings)
+    assert res.trends[0].labels[:3] == ("H2", "H1", "H3")

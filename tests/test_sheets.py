@@ -520,3 +520,27 @@ def test_the_layer_expresses_a_settings_sheet():
     assert (row["require"], row["limits_from"], row["drift"]) == (False, "history", 0.3)
     with pytest.raises(DataError, match="unknown trend limits from 'sometimes'"):
         read_table([{"trend limits from": "sometimes"}], settings)
+
+
+@pytest.mark.parametrize(
+    "header, name, unit",
+    [
+        ("Ve/mL", "Ve", "mL"), ("Mp/(g/mol)", "Mp", "g/mol"), ("Mp/(g mol-1)", "Mp", "g mol-1"),
+        ("t/s", "t", "s"), ("T/K", "T", "K"), ("Mp [Da]", "Mp", "Da"), ("Mp (kDa)", "Mp", "kDa"),
+        ("V (cm3)", "V", "cm3"), ("t, minutes", "t", "minutes"),
+        # ratios and names with slashes keep their slash (no unit)
+        ("[A]/M", "[A]/M", None), ("C/S", "C/S", None), ("dw/dlogM", "dw/dlogM", None),
+        ("Mw/Mn", "Mw/Mn", None), ("ratio [A]/[M]", "ratio [A]/[M]", None),
+    ],
+)
+def test_split_header_slash_units_and_ratios(header, name, unit):
+    # Quantity-calculus headers (value = quantity / unit, common practice in tables).
+    h = cells.split_header(header)
+    assert (h.name, h.unit) == (name, unit)
+
+
+@pytest.mark.parametrize("unit, canonical", [("Da", "g/mol"), ("kDa", "kg/mol"), ("g mol-1", "g/mol"),
+                                             ("g·mol⁻¹", "g/mol"), ("cm³", "mL"), ("μL", "µL"),
+                                             ("minutes", "min"), ("sec.", "s")])
+def test_canonical_unit_spellings(unit, canonical):
+    assert cells.canonical_unit(unit) == canonical

@@ -49,8 +49,11 @@ _BOMS = (
 )
 
 
-def read_bytes(path: str | os.PathLike[str]) -> bytes:
-    """Return the whole content of ``path``; clear errors for missing, empty or huge files."""
+def read_bytes(path: str | os.PathLike[str], limit: int = MAX_FILE_BYTES) -> bytes:
+    """Return the whole content of ``path``; clear errors for missing, empty or huge files.
+
+    ``limit`` is the largest size accepted [bytes] (default :data:`MAX_FILE_BYTES`).
+    """
     p = Path(path)
     if not p.exists():
         raise InputFormatError(
@@ -59,9 +62,9 @@ def read_bytes(path: str | os.PathLike[str]) -> bytes:
     if p.is_dir():
         raise InputFormatError("this is a folder, not a file; give the path of a file", path=path)
     size = p.stat().st_size
-    if size > MAX_FILE_BYTES:
+    if size > limit:
         raise InputFormatError(
-            f"file is {size / 1e6:.0f} MB, more than the {MAX_FILE_BYTES / 1e6:.0f} MB accepted; "
+            f"file is {size / 1e6:.0f} MB, more than the {limit / 1e6:.0f} MB accepted; "
             "export a single chromatogram or sheet per file",
             path=path,
         )
@@ -110,11 +113,11 @@ def detect_kind(path: str | os.PathLike[str], data: bytes) -> str:
         if is_zip:
             return "xlsx"
         if binary:
-            what = binary
+            what = f"{binary}; export the data as .xlsx or CSV"
         elif _looks_like_text(data):
             what = "a text file (CSV or similar); rename it to .csv or .txt"
         else:
-            what = "not a workbook"
+            what = "not a workbook; export the data again as .xlsx or CSV"
         raise InputFormatError(
             f"the extension says .xlsx workbook, but the file is not a zip archive: it is {what}",
             path=path,
@@ -134,6 +137,8 @@ def detect_kind(path: str | os.PathLike[str], data: bytes) -> str:
             path=path,
         )
     if not _looks_like_text(data):
+        if _looks_like_text(data[:8192].replace(b"\x00", b"")):
+            return "text"  # text with stray NUL bytes: decode_text names their line
         raise InputFormatError(
             "this is a binary file, not a text table; export the data as CSV/text or .xlsx",
             path=path,
@@ -200,10 +205,16 @@ def decode_text(path: str | os.PathLike[str], data: bytes, encoding: str | None 
                 try:
                     text = data[len(bom) :].decode(codec.replace("-sig", ""))
                 except UnicodeDecodeError as exc:
+                    body = data[len(bom) :]
+                    good = body[: exc.start].decode(codec.replace("-sig", ""), "replace")
+                    line = good.count("\n") + 1
+                    cut = " (the file is cut off)" if exc.end >= len(body) else ""
                     raise InputFormatError(
-                        f"the file starts with a {codec} byte-order mark but is not valid "
-                        f"{codec} (byte {exc.start}); export it again",
+                        f"line {line}: the file starts with a {codec} byte-order mark but "
+                        f"byte {exc.start + len(bom)} is not valid {codec}{cut}; the file "
+                        "is damaged - export it again",
                         path=path,
+                        row=line,
                     ) from exc
                 break
         if text is None:
@@ -218,6 +229,18 @@ def decode_text(path: str | os.PathLike[str], data: bytes, encoding: str | None 
         assert text is not None  # latin-1 decodes any bytes
     if "\r" in text:
         text = text.replace("\r\n", "\n").replace("\r", "\n")
+    nul = text.find("\x00")
+    if nul >= 0:
+        line = text.count("\n", 0, nul) + 1
+        count = text.count("\x00")
+        raise InputFormatError(
+            f"line {line} holds a NUL byte (character code 0; {count:,} in the file): "
+            "the export is damaged (a disk or transfer fault, or a crash while it was "
+            "written); export the chromatogram again, or delete those characters in a "
+            "text editor",
+            row=line,
+            path=path,
+        )
     return text
 
 

@@ -1,8 +1,10 @@
 """Delimited-text dialects: finding the numeric block, its separator and decimal mark.
 
 Detection works on the first :data:`SCAN_LINES` lines only; the numeric block itself is
-parsed by one call of :func:`pandas.read_csv` (C engine). Python loops over data lines
-happen only on the error path, to name the offending line.
+parsed by :func:`pandas.read_csv` (C engine). Python loops over data lines happen only on
+the error path, to name the offending line. Every pattern here is unambiguous, so that
+matching costs time linear in the length of the text, and lines, cells and fields are
+capped (:data:`MAX_LINE_CHARS`, :data:`MAX_CELL_CHARS`, :data:`MAX_FIELDS`).
 """
 
 from __future__ import annotations
@@ -11,10 +13,21 @@ import csv
 import re
 from dataclasses import dataclass
 
+import numpy as np
+
 from gpctools.io._columns import is_unit_cell, x_kind_of
 
 __all__ = [
     "SCAN_LINES",
+    "MAX_LINE_CHARS",
+    "MAX_CELL_CHARS",
+    "MAX_FIELDS",
+    "too_many_fields",
+    "find_long_line",
+    "find_long_cell",
+    "is_number_any_mark",
+    "is_datalike",
+    "text_cells_are_text",
     "Dialect",
     "DIALECTS",
     "Layout",
@@ -30,8 +43,27 @@ SCAN_LINES = 200
 #: further (shorter runs are accepted only if nothing longer is found).
 MIN_RUN = 5
 
-_POINT = re.compile(r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?")
-_COMMA = re.compile(r"[+-]?(?:\d+,?\d*|,\d+)(?:[eE][+-]?\d+)?")
+#: Longest line accepted [characters]. A slice export's lines are tens of characters; a
+#: wide header with a few hundred detector columns stays far below this. Longer lines
+#: are refused before any parsing, naming the line (a multi-megabyte single line is the
+#: mark of a damaged or hostile file, and would cost memory and time for nothing).
+MAX_LINE_CHARS = 65_536
+#: Longest cell accepted in the header and data lines [characters]. A number needs a few
+#: dozen characters at most and a column name far fewer.
+MAX_CELL_CHARS = 1_000
+#: Most fields (columns) in one line of the table. A slice export has a handful; lines
+#: with more are never taken as data rows while the dialect is detected (so a hostile
+#: line cannot make the scan slow) and are refused inside the data block.
+MAX_FIELDS = 1_000
+
+# Plain numbers. Every pattern is unambiguous (each character can be matched in one way
+# only), so a failed match costs time linear in the length of the cell: the integer part
+# is one run of digits and the fraction starts only at the mark. (The former form
+# "\d+\.?\d*" could split a run of digits between its two "\d" in n ways and took
+# quadratic time on a long cell of digits.)
+_POINT = re.compile(r"[+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?")
+_COMMA = re.compile(r"[+-]?(?:\d+(?:,\d*)?|,\d+)(?:[eE][+-]?\d+)?")
+_ANY_MARK = re.compile(r"[+-]?(?:\d+(?:[.,]\d*)?|[.,]\d+)(?:[eE][+-]?\d+)?")
 # Quick pre-filter: a line made only of digits, signs, marks, separators and exponents.
 _DATALIKE = re.compile(r"(?=[^\d\n]*\d)[\d.,;\t +\-eE\"]+\Z")
 
@@ -39,6 +71,94 @@ _DATALIKE = re.compile(r"(?=[^\d\n]*\d)[\d.,;\t +\-eE\"]+\Z")
 def number_pattern(decimal: str) -> re.Pattern[str]:
     """Compiled full-match pattern of a plain number with the given decimal mark."""
     return _COMMA if decimal == "," else _POINT
+
+
+def text_cells_are_text(cells: list[str], pat: re.Pattern[str]) -> bool:
+    """True if every non-number cell holds real text (e.g. a flag), not digits and marks.
+
+    A cell such as ``"004800;3"`` is numbers split by the wrong separator or decimal
+    mark; a row holding one is not a row of a table with a text column.
+    """
+    return not any(c and not pat.fullmatch(c) and _DATALIKE.match(c) for c in cells)
+
+
+def is_datalike(line: str) -> bool:
+    """True for a line of digits, signs, decimal marks, separators and exponents only."""
+    return _DATALIKE.match(line) is not None
+
+
+def is_number_any_mark(cell: str) -> bool:
+    """True if ``cell`` is a plain number with a decimal point or a decimal comma."""
+    return _ANY_MARK.fullmatch(cell) is not None
+
+
+def _first_long_run(data: bytes, stops: bytes, limit: int, start: int = 0) -> int:
+    """Offset of the first run of bytes longer than ``limit`` holding none of ``stops``.
+
+    -1 when there is none. Vectorised in chunks of 8 MB, so memory stays small and the
+    time is linear in ``len(data)`` (one comparison per byte and stop character).
+    """
+    arr = np.frombuffer(data, dtype=np.uint8)
+    last = start - 1  # absolute offset of the last stop seen
+    chunk = 1 << 23
+    for c0 in range(start, arr.size, chunk):
+        part = arr[c0 : c0 + chunk]
+        mask = part == stops[0]
+        for v in stops[1:]:
+            mask |= part == v
+        pos = np.flatnonzero(mask) + c0
+        if pos.size == 0:
+            if c0 + part.size - 1 - last > limit:
+                return last + 1
+            continue
+        prev = np.empty_like(pos)
+        prev[0] = last
+        prev[1:] = pos[:-1]
+        big = np.flatnonzero(pos - prev - 1 > limit)
+        if big.size:
+            return int(prev[big[0]]) + 1
+        last = int(pos[-1])
+    if arr.size - 1 - last > limit:
+        return last + 1
+    return -1
+
+
+def _long_run(text: str, stops: str, limit: int) -> tuple[int, int] | None:
+    """``(line number, length [characters])`` of the first run longer than ``limit``.
+
+    Runs are measured in UTF-8 bytes first (fast) and confirmed in characters, so text
+    with many multi-byte characters is never refused for its byte length alone.
+    """
+    data = text.encode("utf-8", "surrogatepass")
+    stop_bytes = stops.encode("ascii")
+    pos = 0
+    while True:
+        at = _first_long_run(data, stop_bytes, limit, pos)
+        if at < 0:
+            return None
+        m = re.compile(b"[" + re.escape(stop_bytes) + b"]").search(data, at)
+        end = m.start() if m else len(data)
+        length = len(data[at:end].decode("utf-8", "surrogatepass"))
+        if length > limit:
+            return data.count(b"\n", 0, at) + 1, length
+        pos = end
+
+
+def find_long_line(text: str, limit: int = MAX_LINE_CHARS) -> tuple[int, int] | None:
+    """``(line number, length [characters])`` of the first line longer than ``limit``.
+
+    None when every line is short enough. Linear in the length of ``text``.
+    """
+    return _long_run(text, "\n", limit)
+
+
+def find_long_cell(text: str, sep: str, limit: int = MAX_CELL_CHARS) -> tuple[int, int] | None:
+    """``(line number within text, length)`` of the first cell longer than ``limit``.
+
+    Cells end at a line end, a tab, a blank or the separator ``sep``. None when every
+    cell is short enough. Linear in the length of ``text``.
+    """
+    return _long_run(text, "\n\t " + ("" if sep in "\t " else sep), limit)
 
 
 @dataclass(frozen=True)
@@ -69,6 +189,13 @@ DIALECTS = (
     Dialect(" ", "."),
     Dialect(" ", ","),
 )
+
+
+def too_many_fields(line: str, sep: str) -> bool:
+    """True if ``line`` has more than :data:`MAX_FIELDS` fields (counted without splitting)."""
+    if sep == " ":
+        return len(line) > 2 * MAX_FIELDS and len(line.split()) > MAX_FIELDS
+    return line.count(sep) >= MAX_FIELDS
 
 
 def split_cells(line: str, sep: str, *, quoted: bool = False) -> list[str]:
@@ -124,6 +251,9 @@ def _fit(lines: list[str], d: Dialect, need: int = 1) -> tuple[int, int, int]:
     for k, line in enumerate(lines):
         if misses > allowed:
             return 0, 0, 0
+        if too_many_fields(line, d.sep):
+            misses += 1
+            continue
         cells = split_cells(line, d.sep)
         if len(cells) < 2:
             misses += 1
@@ -202,9 +332,13 @@ def _general_block(lines: list[str], candidates: list[Dialect]) -> tuple[Dialect
         pat = number_pattern(d.decimal)
         widths = []
         for ln in lines:
+            if too_many_fields(ln, d.sep):
+                widths.append(0)
+                continue
             cells = split_cells(ln, d.sep)
             num, nonempty = _is_num_row(cells, pat)
-            widths.append(len(cells) if num >= 2 and 2 * num >= nonempty else 0)
+            ok = num >= 2 and 2 * num >= nonempty and text_cells_are_text(cells, pat)
+            widths.append(len(cells) if ok else 0)
         runs = []
         i = 0
         while i < n:
@@ -248,9 +382,19 @@ def _extend_back(lines: list[str], start: int, width: int, d: Dialect) -> int:
     pat = number_pattern(d.decimal)
 
     def damaged_row(i: int) -> bool:
+        if too_many_fields(lines[i], d.sep):
+            return bool(_DATALIKE.match(lines[i]))
         cells = split_cells(lines[i], d.sep)
         first = next((c for c in cells if c), "")
-        return len(cells) <= width and bool(pat.fullmatch(first))
+        if len(cells) <= width:
+            # First cell a number; or every cell a number with the other decimal mark (a
+            # file whose mark changes: refused at its line, not read as metadata).
+            return bool(pat.fullmatch(first)) or (
+                len(cells) >= 2 and all(is_number_any_mark(c) for c in cells if c)
+            )
+        # A row of numbers only, wider than the table: a data row with extra fields (or
+        # another decimal mark), to be refused at its line rather than read as metadata.
+        return all(is_number_any_mark(c) for c in cells if c)
 
     def above(i: int) -> int | None:
         i -= 1
@@ -267,12 +411,29 @@ def _extend_back(lines: list[str], start: int, width: int, d: Dialect) -> int:
         else:
             # A text line with data rows above it is inside the block (reported later).
             j = above(i)
+            if j is not None and _bad_first_row(lines[i], lines[j], width, d, pat):
+                return i  # a damaged first row right under the header
             if skips >= 3 or j is None or not damaged_row(j):
                 break
             skips += 1
             new_start = i
         i = above(i)
     return new_start
+
+
+def _bad_first_row(line: str, above: str, width: int, d: Dialect, pat: re.Pattern[str]) -> bool:
+    """True for a row with a number and text in ``width`` cells right under a line that
+    names the columns (``width`` cells, none a number): the table's first row, damaged."""
+    if width < 2 or too_many_fields(line, d.sep) or too_many_fields(above, d.sep):
+        return False
+    cells = split_cells(line, d.sep)
+    names = split_cells(above, d.sep, quoted=True)
+    return (
+        len(cells) == width
+        and any(pat.fullmatch(c) for c in cells)
+        and len(names) == width
+        and all(c and not is_number_any_mark(c) for c in names)
+    )
 
 
 def locate_block(
@@ -357,6 +518,8 @@ def _find_header(
             # Blank-separated: only a line splitting into exactly one name per column.
             return False
         num, nonempty = _is_num_row(cells, pat)
+        if nonempty and all(is_number_any_mark(c) for c in cells if c):
+            return False  # numbers with the other decimal mark are not a header
         return nonempty > 0 and 2 * num < nonempty
 
     h = previous(start)
@@ -384,7 +547,7 @@ def _find_header(
     return h, units, tuple(names)
 
 
-_META_SPLIT = re.compile(r"\s*(?::|=|\t|;|,)\s*")
+_META_SEPARATOR = re.compile(r"[:=\t;,]")
 
 
 def parse_metadata_line(line: str) -> tuple[str, str] | None:
@@ -406,13 +569,15 @@ def parse_metadata_line(line: str) -> tuple[str, str] | None:
     s = line.strip()
     if s.startswith(("#", "!")):
         s = s[1:].strip()
-    m = _META_SPLIT.search(s)
+    # One separator character, found by a single-character search (linear); blanks
+    # around it are stripped with the key and value.
+    m = _META_SEPARATOR.search(s)
     if m:
         key, value = s[: m.start()], s[m.end() :]
     else:
         key, value = s, ""
     key = key.strip().strip('"').strip()
-    if m and key.isdigit() and m.group().strip() == ":":
+    if m and key.isdigit() and m.group() == ":":
         key, value = s, ""  # a clock time such as "12:30" is not a key
     value = value.strip().rstrip(";,\t").strip()
     if len(value) >= 2 and value[0] == value[-1] == '"':

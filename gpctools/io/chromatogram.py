@@ -15,9 +15,16 @@ How a text file is read
    non-empty line just above the run is the header if most of its cells are not numbers
    (a units row under the names, e.g. ``min;mV``, is merged into the names). Lines above
    the header are metadata.
-3. Footer lines after the block (text, or rows of a different width, such as a peak
-   table) are set aside; the block is parsed by one :func:`pandas.read_csv` call (C
-   engine). Only if that fails does a line-by-line pass run, to name the offending line.
+3. Footer lines after the block (a text line and what follows it, such as a peak
+   table) are set aside with a :class:`ReaderWarning` naming them; rows of numbers right
+   after the data are never a footer. The block is parsed in pieces of about 2 MB, each
+   by one :func:`pandas.read_csv` call (C engine). Only where that fails does a
+   line-by-line pass run over the piece, to name the offending line.
+
+Hostile input: lines, cells and fields are capped (:data:`~gpctools.io._text.MAX_LINE_CHARS`,
+:data:`~gpctools.io._text.MAX_CELL_CHARS`, :data:`~gpctools.io._text.MAX_FIELDS`) and every
+pattern is linear-time; workbooks are screened by :func:`gpctools.io._xlsx.check_archive`
+before the workbook library reads them.
 """
 
 from __future__ import annotations
@@ -43,19 +50,34 @@ from gpctools.io._columns import (
 )
 from gpctools.io._files import decode_text, detect_kind, read_bytes
 from gpctools.io._text import (
+    MAX_CELL_CHARS,
+    MAX_FIELDS,
+    MAX_LINE_CHARS,
+    MIN_RUN,
     SCAN_LINES,
     Dialect,
     Layout,
+    find_long_cell,
+    find_long_line,
+    is_datalike,
+    is_number_any_mark,
     locate_block,
     number_pattern,
     parse_metadata_line,
     split_cells,
+    text_cells_are_text,
+    too_many_fields,
 )
 
 __all__ = ["Chromatogram", "read_chromatogram", "MIN_POINTS", "ReaderWarning"]
 
 #: Fewest data rows (slices) accepted; fewer cannot describe a peak.
 MIN_POINTS = 10
+#: Largest slice export read [bytes]: about 2.5 million slices of 25 characters, far
+#: beyond any real run (6,000 slices are about 150 kB). The cap keeps the time budget:
+#: a file within it is read or refused within 10 s on a 2-core machine (measured by
+#: bench/bench_fuzz.py; 2 s for a 39 MB export of 2 million slices).
+MAX_EXPORT_BYTES = 64 * 1024 * 1024
 #: Footer lines set aside at most; a longer tail is treated as part of the table.
 MAX_FOOTER_LINES = 1000
 
@@ -129,7 +151,7 @@ class Chromatogram:
     def __post_init__(self) -> None:
         x = np.array(self.x, dtype=np.float64, copy=True)
         y = np.array(self.signal, dtype=np.float64, copy=True)
-        where = {"path": self.path}
+        where: dict[str, Any] = {"path": self.path}
         if x.ndim != 1 or y.ndim != 1 or x.shape != y.shape:
             raise DataError(
                 f"x and signal must be 1-D arrays of equal length (got {x.shape} and {y.shape})",
@@ -282,7 +304,7 @@ def read_chromatogram(
     unit_arg = _unit_argument(x_unit)
     sep = _separator_argument(separator)
     dec = _decimal_argument(decimal)
-    data = read_bytes(path)
+    data = read_bytes(path, MAX_EXPORT_BYTES)
     kind = detect_kind(path, data)
     if kind == "xlsx":
         return _read_xlsx(path, data, sheet, x_column, signal_column, unit_arg, dec)
@@ -430,7 +452,7 @@ def _choose_columns(
     """(x index, signal index, x_kind, x_unit, warning messages)."""
     notes: list[str] = []
     if x_column is not None:
-        xi = _resolve_column(x_column, "x_column", names, has_header, err)
+        xi = _resolve_column(x_column, "import.x_column", names, has_header, err)
     elif has_header:
         found = [(j, x_kind_of(n)) for j, n in enumerate(names) if j in numeric_cols]
         vols = [j for j, (k, _) in found if k == "volume"]
@@ -442,7 +464,8 @@ def _choose_columns(
         else:
             raise InputFormatError(
                 "cannot tell which column is the elution volume or retention time from the "
-                "headers; name it with x_column= and give x_unit= ('mL', 'min' or 's'); "
+                "headers; name it with import.x_column and give import.x_unit (\"mL\", "
+                "\"min\" or \"s\") in the method file; "
                 + _available(names, has_header),
                 **err,
             )
@@ -453,8 +476,8 @@ def _choose_columns(
         unit = unit_arg
         if header_unit is not None and header_unit != unit_arg:
             notes.append(
-                f"x column {_display(names, xi)!r} says {header_unit!r} but x_unit="
-                f"{unit_arg!r} was given; using {unit_arg!r}"
+                f"x column {_display(names, xi)!r} says {header_unit!r} but the method "
+                f"sets import.x_unit = \"{unit_arg}\" (x_unit={unit_arg!r}); using {unit_arg!r}"
             )
     elif header_unit is not None:
         unit = header_unit
@@ -464,8 +487,9 @@ def _choose_columns(
             unit = meta_unit
         elif not has_header:
             raise InputFormatError(
-                "the file has no header row, so the unit of x (column 0) is unknown; give "
-                "x_unit='mL' for elution volume or x_unit='min'/'s' for retention time",
+                "the file has no header row, so the unit of x (column 0) is unknown; set "
+                "import.x_unit in the method file: \"mL\" for elution volume, \"min\" "
+                "or \"s\" for retention time (x_unit='mL', 'min' or 's' in Python)",
                 **err,
             )
         elif header_kind == "time":
@@ -473,12 +497,13 @@ def _choose_columns(
         else:
             raise InputFormatError(
                 f"the unit of the x column {_display(names, xi)!r} is not known; give "
-                "x_unit='mL', 'min' or 's' (or write it in the header, e.g. 'Volume (mL)')",
+                "import.x_unit = \"mL\", \"min\" or \"s\" in the method file (or write "
+                "it in the header, e.g. 'Volume (mL)')",
                 column=_display(names, xi),
                 **err,
             )
     if signal_column is not None:
-        yi = _resolve_column(signal_column, "signal_column", names, has_header, err)
+        yi = _resolve_column(signal_column, "import.signal_column", names, has_header, err)
     else:
         options = [j for j in sorted(numeric_cols) if j != xi]
         ranked = [(detector_rank(names[j]) if has_header else 1, -j) for j in options]
@@ -486,14 +511,14 @@ def _choose_columns(
         if best is None or ranked[best][0] < 0:
             raise InputFormatError(
                 "no detector signal column found besides the x column; name it with "
-                "signal_column=; " + _available(names, has_header),
+                "import.signal_column in the method file; " + _available(names, has_header),
                 **err,
             )
         yi = options[best]
     if yi == xi:
         raise InputFormatError(
-            f"x_column and signal_column are the same column ({_display(names, xi)!r}); "
-            "choose two different columns",
+            f"import.x_column and import.signal_column name the same column "
+            f"({_display(names, xi)!r}); choose two different columns",
             **err,
         )
     kind = "time" if unit == _TIME_UNIT_FROM_RANGE else UNIT_KIND[unit]
@@ -524,28 +549,159 @@ def _put(meta: dict[str, str], key: str, value: str) -> None:
     meta[key] = value
 
 
+def _tail_kind(line: str, d: Dialect, width: int) -> str:
+    """``"data"``, ``"wide"`` (numbers only, more fields than the table) or ``"text"``.
+
+    Numbers are recognised with either decimal mark: a row written with the other mark
+    is data gone wrong (reported at its line), never a footer.
+    """
+    datalike = is_datalike(line)
+    if too_many_fields(line, d.sep):
+        return "wide" if datalike else "text"
+    cells = split_cells(line, d.sep)
+    filled = [c for c in cells if c]
+    numeric = sum(1 for c in filled if is_number_any_mark(c))
+    if filled and numeric == len(filled) and len(cells) <= width:
+        return "data"
+    if (len(cells) == width and numeric >= 2 and 2 * numeric >= len(filled)
+            and text_cells_are_text(cells, number_pattern(d.decimal))):
+        return "data"  # a table with a text column (e.g. a flag)
+    # Digits, marks and separators only (another width, separator or decimal mark):
+    # part of a footer only under a text line, else data gone wrong.
+    return "wide" if datalike else "text"
+
+
 def _footer_start(text: str, offset: int, d: Dialect, width: int) -> int:
-    """Character offset where trailing footer lines start (``len(text)`` if none)."""
-    pat = number_pattern(d.decimal)
+    """Character offset where trailing footer lines start (``len(text)`` if none).
+
+    A footer is what follows the table and starts with a text line ("End of data",
+    "Peak table"); rows of numbers wider than the table (a peak table) belong to it only
+    under such a line. Rows of numbers right after the data, whatever their decimal mark
+    or width, stay in the table and are checked there, so nothing is dropped silently.
+    A tail of more than :data:`MAX_FOOTER_LINES` lines is treated as part of the table.
+    """
+    footer = len(text)
     end = len(text)
     for _ in range(MAX_FOOTER_LINES):
         e = end
         while e > offset and text[e - 1] in " \t\n":
             e -= 1
         if e <= offset:
-            return end
+            return footer
         b = max(text.rfind("\n", offset, e) + 1, offset)
-        cells = split_cells(text[b:e], d.sep)
-        numeric = sum(1 for c in cells if pat.fullmatch(c))
-        is_row = len(cells) == width and numeric >= 2 and 2 * numeric >= len(cells)
-        if is_row:
-            return e
-        all_numbers = cells and numeric == len(cells)
-        if all_numbers and len(cells) <= width:
-            # A short row of numbers (a cut-off last line) is data gone wrong, not a footer.
-            return e
+        kind = _tail_kind(text[b:e], d, width)
+        if kind == "data":
+            return footer
+        if kind == "text":
+            footer = b
         end = b
-    return end
+    return len(text)
+
+
+def _note_footer(text: str, end: int, notes: list[str]) -> None:
+    """Say which lines after the table were set aside as a footer (never silently)."""
+    tail = text[end:]
+    if not tail.strip():
+        return
+    first = text.count("\n", 0, end) + 1
+    lines = tail.rstrip("\n").split("\n")
+    first += next(k for k, ln in enumerate(lines) if ln.strip())
+    last = text.count("\n", 0, end) + len(lines)
+    shown = next(ln for ln in lines if ln.strip()).strip()
+    shown = shown if len(shown) <= 40 else shown[:37] + "..."
+    span = f"line {first}" if first == last else f"lines {first} to {last}"
+    notes.append(
+        f"{span} after the data table (starting {shown!r}) are a footer and were not "
+        "read as slices; if they are slices, the table is damaged there"
+    )
+
+
+def _refuse_long_lines(text: str, err: dict[str, Any]) -> None:
+    """Refuse a file with a line longer than :data:`MAX_LINE_CHARS`, naming the line."""
+    found = find_long_line(text)
+    if found is not None:
+        n, length = found
+        raise InputFormatError(
+            f"line {n} is {length:,} characters long; lines of a slice export are at most "
+            f"{MAX_LINE_CHARS:,} characters, so the file is damaged or not a table export "
+            "(perhaps its line ends were lost) - export the chromatogram again",
+            row=n,
+            **err,
+        )
+
+
+def _refuse_long_cells(text: str, start: int, end: int, first_line: int, d: Dialect,
+                       err: dict[str, Any]) -> None:
+    """Refuse a header or data cell longer than :data:`MAX_CELL_CHARS`, naming the line."""
+    found = find_long_cell(text[start:end], d.sep)
+    if found is not None:
+        k, length = found
+        n = first_line + k - 1
+        raise InputFormatError(
+            f"line {n} holds a value {length:,} characters long; a number or column name "
+            f"has at most {MAX_CELL_CHARS:,} characters - correct the value or export the "
+            "chromatogram again",
+            row=n,
+            **err,
+        )
+
+
+def _no_table_error(
+    head: list[str], text: str, sep: str | None, dec: str | None, err: dict[str, Any]
+) -> InputFormatError:
+    """The most specific reason why no table of numbers was found in ``head``."""
+    if sep is not None or dec is not None:
+        free = locate_block(head, text)
+        if free is not None:
+            given = []
+            if sep is not None:
+                given.append(f"import.separator = {_SEP_NAMES[sep]!r}")
+            if dec is not None:
+                given.append(f"import.decimal = {dec!r}")
+            line = head[free.good].strip()[:60]
+            return InputFormatError(
+                f"no table of numbers found with the separator/decimal mark given "
+                f"({' and '.join(given)}): the table in this file is "
+                f"{free.dialect.label} (line {free.good + 1}: {line!r}); set these keys to "
+                '"auto" in the method file (or to the values of this file)',
+                **err,
+            )
+    for k, line in enumerate(head):
+        if any(too_many_fields(line, s) for s in (";", ",", "\t")):
+            return InputFormatError(
+                f"line {k + 1} has more than {MAX_FIELDS:,} fields; a slice export has a "
+                "few columns (x and one or more detector signals) - export the "
+                "chromatogram again, one slice per line",
+                row=k + 1,
+                **err,
+            )
+    singles = [k for k, line in enumerate(head) if _single_number(line)]
+    if len(singles) >= MIN_RUN:
+        return InputFormatError(
+            f"only one column of numbers found (lines {singles[0] + 1} to {singles[-1] + 1}, "
+            f"{len(singles)} lines with one number each); a slice export needs two columns, "
+            "x (elution volume or retention time) and the detector signal, separated by "
+            "tab, ';', ',' or blanks - export both columns",
+            row=singles[0] + 1,
+            **err,
+        )
+    forced = " with the separator/decimal mark given" if (sep or dec) else ""
+    return InputFormatError(
+        f"no table of numbers found{forced} in the first {len(head)} lines: expected "
+        "rows with at least two numbers (x and signal) separated by tab, ';', ',' or "
+        "spaces, under a header row such as 'Volume (mL);RI (mV)'; check that this is "
+        "the slice export (not a report or another file) and export it again",
+        **err,
+    )
+
+
+_SEP_NAMES = {"\t": "tab", ";": ";", ",": ",", " ": "whitespace"}
+
+
+def _single_number(line: str) -> bool:
+    """True for a line holding one number (a trailing separator allowed)."""
+    s = line.strip().strip(";,\t").strip()
+    return bool(s) and len(s) <= MAX_CELL_CHARS and is_number_any_mark(s)
 
 
 def _read_text(
@@ -557,22 +713,14 @@ def _read_text(
     sep: str | None,
     dec: str | None,
 ) -> Chromatogram:
-    import pandas as pd
-
+    """Read a decoded text export (steps in the module docstring)."""
     err: dict[str, Any] = {"path": path}
+    _refuse_long_lines(text, err)
     parts = text.split("\n", SCAN_LINES)
     head = parts[:SCAN_LINES]
     layout = locate_block(head, text, sep=sep, decimal=dec)
     if layout is None:
-        forced = ""
-        if sep is not None or dec is not None:
-            forced = " with the separator/decimal mark given"
-        raise InputFormatError(
-            f"no table of numbers found{forced} in the first {len(head)} lines: expected "
-            "rows with at least two numbers (x and signal) separated by tab, ';', ',' or "
-            "spaces, under a header row such as 'Volume (mL);RI (mV)'",
-            **err,
-        )
+        raise _no_table_error(head, text, sep, dec, err)
     d = layout.dialect
     has_header = layout.header is not None
     meta_end = layout.header if has_header else layout.start
@@ -585,42 +733,17 @@ def _read_text(
     )
     offset = sum(len(ln) + 1 for ln in head[: layout.start])
     end = _footer_start(text, offset, d, layout.width)
+    _note_footer(text, end, notes)
+    table_start = layout.header if layout.header is not None else layout.start
+    table_offset = sum(len(ln) + 1 for ln in head[:table_start])
+    _refuse_long_cells(text, table_offset, end, table_start + 1, d, err)
     block = text[offset:end]
     first_line = layout.start + 1
-    x = y = None
-    try:
-        # No dtype and no usecols: letting the C parser infer types is the fastest way;
-        # the two columns used are checked to be numeric right after.
-        frame = pd.read_csv(
-            io.StringIO(block),
-            sep=d.pandas_sep,
-            decimal=d.decimal,
-            header=None,
-            na_filter=False,
-            engine="c",
-            skip_blank_lines=True,
-        )
-        cx, cy = frame[xi], frame[yi]
-        if cx.dtype.kind in "fiu" and cy.dtype.kind in "fiu":
-            x = cx.to_numpy(dtype=np.float64)
-            y = cy.to_numpy(dtype=np.float64)
-            if not (np.isfinite(x).all() and np.isfinite(y).all()):
-                x = y = None
-    except (ValueError, IndexError, KeyError, pd.errors.ParserError, pd.errors.EmptyDataError):
-        x = y = None
-    if x is None or y is None:
-        x, y, lines_arr = _parse_lines(block, first_line, d, xi, yi, layout.names, err)
-    else:
-        lines_arr = None
+    x, y, lines_arr = _parse_block(block, first_line, d, xi, yi, layout.names,
+                                   layout.width, err)
 
     def line_of(k: int) -> int:
-        """Line number of data row ``k`` (computed only on the error path)."""
-        nonlocal lines_arr
-        if lines_arr is None:
-            n_lines = block.count("\n") + (0 if block.endswith("\n") else 1)
-            if n_lines == x.size:
-                return first_line + k
-            lines_arr = _parse_lines(block, first_line, d, xi, yi, layout.names, err)[2]
+        """Line number of data row ``k``."""
         return int(lines_arr[k])
 
     return _finish(
@@ -634,12 +757,110 @@ def _read_text(
         xi,
         yi,
         metadata,
-        (layout.header + 1) if has_header else 0,
+        (layout.header + 1) if layout.header is not None else 0,
         None,
         notes,
         line_of,
         "line",
     )
+
+
+#: The data block is parsed in pieces of about this many characters, so that a bad line
+#: costs a line-by-line pass over one piece only (a few hundred milliseconds), not over
+#: the whole file.
+_PIECE_CHARS = 1 << 21
+
+
+def _parse_block(
+    block: str,
+    first_line: int,
+    d: Dialect,
+    xi: int,
+    yi: int,
+    names: tuple[str, ...],
+    width: int,
+    err: dict[str, Any],
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """(x, signal, line number of each row) of the data block; raises at the first bad line.
+
+    Each piece (cut at a line end) is parsed by :func:`_parse_fast`; a piece that fails
+    there goes through :func:`_parse_lines`, which names the offending line.
+    """
+    xs: list[np.ndarray] = []
+    ys: list[np.ndarray] = []
+    ns: list[np.ndarray] = []
+    pos, line, n = 0, first_line, len(block)
+    while pos < n:
+        cut = block.find("\n", min(pos + _PIECE_CHARS, n))
+        end = n if cut < 0 else cut + 1
+        part = block[pos:end]
+        breaks = part.count("\n")
+        count = breaks + (0 if part.endswith("\n") else 1)
+        x, y = _parse_fast(part, d, xi, yi, width)
+        nums: np.ndarray | None = None
+        if x is not None and y is not None:
+            if x.size == count:
+                nums = np.arange(line, line + count)
+            else:  # blank lines were skipped: number the rows by their lines
+                filled = [k for k, ln in enumerate(part.split("\n")) if ln.strip()]
+                if len(filled) == x.size:
+                    nums = line + np.asarray(filled, dtype=np.int64)
+        if x is None or y is None or nums is None:
+            x, y, nums = _parse_lines(part, line, d, xi, yi, names, width, err)
+        xs.append(x)
+        ys.append(y)
+        ns.append(nums)
+        line += breaks
+        pos = end
+    if not xs:
+        empty = np.zeros(0)
+        return empty, empty, np.zeros(0, dtype=np.int64)
+    return np.concatenate(xs), np.concatenate(ys), np.concatenate(ns)
+
+
+def _parse_fast(
+    block: str, d: Dialect, xi: int, yi: int, width: int
+) -> tuple[np.ndarray | None, np.ndarray | None]:
+    """The block by one :func:`pandas.read_csv` call, or ``(None, None)`` when anything
+    is off (then the line-by-line pass names the line).
+
+    The table is accepted only if both used columns are finite numbers and no row has
+    more fields than the table: the parser takes its column count from the first row, so
+    a wider row there shows as extra columns that must be empty (a trailing separator).
+    """
+    import pandas as pd
+
+    try:
+        # No dtype and no usecols: letting the C parser infer types is the fastest way;
+        # the two columns used are checked to be numeric right after. low_memory=False
+        # types each column once per piece (pieces are small), so mixed types give an
+        # object column, not a warning for the caller.
+        frame = pd.read_csv(
+            io.StringIO(block),
+            sep=d.pandas_sep,
+            decimal=d.decimal,
+            header=None,
+            na_filter=False,
+            engine="c",
+            skip_blank_lines=True,
+            low_memory=False,
+        )
+        for j in range(width, frame.shape[1]):
+            extra = frame[j]
+            if extra.dtype.kind in "fiu" and not extra.isna().all():
+                return None, None
+            if extra.dtype.kind not in "fiu" and not (extra.astype(str) == "").all():
+                return None, None
+        cx, cy = frame[xi], frame[yi]
+        if cx.dtype.kind in "fiu" and cy.dtype.kind in "fiu":
+            x = cx.to_numpy(dtype=np.float64)
+            y = cy.to_numpy(dtype=np.float64)
+            if np.isfinite(x).all() and np.isfinite(y).all():
+                return x, y
+    except (ValueError, IndexError, KeyError, OverflowError, pd.errors.ParserError,
+            pd.errors.EmptyDataError):
+        pass
+    return None, None
 
 
 def _parse_lines(
@@ -649,6 +870,7 @@ def _parse_lines(
     xi: int,
     yi: int,
     names: tuple[str, ...],
+    width: int,
     err: dict[str, Any],
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Line-by-line parse of the data block; raises at the first bad line."""
@@ -662,7 +884,11 @@ def _parse_lines(
         n = first_line + k
         if not line.strip():
             continue
+        if too_many_fields(line, d.sep):
+            raise _extra_fields_error(n, None, width, d, err)
         cells = split_cells(line, d.sep, quoted=d.sep != " ")
+        if len(cells) > width:
+            raise _extra_fields_error(n, len(cells), width, d, err)
         vals = []
         for j in (xi, yi):
             cell = cells[j] if j < len(cells) else ""
@@ -683,6 +909,17 @@ def _parse_lines(
                     **err,
                 )
             if not pat.fullmatch(cell):
+                alt = number_pattern("." if d.decimal == "," else ",")
+                if alt.fullmatch(cell):
+                    raise InputFormatError(
+                        f"line {n}: {cell!r} in column {col!r} is written with a {other}, "
+                        f"but the file is read with a decimal {mark} (detected from its "
+                        "first data lines, or set by import.decimal in the method file); "
+                        "a file must use one decimal mark throughout - make them agree",
+                        row=n,
+                        column=col,
+                        **err,
+                    )
                 low = cell.lower().lstrip("+-")
                 if low in {"nan", "inf", "infinity", "-inf", "1.#inf", "1.#qnan", "#num!"} or (
                     low.startswith(("nan", "inf"))
@@ -701,25 +938,47 @@ def _parse_lines(
                         row=n,
                         **err,
                     )
-                hint = ""
-                alt = number_pattern("." if d.decimal == "," else ",")
-                if alt.fullmatch(cell):
-                    hint = (
-                        f" (the file uses a decimal {mark}; this value has a {other} - "
-                        "make them agree, or pass decimal=)"
-                    )
                 raise InputFormatError(
-                    f"line {n}: {cell!r} in column {col!r} is not a number{hint}; correct "
+                    f"line {n}: {cell!r} in column {col!r} is not a number; correct "
                     "the value or delete the line",
                     row=n,
                     column=col,
                     **err,
                 )
-            vals.append(float(cell.replace(",", ".")) if d.decimal == "," else float(cell))
+            value = float(cell.replace(",", ".")) if d.decimal == "," else float(cell)
+            if not math.isfinite(value):
+                raise InputFormatError(
+                    f"line {n}: {cell[:40]!r} in column {col!r} is too large a number "
+                    "(beyond ±1.8e308, the largest a computer can hold); correct the value "
+                    "or delete the line",
+                    row=n,
+                    column=col,
+                    **err,
+                )
+            vals.append(value)
         xs.append(vals[0])
         ys.append(vals[1])
         nums.append(n)
     return np.asarray(xs, dtype=np.float64), np.asarray(ys, dtype=np.float64), np.asarray(nums)
+
+
+def _extra_fields_error(
+    n: int, count: int | None, width: int, d: Dialect, err: dict[str, Any]
+) -> InputFormatError:
+    """A data line with more fields than the table: refused, never read in part."""
+    many = f"{count}" if count is not None else f"more than {MAX_FIELDS:,}"
+    hint = ""
+    if d.sep == "," and d.decimal == ".":
+        hint = (
+            " (if its numbers are written with a decimal comma, the file mixes decimal "
+            "marks: make them agree)"
+        )
+    return InputFormatError(
+        f"line {n} has {many} fields but the data table has {width}; a row with extra "
+        f"values cannot be read safely{hint} - correct the line or delete it",
+        row=n,
+        **err,
+    )
 
 
 # ============================================================================ shared
@@ -741,19 +1000,22 @@ def _time_unit_from_range(x: np.ndarray, xcol: str, notes: list[str], err: dict[
     if last <= 100.0:
         notes.append(
             f"the time column {xcol!r} has no unit; retention times up to {last:g} read as "
-            "minutes (give x_unit= or write the unit in the header to be explicit)"
+            "minutes (set import.x_unit in the method file, or write the unit in the "
+            "header, to be explicit)"
         )
         return "min"
     if last >= 300.0:
         notes.append(
             f"the time column {xcol!r} has no unit; retention times up to {last:g} read as "
-            "seconds (give x_unit= or write the unit in the header to be explicit)"
+            "seconds (set import.x_unit in the method file, or write the unit in the "
+            "header, to be explicit)"
         )
         return "s"
     raise InputFormatError(
         f"the time column {xcol!r} has no unit and its last value {last:g} fits neither "
-        "minutes nor seconds of an SEC run; give x_unit='min' or x_unit='s' (or write the "
-        "unit in the header, e.g. 'Time (min)')",
+        "minutes nor seconds of an SEC run; set import.x_unit = \"min\" or \"s\" in the "
+        "method file (x_unit='min' or x_unit='s' in Python), or write the "
+        "unit in the header, e.g. 'Time (min)'",
         column=xcol,
         **err,
     )
@@ -830,19 +1092,49 @@ def _finish(
 
 
 def _cell_number(v: Any, decimal: str | None) -> float | None:
-    """Float of a numeric cell or numeric text, else None."""
+    """Float of a numeric cell or numeric text, else None (also for a number too large
+    for a float, see :func:`_too_large`)."""
     if isinstance(v, bool) or v is None:
         return None
-    if isinstance(v, (int, float)):
-        f = float(v)
-        return f if math.isfinite(f) else None
-    if isinstance(v, str):
-        s = v.strip()
-        if decimal != "," and number_pattern(".").fullmatch(s):
-            return float(s)
-        if decimal != "." and number_pattern(",").fullmatch(s):
-            return float(s.replace(",", "."))
+    try:
+        if isinstance(v, (int, float)):
+            f = float(v)
+            return f if math.isfinite(f) else None
+        if isinstance(v, str):
+            s = v.strip()
+            if len(s) > MAX_CELL_CHARS:
+                return None
+            if decimal != "," and number_pattern(".").fullmatch(s):
+                f = float(s)
+            elif decimal != "." and number_pattern(",").fullmatch(s):
+                f = float(s.replace(",", "."))
+            else:
+                return None
+            return f if math.isfinite(f) else None
+    except OverflowError:  # an integer cell with hundreds of digits
+        return None
     return None
+
+
+def _too_large(v: Any) -> bool:
+    """True for a cell holding a number beyond the float range (or infinite)."""
+    if isinstance(v, bool):
+        return False
+    if isinstance(v, int):
+        return v.bit_length() > 1024
+    if isinstance(v, float):
+        return not math.isfinite(v)
+    if isinstance(v, str) and len(v) <= MAX_CELL_CHARS and is_number_any_mark(v.strip()):
+        return not math.isfinite(float(v.strip().replace(",", ".")))
+    return False
+
+
+def _safe_str(v: Any) -> str:
+    """``str(v)``, also for integers longer than Python converts to text by default."""
+    try:
+        return str(v)
+    except ValueError:
+        return f"<a number of about {int(v.bit_length() * 0.30103)} digits>"
 
 
 def _cell_text(v: Any, decimal: str | None) -> str:
@@ -851,7 +1143,7 @@ def _cell_text(v: Any, decimal: str | None) -> str:
     f = _cell_number(v, decimal)
     if f is not None:
         return repr(f)
-    return str(v).replace("\t", " ").replace("\n", " ").strip()
+    return _safe_str(v).replace("\t", " ").replace("\n", " ").strip()
 
 
 def _meta_text(v: Any) -> str:
@@ -861,7 +1153,7 @@ def _meta_text(v: Any) -> str:
         return str(int(v))
     if hasattr(v, "isoformat"):
         return str(v.isoformat())
-    return str(v).strip()
+    return _safe_str(v).strip()
 
 
 def _read_xlsx(
@@ -878,35 +1170,37 @@ def _read_xlsx(
     Instrument workbooks often put a title or information sheet first; taking the first
     sheet with an x/signal table saves naming the sheet in every method.
     """
-    try:
-        return _read_xlsx_sheet(path, data, sheet, x_column, signal_column, unit_arg, dec)
-    except _NoTableInSheet as first_error:
-        if sheet is not None:
-            raise first_error.plain() from None
-        wb = _xlsx._load(path, data, data_only=True)
+    with _xlsx.open_workbook(path, data) as wb:
         try:
-            count = len(wb.sheetnames)
-        finally:
-            wb.close()
-        for index in range(1, count):
-            try:
-                return _read_xlsx_sheet(path, data, index, x_column, signal_column, unit_arg, dec)
-            except _NoTableInSheet:
-                continue
-        suffix = f" (nor in any of the other {count - 1} sheet(s))" if count > 1 else ""
-        raise first_error.plain(suffix) from None
+            return _read_xlsx_sheet(
+                path, data, wb, sheet, x_column, signal_column, unit_arg, dec
+            )
+        except _NoTableInSheet as first_error:
+            if sheet is not None:
+                raise first_error.plain() from None
+            count = len(_xlsx.sheet_names(path, wb))
+            for index in range(1, count):
+                try:
+                    return _read_xlsx_sheet(
+                        path, data, wb, index, x_column, signal_column, unit_arg, dec
+                    )
+                except _NoTableInSheet:
+                    continue
+            suffix = f" (nor in any of the other {count - 1} sheet(s))" if count > 1 else ""
+            raise first_error.plain(suffix) from None
 
 
 def _read_xlsx_sheet(
     path: str | os.PathLike[str],
     data: bytes,
+    wb: Any,
     sheet: str | int | None,
     x_column: str | int | None,
     signal_column: str | int | None,
     unit_arg: str | None,
     dec: str | None,
 ) -> Chromatogram:
-    name, raw = _xlsx.read_rows(path, data, sheet)
+    name, raw = _xlsx.sheet_rows(path, wb, sheet)
     err: dict[str, Any] = {"path": path, "sheet": name}
     head_rows = raw[:SCAN_LINES]
     lines = ["\t".join(_cell_text(v, dec) for v in r) for r in head_rows]
@@ -915,7 +1209,8 @@ def _read_xlsx_sheet(
         raise _NoTableInSheet(
             f"no table of numbers found in the first {len(lines)} rows: expected rows with "
             "at least two numbers (x and signal) under a header row such as "
-            "'Volume (mL)' | 'RI (mV)'",
+            "'Volume (mL)' | 'RI (mV)'; check that this is the slice export and choose "
+            "the sheet that holds the slices (import.sheet in the method file)",
             **err,
         )
     has_header = layout.header is not None
@@ -971,9 +1266,16 @@ def _read_xlsx_sheet(
                     f"row {i + 1}: cell {cell} (column {col!r}) is empty inside the data "
                     "table; fill it in or delete the row"
                 )
-        else:
+        elif _too_large(value):
             msg = (
-                f"row {i + 1}: cell {cell} (column {col!r}) holds {value!r}, not a number, "
+                f"row {i + 1}: cell {cell} (column {col!r}) holds a number too large to "
+                "compute with (beyond ±1.8e308); correct it or delete the row"
+            )
+        else:
+            shown = _safe_str(value) if not isinstance(value, str) else value
+            shown = shown if len(shown) <= 60 else shown[:57] + "..."
+            msg = (
+                f"row {i + 1}: cell {cell} (column {col!r}) holds {shown!r}, not a number, "
                 "inside the data table; correct it or delete the row"
             )
         raise InputFormatError(msg, row=i + 1, column=col, **err)
@@ -989,7 +1291,7 @@ def _read_xlsx_sheet(
         xi,
         yi,
         metadata,
-        (layout.header + 1) if has_header else 0,
+        (layout.header + 1) if layout.header is not None else 0,
         name,
         notes,
         lambda k: int(rows_arr[k]),

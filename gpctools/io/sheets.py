@@ -30,7 +30,7 @@ from typing import Any
 import pandas as pd
 
 from gpctools.errors import InputFormatError
-from gpctools.io import _xlsx
+from gpctools.io import _text, _xlsx
 from gpctools.io._files import decode_text, detect_kind, read_bytes
 
 __all__ = ["read_sheet", "sheet_row_number"]
@@ -123,6 +123,14 @@ def _sniff_delimiter(lines: list[str]) -> str:
 
 
 def _read_text_sheet(path: str | os.PathLike[str], text: str) -> pd.DataFrame:
+    long_line = _text.find_long_line(text)
+    if long_line is not None:
+        line, length = long_line
+        raise InputFormatError(
+            f"line {line} is {length:,} characters long (at most {_text.MAX_LINE_CHARS:,} are "
+            "read); a sheet row is far shorter: check that this is the sheet you meant",
+            path=path, row=line,
+        )
     lines = text.split("\n")
     nonblank = [ln for ln in lines[:200] if ln.strip()][:20]
     if not nonblank:
@@ -134,6 +142,15 @@ def _read_text_sheet(path: str | os.PathLike[str], text: str) -> pd.DataFrame:
     start = 1
     try:
         for record in reader:
+            if reader.line_num > start:
+                # A quote left open swallows the following lines into one cell without a
+                # word from the csv module; a sheet cell never spans lines, so refuse.
+                raise InputFormatError(
+                    f"line {start}: a quote (\") opened on this line is not closed before its "
+                    f"end, so lines {start} to {reader.line_num} would be read as one row; "
+                    "remove the stray quote, or the line break inside the quoted cell",
+                    path=path, row=start,
+                )
             rows.append([cell.strip() for cell in record])
             row_numbers.append(start)
             start = reader.line_num + 1

@@ -175,18 +175,55 @@ def date_column(table: pd.DataFrame) -> str | None:
     return None
 
 
-def dates(table: pd.DataFrame, column: str | None) -> list[_dt.datetime | None]:
+#: Date texts accepted besides ISO 8601: day.month.year, year/month/day, and month names.
+_DATE_FORMATS = ("%d.%m.%Y", "%d.%m.%Y %H:%M", "%Y/%m/%d", "%d-%b-%Y", "%d %b %Y", "%b %d %Y",
+                 "%d %B %Y", "%B %d %Y", "%Y%m%d")
+
+
+def _date_text(text: str) -> _dt.datetime | None:
+    try:
+        return _dt.datetime.fromisoformat(text.replace("Z", "")).replace(tzinfo=None)
+    except ValueError:
+        pass
+    for fmt in _DATE_FORMATS:
+        try:
+            return _dt.datetime.strptime(text, fmt)
+        except ValueError:
+            continue
+    return None
+
+
+def dates(table: pd.DataFrame, column: str | None, *, strict: bool = True) -> list[_dt.datetime | None]:
     """Dates of a column as :class:`datetime.datetime` (None for blank cells).
 
-    Accepted: date/datetime cells of a workbook, and text in ISO 8601 (``2026-03-14``,
-    ``2026-03-14 09:30``, ``2026-03-14T09:30:00``). Day-first or month-first text such as
-    ``03/04/2026`` is refused: it reads two ways.
+    Accepted: date/datetime cells of a workbook; text in ISO 8601 (``2026-03-14``,
+    ``2026-03-14 09:30``, ``2026-03-14T09:30:00``), ``14.03.2026``, ``2026/03/14``,
+    ``14-Mar-2026``, ``14 March 2026``. Slash dates with the year last (``03/04/2026``)
+    are refused: they read two ways.
+
+    Parameters
+    ----------
+    strict : bool
+        Raise for a cell that is no such date; with False the whole column is ignored
+        (every date None) and a :class:`QCWarning` says so.
 
     Raises
     ------
     DataError
-        Naming the row and column, for a cell that is not such a date.
+        Naming the row and column (``strict`` only).
     """
+    try:
+        return _dates(table, column)
+    except DataError as exc:
+        if strict:
+            raise
+        import warnings
+
+        warnings.warn(f"{exc}; the points are kept in the order of the files", QCWarning, stacklevel=2)
+        return [None] * len(table)
+
+
+def _dates(table: pd.DataFrame, column: str | None) -> list[_dt.datetime | None]:
     if column is None:
         return [None] * len(table)
     out: list[_dt.datetime | None] = []
@@ -204,10 +241,10 @@ def dates(table: pd.DataFrame, column: str | None) -> list[_dt.datetime | None]:
             out.append(v.to_pydatetime().replace(tzinfo=None))
             continue
         text = label_text(v)
-        try:
-            out.append(_dt.datetime.fromisoformat(text.replace("Z", "")).replace(tzinfo=None))
-        except ValueError:
+        d = _date_text(text)
+        if d is None:
             raise DataError(
                 f"row {i + 1}: {text!r} is not a date; write dates as YYYY-MM-DD "
-                "(ISO 8601, e.g. 2026-03-14)", column=column, row=i + 1) from None
+                "(ISO 8601, e.g. 2026-03-14)", column=column, row=i + 1)
+        out.append(d)
     return out

@@ -193,6 +193,7 @@ def trend_points(
     exclude_sequences: frozenset[str] | set[str] = frozenset(),
     check_standards: bool = True,
     flag_column: str | None = None,
+    default_product: str = "",
 ) -> list[TrendPoint]:
     """Trend points of one results table, in order of appearance.
 
@@ -210,6 +211,9 @@ def trend_points(
         Include check-standard points (group ``"check standard <name>"``, one per sequence).
     flag_column : str, optional
         A yes/no column marking the baseline period.
+    default_product : str
+        Product of every row when the table has no ``product`` column (a history table of
+        one product).
 
     Returns
     -------
@@ -223,10 +227,12 @@ def trend_points(
     role = T.roles(table)
     sid = T.labels(table, C.SAMPLE_ID) if C.SAMPLE_ID in table.columns else \
         np.array([f"row {i + 1}" for i in range(len(table))], dtype=object)
-    product = T.labels(table, C.PRODUCT)
+    product = T.labels(table, C.PRODUCT, default_product)
     batch = T.labels(table, C.BATCH, "(no batch)")
+    if C.BATCH not in table.columns:  # one row per batch: its sample id (or row) names it
+        batch = sid
     seq = T.labels(table, C.SEQUENCE, T.ALL_SEQUENCES)
-    when = T.dates(table, T.date_column(table))
+    when = T.dates(table, T.date_column(table), strict=False)
     flag = _flags(table, flag_column)
     values = T.numbers(table, head)
     use = ok & np.isfinite(values) & np.array([s not in exclude_sequences for s in seq], dtype=bool)
@@ -285,9 +291,18 @@ def _series(column: str, sources: list[tuple[pd.DataFrame, frozenset[str], str]]
     """Trend points of one column from every table, by group and label (later replaces earlier)."""
     assert settings.baseline is not None
     series: dict[str, dict[str, tuple[TrendPoint, str]]] = {}
+    current = sources[-1][0]
+    role = T.roles(current)
+    products = {p for p, r in zip(T.labels(current, C.PRODUCT).tolist(), role, strict=True)
+                if p and r in T.SAMPLE_ROLES}
+    single = products.pop() if len(products) == 1 else ""
     for tab, excl, phase in sources:
+        default = single if (phase == "history" and C.PRODUCT not in tab.columns) else ""
+        if default:
+            notes.append(f"a history table has no 'product' column: its points are charted as "
+                         f"product {default}, the only product of the current run")
         for p in trend_points(tab, column, exclude_sequences=excl, check_standards=settings.chart_check_standards,
-                              flag_column=settings.baseline.column):
+                              flag_column=settings.baseline.column, default_product=default):
             pts = series.setdefault(p.group, {})
             if p.label in pts:
                 msg = (f"trend {p.group} {column}: point {p.label!r} appears again ({phase}); "

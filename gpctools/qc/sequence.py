@@ -12,18 +12,22 @@ a lab runs it and processes each injection by its role:
     for peaks inside each product's integration window (:mod:`gpctools.qc.blanks`), and
     with ``blank_subtraction`` it is subtracted from the sequence's other injections;
 ``check_standard``, ``sample``, ``replicate``
-    processed with the method of their product: the QC settings may give a product an
-    integration window in molar mass (converted to volumes with the sequence's
-    calibration) or a method file of its own (check standards included). Every method used
-    is recorded with its SHA-256.
+    processed by :func:`gpctools.batch.iter_batch` with the method of their row: the QC
+    settings may give a product an integration window in molar mass or a method file of
+    its own (check standards included); these are expanded into the rows' overrides
+    (:class:`gpctools.method.MethodOverrides`) and ``method file`` unless the batch sheet
+    sets them for that row itself. Limits in molar mass are converted with the sequence's
+    calibration. Every method used is recorded with its SHA-256 (``method file``,
+    ``method SHA-256`` and ``overrides`` of each row).
 
 Nothing is written: :func:`gpctools.report.run_qc` writes the reports. The result has the
 attributes of a :class:`gpctools.batch.BatchResult` (``table``, ``injections``,
 ``entries``, ``method``, ``sheet``), so :func:`gpctools.report.write_batch` writes its
 results table too.
 
-Per-product methods are made here, by replacing the method's calibration and limits
-(:func:`dataclasses.replace`), until the batch sheet carries per-row methods itself.
+A sequence's own calibration replaces the calibration of every method its rows use
+(:func:`dataclasses.replace`; the order, polymers and Mark-Houwink conversion stay each
+method's, :func:`gpctools.qc.standards_run.calibration_from_standards`).
 """
 
 from __future__ import annotations
@@ -43,12 +47,13 @@ from gpctools.batch import (
     BatchEntry,
     InjectionResult,
     iter_batch,
+    load_batch_methods,
     process_trace,
     read_batch_sheet,
 )
 from gpctools.calibration import Calibration
 from gpctools.errors import CalibrationError, GpcError, InputFormatError
-from gpctools.method import Method
+from gpctools.method import Method, MethodOverrides
 from gpctools.qc import _table as T
 from gpctools.qc.blanks import BlankFinding, ProductWindow, check_blank, subtract_blank
 from gpctools.qc.settings import QCSettings
@@ -62,21 +67,13 @@ from gpctools.qc.standards_run import (
 from gpctools.sheets import batch as _roles
 from gpctools.sheets import cells
 
-__all__ = ["SequenceRun", "run_sequence", "volume_at", "method_label"]
+__all__ = ["SequenceRun", "run_sequence", "method_label", "expand_products"]
 
 
 def method_label(method: Method) -> str:
     """``"<file name> (SHA-256 <first 12 hex digits>)"`` of a method, for tables."""
     name = Path(method.source).name if method.source else (method.name or "method (in memory)")
     return f"{name} (SHA-256 {method.sha256[:12]})" if method.sha256 else name
-
-
-def volume_at(calibration: Calibration, M: float) -> float:
-    """Elution volume at molar mass M [mL]: the inverse of ``calibration.M`` (tangent
-    continuation outside the calibrated range), by interpolation on a 0.0005 mL grid."""
-    grid = np.linspace(calibration.v_min - 15.0, calibration.v_max + 15.0, 80001)
-    logm = calibration.log_M(grid)
-    return float(np.interp(math.log10(M), logm[::-1], grid[::-1]))
 
 
 @dataclass
@@ -245,25 +242,31 @@ def _standards(st: _State) -> None:
             st.rows[pos][C.WORST_STANDARD_RESIDUAL] = max(rs, key=abs)
 
 
-def _product_method(st: _State, seq: str, product: str) -> Method:
-    """The method of one product in one sequence: its own file or the run's, with the
-    sequence's calibration and the product's molar-mass window."""
-    ps = st.settings.product(product) if product else None
-    m = st.method
-    if ps is not None and ps.method:
-        from gpctools.method import load_method
-
-        m = load_method(ps.method)
-    cal = m.calibration
-    located = [s for s in st.standards if s.sequence == seq]
-    if seq in st.calibrations:
-        cal = calibration_from_standards(located, m) if m is not st.method else st.calibrations[seq]
-    limits = m.limits
-    if ps is not None and ps.limits:
-        limits = (volume_at(cal, ps.limits[1]), volume_at(cal, ps.limits[0]))
-    out = replace(m, calibration=cal, limits=limits)
-    st.methods.setdefault(method_label(m), m)
+def expand_products(entries: list[BatchEntry], settings: QCSettings) -> list[BatchEntry]:
+    """Per-product settings as per-row overrides: a product's molar-mass window becomes the
+    row's ``limits_M`` and its method file the row's ``method file``, unless the batch sheet
+    gives that row limits or a method file itself (the row wins)."""
+    out = []
+    for e in entries:
+        ps = settings.product(cells.text(e.metadata.get(C.PRODUCT)))
+        if ps is None or _roles.role_of(e.role) not in (*T.SAMPLE_ROLES, T.ROLE_CHECK):
+            out.append(e)
+            continue
+        if ps.limits and e.overrides.limits is None and e.overrides.limits_M is None:
+            e = replace(e, overrides=MethodOverrides(limits_M=ps.limits, windows=e.overrides.windows))
+        if ps.method and e.method_path is None:
+            e = replace(e, method_file=ps.method, method_path=Path(ps.method))
+        out.append(e)
     return out
+
+
+def _sequence_methods(st: _State, seq: str, methods: dict[str, Method]) -> tuple[Method, dict[str, Method]]:
+    """The run's method and the row methods with the sequence's own calibration, if it has one."""
+    if seq not in st.calibrations:
+        return st.method, methods
+    located = [s for s in st.standards if s.sequence == seq]
+    own = {k: replace(m, calibration=calibration_from_standards(located, m)) for k, m in methods.items()}
+    return replace(st.method, calibration=st.calibrations[seq]), own
 
 
 def _blank_traces(st: _State) -> dict[str, list[tuple[np.ndarray, np.ndarray]]]:
@@ -283,23 +286,30 @@ def _blank_traces(st: _State) -> dict[str, list[tuple[np.ndarray, np.ndarray]]]:
     return out
 
 
-def _subtracted(st: _State, idx: list[int], m: Method, blank: tuple[np.ndarray, np.ndarray],
-                on_result: Any) -> None:
-    """Process entries with the sequence's blank subtracted first."""
-    for i in idx:
-        e = st.entries[i]
+def _subtracted(st: _State, items: list[tuple[int, BatchEntry]], method: Method, methods: dict[str, Method],
+                blank: tuple[np.ndarray, np.ndarray], on_result: Any) -> None:
+    """Process entries with the sequence's blank subtracted first (each with its row's method)."""
+    for i, e in items:
+        m = methods.get(str(e.method_path), method) if e.method_path is not None else method
+        used = m.with_overrides(e.overrides)
         try:
-            V, h, marker = _trace(st, i, m)
+            V, h, marker = _trace(st, i, used)
             h2 = subtract_blank(V, h, *blank)
-            factor = (m.marker_reference / marker) if (marker is not None and m.marker_reference) else 1.0
-            res = process_trace(V / factor, h2, m, sample_id=e.sample_id, file=e.file, marker_observed=marker)
+            factor = (used.marker_reference / marker) if (marker is not None and used.marker_reference) else 1.0
+            res = process_trace(V / factor, h2, used, sample_id=e.sample_id, file=e.file,
+                                marker_observed=marker if used.marker_reference else None)
         except GpcError as exc:
             st.rows[i] = _error(_base_row(e), str(exc) if exc.path else f"{e.path}: {exc}")
             st.results[i] = None
             continue
         row = _base_row(e)
         row.update(res.row())
-        row[C.FILE] = e.file
+        lo, hi = res.corrected.limits
+        M_lo, M_hi = (float(x) for x in used.calibration.M([lo, hi]))
+        row.update({C.FILE: e.file, C.INTEGRATION_START: lo, C.INTEGRATION_END: hi,
+                    C.M_AT_INTEGRATION_START: M_lo, C.M_AT_INTEGRATION_END: M_hi,
+                    C.METHOD_FILE: e.method_file or m.label, C.METHOD_SHA256: m.sha256 or "",
+                    C.OVERRIDES: e.overrides.describe()})
         row[C.WARNINGS] = "; ".join(filter(None, [row.get(C.WARNINGS, ""), "blank subtracted"]))
         st.rows[i] = row
         st.results[i] = res
@@ -309,28 +319,31 @@ def _subtracted(st: _State, idx: list[int], m: Method, blank: tuple[np.ndarray, 
 
 def _process(st: _State, blanks: dict[str, list[tuple[np.ndarray, np.ndarray]]], *, workers: int | None,
              on_result: Any, progress: Callable[[int, int], None] | None) -> None:
-    """Samples, replicates and check standards, grouped by (sequence, product) method."""
-    groups: dict[tuple[str, str], list[int]] = {}
-    for i in st.positions(*T.SAMPLE_ROLES, T.ROLE_CHECK):
-        product = cells.text(st.entries[i].metadata.get(C.PRODUCT))
-        groups.setdefault((st.sequence[i], product), []).append(i)
+    """Samples, replicates and check standards, sequence by sequence, each with its row's
+    method (per-product settings expanded into the rows' overrides and method files)."""
+    idx_all = st.positions(*T.SAMPLE_ROLES, T.ROLE_CHECK)
+    rows = expand_products([st.entries[i] for i in idx_all], st.settings)
+    rows, methods = load_batch_methods(rows, st.method, "the batch sheet")
+    for m in methods.values():
+        st.methods.setdefault(method_label(m), m)
+    by_seq: dict[str, list[tuple[int, BatchEntry]]] = {}
+    for i, e in zip(idx_all, rows, strict=True):
+        by_seq.setdefault(st.sequence[i], []).append((i, e))
     done, total = 0, len(st.entries)
-    for (seq, product), idx in groups.items():
-        m = _product_method(st, seq, product)
-        label = method_label(m)
+    for seq, items in by_seq.items():
+        m, ms = _sequence_methods(st, seq, methods)
         calib = (f"sequence {seq}: own standards ({sum(s.sequence == seq for s in st.standards)})"
                  if seq in st.calibrations else "method's standards table")
         if st.settings.blank_subtraction and blanks.get(seq):
-            _subtracted(st, idx, m, blanks[seq][0], on_result)
+            _subtracted(st, items, m, ms, blanks[seq][0], on_result)
         else:
-            for i, (row, res) in zip(idx, iter_batch([st.entries[i] for i in idx], m, workers=workers,
-                                                     on_result=on_result, keep=True), strict=True):
+            for (i, _), (row, res) in zip(items, iter_batch([e for _, e in items], m, methods=ms, workers=workers,
+                                                            on_result=on_result, keep=True), strict=True):
                 st.rows[i] = {**row, C.SHEET_ROW: st.entries[i].row}
                 st.results[i] = res
-        for i in idx:
+        for i, _ in items:
             st.rows[i][C.SEQUENCE_CALIBRATION] = calib
-            st.rows[i][C.METHOD_USED] = label
-        done += len(idx)
+        done += len(items)
         if progress is not None:
             progress(done, total)
 
@@ -373,7 +386,7 @@ def _table(st: _State) -> pd.DataFrame:
     rows = [st.rows[i] for i in range(len(st.entries))]
     meta = list(st.entries[0].metadata) if st.entries else []
     front = [C.SAMPLE_ID, C.FILE, C.ROLE, *meta]
-    qc_cols = [C.SEQUENCE_CALIBRATION, C.METHOD_USED, C.STANDARDS_LOCATED, C.WORST_STANDARD_RESIDUAL,
+    qc_cols = [C.SEQUENCE_CALIBRATION, C.STANDARDS_LOCATED, C.WORST_STANDARD_RESIDUAL,
                C.BLANK_PEAK, C.BLANK_DETAILS, C.SHEET_ROW]
     df = pd.DataFrame(rows)
     for c in qc_cols:

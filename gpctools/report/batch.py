@@ -153,6 +153,10 @@ def write_batch(
         "injections": len(result.entries),
         "failed": result.failed,
         "method": {k: v for k, v in result.method.summary().items() if k != "calibration"},
+        # every method the batch used (a sheet may name one per row), with its hash
+        "methods": [{"method file": label, "method SHA-256": m.sha256, "name": m.name}
+                    for label, m in getattr(result, "methods", {}).items()],
+        "warnings": list(getattr(result, "warnings", ())),
         "calibration": result.calibration.summary(),
     }
     paths["manifest.json"] = write_text(out / "manifest.json", json.dumps(manifest, indent=2, default=str) + "\n")

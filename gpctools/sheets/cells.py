@@ -42,9 +42,11 @@ in the header.
 Header units
 ------------
 :func:`split_header` takes the unit of a header from square brackets (``Mn [kg/mol]``),
-from parentheses holding a known unit (``Mp (g/mol)``), or after a comma or `` in ``
-(``Mn, kg/mol``, ``time in s``). :func:`canonical_unit` spells units one way (``ml`` ->
-``mL``, ``degC`` -> ``°C``).
+from parentheses holding a known unit (``Mp (g/mol)``), after a comma or `` in ``
+(``Mn, kg/mol``, ``time in s``), or after a slash in quantity-calculus style (``Ve/mL``,
+``Mp/(g/mol)``; a single capital letter after the slash is a ratio, not a unit).
+:func:`canonical_unit` spells units one way (``ml`` -> ``mL``, ``degC`` -> ``°C``,
+``g mol-1`` and ``Da`` -> ``g/mol``).
 
 Also here: :func:`finite_or_none`, the one converter of a number to "finite float or
 None" for JSON summaries.
@@ -471,17 +473,40 @@ _UNITS = {
     "kg/mol": "kg/mol",
     "da": "g/mol",
     "kda": "kg/mol",
+    "dalton": "g/mol",
+    "daltons": "g/mol",
+    "g mol-1": "g/mol",
+    "g mol^-1": "g/mol",
+    "g mol⁻¹": "g/mol",
+    "g·mol-1": "g/mol",
+    "g·mol⁻¹": "g/mol",
+    "g/mole": "g/mol",
+    "kg mol-1": "kg/mol",
+    "kg mol^-1": "kg/mol",
+    "kg mol⁻¹": "kg/mol",
+    "kg·mol-1": "kg/mol",
+    "kg·mol⁻¹": "kg/mol",
+    "kg/mole": "kg/mol",
     "mol/l": "mol/L",
     "mmol/l": "mmol/L",
     "m": "mol/L",
     "mm": "mmol/L",
     "ml": "mL",
+    "cm3": "mL",
+    "cm³": "mL",
+    "cm^3": "mL",
     "l": "L",
     "µl": "µL",
+    "μl": "µL",
     "ul": "µL",
     "min": "min",
+    "min.": "min",
+    "mins": "min",
+    "minutes": "min",
     "s": "s",
     "sec": "s",
+    "sec.": "s",
+    "seconds": "s",
     "h": "h",
     "°c": "°C",
     "degc": "°C",
@@ -531,7 +556,8 @@ class Header:
     unit : str or None
         The unit as written (``None`` when the header has none).
     style : str or None
-        Where the unit was: ``"brackets"``, ``"parentheses"``, ``"suffix"`` or None.
+        Where the unit was: ``"brackets"``, ``"parentheses"``, ``"suffix"``, ``"slash"``
+        or None.
     """
 
     text: str
@@ -585,11 +611,37 @@ def split_header(header: Any) -> Header:
             return Header(raw, name.strip(), unit.strip(), "brackets")
     m = _PAREN.match(raw)
     if m and canonical_unit(m.group("unit")) is not None:
-        return Header(raw, m.group("name").strip(), m.group("unit").strip(), "parentheses")
+        name = m.group("name").strip()
+        style = "parentheses"
+        if name.endswith("/") and name[:-1].strip():  # "Mp/(g mol-1)"
+            name, style = name[:-1].strip(), "slash"
+        return Header(raw, name, m.group("unit").strip(), style)
     m = _SUFFIX.match(raw)
     if m and canonical_unit(m.group("unit")) is not None:
         return Header(raw, m.group("name").strip(), m.group("unit").strip(), "suffix")
+    slash = _slash_unit(raw)
+    if slash is not None:
+        return Header(raw, slash[0], slash[1], "slash")
     return Header(raw, raw, None, None)
+
+
+def _slash_unit(raw: str) -> tuple[str, str] | None:
+    """``(name, unit)`` of a quantity-calculus header (``Ve/mL``, ``Mp/(g/mol)``), or None.
+
+    The first ``/`` after which the rest is a known unit splits the header. A single
+    capital letter after the slash (``[A]/M``, ``C/S``) is not taken for a unit: those
+    headers are ratios more often than units.
+    """
+    for k in (i for i, ch in enumerate(raw) if ch == "/"):
+        name, unit = raw[:k].strip(), raw[k + 1:].strip()
+        if unit.startswith("(") and unit.endswith(")"):
+            unit = unit[1:-1].strip()
+        if not name or name.endswith(("]", "/")) or canonical_unit(unit) is None:
+            continue
+        if len(unit) == 1 and unit not in ("s", "K"):
+            continue
+        return name, unit
+    return None
 
 
 def normalise_name(name: str) -> str:

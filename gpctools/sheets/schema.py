@@ -287,16 +287,31 @@ def _shown(value: float, unit: str | None) -> str:
 
 def message_missing_column(schema: SheetSchema, f: Field, found: Sequence[str]) -> str:
     """``the <sheet> needs a 'H' column (also accepted: ...); found columns: ...``."""
-    names = [n for n in f.names if n != cells.normalise_name(cells.split_header(f.header).name)]
+    names = _accepted_names(f)
     also = f" (also accepted: {', '.join(repr(n) for n in names)})" if names else ""
     listed = ", ".join(repr(c) for c in found) if found else "none"
     where = f"; see {schema.template}" if schema.template else ""
     return f"the {schema.kind} needs a {f.header!r} column{also}; found columns: {listed}{where}"
 
 
+def _accepted_names(f: Field) -> list[str]:
+    """The other names of a field as declared (not in compared form), without repeats."""
+    own = cells.normalise_name(cells.split_header(f.header).name)
+    out: dict[str, str] = {}
+    for a in f.aliases:
+        key = cells.normalise_name(a)
+        if key != own:
+            out.setdefault(key, a)
+    return list(out.values())
+
+
 def message_missing_one_of(schema: SheetSchema, fields: Sequence[Field], found: Sequence[str]) -> str:
-    """``the <sheet> needs one of the columns 'a', 'b'; found columns: ...``."""
-    heads = ", ".join(repr(f.header) for f in fields)
+    """``the <sheet> needs one of the columns 'a' (also accepted: ...), 'b' (...); found columns: ...``."""
+    def accepted(f: Field) -> str:
+        names = _accepted_names(f)
+        return f"{f.header!r}" + (f" (also accepted: {', '.join(repr(n) for n in names)})" if names else "")
+
+    heads = ", ".join(accepted(f) for f in fields)
     listed = ", ".join(repr(c) for c in found) if found else "none"
     where = f"; see {schema.template}" if schema.template else ""
     return f"the {schema.kind} needs one of the columns {heads}; found columns: {listed}{where}"
