@@ -206,6 +206,8 @@ def test_inspect_still_describes_a_file_the_reader_refuses(tmp_path):
                                      '[[calibration.standard]]\nMp = 1e3\nvolume = 18\n', encoding="utf-8")
     r = runner.invoke(app, ["inspect", str(p), "-m", str(tmp_path / "m.toml")])
     assert r.exit_code == 2, r.output
-    assert "separator: semicolon (;); decimal mark: decimal point (.)" in r.output
+    # the file's own dialect is shown, then the refusal of the forced decimal point
+    assert "separator: semicolon (;); decimal mark: decimal comma (,)" in r.output
+    assert "import.decimal" in r.output
     assert "error: " in r.output and "export.csv" in r.output
     _ok_no_traceback(r)

@@ -385,6 +385,9 @@ def _describe_text(
     dec = decimal if decimal in (".", ",") else None
     head = text.split("\n", SCAN_LINES)[:SCAN_LINES]
     layout = locate_block(head, text, sep=sep, decimal=dec)
+    if layout is None and (sep is not None or dec is not None):
+        # The forced dialect does not fit (the reader says so): show the file's own.
+        layout = locate_block(head, text)
     if layout is None:
         return desc
     d = layout.dialect
