@@ -245,7 +245,9 @@ def _run_sequence_with_progress(sheet: Path, method, settings, out: Path, worker
     from .qc.sequence import run_sequence
     from .report import DistributionWriter, write_batch
 
-    total = len(read_batch_sheet(sheet, sheet=sheet_name))
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")  # run_sequence reads the sheet again and reports
+        total = len(read_batch_sheet(sheet, sheet=sheet_name))
     with _progress_bar(total, "injections") as prog:
         task = prog.add_task("sequence", total=total)
         run = run_sequence(sheet, method, settings, sheet_name=sheet_name, workers=workers,
@@ -267,8 +269,13 @@ def _print_qc(res) -> None:
             for r in b.reasons:
                 typer.echo(f"    - {r}")
     typer.echo("injections:")
+    from .columns import SHEET_ROW
+
+    sheet_rows = res.table[SHEET_ROW].tolist() if SHEET_ROW in res.table.columns else []
     for v in res.decisions.injections:
-        typer.echo(f"  {v.sample_id} ({v.role}, row {v.position + 1}): {v.verdict}")
+        row = sheet_rows[v.position] if sheet_rows else None
+        where = f"sheet row {int(row)}" if row == row and row is not None else f"results row {v.position + 1}"
+        typer.echo(f"  {v.sample_id} ({v.role}, {where}): {v.verdict}")
         if v.verdict != "pass":
             for r in v.reasons:
                 typer.echo(f"    - {r}")

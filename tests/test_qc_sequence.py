@@ -536,8 +536,8 @@ def test_cli_qc_on_the_bundled_sequence_with_defaults(sample_runs_dir, tmp_path,
 
     # true Mw 243 403 g/mol; the round trip recovers it within 0.5 % (noise, limits)
     assert re.search(r"Mw 24[23] \d{3} g/mol above max 240 000 g/mol", text)
-    for line in ("CAL-MIX-A (calibration_standard, row 1): pass", "BLANK-1 (blank, row 4): pass",
-                 "CHK-1 (check_standard, row 5): pass", "B2612-03 (replicate, row 11): fail"):
+    for line in ("CAL-MIX-A (calibration_standard, sheet row 2): pass", "BLANK-1 (blank, sheet row 5): pass",
+                 "CHK-1 (check_standard, sheet row 6): pass", "B2612-03 (replicate, sheet row 12): fail"):
         assert line in text
     assert "breaks N2" in text and "B2612-02 breaks N1" in text and "B2612-03 breaks N1" in text
     for f in ("qc_report.html", "qc_report.xlsx", "results.csv", "audit.json"):
@@ -655,3 +655,19 @@ def test_history_without_product_column_and_other_date_spellings():
         res = evaluate_qc(current, specs_from_frame(pd.DataFrame({"product": ["P"]})), calibration=CAL,
                           history=[hist], settings=settings)
     assert res.trends[0].labels[:3] == ("H2", "H1", "H3")
+
+
+def test_a_replicate_with_an_id_of_its_own_joins_the_sample_of_its_batch():
+    # B1 and its replicate written B1-R: one sample of two injections (RSD derived:
+    # 100·sd(100000, 102000)/101000 = 1.40 %); a second sample in another batch stays apart
+    rows = [{"sample_id": s, "role": r, "product": "P", "batch": b, "sequence": "S1", "status": "ok",
+             "Mw [g/mol]": mw, "Mn [g/mol]": mw / 2} for s, r, b, mw in
+            (("B1", "sample", "L1", 100000.0), ("B1-R", "replicate", "L1", 102000.0),
+             ("B2", "sample", "L2", 101000.0))]
+    table = pd.DataFrame(rows)
+    dec = decide(table, specs_from_frame(pd.DataFrame({"product": ["P"], "Mw max [g/mol]": [2e5]})), ())
+    assert [(s.sample_id, s.injections) for s in dec.samples] == [("B1", 2), ("B2", 1)]
+    (suit,) = system_suitability(table, CAL, limits=NO_CHECK)
+    (rep,) = [r for r in suit.replicates if r.quantity == "Mw"]
+    assert [(g.key, g.n) for g in rep.groups] == [("B1", 2)]
+    assert rep.value == pytest.approx(100 * np.std([100000, 102000], ddof=1) / 101000, rel=1e-12)

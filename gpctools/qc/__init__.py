@@ -34,6 +34,7 @@ from gpctools.qc._table import (
     ROLE_SAMPLE,
     SAMPLE_ROLES,
     role_of,
+    sample_keys,
 )
 from gpctools.qc.decisions import (
     FAIL,
@@ -105,6 +106,7 @@ __all__ = [
     "ROLE_CALIBRATION",
     "ROLE_REPLICATE",
     "SAMPLE_ROLES",
+    "sample_keys",
     "PASS",
     "FAIL",
     "NOT_REPORTABLE",

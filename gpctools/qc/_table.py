@@ -30,6 +30,7 @@ __all__ = [
     "SAMPLE_ROLES",
     "ALL_SEQUENCES",
     "check_roles",
+    "sample_keys",
     "date_column",
     "dates",
     "role_of",
@@ -85,6 +86,27 @@ def check_roles(table: pd.DataFrame, what: str = "the results table") -> None:
             raise DataError(
                 f"{what}, row {i + 1}: unknown role {label_text(v)!r}; write one of: "
                 f"{', '.join(_batch_sheet.ROLES)}", column=C.ROLE, row=i + 1)
+
+
+def sample_keys(table: pd.DataFrame) -> np.ndarray:
+    """The sample each row belongs to: its ``sample_id``, except that a ``replicate`` row whose
+    id no ``sample`` row shares joins the only sample of its batch (and product), when there
+    is exactly one (``B1`` and its replicate written ``B1-R``)."""
+    sid = labels(table, C.SAMPLE_ID)
+    role = roles(table)
+    batch = labels(table, C.BATCH)
+    product = labels(table, C.PRODUCT)
+    keys = sid.copy()
+    samples = role == ROLE_SAMPLE
+    shared = set(sid[samples].tolist())
+    for i in np.flatnonzero(role == ROLE_REPLICATE):
+        if sid[i] in shared or not batch[i]:
+            continue
+        same = samples & (batch == batch[i]) & (product == product[i])
+        ids = set(sid[same].tolist())
+        if len(ids) == 1:
+            keys[i] = ids.pop()
+    return keys
 
 
 def roles(table: pd.DataFrame) -> np.ndarray:

@@ -552,8 +552,9 @@ def decide(
     t = _Table.of(table)
     suit = {s.sequence: s for s in suitability}
     groups: dict[tuple[str, str], list[int]] = {}
+    keys = T.sample_keys(table)
     for i in np.flatnonzero(np.isin(t.role, T.SAMPLE_ROLES)):
-        groups.setdefault((t.batch[i], t.sid[i]), []).append(int(i))
+        groups.setdefault((t.batch[i], keys[i]), []).append(int(i))
     samples: list[SampleDecision] = []
     per_injection: dict[int, tuple[str, list[str]]] = {}
     for (b, s), rows in groups.items():

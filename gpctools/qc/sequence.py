@@ -33,6 +33,7 @@ method's, :func:`gpctools.qc.standards_run.calibration_from_standards`).
 from __future__ import annotations
 
 import math
+import warnings
 from collections.abc import Callable
 from dataclasses import dataclass, field, replace
 from pathlib import Path
@@ -86,7 +87,8 @@ class SequenceRun:
         One row per injection, in sheet order: the batch result columns for processed
         injections; ``blank peak [% of product peak]`` and ``blank check`` for blanks;
         ``standards located`` and ``worst standard residual [%]`` for calibration
-        standards; ``calibration``, ``method used`` and ``sheet row [-]`` for all.
+        standards; ``calibration`` and ``sheet row [-]`` for all (``method file``,
+        ``method SHA-256`` and ``overrides`` for processed rows).
     injections : list of InjectionResult or None
         Same order; None for blanks, calibration standards and failed rows.
     entries : list of BatchEntry
@@ -431,7 +433,12 @@ def run_sequence(sheet: str | Path, method: Method, settings: QCSettings | None 
         An unknown role (the message lists the known ones), an unreadable sheet.
     """
     settings = settings or QCSettings()
-    entries = read_batch_sheet(sheet, sheet=sheet_name)
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        entries = read_batch_sheet(sheet, sheet=sheet_name)
+    for w in caught:  # repeated ids are the sequence's replicates and check standards: expected here
+        if "sample ids on more than one row" not in str(w.message):
+            warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
     _refuse_unknown_roles(entries)
     seqs = [cells.text(e.metadata.get(C.SEQUENCE)) or T.ALL_SEQUENCES for e in entries]
     st = _State(entries, method, settings, Path(sheet).parent, seqs)

@@ -533,13 +533,15 @@ def _flow_marker_check(rows: _Rows, limits: SuitabilityLimits,
 
 
 def replicate_groups(table: pd.DataFrame, column: str) -> list[ReplicateGroup]:
-    """Usable injections of samples (roles sample and replicate) grouped by ``sample_id``."""
+    """Usable injections of samples (roles sample and replicate) grouped by sample
+    (``sample_id``; a replicate with an id of its own joins the only sample of its batch)."""
     rows = _Rows.of(table)
     vals = T.numbers(table, column)
+    keys = T.sample_keys(table)
     groups: dict[str, list[float]] = {}
     for i in np.flatnonzero(rows.ok & np.isin(rows.role, T.SAMPLE_ROLES)):
-        if rows.sid[i] and math.isfinite(vals[i]):
-            groups.setdefault(rows.sid[i], []).append(float(vals[i]))
+        if keys[i] and math.isfinite(vals[i]):
+            groups.setdefault(keys[i], []).append(float(vals[i]))
     return [ReplicateGroup(k, tuple(v)) for k, v in groups.items()]
 
 

@@ -23,7 +23,7 @@ import pandas as pd
 
 from gpctools import columns as C
 from gpctools.errors import InputFormatError
-from gpctools.qc import QCResult, label_text, role_of
+from gpctools.qc import QCResult, label_text, role_of, sample_keys
 from gpctools.qc.decisions import Decisions
 
 __all__ = ["injections_sheet", "replicates_frame", "standards_frame", "blanks_frame",
@@ -198,7 +198,7 @@ def sample_pages(result: QCResult, figures: Mapping[int, dict[str, str]]) -> lis
     from gpctools.report import html as H
 
     table = result.table
-    sid = [label_text(v) for v in table[C.SAMPLE_ID].tolist()]
+    sid = [str(k) for k in sample_keys(table)]
     batch = [label_text(v) for v in table[C.BATCH].tolist()] if C.BATCH in table.columns else [""] * len(table)
     roles = [role_of(v) for v in table[C.ROLE].tolist()] if C.ROLE in table.columns else ["sample"] * len(table)
     verdicts = {v.position: v for v in result.decisions.injections}
