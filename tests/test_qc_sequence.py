@@ -671,3 +671,19 @@ def test_a_replicate_with_an_id_of_its_own_joins_the_sample_of_its_batch():
     (rep,) = [r for r in suit.replicates if r.quantity == "Mw"]
     assert [(g.key, g.n) for g in rep.groups] == [("B1", 2)]
     assert rep.value == pytest.approx(100 * np.std([100000, 102000], ddof=1) / 101000, rel=1e-12)
+
+
+def test_standards_are_found_beside_a_marker_and_a_system_peak():
+    from gpctools.qc.standards_run import locate_marker, locate_peaks
+
+    # three standards (derived centres 12, 15, 18 mL), a positive marker at 22.6 mL taller
+    # than any standard and a solvent peak at 24.5 mL: only the standards count
+    h = cocktail((12.0, 15.0, 18.0)) + gauss(GRID, 22.6, 0.08, 120.0) + gauss(GRID, 24.5, 0.2, 150.0)
+    peaks = locate_peaks(GRID, h, 3, exclusions=((22.2, 23.0),), search=(10.0, 21.0))
+    # tolerance 0.003 mL: one slice
+    assert [p.volume for p in peaks] == pytest.approx([12.0, 15.0, 18.0], abs=0.003)
+    assert all(0 < p.stderr < 0.003 and p.points >= 5 for p in peaks)
+    assert locate_marker(GRID, h, (22.2, 23.0)) == pytest.approx(22.6, abs=0.003)
+    assert locate_marker(GRID, cocktail((12.0,)), (22.2, 23.0)) is None  # no marker: no correction
+    with pytest.raises(Exception, match="found 3 peak"):
+        locate_peaks(GRID, h, 4, exclusions=((22.2, 23.0),), search=(10.0, 21.0))

@@ -201,8 +201,17 @@ def _trace(st: _State, i: int, method: Method) -> tuple[np.ndarray, np.ndarray, 
     marker = e.marker_observed
     if marker is None and method.marker_search is not None:
         marker = locate_marker(V, h, method.marker_search)
+        if marker is None:
+            st.warnings.append(f"{e.sample_id} (row {e.row}): no flow-marker peak in "
+                               f"{method.marker_search[0]:g}-{method.marker_search[1]:g} mL; its volumes "
+                               "are not corrected")
     if marker is not None and method.marker_reference is not None:
-        V = V * (method.marker_reference / marker)
+        factor = method.marker_reference / marker
+        if abs(factor - 1.0) > 0.05:
+            raise InputFormatError(f"flow marker at {marker:.3f} mL is more than 5 % from the reference "
+                                   f"{method.marker_reference:.3f} mL: check the marker peak or the search window",
+                                   path=e.path)
+        V = V * factor
     return V, h, marker
 
 
@@ -216,7 +225,10 @@ def _standards(st: _State) -> None:
         try:
             stds = injection_standards(e.metadata, e.sample_id, m.calibration, st.folder)
             V, h, marker = _trace(st, i, m)
-            peaks = locate_peaks(V, h, len(stds), windows=m.windows, exclusions=m.exclusions)
+            cal = m.calibration
+            skip = (*m.exclusions, *((m.marker_search,) if m.marker_search else ()))
+            peaks = locate_peaks(V, h, len(stds), windows=m.windows, exclusions=skip,
+                                 search=(cal.v_min - 1.5, cal.v_max + 1.5))
         except GpcError as exc:
             _error(row, str(exc) if exc.path else f"{e.path}: {exc}")
             continue

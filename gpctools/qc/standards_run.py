@@ -42,7 +42,7 @@ from gpctools.calibration import Calibration, fit_calibration
 from gpctools.distribution import peak_position
 from gpctools.errors import DataError, InputFormatError
 from gpctools.sheets import cells
-from gpctools.signal import fit_baseline
+from gpctools.signal import fit_baseline, noise_level
 
 __all__ = ["PeakTop", "LocatedStandard", "locate_peaks", "locate_marker", "read_standard_mix",
            "injection_standards", "calibration_from_standards", "raw_baseline", "TOP_FRACTION"]
@@ -162,7 +162,8 @@ def _top_fit(V: np.ndarray, h: np.ndarray, k: int) -> PeakTop:
 
 
 def locate_peaks(volume: Any, signal: Any, n: int, *, windows: Any = None,
-                 exclusions: Sequence[tuple[float, float]] = ()) -> list[PeakTop]:
+                 exclusions: Sequence[tuple[float, float]] = (),
+                 search: tuple[float, float] | None = None) -> list[PeakTop]:
     """The ``n`` most prominent peaks of a trace, each located by its top fit, by volume.
 
     Parameters
@@ -175,6 +176,9 @@ def locate_peaks(volume: Any, signal: Any, n: int, *, windows: Any = None,
         Baseline windows [mL]; see :func:`raw_baseline`.
     exclusions : sequence of (start, end)
         Regions never searched (flow marker, system peaks) [mL].
+    search : (start, end), optional
+        Only peaks inside this range count [mL] (the standards' expected range: system and
+        solvent peaks elute after it).
 
     Raises
     ------
@@ -192,6 +196,8 @@ def locate_peaks(volume: Any, signal: Any, n: int, *, windows: Any = None,
     smooth = np.convolve(c, np.ones(w) / w, mode="same")
     for a, b in exclusions:
         smooth[(V >= a) & (V <= b)] = 0.0
+    if search is not None:
+        smooth[(V < search[0]) | (V > search[1])] = 0.0
     top = float(smooth.max())
     if not top > 0:
         raise DataError("no peak above the baseline; check the export and the baseline windows")
@@ -209,12 +215,15 @@ def locate_peaks(volume: Any, signal: Any, n: int, *, windows: Any = None,
     return out
 
 
-def locate_marker(volume: Any, signal: Any, window: tuple[float, float]) -> float:
-    """Flow-marker peak position inside ``window`` [mL] (positive or negative peak).
+def locate_marker(volume: Any, signal: Any, window: tuple[float, float]) -> float | None:
+    """Flow-marker peak position inside ``window`` [mL] (positive or negative peak), or None
+    when the window holds no peak.
 
     A straight line through the window's ends is removed and the largest deviation is
     refined with :func:`gpctools.distribution.peak_position` (the batch processing finds
-    markers the same way).
+    markers the same way). A deviation below 10 times the white-noise SD of the window
+    (from point-to-point differences, :func:`gpctools.signal.noise_level`) is no marker:
+    correcting volumes by a noise spike would shift them by up to the window's width.
     """
     V = np.asarray(volume, dtype=float)
     h = np.asarray(signal, dtype=float)
@@ -229,6 +238,8 @@ def locate_marker(volume: Any, signal: Any, window: tuple[float, float]) -> floa
     dev = hm - line
     if abs(dev.min()) > abs(dev.max()):
         dev = -dev
+    if not float(dev.max()) > 10.0 * noise_level(hm):
+        return None
     return peak_position(Vm, dev)
 
 
