@@ -4,6 +4,11 @@ No science lives here. Every command runs inside :func:`_guard`, which turns a
 :class:`~gpctools.errors.GpcError` into a one-line message on stderr and exit code 2, and
 any other exception into a short internal-error message and exit code 3 (``--debug``
 shows the traceback). A batch with failed injections exits 1 after writing everything.
+A closed output pipe (``gpctools diagnose ... | head``) ends the command quietly with
+exit code 141 (128 + SIGPIPE, what a shell reports for tools stopped by a closed pipe).
+
+Progress (:func:`_stage`) goes to stderr, only when both stdout and stderr are terminals
+and ``--quiet`` is not given, and only for stages that last longer than about a second.
 """
 
 from __future__ import annotations
@@ -11,13 +16,17 @@ from __future__ import annotations
 import functools
 import os
 import sys
+import threading
 import warnings
+from collections.abc import Callable, Iterator
+from contextlib import contextmanager
 from pathlib import Path
-from typing import TYPE_CHECKING, Optional
+from typing import TYPE_CHECKING, Any, Optional
 
 import typer
 
 if TYPE_CHECKING:  # pragma: no cover
+    from .batch import BatchResult
     from .io.describe import ExportDescription
     from .method import Method
 
@@ -29,15 +38,28 @@ app = typer.Typer(
     help="SEC/GPC slice exports to molar-mass averages, chain-transfer constants, diagnosis and QC.",
 )
 
-_STATE = {"debug": False}
+_STATE = {"debug": False, "quiet": False}
 
 EXIT_FAILED_ROWS = 1
 EXIT_USER_ERROR = 2
 EXIT_INTERNAL = 3
+EXIT_CLOSED_PIPE = 141  # 128 + SIGPIPE
+
+#: A stage is shown only when it lasts longer than this [s] (GPCTOOLS_PROGRESS_DELAY
+#: overrides it; the tests set 0 so that they need no timing).
+PROGRESS_DELAY = 1.0
 
 
 def _err(text: str) -> None:
-    typer.echo(text, err=True)
+    # print(), not typer.echo: while a progress display is up, rich redirects sys.stderr
+    # and sys.stdout so that lines appear above it; click resolves its own stream and
+    # would write through the display.
+    print(text, file=sys.stderr, flush=True)
+
+
+def _say(text: str = "") -> None:
+    """Print one line on stdout; safe while a progress display is up (see :func:`_err`)."""
+    print(text, flush=True)
 
 
 def _show_warning(message, category, filename, lineno, file=None, line=None):  # noqa: ARG001
@@ -57,6 +79,9 @@ def _guard(func):
             return func(*args, **kwargs)
         except typer.Exit:
             raise
+        except BrokenPipeError:  # the reader went away (| head): stop quietly
+            _silence_stdout()
+            raise typer.Exit(EXIT_CLOSED_PIPE) from None
         except GpcError as exc:
             _err(f"error: {exc}")
             raise typer.Exit(EXIT_USER_ERROR) from None
@@ -78,11 +103,38 @@ def _guard(func):
     return wrapper
 
 
+def _silence_stdout() -> None:
+    """Point stdout at the null device after its reader went away.
+
+    Python flushes stdout at exit; without this, that flush fails again and prints
+    "Exception ignored ... BrokenPipeError" (the recipe of the Python documentation,
+    "Note on SIGPIPE"). Does nothing when stdout has no file descriptor (test runners).
+    """
+    try:
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+        os.close(devnull)
+    except (OSError, ValueError, AttributeError):
+        pass
+
+
+def _version(value: bool) -> None:
+    if value:
+        from . import __version__
+
+        typer.echo(f"gpctools {__version__}")
+        raise typer.Exit()
+
+
 @app.callback()
 def _root(
     debug: bool = typer.Option(False, "--debug", help="Show tracebacks of internal errors."),
+    quiet: bool = typer.Option(False, "--quiet", "-q", help="No progress display (it is shown only on a terminal anyway)."),
+    version: bool = typer.Option(False, "--version", callback=_version, is_eager=True,
+                                 help="Print the version and exit."),
 ) -> None:
     _STATE["debug"] = debug
+    _STATE["quiet"] = quiet
 
 
 def _check_out(out: Path) -> None:
@@ -101,23 +153,80 @@ def _check_out(out: Path) -> None:
             return
 
 
-def _progress_bar(total: int, label: str):
-    """A rich progress bar on stderr (rich comes with typer); silent when not a terminal."""
+def _progress_shown() -> bool:
+    """Progress goes to a terminal only: never into files, pipes or with --quiet."""
+    if _STATE["quiet"]:
+        return False
+    try:
+        return sys.stdout.isatty() and sys.stderr.isatty()
+    except (AttributeError, ValueError):
+        return False
+
+
+def _progress_delay() -> float:
+    try:
+        return max(0.0, float(os.environ.get("GPCTOOLS_PROGRESS_DELAY", PROGRESS_DELAY)))
+    except ValueError:
+        return PROGRESS_DELAY
+
+
+def _ignore_progress(done: int, total: int) -> None:  # noqa: ARG001
+    pass
+
+
+@contextmanager
+def _stage(label: str) -> Iterator[Callable[[int, int], None]]:
+    """Show ``label`` on stderr while the block runs, if it runs longer than about a second.
+
+    Yields ``advance(done, total)``: once called, the bar fills and counts ``done/total``;
+    otherwise it pulses. The elapsed time is shown either way. The display is transient
+    (it leaves no line behind) and appears only on a terminal (:func:`_progress_shown`).
+    rich comes with typer.
+    """
+    if not _progress_shown():
+        yield _ignore_progress
+        return
     from rich.console import Console
     from rich.progress import (
         BarColumn,
-        MofNCompleteColumn,
         Progress,
+        ProgressColumn,
+        SpinnerColumn,
         TextColumn,
-        TimeRemainingColumn,
+        TimeElapsedColumn,
     )
+    from rich.text import Text
 
-    console = Console(stderr=True)
-    prog = Progress(
-        TextColumn(label), BarColumn(), MofNCompleteColumn(), TimeRemainingColumn(),
-        console=console, transient=True, disable=not console.is_terminal,
-    )
-    return prog
+    class _Count(ProgressColumn):
+        def render(self, task: Any) -> Text:
+            return Text(f"{int(task.completed)}/{int(task.total)}" if task.total else "")
+
+    prog = Progress(SpinnerColumn(), TextColumn("{task.description}"), BarColumn(), _Count(), TimeElapsedColumn(),
+                    console=Console(stderr=True), transient=True)
+    task = prog.add_task(label, total=None)
+    lock = threading.Lock()
+    state = {"shown": False, "done": False}
+
+    def show() -> None:
+        with lock:
+            if not state["done"]:
+                state["shown"] = True
+                prog.start()
+
+    def advance(done: int, total: int) -> None:
+        prog.update(task, completed=done, total=total)
+
+    timer = threading.Timer(_progress_delay(), show)
+    timer.daemon = True
+    timer.start()
+    try:
+        yield advance
+    finally:
+        timer.cancel()
+        with lock:
+            state["done"] = True
+            if state["shown"]:
+                prog.stop()
 
 
 def _fmt(v) -> str:
@@ -139,16 +248,14 @@ def _print_table(rows: list[dict], columns: list[str]) -> None:
         typer.echo("  ".join(_fmt(r.get(c, "")).ljust(widths[c]) for c in columns))
 
 
-def _run_batch_with_progress(sheet: Path, method, out: Path, workers: int | None,
-                             sheet_name: str | None = None):
+def _run_batch_with_progress(sheet: Path, method: Method | None, out: Path, workers: int | None,
+                             sheet_name: str | None = None) -> BatchResult:
     from .batch import run_batch
     from .report import DistributionWriter, write_batch
 
-    with _progress_bar(0, "injections") as prog:
-        task = prog.add_task("batch", total=None)
+    with _stage("injections") as advance:
         result = run_batch(
-            sheet, method, sheet=sheet_name, workers=workers,
-            progress=lambda done, tot: prog.update(task, completed=done, total=tot),
+            sheet, method, sheet=sheet_name, workers=workers, progress=advance,
             on_result=DistributionWriter(out / "distributions"),
         )
     write_batch(result, out, distributions=False)  # distributions were written while running
@@ -202,9 +309,9 @@ def batch_cmd(
 @_guard
 def qc_cmd(
     sheet: Path = typer.Argument(..., help="Batch sheet (with --method), or a results.csv written by 'gpctools batch'."),
-    specs: Path = typer.Option(..., "--specs", "-s", help="Spec-limits sheet (CSV or XLSX, wide or long form), see templates/spec_limits*.csv."),
+    specs: Path = typer.Option(..., "--specs", "-s", help="Spec-limits sheet (CSV or XLSX, wide or long form), start from `gpctools template spec_limits.csv` (wide) or spec_limits_long.csv."),
     method: Optional[Path] = typer.Option(None, "--method", "-m", help="Method file (TOML); processes the sequence first."),
-    settings_file: Optional[Path] = typer.Option(None, "--settings", help="QC settings file (TOML or a setting/value sheet), see templates/qc_settings.toml."),
+    settings_file: Optional[Path] = typer.Option(None, "--settings", help="QC settings file (TOML or a setting/value sheet), start from `gpctools template qc_settings.toml`."),
     history: Optional[list[str]] = typer.Option(None, "--history", help="Earlier results for the control charts: a file, a folder or a quoted glob such as 'old/*.csv' (repeatable, oldest first)."),
     out: Path = typer.Option(Path("gpctools-qc"), "--out", "-o", help="Output folder."),
     strict: bool = typer.Option(False, "--strict", help="Exit 1 when any batch is not 'pass' (fail, not reportable, no result, no spec)."),
@@ -232,7 +339,8 @@ def qc_cmd(
     if not require_check:
         settings = replace(settings, suitability=replace(settings.suitability, require_check_standard=False))
     results = _run_sequence_with_progress(sheet, m, settings, out, workers or None, sheet_name) if m else sheet
-    report = run_qc(results, spec_sheet, out, method=m, history=hist, settings=settings)
+    with _stage("QC: verdicts, system suitability, control charts, report"):
+        report = run_qc(results, spec_sheet, out, method=m, history=hist, settings=settings)
     _print_qc(report.result)
     typer.echo(f"wrote {out}/qc_report.xlsx, qc_report.html, plots/, qc_summary.json, audit.json")
     code = report.exit_code(strict=strict)
@@ -240,19 +348,14 @@ def qc_cmd(
         raise typer.Exit(code)
 
 
-def _run_sequence_with_progress(sheet: Path, method, settings, out: Path, workers, sheet_name=None):
-    from .batch import read_batch_sheet
+def _run_sequence_with_progress(sheet: Path, method: Method, settings: Any, out: Path, workers: int | None,
+                                sheet_name: str | None = None) -> Any:
     from .qc.sequence import run_sequence
     from .report import DistributionWriter, write_batch
 
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore")  # run_sequence reads the sheet again and reports
-        total = len(read_batch_sheet(sheet, sheet=sheet_name))
-    with _progress_bar(total, "injections") as prog:
-        task = prog.add_task("sequence", total=total)
+    with _stage("sequence: standards, blanks, injections") as advance:
         run = run_sequence(sheet, method, settings, sheet_name=sheet_name, workers=workers,
-                           on_result=DistributionWriter(out / "distributions"),
-                           progress=lambda done, tot: prog.update(task, completed=done))
+                           on_result=DistributionWriter(out / "distributions"), progress=advance)
     write_batch(run, out, distributions=False)
     for w in run.warnings:
         _err(f"warning: {w}")
@@ -434,7 +537,7 @@ TRANSFER_COLUMNS = ["group", "term", "estimator", "model", "C [-]", "standard er
 @app.command("transfer")
 @_guard
 def transfer_cmd(
-    sheet: Path = typer.Argument(..., help="Run-series sheet (CSV or XLSX), see templates/run_series.csv."),
+    sheet: Path = typer.Argument(..., help="Run-series sheet (CSV or XLSX); start from `gpctools template run_series.csv`."),
     method: Optional[Path] = typer.Option(None, "--method", "-m", help="Method file (TOML) for the chromatograms named in the sheet."),
     out: Path = typer.Option(Path("gpctools-transfer"), "--out", "-o", help="Output folder."),
     terms: Optional[str] = typer.Option(None, "--terms", help="Constants to fit, comma-separated: C_A, C_A:<agent>, C_S, C_I, C_M (default: every ratio that varies)."),
@@ -485,8 +588,10 @@ def transfer_cmd(
         expected_intercept=(expected if expected is None or len(expected) == 2 else expected[0]),
         C_M=C_M, kinetic_term=kinetic_term,
     )
-    result = analyse_series(sheet, method, options, sheet=sheet_name)
-    paths = write_transfer(result, out, plots=not no_plots)
+    with _stage("run series: chromatograms and fits"):
+        result = analyse_series(sheet, method, options, sheet=sheet_name)
+    with _stage("writing tables" + ("" if no_plots else " and plots")):
+        paths = write_transfer(result, out, plots=not no_plots)
     _print_table(result.constants_table().to_dict("records"), TRANSFER_COLUMNS)
     for g in result.groups:
         if g.impurity is not None:
@@ -510,7 +615,7 @@ def transfer_cmd(
 @app.command("diagnose")
 @_guard
 def diagnose_cmd(
-    recipe: Path = typer.Argument(..., help="Recipe file (TOML), see templates/recipe.toml."),
+    recipe: Path = typer.Argument(..., help="Recipe file (TOML); start from `gpctools template recipe.toml`."),
     out: Path = typer.Option(Path("gpctools-diagnosis"), "--out", "-o", help="Output folder."),
     measured: Optional[Path] = typer.Option(None, "--measured", help="Batch results table (results.csv/.xlsx) with this batch's Mn and Mw."),
     sample: Optional[str] = typer.Option(None, "--sample", help="sample_id to take from --measured (needed when it holds several samples)."),
@@ -525,8 +630,9 @@ def diagnose_cmd(
         from .errors import InputFormatError
 
         raise InputFormatError("--sample needs --measured RESULTS.csv to take the sample from", key="--sample")
-    d = diagnose_recipe(recipe, measured_path=measured, sample_id=sample)
-    write_diagnosis(d, out, xlsx=xlsx)
+    with _stage("diagnosis: prediction, checks, ranked causes"):
+        d = diagnose_recipe(recipe, measured_path=measured, sample_id=sample)
+        write_diagnosis(d, out, xlsx=xlsx)
     typer.echo(f"{d.label}: verdict {d.verdict}")
     for i, c in enumerate(d.causes[:3], start=1):
         typer.echo(f"{i}. {c.title}: {c.share:.3g} % likelihood share")
@@ -547,32 +653,75 @@ def diagnose_cmd(
                + (", diagnosis.xlsx" if xlsx else ""))
 
 
-def _sample_runs_dir() -> Path:
-    here = Path(__file__).resolve().parent.parent / "sample_runs"
-    return here
-
-
 @app.command("demo")
 @_guard
 def demo_cmd(
     out: Path = typer.Option(Path("gpctools-demo"), "--out", "-o", help="Output folder."),
-    samples: Optional[Path] = typer.Option(None, "--samples", help="Folder with the sample runs (default: the bundled sample_runs/)."),
+    samples: Optional[Path] = typer.Option(
+        None, "--samples",
+        help="Folder with your own sample runs (batch.csv, method.toml; optional truth.csv, spec_limits.csv, "
+             "transfer_series/, troubleshooting/). Default: the invented scenario, written into OUT/sample_runs."),
 ) -> None:
-    """Run the whole job on the bundled sample_runs and compare with the stored true values."""
+    """Run the whole job (batch, QC, transfer, diagnosis) on invented sample runs and compare with the truth."""
     from .demo import run_demo
 
     _check_out(out)
-    folder = samples or _sample_runs_dir()
-    report = run_demo(folder, out, echo=typer.echo)
+    report = run_demo(samples, out, echo=_say, stage=_stage)
     if report["failed"]:
         raise typer.Exit(EXIT_FAILED_ROWS)
+
+
+@app.command("template")
+@_guard
+def template_cmd(
+    names: Optional[list[str]] = typer.Argument(
+        None, metavar="NAME",
+        help="Template file name (method.toml) or name without extension (batch: every format of it)."),
+    out: Path = typer.Option(Path("."), "--out", "-o", help="Folder to write into (created when missing)."),
+    force: bool = typer.Option(False, "--force", help="Overwrite files that exist."),
+    list_: bool = typer.Option(False, "--list", "-l", help="List the templates with a one-line description."),
+    all_: bool = typer.Option(False, "--all", help="Write every template."),
+) -> None:
+    """Write starter files (method, batch sheet, standards, spec limits, run series, recipe) to edit."""
+    from .errors import InputFormatError
+    from .report.files import write_bytes
+    from .templates import available, find
+
+    every = available()
+    if list_ or not (names or all_):
+        width = max(len(t.name) for t in every)
+        for t in every:
+            typer.echo(f"{t.name:<{width}}  {t.description}")
+        if not (list_ or names or all_):
+            typer.echo("\nwrite one into this folder: gpctools template NAME (--out DIR, --force, --all)")
+        return
+    chosen = every if all_ else find(names or [])
+    _check_out(out)
+    existing = [t.name for t in chosen if (out / t.name).exists()]
+    if existing and not force:
+        where = "the current folder" if out == Path(".") else str(out)
+        verb = "exists" if len(existing) == 1 else "exist"
+        raise InputFormatError(f"{', '.join(existing)} already {verb} in {where}; pass --force to overwrite, "
+                               "or --out DIR to write elsewhere")
+    for t in chosen:
+        write_bytes(out / t.name, t.read_bytes())
+        typer.echo(f"wrote {out / t.name}")
+    written = {t.name for t in chosen}
+    for t in chosen:
+        for c in t.companions:
+            if c not in written and not (out / c).exists():
+                typer.echo(f"{t.name} reads {c}: write it too with gpctools template {c}")
 
 
 def main() -> None:  # console-script entry point
     if os.environ.get("GPCTOOLS_DEBUG"):
         _STATE["debug"] = True
-    app(prog_name="gpctools")
+    try:
+        app(prog_name="gpctools")
+    except BrokenPipeError:  # a closed pipe outside a command (help text, version)
+        _silence_stdout()
+        sys.exit(EXIT_CLOSED_PIPE)
 
 
 if __name__ == "__main__":  # pragma: no cover
-    sys.exit(main())
+    main()

@@ -48,9 +48,9 @@ from collections.abc import Callable, Mapping, Sequence
 from dataclasses import asdict, dataclass
 from importlib import resources
 from pathlib import Path
-from typing import Any
+from typing import Any, cast
 
-import pandas as pd  # type: ignore[import-untyped]
+import pandas as pd
 
 from gpctools.errors import DataError, InputFormatError, MethodError, RangeWarning
 
@@ -92,6 +92,11 @@ class ReferenceWarning(RangeWarning):
     """A reference value is used outside the temperature range of the data behind it
     (an Arrhenius extrapolation), or with a caution (e.g. acrylate backbiting)."""
 
+
+
+def _records(frame: pd.DataFrame) -> list[dict[str, Any]]:
+    """Rows of a table as dicts keyed by column name (the tables' headers are text)."""
+    return cast("list[dict[str, Any]]", frame.to_dict("records"))
 
 def celsius_to_kelvin(T_celsius: float) -> float:
     """Convert a temperature from degrees Celsius to kelvin [K]."""
@@ -797,7 +802,7 @@ def _key_of(
 
 
 def _merge(base: pd.DataFrame, user: pd.DataFrame, schema: _Schema, label: str) -> pd.DataFrame:
-    rows = [dict(r) for r in base.to_dict("records")]
+    rows = [dict(r) for r in _records(base)]
 
     # alias index of names in this table (and of monomer names for the 'monomer' key)
     def names_of(r: Mapping[str, Any], col: str) -> list[str]:
@@ -820,7 +825,7 @@ def _merge(base: pd.DataFrame, user: pd.DataFrame, schema: _Schema, label: str) 
 
     index = {_key_of(r, schema, resolve): i for i, r in enumerate(rows)}
     user_text_cols = [c for c in user.columns if c not in schema.key]
-    for urow in user.to_dict("records"):
+    for urow in _records(user):
         key = _key_of(urow, schema, resolve)
         given = [c for c in user_text_cols if urow.get(c) not in (None, "")]
         if key in index:
@@ -854,7 +859,7 @@ def _merge(base: pd.DataFrame, user: pd.DataFrame, schema: _Schema, label: str) 
 def _monomer_alias_map_cached() -> tuple[tuple[str, str], ...]:
     base = _bundled("monomers")
     pairs = []
-    for r in base.to_dict("records"):
+    for r in _records(base):
         canon = _norm(r["name"])
         pairs.append((canon, canon))
         for a in _aliases(r["aliases"]):
@@ -925,7 +930,7 @@ class ReferenceData:
         self._tables = {n: load_table(n, extra.get(n)) for n in TABLE_NAMES}
         self.extra = {k: [str(p) for p in _as_paths(v)] for k, v in extra.items()}
         self._amap: dict[str, str] = {}
-        for r in self._tables["monomers"].to_dict("records"):
+        for r in _records(self._tables["monomers"]):
             canon = _norm(r["name"])
             self._amap[canon] = canon
             for a in _aliases(r["aliases"]):
@@ -939,7 +944,7 @@ class ReferenceData:
     # -- lookups
     def _find(self, table: str, col: str, name: str, what: str) -> dict[str, Any]:
         want = _norm(name)
-        rows = self._tables[table].to_dict("records")
+        rows = _records(self._tables[table])
         for r in rows:
             names = [_norm(r[col])] + [_norm(a) for a in _aliases(r.get("aliases"))]
             if want in names:
@@ -1023,7 +1028,7 @@ class ReferenceData:
         canon = self.monomer(monomer).name
         rows = [
             r
-            for r in self._tables["termination"].to_dict("records")
+            for r in _records(self._tables["termination"])
             if self._amap.get(_norm(r["monomer"]), _norm(r["monomer"])) == _norm(canon)
         ]
         if not rows:
@@ -1063,7 +1068,7 @@ class ReferenceData:
         amap = self._amap
         rows = [
             r
-            for r in self._tables["agents"].to_dict("records")
+            for r in _records(self._tables["agents"])
             if amap.get(_norm(r["monomer"]), _norm(r["monomer"])) == _norm(canon)
         ]
         return canon, rows
@@ -1125,12 +1130,12 @@ class ReferenceData:
             want = _norm(self.monomer(want[1:]).polymer)
         rows = [
             r
-            for r in self._tables["mark_houwink"].to_dict("records")
+            for r in _records(self._tables["mark_houwink"])
             if _norm(r["polymer"]) == want and _norm(r["solvent"]) == _norm(solvent)
         ]
         if not rows:
             known = sorted(
-                {f"{r['polymer']} in {r['solvent']}" for r in self._tables["mark_houwink"].to_dict("records")}
+                {f"{r['polymer']} in {r['solvent']}" for r in _records(self._tables["mark_houwink"])}
             )
             raise MethodError(
                 f"no Mark-Houwink pair for {polymer!r} in {solvent!r}; known: {', '.join(known)}",

@@ -41,8 +41,9 @@ def sample_runs_dir() -> Path:
 
 @pytest.fixture(scope="session")
 def templates_dir() -> Path:
-    """The starting files a user copies (``templates/``); read-only, copy before writing."""
-    return REPO_ROOT / "templates"
+    """The starting files a user copies (``gpctools/templates/``, package data written by
+    ``gpctools template``); read-only, copy before writing."""
+    return REPO_ROOT / "gpctools" / "templates"
 
 
 @pytest.fixture(scope="session")

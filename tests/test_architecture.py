@@ -46,7 +46,7 @@ import pytest
 #: contributor guide's drawing with one change the code asked for: ``method`` sits above
 #: ``calibration``, because loading a method file fits its calibration.
 LAYERS: tuple[tuple[str, ...], ...] = (
-    ("gpctools", "gpctools.errors"),  # root holds only metadata
+    ("gpctools", "gpctools.errors", "gpctools.templates"),  # metadata; starter files (package data)
     ("gpctools.columns",),
     ("gpctools.io", "gpctools.sheets"),
     ("gpctools.signal", "gpctools.calibration"),

@@ -38,10 +38,10 @@ def test_demo_batch_matches_truth_within_1_percent(demo_dir, tmp_path):
     # SCIENCE.md section 8); 1 % is the acceptance stated for the demo.
     method = load_method(demo_dir / "method.toml")
     res = run_batch(demo_dir / "batch.csv", method, on_result=DistributionWriter(tmp_path / "out" / "distributions"))
-    truth = pd.read_csv(demo_dir / "truth.csv").set_index("sample_id")
+    truth = pd.read_csv(demo_dir / "truth.csv").set_index("file")  # replicates share a sample_id
     assert res.failed == 0
     for _, r in res.table.iterrows():
-        t = truth.loc[r["sample_id"]]
+        t = truth.loc[r["file"]]
         for col in ("Mn [g/mol]", "Mw [g/mol]", "Mz [g/mol]", "dispersity [-]"):
             assert r[col] == pytest.approx(t[col], rel=0.01), (r["sample_id"], col)
         # The flow marker undoes the simulated pump error (V_obs = V_true (1 + err)).
@@ -51,9 +51,9 @@ def test_demo_batch_matches_truth_within_1_percent(demo_dir, tmp_path):
 def test_bundled_sample_runs_are_what_the_generator_writes(tmp_path):
     # Guards against a hand edit of sample_runs/ drifting from truth.csv.
     write_sample_runs(tmp_path)
-    names = ["batch.csv", "truth.csv", "method.toml", "standards.csv"]
+    names = ["batch.csv", "truth.csv", "method.toml", "standards.csv", "spec_limits.csv"]
     names += [f"history/{p.name}" for p in sorted((tmp_path / "history").glob("*.csv"))]
-    assert len(names) == 10
+    assert len(names) == 11
     for name in names:
         assert (tmp_path / name).read_text() == (ROOT / "sample_runs" / name).read_text(), name
 
@@ -92,7 +92,7 @@ def test_outputs_written_and_readable(demo_dir, tmp_path):
     ws = wb["results"]
     header = [c.value for c in next(ws.iter_rows(max_row=1))]
     assert header == [str(c) for c in res.table.columns]
-    dist = pd.read_csv(next((out / "distributions").glob("LC110-A1*.csv")))
+    dist = pd.read_csv(next((out / "distributions").glob("LC110-A_row*.csv")))
     assert {"volume [mL]", "M [g/mol]", "dw/dlogM [-]", "cumulative mass fraction [-]"} <= set(dist.columns)
     # dw/dlogM integrates to 1 over log10 M (definition of the normalised distribution)
     logm = np.log10(dist["M [g/mol]"].to_numpy())
@@ -129,7 +129,7 @@ def test_batch_sheet_template_reads(tmp_path):
 
     for name in ("batch.csv", "batch.xlsx"):
         with pytest.warns(InputWarning, match="'GRADE-A-01' \\(rows 2, 3\\)"):  # replicates, by design
-            entries = read_batch_sheet(ROOT / "templates" / name)
+            entries = read_batch_sheet(ROOT / "gpctools" / "templates" / name)
         assert [e.sample_id for e in entries] == ["GRADE-A-01", "GRADE-A-01", "CHECK-01"]
         assert entries[2].role == "check_standard"
         assert entries[2].metadata["assigned Mw [g/mol]"] in (180000, 180000.0, "180000")
@@ -144,9 +144,9 @@ def test_low_m_tail_raises_mn_sensitivity(tmp_path):
     V, h = simulate.chromatogram(mix, cal, noise=0.02, seed=3)
     write_chromatogram(tmp_path / "t.csv", V, h)
     write_chromatogram(tmp_path / "c.csv", *simulate.chromatogram(main, cal, noise=0.02, seed=3))
-    mtext = (ROOT / "templates" / "method.toml").read_text()
+    mtext = (ROOT / "gpctools" / "templates" / "method.toml").read_text()
     (tmp_path / "method.toml").write_text(mtext)
-    shutil.copy(ROOT / "templates" / "standards.csv", tmp_path / "standards.csv")
+    shutil.copy(ROOT / "gpctools" / "templates" / "standards.csv", tmp_path / "standards.csv")
     m = load_method(tmp_path / "method.toml")
     m = type(m)(**{**m.__dict__, "marker_search": None, "marker_reference": None})
     r_tail = process_injection(tmp_path / "t.csv", m)
@@ -160,9 +160,9 @@ def test_regression_limit_shift_with_decreasing_volumes(tmp_path):
     # do); the Mn/Mw limit sensitivity used to come out NaN for decreasing volumes because
     # the slice widths were taken on the unsorted axis. Same trace reversed, same answer
     # (derived: the sums do not depend on slice order); 1e-9 relative allows summation order.
-    mtext = (ROOT / "templates" / "method.toml").read_text()
+    mtext = (ROOT / "gpctools" / "templates" / "method.toml").read_text()
     (tmp_path / "method.toml").write_text(mtext)
-    shutil.copy(ROOT / "templates" / "standards.csv", tmp_path / "standards.csv")
+    shutil.copy(ROOT / "gpctools" / "templates" / "standards.csv", tmp_path / "standards.csv")
     m = load_method(tmp_path / "method.toml")
     m = type(m)(**{**m.__dict__, "marker_search": None, "marker_reference": None})
     V, h = simulate.chromatogram(simulate.schulz_zimm(80_000, 2.0), simulate.default_calibration(),
@@ -180,11 +180,11 @@ def test_regression_replicate_distributions_each_in_written_paths(demo_dir, tmp_
     d = tmp_path / "b"
     shutil.copytree(demo_dir, d)
     sheet = d / "batch.csv"
-    sheet.write_text(sheet.read_text() + "LC110-A1,exports/LC110-A1.csv,sample,,,,,\n")
+    sheet.write_text(sheet.read_text() + "LC110-A,exports/LC110-A1.csv,sample,,,,,\n")
     with pytest.warns(GpcWarning, match="replicate"):
         res = run_batch(sheet, load_method(d / "method.toml"))
     ids = [e.sample_id for e, r in zip(res.entries, res.injections) if r is not None]
-    assert len(ids) == len(set(ids)) + 1  # one replicate injection added above
+    assert len(ids) == len(set(ids)) + 4  # three replicate pairs in the demo, one injection added above
     paths = write_batch(res, tmp_path / "o")
     written = [p for k, p in paths.items() if k.startswith("distributions/")]
     assert len(written) == len(ids)
@@ -325,11 +325,11 @@ def test_two_methods_in_one_batch(demo_dir, tmp_path, monkeypatch):
     assert res.failed == 0 and set(res.methods) == {"method.toml", "methods/pmma.toml"}
     # each row equals the same injection run with its own method alone
     alone = {
-        "method.toml": run_batch(d / "batch.csv", real(d / "method.toml")).table.set_index("sample_id"),
-        "methods/pmma.toml": run_batch(d / "batch.csv", real(second)).table.set_index("sample_id"),
+        "method.toml": run_batch(d / "batch.csv", real(d / "method.toml")).table.set_index("file"),
+        "methods/pmma.toml": run_batch(d / "batch.csv", real(second)).table.set_index("file"),
     }
     for _, r in res.table.iterrows():
-        ref = alone[r["method file"]].loc[r["sample_id"]]
+        ref = alone[r["method file"]].loc[r["file"]]
         for col in ("Mn [g/mol]", "Mw [g/mol]", "integration start [mL]", "M at integration end [g/mol]"):
             assert r[col] == ref[col], (r["sample_id"], col)  # identical computation
         sha = hashlib.sha256((d / r["method file"]).read_bytes()).hexdigest()
@@ -384,20 +384,23 @@ def test_repeated_sample_ids_warn_as_replicates(demo_dir, tmp_path):
     from gpctools.errors import InputWarning
 
     d = _copy_runs(demo_dir, tmp_path)
-    sheet = d / "batch.csv"
-    sheet.write_text(sheet.read_text() + "LC110-A1,exports/LC110-A1.csv,sample,,,,,\n"
-                     "LC180-B1,exports/LC180-B1.csv,sample,,,,,\n")
+    # The demo sheet has replicates by design; give every row its own id first.
+    rows = (d / "batch.csv").read_text().splitlines()
+    unique = [rows[0]] + [f"S{i}{r[r.index(','):]}" for i, r in enumerate(rows[1:], start=1)]
+    sheet = d / "unique.csv"
+    sheet.write_text("\n".join(unique) + "\n")
+    import warnings
+
+    with warnings.catch_warnings():  # unique ids: no warning
+        warnings.simplefilter("error", InputWarning)
+        read_batch_sheet(sheet)
+    sheet.write_text(sheet.read_text() + "S1,exports/LC110-A1.csv,sample,,,,,\n"
+                     "S3,exports/LC180-B1.csv,sample,,,,,\n")
     with pytest.warns(InputWarning, match="treated as replicate") as caught:
         res = run_batch(sheet, load_method(d / "method.toml"))
     msg = str(caught[0].message)
-    assert "'LC110-A1' (rows 2, 10)" in msg and "'LC180-B1' (rows 4, 11)" in msg
+    assert "'S1' (rows 2, 10)" in msg and "'S3' (rows 4, 11)" in msg
     assert res.warnings == (msg,)
-    # unique ids: no warning
-    import warnings
-
-    with warnings.catch_warnings():
-        warnings.simplefilter("error", InputWarning)
-        read_batch_sheet(demo_dir / "batch.csv")
 
 
 @pytest.mark.parametrize("header, says", [("UV 254 nm [mAU]", "is a UV detector"),
@@ -409,8 +412,8 @@ def test_uv_or_elsd_concentration_trace_warns(tmp_path, header, says):
     V, h = simulate.chromatogram(simulate.schulz_zimm(80_000, 2.0), cal, noise=0.02, seed=3)
     write_chromatogram(tmp_path / "uv.csv", V, h, signal_header=header)
     write_chromatogram(tmp_path / "ri.csv", V, h)
-    shutil.copy(ROOT / "templates" / "standards.csv", tmp_path / "standards.csv")
-    (tmp_path / "method.toml").write_text((ROOT / "templates" / "method.toml").read_text())
+    shutil.copy(ROOT / "gpctools" / "templates" / "standards.csv", tmp_path / "standards.csv")
+    (tmp_path / "method.toml").write_text((ROOT / "gpctools" / "templates" / "method.toml").read_text())
     m = replace(load_method(tmp_path / "method.toml"), marker_search=None, marker_reference=None)
     r = process_injection(tmp_path / "uv.csv", m)  # listed with the injection's warnings
     assert any(says in w for w in r.warnings)

@@ -2,13 +2,19 @@
 
 from __future__ import annotations
 
+import json
+import os
+import re
 import shutil
+import subprocess
+import sys
 from pathlib import Path
 
 import pytest
 from typer.testing import CliRunner
 
-from gpctools.cli import app
+import gpctools
+from gpctools.cli import EXIT_CLOSED_PIPE, app
 from gpctools.demo import write_sample_runs
 
 ROOT = Path(__file__).resolve().parent.parent
@@ -38,7 +44,7 @@ def test_batch_success(demo_dir, tmp_path):
     r = runner.invoke(app, ["batch", str(demo_dir / "batch.csv"), "-m", str(demo_dir / "method.toml"),
                             "-o", str(tmp_path / "o")])
     assert r.exit_code == 0, r.output
-    assert "LC110-A1" in r.output and "Mn [g/mol]" in r.output
+    assert "LC110-A" in r.output and "Mn [g/mol]" in r.output
     assert (tmp_path / "o" / "results.csv").exists()
     assert len(list((tmp_path / "o" / "distributions").glob("*.csv"))) == 8
 
@@ -107,11 +113,239 @@ def test_inspect_bad_file_exit_2(tmp_path):
     _ok_no_traceback(r)
 
 
-def test_demo_runs_on_bundled_sample_runs(tmp_path):
-    r = runner.invoke(app, ["demo", "--out", str(tmp_path / "demo")])
+def _readme_demo_excerpt() -> list[str]:
+    """The lines of the README's printed demo output ("..." marks what it leaves out)."""
+    text = (ROOT / "README.md").read_text(encoding="utf-8")
+    block = re.search(r"and prints \(abridged\):\n\n```\n(.*?)```", text, flags=re.S)
+    assert block, "README lost its demo excerpt"
+    return [line for line in block.group(1).splitlines() if line.strip() not in ("", "...")]
+
+
+def test_demo_writes_its_sample_runs_and_runs_every_part(tmp_path, monkeypatch):
+    # No --samples: the demo writes the invented scenario into OUT/sample_runs (so a wheel
+    # needs no data files) and runs batch, QC, transfer and diagnosis on it. Run from an
+    # empty folder with the default --out, as the README shows it.
+    monkeypatch.chdir(tmp_path)
+    r = runner.invoke(app, ["demo"])
     assert r.exit_code == 0, r.output
+    out = tmp_path / "gpctools-demo"
+    # Every line the README shows is printed (up to its "..." where it abridges).
+    printed = r.output.splitlines()
+    for line in _readme_demo_excerpt():
+        head = line.split("...")[0]
+        assert any(p.startswith(head) for p in printed), f"README line not printed: {line!r}"
     assert "largest deviation from the true averages" in r.output
-    assert (tmp_path / "demo" / "batch" / "results.csv").exists()
+    assert "demo parts run: batch, QC, transfer, diagnosis, QC sequence" in r.output
+    assert "skipped" not in r.output
+    for part in ("sample_runs/batch.csv", "batch/results.csv", "qc/qc_report.html", "transfer/constants.csv",
+                 "troubleshooting/diagnosis.md"):
+        assert (out / part).is_file(), part
+    summary = json.loads((out / "demo_summary.json").read_text())
+    assert summary["parts"] == {p: {"status": "ran"} for p in ("batch", "QC", "transfer", "diagnosis",
+                                                               "QC sequence")}
+    # The replicates share a sample id, so the replicate check is evaluated (issue 15).
+    qc = json.loads((out / "qc" / "qc_summary.json").read_text())
+    results = {c["check"]: c["result"] for s in qc["suitability"] for c in s["checks"]}
+    # (pooled over the sequence's samples since issue 12)
+    assert results["replicate RSD of Mw, pooled [%]"] == "pass"
+    assert results["replicate RSD of Mn, pooled [%]"] == "pass"
+    assert "not evaluated" not in results.values()
+
+
+def test_demo_on_a_hand_made_folder_reports_each_skipped_part(demo_dir, tmp_path):
+    # A folder with a batch, a method and its standards only: the batch runs, the three
+    # other parts are reported as skipped with the file they need, nothing is silent.
+    d = tmp_path / "mine"
+    (d / "exports").mkdir(parents=True)
+    for name in ("batch.csv", "method.toml", "standards.csv"):
+        shutil.copy(demo_dir / name, d / name)
+    for f in (demo_dir / "exports").iterdir():
+        shutil.copy(f, d / "exports" / f.name)
+    r = runner.invoke(app, ["demo", "--samples", str(d), "--out", str(tmp_path / "o")])
+    assert r.exit_code == 0, r.output
+    assert "QC skipped: no spec_limits.csv in" in r.output
+    assert "transfer skipped: no transfer_series/run_series.csv and no transfer_series/truth.json" in r.output
+    assert "diagnosis skipped: no troubleshooting/recipe.toml and no troubleshooting/batch.csv" in r.output
+    assert "demo parts run: batch; skipped: QC, transfer, diagnosis, QC sequence" in r.output
+    # without truth.csv the averages are printed alone, and the note says why
+    assert "no truth.csv in" in r.output and "largest deviation" not in r.output
+    summary = json.loads((tmp_path / "o" / "demo_summary.json").read_text())
+    assert summary["parts"]["batch"] == {"status": "ran"}
+    for part in ("QC", "transfer", "diagnosis"):
+        assert summary["parts"][part]["status"] == "skipped" and summary["parts"][part]["reason"]
+    assert summary["worst deviation [%]"] is None
+
+
+@pytest.mark.filterwarnings("ignore::gpctools.errors.GpcWarning")  # control limits from few points, expected
+def test_run_demo_reports_its_stages_and_counts_the_injections(demo_dir, tmp_path):
+    # The stage callback is how the CLI shows progress: one stage per part that runs,
+    # and the batch stage counts its injections up to the number in the sheet.
+    from contextlib import contextmanager
+
+    from gpctools.demo import run_demo
+
+    d = tmp_path / "mine"
+    shutil.copytree(demo_dir, d, ignore=shutil.ignore_patterns("truth.csv", "history"))
+    stages: list[str] = []
+    counts: list[tuple[int, int]] = []
+
+    @contextmanager
+    def stage(label):
+        stages.append(label)
+        yield lambda done, total: counts.append((done, total))
+
+    lines: list[str] = []
+    report = run_demo(d, tmp_path / "o", echo=lines.append, stage=stage)
+    assert stages[0] == "batch: injections" and stages[1].startswith("QC")
+    assert len(stages) == 2  # transfer and diagnosis are skipped: their folders are missing
+    assert counts[-1] == (8, 8) and [c[0] for c in counts] == sorted(c[0] for c in counts)
+    assert report["parts"]["QC"] == {"status": "ran"}
+    assert any(line.startswith("transfer skipped: no transfer_series/run_series.csv") for line in
+               "\n".join(lines).splitlines())
+
+
+def test_demo_on_a_folder_without_a_batch_exits_2(tmp_path):
+    r = runner.invoke(app, ["demo", "--samples", str(tmp_path), "--out", str(tmp_path / "o")])
+    assert r.exit_code == 2
+    assert "no batch.csv in the sample-runs folder" in r.output
+    _ok_no_traceback(r)
+
+
+# ---------------------------------------------------------------- version and templates
+
+
+def test_version_prints_the_package_version():
+    r = runner.invoke(app, ["--version"])
+    assert r.exit_code == 0
+    assert r.output.strip() == f"gpctools {gpctools.__version__}"
+    # pyproject reads the version from gpctools.__version__: one place to change it
+    pyproject = (ROOT / "pyproject.toml").read_text()
+    assert 'dynamic = ["version"]' in pyproject and 'attr = "gpctools.__version__"' in pyproject
+
+
+def test_template_list_names_every_shipped_file_with_a_description(templates_dir):
+    r = runner.invoke(app, ["template", "--list"])
+    assert r.exit_code == 0, r.output
+    shipped = sorted(p.name for p in templates_dir.iterdir() if p.is_file() and not p.name.endswith(".py"))
+    assert len(shipped) >= 9  # method, standards, recipe, batch/run_series/spec_limits as CSV and XLSX
+    listed = {line.split()[0]: line.split(None, 1)[1] for line in r.output.splitlines() if line.strip()}
+    assert sorted(listed) == shipped
+    assert all(len(text) > 10 for text in listed.values())
+
+
+def test_template_writes_the_shipped_bytes_and_refuses_to_overwrite(templates_dir, tmp_path):
+    out = tmp_path / "t"
+    r = runner.invoke(app, ["template", "method.toml", "batch", "--out", str(out)])
+    assert r.exit_code == 0, r.output
+    for name in ("method.toml", "batch.csv", "batch.xlsx"):  # a stem gives every format
+        assert (out / name).read_bytes() == (templates_dir / name).read_bytes(), name
+    assert "method.toml reads standards.csv: write it too with gpctools template standards.csv" in r.output
+    (out / "method.toml").write_text("# my edits\n")
+    again = runner.invoke(app, ["template", "method", "--out", str(out)])
+    assert again.exit_code == 2
+    assert f"error: method.toml already exists in {out}; pass --force" in again.output
+    _ok_no_traceback(again)
+    assert (out / "method.toml").read_text() == "# my edits\n"  # untouched
+    forced = runner.invoke(app, ["template", "method", "--out", str(out), "--force"])
+    assert forced.exit_code == 0, forced.output
+    assert (out / "method.toml").read_bytes() == (templates_dir / "method.toml").read_bytes()
+
+
+def test_template_writes_into_the_current_folder_by_default(tmp_path, monkeypatch, templates_dir):
+    monkeypatch.chdir(tmp_path)
+    r = runner.invoke(app, ["template", "--all"])
+    assert r.exit_code == 0, r.output
+    shipped = sorted(p.name for p in templates_dir.iterdir() if p.is_file() and not p.name.endswith(".py"))
+    assert sorted(p.name for p in tmp_path.iterdir()) == shipped
+    assert "reads standards.csv" not in r.output  # written together, no hint needed
+
+
+def test_template_unknown_name_exits_2_and_lists_the_templates():
+    r = runner.invoke(app, ["template", "methd"])
+    assert r.exit_code == 2
+    assert "no template named 'methd'" in r.output and "method.toml" in r.output
+    _ok_no_traceback(r)
+
+
+# ---------------------------------------------------------------- progress and pipes
+# Real processes: a terminal (pty) for the progress display, a closed pipe for the
+# quiet end. GPCTOOLS_PROGRESS_DELAY=0 shows progress at once, so nothing depends on time.
+
+
+def _env(**extra: str) -> dict[str, str]:
+    env = {k: v for k, v in os.environ.items() if k not in ("GPCTOOLS_DEBUG", "NO_COLOR")}
+    env.update({"GPCTOOLS_PROGRESS_DELAY": "0", "COLUMNS": "100", "TERM": "xterm"}, **extra)
+    return env
+
+
+def _run_in_terminal(args: list[str], cwd: Path) -> tuple[int, str]:
+    """Run the CLI with stdout and stderr on a pseudo-terminal; returns (exit code, output)."""
+    pty = pytest.importorskip("pty")
+    master, slave = pty.openpty()
+    proc = subprocess.Popen([sys.executable, "-m", "gpctools.cli", *args], stdin=subprocess.DEVNULL,
+                            stdout=slave, stderr=slave, cwd=cwd, env=_env(), close_fds=True)
+    os.close(slave)
+    chunks = []
+    while True:
+        try:
+            data = os.read(master, 65536)
+        except OSError:  # EIO: the child closed the terminal
+            break
+        if not data:
+            break
+        chunks.append(data)
+    os.close(master)
+    return proc.wait(timeout=300), b"".join(chunks).decode("utf-8", "replace")
+
+
+BAR = "\u2501"  # the heavy horizontal line rich draws its bars with
+
+
+@pytest.mark.skipif(sys.platform == "win32", reason="pseudo-terminals are POSIX")
+def test_batch_shows_a_progress_bar_on_a_terminal_only(demo_dir, tmp_path):
+    args = ["batch", str(demo_dir / "batch.csv"), "-m", str(demo_dir / "method.toml")]
+    code, text = _run_in_terminal([*args, "-o", str(tmp_path / "a")], tmp_path)
+    assert code == 0, text
+    assert BAR in text and "injections" in text, text
+    assert "LC110-A" in text  # the results table still prints
+    code, quiet = _run_in_terminal(["--quiet", *args, "-o", str(tmp_path / "b")], tmp_path)
+    assert code == 0, quiet
+    assert BAR not in quiet and "LC110-A" in quiet
+    piped = subprocess.run([sys.executable, "-m", "gpctools.cli", *args, "-o", str(tmp_path / "c")],
+                           capture_output=True, text=True, env=_env(), timeout=300)
+    assert piped.returncode == 0, piped.stderr
+    assert BAR not in piped.stdout + piped.stderr and "\x1b" not in piped.stdout + piped.stderr
+
+
+@pytest.mark.parametrize("args", [["template", "--list"], ["diagnose", "RECIPE", "-o", "OUT"]])
+def test_closed_pipe_ends_quietly(args, tmp_path, templates_dir):
+    # The reader is gone before the command writes its first line (as `| head` after it
+    # has read enough): exit 141 (128 + SIGPIPE), nothing on stderr, no traceback.
+    args = [a.replace("RECIPE", str(templates_dir / "recipe.toml")).replace("OUT", str(tmp_path / "d"))
+            for a in args]
+    read_end, write_end = os.pipe()
+    os.close(read_end)
+    try:
+        proc = subprocess.run([sys.executable, "-m", "gpctools.cli", *args], stdout=write_end,
+                              stderr=subprocess.PIPE, env=_env(), timeout=300)
+    finally:
+        os.close(write_end)
+    stderr = proc.stderr.decode("utf-8", "replace")
+    assert proc.returncode == EXIT_CLOSED_PIPE, stderr
+    assert "Broken pipe" not in stderr and "BrokenPipeError" not in stderr and "Traceback" not in stderr
+    assert "warning:" in stderr or stderr == ""  # only the command's own warnings, if any
+
+
+@pytest.mark.skipif(shutil.which("head") is None, reason="needs the head command")
+def test_diagnose_piped_into_head(tmp_path, templates_dir):
+    # The shell's way: `gpctools diagnose ... | head -n 1`; whether or not the write
+    # after head left hits the closed pipe, stderr stays free of pipe errors.
+    cmd = (f'"{sys.executable}" -m gpctools.cli diagnose "{templates_dir / "recipe.toml"}" '
+           f'-o "{tmp_path / "d"}" | head -n 1')
+    proc = subprocess.run(["sh", "-c", cmd], capture_output=True, text=True, env=_env(), timeout=300)
+    assert proc.returncode == 0, proc.stderr  # the pipeline's status is head's
+    assert len(proc.stdout.splitlines()) == 1
+    assert "Broken pipe" not in proc.stderr and "Traceback" not in proc.stderr
 
 
 # ------------------------------------------------ batch: a method per row (issue 10)

@@ -40,8 +40,8 @@ def test_result_and_qc_tables_use_the_vocabulary():
 @pytest.fixture(scope="module")
 def method(tmp_path_factory):
     d = tmp_path_factory.mktemp("m")
-    shutil.copy(ROOT / "templates" / "method.toml", d / "method.toml")
-    shutil.copy(ROOT / "templates" / "standards.csv", d / "standards.csv")
+    shutil.copy(ROOT / "gpctools" / "templates" / "method.toml", d / "method.toml")
+    shutil.copy(ROOT / "gpctools" / "templates" / "standards.csv", d / "standards.csv")
     m = load_method(d / "method.toml")
     return replace(m, marker_search=None, marker_reference=None)
 

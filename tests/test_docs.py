@@ -45,7 +45,7 @@ def _sources(repo_root: Path) -> list[Path]:
     files = [*sorted((repo_root / "gpctools").rglob("*.py")), *sorted((repo_root / "tests").rglob("*.py")),
              *sorted((repo_root / "gpctools").rglob("*.j2")), *sorted((repo_root / "gpctools" / "data").glob("*.csv")),
              repo_root / "README.md", repo_root / "DEVELOPERS.md", repo_root / "CHANGELOG.md",
-             *sorted((repo_root / "templates").glob("*.toml")), *sorted((repo_root / "templates").glob("*.csv"))]
+             *sorted((repo_root / "gpctools" / "templates").glob("*.toml")), *sorted((repo_root / "gpctools" / "templates").glob("*.csv"))]
     return [f for f in files if f.is_file()]
 
 

@@ -334,7 +334,7 @@ def test_recipe_file_errors(tmp_path):
 
 
 def test_template_recipe_loads_and_diagnoses():
-    r = load_recipe(REPO / "templates" / "recipe.toml")
+    r = load_recipe(REPO / "gpctools" / "templates" / "recipe.toml")
     assert r.monomer.name == "styrene" and r.normal_batch is not None
     d = diagnose(r)
     assert d.causes and SAFETY_NOTE in d.safety
@@ -533,7 +533,7 @@ def test_safety_note_always_present_and_markdown():
 
 def test_write_diagnosis_writes_tables(tmp_path):
     out = tmp_path / "out"
-    d = diagnose_recipe(REPO / "templates" / "recipe.toml")
+    d = diagnose_recipe(REPO / "gpctools" / "templates" / "recipe.toml")
     write_diagnosis(d, out)
     for name in ("diagnosis.md", "diagnosis.json", "causes.csv", "budget.csv",
                  "parameters.csv", "impurities.csv", "checks.csv", "diagnosis.xlsx"):
@@ -607,7 +607,7 @@ def test_cli_diagnose(tmp_path):
     from gpctools.cli import app
 
     out = tmp_path / "out"
-    r = CliRunner().invoke(app, ["diagnose", str(REPO / "templates" / "recipe.toml"),
+    r = CliRunner().invoke(app, ["diagnose", str(REPO / "gpctools" / "templates" / "recipe.toml"),
                                  "--out", str(out), "--no-xlsx"])
     assert r.exit_code == 0, r.output
     assert "verdict" in r.output and "site safety rules" in r.output

@@ -41,8 +41,8 @@ def write(tmp_path: Path, body: str) -> Path:
 
 def test_template_method_loads_with_template_standards(tmp_path):
     # templates/ must stay in sync with the code (STYLE.md: every template exercised).
-    shutil.copy(ROOT / "templates" / "method.toml", tmp_path / "method.toml")
-    shutil.copy(ROOT / "templates" / "standards.csv", tmp_path / "standards.csv")
+    shutil.copy(ROOT / "gpctools" / "templates" / "method.toml", tmp_path / "method.toml")
+    shutil.copy(ROOT / "gpctools" / "templates" / "standards.csv", tmp_path / "standards.csv")
     m = load_method(tmp_path / "method.toml")
     assert isinstance(m, Method)
     assert m.calibration.order == 3
@@ -151,7 +151,7 @@ def test_input_file_is_not_modified(tmp_path):
 def test_regression_bad_standards_cell_names_file_row_and_column(tmp_path, cell, says):
     # An empty or unreadable Mp cell in a standards file used to be reported against the
     # method file's 'calibration' key as "got np.float64(nan)", without the file or row.
-    rows = (ROOT / "templates" / "standards.csv").read_text().splitlines()
+    rows = (ROOT / "gpctools" / "templates" / "standards.csv").read_text().splitlines()
     name, _, volume = rows[2].split(",")
     rows[2] = f"{name},{cell},{volume}"
     (tmp_path / "standards.csv").write_text("\n".join(rows) + "\n")

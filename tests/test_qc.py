@@ -105,8 +105,8 @@ def good_table() -> pd.DataFrame:
 
 
 def test_spec_templates_load_and_agree():
-    csv_specs = read_specs(ROOT / "templates" / "spec_limits.csv")
-    xlsx_specs = read_specs(ROOT / "templates" / "spec_limits.xlsx")
+    csv_specs = read_specs(ROOT / "gpctools" / "templates" / "spec_limits.csv")
+    xlsx_specs = read_specs(ROOT / "gpctools" / "templates" / "spec_limits.xlsx")
     assert csv_specs.products == xlsx_specs.products
     sg = csv_specs.get("sg-150")  # product codes match case-insensitively
     assert sg is not None and sg.limit("Mw").max == 165000.0

@@ -459,8 +459,8 @@ def test_long_form_spec_sheet(tmp_path):
     assert any("mass below 1000 g/mol" in r and "above max 2" in r for r in dec.batches[0].reasons)
     # the wide template and the long template mean the same limits
     root = Path(__file__).resolve().parents[1]
-    wide = read_specs(root / "templates" / "spec_limits.csv")
-    long_ = read_specs(root / "templates" / "spec_limits_long.csv")
+    wide = read_specs(root / "gpctools" / "templates" / "spec_limits.csv")
+    long_ = read_specs(root / "gpctools" / "templates" / "spec_limits_long.csv")
     assert [(p.product, p.limits, p.tolerance("Mw")) for p in wide.products] == \
         [(p.product, p.limits, p.tolerance("Mw")) for p in long_.products]
 
@@ -481,10 +481,10 @@ def test_long_form_errors_name_row_and_column(tmp_path, line, column, text):
 
 def test_qc_settings_files_toml_and_sheet(tmp_path):
     root = Path(__file__).resolve().parents[1]
-    s = read_qc_settings(root / "templates" / "qc_settings.toml")
+    s = read_qc_settings(root / "gpctools" / "templates" / "qc_settings.toml")
     assert s.suitability.replicate_rule == "pooled" and [r.code for r in s.rules] == ["N1", "N2"]
     assert s.source and len(s.sha256) == 64
-    sheet = read_qc_settings(root / "templates" / "qc_settings.csv")
+    sheet = read_qc_settings(root / "gpctools" / "templates" / "qc_settings.csv")
     assert sheet.suitability == s.suitability and sheet.rules == s.rules
     bad = tmp_path / "bad.toml"
     bad.write_text("[suitability]\nmax_calibration_residual_pct = -2\n", encoding="utf-8")
@@ -687,3 +687,34 @@ def test_standards_are_found_beside_a_marker_and_a_system_peak():
     assert locate_marker(GRID, cocktail((12.0,)), (22.2, 23.0)) is None  # no marker: no correction
     with pytest.raises(Exception, match="found 3 peak"):
         locate_peaks(GRID, h, 4, exclusions=((22.2, 23.0),), search=(10.0, 21.0))
+
+
+def test_blank_subtraction_removes_a_ghost_the_sample_shares(tmp_path):
+    from dataclasses import replace as _replace
+
+    from gpctools.method import load_method
+    from gpctools.qc.sequence import run_sequence
+
+    method = load_method(write_method(tmp_path, shift=0.0))
+    rng = np.random.default_rng(11)
+    base = 2.0 - 0.02 * (GRID - 8.0)
+    ghost = gauss(GRID, 17.0, 0.15, 4.0)
+    write_trace(tmp_path / "blank.csv", GRID, base + ghost + 0.01 * rng.standard_normal(GRID.size))
+    write_trace(tmp_path / "clean.csv", GRID, sample_trace(15.0, 0.4, seed=3))
+    write_trace(tmp_path / "ghosted.csv", GRID, sample_trace(15.0, 0.4, seed=4) + ghost)
+    (tmp_path / "batch.csv").write_text(
+        "sample_id,file,role,product,batch,sequence\nBL,blank.csv,blank,,,S\n"
+        "CLEAN,clean.csv,sample,P,L1,S\nGHOST,ghosted.csv,sample,P,L2,S\n", encoding="utf-8")
+    settings = QCSettings(products=(), blank_subtraction=False)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        plain = run_sequence(tmp_path / "batch.csv", method, settings).table.set_index("sample_id")
+        sub = run_sequence(tmp_path / "batch.csv", method,
+                           _replace(settings, blank_subtraction=True)).table.set_index("sample_id")
+    # derived: the ghost (4 % of the peak at 17 mL, M = 10^(9 - 5.1) = 7943 g/mol) drags Mn
+    # down by several per cent; subtracting the blank gives back the clean sample's Mn
+    # (0.5 %: two independent noise draws and the blank's own noise)
+    assert plain.loc["GHOST", "Mn [g/mol]"] < 0.97 * plain.loc["CLEAN", "Mn [g/mol]"]
+    assert sub.loc["GHOST", "Mn [g/mol]"] == pytest.approx(plain.loc["CLEAN", "Mn [g/mol]"], rel=0.005)
+    assert "blank subtracted" in sub.loc["GHOST", "warnings"]
+    assert plain.loc["BL", "blank peak [% of product peak]"] > 1.0  # and the blank itself fails

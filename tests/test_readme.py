@@ -36,3 +36,15 @@ def test_readme_has_the_two_commands():
     assert 'pip install -e ".[test]" && pytest' in text
     ci = (ROOT / ".ci" / "run").read_text()
     assert 'pip install' in ci and '-e ".[test]"' in ci and "pytest" in ci
+    # CI also builds the wheel, installs it in a fresh venv and runs the demo from an
+    # empty folder (tests/test_packaging.py, asked for by this variable)
+    assert "GPCTOOLS_TEST_WHEEL=1 python -m pytest" in ci
+
+
+def test_readme_install_section_shows_a_plain_install_and_the_templates():
+    text = (ROOT / "README.md").read_text(encoding="utf-8")
+    section = text[text.index("## Install"):text.index("## Safety")]
+    for command in ("pip install .", "gpctools --version", "gpctools demo", "gpctools template --list"):
+        assert command in section, command
+    # no user-facing pointer to a templates/ folder a wheel does not have
+    assert "templates/" not in text.replace("gpctools/templates/", "")

@@ -697,7 +697,7 @@ def test_temperature_series_through_the_analysis():
 def test_template_csv_and_xlsx_hold_the_same_rows_and_analyse(tmp_path):
     from pathlib import Path
 
-    root = Path(__file__).resolve().parent.parent / "templates"
+    root = Path(__file__).resolve().parent.parent / "gpctools" / "templates"
     a = read_run_series(root / "run_series.csv")
     b = read_run_series(root / "run_series.xlsx")
     assert [r.summary() for r in a.runs] == [r.summary() for r in b.runs]
