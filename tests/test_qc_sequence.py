@@ -556,10 +556,32 @@ def test_cli_qc_on_the_bundled_sequence_with_defaults(sample_runs_dir, tmp_path,
     html = (tmp_path / "out2" / "qc_report.html").read_text(encoding="utf-8")
     assert html.count('class="sample-page"') == 3 and "Review and sign-off" in html
     assert "reference LC-180" in html or "reference distribution" in html
+    _open_in_chromium(tmp_path / "out2" / "qc_report.html", tmp_path)
     bad = cli_runner.invoke(app, ["qc", str(d / "batch.csv"), "-m", str(d / "method.toml"), "-s",
                                   str(d / "spec_limits.csv"), "--history", str(d / "nothing*.csv"), "-o",
                                   str(tmp_path / "out3")])
     assert bad.exit_code == 2 and "no file matches" in bad.output
+
+
+def _open_in_chromium(html: Path, tmp: Path) -> None:
+    """The sequence report as a browser shows it (skipped without Chromium outside CI)."""
+    import os
+    import shutil
+    import subprocess
+
+    exe = next((shutil.which(n) for n in ("chromium", "chromium-browser", "google-chrome") if shutil.which(n)), None)
+    if exe is None:
+        if os.environ.get("CI", "").lower() == "true":
+            pytest.fail("CI=true but Debian's 'chromium' is not installed")
+        return
+    base = [exe, "--headless", "--no-sandbox", "--disable-gpu", "--no-first-run", "--disable-sync",
+            "--disable-background-networking", f"--user-data-dir={tmp / 'chromium-profile'}"]
+    dom = subprocess.run([*base, "--dump-dom", html.as_uri()], capture_output=True, text=True, timeout=120,
+                         check=False).stdout
+    for sec in ("verdicts", "blanks", "sample-pages", "trends", "calibration"):
+        assert f'id="{sec}"' in dom
+    assert dom.count('class="sample-page"') == 3 and dom.count("<img") >= 15
+    assert "B2612-03" in dom and "Review and sign-off" in dom
 
 
 def test_templates_of_a_sequence_read(templates_dir):
