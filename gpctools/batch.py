@@ -36,6 +36,13 @@ and its message, and :attr:`BatchResult.failed` counts it. Inputs are only read;
 module writes nothing: :func:`gpctools.report.write_batch` writes the outputs, and
 ``on_result=`` (e.g. :class:`gpctools.report.DistributionWriter`) receives each injection
 as it finishes, so a long batch can stream its distribution tables to disk.
+
+Per injection (:func:`process_trace`): flow-marker recognition and correction, baseline
+and limits with the polymer peak searched inside the calibrated range, distribution and
+averages (an average whose sum is not positive is missing, the others stand), the
+sensitivity to the low-M limit, the standard uncertainty of Mn, Mw and Mz, the peak
+count and the optional split into peaks, and the mass fractions below/above cut-offs
+(docs/science.md, section 19).
 """
 
 from __future__ import annotations
@@ -52,18 +59,31 @@ import numpy as np
 from . import columns as C
 from .distribution import (
     Distribution,
-    averages,
+    PeakPart,
+    averages_with_reasons,
     compute_distribution,
-    peak_position,
-    slice_widths,
+    mass_fraction_below,
+    peak_top,
+    split_distribution,
 )
-from .errors import DataError, GpcError, GpcWarning, InputFormatError, InputWarning, MethodError
-from .method import Method, MethodOverrides
+from .errors import (
+    DataError,
+    GpcError,
+    GpcWarning,
+    InputFormatError,
+    InputWarning,
+    MethodError,
+    SignalWarning,
+)
+from .method import FlowMarkerOptions, Method, MethodOverrides
 from .sheets import batch as _sheet
-from .signal import CorrectedSignal, correct_signal
+from .signal import CorrectedSignal, Peaks, correct_signal, find_peaks, fit_baseline, noise_level
+from .uncertainty import UNCERTAIN_AVERAGES, AverageUncertainty, average_uncertainty
 
 __all__ = [
     "InjectionResult",
+    "MarkerSearch",
+    "MassFraction",
     "BatchEntry",
     "BatchResult",
     "process_injection",
@@ -78,7 +98,8 @@ __all__ = [
 
 ROLES = _sheet.ROLES
 
-#: Result columns in order (metadata columns of the sheet are inserted after ``role``);
+#: Result columns in order (metadata columns of the sheet are inserted after ``role``;
+#: the method's ``mass below/above <M> g/mol [%]`` columns follow ``outside calibration``);
 #: names, units and meanings in :mod:`gpctools.columns`.
 RESULT_COLUMNS = (
     C.STATUS,
@@ -89,7 +110,11 @@ RESULT_COLUMNS = (
     C.MP,
     C.MP_DWDLOGM,
     C.DISPERSITY,
+    *C.UNCERTAINTY_COLUMNS,
     C.OUTSIDE_CALIBRATION,
+    C.PEAKS,
+    C.PEAK_SPLIT,
+    *C.PEAK_COLUMNS,
     C.BASELINE_WINDOWS,
     C.LIMITS,
     C.INTEGRATION_START,
@@ -97,6 +122,7 @@ RESULT_COLUMNS = (
     C.M_AT_INTEGRATION_START,
     C.M_AT_INTEGRATION_END,
     C.FLOW_MARKER,
+    C.FLOW_MARKER_STATUS,
     C.FLOW_FACTOR,
     C.MN_SHIFT_LOW_M,
     C.MW_SHIFT_LOW_M,
@@ -108,6 +134,79 @@ RESULT_COLUMNS = (
     C.WARNINGS,
     C.ERROR,
 )
+
+#: Values of :attr:`MarkerSearch.status` (and of the ``flow marker status`` column).
+MARKER_FOUND, MARKER_GIVEN, MARKER_NOT_FOUND, MARKER_NOT_USED = "found", "given", "not found", "not used"
+
+
+@dataclass(frozen=True)
+class MarkerSearch:
+    """The flow marker of one injection: where it is and how it was decided.
+
+    Attributes
+    ----------
+    status : str
+        ``"found"`` (recognised in ``flow_marker.search``), ``"given"`` (batch sheet),
+        ``"not found"`` (no peak passed the test: no correction) or ``"not used"`` (the
+        method has no marker).
+    position : float or None
+        Observed marker position [mL] (None unless found or given).
+    signal_to_noise : float
+        Smoothed height of the best candidate over the noise SD [-] (NaN when not searched).
+    fwhm : float
+        Full width at half height of the best candidate [mL] (NaN when not searched).
+    stderr : float
+        Standard error of the fitted position [mL] (NaN when not searched).
+    reason : str
+        Why a candidate was refused (empty otherwise).
+    """
+
+    status: str
+    position: float | None = None
+    signal_to_noise: float = math.nan
+    fwhm: float = math.nan
+    stderr: float = math.nan
+    reason: str = ""
+
+    def summary(self) -> dict[str, Any]:
+        from .sheets.cells import finite_or_none
+
+        return {
+            "status": self.status,
+            "position [mL]": self.position,
+            "signal-to-noise [-]": finite_or_none(self.signal_to_noise),
+            "fwhm [mL]": finite_or_none(self.fwhm),
+            "position standard error [mL]": finite_or_none(self.stderr),
+            "reason": self.reason,
+        }
+
+
+@dataclass(frozen=True)
+class MassFraction:
+    """Mass fraction below or above a cut-off molar mass.
+
+    Attributes
+    ----------
+    side : str
+        ``"below"`` or ``"above"``.
+    M : float
+        The cut-off [g/mol].
+    percent : float
+        The fraction of the distribution's mass [%].
+    """
+
+    side: str
+    M: float
+    percent: float
+
+    @property
+    def column(self) -> str:
+        """The result column, ``mass below 1000 g/mol [%]`` (:func:`gpctools.columns.mass_fraction_column`)."""
+        return C.mass_fraction_column(self.side, self.M)
+
+
+def _nan_if_none(x: float | None) -> float:
+    return float("nan") if x is None else float(x)
 
 
 @dataclass(frozen=True)
@@ -121,13 +220,16 @@ class InjectionResult:
     corrected : CorrectedSignal
         Baseline-corrected trace on the flow-corrected volume axis.
     marker_observed : float or None
-        Observed flow-marker position [mL] (from the sheet or found in the search window).
+        Observed flow-marker position [mL] (from the sheet or found in the search window);
+        None when there is none or none was found.
     flow_factor : float
         Volume correction factor reference/observed [-] (1 without a marker).
     Mn_shift_pct, Mw_shift_pct : float
         Change of Mn and Mw when the low-M (high-volume) integration limit is moved
-        ``limit_shift`` mL earlier [%]; a large Mn change with a small Mw change points
-        to a low-M tail or system peak inside the limits (SCIENCE.md section 9).
+        ``limit_shift`` mL earlier [%], over the same slices as the averages (so with
+        ``outside = "exclude"`` the slices the averages drop stay dropped); a large Mn
+        change with a small Mw change points to a low-M tail or system peak inside the
+        limits (docs/science.md, section 9).
     limit_shift : float
         That move of the low-M limit [mL] (method key ``thresholds.limit_shift``).
     scale : str
@@ -135,6 +237,19 @@ class InjectionResult:
     warnings : tuple of str
     metadata : dict
         Free-text metadata of the export file.
+    marker : MarkerSearch or None
+        How the marker was found or given (None for results built by hand).
+    uncertainty : AverageUncertainty or None
+        Relative standard uncertainties u(X)/X [-] (fractions, not %) of Mn, Mw and Mz by
+        source: ``uncertainty.Mn.calibration``, ``.noise``, ``.limits`` and the combined
+        ``.total`` (docs/science.md, section 19.7). The calibration part is common to
+        every injection on the same calibration; the shortcuts below give the totals.
+    peaks : Peaks or None
+        Maxima and valleys of the trace by the method's valley criterion.
+    parts : tuple of PeakPart
+        The trace split into peaks (empty unless ``[peaks] split`` asks for it).
+    fractions : tuple of MassFraction
+        Mass below/above the method's cut-offs.
     """
 
     sample_id: str
@@ -149,17 +264,46 @@ class InjectionResult:
     scale: str
     warnings: tuple[str, ...] = ()
     metadata: dict[str, str] = field(default_factory=dict)
+    marker: MarkerSearch | None = None
+    uncertainty: AverageUncertainty | None = None
+    peaks: Peaks | None = None
+    parts: tuple[PeakPart, ...] = ()
+    fractions: tuple[MassFraction, ...] = ()
+
+    # -- the uncertainties issue 11 consumes (relative, fractions [-]) ------------------
+    @property
+    def u_Mn(self) -> float:
+        """Combined relative standard uncertainty of Mn, u(Mn)/Mn [-] (NaN if unknown)."""
+        return self.uncertainty.Mn.total if self.uncertainty else math.nan
+
+    @property
+    def u_Mw(self) -> float:
+        """Combined relative standard uncertainty of Mw, u(Mw)/Mw [-] (NaN if unknown)."""
+        return self.uncertainty.Mw.total if self.uncertainty else math.nan
+
+    @property
+    def u_Mn_calibration(self) -> float:
+        """Calibration part of u(Mn)/Mn [-]: shared by every run on the same calibration."""
+        return self.uncertainty.Mn.calibration if self.uncertainty else math.nan
+
+    @property
+    def u_Mw_calibration(self) -> float:
+        """Calibration part of u(Mw)/Mw [-]: shared by every run on the same calibration."""
+        return self.uncertainty.Mw.calibration if self.uncertainty else math.nan
 
     def row(self) -> dict[str, Any]:
         """Result-table row; columns as in :data:`RESULT_COLUMNS` (:mod:`gpctools.columns`).
 
         Headers never depend on a setting: the low-M limit move is its own column,
-        ``low-M limit shift [mL]``.
+        ``low-M limit shift [mL]``; peaks always have the columns of peaks 1-3 (empty when
+        the trace is not split). The one exception by design are the mass fractions, named
+        by their cut-off (``mass below 1000 g/mol [%]``), which come after ``outside
+        calibration [% mass]`` in the order of the method's ``[fractions]``.
         """
         d = self.distribution
         bw = self.corrected.baseline.windows
         lim = self.corrected.limits
-        return {
+        row: dict[str, Any] = {
             C.SAMPLE_ID: self.sample_id,
             C.FILE: self.file,
             C.STATUS: "ok",
@@ -170,13 +314,31 @@ class InjectionResult:
             C.MP: d.Mp,
             C.MP_DWDLOGM: d.Mp_dwdlogM,
             C.DISPERSITY: d.dispersity,
-            C.OUTSIDE_CALIBRATION: 100.0 * d.outside_fraction,
+        }
+        for avg in UNCERTAIN_AVERAGES:
+            u = self.uncertainty.of(avg) if self.uncertainty else None
+            for source in ("", "calibration", "noise", "limits"):
+                value = math.nan if u is None else (u.total if source == "" else getattr(u, source))
+                row[C.uncertainty_column(avg, source)] = 100.0 * value
+        row[C.OUTSIDE_CALIBRATION] = 100.0 * d.outside_fraction
+        for frac in self.fractions:
+            row[frac.column] = frac.percent
+        row[C.PEAKS] = self.peaks.count if self.peaks is not None else math.nan
+        row[C.PEAK_SPLIT] = "; ".join(f"{p.M_lower:.5g}" for p in self.parts if p.M_lower is not None)
+        for n in range(1, C.MAX_PEAK_COLUMNS + 1):
+            part = self.parts[n - 1] if n <= len(self.parts) else None
+            for q in C.PEAK_QUANTITIES:
+                value = math.nan if part is None else (part.area_pct if q == "area" else getattr(part, q))
+                row[C.peak_column(n, q)] = value
+        row.update({
             C.BASELINE_WINDOWS: (
                 f"{bw[0][0]:.3f}-{bw[0][1]:.3f}; {bw[1][0]:.3f}-{bw[1][1]:.3f}"
                 + (" (auto)" if self.corrected.baseline.automatic else "")
             ),
             C.LIMITS: f"{lim[0]:.3f}-{lim[1]:.3f}" + (" (auto)" if self.corrected.automatic_limits else ""),
-            C.FLOW_MARKER: self.marker_observed if self.marker_observed is not None else float("nan"),
+            C.FLOW_MARKER: _nan_if_none(self.marker_observed),
+            C.FLOW_MARKER_STATUS: self.marker.status if self.marker is not None else (
+                MARKER_GIVEN if self.marker_observed is not None else MARKER_NOT_USED),
             C.FLOW_FACTOR: self.flow_factor,
             C.MN_SHIFT_LOW_M: self.Mn_shift_pct,
             C.MW_SHIFT_LOW_M: self.Mw_shift_pct,
@@ -184,46 +346,274 @@ class InjectionResult:
             C.SCALE: self.scale,
             C.WARNINGS: "; ".join(self.warnings),
             C.ERROR: "",
-        }
+        })
+        return row
 
     def summary(self) -> dict[str, Any]:
         """Plain JSON-safe description of the injection and its results."""
+        from .sheets.cells import finite_or_none
+
         return {
             C.SAMPLE_ID: self.sample_id,
             C.FILE: self.file,
             "distribution": self.distribution.summary(),
             "signal": self.corrected.summary(),
             C.FLOW_MARKER: self.marker_observed,
+            "flow marker search": self.marker.summary() if self.marker is not None else None,
             C.FLOW_FACTOR: self.flow_factor,
-            "Mn shift [%]": self.Mn_shift_pct,
-            "Mw shift [%]": self.Mw_shift_pct,
+            "Mn shift [%]": finite_or_none(self.Mn_shift_pct),
+            "Mw shift [%]": finite_or_none(self.Mw_shift_pct),
             C.LIMIT_SHIFT: self.limit_shift,
+            "uncertainty": self.uncertainty.summary() if self.uncertainty is not None else None,
+            "peaks": self.peaks.summary() if self.peaks is not None else None,
+            "peak parts": [p.summary() for p in self.parts],
+            "fractions": {f.column: finite_or_none(f.percent) for f in self.fractions},
             C.SCALE: self.scale,
             C.WARNINGS: list(self.warnings),
         }
 
 
-def _find_marker(volume: np.ndarray, signal: np.ndarray, window: tuple[float, float]) -> float:
-    """Flow-marker peak position inside ``window`` [mL].
+# -- flow marker ----------------------------------------------------------------------------
+def _half_height_run(V: np.ndarray, sm: np.ndarray, i0: int) -> tuple[float, bool]:
+    """Full width at half height of the smoothed peak at i0 [mL], and whether it fits the window.
 
-    A straight line through the window's end points is removed and the largest
-    deviation (positive or negative: refractive-index markers are often negative) is
-    refined with a parabola.
+    The crossings are interpolated linearly between slices; a run that reaches either
+    end of the window does not fit (the peak is cut off, or it is a baseline hump).
     """
+    half = 0.5 * sm[i0]
+    below = np.flatnonzero(sm < half)
+    left = below[below < i0]
+    right = below[below > i0]
+    if not left.size or not right.size:
+        return math.nan, False
+    a, b = int(left[-1]), int(right[0])
+    va = V[a] + (half - sm[a]) * (V[a + 1] - V[a]) / (sm[a + 1] - sm[a])
+    vb = V[b - 1] + (half - sm[b - 1]) * (V[b] - V[b - 1]) / (sm[b] - sm[b - 1])
+    return float(vb - va), True
+
+
+@dataclass(frozen=True)
+class _MarkerCandidate:
+    """The largest excursion in the search window: its smoothed height [signal units],
+    width at half height [mL], whether it lies wholly inside the window, and the top fit."""
+
+    height: float
+    fwhm: float
+    inside: bool
+    position: float
+    stderr: float
+    fitted: bool
+    spacing: float
+
+
+def _marker_candidate(volume: np.ndarray, signal: np.ndarray, window: tuple[float, float]) -> _MarkerCandidate:
+    """Geometry of the best marker candidate in ``window`` (see :func:`_find_marker`)."""
     m = (volume >= window[0]) & (volume <= window[1])
     if m.sum() < 5:
         raise DataError(
             f"flow-marker search window {window[0]:g}-{window[1]:g} mL holds too few slices; "
             "set flow_marker.search around the marker peak"
         )
-    V = volume[m]
-    h = signal[m]
+    order = np.argsort(volume[m], kind="stable")
+    V = volume[m][order]
+    h = signal[m][order]
     k = max(1, V.size // 20)
     line = np.interp(V, [V[:k].mean(), V[-k:].mean()], [h[:k].mean(), h[-k:].mean()])
     dev = h - line
-    if abs(dev.min()) > abs(dev.max()):
-        dev = -dev
-    return peak_position(V, dev)
+    from .distribution import _smoothed
+
+    reach = max(3, V.size // 50)
+    sm = _smoothed(dev, reach)
+    if abs(sm.min()) > abs(sm.max()):
+        dev, sm = -dev, -sm
+    i0 = int(np.argmax(sm))
+    # the width on a light (3-point) smoothing, so that a one-slice spike stays narrow
+    narrow = _smoothed(dev, 3)
+    lo = max(0, i0 - reach)
+    j0 = lo + int(np.argmax(narrow[lo: i0 + reach + 1]))
+    fwhm, inside = _half_height_run(V, narrow, j0)
+    top = peak_top(V, dev, fraction=0.5)
+    spacing = float(np.median(np.diff(V))) if V.size > 1 else 0.0
+    return _MarkerCandidate(float(sm[i0]), fwhm, inside, float(top.position), float(top.stderr),
+                            bool(top.fitted and window[0] < top.position < window[1]), spacing)
+
+
+def _judge_marker(
+    cand: _MarkerCandidate, window: tuple[float, float], noise: float, options: FlowMarkerOptions
+) -> MarkerSearch:
+    """Accept or refuse a candidate by height over ``noise`` [signal units], width and fit."""
+    snr = cand.height / noise if noise > 0 else math.inf
+    lo, hi = options.fwhm if options.fwhm is not None else (5.0 * cand.spacing, 0.5 * (window[1] - window[0]))
+    reason = ""
+    if not snr >= options.min_signal_to_noise:
+        reason = (f"the largest peak stands {snr:.1f} noise SDs high, {options.min_signal_to_noise:g} needed "
+                  "(flow_marker.min_signal_to_noise)")
+    elif not cand.inside:
+        reason = "the largest peak is cut off by the search window or is a baseline hump"
+    elif not (lo <= cand.fwhm <= hi):
+        reason = (f"the largest peak is {cand.fwhm:.3g} mL wide at half height, outside the plausible "
+                  f"{lo:.3g}-{hi:.3g} mL (flow_marker.fwhm)")
+    elif not cand.fitted:
+        reason = "no maximum could be fitted over the top of the largest peak"
+    if reason:
+        return MarkerSearch(MARKER_NOT_FOUND, None, snr, cand.fwhm, math.nan, reason)
+    return MarkerSearch(MARKER_FOUND, cand.position, snr, cand.fwhm, cand.stderr, "")
+
+
+def _find_marker(
+    volume: np.ndarray,
+    signal: np.ndarray,
+    window: tuple[float, float],
+    *,
+    noise: float,
+    options: FlowMarkerOptions | None = None,
+) -> MarkerSearch:
+    """Recognise and locate the flow-marker peak inside ``window`` [mL].
+
+    A straight line through the means of the window's first and last 5 % is removed; the
+    larger deviation (positive or negative: refractive-index markers are often negative)
+    is the candidate. It is accepted as the marker only when (docs/science.md, section 19.1)
+
+    * its height (on a moving average of n/50 points) is at least
+      ``options.min_signal_to_noise`` times ``noise`` (the noise SD of the trace
+      [signal units], :func:`_marker_noise`);
+    * its full width at half height (on a 3-point moving average) lies in
+      ``options.fwhm`` (default: 5 slice spacings to half the window [mL]: a spike of a
+      slice or two is not a marker, nor is a hump as wide as the window) and the peak
+      lies wholly inside the window;
+    * a maximum can be fitted over its top.
+
+    The position is the maximum of a cubic in ln(height) fitted by weighted least squares
+    over the points above half height (:func:`gpctools.distribution.peak_top`), not the
+    highest raw point: 3 raw points follow the noise (issue 10 measured 0.006 min on a
+    0.3 % pump error).
+
+    Returns
+    -------
+    MarkerSearch
+        Status ``"found"`` with the position, or ``"not found"`` with the reason.
+    """
+    return _judge_marker(_marker_candidate(volume, signal, window), window, noise, options or FlowMarkerOptions())
+
+
+def _marker_noise(V: np.ndarray, h: np.ndarray, method: Method, white: float | None = None) -> float:
+    """Noise SD of the raw trace for marker recognition [signal units].
+
+    The larger of the point-to-point (white) estimate over the whole record and the
+    residual SD about a provisional baseline fitted with the search window excluded:
+    the second also sees slow, correlated noise, which differences cannot, so a wander
+    of the baseline is not taken for a marker.
+    """
+    sigma = noise_level(h) if white is None else float(white)
+    search = method.marker_search
+    try:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", GpcWarning)
+            base = fit_baseline(V, h, method.windows, exclusions=(*method.exclusions, *(search and [search] or [])),
+                                noise=sigma, search=(method.calibration.v_min, method.calibration.v_max))
+        sigma = max(sigma, base.noise)
+    except GpcError:
+        pass
+    return float(sigma)
+
+
+def _flow_correction(
+    V: np.ndarray, h: np.ndarray, method: Method, marker_observed: float | None, file: str
+) -> tuple[float, MarkerSearch]:
+    """The volume factor V_ref/V_obs [-] and how the marker was obtained (given, found or not)."""
+    if marker_observed is not None:
+        marker = MarkerSearch(MARKER_GIVEN, float(marker_observed))
+    elif method.marker_search is not None:
+        # The white-noise SD is cheap and never larger than the full estimate: a candidate
+        # it already refuses is refused; only a candidate it accepts is judged again.
+        cand = _marker_candidate(V, h, method.marker_search)
+        white = noise_level(h)
+        marker = _judge_marker(cand, method.marker_search, white, method.marker)
+        if marker.status == MARKER_FOUND:
+            marker = _judge_marker(cand, method.marker_search, _marker_noise(V, h, method, white), method.marker)
+        if marker.status == MARKER_NOT_FOUND:
+            where = f"{file}: " if file else ""
+            text = (f"{where}no flow marker recognised in {method.marker_search[0]:g}-"
+                    f"{method.marker_search[1]:g} mL ({marker.reason})")
+            if method.marker.required:
+                raise DataError(text + "; flow_marker.required = true, so the injection is not processed")
+            warnings.warn(text + "; volumes not corrected (flow correction factor 1). Give the position in "
+                          "the batch sheet ('flow marker [mL]') or adjust [flow_marker]", SignalWarning,
+                          stacklevel=3)
+            return 1.0, marker
+    else:
+        return 1.0, MarkerSearch(MARKER_NOT_USED)
+    obs = marker.position
+    if method.marker_reference is None:
+        raise DataError("a flow-marker position was given but the method has no flow_marker.reference")
+    if obs is None or not (math.isfinite(obs) and obs > 0):
+        raise DataError(f"flow-marker position must be a positive volume, got {obs!r}")
+    factor = method.marker_reference / obs
+    if abs(factor - 1.0) > 0.05:
+        raise DataError(
+            f"flow marker at {obs:.3f} mL is more than 5 % from the reference "
+            f"{method.marker_reference:.3f} mL: check the marker peak or the search window"
+        )
+    return factor, marker
+
+
+# -- one trace ------------------------------------------------------------------------------
+def _low_m_shift(dist: Distribution, cs: CorrectedSignal, shift: float) -> dict[str, float]:
+    """Averages [g/mol] with the low-M limit moved ``shift`` mL earlier, over the slices
+    the averages used (exclusions and the outside rule applied alike)."""
+    keep = dist.volume <= cs.limits[1] - shift
+    try:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", GpcWarning)
+            values, _ = averages_with_reasons(dist.M[keep], dist.w[keep])
+    except DataError:
+        values = {k: math.nan for k in ("Mn", "Mw", "Mz", "Mz1", "dispersity")}
+    return values
+
+
+def _peaks_and_parts(
+    V: np.ndarray, cs: CorrectedSignal, dist: Distribution, method: Method
+) -> tuple[Peaks, tuple[PeakPart, ...]]:
+    """Peaks by the valley criterion, and the split the method asks for (warns on several
+    peaks reported as one)."""
+    opts = method.peaks
+    peaks = find_peaks(V, cs.signal, mask=cs.mask, valley_depth=opts.valley_depth, min_height=opts.min_height)
+    parts: tuple[PeakPart, ...] = ()
+    if opts.split == "valleys":
+        split_M = [float(method.calibration.M(v)) for v in peaks.valleys]
+        parts = split_distribution(dist, method.calibration, split_M)
+    elif isinstance(opts.split, tuple):
+        parts = split_distribution(dist, method.calibration, opts.split)
+    elif peaks.count > 1:
+        valleys = ", ".join(f"{v:.3f} mL ({float(method.calibration.M(v)):.4g} g/mol)" for v in peaks.valleys)
+        warnings.warn(
+            f"the trace has {peaks.count} peaks (valleys at {valleys}) but is reported as one: the "
+            "averages cover all of them; set [peaks] split = \"valleys\" for averages per peak",
+            SignalWarning, stacklevel=3)
+    if len(parts) > C.MAX_PEAK_COLUMNS:
+        warnings.warn(f"{len(parts)} peaks: the result columns show the first {C.MAX_PEAK_COLUMNS} "
+                      "(all are in the injection's summary)", SignalWarning, stacklevel=3)
+    for part in parts:
+        for text in part.missing.values():
+            warnings.warn(text, SignalWarning, stacklevel=3)
+    return peaks, parts
+
+
+def _mass_fractions(dist: Distribution, method: Method) -> tuple[MassFraction, ...]:
+    """Mass below/above the method's cut-offs [%], with a note for a cut-off outside the
+    molar masses integrated (where the answer is 0 or 100 % by the limits alone)."""
+    out = []
+    lo, hi = float(dist.M.min()), float(dist.M.max())
+    for side, cuts in (("below", method.fractions.below), ("above", method.fractions.above)):
+        for M in cuts:
+            below = mass_fraction_below(dist, M)
+            out.append(MassFraction(side, float(M), 100.0 * (below if side == "below" else 1.0 - below)))
+            if not lo < M < hi:
+                warnings.warn(
+                    f"cut-off {C.format_molar_mass(M)} g/mol lies outside the molar masses integrated "
+                    f"({lo:.4g}-{hi:.4g} g/mol): the mass {side} it is set by the integration limits",
+                    SignalWarning, stacklevel=3)
+    return tuple(out)
 
 
 def process_trace(
@@ -236,46 +626,36 @@ def process_trace(
     marker_observed: float | None = None,
     metadata: dict[str, str] | None = None,
 ) -> InjectionResult:
-    """Process one trace already on the volume axis (see :func:`process_injection`)."""
+    """Process one trace already on the volume axis (see :func:`process_injection`).
+
+    Steps: flow marker (:func:`_flow_correction`), baseline and limits with the main peak
+    searched inside the calibrated range (:func:`gpctools.signal.correct_signal`),
+    distribution (:func:`gpctools.distribution.compute_distribution`), low-M limit
+    sensitivity (:func:`_low_m_shift`), uncertainty
+    (:func:`gpctools.uncertainty.average_uncertainty`), peaks (:func:`_peaks_and_parts`)
+    and mass fractions (:func:`_mass_fractions`). Every :class:`~gpctools.errors.GpcWarning`
+    raised on the way ends up in ``warnings``.
+    """
     V = np.asarray(volume, dtype=float)
     h = np.asarray(signal, dtype=float)
+    cal = method.calibration
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", GpcWarning)
-        factor = 1.0
-        if marker_observed is None and method.marker_search is not None:
-            marker_observed = _find_marker(V, h, method.marker_search)
-        if marker_observed is not None:
-            if method.marker_reference is None:
-                raise DataError(
-                    "a flow-marker position was given but the method has no flow_marker.reference"
-                )
-            if not (math.isfinite(marker_observed) and marker_observed > 0):
-                raise DataError(f"flow-marker position must be a positive volume, got {marker_observed!r}")
-            factor = method.marker_reference / marker_observed
-            if abs(factor - 1.0) > 0.05:
-                raise DataError(
-                    f"flow marker at {marker_observed:.3f} mL is more than 5 % from the reference "
-                    f"{method.marker_reference:.3f} mL: check the marker peak or the search window"
-                )
-            V = V * factor
-        cs = correct_signal(V, h, windows=method.windows, limits=method.volume_limits(), exclusions=method.exclusions)
+        factor, marker = _flow_correction(V, h, method, marker_observed, file)
+        V = V * factor
+        cs = correct_signal(V, h, windows=method.windows, limits=method.volume_limits(),
+                            exclusions=method.exclusions, search=(cal.v_min, cal.v_max))
         dist = compute_distribution(
-            V, cs.signal, method.calibration, mask=cs.mask,
+            V, cs.signal, cal, mask=cs.mask,
             outside=method.outside, outside_warn_pct=method.outside_warn_pct,
         )
-        # Sensitivity of Mn and Mw to the low-M (late) integration limit.
-        shifted = cs.mask & (V <= cs.limits[1] - method.limit_shift)
-        try:
-            # Widths need increasing volumes; give them back in the caller's slice order.
-            order = np.argsort(V, kind="stable")
-            dV = np.empty_like(V)
-            dV[order] = slice_widths(V[order])
-            wts = cs.signal[shifted] * dV[shifted]
-            alt = averages(method.calibration.M(V[shifted]), wts)
-            mn_shift = 100.0 * (alt["Mn"] / dist.Mn - 1.0)
-            mw_shift = 100.0 * (alt["Mw"] / dist.Mw - 1.0)
-        except DataError:
-            mn_shift = mw_shift = float("nan")
+        shifted = _low_m_shift(dist, cs, method.limit_shift)
+        mn_shift = 100.0 * (shifted["Mn"] / dist.Mn - 1.0)
+        mw_shift = 100.0 * (shifted["Mw"] / dist.Mw - 1.0)
+        unc = average_uncertainty(dist, cal, noise_sd=cs.baseline.noise, baseline=cs.baseline,
+                                  shifted=shifted, limit_shift=method.limit_shift)
+        peaks, parts = _peaks_and_parts(V, cs, dist, method)
+        fractions = _mass_fractions(dist, method)
     notes = tuple(dict.fromkeys(str(w.message) for w in caught if issubclass(w.category, GpcWarning)))
     for w in caught:
         if not issubclass(w.category, GpcWarning):
@@ -285,14 +665,19 @@ def process_trace(
         file=file,
         distribution=dist,
         corrected=cs,
-        marker_observed=marker_observed,
+        marker_observed=marker.position,
         flow_factor=factor,
         Mn_shift_pct=mn_shift,
         Mw_shift_pct=mw_shift,
         limit_shift=method.limit_shift,
-        scale=method.calibration.scale_label(),
+        scale=cal.scale_label(),
         warnings=notes,
         metadata=dict(metadata or {}),
+        marker=marker,
+        uncertainty=unc,
+        peaks=peaks,
+        parts=parts,
+        fractions=fractions,
     )
 
 
@@ -306,11 +691,13 @@ def process_injection(
     """Read and process one slice export.
 
     Steps: read (:func:`gpctools.io.read_chromatogram` with the method's import options),
-    convert time to volume with the flow rate, correct volumes with the flow marker
-    (V_corr = V·V_ref/V_obs, SCIENCE.md section 2), subtract the baseline, apply limits
-    and exclusions (:func:`gpctools.signal.correct_signal`), compute the distribution and
-    averages (:func:`gpctools.distribution.compute_distribution`) and the Mn/Mw
-    sensitivity to the low-M limit.
+    convert time to volume with the flow rate, then :func:`process_trace`: correct volumes
+    with the flow marker when one is recognised (V_corr = V·V_ref/V_obs, docs/science.md,
+    sections 2.2 and 19.1), subtract the baseline, apply limits and exclusions with the
+    polymer peak searched inside the calibrated range
+    (:func:`gpctools.signal.correct_signal`), compute the distribution and averages
+    (:func:`gpctools.distribution.compute_distribution`), the Mn/Mw sensitivity to the
+    low-M limit, the uncertainty of Mn, Mw and Mz, the peaks and the mass fractions.
 
     Parameters
     ----------
@@ -506,8 +893,8 @@ def _replicate_note(entries: list[BatchEntry], rows: Any, path: Path) -> str | N
         return None
     listed = "; ".join(f"{k!r} (rows {', '.join(str(n) for n in v)})" for k, v in repeated.items())
     return (f"{path}: sample ids on more than one row: {listed}; they are treated as replicate "
-            "injections of one sample (reported per injection, averaged together in QC); give "
-            "different samples different ids")
+            "injections of one sample (reported per injection, averaged together in QC); if "
+            "some are different samples, give them different ids")
 
 
 # -- running a batch ----------------------------------------------------------------------
@@ -521,6 +908,10 @@ def _error_row(entry: BatchEntry, message: str, method: Method | None = None) ->
     row = {C.SAMPLE_ID: entry.sample_id, C.FILE: entry.file, C.ROLE: entry.role, **entry.metadata}
     for c in RESULT_COLUMNS:
         row.setdefault(c, float("nan") if C.describe(c).unit else "")
+    if method is not None:  # the method's mass-fraction columns, empty, so every row has them
+        for side, cuts in (("below", method.fractions.below), ("above", method.fractions.above)):
+            for M in cuts:
+                row.setdefault(C.mass_fraction_column(side, M), float("nan"))
     row.update(_method_columns(entry, method))
     row[C.STATUS] = "error"
     row[C.ERROR] = message
@@ -528,8 +919,11 @@ def _error_row(entry: BatchEntry, message: str, method: Method | None = None) ->
 
 
 def _ordered(row: dict[str, Any], entry: BatchEntry) -> dict[str, Any]:
-    """The sheet's own columns, then :data:`RESULT_COLUMNS` in order, then any others."""
-    front = [C.SAMPLE_ID, C.FILE, C.ROLE, *entry.metadata, *RESULT_COLUMNS]
+    """The sheet's own columns, then :data:`RESULT_COLUMNS` in order (the mass-fraction
+    columns of the row's method right after ``outside calibration``), then any others."""
+    fractions = [k for k in row if C.is_mass_fraction_column(k)]
+    i = RESULT_COLUMNS.index(C.OUTSIDE_CALIBRATION) + 1
+    front = [C.SAMPLE_ID, C.FILE, C.ROLE, *entry.metadata, *RESULT_COLUMNS[:i], *fractions, *RESULT_COLUMNS[i:]]
     out = {k: row[k] for k in front if k in row}
     out.update((k, v) for k, v in row.items() if k not in out)
     return out

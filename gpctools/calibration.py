@@ -252,6 +252,32 @@ class Calibration:
         var = np.einsum("...i,ij,...j->...", X, C, X).reshape(V.shape)
         return abs(self.log_factor) * np.sqrt(np.maximum(var, 0.0))
 
+    def log_M_gradient(self, V: Any) -> np.ndarray:
+        """Derivative of log10 M(V) with respect to each coefficient, shape (len(V), order + 1) [-].
+
+        Inside the calibrated range log10 M = off + f·Σ c_k t^k with t = (V − center)/scale,
+        so ∂ log10 M/∂c_k = f·t^k. Outside it the tangent at the range end V_e (t_e) is used,
+        log10 M = off + f·[Σ c_k t_e^k + (Σ k c_k t_e^(k−1))·(V − V_e)/scale], so
+
+        .. math:: \\partial \\log_{10} M / \\partial c_k = f\\,[t_e^k + k\\,t_e^{k-1} (V - V_e)/s]
+
+        (f = ``log_factor``; the universal-calibration offset does not depend on the
+        coefficients). With the coefficient covariance C, the variance of a function g of
+        the molar masses follows as ∇gᵀ C ∇g (first-order propagation; JCGM 100:2008,
+        the GUM, section 5.1, from memory). See
+        :func:`gpctools.uncertainty.calibration_uncertainty`.
+        """
+        V = np.atleast_1d(np.asarray(V, dtype=float))
+        Ve = np.clip(V, self.v_min, self.v_max)
+        te = (Ve - self.center) / self.scale
+        G = np.polynomial.polynomial.polyvander(te, self.order)
+        k = np.arange(self.order + 1)
+        # derivative of t^k: k t^(k-1) (zero for k = 0)
+        dG = np.zeros_like(G)
+        dG[:, 1:] = G[:, :-1] * k[1:]
+        G = G + dG * ((V - Ve) / self.scale)[:, None]
+        return self.log_factor * G
+
     def inside(self, V: Any) -> np.ndarray:
         """Boolean mask: V inside the calibrated range."""
         V = np.asarray(V, dtype=float)

@@ -15,6 +15,12 @@ Rules
 * Old headers that earlier builds wrote are listed in :data:`LEGACY_NAMES` (as regular
   expressions); readers of results tables find a column under either name with
   :func:`find`.
+* One family is named by a value on purpose: the mass fractions below or above a molar
+  mass, ``mass below 1000 g/mol [%]``. The cut-off is part of what the quantity *is*
+  (the mass below 500 g/mol and below 1000 g/mol are different quantities, specified
+  separately by QC), not a processing setting, so it belongs in the name; the same
+  cut-off always gives the same header (:func:`format_molar_mass`), and :func:`describe`
+  knows every member of the family.
 
 Use the constants as plain strings (``row[columns.MN]``); :func:`describe` gives the
 unit and meaning of a column, for documentation and report legends.
@@ -71,6 +77,7 @@ __all__ = [
     "METHOD_SHA256",
     "OVERRIDES",
     "FLOW_MARKER",
+    "FLOW_MARKER_STATUS",
     "FLOW_FACTOR",
     "MN_SHIFT_LOW_M",
     "MW_SHIFT_LOW_M",
@@ -79,6 +86,19 @@ __all__ = [
     "WARNINGS",
     "ERROR",
     "AVERAGE_COLUMNS",
+    # uncertainty, peaks, fractions
+    "UNCERTAINTY_PARTS",
+    "uncertainty_column",
+    "UNCERTAINTY_COLUMNS",
+    "PEAKS",
+    "PEAK_SPLIT",
+    "MAX_PEAK_COLUMNS",
+    "PEAK_QUANTITIES",
+    "peak_column",
+    "PEAK_COLUMNS",
+    "mass_fraction_column",
+    "is_mass_fraction_column",
+    "format_molar_mass",
     # QC
     "INJECTIONS",
     "USABLE_INJECTIONS",
@@ -133,6 +153,47 @@ def _column(name: str, unit: str, meaning: str) -> str:
     return name
 
 
+#: Headers named by a cut-off molar mass (see :func:`mass_fraction_column`).
+_FRACTION_PATTERN = re.compile(r"mass (below|above) (\d+(?:\.\d+)?) g/mol \[%\]")
+
+
+def format_molar_mass(M: float) -> str:
+    """A molar mass [g/mol] as it appears in a column name: plain digits, no grouping.
+
+    Whole numbers print without a decimal point (``1000``, ``1000000``), others with
+    up to 10 significant digits (``2500.5``), so one cut-off always gives one header.
+
+    >>> format_molar_mass(1e6), format_molar_mass(500.0), format_molar_mass(2500.5)
+    ('1000000', '500', '2500.5')
+    """
+    M = float(M)
+    if not (M > 0 and M < 1e15):
+        raise ValueError(f"a cut-off molar mass must be positive and below 1e15 g/mol, got {M!r}")
+    if M == round(M):
+        return str(int(round(M)))
+    text = f"{M:.10f}".rstrip("0").rstrip(".")
+    return text
+
+
+def is_mass_fraction_column(name: object) -> bool:
+    """True for a header of the mass-fraction family (``mass below 1000 g/mol [%]``)."""
+    return isinstance(name, str) and _FRACTION_PATTERN.fullmatch(name) is not None
+
+
+def mass_fraction_column(side: str, M: float) -> str:
+    """Header of the mass fraction below or above a cut-off: ``mass below 1000 g/mol [%]``.
+
+    Parameters
+    ----------
+    side : {"below", "above"}
+    M : float
+        The cut-off [g/mol].
+    """
+    if side not in ("below", "above"):
+        raise ValueError(f"side must be 'below' or 'above', got {side!r}")
+    return f"mass {side} {format_molar_mass(M)} g/mol [%]"
+
+
 def describe(name: str) -> ResultColumn:
     """Unit and meaning of a result column.
 
@@ -152,6 +213,10 @@ def describe(name: str) -> ResultColumn:
     """
     if name in COLUMNS:
         return COLUMNS[name]
+    m = _FRACTION_PATTERN.fullmatch(name)
+    if m:
+        return ResultColumn(name, "%", f"mass fraction of the distribution with M {m.group(1)} "
+                                        f"{m.group(2)} g/mol (within the integration limits)")
     for pattern, new in _LEGACY:
         if pattern.fullmatch(name):
             return COLUMNS[new]
@@ -227,7 +292,11 @@ METHOD_SHA256 = _column("method SHA-256", "", "SHA-256 of the method file as rea
 OVERRIDES = _column("overrides", "",
                     "method settings changed for this injection by batch-sheet columns "
                     "(empty when none)")
-FLOW_MARKER = _column("flow marker [mL]", "mL", "observed flow-marker position of the injection")
+FLOW_MARKER = _column("flow marker [mL]", "mL",
+                      "observed flow-marker position of the injection (empty when none was found or given)")
+FLOW_MARKER_STATUS = _column("flow marker status", "",
+                             "found (fitted in flow_marker.search), given (batch sheet), not found "
+                             "(no correction applied) or not used (no marker in the method)")
 FLOW_FACTOR = _column("flow correction factor [-]", "-",
                       "volume correction V_ref/V_obs from the flow marker (1 without one)")
 MN_SHIFT_LOW_M = _column("Mn shift at low-M limit [%]", "%",
@@ -245,6 +314,61 @@ ERROR = _column("error", "", "why the injection failed (empty when status is ok)
 
 #: The molar-mass averages and dispersity, in table order.
 AVERAGE_COLUMNS = (MN, MW, MZ, MZ1, MP, MP_DWDLOGM, DISPERSITY)
+
+# -- uncertainty ------------------------------------------------------------------------
+#: Parts of a standard uncertainty, as they appear in the headers ("" = combined).
+UNCERTAINTY_PARTS = ("calibration", "noise", "limits", "")
+_PART_MEANING = {
+    "calibration": "from the calibration-coefficient covariance (common to every injection on "
+                   "that calibration)",
+    "noise": "from white baseline noise and the baseline line's own error",
+    "limits": "half the change when the low-M limit moves by 'low-M limit shift [mL]'",
+    "": "combined in quadrature from the calibration, noise and limits parts",
+}
+
+
+def uncertainty_column(average: str, part: str = "") -> str:
+    """Header of a relative standard uncertainty: ``u(Mn) [%]``, ``u(Mn) calibration [%]``."""
+    if part not in UNCERTAINTY_PARTS:
+        raise ValueError(f"part must be one of {UNCERTAINTY_PARTS}, got {part!r}")
+    return f"u({average}) {part} [%]".replace("  ", " ")
+
+
+#: Relative standard uncertainty columns of Mn, Mw and Mz, combined first.
+UNCERTAINTY_COLUMNS = tuple(
+    _column(uncertainty_column(avg, part), "%",
+            f"relative standard uncertainty of {avg} [%], {_PART_MEANING[part]}")
+    for avg in ("Mn", "Mw", "Mz") for part in ("", "calibration", "noise", "limits")
+)
+
+# -- peaks ------------------------------------------------------------------------------
+PEAKS = _column("peaks [-]", "-", "number of peaks in the trace by the valley criterion of [peaks]")
+PEAK_SPLIT = _column("peak split [g/mol]", "g/mol",
+                     "molar masses at which the trace was split into peaks, joined by '; ' "
+                     "(empty when not split)")
+#: Peaks reported in columns (a constant, not a setting, so that headers never change);
+#: further parts are in the injection's summary.
+MAX_PEAK_COLUMNS = 3
+#: Per-peak quantities: name in the header -> (unit, meaning).
+PEAK_QUANTITIES = {
+    "Mn": ("g/mol", "number-average molar mass of the part"),
+    "Mw": ("g/mol", "mass-average molar mass of the part"),
+    "Mp": ("g/mol", "molar mass at the part's maximum of the detector trace"),
+    "area": ("%", "share of the part in the mass of the distribution"),
+}
+
+
+def peak_column(number: int, quantity: str) -> str:
+    """Header of a per-peak value: ``peak 1 Mn [g/mol]``, ``peak 2 area [%]`` (1 = highest M)."""
+    unit, _ = PEAK_QUANTITIES[quantity]
+    return f"peak {int(number)} {quantity} [{unit}]"
+
+
+#: Per-peak columns for peaks 1 ... MAX_PEAK_COLUMNS, numbered from high to low M.
+PEAK_COLUMNS = tuple(
+    _column(peak_column(n, q), unit, f"peak {n} (counted from high M): {meaning}")
+    for n in range(1, MAX_PEAK_COLUMNS + 1) for q, (unit, meaning) in PEAK_QUANTITIES.items()
+)
 
 # Earlier builds wrote the setting into the shift headers: "Mn shift, low-M limit -0.2 mL [%]".
 LEGACY_NAMES[r"Mn shift, low-M limit -\S+ mL \[%\]"] = MN_SHIFT_LOW_M

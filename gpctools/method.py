@@ -3,7 +3,7 @@
 A method is read once, checked key by key, and turned into a frozen :class:`Method`
 holding a fitted :class:`~gpctools.calibration.Calibration`. Unknown keys and bad values
 raise :class:`~gpctools.errors.MethodError` naming the dotted key (``baseline.windows``)
-and what to write instead. The commented starter file is ``templates/method.toml``.
+and what to write instead. The commented starter file is ``gpctools/templates/method.toml`` (``gpctools template method.toml``).
 
 Schema (all sections optional except ``[calibration]``)::
 
@@ -25,6 +25,10 @@ Schema (all sections optional except ``[calibration]``)::
     [flow_marker]
     reference = 23.6                  # marker peak volume on the calibration day [mL]
     search = [23.2, 24.0]             # find the marker peak in each injection here [mL]
+    min_signal_to_noise = 10          # a peak counts as the marker from this height / noise SD
+    fwhm = [0.02, 0.4]                # plausible full width at half height [mL] (default:
+                                      # 5 slices to half the search window)
+    required = false                  # true: an injection without a marker is an error
 
     [baseline]
     windows = "auto"                  # or [[a, b], [c, d]] [mL]
@@ -51,6 +55,15 @@ Schema (all sections optional except ``[calibration]``)::
     a_sample = 0.719
     source = "..."
 
+    [peaks]                           # several peaks in one trace
+    split = "none"                    # "none" | "valleys" | [20000, 800] molar masses [g/mol]
+    valley_depth_pct = 10             # a valley lies this % below the lower neighbouring peak
+    min_height_pct = 5                # a peak stands at least this % of the highest one
+
+    [fractions]                       # mass fractions as result columns
+    below = [500, 1000]               # "mass below 500 g/mol [%]", ... [g/mol]
+    above = [1000000]                 # "mass above 1000000 g/mol [%]" [g/mol]
+
     [thresholds]
     outside_calibration_pct = 1.0     # warn above this mass % outside calibration
     standard_residual_pct = 5.0       # acceptance of each standard's residual [%]
@@ -75,16 +88,20 @@ if sys.version_info >= (3, 11):
 else:  # pragma: no cover - exercised on 3.10 only
     import tomli as tomllib
 
-__all__ = ["Method", "MethodOverrides", "ImportOptions", "load_method"]
+__all__ = ["Method", "MethodOverrides", "ImportOptions", "FlowMarkerOptions", "PeakOptions", "FractionOptions",
+           "load_method"]
 
 Window = tuple[float, float]
 
 _SCHEMA: dict[str, set[str] | None] = {
     "": {"name", "sample_polymer", "import", "flow", "flow_marker", "baseline", "integration",
-         "calibration", "mark_houwink", "thresholds", "description", "qc"},  # [qc]: read by gpctools.qc
+         "calibration", "mark_houwink", "thresholds", "description", "peaks", "fractions",
+         "qc"},  # [qc]: read by gpctools.qc (QC settings)
     "import": {"x_column", "signal_column", "x_unit", "sheet", "decimal", "separator", "encoding"},
     "flow": {"rate"},
-    "flow_marker": {"reference", "search"},
+    "flow_marker": {"reference", "search", "min_signal_to_noise", "fwhm", "required"},
+    "peaks": {"split", "valley_depth_pct", "min_height_pct"},
+    "fractions": {"below", "above"},
     "baseline": {"windows"},
     "integration": {"limits", "limits_molar_mass", "exclude", "outside"},
     "calibration": {"order", "standard_polymer", "standards", "standard", "sheet"},
@@ -110,6 +127,65 @@ class ImportOptions:
 
 
 @dataclass(frozen=True)
+class FlowMarkerOptions:
+    """How a flow-marker peak is recognised in ``flow_marker.search`` (docs/science.md, section 19.1).
+
+    Attributes
+    ----------
+    min_signal_to_noise : float
+        A candidate counts as the marker only when its fitted height above the local line
+        is at least this many noise SDs [-] (default 10, the usual limit of quantitation,
+        ICH Q2(R1), from memory).
+    fwhm : (float, float) or None
+        Plausible full width at half height [mL]; None: from 5 slice spacings to half
+        the search window.
+    required : bool
+        True: an injection without a recognised marker fails (``DataError``); False: it
+        is processed without flow correction and a warning names the file.
+    """
+
+    min_signal_to_noise: float = 10.0
+    fwhm: Window | None = None
+    required: bool = False
+
+
+@dataclass(frozen=True)
+class PeakOptions:
+    """Splitting a trace into peaks (docs/science.md, section 19.5).
+
+    Attributes
+    ----------
+    split : "none", "valleys" or tuple of float
+        "none": one set of averages (a warning when the trace has several peaks);
+        "valleys": split at the valleys :func:`gpctools.signal.find_peaks` finds; a tuple:
+        split at these molar masses [g/mol].
+    valley_depth : float
+        Valley criterion: dip below the lower neighbouring peak, fraction [-].
+    min_height : float
+        Smallest peak as a fraction of the highest [-].
+    """
+
+    split: str | tuple[float, ...] = "none"
+    valley_depth: float = 0.10
+    min_height: float = 0.05
+
+
+@dataclass(frozen=True)
+class FractionOptions:
+    """Mass fractions reported as result columns (docs/science.md, section 19.6).
+
+    Attributes
+    ----------
+    below, above : tuple of float
+        Cut-off molar masses [g/mol]: ``mass below <M> g/mol [%]`` and ``mass above <M>
+        g/mol [%]`` columns, in the order given.
+    """
+
+    below: tuple[float, ...] = ()
+    above: tuple[float, ...] = ()
+
+
+@dataclass(frozen=True)
 class Method:
     """All processing choices of an analysis, checked.
 
@@ -123,6 +199,12 @@ class Method:
         Flow-marker volume on the calibration day [mL].
     marker_search : (float, float) or None
         Window in which the marker peak is looked for in each injection [mL].
+    marker : FlowMarkerOptions
+        How the marker is recognised there (signal-to-noise, width, required).
+    peaks : PeakOptions
+        Splitting several peaks (``[peaks]``).
+    fractions : FractionOptions
+        Mass fractions below/above cut-offs (``[fractions]``).
     windows : pair of windows or None
         Baseline windows [mL]; None = automatic.
     limits : (float, float) or None
@@ -153,6 +235,9 @@ class Method:
     outside_warn_pct: float = 1.0
     residual_limit_pct: float = 5.0
     limit_shift: float = 0.2
+    marker: FlowMarkerOptions = field(default_factory=FlowMarkerOptions)
+    peaks: PeakOptions = field(default_factory=PeakOptions)
+    fractions: FractionOptions = field(default_factory=FractionOptions)
     import_options: ImportOptions = field(default_factory=ImportOptions)
     source: str | None = None
     sha256: str | None = None
@@ -388,7 +473,8 @@ def _build(data: dict[str, Any], base: Path, source: str | None) -> Method:
     """Check a parsed method mapping section by section and build the :class:`Method`.
 
     Each section has its own step (``_import_options``, ``_flow``, ``_flow_marker``,
-    ``_baseline``, ``_integration``, ``_thresholds``, ``_build_calibration``); every step
+    ``_baseline``, ``_integration``, ``_thresholds``, ``_peaks``, ``_fractions``,
+    ``_build_calibration``); every step
     records what it decided in ``settings`` (the audit copy of the method).
     """
     if not isinstance(data, dict):
@@ -397,11 +483,13 @@ def _build(data: dict[str, Any], base: Path, source: str | None) -> Method:
     settings: dict[str, Any] = {}
     import_options = _import_options(data, source, settings)
     flow_rate = _flow(data, source, settings)
-    marker_ref, marker_search = _flow_marker(data, source, settings)
+    marker_ref, marker_search, marker_options = _flow_marker(data, source, settings)
     windows = _baseline(data, source, settings)
     limits, exclusions, outside = _integration(data, source, settings)
     limits_M = _integration_molar_mass(data, source, settings)
     out_pct, res_pct, shift = _thresholds(data, source, settings)
+    peak_options = _peaks(data, source, settings)
+    fraction_options = _fractions(data, source, settings)
 
     sample_polymer = data.get("sample_polymer")
     if sample_polymer is not None and not isinstance(sample_polymer, str):
@@ -426,6 +514,9 @@ def _build(data: dict[str, Any], base: Path, source: str | None) -> Method:
         outside_warn_pct=out_pct,
         residual_limit_pct=res_pct,
         limit_shift=shift,
+        marker=marker_options,
+        peaks=peak_options,
+        fractions=fraction_options,
         import_options=import_options,
         source=source,
         settings=settings,
@@ -480,17 +571,34 @@ def _flow(data: dict[str, Any], source: str | None, settings: dict[str, Any]) ->
 
 def _flow_marker(
     data: dict[str, Any], source: str | None, settings: dict[str, Any]
-) -> tuple[float | None, Window | None]:
-    """``[flow_marker]``: the reference position [mL] and the search window [mL]."""
+) -> tuple[float | None, Window | None, FlowMarkerOptions]:
+    """``[flow_marker]``: the reference position [mL], the search window [mL] and how the
+    marker is recognised there (``min_signal_to_noise`` [-], ``fwhm`` [mL], ``required``)."""
     fm = _section(data, "flow_marker", source)
     marker_ref = _number(fm["reference"], "flow_marker.reference", source, positive=True) if "reference" in fm else None
     marker_search = _window(fm["search"], "flow_marker.search", source) if "search" in fm else None
     if marker_search is not None and marker_ref is None:
         raise _err("a marker search window needs flow_marker.reference (the calibration-day position)",
                    "flow_marker.reference", source)
+    snr = _number(fm.get("min_signal_to_noise", 10.0), "flow_marker.min_signal_to_noise", source, positive=True)
+    fwhm = _window(fm["fwhm"], "flow_marker.fwhm", source) if "fwhm" in fm else None
+    if fwhm is not None and fwhm[0] <= 0:
+        raise _err(f"widths must be positive volumes in mL, got [{fwhm[0]:g}, {fwhm[1]:g}]", "flow_marker.fwhm", source)
+    required = fm.get("required", False)
+    if not isinstance(required, bool):
+        raise _err(f"must be true or false, got {required!r}", "flow_marker.required", source)
+    if (required or "fwhm" in fm or "min_signal_to_noise" in fm) and marker_search is None:
+        raise _err("these settings recognise the marker in flow_marker.search; give the search window "
+                   "[start, end] in mL", "flow_marker.search", source)
     settings["flow marker reference [mL]"] = marker_ref
     settings["flow marker search [mL]"] = list(marker_search) if marker_search else None
-    return marker_ref, marker_search
+    if marker_search is not None:
+        settings["flow marker recognition"] = {
+            "min signal-to-noise [-]": snr,
+            "fwhm [mL]": list(fwhm) if fwhm else "5 slices to half the search window",
+            "required": required,
+        }
+    return marker_ref, marker_search, FlowMarkerOptions(snr, fwhm, required)
 
 
 def _baseline(data: dict[str, Any], source: str | None, settings: dict[str, Any]) -> tuple[Window, Window] | None:
@@ -572,6 +680,57 @@ def _thresholds(
     settings["thresholds"] = {C.OUTSIDE_CALIBRATION: out_pct, "standard residual [%]": res_pct,
                               "limit shift [mL]": shift}
     return out_pct, res_pct, shift
+
+
+def _molar_masses(value: Any, key: str, source: str | None) -> tuple[float, ...]:
+    """A list of positive molar masses [g/mol] (a single number is accepted)."""
+    items = value if isinstance(value, list) else [value]
+    out = []
+    for v in items:
+        m = _number(v, key, source, positive=True)
+        if m >= 1e15:
+            raise _err(f"{m:g} g/mol is not a plausible molar mass", key, source)
+        out.append(m)
+    if len(set(out)) != len(out):
+        raise _err("a molar mass is listed twice", key, source)
+    return tuple(out)
+
+
+def _peaks(data: dict[str, Any], source: str | None, settings: dict[str, Any]) -> PeakOptions:
+    """``[peaks]``: how a trace is split into peaks (``split``, ``valley_depth_pct`` [%],
+    ``min_height_pct`` [%])."""
+    sec = _section(data, "peaks", source)
+    split: str | tuple[float, ...] = "none"
+    raw = sec.get("split", "none")
+    if isinstance(raw, str):
+        word = raw.strip().lower()
+        if word not in ("none", "valleys"):
+            raise _err(f"must be 'none', 'valleys' or a list of molar masses in g/mol, got {raw!r}",
+                       "peaks.split", source)
+        split = word
+    elif isinstance(raw, list) and raw:
+        split = tuple(sorted(_molar_masses(raw, "peaks.split", source), reverse=True))
+    else:
+        raise _err(f"must be 'none', 'valleys' or a list of molar masses in g/mol, got {raw!r}",
+                   "peaks.split", source)
+    depth = _number(sec.get("valley_depth_pct", 10.0), "peaks.valley_depth_pct", source, positive=True)
+    height = _number(sec.get("min_height_pct", 5.0), "peaks.min_height_pct", source, minimum=0)
+    if depth >= 100:
+        raise _err(f"must lie between 0 and 100 %, got {depth:g}", "peaks.valley_depth_pct", source)
+    if height >= 100:
+        raise _err(f"must lie between 0 and 100 %, got {height:g}", "peaks.min_height_pct", source)
+    settings["peaks"] = {"split": split if isinstance(split, str) else list(split),
+                         "valley depth [%]": depth, "min height [%]": height}
+    return PeakOptions(split, depth / 100.0, height / 100.0)
+
+
+def _fractions(data: dict[str, Any], source: str | None, settings: dict[str, Any]) -> FractionOptions:
+    """``[fractions]``: cut-off molar masses [g/mol] for the mass below and above them."""
+    sec = _section(data, "fractions", source)
+    below = _molar_masses(sec["below"], "fractions.below", source) if "below" in sec else ()
+    above = _molar_masses(sec["above"], "fractions.above", source) if "above" in sec else ()
+    settings["fractions [g/mol]"] = {"below": list(below), "above": list(above)}
+    return FractionOptions(below, above)
 
 
 @dataclass(frozen=True)

@@ -2,11 +2,16 @@
 
 The baseline is a straight line through the means of two signal-free windows, one before
 the polymer elutes and one after it but before solvent, system or flow-marker peaks
-(SCIENCE.md section 1; a mean over each window rather than a single point, common
+(docs/science.md, section 1.4; a mean over each window rather than a single point, common
 practice). When no windows are given they are chosen automatically and the choice is
 reported. Integration limits are either given or found where the corrected signal returns
 to the baseline. Negative heights after subtraction are noise and are kept (see
 :mod:`gpctools.distribution` for how the sums treat them).
+
+The main peak is searched for inside a given volume range (the calibrated range, passed
+by :func:`gpctools.batch.process_trace`), so that a larger solvent or system peak outside
+it is never taken for the polymer (docs/science.md, section 19.3); :func:`find_peaks`
+counts the peaks of a trace by a valley criterion that noise cannot meet (section 19.5).
 """
 
 from __future__ import annotations
@@ -21,7 +26,16 @@ import numpy as np
 
 from .errors import DataError, SignalWarning
 
-__all__ = ["Baseline", "CorrectedSignal", "fit_baseline", "find_limits", "correct_signal", "noise_level"]
+__all__ = [
+    "Baseline",
+    "CorrectedSignal",
+    "Peaks",
+    "fit_baseline",
+    "find_limits",
+    "find_peaks",
+    "correct_signal",
+    "noise_level",
+]
 
 Window = tuple[float, float]
 
@@ -42,6 +56,13 @@ class Baseline:
         Standard deviation of the signal about the line inside the windows [signal units].
     automatic : bool
         True when the windows were chosen by :func:`fit_baseline` itself.
+    centres : (float, float)
+        Mean volume of the slices in each window [mL]: the line passes through the window
+        means at these volumes.
+    counts : (int, int)
+        Number of slices in each window [-]. With white noise of SD σ each window mean has
+        variance σ²/n, which is what the line's own error is made of
+        (:func:`gpctools.uncertainty.noise_uncertainty`).
     """
 
     windows: tuple[Window, Window]
@@ -49,6 +70,8 @@ class Baseline:
     intercept: float
     noise: float
     automatic: bool
+    centres: tuple[float, float] = (math.nan, math.nan)
+    counts: tuple[int, int] = (0, 0)
 
     def __call__(self, volume: Any) -> np.ndarray:
         return self.intercept + self.slope * np.asarray(volume, dtype=float)
@@ -68,7 +91,8 @@ class CorrectedSignal:
     """Baseline-corrected trace with the integration window and exclusions.
 
     ``mask`` selects the slices that enter the averages: inside ``limits`` and outside
-    every excluded region.
+    every excluded region. ``search`` is the volume range in which the main peak was
+    looked for [mL] (None: the whole record).
     """
 
     volume: np.ndarray
@@ -79,10 +103,12 @@ class CorrectedSignal:
     automatic_limits: bool
     mask: np.ndarray
     warnings: tuple[str, ...] = ()
+    search: Window | None = None
 
     def summary(self) -> dict[str, Any]:
         return {
             "baseline": self.baseline.summary(),
+            "peak search range [mL]": list(self.search) if self.search is not None else None,
             "limits [mL]": list(self.limits),
             "automatic limits": self.automatic_limits,
             "exclusions [mL]": [list(e) for e in self.exclusions],
@@ -200,8 +226,13 @@ def _smooth(signal: np.ndarray, width: int) -> np.ndarray:
     return (c[width:] - c[:-width]) / width
 
 
-def _line_through_windows(volume, signal, windows) -> tuple[float, float, float]:
+def _line_through_windows(
+    volume: np.ndarray, signal: np.ndarray, windows: Sequence[Window]
+) -> tuple[float, float, float, tuple[float, float], tuple[int, int]]:
+    """Slope, intercept and residual SD of the line through the two window means, with the
+    windows' mean volumes [mL] and slice counts."""
     pts = []
+    counts = []
     resid_parts = []
     for a, b in windows:
         sl = _window_slice(volume, a, b)
@@ -213,6 +244,7 @@ def _line_through_windows(volume, signal, windows) -> tuple[float, float, float]
                 f"({volume[0]:g}-{volume[-1]:g} mL)"
             )
         pts.append((float(volume[sl].mean()), float(signal[sl].mean())))
+        counts.append(int(count))
         resid_parts.append(sl)
     (v1, h1), (v2, h2) = pts
     slope = (h2 - h1) / (v2 - v1) if v2 != v1 else 0.0
@@ -220,15 +252,47 @@ def _line_through_windows(volume, signal, windows) -> tuple[float, float, float]
     vv = np.concatenate([volume[sl] for sl in resid_parts])
     r = np.concatenate([signal[sl] for sl in resid_parts]) - (intercept + slope * vv)
     noise = float(r.std(ddof=1)) if r.size > 2 else 0.0
-    return slope, intercept, noise
+    return slope, intercept, noise, (v1, v2), (counts[0], counts[1])
 
 
-def _peak_region(volume, corrected, valid, noise, ref_scale=None) -> tuple[int, int, int]:
-    """Indices (start, peak, end) of the main peak where the smoothed signal exceeds a threshold."""
+def _search_mask(volume: np.ndarray, valid: np.ndarray, search: Window | None) -> np.ndarray:
+    """Slices where the main peak may lie: not excluded and inside ``search`` [mL].
+
+    Falls back to every non-excluded slice when the search range holds fewer than 5 of
+    them (a calibrated range that misses the record is reported elsewhere).
+    """
+    if search is None:
+        return valid
+    sl = _window_slice(volume, float(search[0]), float(search[1]))
+    m = np.zeros(volume.shape, dtype=bool)
+    m[sl] = True
+    m &= valid
+    return m if int(m.sum()) >= 5 else valid
+
+
+def _peak_region(
+    volume: np.ndarray,
+    corrected: np.ndarray,
+    valid: np.ndarray,
+    noise: float,
+    ref_scale: float | None = None,
+    searchable: np.ndarray | None = None,
+    stop_at_outside_peaks: bool = False,
+) -> tuple[int, int, int]:
+    """Indices (start, peak, end) of the main peak where the smoothed signal exceeds a threshold.
+
+    The maximum is looked for among the ``searchable`` slices only (not excluded and, in
+    :func:`correct_signal` with ``search``, inside the calibrated range); the feet are then
+    found by walking outwards over every non-excluded slice. With
+    ``stop_at_outside_peaks`` a foot that lies beyond a separate peak outside the search
+    range is moved back to the valley before that peak (:func:`_valley_before_outside_peak`):
+    a system peak touching the polymer's tail is then not integrated with it.
+    """
     n = corrected.size
     width = max(3, n // 200)
     sm = _smooth(corrected, width)
-    candidates = np.where(valid, sm, -np.inf)
+    where = valid if searchable is None else searchable
+    candidates = np.where(where, sm, -np.inf)
     ipk = int(np.argmax(candidates))
     height = sm[ipk]
     scale = ref_scale if ref_scale is not None else (float(np.max(np.abs(corrected))) if n else 0.0)
@@ -237,8 +301,10 @@ def _peak_region(volume, corrected, valid, noise, ref_scale=None) -> tuple[int, 
     ):
         raise DataError(
             "no positive peak stands out of the noise (the smoothed signal never exceeds 5 "
-            "times its noise level); check the signal column, the baseline windows and the "
-            "injection"
+            "times its noise level"
+            + (f" between {volume[where][0]:.4g} and {volume[where][-1]:.4g} mL, where the main peak is "
+               "searched for" if searchable is not None and not np.array_equal(searchable, valid) else "")
+            + "); check the signal column, the baseline windows and the injection"
         )
     threshold = max(noise / math.sqrt(width), 1e-6 * height)
     # A foot is where the smoothed signal is at the threshold AND stays there: the mean of
@@ -260,6 +326,15 @@ def _peak_region(volume, corrected, valid, noise, ref_scale=None) -> tuple[int, 
     hi = np.minimum(rc + run, n)
     ok = ((c[hi] - c[rc]) / (hi - rc) <= threshold) | ~valid[rc]
     end = int(rc[ok][0]) if ok.any() else n - 1
+    if stop_at_outside_peaks and searchable is not None:
+        sigma_s = noise / math.sqrt(width)
+        outside = valid & ~searchable
+        cut = _valley_before_outside_peak(sm, ipk, start, outside, sigma_s)
+        if cut is not None:
+            start = cut
+        cut = _valley_before_outside_peak(sm, ipk, end, outside, sigma_s)
+        if cut is not None:
+            return start, ipk, cut
     # Past the low-M (high-volume) foot the tail is below the noise but not zero, and it
     # carries many chains: integrating zero-mean noise there costs nothing in bias
     # (negative heights are kept) and helps Mn, so go one run further out. Not on the
@@ -272,6 +347,52 @@ def _peak_region(volume, corrected, valid, noise, ref_scale=None) -> tuple[int, 
     return start, ipk, end
 
 
+def _valley_before_outside_peak(
+    sm: np.ndarray, ipk: int, foot: int, outside: np.ndarray, sigma_s: float
+) -> int | None:
+    """The valley between the main peak and a separate peak beyond the search range, or None.
+
+    Walking from the main peak ``ipk`` to its ``foot``, the highest smoothed point among
+    the ``outside`` slices is a separate peak when the lowest point v between the two
+    maxima dips below the lower of them by 10 % of it and by 5 noise SDs of the smoothed
+    signal (the valley criterion of :func:`find_peaks`). A tail that only falls never
+    rises again and is never cut.
+    """
+    if foot == ipk:
+        return None
+    step = 1 if foot > ipk else -1
+    idx = np.arange(ipk, foot + step, step)
+    seg = sm[idx]
+    out = np.flatnonzero(outside[idx])
+    if out.size == 0:
+        return None
+    k = int(out[np.argmax(seg[out])])
+    v = int(np.argmin(seg[: k + 1]))
+    low = min(float(seg[0]), float(seg[k]))
+    if v in (0, k) or low - float(seg[v]) < max(0.10 * low, 5.0 * sigma_s):
+        return None
+    return int(idx[v])
+
+
+def _busy(sm: np.ndarray, valid: np.ndarray, start: int, end: int, threshold: float, margin: int) -> np.ndarray:
+    """Slices outside [start, end] where the smoothed signal stands more than ``threshold``
+    above or below the first-guess line, widened by ``margin`` slices on each side: other
+    peaks and dips (a negative refractive-index marker), where no baseline window goes.
+    Excluded regions (not ``valid``) are the analyst's known peaks and are left to the
+    exclusions."""
+    busy = (np.abs(sm) > threshold) & valid
+    busy[start:end + 1] = False
+    if busy.any() and margin > 0:
+        c = np.concatenate(([0], np.cumsum(busy.astype(np.int64))))
+        n = busy.size
+        i = np.arange(n)
+        lo = np.maximum(i - margin, 0)
+        hi = np.minimum(i + margin + 1, n)
+        busy = (c[hi] - c[lo]) > 0
+        busy[start:end + 1] = False
+    return busy
+
+
 def fit_baseline(
     volume: Any,
     signal: Any,
@@ -279,6 +400,7 @@ def fit_baseline(
     *,
     exclusions: Sequence[Window] = (),
     noise: float | None = None,
+    search: Window | None = None,
 ) -> Baseline:
     """Fit a straight baseline through two signal-free windows.
 
@@ -300,6 +422,10 @@ def fit_baseline(
     noise : float, optional
         White-noise SD of the signal if already known (:func:`noise_level`), to save
         computing it again [signal units].
+    search : (low, high), optional
+        Volume range in which the main peak's maximum is looked for [mL] (automatic
+        windows only; :func:`correct_signal` passes the calibrated range). Its feet may lie
+        outside it.
 
     Returns
     -------
@@ -314,8 +440,8 @@ def fit_baseline(
         for a, b in windows:
             if not a < b:
                 raise DataError(f"baseline window {a:g}-{b:g} mL: start must be below end")
-        slope, intercept, noise = _line_through_windows(V, h, windows)
-        return Baseline(windows, slope, intercept, noise, automatic=False)
+        slope, intercept, noise, centres, counts = _line_through_windows(V, h, windows)
+        return Baseline(windows, slope, intercept, noise, automatic=False, centres=centres, counts=counts)
 
     valid = ~_window_mask(V, exclusions)
     span = V[-1] - V[0]
@@ -326,18 +452,28 @@ def fit_baseline(
     guess = (_place_window(V, valid, V[0], width, +1), _place_window(V, valid, V[-1], width, -1))
     if guess[0] is None or guess[1] is None:
         raise DataError("no room for baseline windows at the ends of the record; give baseline.windows")
-    slope, intercept, noise = _line_through_windows(V, h, guess)
+    slope, intercept, noise, _, _ = _line_through_windows(V, h, guess)
     sigma = noise_level(h[valid]) if noise is None else float(noise)
     ref_scale = float(np.max(np.abs(h)))
     corrected = h - (intercept + slope * V)
-    start, _ipk, end = _peak_region(V, corrected, valid, sigma, ref_scale)
+    start, ipk, end = _peak_region(V, corrected, valid, sigma, ref_scale, _search_mask(V, valid, search))
     gap = 0.1 * (V[end] - V[start])
+    # Other peaks and dips (system, solvent, a marker) that are not excluded are no place
+    # for a window: where the smoothed first-guess signal stands 5 noise SDs (and 0.1 % of
+    # the peak) off the line, widened by a run of slices, windows are not placed when
+    # there is room elsewhere.
+    w_sm = max(3, V.size // 200)
+    sm = _smooth(corrected, w_sm)
+    free = valid & ~_busy(sm, valid, start, end, max(5.0 * sigma / math.sqrt(w_sm), 1e-3 * float(sm[ipk])),
+                          max(5, V.size // 50))
     # Preferred: just outside the feet with a gap; else touching the feet; else the
     # record ends (a foot found at 1e-6 of a noise-free peak can reach the record end).
-    before = (_place_window(V, valid, V[start] - gap, width, -1)
+    before = (_place_window(V, free, V[start] - gap, width, -1)
+              or _place_window(V, valid, V[start] - gap, width, -1)
               or _place_window(V, valid, V[start], width, -1)
               or _place_window(V, valid, V[0], width, +1))
-    after = (_place_window(V, valid, V[end] + gap, width, +1)
+    after = (_place_window(V, free, V[end] + gap, width, +1)
+             or _place_window(V, valid, V[end] + gap, width, +1)
              or _place_window(V, valid, V[end], width, +1)
              or _place_window(V, valid, V[-1], width, -1))
     if before is None:
@@ -351,8 +487,8 @@ def fit_baseline(
             f"{V[end]:.3g} mL, the record at {V[-1]:.3g} mL); give baseline.windows"
         )
     chosen = (before, after)
-    slope, intercept, noise = _line_through_windows(V, h, chosen)
-    return Baseline(chosen, slope, intercept, noise, automatic=True)
+    slope, intercept, noise, centres, counts = _line_through_windows(V, h, chosen)
+    return Baseline(chosen, slope, intercept, noise, automatic=True, centres=centres, counts=counts)
 
 
 def _place_window(V: np.ndarray, valid: np.ndarray, anchor: float, width: float, direction: int):
@@ -406,6 +542,7 @@ def find_limits(
     *,
     noise: float,
     exclusions: Sequence[Window] = (),
+    search: Window | None = None,
 ) -> Window:
     """Integration limits where the corrected signal returns to the baseline [mL].
 
@@ -416,13 +553,43 @@ def find_limits(
     the peak) raises Mn by several per cent, so the limits go as far as the signal can
     be told from zero, and the high-volume (low-M) limit one run of max(5, n/50) slices
     further still. Zero-mean noise integrated beyond that point does not bias the sums
-    because negative heights are kept.
+    because negative heights are kept. With ``search`` [mL] the main peak's maximum is
+    looked for inside that range only (the calibrated range, in :func:`correct_signal`),
+    and a limit stops at the valley before a separate peak outside that range instead
+    of running through it.
     """
     V, c, order = _as_trace(volume, corrected)
     V, c = V[order], c[order]
     valid = ~_window_mask(V, exclusions)
-    start, _, end = _peak_region(V, c, valid, noise)
+    start, _, end = _peak_region(V, c, valid, noise, searchable=_search_mask(V, valid, search),
+                                 stop_at_outside_peaks=search is not None)
     return float(V[start]), float(V[end])
+
+
+def _larger_peak_outside(V: np.ndarray, corrected: np.ndarray, valid: np.ndarray, search: Window) -> str | None:
+    """A note when the smoothed signal peaks higher outside ``search`` than inside it.
+
+    Excluded regions are the analyst's known peaks (flow marker, solvent) and are not
+    reported. Heights are compared on the same moving average the peak search uses.
+    """
+    inside = _search_mask(V, valid, search)
+    if inside is valid:  # the search range did not apply
+        return None
+    outside = valid & ~inside
+    if not outside.any():
+        return None
+    sm = _smooth(corrected, max(3, V.size // 200))
+    i_in = int(np.argmax(np.where(inside, sm, -np.inf)))
+    i_out = int(np.argmax(np.where(outside, sm, -np.inf)))
+    h_in, h_out = float(sm[i_in]), float(sm[i_out])
+    if not (h_out > h_in > 0):
+        return None
+    return (
+        f"a peak {h_out / h_in:.2g} times as high as the polymer peak ({V[i_in]:.3f} mL) stands at "
+        f"{V[i_out]:.3f} mL, outside the calibrated range {search[0]:.3f}-{search[1]:.3f} mL; it was "
+        "not taken as the polymer. If it is a system or solvent peak, exclude it "
+        "(integration.exclude); if it is the polymer, extend the calibration"
+    )
 
 
 def correct_signal(
@@ -432,6 +599,7 @@ def correct_signal(
     windows: Sequence[Window] | None = None,
     limits: Window | None = None,
     exclusions: Sequence[Window] = (),
+    search: Window | None = None,
 ) -> CorrectedSignal:
     """Subtract a linear baseline and set the integration window.
 
@@ -448,6 +616,14 @@ def correct_signal(
         Integration limits [mL]; automatic when omitted (see :func:`find_limits`).
     exclusions : sequence of (start, end)
         Excluded regions [mL]: never part of the baseline or of the averages.
+    search : (low, high), optional
+        Where the polymer peak's maximum may lie [mL]; :func:`gpctools.batch.process_trace`
+        passes the calibrated range (peak volumes of the first and last standard). A
+        system or solvent peak outside it is then never taken for the polymer, however
+        large (issue 10: a system peak three times the polymer's height gave Mn = 28 g/mol).
+        When the automatic search runs (automatic windows or limits) and a larger peak
+        stands outside the range and outside every excluded region, a
+        :class:`~gpctools.errors.SignalWarning` says where. None searches the whole record.
 
     Returns
     -------
@@ -462,11 +638,16 @@ def correct_signal(
         if not a < b:
             raise DataError(f"excluded region {a:g}-{b:g} mL: start must be below end")
     sigma = noise_level(h[~_window_mask(V, exclusions)]) if (windows is None or limits is None) else None
-    base = fit_baseline(V, h, windows, exclusions=exclusions, noise=sigma)
+    base = fit_baseline(V, h, windows, exclusions=exclusions, noise=sigma, search=search)
     corrected = h - base(V)
     notes: list[str] = []
+    if search is not None and sigma is not None:
+        note = _larger_peak_outside(V, corrected, ~_window_mask(V, exclusions), search)
+        if note:
+            notes.append(note)
     if limits is None:
-        limits = find_limits(V, corrected, noise=sigma, exclusions=exclusions)
+        assert sigma is not None  # computed above whenever the limits are automatic
+        limits = find_limits(V, corrected, noise=sigma, exclusions=exclusions, search=search)
         # never integrate into the baseline windows themselves
         (_, before_end), (after_start, _) = base.windows
         lo = max(limits[0], before_end) if before_end < limits[1] else limits[0]
@@ -512,4 +693,177 @@ def correct_signal(
         automatic_limits=auto,
         mask=mask[back],
         warnings=tuple(notes),
+        search=None if search is None else (float(search[0]), float(search[1])),
+    )
+
+
+# -- several peaks ----------------------------------------------------------------------------
+@dataclass(frozen=True)
+class Peaks:
+    """Maxima of a corrected trace and the valleys that separate them.
+
+    Attributes
+    ----------
+    apex : tuple of float
+        Volumes of the maxima, increasing (highest M first) [mL].
+    height : tuple of float
+        Smoothed heights at the maxima [signal units].
+    valleys : tuple of float
+        Volumes of the lowest smoothed point between consecutive maxima [mL]
+        (``len(apex) - 1`` of them).
+    valley_depth, min_height : float
+        The criterion used (fractions, [-]).
+    smoothing : int
+        Width of the moving average, applied twice [slices].
+    """
+
+    apex: tuple[float, ...]
+    height: tuple[float, ...]
+    valleys: tuple[float, ...]
+    valley_depth: float
+    min_height: float
+    smoothing: int
+
+    @property
+    def count(self) -> int:
+        """Number of peaks [-]."""
+        return len(self.apex)
+
+    def summary(self) -> dict[str, Any]:
+        return {
+            "peaks": self.count,
+            "apex [mL]": list(self.apex),
+            "valleys [mL]": list(self.valleys),
+            "valley depth [-]": self.valley_depth,
+            "min height [-]": self.min_height,
+            "smoothing [slices]": self.smoothing,
+        }
+
+
+def _maxima_with_dips(y: np.ndarray, delta: float) -> list[int]:
+    """Indices of maxima of ``y`` separated from each other by dips of at least ``delta``.
+
+    The classical peak-and-valley hysteresis ("a maximum counts once the curve has fallen
+    ``delta`` below it, a minimum once it has risen ``delta`` above it"), run over the
+    turning points of ``y`` only (between them ``y`` is monotonic, so the running extremes
+    are reached at turning points): O(n) in numpy plus a loop over the turning points.
+    """
+    n = y.size
+    if n < 3:
+        return [int(np.argmax(y))] if n else []
+    step = np.sign(np.diff(y))
+    last = np.maximum.accumulate(np.where(step != 0, np.arange(step.size), 0))
+    step = step[last]  # flat stretches take the direction before them
+    turns = np.flatnonzero(step[1:] != step[:-1]) + 1
+    points = np.concatenate(([0], turns, [n - 1]))
+    maxima: list[int] = []
+    hi, hi_i, lo = -math.inf, 0, math.inf
+    looking_for_max = True
+    for i in points.tolist():
+        v = float(y[i])
+        if looking_for_max:
+            if v > hi:
+                hi, hi_i = v, i
+            elif v < hi - delta:
+                maxima.append(hi_i)
+                lo, looking_for_max = v, False
+        else:
+            if v < lo:
+                lo = v
+            elif v > lo + delta:
+                hi, hi_i, looking_for_max = v, i, True
+    if looking_for_max and hi > -math.inf and (not maxima or maxima[-1] != hi_i):
+        maxima.append(hi_i)
+    return maxima
+
+
+def find_peaks(
+    volume: Any,
+    signal: Any,
+    *,
+    mask: Any = None,
+    noise: float | None = None,
+    valley_depth: float = 0.10,
+    min_height: float = 0.05,
+) -> Peaks:
+    """Maxima of a baseline-corrected trace separated by real valleys.
+
+    The trace is smoothed by a moving average of w = max(3, n/200) slices applied twice
+    (a triangular kernel; its noise SD is σ_s = σ·√(Σk²) for white noise σ). Two
+    neighbouring maxima count as separate peaks when the lowest smoothed point between
+    them, the valley v, satisfies both
+
+        min(h1, h2) − v ≥ valley_depth · min(h1, h2)   and   min(h1, h2) − v ≥ 5·σ_s,
+
+    and every peak stands at least ``min_height`` of the highest one. Otherwise the lower
+    maximum is merged into its neighbour and the test is repeated. The relative depth
+    keeps shoulders and ripples on the flanks from being called peaks; the 5·σ_s term
+    keeps noise from making a valley on a flat top (a 5σ excursion of the smoothed
+    trace has a one-sided probability below 3·10⁻⁷ per independent stretch;
+    docs/science.md, section 19.5).
+
+    Parameters
+    ----------
+    volume, signal : array_like
+        The trace: volumes [mL] (any order) and baseline-corrected heights [signal units].
+    mask : array_like of bool, optional
+        Slices to search (the integration window); all by default.
+    noise : float, optional
+        White-noise SD of the signal [signal units]; :func:`noise_level` of the masked
+        slices by default.
+    valley_depth : float
+        Required dip below the lower of two maxima, as a fraction of it [-] (default
+        0.10: the valley at most 90 % of the lower peak).
+    min_height : float
+        Smallest peak, as a fraction of the highest [-] (default 0.05).
+
+    Returns
+    -------
+    Peaks
+    """
+    V, h, order = _as_trace(volume, signal)
+    V, h = V[order], h[order]
+    sel = np.ones(V.shape, dtype=bool) if mask is None else np.asarray(mask, dtype=bool)[order]
+    if not (0.0 < valley_depth < 1.0 and 0.0 <= min_height < 1.0):
+        raise DataError("valley_depth must lie between 0 and 1 and min_height between 0 and 1")
+    idx = np.flatnonzero(sel)
+    width = max(3, V.size // 200) | 1
+    empty = Peaks((), (), (), valley_depth, min_height, width)
+    if idx.size < 3:
+        return empty
+    sigma = noise_level(h[idx]) if noise is None else float(noise)
+    box = np.full(width, 1.0 / width)
+    sigma_s = sigma * math.sqrt(float((np.convolve(box, box) ** 2).sum()))
+    sm = _smooth(_smooth(h, width), width)[idx]
+    top = float(sm.max())
+    if not top > 0:
+        return empty
+    # Candidate maxima: those separated by dips of at least 5 σ_s (noise wiggles pruned);
+    # the highest point is always a candidate.
+    cand = _maxima_with_dips(sm, max(5.0 * sigma_s, 1e-12 * top))
+    cand = sorted(set(cand) | {int(np.argmax(sm))})
+    keep = [c for c in cand if sm[c] >= min_height * top]
+    while len(keep) > 1:
+        worst, worst_margin = None, math.inf
+        for j in range(len(keep) - 1):
+            a, b = keep[j], keep[j + 1]
+            v = float(sm[a:b + 1].min())
+            low = min(float(sm[a]), float(sm[b]))
+            margin = min(low - v - valley_depth * low, low - v - 5.0 * sigma_s)
+            if margin < 0 and margin < worst_margin:
+                worst, worst_margin = j, margin
+        if worst is None:
+            break
+        a, b = keep[worst], keep[worst + 1]
+        keep.remove(a if sm[a] < sm[b] else b)
+    valleys = []
+    for a, b in zip(keep[:-1], keep[1:]):
+        valleys.append(float(V[idx[a + int(np.argmin(sm[a:b + 1]))]]))
+    return Peaks(
+        apex=tuple(float(V[idx[k]]) for k in keep),
+        height=tuple(float(sm[k]) for k in keep),
+        valleys=tuple(valleys),
+        valley_depth=float(valley_depth),
+        min_height=float(min_height),
+        smoothing=width,
     )

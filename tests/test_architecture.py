@@ -50,7 +50,7 @@ LAYERS: tuple[tuple[str, ...], ...] = (
     ("gpctools.columns",),
     ("gpctools.io", "gpctools.sheets"),
     ("gpctools.signal", "gpctools.calibration"),
-    ("gpctools.method", "gpctools.distribution"),
+    ("gpctools.method", "gpctools.distribution", "gpctools.uncertainty"),
     ("gpctools.detectors",),  # multi-detector numerics: above distribution, below batch
     ("gpctools.batch",),
     ("gpctools.chainlength", "gpctools.refdata"),

@@ -78,3 +78,36 @@ def test_diagnosis_reads_the_new_shift_header(tmp_path):
         encoding="utf-8")
     _, checks = measured_from_results(table)
     assert checks["Mn_shift_low_limit"] == pytest.approx(2.0)  # derived: mean of 1.5 and 2.5
+
+
+def test_mass_fraction_columns_are_named_by_their_cut_off():
+    # one cut-off, one header, however it was typed (1e6, 1000000, 1000000.0)
+    assert C.mass_fraction_column("below", 1e6) == C.mass_fraction_column("below", 1000000) \
+        == "mass below 1000000 g/mol [%]"
+    assert C.mass_fraction_column("above", 2500.5) == "mass above 2500.5 g/mol [%]"
+    col = C.describe("mass above 2500.5 g/mol [%]")
+    assert col.unit == "%" and "above 2500.5 g/mol" in col.meaning
+    with pytest.raises(ValueError):
+        C.mass_fraction_column("between", 1000)
+    with pytest.raises(KeyError):
+        C.describe("mass below 1e6 g/mol [%]")  # not the canonical spelling
+
+
+def test_uncertainty_and_peak_columns_are_declared():
+    assert C.uncertainty_column("Mn") == "u(Mn) [%]"
+    assert C.uncertainty_column("Mw", "calibration") == "u(Mw) calibration [%]"
+    assert set(C.UNCERTAINTY_COLUMNS) <= set(C.COLUMNS) and len(C.UNCERTAINTY_COLUMNS) == 12
+    assert C.peak_column(3, "area") == "peak 3 area [%]" and C.describe("peak 3 area [%]").unit == "%"
+    assert len(C.PEAK_COLUMNS) == 4 * C.MAX_PEAK_COLUMNS
+
+
+def test_headers_do_not_change_with_peak_settings_or_data(method):
+    V, h = simulate.chromatogram(simulate.schulz_zimm(80_000, 2.0), simulate.default_calibration(),
+                                 noise=0.02, seed=3)
+    a = process_trace(V, h, method).row()
+    b = process_trace(V, h, replace(method, peaks=replace(method.peaks, split="valleys"))).row()
+    c = process_trace(V, h, replace(method, peaks=replace(method.peaks, split=(50_000.0,)))).row()
+    assert list(a) == list(b) == list(c)
+    assert np.isnan(a[C.peak_column(1, "Mn")]) and b[C.peak_column(1, "area")] == pytest.approx(100.0)
+    # split at 50 000 g/mol: two parts that make up the whole mass (derived)
+    assert c[C.peak_column(1, "area")] + c[C.peak_column(2, "area")] == pytest.approx(100.0, rel=1e-12)

@@ -48,10 +48,25 @@ def test_template_method_loads_with_template_standards(tmp_path):
     assert m.calibration.order == 3
     assert len(m.calibration.Mp) == 10
     assert m.flow_rate == 1.0
-    assert m.marker_reference == pytest.approx(22.60)
-    assert m.exclusions == ((22.0, 23.2),)
+    # issue 10: the template ships the flow-marker section and the marker's exclusion
+    # commented out (a marker that is not in the data must not be searched for)
+    assert m.marker_reference is None and m.marker_search is None
+    assert m.exclusions == ()
+    assert m.peaks.split == "none" and m.fractions.below == ()
     assert m.calibration.is_absolute
     assert len(m.sha256) == 64
+    # ... and the commented sections load as written once uncommented
+    text = (tmp_path / "method.toml").read_text(encoding="utf-8")
+    for line in ("# [flow_marker]", "# reference = ", "# search = ", "# min_signal_to_noise = ", "# fwhm = ",
+                 "# required = ", "# exclude = ", "# [fractions]", "# below = ", "# above = "):
+        assert line in text, line
+        text = text.replace(line, line[2:])
+    (tmp_path / "method.toml").write_text(text, encoding="utf-8")
+    full = load_method(tmp_path / "method.toml")
+    assert full.marker_reference == pytest.approx(22.60) and full.marker_search == (22.2, 23.0)
+    assert full.marker.min_signal_to_noise == 10 and full.marker.fwhm == (0.02, 0.4) and not full.marker.required
+    assert full.exclusions == ((22.0, 23.2),)
+    assert full.fractions.below == (500.0, 1000.0) and full.fractions.above == (1e6,)
 
 
 def test_inline_standards_linear_order(tmp_path):
@@ -88,6 +103,17 @@ def test_standards_given_as_time_need_flow(tmp_path):
         ("[import]\nx_unit = 'hours'\n", "import.x_unit"),
         ("[thresholds]\nstandard_residual_pct = 0\n", "thresholds.standard_residual_pct"),
         ("[flow_marker]\nsearch = [22, 23]\n", "flow_marker.reference"),
+        ("[flow_marker]\nreference = 22.6\nsearch = [22, 23]\nrequired = 'yes'\n", "flow_marker.required"),
+        ("[flow_marker]\nreference = 22.6\nsearch = [22, 23]\nmin_signal_to_noise = 0\n",
+         "flow_marker.min_signal_to_noise"),
+        ("[flow_marker]\nreference = 22.6\nsearch = [22, 23]\nfwhm = [0.3, 0.1]\n", "flow_marker.fwhm"),
+        ("[flow_marker]\nreference = 22.6\nrequired = true\n", "flow_marker.search"),
+        ("[peaks]\nsplit = 'valley'\n", "peaks.split"),
+        ("[peaks]\nsplit = [1000, -5]\n", "peaks.split"),
+        ("[peaks]\nvalley_depth_pct = 100\n", "peaks.valley_depth_pct"),
+        ("[peaks]\nmin_height = 5\n", "peaks.min_height"),
+        ("[fractions]\nbelow = [500, 500]\n", "fractions.below"),
+        ("[fractions]\nabove = ['1e6']\n", "fractions.above"),
     ],
 )
 def test_bad_keys_and_values_name_the_key(tmp_path, extra, key):
@@ -169,6 +195,29 @@ def test_regression_implausible_flow_rate_is_refused(tmp_path):
     with pytest.raises(MethodError, match="plausible") as e:
         load_method(p)
     assert e.value.key == "flow.rate"
+
+
+def test_peaks_and_fractions_sections(tmp_path):
+    body = "[calibration]\norder = 1\n" + STANDARDS + textwrap.dedent(
+        """
+        [peaks]
+        split = [800, 20000]
+        valley_depth_pct = 25
+        min_height_pct = 2
+
+        [fractions]
+        below = 1000
+        above = [1e6, 2e5]
+        """)
+    m = load_method(write(tmp_path, body))
+    # split masses sorted from high to low M (peaks are numbered from high M); % -> fraction
+    assert m.peaks.split == (20000.0, 800.0)
+    assert m.peaks.valley_depth == pytest.approx(0.25) and m.peaks.min_height == pytest.approx(0.02)
+    # a single number is a list of one; the order given is the column order
+    assert m.fractions.below == (1000.0,) and m.fractions.above == (1e6, 2e5)
+    assert m.settings["peaks"]["split"] == [20000.0, 800.0]
+    m = load_method(write(tmp_path, "[calibration]\norder = 1\n" + STANDARDS + "[peaks]\nsplit = 'Valleys'\n"))
+    assert m.peaks.split == "valleys"
 
 
 # ------------------------------------------------------- limits in molar mass (issue 10)

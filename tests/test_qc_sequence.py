@@ -740,3 +740,25 @@ def test_blank_subtraction_removes_a_ghost_the_sample_shares(tmp_path):
     assert sub.loc["GHOST", "Mn [g/mol]"] == pytest.approx(plain.loc["CLEAN", "Mn [g/mol]"], rel=0.005)
     assert "blank subtracted" in sub.loc["GHOST", "warnings"]
     assert plain.loc["BL", "blank peak [% of product peak]"] > 1.0  # and the blank itself fails
+
+
+def test_per_peak_limits_and_uncertainty_columns_by_name(tmp_path):
+    from gpctools import columns as C
+    from gpctools.report.qc_pages import _averages_table, uncertainty_columns
+
+    p = tmp_path / "s.csv"
+    p.write_text("product,quantity,min,max,target,unit,description\n"
+                 f"P,{C.peak_column(1, 'Mw')},100000,,,,\nP,{C.mass_fraction_column('below', 1000)},,1.5,,,\n",
+                 encoding="utf-8")
+    specs = read_specs(p)
+    row = {"sample_id": "X", "role": "sample", "product": "P", "batch": "B", "status": "ok",
+           "Mn [g/mol]": 50000.0, "Mw [g/mol]": 100000.0, C.peak_column(1, "Mw"): 99000.0,
+           C.mass_fraction_column("below", 1000): 1.2, C.uncertainty_column("Mn"): 0.8,
+           C.uncertainty_column("Mn", "noise"): 0.1}
+    dec = decide(pd.DataFrame([row]), specs, ())
+    # derived: 99 000 is below the per-peak minimum 100 000; 1.2 % is within 1.5 %
+    assert dec.batches[0].decision == FAIL
+    assert any("peak 1 Mw 99 000 g/mol below min 100 000 g/mol" in r for r in dec.batches[0].reasons)
+    assert uncertainty_columns(row) == {"Mn": "u(Mn) [%]"}  # the combined one, not its parts
+    table = _averages_table(pd.DataFrame([row]), [0])
+    assert list(table.columns[:4]) == ["injection", "status", "Mn [g/mol]", "u(Mn) [%]"]
