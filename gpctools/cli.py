@@ -309,9 +309,10 @@ def batch_cmd(
 @_guard
 def qc_cmd(
     sheet: Path = typer.Argument(..., help="Batch sheet (with --method), or a results.csv written by 'gpctools batch'."),
-    specs: Path = typer.Option(..., "--specs", "-s", help="Spec-limits sheet (CSV or XLSX); start from `gpctools template spec_limits.csv`."),
-    method: Optional[Path] = typer.Option(None, "--method", "-m", help="Method file (TOML); runs the batch first."),
-    history: Optional[list[Path]] = typer.Option(None, "--history", help="Earlier results.csv for the control charts, oldest first (repeatable)."),
+    specs: Path = typer.Option(..., "--specs", "-s", help="Spec-limits sheet (CSV or XLSX, wide or long form), start from `gpctools template spec_limits.csv` (wide) or spec_limits_long.csv."),
+    method: Optional[Path] = typer.Option(None, "--method", "-m", help="Method file (TOML); processes the sequence first."),
+    settings_file: Optional[Path] = typer.Option(None, "--settings", help="QC settings file (TOML or a setting/value sheet), start from `gpctools template qc_settings.toml`."),
+    history: Optional[list[str]] = typer.Option(None, "--history", help="Earlier results for the control charts: a file, a folder or a quoted glob such as 'old/*.csv' (repeatable, oldest first)."),
     out: Path = typer.Option(Path("gpctools-qc"), "--out", "-o", help="Output folder."),
     strict: bool = typer.Option(False, "--strict", help="Exit 1 when any batch is not 'pass' (fail, not reportable, no result, no spec)."),
     require_check: bool = typer.Option(True, "--require-check-standard/--no-require-check-standard",
@@ -319,38 +320,78 @@ def qc_cmd(
     workers: int = typer.Option(0, "--workers", "-j", min=0, help="Processes for the batch (0 = automatic)."),
     sheet_name: Optional[str] = typer.Option(None, "--sheet", help="Workbook sheet of the batch sheet."),
 ) -> None:
-    """Spec limits, system suitability, decisions and control charts; writes qc_report.xlsx/.html."""
-    from .qc import QCSettings, read_specs
+    """Verdicts per injection and batch, system suitability and control charts; writes qc_report.xlsx/.html."""
+    from dataclasses import replace
+
+    from .qc import QCSettings, read_qc_settings, read_specs
     from .report import run_qc
+    from .report.qc_report import history_paths
 
     _check_out(out)
     spec_sheet = read_specs(specs)  # read first: a bad spec sheet fails before the batch runs
-    results: BatchResult | Path
+    hist = [p for h in (history or []) for p in history_paths(h)]
+    m = None
     if method is not None:
         from .method import load_method
 
         m = load_method(method)
-        results = _run_batch_with_progress(sheet, m, out, workers or None, sheet_name)
-    else:
-        m = None
-        results = sheet
-    settings = None if require_check else QCSettings.from_method(m, require_check_standard=False)
-    with _stage("QC: spec limits, system suitability, control charts, report"):
-        report = run_qc(results, spec_sheet, out, method=m, history=list(history or []), settings=settings)
-    res = report.result
-    _print_table([b.summary() | {"reasons": "; ".join(b.reasons)} for b in res.decisions.batches],
-                 ["batch", "decision", "reasons"])
-    for s in res.suitability:
-        typer.echo(f"sequence {s.sequence}: system suitability {'pass' if s.passed else 'FAIL'}")
-        for r in s.reasons():
-            typer.echo(f"  {r}")
-    for c in res.trends:
-        for v in c.violations:
-            typer.echo(f"trend {c.group} {c.quantity}: {v.label} breaks {v.rule} ({v.description}, {v.side})")
+    settings = read_qc_settings(settings_file, method=m) if settings_file else QCSettings.from_method(m)
+    if not require_check:
+        settings = replace(settings, suitability=replace(settings.suitability, require_check_standard=False))
+    results = _run_sequence_with_progress(sheet, m, settings, out, workers or None, sheet_name) if m else sheet
+    with _stage("QC: verdicts, system suitability, control charts, report"):
+        report = run_qc(results, spec_sheet, out, method=m, history=hist, settings=settings)
+    _print_qc(report.result)
     typer.echo(f"wrote {out}/qc_report.xlsx, qc_report.html, plots/, qc_summary.json, audit.json")
     code = report.exit_code(strict=strict)
     if code:
         raise typer.Exit(code)
+
+
+def _run_sequence_with_progress(sheet: Path, method: Method, settings: Any, out: Path, workers: int | None,
+                                sheet_name: str | None = None) -> Any:
+    from .qc.sequence import run_sequence
+    from .report import DistributionWriter, write_batch
+
+    with _stage("sequence: standards, blanks, injections") as advance:
+        run = run_sequence(sheet, method, settings, sheet_name=sheet_name, workers=workers,
+                           on_result=DistributionWriter(out / "distributions"), progress=advance)
+    write_batch(run, out, distributions=False)
+    for w in run.warnings:
+        _err(f"warning: {w}")
+    return run
+
+
+def _print_qc(res) -> None:
+    """Every verdict and every failed criterion, with its number and limit."""
+    typer.echo("batches:")
+    for b in res.decisions.batches:
+        typer.echo(f"  {b.batch}: {b.decision}"
+                   + (f" (against spec: {b.spec_verdict})" if b.decision != b.spec_verdict else ""))
+        if b.decision != "pass":
+            for r in b.reasons:
+                typer.echo(f"    - {r}")
+    typer.echo("injections:")
+    from .columns import SHEET_ROW
+
+    sheet_rows = res.table[SHEET_ROW].tolist() if SHEET_ROW in res.table.columns else []
+    for v in res.decisions.injections:
+        row = sheet_rows[v.position] if sheet_rows else None
+        where = f"sheet row {int(row)}" if row == row and row is not None else f"results row {v.position + 1}"
+        typer.echo(f"  {v.sample_id} ({v.role}, {where}): {v.verdict}")
+        if v.verdict != "pass":
+            for r in v.reasons:
+                typer.echo(f"    - {r}")
+    for s in res.suitability:
+        typer.echo(f"sequence {s.sequence}: system suitability {'pass' if s.passed else 'FAIL'}")
+        for r in s.reasons():
+            typer.echo(f"  - {r}")
+    for c in res.trends:
+        for v in c.violations:
+            typer.echo(f"trend {c.group} {c.quantity}: {v.label} breaks {v.rule} ({v.description}, {v.side})")
+    if res.trends:
+        typer.echo(f"control charts: {res.settings.rule_set_name}; limits frozen on "
+                   f"{res.settings.baseline.describe() if res.settings.baseline else 'all points'}")
 
 
 @app.command("calibrate")

@@ -106,6 +106,16 @@ __all__ = [
     "REASONS",
     "NOTES",
     "CHECK_STANDARD_TOLERANCE",
+    "DATE",
+    "VERDICT",
+    "VERDICT_REASONS",
+    "SPEC_VERDICT",
+    "BLANK_PEAK",
+    "BLANK_DETAILS",
+    "WORST_STANDARD_RESIDUAL",
+    "STANDARDS_LOCATED",
+    "SEQUENCE_CALIBRATION",
+    "SHEET_ROW",
 ]
 
 
@@ -373,3 +383,24 @@ REASONS = _column("reasons", "", "why the decision was taken, joined by '; '")
 NOTES = _column("notes", "", "things to know that do not change the decision")
 CHECK_STANDARD_TOLERANCE = _column("check-standard tolerance [%]", "%",
                                    "allowed |average/assigned - 1| of a check standard")
+DATE = _column("date", "", "date (and time) of the injection or analysis, ISO 8601")
+VERDICT = _column("verdict", "",
+                  "judgement of one injection: pass, fail, not reportable, no result or no spec")
+VERDICT_REASONS = _column("verdict reasons", "", "every criterion behind the verdict, joined by '; '")
+SPEC_VERDICT = _column("verdict against spec", "",
+                       "what the decision would be against the spec limits alone (shown also when "
+                       "system suitability failed)")
+BLANK_PEAK = _column("blank peak [% of product peak]", "% of product peak",
+                     "largest peak of a blank inside a product's integration window, relative to "
+                     "that product's peak height in the same sequence")
+BLANK_DETAILS = _column("blank check", "", "per product: window and largest blank peak, in words")
+WORST_STANDARD_RESIDUAL = _column("worst standard residual [%]", "%",
+                                  "largest |residual| 100·(M_fit/Mp - 1) of the standards located "
+                                  "in a calibration-standard injection, signed")
+STANDARDS_LOCATED = _column("standards located", "",
+                            "the standards of a calibration-standard injection and their fitted "
+                            "peak volumes")
+SEQUENCE_CALIBRATION = _column("calibration", "",
+                               "which calibration processed the injection (the method's, or the "
+                               "sequence's own standards)")
+SHEET_ROW = _column("sheet row [-]", "-", "row of the batch sheet the injection came from")

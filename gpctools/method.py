@@ -95,7 +95,8 @@ Window = tuple[float, float]
 
 _SCHEMA: dict[str, set[str] | None] = {
     "": {"name", "sample_polymer", "import", "flow", "flow_marker", "baseline", "integration",
-         "calibration", "mark_houwink", "thresholds", "description", "peaks", "fractions"},
+         "calibration", "mark_houwink", "thresholds", "description", "peaks", "fractions",
+         "qc"},  # [qc]: read by gpctools.qc (QC settings)
     "import": {"x_column", "signal_column", "x_unit", "sheet", "decimal", "separator", "encoding"},
     "flow": {"rate"},
     "flow_marker": {"reference", "search", "min_signal_to_noise", "fwhm", "required"},

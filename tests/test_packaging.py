@@ -126,10 +126,32 @@ def _read_recipe(path: Path, tmp_path: Path) -> Any:
     return load_recipe(path)
 
 
+def _read_qc_settings(path: Path, tmp_path: Path) -> Any:
+    from gpctools.qc import read_qc_settings
+
+    return read_qc_settings(path)
+
+
+def _read_standards_mix(path: Path, tmp_path: Path) -> Any:
+    from gpctools.qc.standards_run import read_standard_mix
+
+    return read_standard_mix(path, "CAL-C")
+
+
+def _read_history(path: Path, tmp_path: Path) -> Any:
+    import pandas as pd
+
+    from gpctools.qc import trend_points
+
+    return trend_points(pd.read_csv(path), "Mw [g/mol]", flag_column="baseline") or None
+
+
 #: The reader of each template, by name without extension.
 READERS: dict[str, Callable[[Path, Path], Any]] = {
     "method": _read_method, "standards": _read_standards, "batch": _read_batch,
     "run_series": _read_run_series, "spec_limits": _read_specs, "recipe": _read_recipe,
+    "batch_sequence": _read_batch, "spec_limits_long": _read_specs, "qc_settings": _read_qc_settings,
+    "standards_mix": _read_standards_mix, "history": _read_history,
 }
 
 
@@ -195,14 +217,15 @@ def test_wheel_in_a_fresh_venv_runs_the_whole_demo_from_an_empty_folder(tmp_path
     demo = _run([gpctools_exe, "demo"], empty, env, timeout=600)
     out = empty / "gpctools-demo"
     summary = json.loads((out / "demo_summary.json").read_text(encoding="utf-8"))
-    assert summary["parts"] == {p: {"status": "ran"} for p in ("batch", "QC", "transfer", "diagnosis")}, demo.stdout
+    assert summary["parts"] == {p: {"status": "ran"} for p in ("batch", "QC", "transfer", "diagnosis",
+                                                               "QC sequence")}, demo.stdout
     assert summary["failed"] == 0
     assert summary["worst deviation [%]"] < 1.0  # the demo's stated acceptance (README)
     for part in ("sample_runs/batch.csv", "batch/results.csv", "batch/results.xlsx", "qc/qc_report.html",
                  "qc/qc_report.xlsx", "transfer/constants.csv", "troubleshooting/diagnosis.md",
                  "troubleshooting/diagnosis.xlsx"):
         assert (out / part).is_file(), part
-    assert "demo parts run: batch, QC, transfer, diagnosis" in demo.stdout
+    assert "demo parts run: batch, QC, transfer, diagnosis, QC sequence" in demo.stdout
     assert "Traceback" not in demo.stdout + demo.stderr
 
     _run([gpctools_exe, "template", "--all", "--out", "starters"], empty, env)

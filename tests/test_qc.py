@@ -189,11 +189,13 @@ def test_suitability_passes_hand_worked():
     # derived: worst marker 23.62 vs 23.6 -> 100*(23.62/23.6 - 1) = 0.084746 %
     fm = c["flow-marker drift |V_obs/V_ref - 1| [%]"]
     assert fm.value == pytest.approx(100 * (23.62 / 23.6 - 1), rel=1e-12) and fm.passed
-    # derived: replicates A1 150000/152000 -> RSD 100*1414.21/151000 = 0.9366 %; CS-1
-    # 101000/99000 -> 100*1414.21/100000 = 1.4142 %, the worst group
-    rsd = c["replicate RSD of Mw [%]"]
-    assert rsd.value == pytest.approx(100 * math.sqrt(2e6) / 100000, rel=1e-12)
-    assert "CS-1" in rsd.reason and rsd.passed
+    # derived: replicates A1 150000/152000 -> RSD 100*1414.21/151000 = 0.9366 %, one degree
+    # of freedom, so the pooled RSD is that value. Check standards are judged against their
+    # assigned values, not as a replicate group (issue 12).
+    rsd = c["replicate RSD of Mw, pooled [%]"]
+    assert rsd.value == pytest.approx(100 * math.sqrt(2e6) / 151000, rel=1e-12)
+    assert "1 degree(s) of freedom" in rsd.reason and rsd.passed
+    assert "fails this pooled rule" in rsd.reason  # the false-fail rate is stated
     # derived: worst |residual| of (1, -2, 0.5) is 2 %
     assert c["worst calibration residual |M_fit/Mp - 1| [%]"].value == 2.0
     assert "-2.00 %" in c["worst calibration residual |M_fit/Mp - 1| [%]"].reason
@@ -201,17 +203,24 @@ def test_suitability_passes_hand_worked():
 
 def test_check_standard_tolerance_is_inclusive_and_fails_beyond():
     df = good_table()
-    # derived: mean(106000, 104000) = 105000, +5.000 % of 100000, on the 5 % tolerance: passes
-    df.loc[df["sample_id"] == "CS-1", "Mw [g/mol]"] = [106000.0, 104000.0]
+    # derived: both injections 105000 = +5.000 % of 100000, on the 5 % tolerance: passes
+    # (each injection and the mean are judged since issue 12; 106000/104000 would now fail
+    # on the first injection, +6 %, although their mean is +5 %)
+    df.loc[df["sample_id"] == "CS-1", "Mw [g/mol]"] = [105000.0, 105000.0]
     (res,) = system_suitability(df, cal_summary(), specs=specs_from_frame(spec_frame()))
     assert res.passed
-    df.loc[df["sample_id"] == "CS-1", "Mw [g/mol]"] = [106200.0, 104000.0]
+    df.loc[df["sample_id"] == "CS-1", "Mw [g/mol]"] = [105100.0, 105100.0]
     (res,) = system_suitability(df, cal_summary(), specs=specs_from_frame(spec_frame()))
     assert not res.passed
-    (fail,) = res.failures
-    assert fail.name.startswith("check standard CHK-PS-BROAD: Mw")
+    mean = [c for c in res.failures if c.name == "check standard CHK-PS-BROAD: Mw deviation from assigned [%]"]
+    (fail,) = mean
     # derived: mean 105100 -> +5.10 %
     assert "+5.10 %" in fail.reason and fail.value == pytest.approx(5.1, rel=1e-9)
+    assert len(res.failures) == 3  # the two injections and the mean
+    df.loc[df["sample_id"] == "CS-1", "Mw [g/mol]"] = [106000.0, 104000.0]
+    (res,) = system_suitability(df, cal_summary(), specs=specs_from_frame(spec_frame()))
+    assert [c.name for c in res.failures] == [
+        "check standard CHK-PS-BROAD, injection 1 (CS-1): Mw deviation from assigned [%]"]
 
 
 def test_each_suitability_check_can_fail():
@@ -222,11 +231,12 @@ def test_each_suitability_check_can_fail():
     (res,) = system_suitability(df, cal_summary(), specs=specs, reference_flow_marker=23.6)
     assert [c.name for c in res.failures] == ["flow-marker drift |V_obs/V_ref - 1| [%]"]
     assert "A1" in res.failures[0].reason and "+0.424 %" in res.failures[0].reason
-    # replicates: 150000 and 157000 -> RSD = 100*4949.747/153500 = 3.2246 % > 3 % (derived)
+    # replicates: 150000 and 157000 -> RSD = 100*4949.747/153500 = 3.2246 % > 3 % (derived);
+    # the only group, so the pooled RSD is that value
     df = good_table()
     df.loc[2, "Mw [g/mol]"] = 157000.0
     (res,) = system_suitability(df, cal_summary(), specs=specs)
-    assert [c.name for c in res.failures] == ["replicate RSD of Mw [%]"]
+    assert [c.name for c in res.failures] == ["replicate RSD of Mw, pooled [%]"]
     assert res.failures[0].value == pytest.approx(100 * np.std([150000, 157000], ddof=1) / 153500, rel=1e-12)
     # outside calibration 1.5 % > 1 %
     df = good_table()
@@ -434,7 +444,7 @@ def test_evaluate_qc_trend_flags_run_rule_with_history():
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
         res = evaluate_qc(good_table(), specs, calibration=cal_summary(), history=hist,
-                          settings=QCSettings(trend_columns=("Mw [g/mol]",)))
+                          settings=QCSettings(trend_columns=("Mw [g/mol]",), rules=WESTERN_ELECTRIC_RULES))
     (chart,) = [c for c in res.trends if c.group == "SG-150"]
     assert chart.labels[-1] == "B1" and chart.values[-1] == 145500.0
     assert int(chart.sets_limits.sum()) == 10  # limits from the history only
@@ -445,7 +455,8 @@ def test_evaluate_qc_trend_flags_run_rule_with_history():
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
         res_all = evaluate_qc(good_table(), specs, calibration=cal_summary(), history=hist,
-                              settings=QCSettings(trend_columns=("Mw [g/mol]",), trend_limits_from="all"))
+                              settings=QCSettings(trend_columns=("Mw [g/mol]",), trend_limits_from="all",
+                                                  rules=WESTERN_ELECTRIC_RULES))
     assert int(res_all.trends[0].sets_limits.sum()) == 11
     # one sequence only: no check-standard chart (two or more points are needed)
     assert not any(c.group.startswith("check standard") for c in res.trends)
@@ -463,7 +474,7 @@ def test_evaluate_qc_we4_across_batches_in_one_table():
     df = pd.DataFrame(rows)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        res = evaluate_qc(df, specs, calibration=cal_summary())
+        res = evaluate_qc(df, specs, calibration=cal_summary(), settings=QCSettings(rules=WESTERN_ELECTRIC_RULES))
     chart = next(c for c in res.trends if c.group == "SG-150" and c.quantity == "Mw [g/mol]")
     assert chart.centre == pytest.approx(np.mean(vals), rel=1e-15)
     found = {(v.label, v.rule) for v in chart.violations}

@@ -258,15 +258,16 @@ def test_e2e_every_finding_caught_with_its_reason(scenario):
     # of a noise-free trace (slice discretisation and the cubic calibration fit)
     assert fail.value == pytest.approx(10.0, abs=0.5)
     # replicate P1 (Mn 100000 and 100500 simulated) gives an RSD well under 3 %
-    rsd = next(c for c in suit["S1"].checks if c.name == "replicate RSD of Mw [%]")
+    rsd = next(c for c in suit["S1"].checks if c.name == "replicate RSD of Mw, pooled [%]")
     assert rsd.passed and 0 < rsd.value < 1.0
     # trend: history CL 194000, sigma 886.5 (derived); B1 near 200000 is > 6 sigma above
-    # (WE1) while inside spec; B2 near 120000 is far below (WE1); B3 is not charted
+    # (N1, the default rule set's "one point beyond 3 sigma") while inside spec; B2 near
+    # 120000 is far below (N1); B3 is not charted
     chart = next(c for c in rep.result.trends if c.group == "P-200" and c.quantity == "Mw [g/mol]")
     assert chart.centre == 194000.0 and chart.sigma == pytest.approx(1000.0 / 1.128, rel=1e-12)
     assert "B3" not in chart.labels
     found = {(v.label, v.rule, v.side) for v in chart.violations}
-    assert ("B1", "WE1", "above") in found and ("B2", "WE1", "below") in found
+    assert ("B1", "N1", "above") in found and ("B2", "N1", "below") in found
     assert rep.exit_code() == 0 and rep.exit_code(strict=True) == 1
     # the summaries are plain JSON (no NaN, no numpy types)
     import json
@@ -289,7 +290,8 @@ def test_e2e_files_and_workbook(scenario):
         assert p.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
     wb = openpyxl.load_workbook(out / "qc_report.xlsx")
     assert wb.sheetnames == ["summary", "batches", "samples", "injections", "specs", "calibration",
-                             "suitability", "trends", "trend signals", "transfer", "transfer points", "audit"]
+                             "suitability", "replicates", "trends", "trend signals", "transfer",
+                             "transfer points", "audit"]
     unit = re.compile(r"\[[^\]]+\]$")
     for ws in wb.worksheets:
         headers = [c.value for c in ws[1]]
@@ -348,7 +350,7 @@ def test_html_in_headless_chromium(scenario, tmp_path):
                 "transfer", "audit"):
         assert f'id="{sec}"' in dom
     assert dom.count("<img") >= 5
-    assert "not reportable" in dom and "WE1" in dom
+    assert "not reportable" in dom and "N1" in dom
     # keep the screenshot next to the report for a person to look at
     shutil.copy(shot, scenario["out"] / "screenshot.png")
 
@@ -411,7 +413,7 @@ def test_cli_qc_exit_codes(scenario, tmp_path):
     res = runner.invoke(app, args)
     # QC findings are results: exit 0 without --strict, the report is written
     assert res.exit_code == 0, res.output
-    assert "B2" in res.output and "fail" in res.output and "WE1" in res.output
+    assert "B2" in res.output and "fail" in res.output and "N1" in res.output
     assert (tmp_path / "o" / "qc_report.html").is_file() and (tmp_path / "o" / "results.csv").is_file()
     # from the results.csv of that run, with --strict: 1 because a batch is not 'pass'
     res = runner.invoke(app, ["qc", str(tmp_path / "o" / "results.csv"), "--specs", str(folder / "spec.csv"),

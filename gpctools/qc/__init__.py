@@ -26,7 +26,16 @@ role_of(value) -> str;  label_text(value) -> str
 
 from __future__ import annotations
 
-from gpctools.qc._table import ROLE_BLANK, ROLE_CHECK, ROLE_SAMPLE, role_of
+from gpctools.qc._table import (
+    ROLE_BLANK,
+    ROLE_CALIBRATION,
+    ROLE_CHECK,
+    ROLE_REPLICATE,
+    ROLE_SAMPLE,
+    SAMPLE_ROLES,
+    role_of,
+    sample_keys,
+)
 from gpctools.qc.decisions import (
     FAIL,
     NO_RESULT,
@@ -35,10 +44,13 @@ from gpctools.qc.decisions import (
     PASS,
     BatchDecision,
     Decisions,
+    InjectionVerdict,
     SampleDecision,
     decide,
 )
-from gpctools.qc.evaluate import QCResult, QCSettings, QCWarning, evaluate_qc, trend_points
+from gpctools.qc.evaluate import QCResult, QCWarning, TrendPoint, evaluate_qc, trend_points
+from gpctools.qc.replicates import ReplicateGroup, ReplicatePrecision, replicate_precision
+from gpctools.qc.settings import ProductSettings, QCSettings, TrendBaseline, read_qc_settings
 from gpctools.qc.specs import (
     CHECK_STANDARD_TOLERANCE_COLUMN,
     SPEC_QUANTITIES,
@@ -50,6 +62,7 @@ from gpctools.qc.specs import (
     specs_from_frame,
 )
 from gpctools.qc.suitability import (
+    CheckInjection,
     SuitabilityCheck,
     SuitabilityLimits,
     SuitabilityResult,
@@ -58,17 +71,42 @@ from gpctools.qc.suitability import (
 )
 from gpctools.qc.trends import (
     D2_MOVING_RANGE,
+    DEFAULT_RULE_SET,
+    NELSON_RULES,
     RULE_SET_NAME,
+    RULE_SETS,
     WESTERN_ELECTRIC_RULES,
     ControlChart,
+    FalseAlarmRate,
     RunRule,
     TrendWarning,
     Violation,
+    false_alarm_rate,
     individuals_chart,
+    rule_set,
     rule_violations,
 )
 
 __all__ = [
+    "InjectionVerdict",
+    "TrendPoint",
+    "ReplicateGroup",
+    "ReplicatePrecision",
+    "replicate_precision",
+    "ProductSettings",
+    "TrendBaseline",
+    "read_qc_settings",
+    "CheckInjection",
+    "DEFAULT_RULE_SET",
+    "NELSON_RULES",
+    "RULE_SETS",
+    "FalseAlarmRate",
+    "false_alarm_rate",
+    "rule_set",
+    "ROLE_CALIBRATION",
+    "ROLE_REPLICATE",
+    "SAMPLE_ROLES",
+    "sample_keys",
     "PASS",
     "FAIL",
     "NOT_REPORTABLE",

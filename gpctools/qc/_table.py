@@ -6,7 +6,9 @@ injection; column names carry units). These helpers only read it; they never mod
 
 from __future__ import annotations
 
+import datetime as _dt
 import math
+import re
 from typing import Any
 
 import numpy as np
@@ -23,7 +25,14 @@ __all__ = [
     "ROLE_SAMPLE",
     "ROLE_CHECK",
     "ROLE_BLANK",
+    "ROLE_CALIBRATION",
+    "ROLE_REPLICATE",
+    "SAMPLE_ROLES",
     "ALL_SEQUENCES",
+    "check_roles",
+    "sample_keys",
+    "date_column",
+    "dates",
     "role_of",
     "roles",
     "labels",
@@ -44,6 +53,11 @@ class QCWarning(GpcWarning):
 ROLE_SAMPLE = _batch_sheet.ROLE_SAMPLE
 ROLE_CHECK = _batch_sheet.ROLE_CHECK
 ROLE_BLANK = _batch_sheet.ROLE_BLANK
+ROLE_CALIBRATION = _batch_sheet.ROLE_CALIBRATION
+ROLE_REPLICATE = _batch_sheet.ROLE_REPLICATE
+#: Roles whose injections are judged against the product's spec (a replicate is a repeat
+#: injection of a sample and shares its ``sample_id``).
+SAMPLE_ROLES = (ROLE_SAMPLE, ROLE_REPLICATE)
 #: Sequence label used when the table has no ``sequence`` column (or it is empty).
 ALL_SEQUENCES = "(all)"
 
@@ -57,6 +71,42 @@ def role_of(value: Any) -> str:
     form and is ignored by the QC steps.
     """
     return _batch_sheet.role_of(value)
+
+
+def check_roles(table: pd.DataFrame, what: str = "the results table") -> None:
+    """Raise :class:`DataError` for a role that is none of the known ones, listing them.
+
+    A mistyped role (``"blnak"``) would otherwise drop the injection from every check.
+    """
+    if C.ROLE not in table.columns:
+        return
+    for i, v in enumerate(table[C.ROLE].tolist()):
+        r = role_of(v)
+        if r not in _batch_sheet.ROLES:
+            raise DataError(
+                f"{what}, row {i + 1}: unknown role {label_text(v)!r}; write one of: "
+                f"{', '.join(_batch_sheet.ROLES)}", column=C.ROLE, row=i + 1)
+
+
+def sample_keys(table: pd.DataFrame) -> np.ndarray:
+    """The sample each row belongs to: its ``sample_id``, except that a ``replicate`` row whose
+    id no ``sample`` row shares joins the only sample of its batch (and product), when there
+    is exactly one (``B1`` and its replicate written ``B1-R``)."""
+    sid = labels(table, C.SAMPLE_ID)
+    role = roles(table)
+    batch = labels(table, C.BATCH)
+    product = labels(table, C.PRODUCT)
+    keys = sid.copy()
+    samples = role == ROLE_SAMPLE
+    shared = set(sid[samples].tolist())
+    for i in np.flatnonzero(role == ROLE_REPLICATE):
+        if sid[i] in shared or not batch[i]:
+            continue
+        same = samples & (batch == batch[i]) & (product == product[i])
+        ids = set(sid[same].tolist())
+        if len(ids) == 1:
+            keys[i] = ids.pop()
+    return keys
 
 
 def roles(table: pd.DataFrame) -> np.ndarray:
@@ -129,3 +179,94 @@ def first_number(values: np.ndarray) -> float:
         if math.isfinite(v):
             return float(v)
     return math.nan
+
+
+_DATE_NAME = re.compile(r"(?:.*\b)?(?:date|datetime|timestamp)(?:\b.*)?", re.IGNORECASE)
+
+
+def date_column(table: pd.DataFrame) -> str | None:
+    """The column holding the analysis date: ``date`` itself, else the first header whose
+    name (without its unit) contains the word ``date`` (``analysis date``, ``run date``)."""
+    names = [str(c) for c in table.columns]
+    for c in names:
+        if cells.split_header(c).key == "date":
+            return c
+    for c in names:
+        if _DATE_NAME.fullmatch(cells.split_header(c).name.strip()):
+            return c
+    return None
+
+
+#: Date texts accepted besides ISO 8601: day.month.year, year/month/day, and month names.
+_DATE_FORMATS = ("%d.%m.%Y", "%d.%m.%Y %H:%M", "%Y/%m/%d", "%d-%b-%Y", "%d %b %Y", "%b %d %Y",
+                 "%d %B %Y", "%B %d %Y", "%Y%m%d")
+
+
+def _date_text(text: str) -> _dt.datetime | None:
+    try:
+        return _dt.datetime.fromisoformat(text.replace("Z", "")).replace(tzinfo=None)
+    except ValueError:
+        pass
+    for fmt in _DATE_FORMATS:
+        try:
+            return _dt.datetime.strptime(text, fmt)
+        except ValueError:
+            continue
+    return None
+
+
+def dates(table: pd.DataFrame, column: str | None, *, strict: bool = True) -> list[_dt.datetime | None]:
+    """Dates of a column as :class:`datetime.datetime` (None for blank cells).
+
+    Accepted: date/datetime cells of a workbook; text in ISO 8601 (``2026-03-14``,
+    ``2026-03-14 09:30``, ``2026-03-14T09:30:00``), ``14.03.2026``, ``2026/03/14``,
+    ``14-Mar-2026``, ``14 March 2026``. Slash dates with the year last (``03/04/2026``)
+    are refused: they read two ways.
+
+    Parameters
+    ----------
+    strict : bool
+        Raise for a cell that is no such date; with False the whole column is ignored
+        (every date None) and a :class:`QCWarning` says so.
+
+    Raises
+    ------
+    DataError
+        Naming the row and column (``strict`` only).
+    """
+    try:
+        return _dates(table, column)
+    except DataError as exc:
+        if strict:
+            raise
+        import warnings
+
+        warnings.warn(f"{exc}; the points are kept in the order of the files", QCWarning, stacklevel=2)
+        return [None] * len(table)
+
+
+def _dates(table: pd.DataFrame, column: str | None) -> list[_dt.datetime | None]:
+    if column is None:
+        return [None] * len(table)
+    out: list[_dt.datetime | None] = []
+    for i, v in enumerate(table[column].tolist()):
+        if cells.is_blank(v):
+            out.append(None)
+            continue
+        if isinstance(v, _dt.datetime):
+            out.append(v.replace(tzinfo=None))
+            continue
+        if isinstance(v, _dt.date):
+            out.append(_dt.datetime(v.year, v.month, v.day))
+            continue
+        if isinstance(v, pd.Timestamp):
+            out.append(v.to_pydatetime().replace(tzinfo=None))
+            continue
+        text = label_text(v)
+        d = _date_text(text)
+        if d is None:
+            raise DataError(
+                f"row {i + 1}: {text!r} is not a date; write dates as YYYY-MM-DD "
+                "(ISO 8601, e.g. 2026-03-14)", column=column, row=i + 1)
+        out.append(d)
+    return out

@@ -10,15 +10,21 @@ One point per product and batch: the mean over the batch's samples of that produ
 sample the mean of its usable injections). Check standards get their own charts, one
 point per sequence. Points come from the history tables first (in the order given, rows
 in table order), then from the current table; a batch or sequence label that appears
-again replaces the earlier point (with a warning). Samples of a sequence that failed
-system suitability are not charted. With ``trend_limits_from="auto"`` the centre line and
-sigma come from the history points when there are at least two, else from all points.
+again replaces the earlier point (with a warning). When every point has a date (a
+``date`` column, or any column named ``... date``), the points are ordered by date (the
+earliest date of the point's rows; ties keep their order). Samples of a sequence that
+failed system suitability are not charted.
+
+The limits are frozen on a baseline period (:class:`gpctools.qc.settings.TrendBaseline`):
+by default the first 20 history points when there are that many, else all history
+points; later points are judged against them.
 """
 
 from __future__ import annotations
 
+import datetime as _dt
 import warnings as _warnings
-from collections.abc import Sequence
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -26,88 +32,17 @@ import numpy as np
 import pandas as pd
 
 from gpctools import columns as C
-from gpctools.errors import MethodError
+from gpctools.errors import DataError
 from gpctools.qc import _table as T
 from gpctools.qc._table import QCWarning
 from gpctools.qc.decisions import Decisions, decide
-from gpctools.qc.specs import SpecSheet
-from gpctools.qc.suitability import SuitabilityLimits, SuitabilityResult, system_suitability
-from gpctools.qc.trends import (
-    RULE_SET_NAME,
-    WESTERN_ELECTRIC_RULES,
-    ControlChart,
-    RunRule,
-    individuals_chart,
-)
+from gpctools.qc.settings import AUTO_BASELINE_POINTS, QCSettings, TrendBaseline
+from gpctools.qc.specs import SpecSheet, find_column
+from gpctools.qc.suitability import SuitabilityResult, system_suitability
+from gpctools.qc.trends import ControlChart, individuals_chart
+from gpctools.sheets import cells
 
-__all__ = ["QCSettings", "QCResult", "QCWarning", "evaluate_qc", "trend_points"]
-
-_LIMITS_FROM = ("auto", "all", "history")
-
-
-@dataclass(frozen=True)
-class QCSettings:
-    """Settings of a QC evaluation (recorded in the audit trail).
-
-    Attributes
-    ----------
-    suitability : SuitabilityLimits
-    trend_columns : tuple of str
-        Results columns charted across batches (default Mw and dispersity).
-    trend_limits_from : str
-        ``"auto"`` (history points when there are two or more, else all), ``"all"`` or
-        ``"history"``.
-    rules : tuple of RunRule
-        Run rules (default the Western Electric rules).
-    chart_check_standards : bool
-        Also chart each check standard across sequences.
-    """
-
-    suitability: SuitabilityLimits = field(default_factory=SuitabilityLimits)
-    trend_columns: tuple[str, ...] = (C.MW, C.DISPERSITY)
-    trend_limits_from: str = "auto"
-    rules: tuple[RunRule, ...] = WESTERN_ELECTRIC_RULES
-    chart_check_standards: bool = True
-
-    def __post_init__(self) -> None:
-        if self.trend_limits_from not in _LIMITS_FROM:
-            raise MethodError(
-                f"trend_limits_from must be one of {', '.join(_LIMITS_FROM)}, got {self.trend_limits_from!r}",
-                key="trend_limits_from",
-            )
-        object.__setattr__(self, "trend_columns", tuple(self.trend_columns))
-        object.__setattr__(self, "rules", tuple(self.rules))
-
-    @classmethod
-    def from_method(cls, method: Any = None, *, require_check_standard: bool = True) -> QCSettings:
-        """Default settings, with a method's thresholds as the matching suitability limits.
-
-        Parameters
-        ----------
-        method : gpctools.method.Method, optional
-            Its ``residual_limit_pct`` (``thresholds.standard_residual_pct``) and
-            ``outside_warn_pct`` (``thresholds.outside_calibration_pct``) become the
-            calibration-residual and outside-calibration limits.
-        require_check_standard : bool
-            See :class:`SuitabilityLimits`.
-        """
-        kw: dict[str, Any] = {"require_check_standard": bool(require_check_standard)}
-        if method is not None:
-            kw["max_calibration_residual_pct"] = float(method.residual_limit_pct)
-            kw["max_outside_calibration_pct"] = float(method.outside_warn_pct)
-        return cls(suitability=SuitabilityLimits(**kw))
-
-    def summary(self) -> dict[str, Any]:
-        """JSON-safe copy."""
-        return {
-            "suitability": self.suitability.summary(),
-            "trend columns": list(self.trend_columns),
-            "trend limits from": self.trend_limits_from,
-            "run rules": [r.code for r in self.rules],
-            "rule set": RULE_SET_NAME if self.rules == WESTERN_ELECTRIC_RULES else "custom",
-            "chart check standards": self.chart_check_standards,
-        }
-
+__all__ = ["QCSettings", "QCResult", "QCWarning", "evaluate_qc", "trend_points", "TrendPoint"]
 
 @dataclass(frozen=True, eq=False)
 class QCResult:
@@ -126,6 +61,9 @@ class QCResult:
         Calibration summary used by the suitability checks.
     settings : QCSettings
     warnings : tuple of str
+    calibrations : dict
+        Sequence label -> summary of the calibration that sequence used, when it was
+        built from the sequence's own standard injections.
     """
 
     table: pd.DataFrame
@@ -136,6 +74,7 @@ class QCResult:
     calibration: dict[str, Any] | None
     settings: QCSettings
     warnings: tuple[str, ...] = field(default=())
+    calibrations: dict[str, dict[str, Any]] = field(default_factory=dict)
 
     @property
     def reportable(self) -> bool:
@@ -170,6 +109,7 @@ class QCResult:
                     "group": c.group,
                     "quantity": c.quantity,
                     "point": label,
+                    "date": c.dates[i] if c.dates else "",
                     "value": float(c.values[i]),
                     "centre line": c.centre,
                     "lower control limit": c.lcl,
@@ -179,7 +119,7 @@ class QCResult:
                     "sets limits": "yes" if c.sets_limits[i] else "no",
                     "rules broken": ", ".join(c.rules_at(i)),
                 })
-        cols = ["group", "quantity", "point", "value", "centre line", "lower control limit",
+        cols = ["group", "quantity", "point", "date", "value", "centre line", "lower control limit",
                 "upper control limit", "sigma", "z [sigma]", "sets limits", "rules broken"]
         return pd.DataFrame(rows, columns=cols)
 
@@ -204,7 +144,46 @@ class QCResult:
             "specs": self.specs.summary(),
             "settings": self.settings.summary(),
             "warnings": list(self.warnings),
+            "sequence calibrations": self.calibrations,
         }
+
+
+@dataclass(frozen=True)
+class TrendPoint:
+    """One point of a control chart.
+
+    Attributes
+    ----------
+    group, label : str
+        Product (or ``check standard <name>``) and batch (or sequence).
+    value : float
+    date : datetime.datetime or None
+        Earliest date of the point's rows.
+    flag : bool
+        A row of the point says yes in the baseline flag column.
+    """
+
+    group: str
+    label: str
+    value: float
+    date: _dt.datetime | None = None
+    flag: bool = False
+
+
+def _flags(table: pd.DataFrame, column: str | None) -> np.ndarray:
+    if column is None:
+        return np.zeros(len(table), dtype=bool)
+    head = next((c for c in table.columns if cells.normalise_name(str(c)) == cells.normalise_name(column)), None)
+    if head is None:
+        return np.zeros(len(table), dtype=bool)
+    out = []
+    for i, v in enumerate(table[head].tolist()):
+        try:
+            out.append(bool(cells.parse_bool(v)))
+        except cells.CellError:
+            raise DataError(f"row {i + 1}: {T.label_text(v)!r} is not yes/no; write yes or no in the "
+                            "baseline flag column", column=str(head), row=i + 1) from None
+    return np.array(out, dtype=bool)
 
 
 def trend_points(
@@ -213,49 +192,160 @@ def trend_points(
     *,
     exclude_sequences: frozenset[str] | set[str] = frozenset(),
     check_standards: bool = True,
-) -> list[tuple[str, str, float]]:
-    """Trend points of one results table: ``(group, label, value)`` in order of appearance.
+    flag_column: str | None = None,
+    default_product: str = "",
+) -> list[TrendPoint]:
+    """Trend points of one results table, in order of appearance.
 
     Parameters
     ----------
     table : pandas.DataFrame
-        A results table (not modified).
+        A results table (not modified). Without a ``sample_id`` column each row is one
+        sample (a history table of reported batch values); without ``status`` every row
+        is usable.
     column : str
         Results column, e.g. ``"Mw [g/mol]"``.
     exclude_sequences : set of str
         Sequences whose rows are left out (failed suitability).
     check_standards : bool
         Include check-standard points (group ``"check standard <name>"``, one per sequence).
+    flag_column : str, optional
+        A yes/no column marking the baseline period.
+    default_product : str
+        Product of every row when the table has no ``product`` column (a history table of
+        one product).
 
     Returns
     -------
-    list of (str, str, float)
+    list of TrendPoint
         Samples: group = product code (``"(no product)"`` when empty), label = batch.
     """
-    if column not in table.columns or C.SAMPLE_ID not in table.columns:
+    head = find_column(table.columns, column)
+    if head is None:
         return []
     ok = T.ok_mask(table)
     role = T.roles(table)
-    sid = T.labels(table, C.SAMPLE_ID)
-    product = T.labels(table, C.PRODUCT)
+    sid = T.labels(table, C.SAMPLE_ID) if C.SAMPLE_ID in table.columns else \
+        np.array([f"row {i + 1}" for i in range(len(table))], dtype=object)
+    product = T.labels(table, C.PRODUCT, default_product)
     batch = T.labels(table, C.BATCH, "(no batch)")
+    if C.BATCH not in table.columns:  # one row per batch: its sample id (or row) names it
+        batch = sid
     seq = T.labels(table, C.SEQUENCE, T.ALL_SEQUENCES)
-    values = T.numbers(table, column)
+    when = T.dates(table, T.date_column(table), strict=False)
+    flag = _flags(table, flag_column)
+    values = T.numbers(table, head)
     use = ok & np.isfinite(values) & np.array([s not in exclude_sequences for s in seq], dtype=bool)
-    # sample means first (replicates), then the mean over samples per (group, label)
-    per_sample: dict[tuple[str, str, str], list[float]] = {}
+    per_sample: dict[tuple[str, str, str], list[int]] = {}
     for i in np.flatnonzero(use):
-        if role[i] == T.ROLE_SAMPLE:
+        if role[i] in T.SAMPLE_ROLES:
             key = (product[i] or "(no product)", batch[i], sid[i])
         elif role[i] == T.ROLE_CHECK and check_standards:
             key = (f"check standard {product[i] or sid[i]}", seq[i], "")
         else:
             continue
-        per_sample.setdefault(key, []).append(float(values[i]))
-    grouped: dict[tuple[str, str], list[float]] = {}
-    for (g, label, _s), v in per_sample.items():
-        grouped.setdefault((g, label), []).append(float(np.mean(v)))
-    return [(g, label, float(np.mean(v))) for (g, label), v in grouped.items()]
+        per_sample.setdefault(key, []).append(int(i))
+    grouped: dict[tuple[str, str], list[list[int]]] = {}
+    for (g, label, _s), idx in per_sample.items():
+        grouped.setdefault((g, label), []).append(idx)
+    out = []
+    for (g, label), samples in grouped.items():
+        v = float(np.mean([np.mean(values[idx]) for idx in samples]))
+        rows = [i for idx in samples for i in idx]
+        dated = [d for d in (when[i] for i in rows) if d is not None]
+        out.append(TrendPoint(g, label, v, min(dated) if dated else None, bool(flag[rows].any())))
+    return out
+
+
+def _baseline_mask(points: list[tuple[TrendPoint, str]], baseline: TrendBaseline) -> np.ndarray:
+    """Which points of one chart set its limits (``points`` in chart order)."""
+    hist = np.array([phase == "history" for _, phase in points], dtype=bool)
+    n = len(points)
+    if baseline.kind == "all":
+        return np.ones(n, dtype=bool)
+    if baseline.kind == "history":
+        return hist
+    if baseline.kind == "count":
+        return np.arange(n) < int(baseline.count or 0)
+    if baseline.kind == "dates":
+        assert baseline.start is not None and baseline.end is not None
+        end = baseline.end + _dt.timedelta(days=1) if baseline.end.time() == _dt.time() else baseline.end
+        return np.array([p.date is not None and baseline.start <= p.date < end for p, _ in points], dtype=bool)
+    if baseline.kind == "flag":
+        return np.array([p.flag for p, _ in points], dtype=bool)
+    if hist.sum() >= AUTO_BASELINE_POINTS:
+        return hist & (np.cumsum(hist) <= AUTO_BASELINE_POINTS)
+    return hist if hist.sum() >= 2 else np.ones(n, dtype=bool)
+
+
+def _ordered(pts: dict[str, tuple[TrendPoint, str]]) -> list[tuple[TrendPoint, str]]:
+    """Chart order: by date when every point has one (stable), else as collected."""
+    items = list(pts.values())
+    if items and all(p.date is not None for p, _ in items):
+        items.sort(key=lambda t: t[0].date)  # type: ignore[arg-type,return-value]
+    return items
+
+
+def _series(column: str, sources: list[tuple[pd.DataFrame, frozenset[str], str]], settings: QCSettings,
+            notes: list[str]) -> dict[str, dict[str, tuple[TrendPoint, str]]]:
+    """Trend points of one column from every table, by group and label (later replaces earlier)."""
+    assert settings.baseline is not None
+    series: dict[str, dict[str, tuple[TrendPoint, str]]] = {}
+    current = sources[-1][0]
+    role = T.roles(current)
+    products = {p for p, r in zip(T.labels(current, C.PRODUCT).tolist(), role, strict=True)
+                if p and r in T.SAMPLE_ROLES}
+    single = products.pop() if len(products) == 1 else ""
+    for tab, excl, phase in sources:
+        default = single if (phase == "history" and C.PRODUCT not in tab.columns) else ""
+        if default:
+            notes.append(f"a history table has no 'product' column: its points are charted as "
+                         f"product {default}, the only product of the current run")
+        for p in trend_points(tab, column, exclude_sequences=excl, check_standards=settings.chart_check_standards,
+                              flag_column=settings.baseline.column, default_product=default):
+            pts = series.setdefault(p.group, {})
+            if p.label in pts:
+                msg = (f"trend {p.group} {column}: point {p.label!r} appears again ({phase}); "
+                       "the later value replaces the earlier one")
+                notes.append(msg)
+                _warnings.warn(msg, QCWarning, stacklevel=3)
+                del pts[p.label]
+            pts[p.label] = (p, phase)
+    return series
+
+
+def _charts(table: pd.DataFrame, history: Sequence[pd.DataFrame], failed: frozenset[str],
+            settings: QCSettings, notes: list[str]) -> list[ControlChart]:
+    """Control charts of every trend column and group, limits frozen on the baseline."""
+    assert settings.baseline is not None
+    charts: list[ControlChart] = []
+    short: dict[str, list[str]] = {}
+    sources: list[tuple[pd.DataFrame, frozenset[str], str]] = [(h, frozenset(), "history") for h in history]
+    sources.append((table, failed, "current"))
+    for column in settings.trend_columns:
+        for g, pts in _series(column, sources, settings, notes).items():
+            items = _ordered(pts)
+            mask = _baseline_mask(items, settings.baseline)
+            if mask.sum() < 2:
+                short.setdefault(column, []).append(g)
+                continue
+            with _warnings.catch_warnings(record=True) as caught:
+                _warnings.simplefilter("always")
+                chart = individuals_chart(
+                    [p.value for p, _ in items], [p.label for p, _ in items], quantity=column, group=g,
+                    sets_limits=mask, rules=settings.rules, rule_set_name=settings.rule_set_name,
+                    false_alarm_simulations=settings.false_alarm_simulations,
+                    dates=[p.date.strftime("%Y-%m-%d") if p.date else "" for p, _ in items]
+                    if any(p.date for p, _ in items) else (),
+                    baseline=f"{settings.baseline.describe()}: {int(mask.sum())} of {len(items)} points")
+            for w in caught:
+                _warnings.warn(w.message, w.category, stacklevel=3)
+            notes.extend(chart.warnings)
+            charts.append(chart)
+    for column, groups in short.items():
+        notes.append(f"no control chart of {column} for {', '.join(groups)}: fewer than two points "
+                     "(batches, or sequences for check standards) to set limits")
+    return charts
 
 
 def evaluate_qc(
@@ -266,8 +356,9 @@ def evaluate_qc(
     reference_flow_marker: float | None = None,
     history: Sequence[pd.DataFrame] = (),
     settings: QCSettings | None = None,
+    calibrations: Mapping[str, Any] | None = None,
 ) -> QCResult:
-    """Spec decisions, system suitability and trends of one batch results table.
+    """Verdicts, system suitability and trends of one batch results table.
 
     Parameters
     ----------
@@ -281,6 +372,8 @@ def evaluate_qc(
     history : sequence of pandas.DataFrame
         Earlier results tables, oldest first, for the trend charts.
     settings : QCSettings, optional
+    calibrations : mapping, optional
+        Sequence label -> calibration built from that sequence's own standard injections.
 
     Returns
     -------
@@ -293,60 +386,24 @@ def evaluate_qc(
     """
     settings = settings or QCSettings()
     notes: list[str] = []
+    for h in history:
+        T.check_roles(h, "a history table")
     suit = system_suitability(table, calibration, specs=specs, limits=settings.suitability,
-                              reference_flow_marker=reference_flow_marker)
+                              reference_flow_marker=reference_flow_marker, calibrations=calibrations)
     for s in suit:
         notes.extend(s.warnings)
-    decisions: Decisions = decide(table, specs, suit)
+    decisions: Decisions = decide(table, specs, suit, judge=settings.judge, limits=settings.suitability)
     failed = frozenset(s.sequence for s in suit if not s.passed)
+    charts = _charts(table, history, failed, settings, notes)
 
-    charts: list[ControlChart] = []
-    short: dict[str, list[str]] = {}
-    for column in settings.trend_columns:
-        series: dict[str, dict[str, tuple[float, str]]] = {}
-        sources = [(h, frozenset(), "history") for h in history] + [(table, failed, "current")]
-        for tab, excl, phase in sources:
-            for g, label, v in trend_points(tab, column, exclude_sequences=excl,
-                                            check_standards=settings.chart_check_standards):
-                pts = series.setdefault(g, {})
-                if label in pts:
-                    msg = (f"trend {g} {column}: point {label!r} appears again ({phase}); "
-                           "the later value replaces the earlier one")
-                    notes.append(msg)
-                    _warnings.warn(msg, QCWarning, stacklevel=2)
-                    del pts[label]
-                pts[label] = (v, phase)
-        for g, pts in series.items():
-            labels = list(pts)
-            vals = [pts[k][0] for k in labels]
-            phases = [pts[k][1] for k in labels]
-            hist = np.array([p == "history" for p in phases])
-            if settings.trend_limits_from == "all":
-                mask = np.ones(len(vals), dtype=bool)
-            elif settings.trend_limits_from == "history":
-                mask = hist
-            else:
-                mask = hist if hist.sum() >= 2 else np.ones(len(vals), dtype=bool)
-            if mask.sum() < 2:
-                short.setdefault(column, []).append(g)
-                continue
-            with _warnings.catch_warnings(record=True) as caught:
-                _warnings.simplefilter("always")
-                chart = individuals_chart(vals, labels, quantity=column, group=g, sets_limits=mask,
-                                          rules=settings.rules)
-            for w in caught:
-                _warnings.warn(w.message, w.category, stacklevel=2)
-            notes.extend(chart.warnings)
-            charts.append(chart)
+    def summary(cal: Any) -> dict[str, Any] | None:
+        if cal is None:
+            return None
+        return cal if isinstance(cal, dict) else cal.summary()
 
-    for column, groups in short.items():
-        notes.append(f"no control chart of {column} for {', '.join(groups)}: fewer than two points "
-                     "(batches, or sequences for check standards) to set limits")
-    cal_summary = None
-    if calibration is not None:
-        cal_summary = calibration if isinstance(calibration, dict) else calibration.summary()
+    cals = {k: summary(v) for k, v in (calibrations or {}).items()}
     return QCResult(
         table=table.copy(), specs=specs, suitability=suit, decisions=decisions, trends=tuple(charts),
-        calibration=cal_summary, settings=settings, warnings=tuple(dict.fromkeys(notes)),
+        calibration=summary(calibration), settings=settings, warnings=tuple(dict.fromkeys(notes)),
+        calibrations={k: v for k, v in cals.items() if v is not None},
     )
-

@@ -24,6 +24,7 @@ from __future__ import annotations
 import hashlib
 import math
 import os
+import re
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -34,7 +35,14 @@ import pandas as pd
 from gpctools import columns as C
 from gpctools.sheets import cells
 from gpctools.sheets.schema import CheckedSheet, SheetRow, read_table
-from gpctools.sheets.spec_limits import SPEC_LIMITS, SPEC_QUANTITIES, quantity_unit
+from gpctools.sheets.spec_limits import (
+    _KNOWN_TEXT,
+    SPEC_LIMITS,
+    SPEC_LIMITS_LONG,
+    SPEC_QUANTITIES,
+    TOLERANCE_QUANTITIES,
+    quantity_column,
+)
 
 __all__ = [
     "SPEC_QUANTITIES",
@@ -46,6 +54,9 @@ __all__ = [
     "specs_from_frame",
     "label_text",
     "within",
+    "is_long_form",
+    "split_column",
+    "find_column",
 ]
 
 #: Header of the check-standard tolerance column.
@@ -104,8 +115,8 @@ def within(value: float, limit: float, comparison: str) -> bool:
     True
     """
     if comparison == "<=":
-        return value <= limit or _close(value, limit)
-    return value >= limit or _close(value, limit)
+        return bool(value <= limit or _close(value, limit))
+    return bool(value >= limit or _close(value, limit))
 
 
 def _fmt(value: float, unit: str) -> str:
@@ -212,7 +223,9 @@ class ProductSpec:
     limits : tuple of Limit
         One entry per limited quantity, in sheet order.
     check_standard_tolerance_pct : float or None
-        Allowed |average/assigned - 1| of a check standard [%].
+        Allowed |value/assigned - 1| of a check standard [%], Mw and Mn.
+    check_standard_tolerance_Mw_pct, check_standard_tolerance_Mn_pct : float or None
+        The same for Mw or Mn alone (they win over the common tolerance).
     description : str
         Free text from a ``description`` column, if any.
     row : int or None
@@ -224,6 +237,14 @@ class ProductSpec:
     check_standard_tolerance_pct: float | None = None
     description: str = ""
     row: int | None = None
+    check_standard_tolerance_Mw_pct: float | None = None
+    check_standard_tolerance_Mn_pct: float | None = None
+
+    def tolerance(self, quantity: str) -> float | None:
+        """Check-standard tolerance of ``"Mw"`` or ``"Mn"`` [%] (None when not given)."""
+        own = {"Mw": self.check_standard_tolerance_Mw_pct,
+               "Mn": self.check_standard_tolerance_Mn_pct}.get(quantity)
+        return own if own is not None else self.check_standard_tolerance_pct
 
     def limit(self, quantity: str) -> Limit | None:
         """The limit on ``quantity`` (``"Mw"``) or on a column (``"Mw [g/mol]"``), if any."""
@@ -239,6 +260,8 @@ class ProductSpec:
             "description": self.description,
             "row": self.row,
             "check-standard tolerance [%]": self.check_standard_tolerance_pct,
+            "check-standard tolerance Mw [%]": self.check_standard_tolerance_Mw_pct,
+            "check-standard tolerance Mn [%]": self.check_standard_tolerance_Mn_pct,
             "limits": [lim.summary() for lim in self.limits],
         }
 
@@ -255,11 +278,14 @@ class SpecSheet:
         The file read (``None`` when built from a frame).
     sha256 : str or None
         SHA-256 of the file bytes.
+    form : str
+        ``"wide"`` (one row per product) or ``"long"`` (one row per product and quantity).
     """
 
     products: tuple[ProductSpec, ...]
     path: str | None = None
     sha256: str | None = None
+    form: str = "wide"
     _index: Mapping[str, ProductSpec] = field(default_factory=dict, repr=False, compare=False)
 
     def __post_init__(self) -> None:
@@ -278,10 +304,12 @@ class SpecSheet:
         for p in self.products:
             for lim in p.limits:
                 rows.append((p.product, lim.column, lim.min, lim.max, lim.target, lim.describe()))
-            if p.check_standard_tolerance_pct is not None:
-                tol = p.check_standard_tolerance_pct
-                rows.append((p.product, CHECK_STANDARD_TOLERANCE_COLUMN, None, tol, None,
-                             f"|average/assigned - 1| <= {tol:g} %"))
+            for label, tol in ((CHECK_STANDARD_TOLERANCE_COLUMN, p.check_standard_tolerance_pct),
+                               ("check-standard tolerance Mw [%]", p.check_standard_tolerance_Mw_pct),
+                               ("check-standard tolerance Mn [%]", p.check_standard_tolerance_Mn_pct)):
+                if tol is not None:
+                    rows.append((p.product, label, None, tol, None,
+                                 f"|value/assigned - 1| <= {tol:g} % (each injection and the mean)"))
         return pd.DataFrame(rows, columns=list(SPEC_FRAME_COLUMNS))
 
     def summary(self) -> dict[str, Any]:
@@ -289,6 +317,7 @@ class SpecSheet:
         return {
             "path": self.path,
             "sha256": self.sha256,
+            "form": self.form,
             "products": [p.summary() for p in self.products],
         }
 
@@ -319,7 +348,7 @@ def read_specs(path: str | os.PathLike[str], *, sheet: str | int | None = None) 
     frame = read_sheet(path, sheet=sheet)
     digest = hashlib.sha256(Path(path).read_bytes()).hexdigest()
     spec = specs_from_frame(frame, path=str(path), sheet=frame.attrs.get("sheet"))
-    return SpecSheet(spec.products, path=str(path), sha256=digest)
+    return SpecSheet(spec.products, path=str(path), sha256=digest, form=spec.form)
 
 
 def specs_from_frame(
@@ -344,31 +373,135 @@ def specs_from_frame(
     gpctools.errors.InputFormatError
         See :func:`read_specs`.
     """
+    if is_long_form(frame):
+        return SpecSheet(_long_products(frame, path, sheet), path=path, form="long")
     table = read_table(frame, SPEC_LIMITS, path=path, sheet=sheet)
     products = [_product(table, row) for row in table.rows]
     return SpecSheet(tuple(products), path=path)
 
 
+def is_long_form(frame: pd.DataFrame) -> bool:
+    """True when a spec table is in the long form (it has a ``quantity`` column)."""
+    return any(cells.split_header(cells.text(c)).key == "quantity" for c in frame.columns)
+
+
 def _product(table: CheckedSheet, row: SheetRow) -> ProductSpec:
     """One product's limits from a checked row; min/max/target checked against each other."""
-    headers = {key: col.header for key, col in table.columns.families["limit"].items()}
+    members = table.columns.families["limit"]
     values: dict[str, dict[str, float | None]] = {}
     for key, v in row.family_values["limit"].items():
-        q, kind = key.split("|")
-        if v is not None and quantity_unit(q) == "g/mol" and v <= 0:
-            raise row.error(f"{v:g} g/mol is not a molar mass; limits must be positive",
-                            headers[key])
+        q, kind = key.rsplit("|", 1)
         values.setdefault(q, {})[kind] = v
     limits = []
     for q, kinds in values.items():
-        lo, hi, tgt = kinds.get("min"), kinds.get("max"), kinds.get("target")
-        if lo is None and hi is None and tgt is None:
-            continue
-        if lo is not None and hi is not None and lo > hi:
-            raise row.error(f"{q} min {lo:g} is above max {hi:g}; swap them", headers[f"{q}|min"])
-        if tgt is not None and ((lo is not None and tgt < lo) or (hi is not None and tgt > hi)):
-            raise row.error(f"{q} target {tgt:g} lies outside its limits; check min, max and target",
-                            headers[f"{q}|target"])
-        limits.append(Limit(q, SPEC_QUANTITIES[q], quantity_unit(q), lo, hi, tgt))
+        unit = next(members[f"{q}|{k}"].field.unit for k in kinds)
+        resolved = quantity_column(q, unit)
+        assert resolved is not None  # the schema accepted the header
+        _, column, unit = resolved
+        lim = _checked_limit(q, column, unit, kinds,
+                             lambda msg, k, q=q: row.error(msg, members[f"{q}|{k}"].header))
+        if lim is not None:
+            limits.append(lim)
     return ProductSpec(row["product"], tuple(limits), row.get("tolerance"),
-                       row.get("description", ""), row.row)
+                       row.get("description", ""), row.row, row.get("tolerance_Mw"),
+                       row.get("tolerance_Mn"))
+
+
+def split_column(column: str) -> tuple[str, str]:
+    """``"Mw [g/mol]"`` -> ``("Mw", "g/mol")`` (unit ``""`` when the name has none)."""
+    if column.endswith("]") and " [" in column:
+        i = column.rfind(" [")
+        return column[:i], column[i + 2 : -1]
+    return column, ""
+
+
+def _checked_limit(q: str, column: str, unit: str, kinds: Mapping[str, float | None],
+                   error: Any) -> Limit | None:
+    """A :class:`Limit` from min/max/target, checked against each other (None when all empty).
+
+    ``error(message, kind)`` builds the exception for the cell of ``kind``.
+    """
+    for kind, v in kinds.items():
+        if v is not None and unit == "g/mol" and v <= 0:
+            raise error(f"{v:g} g/mol is not a molar mass; limits must be positive", kind)
+    lo, hi, tgt = kinds.get("min"), kinds.get("max"), kinds.get("target")
+    if lo is None and hi is None and tgt is None:
+        return None
+    if lo is not None and hi is not None and lo > hi:
+        raise error(f"{q} min {lo:g} is above max {hi:g}; swap them", "min")
+    if tgt is not None and ((lo is not None and tgt < lo) or (hi is not None and tgt > hi)):
+        raise error(f"{q} target {tgt:g} lies outside its limits; check min, max and target", "target")
+    return Limit(q, column, unit or "-", lo, hi, tgt)
+
+
+def _long_products(frame: pd.DataFrame, path: str | None, sheet: str | None) -> tuple[ProductSpec, ...]:
+    """Products of a long-form spec sheet (one row per product and quantity)."""
+    table = read_table(frame, SPEC_LIMITS_LONG, path=path, sheet=sheet)
+    cols = {k: table.columns.header(k) for k in ("quantity", "min", "max", "target", "unit")}
+    products: dict[str, dict[str, Any]] = {}
+    for row in table.rows:
+        prod = products.setdefault(row["product"].casefold(), {
+            "product": row["product"], "limits": {}, "tol": {}, "row": row.row, "description": ""})
+        prod["description"] = prod["description"] or row.get("description", "")
+        q_raw = row["quantity"]
+        head = cells.split_header(q_raw)
+        unit_cell = row.get("unit", "") or None
+        unit = head.unit if head.style == "brackets" else unit_cell
+        unit = (cells.canonical_unit(unit) or unit.strip()) if unit else None
+        name = " ".join((head.name if head.style == "brackets" else q_raw).split())
+        tol = TOLERANCE_QUANTITIES.get(name.casefold())
+        seen = prod["tol"] if tol else prod["limits"]
+        key = tol or name.casefold()
+        if key in seen:
+            raise row.error(f"{name!r} is given twice for product {row['product']!r} (first in row "
+                            f"{seen[key][1]}); keep one row per product and quantity", cols["quantity"])
+        if tol:
+            if row.get("max") is None:
+                raise row.error("give the tolerance [%] in the 'max' column", cols["max"])
+            seen[key] = (row["max"], row.row)
+            continue
+        factor = 1000.0 if unit == "kg/mol" else 1.0
+        resolved = quantity_column(name, "g/mol" if unit == "kg/mol" else unit)
+        if resolved is None:
+            raise row.error(f"unknown quantity {q_raw!r}; limits can be set on {_KNOWN_TEXT} "
+                            "(write the unit in brackets, e.g. 'Mw [g/mol]')", cols["quantity"])
+        q, column, qunit = resolved
+        if unit is not None and unit not in (qunit, "kg/mol" if qunit == "g/mol" else qunit):
+            raise row.error(f"unit [{unit}] does not fit {q}; write [{qunit}]", cols["quantity"])
+        kinds = {k: (None if row.get(k) is None else row.get(k) * factor) for k in ("min", "max", "target")}
+        lim = _checked_limit(q, column, qunit, kinds, lambda msg, k, r=row: r.error(msg, cols[k]))
+        seen[key] = (lim, row.row)
+    out = []
+    for pr in products.values():
+        lims = tuple(v[0] for v in pr["limits"].values() if v[0] is not None)
+        tols = {k: v[0] for k, v in pr["tol"].items()}
+        out.append(ProductSpec(pr["product"], lims, tols.get("tolerance"), pr["description"], pr["row"],
+                               tols.get("tolerance_Mw"), tols.get("tolerance_Mn")))
+    return tuple(out)
+
+
+def _column_key(name: str) -> str:
+    """A results-column name compared loosely: case, spacing, and numbers as values
+    (``1000``, ``1 000``, ``1e3`` and ``1,000`` match)."""
+    def num(m: re.Match[str]) -> str:
+        v = cells.number_or_none(m.group(0).replace(" ", ""))
+        return f"{v:.12g}" if v is not None else m.group(0)
+
+    text = " ".join(name.split()).casefold()
+    return re.sub(r"\d[\d ,.]*(?:e[+-]?\d+)?", lambda m: num(m).strip() + " ", text).replace("  ", " ").strip()
+
+
+def find_column(columns: Any, column: str) -> str | None:
+    """The header of a results table that holds ``column`` (exact, legacy, or the same
+    name with numbers written differently), or None."""
+    heads = [str(c) for c in columns]
+    if column in heads:
+        return column
+    legacy = C.find(heads, column)
+    if legacy in heads:
+        return legacy
+    key = _column_key(column)
+    for h in heads:
+        if _column_key(h) == key:
+            return h
+    return None

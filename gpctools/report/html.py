@@ -24,7 +24,7 @@ __all__ = ["TEMPLATE", "png_data_uri", "figure", "format_value", "table_context"
 
 #: Template file inside the package (``gpctools/report/templates``).
 TEMPLATE = "qc_report.html.j2"
-_TAGGED = {"decision", "result"}
+_TAGGED = {"decision", "result", "verdict", "verdict against spec"}
 _TAG_VALUES = {"pass", "fail", "not reportable", "no result", "no spec", "not evaluated"}
 
 

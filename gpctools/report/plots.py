@@ -12,7 +12,11 @@ report writers turn ``ax.figure`` into PNG bytes with :func:`png_bytes`.
 
 QC figures: :func:`plot_distributions`, :func:`plot_calibration` with
 :func:`plot_calibration_residuals` (both in :func:`calibration_figure`),
-:func:`plot_control_chart`, :func:`plot_mayo`. Run-series figures: :func:`plot_mayo_panel`
+:func:`plot_control_chart`, :func:`plot_mayo`; review of one injection:
+:func:`plot_trace_review` (raw trace, fitted baseline, baseline windows, limits, excluded
+regions, flow marker) above :func:`plot_distribution_review` (dw/dlogM with Mn, Mw, Mp
+and a reference distribution), both in :func:`review_figure`; :func:`plot_standard_peaks`
+(a calibration-standard injection with its located peaks). Run-series figures: :func:`plot_mayo_panel`
 (all panels of a group in :func:`mayo_group_figure`), :func:`plot_lnP`,
 :func:`plot_arrhenius`.
 """
@@ -41,6 +45,10 @@ __all__ = [
     "calibration_figure",
     "plot_control_chart",
     "plot_mayo",
+    "plot_trace_review",
+    "plot_distribution_review",
+    "review_figure",
+    "plot_standard_peaks",
     "plot_mayo_panel",
     "plot_mayo_residuals",
     "mayo_group_figure",
@@ -324,6 +332,196 @@ def plot_control_chart(chart: Any, *, ax: Axes | None = None) -> Axes:
     ax.set_ylabel(chart.quantity)
     _title(ax, f"{chart.group}: {chart.quantity}")
     ax.legend(fontsize=7, frameon=False, loc="upper left", bbox_to_anchor=(1.02, 1.0))
+    return ax
+
+
+# ----------------------------------------------------------------------------- review of one injection
+
+
+def plot_trace_review(
+    volume: Any,
+    signal: Any,
+    *,
+    baseline: Any = None,
+    baseline_windows: Sequence[tuple[float, float]] = (),
+    limits: tuple[float, float] | None = None,
+    exclusions: Sequence[tuple[float, float]] = (),
+    marker: float | None = None,
+    title: str = "",
+    ax: Axes | None = None,
+) -> Axes:
+    """One injection's raw trace with what processing decided about it.
+
+    Parameters
+    ----------
+    volume, signal : array_like
+        The trace [mL], raw detector response [signal units] (any order).
+    baseline : array_like, optional
+        Fitted baseline at each slice [signal units] (drawn dashed).
+    baseline_windows : sequence of (start, end)
+        Baseline windows [mL] (shaded green).
+    limits : (float, float), optional
+        Integration limits [mL] (vertical lines, the integrated area shaded).
+    exclusions : sequence of (start, end)
+        Excluded regions [mL] (hatched grey).
+    marker : float, optional
+        Flow-marker position [mL] (dotted line).
+    title : str
+    ax : matplotlib.axes.Axes, optional
+        Draw here; default a new 7.5 × 3.2 inch figure.
+
+    Returns
+    -------
+    matplotlib.axes.Axes
+    """
+    ax = _axes(ax, 7.5, 3.2)
+    V = np.asarray(volume, dtype=float)
+    h = np.asarray(signal, dtype=float)
+    order = np.argsort(V)
+    V, h = V[order], h[order]
+    for a, b in baseline_windows:
+        ax.axvspan(a, b, color="#dcefe3", zorder=0, label="baseline window" if a == baseline_windows[0][0] else None)
+    for k, (a, b) in enumerate(exclusions):
+        ax.axvspan(a, b, facecolor="none", edgecolor="#9a9a9a", hatch="///", linewidth=0, zorder=0,
+                   label="excluded" if k == 0 else None)
+    ax.plot(V, h, "-", color=PALETTE[0], linewidth=0.9, label="raw signal")
+    if baseline is not None:
+        base = np.asarray(baseline, dtype=float)[order]
+        ax.plot(V, base, "--", color=PALETTE[1], linewidth=1.0, label="fitted baseline")
+        if limits is not None:
+            inside = (V >= limits[0]) & (V <= limits[1])
+            ax.fill_between(V[inside], base[inside], h[inside], color=PALETTE[0], alpha=0.12, linewidth=0)
+    if limits is not None:
+        for x in limits:
+            ax.axvline(x, color=PALETTE[3], linewidth=1.0)
+        ax.text(limits[0], 1.0, " limits", transform=ax.get_xaxis_transform(), fontsize=7, color=PALETTE[3],
+                va="top")
+    if marker is not None and math.isfinite(marker):
+        ax.axvline(marker, color=PALETTE[2], linestyle=":", linewidth=1.2, label="flow marker")
+    ax.set_xlabel("elution volume (flow-corrected) [mL]")
+    ax.set_ylabel("detector signal [signal units]")
+    _title(ax, title or "Chromatogram")
+    ax.legend(fontsize=7, frameon=False, loc="upper right")
+    return ax
+
+
+def plot_distribution_review(
+    M: Any,
+    dwdlogM: Any,
+    *,
+    marks: Mapping[str, float] | None = None,
+    reference: tuple[Any, Any] | None = None,
+    reference_label: str = "reference",
+    title: str = "",
+    ax: Axes | None = None,
+) -> Axes:
+    """dw/dlogM of one injection with its averages marked and a reference distribution.
+
+    Parameters
+    ----------
+    M, dwdlogM : array_like
+        Molar mass [g/mol] and dw/dlogM [-] per slice (any order).
+    marks : mapping, optional
+        Name -> molar mass [g/mol] marked with a vertical line (``{"Mn": ..., "Mw": ...,
+        "Mp": ...}``).
+    reference : (M, dwdlogM), optional
+        A reference distribution of the product [g/mol], [-] (drawn grey).
+    reference_label : str
+    title : str
+    ax : matplotlib.axes.Axes, optional
+        Draw here; default a new 7.5 × 3.0 inch figure.
+
+    Returns
+    -------
+    matplotlib.axes.Axes
+    """
+    ax = _axes(ax, 7.5, 3.0)
+    if reference is not None:
+        rM = np.asarray(reference[0], dtype=float)
+        ry = np.asarray(reference[1], dtype=float)
+        keep = np.isfinite(rM) & np.isfinite(ry) & (rM > 0)
+        o = np.argsort(rM[keep])
+        ax.plot(rM[keep][o], ry[keep][o], "-", color="#8c8c8c", linewidth=2.0, alpha=0.7, label=reference_label)
+    m = np.asarray(M, dtype=float)
+    y = np.asarray(dwdlogM, dtype=float)
+    keep = np.isfinite(m) & np.isfinite(y) & (m > 0)
+    o = np.argsort(m[keep])
+    ax.plot(m[keep][o], y[keep][o], "-", color=PALETTE[0], linewidth=1.3, label="this injection")
+    styles = ("--", "-.", ":", (0, (5, 1)))
+    for k, (name, value) in enumerate((marks or {}).items()):
+        if value is not None and math.isfinite(value) and value > 0:
+            ax.axvline(value, color=PALETTE[(k + 1) % len(PALETTE)], linestyle=styles[k % len(styles)],
+                       linewidth=1.1, label=f"{name} {value:,.0f} g/mol".replace(",", " "))
+    ax.set_xscale("log")
+    ax.set_xlabel("M [g/mol]")
+    ax.set_ylabel("dw/dlogM [-]")
+    _title(ax, title or "Molar-mass distribution")
+    ax.legend(fontsize=7, frameon=False, loc="upper left")
+    return ax
+
+
+def review_figure(trace: Mapping[str, Any], distribution: Mapping[str, Any] | None = None) -> Figure:
+    """One injection's review: the trace above its distribution.
+
+    Parameters
+    ----------
+    trace : mapping
+        Keyword arguments of :func:`plot_trace_review` (``volume`` and ``signal`` required).
+    distribution : mapping, optional
+        Keyword arguments of :func:`plot_distribution_review` (``M`` and ``dwdlogM``);
+        without it the figure holds the trace only.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        7.5 inch wide; 3.2 inch per panel.
+    """
+    if distribution is None:
+        fig, (ax,) = new_figure(7.5, 3.2)
+        plot_trace_review(ax=ax, **trace)
+        return fig
+    fig, (ax1, ax2) = new_figure(7.5, 6.2, rows=2, height_ratios=(1.0, 1.0))
+    plot_trace_review(ax=ax1, **trace)
+    plot_distribution_review(ax=ax2, **distribution)
+    return fig
+
+
+def plot_standard_peaks(
+    volume: Any,
+    signal: Any,
+    peaks: Sequence[tuple[str, float]],
+    *,
+    title: str = "",
+    ax: Axes | None = None,
+) -> Axes:
+    """A calibration-standard injection with the located peak of each standard.
+
+    Parameters
+    ----------
+    volume, signal : array_like
+        The trace on the flow-corrected axis [mL], raw signal [signal units].
+    peaks : sequence of (name, volume)
+        Each standard and its located peak volume [mL].
+    title : str
+    ax : matplotlib.axes.Axes, optional
+        Draw here; default a new 7.5 × 2.8 inch figure.
+
+    Returns
+    -------
+    matplotlib.axes.Axes
+    """
+    ax = _axes(ax, 7.5, 2.8)
+    V = np.asarray(volume, dtype=float)
+    h = np.asarray(signal, dtype=float)
+    o = np.argsort(V)
+    ax.plot(V[o], h[o], "-", color=PALETTE[0], linewidth=0.9)
+    for name, v in peaks:
+        ax.axvline(v, color=PALETTE[1], linewidth=0.9, linestyle="--")
+        ax.text(v, 1.0, f" {name}\n {v:.3f} mL", transform=ax.get_xaxis_transform(), fontsize=7,
+                color=PALETTE[1], va="top")
+    ax.set_xlabel("elution volume (flow-corrected) [mL]")
+    ax.set_ylabel("detector signal [signal units]")
+    _title(ax, title or "Calibration standards", pad=24)
     return ax
 
 

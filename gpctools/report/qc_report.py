@@ -3,10 +3,14 @@
 Outputs in ``outdir`` (every file written atomically):
 
 ``qc_report.xlsx``
-    sheets summary, batches, samples, injections, specs, calibration, suitability,
-    trends, trend signals, transfer (when transfer results are given), audit.
+    sheets summary, batches, samples, injections (each with its verdict, verdict against
+    spec and every reason), specs, calibration, suitability, replicates, trends, trend
+    signals; for a sequence run (:func:`gpctools.qc.run_sequence`) also sequence
+    calibration, standards located and blanks; transfer (when transfer results are
+    given), audit.
 ``qc_report.html``
-    one self-contained page (plots embedded) with the same content, printable.
+    one self-contained page (plots embedded) with the same content, printable, with one
+    page per sample (chromatogram, distribution, averages, spec verdicts, sign-off).
 ``plots/*.png``
     calibration curve with residuals, distribution overlays (one per product, when
     slice-level distributions are available), control charts, Mayo plots.
@@ -29,6 +33,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from gpctools import columns as C
 from gpctools.errors import DataError, InputFormatError
 from gpctools.qc import (
     FAIL,
@@ -37,8 +42,8 @@ from gpctools.qc import (
     NOT_REPORTABLE,
     PASS,
     ROLE_CHECK,
+    ROLE_REPLICATE,
     ROLE_SAMPLE,
-    RULE_SET_NAME,
     QCResult,
     QCSettings,
     SpecSheet,
@@ -51,7 +56,7 @@ from gpctools.qc.decisions import SEVERITY
 from gpctools.report.audit import AuditTrail, build_audit
 from gpctools.report.files import safe_name, unique_name, write_bytes, write_text
 
-__all__ = ["QCReport", "run_qc", "EXIT_OK", "EXIT_FINDINGS"]
+__all__ = ["QCReport", "run_qc", "EXIT_OK", "EXIT_FINDINGS", "history_paths"]
 
 #: Exit status of ``gpctools qc``: report written (findings are results, not errors).
 EXIT_OK = 0
@@ -133,6 +138,14 @@ class _Inputs:
     files: list[tuple[str, str]] = field(default_factory=list)
     curves: list[tuple[str, str, np.ndarray, np.ndarray]] = field(default_factory=list)
     source: str = ""
+    #: The SequenceRun (None for a plain batch or a results table).
+    run: Any = None
+    #: Per-sequence calibrations built from the sequence's own standards.
+    calibrations: dict[str, Any] = field(default_factory=dict)
+    #: Every method used, by label.
+    methods: dict[str, Any] = field(default_factory=dict)
+    #: The per-injection results (for review figures), by results-table row.
+    injections: dict[int, Any] = field(default_factory=dict)
 
 
 _LABEL_DTYPES = {c: str for c in ("sample_id", "file", "role", "product", "batch", "sequence", "status",
@@ -186,11 +199,12 @@ def _from_batch(results: Any, method: Any, calibration: Any) -> _Inputs:
     inp = _Inputs(table=results.table, method=method or results.method, source=str(results.sheet))
     inp.files.append(("batch sheet", str(results.sheet)))
     inp.files.extend(("chromatogram", str(e.path)) for e in results.entries if e.file)
-    for entry, res in zip(results.entries, results.injections or [], strict=False):
+    for k, (entry, res) in enumerate(zip(results.entries, results.injections or [], strict=False)):
         if res is None:
             continue
+        inp.injections[k] = res
         role = role_of(entry.role)
-        if role in (ROLE_SAMPLE, ROLE_CHECK):
+        if role in (ROLE_SAMPLE, ROLE_CHECK, ROLE_REPLICATE):
             group = "check standards" if role == ROLE_CHECK else (
                 label_text(entry.metadata.get("product")) or "(no product)")
             d = res.distribution
@@ -258,9 +272,28 @@ def _from_file(path: Path, method: Any, calibration: Any) -> _Inputs:
     return inp
 
 
+def _from_sequence(run: Any, method: Any, calibration: Any) -> _Inputs:
+    """Inputs from a :class:`gpctools.qc.SequenceRun`: its calibrations, methods, traces."""
+    inp = _from_batch(run, method or run.method, calibration if calibration is not None else run.method.calibration)
+    inp.run = run
+    inp.calibrations = dict(run.calibrations)
+    inp.methods = dict(run.methods)
+    for label, m in run.methods.items():
+        if getattr(m, "source", None):
+            inp.files.append((f"method ({label})", str(m.source)))
+    folder = Path(run.sheet).parent
+    for e in run.entries:
+        f = label_text({str(k).casefold(): v for k, v in e.metadata.items()}.get("standards file"))
+        if f:
+            inp.files.append(("standards mix", str(folder / f)))
+    return inp
+
+
 def _resolve_results(results: Any, method: Any, calibration: Any) -> _Inputs:
     method = _method_from(method)
-    if hasattr(results, "table") and hasattr(results, "entries"):  # gpctools.batch.BatchResult
+    if hasattr(results, "calibrations") and hasattr(results, "standards"):  # gpctools.qc.SequenceRun
+        inp = _from_sequence(results, method, calibration)
+    elif hasattr(results, "table") and hasattr(results, "entries"):  # gpctools.batch.BatchResult
         inp = _from_batch(results, method, calibration)
     elif isinstance(results, pd.DataFrame):
         inp = _Inputs(table=results, method=method, source="results table (in memory)")
@@ -278,6 +311,31 @@ def _resolve_results(results: Any, method: Any, calibration: Any) -> _Inputs:
     return inp
 
 
+def history_paths(item: str | os.PathLike[str]) -> list[Path]:
+    """The results tables one ``--history`` value names: a file, a folder (its ``*.csv`` and
+    ``*.xlsx`` files, sorted by name) or a glob pattern (sorted).
+
+    Raises
+    ------
+    InputFormatError
+        Nothing matches.
+    """
+    import glob
+
+    p = Path(item)
+    if p.is_dir():
+        found = sorted(q for q in p.iterdir() if q.suffix.lower() in (".csv", ".xlsx") and q.is_file())
+        if not found:
+            raise InputFormatError("the history folder holds no .csv or .xlsx results table", path=p)
+        return found
+    if any(ch in str(item) for ch in "*?["):
+        found = sorted(Path(x) for x in glob.glob(str(item)) if Path(x).is_file())
+        if not found:
+            raise InputFormatError("no file matches this history pattern", path=str(item))
+        return found
+    return [p]
+
+
 def _history_tables(history: Any) -> tuple[list[pd.DataFrame], list[tuple[str, str]]]:
     if history is None:
         return [], []
@@ -290,9 +348,9 @@ def _history_tables(history: Any) -> tuple[list[pd.DataFrame], list[tuple[str, s
         elif hasattr(h, "table") and hasattr(h, "entries"):
             tables.append(h.table)
         else:
-            p = Path(h)
-            tables.append(_read_results_table(p))
-            files.append(("history results table", str(p)))
+            for p in history_paths(h):
+                tables.append(_read_results_table(p))
+                files.append(("history results table", str(p)))
     return tables, files
 
 
@@ -358,7 +416,7 @@ def _summary_frame(result: QCResult, audit: AuditTrail, source: str) -> pd.DataF
     ]
     for k in SEVERITY:
         rows.append((f"batches {k} [-]", counts[k], ""))
-    rows.append(("points breaking a run rule [-]", result.trend_signals, RULE_SET_NAME))
+    rows.append(("points breaking a run rule [-]", result.trend_signals, result.settings.rule_set_name))
     cal = result.calibration or {}
     if cal:
         rows.append(("calibration R² [-]", cal.get("R^2 [-]"), ""))
@@ -366,6 +424,9 @@ def _summary_frame(result: QCResult, audit: AuditTrail, source: str) -> pd.DataF
         rows.append(("molar-mass scale", cal.get("molar-mass scale"), ""))
     for b in result.decisions.batches:
         rows.append((f"batch {b.batch}", b.decision, "; ".join(b.reasons)))
+    for v in result.decisions.injections:
+        if v.verdict != PASS:
+            rows.append((f"injection {v.sample_id} (row {v.position + 1}, {v.role})", v.verdict, "; ".join(v.reasons)))
     for w in result.warnings:
         rows.append(("warning", w, ""))
     return pd.DataFrame(rows, columns=["item", "value", "details"])
@@ -516,21 +577,28 @@ def _evaluate(results: Any, specs: SpecSheet | str | os.PathLike[str], *, method
     """Step 1: read the inputs, evaluate QC and build the audit trail (nothing written)."""
     inp = _resolve_results(results, method, calibration)
     if settings is None:
-        settings = QCSettings.from_method(inp.method)
+        settings = inp.run.settings if inp.run is not None else QCSettings.from_method(inp.method)
     spec_sheet = specs if isinstance(specs, SpecSheet) else read_specs(specs)
     hist_tables, hist_files = _history_tables(history)
     result = evaluate_qc(inp.table, spec_sheet, calibration=inp.calibration,
                          reference_flow_marker=inp.reference_flow_marker, history=hist_tables,
-                         settings=settings)
+                         settings=settings, calibrations=inp.calibrations or None)
     files = list(inp.files)
     if spec_sheet.path:
         files.append(("spec sheet", spec_sheet.path))
+    if settings.source:
+        files.append(("QC settings", settings.source))
+    files.extend(("reference distribution", p.reference) for p in settings.products if p.reference)
     files.extend(hist_files)
     audit_settings = {
         "qc": settings.summary(),
         "reference flow marker [mL]": inp.reference_flow_marker,
         "history tables": len(hist_tables),
         "method settings": dict(getattr(inp.method, "settings", {}) or {}),
+        "methods used": {label: {"path": getattr(m, "source", None), "sha256": getattr(m, "sha256", None)}
+                         for label, m in inp.methods.items()},
+        "sequence calibrations": {k: {"standards": len(c.Mp), "order": c.order, "R^2 [-]": c.r_squared}
+                                  for k, c in inp.calibrations.items()},
     }
     audit = build_audit(inputs=files, method=inp.method, settings=audit_settings, timestamp=timestamp)
     items = _transfer_items(transfer)
@@ -540,18 +608,26 @@ def _evaluate(results: Any, specs: SpecSheet | str | os.PathLike[str], *, method
 
 def _workbook_sheets(ev: _Evaluated) -> dict[str, pd.DataFrame]:
     """Step 2: the workbook's tables by sheet name (also returned when nothing is written)."""
+    from gpctools.report import qc_pages as Q
+
     result = ev.result
     sheets: dict[str, pd.DataFrame] = {
         "summary": _summary_frame(result, ev.audit, ev.inp.source),
         "batches": result.decisions.batches_frame(),
         "samples": result.decisions.samples_frame(),
-        "injections": ev.inp.table,
+        "injections": Q.injections_sheet(ev.inp.table, result.decisions),
         "specs": ev.spec_sheet.to_frame(),
         "calibration": _calibration_frame(result.calibration),
         "suitability": _suitability_sheet(result),
+        "replicates": Q.replicates_frame(result),
         "trends": _trends_sheet(result),
         "trend signals": result.trend_violations_frame(),
     }
+    if result.calibrations:
+        sheets["sequence calibration"] = Q.sequence_calibration_frame(result)
+        sheets["standards located"] = Q.standards_frame(ev.inp.run)
+    if ev.inp.run is not None and ev.inp.run.blanks:
+        sheets["blanks"] = Q.blanks_frame(ev.inp.run, ev.inp.table)
     if ev.items:
         sheets["transfer"] = pd.concat([c for c, _ in ev.transfer_tables], ignore_index=True)
         sheets["transfer points"] = pd.concat([p for _, p in ev.transfer_tables], ignore_index=True)
@@ -568,6 +644,11 @@ class _Figures:
     transfer: list[dict[str, str]] = field(default_factory=list)
     #: One entry per control chart (None when it was not drawn).
     charts: list[dict[str, str] | None] = field(default_factory=list)
+    #: Review figure of each sample injection, by results-table row.
+    reviews: dict[int, dict[str, str]] = field(default_factory=dict)
+    #: Calibration-standard injections with their located peaks; blanks.
+    standards: list[dict[str, str]] = field(default_factory=list)
+    blanks: list[dict[str, str]] = field(default_factory=list)
 
 
 def _draw_plots(ev: _Evaluated, out: Path) -> tuple[dict[str, Path], _Figures]:
@@ -605,7 +686,55 @@ def _draw_plots(ev: _Evaluated, out: Path) -> tuple[dict[str, Path], _Figures]:
         png = P.png_bytes(P.plot_mayo(f, title=f"Mayo plot: {t}").figure)
         save(f"mayo_{k + 1:02d}_{safe_name(t, 'plot')}", png)
         figs.transfer.append(H.figure(png, f"1/DPn against the agent ratio with the fitted line, {t}."))
+    _sequence_plots(ev, figs, save, seen)
     return written, figs
+
+
+def _sequence_plots(ev: _Evaluated, figs: _Figures, save: Any, seen: set[str]) -> None:
+    """Sequence calibrations, located standards, blanks and one review per sample injection."""
+    from gpctools.report import html as H
+    from gpctools.report import plots as P
+    from gpctools.report import qc_pages as Q
+
+    for seq, cal in ev.inp.calibrations.items():
+        png = P.png_bytes(P.calibration_figure(cal, residual_limit_pct=ev.settings.suitability.max_calibration_residual_pct))
+        save(unique_name(f"calibration_{safe_name(seq, 'sequence')}", seen), png)
+        figs.calibration.append(H.figure(png, f"Calibration of sequence {seq} from its own standard injections "
+                                              "(located peak volumes) with each standard's residual; band: limit."))
+    run = ev.inp.run
+    table = ev.inp.table
+    if run is not None:
+        for pos, (V, h) in run.traces.items():
+            sid = label_text(table[C.SAMPLE_ID].iloc[pos])
+            peaks = [(s.name, s.peak.volume) for s in run.standards if s.position == pos]
+            if peaks:
+                png = P.png_bytes(P.plot_standard_peaks(V, h, peaks, title=f"{sid}: located standards").figure)
+                save(unique_name(f"standards_{safe_name(sid, 'injection')}", seen), png)
+                figs.standards.append(H.figure(png, f"{sid}: each standard's peak top located by a parabola "
+                                                    "through the slices above 80 % of its height."))
+            elif pos in run.blanks:
+                windows = [f.window for f in run.blanks[pos]]
+                lim = (min(w[0] for w in windows), max(w[1] for w in windows)) if windows else None
+                png = P.png_bytes(P.plot_trace_review(V, h, limits=lim, exclusions=run.method.exclusions,
+                                                      title=f"{sid}: blank").figure)
+                save(unique_name(f"blank_{safe_name(sid, 'injection')}", seen), png)
+                figs.blanks.append(H.figure(png, f"{sid}: blank trace with the widest product window."))
+    refs = {p.product.casefold(): p.reference for p in ev.settings.products if p.reference}
+    roles = [role_of(v) for v in table[C.ROLE].tolist()] if C.ROLE in table.columns else []
+    for pos, res in sorted(ev.inp.injections.items()):
+        if roles and roles[pos] not in (ROLE_SAMPLE, ROLE_REPLICATE):
+            continue
+        product = label_text(table[C.PRODUCT].iloc[pos]) if C.PRODUCT in table.columns else ""
+        ref = refs.get(product.casefold())
+        sid = label_text(table[C.SAMPLE_ID].iloc[pos])
+        trace, dist = Q.review_inputs(res, title=sid, reference=Q.read_reference(ref) if ref else None,
+                                      reference_label=f"reference {product}")
+        png = P.png_bytes(P.review_figure(trace, dist))
+        save(unique_name(f"review_{safe_name(sid, 'sample')}_row{pos + 1}", seen), png)
+        figs.reviews[pos] = H.figure(png, f"{sid}, results row {pos + 1}: raw trace with fitted baseline, "
+                                          "baseline windows (green), limits, excluded regions (hatched) and flow "
+                                          "marker; below, dw/dlogM with Mn, Mw and Mp"
+                                          + (" and the product's reference distribution." if ref else "."))
 
 
 def _write_reports(ev: _Evaluated, sheets: dict[str, pd.DataFrame], out: Path, *,
@@ -635,8 +764,10 @@ def _suitability_context(result: QCResult) -> list[dict[str, Any]]:
     for s in result.suitability:
         df = s.to_frame().drop(columns=["sequence", "comparison"]).rename(
             columns={"value": "value [unit as in check]", "limit": "limit [unit as in check]"})
+        notes = [f"Replicate precision of {r.quantity} ({r.rule} rule): {r.false_fail_text()}."
+                 for r in s.replicates if r.groups]
         suit.append({"sequence": s.sequence, "tag": "pass" if s.passed else "fail",
-                     "text": "pass" if s.passed else "fail",
+                     "text": "pass" if s.passed else "fail", "notes": notes,
                      "table": H.table_context(df, formats={"value [unit as in check]": "[-]",
                                                            "limit [unit as in check]": "[-]"})})
     return suit
@@ -652,8 +783,12 @@ def _charts_context(result: QCResult, figs: _Figures) -> list[dict[str, Any]]:
         df = pd.DataFrame(rows, columns=["point", chart.quantity, "rule", "side", "description"])
         limits = (f"centre {H.format_value(chart.centre, chart.quantity)[0]}, sigma "
                   f"{H.format_value(chart.sigma, chart.quantity)[0]} "
-                  f"(limits from {int(chart.sets_limits.sum())} of {len(chart.labels)} points)")
+                  f"(limits frozen on {int(chart.sets_limits.sum())} of {len(chart.labels)} points)")
+        notes = [f"Baseline: {chart.baseline or 'all points'}.", f"Rules: {chart.rule_set}."]
+        if chart.false_alarm is not None:
+            notes.append(chart.false_alarm.text()[0].upper() + chart.false_alarm.text()[1:] + ".")
         charts.append({"title": f"{chart.group}: {chart.quantity}; {limits}",
+                       "note": " ".join(notes),
                        "figure": fig or {"src": "", "caption": "plot not drawn", "alt": "no plot"},
                        "table": H.table_context(df, empty="No run rule broken.")})
     return charts
@@ -662,6 +797,7 @@ def _charts_context(result: QCResult, figs: _Figures) -> list[dict[str, Any]]:
 def _html_context(ev: _Evaluated, title: str | None, figs: _Figures) -> dict[str, Any]:
     """The template's context: every section of the page as plain values."""
     from gpctools.report import html as H
+    from gpctools.report import qc_pages as Q
 
     result, audit, inp, spec_sheet = ev.result, ev.audit, ev.inp, ev.spec_sheet
     overall = _overall(result)
@@ -679,7 +815,20 @@ def _html_context(ev: _Evaluated, title: str | None, figs: _Figures) -> dict[str
     if "notes" in samples.columns and not samples["notes"].astype(str).str.len().any():
         keep.remove("notes")
     samples = samples[keep]
+    inj = Q.injections_sheet(inp.table, result.decisions)
+    inj_cols = [c for c in (C.SAMPLE_ID, C.ROLE, C.PRODUCT, C.BATCH, C.SEQUENCE, C.STATUS, C.MN, C.MW,
+                            C.DISPERSITY, C.VERDICT, C.SPEC_VERDICT, C.VERDICT_REASONS) if c in inj.columns]
     return {
+        "verdicts": H.table_context(inj[inj_cols]),
+        "sequence_calibrations": [{"sequence": k, "table": H.table_context(pd.DataFrame(v.get("standards_table", [])))}
+                                  for k, v in result.calibrations.items()],
+        "standards_located": H.table_context(Q.standards_frame(inp.run), empty=""),
+        "standards_figures": figs.standards,
+        "blanks": H.table_context(Q.blanks_frame(inp.run, inp.table),
+                                  empty="No blank in this run (role 'blank')."),
+        "blank_figures": figs.blanks,
+        "blank_limit": ev.settings.suitability.max_blank_peak_pct,
+        "sample_pages": Q.sample_pages(result, figs.reviews),
         "title": title or "SEC/GPC quality-control report",
         "subtitle": f"results: {inp.source}",
         "timestamp": audit.timestamp,
@@ -694,16 +843,17 @@ def _html_context(ev: _Evaluated, title: str | None, figs: _Figures) -> dict[str
                         + (f", SHA-256 {spec_sheet.sha256}" if spec_sheet.sha256 else ""),
         "specs": H.table_context(spec_sheet.to_frame(), formats={
             "min [unit of quantity]": "", "max [unit of quantity]": "", "target [unit of quantity]": ""}),
-        "injections": H.table_context(inp.table[inj_cols]),
+        "injections": H.table_context(inp.table[[c for c in _INJECTION_COLUMNS if c in inp.table.columns]]),
         "suitability": _suitability_context(result),
         "calibration_items": H.table_context(_calibration_items(result.calibration), unit_from="item",
                                              empty="No calibration was supplied."),
         "calibration_figures": figs.calibration,
         "standards": H.table_context(_calibration_frame(result.calibration)),
         "distribution_figures": figs.distributions,
-        "rule_set_note": (f"Shewhart individuals charts, sigma = mean moving range / 1.128; run rules: "
-                          f"{RULE_SET_NAME} - WE1 one point beyond 3 sigma, WE2 2 of 3 beyond 2 sigma, "
-                          "WE3 4 of 5 beyond 1 sigma (same side), WE4 8 in a row on one side."),
+        "rule_set_note": (f"Shewhart individuals charts, sigma = mean moving range / 1.128, limits frozen on a "
+                          f"baseline period ({ev.settings.baseline.describe() if ev.settings.baseline else 'auto'}); "
+                          f"run rules: {ev.settings.rule_set_name}: "
+                          + "; ".join(f"{r.code} {r.description}" for r in ev.settings.rules) + "."),
         "charts": _charts_context(result, figs),
         "transfer": transfer,
         "audit": H.table_context(audit_df),

@@ -11,7 +11,9 @@ this package gives the table its meaning, the same way for every sheet:
 * one module per sheet kind with its schema: :mod:`~gpctools.sheets.standards`
   (:data:`STANDARDS`), :mod:`~gpctools.sheets.batch` (:data:`BATCH`),
   :mod:`~gpctools.sheets.run_series` (:data:`RUN_SERIES`),
-  :mod:`~gpctools.sheets.spec_limits` (:data:`SPEC_LIMITS`),
+  :mod:`~gpctools.sheets.spec_limits` (:data:`SPEC_LIMITS`, :data:`SPEC_LIMITS_LONG`),
+  :mod:`~gpctools.sheets.qc_settings` (:data:`QC_SETTINGS`, :data:`QC_PRODUCT`),
+  :mod:`~gpctools.sheets.standard_mix` (:data:`STANDARD_MIX`),
   :mod:`~gpctools.sheets.recipe` (:data:`RECIPE`, one row per recipe key).
 
 The domain readers build their results from the checked rows:
@@ -24,6 +26,7 @@ from __future__ import annotations
 
 from gpctools.sheets.batch import BATCH
 from gpctools.sheets.cells import CellError, finite_or_none, parse_number, split_header
+from gpctools.sheets.qc_settings import QC_PRODUCT, QC_SETTINGS
 from gpctools.sheets.recipe import RECIPE
 from gpctools.sheets.run_series import RUN_SERIES
 from gpctools.sheets.schema import (
@@ -35,7 +38,8 @@ from gpctools.sheets.schema import (
     read_file,
     read_table,
 )
-from gpctools.sheets.spec_limits import SPEC_LIMITS
+from gpctools.sheets.spec_limits import SPEC_LIMITS, SPEC_LIMITS_LONG
+from gpctools.sheets.standard_mix import STANDARD_MIX
 from gpctools.sheets.standards import STANDARDS
 
 __all__ = [
@@ -43,6 +47,10 @@ __all__ = [
     "RECIPE",
     "RUN_SERIES",
     "SPEC_LIMITS",
+    "SPEC_LIMITS_LONG",
+    "QC_SETTINGS",
+    "QC_PRODUCT",
+    "STANDARD_MIX",
     "STANDARDS",
     "CellError",
     "CheckedSheet",

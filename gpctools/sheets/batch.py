@@ -1,5 +1,24 @@
 """The batch sheet: one row per injection (read by :func:`gpctools.batch.read_batch_sheet`).
 
+column                 meaning
+=====================  ==========================================================
+``sample_id``          required (also ``sample id``, ``sample``, ``id``); repeated
+                       ids are replicate injections
+``file``               required (also ``path``, ``file path``, ``filename``,
+                       ``data file``); slice export, relative to the sheet
+``role``               optional (also ``type``): ``sample`` (default),
+                       ``replicate`` (a repeat injection of a sample: same
+                       ``sample_id``), ``check_standard`` (also ``check
+                       standard``, ``check``), ``blank``,
+                       ``calibration_standard`` (also ``calibration``: narrow
+                       standards named in a ``standards`` column or a
+                       ``standards file``; used by ``gpctools qc``)
+``flow marker [mL]``   optional (also ``flow_marker``, ``marker``): observed
+                       marker position of that injection
+anything else          free metadata (``product``, ``batch``, ``sequence``,
+                       ``assigned Mw [g/mol]``, ...), copied to the results
+=====================  ==========================================================
+=======
 =========================  ======================================================
 column                     meaning
 =========================  ======================================================
@@ -9,8 +28,12 @@ column                     meaning
 ``file``                   required (also ``path``, ``file path``, ``filename``,
                            ``data file``); slice export, relative to the sheet
 ``role``                   optional (also ``type``): ``sample`` (default),
-                           ``check_standard`` (also ``check standard``, ``check``),
-                           ``blank``
+                           ``replicate`` (a repeat injection of a sample: same
+                           ``sample_id``), ``check_standard`` (also ``check
+                           standard``, ``check``), ``blank``,
+                           ``calibration_standard`` (also ``calibration``: narrow
+                           standards named in a ``standards`` column or a
+                           ``standards file``; used by ``gpctools qc``)
 ``flow marker [mL]``       optional (also ``flow_marker``, ``marker``): observed
                            marker position of that injection
 ``method file``            optional (also ``method path``): the method (TOML) of
@@ -45,14 +68,16 @@ from gpctools.errors import InputFormatError
 from gpctools.sheets.cells import choice_key
 from gpctools.sheets.schema import Field, SheetSchema
 
-__all__ = ["ROLES", "ROLE_SAMPLE", "ROLE_CHECK", "ROLE_BLANK", "ROLE_CHOICES", "BATCH", "role_of",
-           "OVERRIDE_PAIRS"]
+__all__ = ["ROLES", "ROLE_SAMPLE", "ROLE_CHECK", "ROLE_BLANK", "ROLE_CALIBRATION", "ROLE_REPLICATE",
+           "ROLE_CHOICES", "BATCH", "role_of", "OVERRIDE_PAIRS"]
 
 ROLE_SAMPLE = "sample"
 ROLE_CHECK = "check_standard"
 ROLE_BLANK = "blank"
+ROLE_CALIBRATION = "calibration_standard"
+ROLE_REPLICATE = "replicate"
 #: The roles of an injection.
-ROLES = (ROLE_SAMPLE, ROLE_CHECK, ROLE_BLANK)
+ROLES = (ROLE_SAMPLE, ROLE_CHECK, ROLE_BLANK, ROLE_CALIBRATION, ROLE_REPLICATE)
 #: Accepted spellings (as :func:`~gpctools.sheets.cells.choice_key` gives them) -> role.
 ROLE_CHOICES = {
     "sample": ROLE_SAMPLE,
@@ -60,6 +85,9 @@ ROLE_CHOICES = {
     "checkstandard": ROLE_CHECK,
     "check": ROLE_CHECK,
     "blank": ROLE_BLANK,
+    "calibration_standard": ROLE_CALIBRATION, "calibration": ROLE_CALIBRATION,
+    "cal_standard": ROLE_CALIBRATION, "calibrationstandard": ROLE_CALIBRATION,
+    "replicate": ROLE_REPLICATE,
 }
 
 
@@ -91,7 +119,8 @@ BATCH = SheetSchema(
               hint="give the path of the slice export (relative to the batch sheet)",
               meaning="slice export of the injection"),
         Field("role", C.ROLE, kind="choice", aliases=("type",), choices=ROLE_CHOICES,
-              default=ROLE_SAMPLE, meaning="sample, check_standard or blank"),
+              default=ROLE_SAMPLE,
+              meaning="sample, replicate, check_standard, blank or calibration_standard"),
         Field("flow_marker", C.FLOW_MARKER, aliases=("flow marker", "marker"), unit="mL",
               minimum=0.0, min_open=True, example="23.6",
               meaning="observed flow-marker position of the injection"),

@@ -30,6 +30,12 @@ _DESCRIPTIONS: dict[str, str] = {
     "spec_limits.csv": "spec limits per product for `gpctools qc`",
     "spec_limits.xlsx": "the spec limits as a workbook, with a read-me sheet",
     "recipe.toml": "recipe for `gpctools diagnose`: what went into the reactor and what was measured",
+    "batch_sequence.csv": "a QC sequence for `gpctools qc`: calibration standards, blank, check standards, samples, replicates",
+    "standards_mix.csv": "the narrow standards of one calibration-standard injection: name, Mp [g/mol]",
+    "spec_limits_long.csv": "spec limits in the long form: product, quantity, min, max, target",
+    "qc_settings.toml": "QC settings for `gpctools qc --settings`: suitability limits, judgement, trends, products (commented)",
+    "qc_settings.csv": "the QC settings as a setting/value sheet",
+    "history.csv": "history of reported batch values for the control charts (date, baseline flag)",
 }
 
 #: Files a template names and needs beside it (``method.toml`` reads ``standards.csv``).
