@@ -469,7 +469,7 @@ def write_qc_sequence(folder: str | Path) -> dict[str, Any]:
         write_chromatogram(folder / "exports" / f"{sid}.csv", V, h)
         rows.append(f"{sid},exports/{sid}.csv,calibration_standard,,,SEQ-2612-A,2026-12-01,{'; '.join(stds)},,")
     for k, (sid, role, product, batch, mp, disp, flow_err, seed) in enumerate(QC_INJECTIONS):
-        if mp is None:
+        if mp is None or disp is None:
             h = 3.5 - 0.04 * (V - V[0]) + rng.normal(0.0, 0.04, V.size) + marker
             avg: dict[str, float] = {}
         else:

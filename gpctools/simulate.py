@@ -42,7 +42,7 @@ from collections.abc import Callable, Mapping, Sequence
 from typing import Any
 
 import numpy as np
-from scipy.special import gammaln  # type: ignore[import-untyped]
+from scipy.special import gammaln
 
 from .calibration import Calibration, fit_calibration
 from .chainlength import DistributionModel, cumulative_averages

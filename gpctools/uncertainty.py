@@ -115,7 +115,7 @@ class AverageUncertainty:
         """The uncertainty of ``"Mn"``, ``"Mw"`` or ``"Mz"``."""
         if name not in UNCERTAIN_AVERAGES:
             raise KeyError(name)
-        return getattr(self, name)  # type: ignore[no-any-return]
+        return getattr(self, name)
 
     def summary(self) -> dict[str, Any]:
         return {

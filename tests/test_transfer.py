@@ -77,7 +77,7 @@ def test_mayo_weighted_fit_matches_numpy_reference():
     cov = np.linalg.inv((X * w[:, None]).T @ (X * w[:, None])) * (res @ res) / (RATIOS.size - 2)
     assert fit.constant("C_A").value == pytest.approx(beta[1], rel=1e-7)  # same linear problem
     assert fit.intercept.value == pytest.approx(beta[0], rel=1e-7)
-    # lmfit's covariance from the Jacobian equals the normal-equation one to rounding
+    # the covariance from the normal equations (reference: numpy lstsq + inverse above)
     assert fit.constant("C_A").stderr == pytest.approx(math.sqrt(cov[1, 1]), rel=1e-4)
     assert fit.intercept.stderr == pytest.approx(math.sqrt(cov[0, 0]), rel=1e-4)
 

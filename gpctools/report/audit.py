@@ -23,7 +23,7 @@ import pandas as pd
 
 __all__ = ["InputFile", "AuditTrail", "sha256_file", "build_audit", "library_versions"]
 
-_LIBRARIES = ("numpy", "pandas", "scipy", "matplotlib", "openpyxl", "jinja2", "lmfit")
+_LIBRARIES = ("numpy", "pandas", "scipy", "matplotlib", "openpyxl", "jinja2")
 
 
 def sha256_file(path: str | os.PathLike[str]) -> str:

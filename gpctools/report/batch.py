@@ -35,6 +35,7 @@ from gpctools.report.xlsx import write_workbook
 if TYPE_CHECKING:  # pragma: no cover
     from gpctools.batch import BatchEntry, BatchResult, InjectionResult
     from gpctools.distribution import Distribution
+    from gpctools.qc.sequence import SequenceRun
 
 __all__ = ["write_batch", "write_distribution", "distribution_name", "DistributionWriter"]
 
@@ -111,13 +112,13 @@ class DistributionWriter:
 
 
 def write_batch(
-    result: BatchResult, outdir: str | os.PathLike[str], *, distributions: bool = True
+    result: BatchResult | SequenceRun, outdir: str | os.PathLike[str], *, distributions: bool = True
 ) -> dict[str, Path]:
     """Write the outputs of a batch atomically (see the module docstring for the files).
 
     Parameters
     ----------
-    result : gpctools.batch.BatchResult
+    result : gpctools.batch.BatchResult or gpctools.qc.sequence.SequenceRun
     outdir : str or os.PathLike
         Output folder (created).
     distributions : bool

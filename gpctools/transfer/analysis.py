@@ -143,7 +143,7 @@ class TransferResult:
             pe, pm = g.preferred[term]
             estimator = estimator or pe
             model = model or pm
-        return g.fit(estimator, model).constant(term)  # type: ignore[union-attr]
+        return g.fit(estimator, model).constant(term)
 
     def constants_table(self):
         """One row per group, term, estimator and model (pandas DataFrame)."""
