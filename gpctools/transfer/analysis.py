@@ -182,7 +182,7 @@ class TransferResult:
         }
 
 
-#: Shown with every analysis (SCIENCE.md section 10).
+#: Shown with every analysis (docs/science.md, section 10).
 SAFETY_NOTE = (
     "Transfer agents and solvents are often toxic, malodorous or sensitizing (thiols, "
     "halogenated methanes); polymerizations are exothermic and can run away when initiator "
@@ -317,7 +317,7 @@ def analyse_series(
     ----------
     Mayo, J. Am. Chem. Soc. 1943; Heuts, Davis, Russell et al., Macromolecules 1999;
     Clay and Gilbert, Macromolecules 1995; van Berkel, Russell, Gilbert, Macromolecules
-    2005; SCIENCE.md sections 3 to 6.
+    2005; docs/science.md, sections 3 to 6.
     """
     opts = _options(options, overrides)
     warns: list[str] = []

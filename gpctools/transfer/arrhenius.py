@@ -6,7 +6,7 @@ pre-exponential ratio A_tr/A_p [-].
 
 References
 ----------
-SCIENCE.md section 6. Arrhenius form of both rate coefficients (IUPAC Gold Book,
+docs/science.md, section 6. Arrhenius form of both rate coefficients (IUPAC Gold Book,
 "Arrhenius equation"). Hutchinson, Paquet, McMinn, Macromolecules 1995 (ΔE ≈ 0 for some
 thiol/methacrylate pairs over 20–80 °C).
 """
@@ -141,7 +141,7 @@ def fit_arrhenius(
 
     References
     ----------
-    SCIENCE.md section 6. Birge, Phys. Rev. 1932 (scaling by the Birge ratio).
+    docs/science.md, section 6. Birge, Phys. Rev. 1932 (scaling by the Birge ratio).
     """
     T = np.asarray(T_K, dtype=float).ravel()
     Cv = np.asarray(C, dtype=float).ravel()

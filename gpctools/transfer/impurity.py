@@ -861,7 +861,7 @@ def check_intercept(
 
     References
     ----------
-    SCIENCE.md section 3 (1/DPn0 = kinetic term + C_M + C_S[S]/[M] + C_I[I]/[M]).
+    docs/science.md, section 3 (1/DPn0 = kinetic term + C_M + C_S[S]/[M] + C_I[I]/[M]).
     """
     a, sa = fit.intercept.value, fit.intercept.stderr
     if getattr(fit, "intercept_fixed", False):  # a DriftFit always has a free intercept

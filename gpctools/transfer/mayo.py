@@ -16,7 +16,7 @@ weights are 1/(relative error * 1/DPn), the relative error being estimated from 
 References
 ----------
 Mayo, F. R., J. Am. Chem. Soc. 1943: the Mayo equation (dead chains per monomer consumed).
-SCIENCE.md section 3: weighting for constant relative error of 1/DPn.
+docs/science.md, section 3: weighting for constant relative error of 1/DPn.
 """
 
 from __future__ import annotations
