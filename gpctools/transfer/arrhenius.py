@@ -21,7 +21,8 @@ from typing import Any
 import numpy as np
 
 from gpctools.errors import DataError, DesignError
-from gpctools.transfer._stats import finite_or_none, t_quantile, weighted_linear_fit
+from gpctools.sheets.cells import finite_or_none
+from gpctools.transfer._stats import t_quantile, weighted_linear_fit
 from gpctools.transfer.mayo import FittedValue
 
 #: Molar gas constant [J/mol/K] (CODATA 2018, exact; the value of gpctools.refdata.R_GAS,

@@ -47,8 +47,9 @@ from gpctools.chainlength import (
     term_kind,
 )
 from gpctools.errors import DataError, DesignError, EstimatorWarning
+from gpctools.sheets.cells import finite_or_none
 from gpctools.transfer._fit import solve
-from gpctools.transfer._stats import FittedConstants, as_str_tuple, finite_or_none, t_quantile
+from gpctools.transfer._stats import FittedConstants, as_str_tuple, t_quantile
 from gpctools.transfer.mayo import (
     FittedValue,
     MayoFit,

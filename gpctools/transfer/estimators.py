@@ -23,7 +23,8 @@ from typing import Any
 import numpy as np
 
 from gpctools.errors import DataError
-from gpctools.transfer._stats import finite_or_none, ols_with_cov
+from gpctools.sheets.cells import finite_or_none
+from gpctools.transfer._stats import ols_with_cov
 
 __all__ = [
     "ESTIMATORS",

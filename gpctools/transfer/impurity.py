@@ -57,10 +57,10 @@ import numpy as np
 
 from gpctools.chainlength import impurity_ratio, impurity_ratio_cumulative
 from gpctools.errors import DataError
+from gpctools.sheets.cells import finite_or_none
 from gpctools.transfer._fit import linear_solve, solve
 from gpctools.transfer._stats import (
     as_str_tuple,
-    finite_or_none,
     gauss_newton,
     t_quantile,
     t_sf,

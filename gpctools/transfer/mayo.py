@@ -29,8 +29,9 @@ from typing import Any
 import numpy as np
 
 from gpctools.errors import DataError, DesignError, EstimatorWarning
+from gpctools.sheets.cells import finite_or_none
 from gpctools.transfer._fit import Solution, solve
-from gpctools.transfer._stats import FittedConstants, as_str_tuple, finite_or_none, t_quantile
+from gpctools.transfer._stats import FittedConstants, as_str_tuple, t_quantile
 from gpctools.transfer.model import KINETIC_NAME, SeriesModel
 
 __all__ = [
