@@ -204,7 +204,7 @@ def coverage(series: int, seed0: int = 7000) -> tuple[int, int, int]:
             done += 1
     print(f"95 % intervals of C_A (Mw/2, drift, delta 0.1) cover the truth in {_rate(hits, done)} of "
           f"whole-chain series (standards ±0.02 mL, 6 runs, 1 % charge scatter); statistical part "
-          f"alone: {_rate(hits_stat, done)}  [{_cmd(f'coverage --series {series}')}, seeds {seed0}..]")
+          f"alone: {_rate(hits_stat, done)}  [{_cmd(f'coverage --series {series} --seed {seed0}')}]")
     return hits, hits_stat, done
 
 
@@ -223,7 +223,7 @@ def chain_power(series: int, seed0: int = 11000) -> None:
     print(f"whole chain, 6 runs (chromatograms, standards ±0.02 mL, 1 % charge scatter), runs 2 "
           f"and 5 at +25 % excess 1/DPn, default options: both flagged in {_rate(both, series)}; "
           f"a clean run flagged in {_rate(other, series)}  "
-          f"[{_cmd(f'chain-power --series {series}')}, seeds {seed0}..]")
+          f"[{_cmd(f'chain-power --series {series} --seed {seed0}')}]")
 
 
 # ----------------------------------------------------------------------------- designs
@@ -380,6 +380,7 @@ def main(argv: list[str] | None = None) -> int:
                                      "timing", "calibrate", "chain-power", "all"))
     ap.add_argument("--trials", type=int, default=None)
     ap.add_argument("--series", type=int, default=200)
+    ap.add_argument("--seed", type=int, default=None, help="first seed of coverage / chain-power")
     a = ap.parse_args(argv)
     if a.what in ("flags", "all"):
         flags(a.trials or 1000)
@@ -392,9 +393,9 @@ def main(argv: list[str] | None = None) -> int:
     if a.what in ("timing", "all"):
         timing()
     if a.what in ("coverage", "all"):
-        coverage(a.series)
+        coverage(a.series, *(() if a.seed is None else (a.seed,)))
     if a.what in ("chain-power", "all"):
-        chain_power(a.series if a.series != 200 else 100)
+        chain_power(a.series if a.series != 200 else 100, *(() if a.seed is None else (a.seed,)))
     if a.what == "calibrate":
         calibrate(a.trials or 2000)
     return 0
