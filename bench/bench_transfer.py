@@ -379,7 +379,7 @@ def main(argv: list[str] | None = None) -> int:
     ap.add_argument("what", choices=("flags", "coverage", "solvent", "initiator", "styrene",
                                      "timing", "calibrate", "chain-power", "all"))
     ap.add_argument("--trials", type=int, default=None)
-    ap.add_argument("--series", type=int, default=200)
+    ap.add_argument("--series", type=int, default=None, help="series (coverage 200, chain-power 100)")
     ap.add_argument("--seed", type=int, default=None, help="first seed of coverage / chain-power")
     a = ap.parse_args(argv)
     if a.what in ("flags", "all"):
@@ -393,9 +393,9 @@ def main(argv: list[str] | None = None) -> int:
     if a.what in ("timing", "all"):
         timing()
     if a.what in ("coverage", "all"):
-        coverage(a.series, *(() if a.seed is None else (a.seed,)))
+        coverage(a.series or 200, *(() if a.seed is None else (a.seed,)))
     if a.what in ("chain-power", "all"):
-        chain_power(a.series if a.series != 200 else 100, *(() if a.seed is None else (a.seed,)))
+        chain_power(a.series or 100, *(() if a.seed is None else (a.seed,)))
     if a.what == "calibrate":
         calibrate(a.trials or 2000)
     return 0
