@@ -58,7 +58,7 @@ from .viscometry import (
 )
 
 __all__ = ["DetectorMethod", "DetectorResult", "ShapedFit", "calibration_shaped_fit", "analyse_injection", "assign_columns", "for_injection",
-           "ANALYSIS_KEYS", "SLICE_COLUMNS"]
+           "calibrate_with_standard", "setup_toml", "ANALYSIS_KEYS", "SLICE_COLUMNS"]
 
 #: Keys of ``[detectors.analysis]`` and what they mean (units in the docs and the template).
 ANALYSIS_KEYS = {
@@ -656,3 +656,95 @@ def for_injection(chromatogram: Any, volume: Any, result: Any, method: Any) -> D
             limits=result.corrected.limits, baseline_windows=result.corrected.baseline.windows,
             conventional={"Mn": d.Mn, "Mw": d.Mw, "Mz": d.Mz}, calibration_log_M=standard_log_M,
             calibration_slope=cal.dlogM_dV, name=result.sample_id or "injection")
+
+
+def calibrate_with_standard(chromatogram: Any, volume: Any, result: Any, method: Any, standard: Any, *,
+                            B: float | None = None, normalise: bool = False) -> Any:
+    """Offsets, broadening and constants from one narrow-standard injection.
+
+    The channels are baseline-corrected like a sample's (:func:`for_injection`), then
+    :func:`gpctools.detectors.calibrate_setup` fits each detector's peak and adds the
+    polydispersity lead ℓ = exponent·ln Đ/(ln10·B) to the observed peak difference
+    (docs/detectors.md, "Calibrating the set-up from one narrow standard").
+
+    Parameters (duck-typed like :func:`for_injection`)
+    ----------
+    standard : gpctools.detectors.NarrowStandard
+        Its ``B`` may be None: then ``B`` here, or the slope of the method's calibration
+        (of the standards' own polymer) at the concentration detector's peak, is used.
+    B : float, optional
+        −d log10 M/dV at the standard's peak [1/mL].
+
+    Returns
+    -------
+    gpctools.detectors.SetupCalibration
+    """
+    import dataclasses
+    import warnings
+
+    from gpctools.errors import GpcWarning
+
+    from .narrow_standard import calibrate_setup
+
+    cal = method.calibration
+    det_method: DetectorMethod = method.detectors
+    V = np.asarray(volume, dtype=float) * float(result.flow_factor)
+    channels = dict(chromatogram.channels)
+    channels.setdefault(chromatogram.signal_column, chromatogram.signal)
+    assigned = assign_columns(det_method, list(channels), chromatogram.signal_column)
+    plain = dataclasses.replace(det_method, setup=_zero_offsets(det_method.setup))
+    traces = _traces(V, {k: np.asarray(v, dtype=float) for k, v in channels.items()}, plain, assigned,
+                     result.corrected.baseline.windows, result.sample_id or "standard")
+    if standard.B is None:
+        if B is None:
+            c = traces[det_method.setup.concentration]
+            v_peak = float(V[int(np.argmax(c))])
+            B = -float(cal.dlogM_dV([v_peak])[0]) / cal.log_factor
+        standard = dataclasses.replace(standard, B=B)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", GpcWarning)
+        return calibrate_setup(traces, det_method.setup, standard, normalise=normalise)
+
+
+def _zero_offsets(setup: DetectorSetup) -> DetectorSetup:
+    """The set-up with every offset 0 (baseline windows of an uncalibrated line stay put)."""
+    out = setup
+    for d in setup.detectors:
+        if d.offset:
+            out = out.replace(d.name, offset=0.0)
+    return out
+
+
+def setup_toml(setup: DetectorSetup, columns: Mapping[str, Sequence[str | int]] | None = None) -> str:
+    """The ``[detectors.<name>]`` tables of ``setup`` as TOML text, ready to paste into a method.
+
+    Numbers are written with 6 significant digits (offsets to 0.0001 mL); ``columns``
+    are added back where the method names them.
+    """
+    def value(v: Any) -> str:
+        if isinstance(v, bool):
+            return "true" if v else "false"
+        if isinstance(v, str):
+            return '"' + v.replace("\\", "\\\\").replace('"', '\\"') + '"'
+        if isinstance(v, (int, float)):
+            return f"{float(v):.6g}" if isinstance(v, float) else str(v)
+        if isinstance(v, (list, tuple)):
+            return "[" + ", ".join(value(x) for x in v) + "]"
+        if isinstance(v, Mapping):
+            return "{" + ", ".join(f"{k} = {value(x)}" for k, x in v.items()) + "}"
+        return value(str(v))
+
+    data = setup.to_mapping()
+    lines = ["[detectors]", f"concentration = {value(data.pop('concentration'))}"]
+    copolymer = data.pop("copolymer", None)
+    for name, sec in data.items():
+        lines += ["", f"[detectors.{name}]"]
+        for k, v in sec.items():
+            if k == "offset":
+                v = round(float(v), 4)
+            lines.append(f"{k} = {value(v)}")
+        if columns and name in columns:
+            lines.append(f"columns = {value(list(columns[name]))}")
+    if copolymer is not None:
+        lines += ["", "[detectors.copolymer]"] + [f"{k} = {value(v)}" for k, v in copolymer.items()]
+    return "\n".join(lines) + "\n"
