@@ -429,6 +429,8 @@ def detectors_cmd(
     slope: Optional[float] = typer.Option(None, "--slope", help="-d log10 M/dV at the standard's peak [1/mL] "
                                           "(default: from the method's calibration)."),
     normalise: bool = typer.Option(False, "--normalise", help="Also derive the LS angle normalisation (small standards only)."),
+    peak_shape: str = typer.Option("gaussian", "--peak-shape", help="Peak model: gaussian (default; the lead "
+                                   "is derived for Gaussian peaks), emg (a line with a mixing-cell tail) or auto."),
 ) -> None:
     """Detector offsets, broadening and constants from a narrow standard, as method-file lines.
 
@@ -453,7 +455,9 @@ def detectors_cmd(
     std = NarrowStandard(name=export.stem, Mw=mw, dispersity=dispersity,
                          injected_mass=None if mass_mg is None else mass_mg * 1e-3,
                          intrinsic_viscosity=intrinsic, a=a, rg=rg)
-    cal = calibrate_with_standard(chrom, V, res, m, std, B=slope, normalise=normalise)
+    if peak_shape not in ("gaussian", "emg", "auto"):
+        raise MethodError(f"--peak-shape must be gaussian, emg or auto, got {peak_shape!r}")
+    cal = calibrate_with_standard(chrom, V, res, m, std, B=slope, normalise=normalise, shape=peak_shape)
     rows = []
     for d in cal.detectors:
         rows.append({"detector": d.name, "kind": d.kind, "peak difference [mL]": d.observed_difference,

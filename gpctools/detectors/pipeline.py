@@ -659,7 +659,7 @@ def for_injection(chromatogram: Any, volume: Any, result: Any, method: Any) -> D
 
 
 def calibrate_with_standard(chromatogram: Any, volume: Any, result: Any, method: Any, standard: Any, *,
-                            B: float | None = None, normalise: bool = False) -> Any:
+                            B: float | None = None, normalise: bool = False, shape: str = "auto") -> Any:
     """Offsets, broadening and constants from one narrow-standard injection.
 
     The channels are baseline-corrected like a sample's (:func:`for_injection`), then
@@ -674,6 +674,8 @@ def calibrate_with_standard(chromatogram: Any, volume: Any, result: Any, method:
         (of the standards' own polymer) at the concentration detector's peak, is used.
     B : float, optional
         −d log10 M/dV at the standard's peak [1/mL].
+    normalise, shape
+        As in :func:`gpctools.detectors.calibrate_setup`.
 
     Returns
     -------
@@ -703,7 +705,7 @@ def calibrate_with_standard(chromatogram: Any, volume: Any, result: Any, method:
         standard = dataclasses.replace(standard, B=B)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", GpcWarning)
-        return calibrate_setup(traces, det_method.setup, standard, normalise=normalise)
+        return calibrate_setup(traces, det_method.setup, standard, normalise=normalise, shape=shape)
 
 
 def _zero_offsets(setup: DetectorSetup) -> DetectorSetup:
