@@ -285,3 +285,50 @@ def test_a_wrong_column_count_names_the_key(line, cli_runner, tmp_path):
     res = cli_runner.invoke(app, ["batch", str(d / "batch.csv"), "-m", str(bad), "-o", str(tmp_path / "o")])
     assert res.exit_code == 2
     assert "detectors.visc.columns" in res.output
+
+
+def test_the_template_example_loads_when_uncommented(templates_dir, tmp_path):
+    # the commented [detectors] example of the method template is valid as written
+    text = (templates_dir / "method.toml").read_text(encoding="utf-8")
+    block = text[text.index("# [detectors]"):]
+    lines = [ln[2:] if ln.startswith("# ") else ("" if ln == "#" else ln)
+             for ln in block.splitlines() if not ln.startswith("# # ")]
+    m = _method(tmp_path, "\n".join(lines))
+    assert m.detectors is not None and m.detectors.columns["visc"] == ("DP", "IP")
+    assert m.detectors.setup["ls"].offset == 0.12
+
+
+# ----------------------------------------------------------------------------- downstream
+def test_run_series_takes_light_scattering_averages_as_their_own_scale(tmp_path):
+    # a run series filled from the 'Mn LS'/'Mw LS' columns of a batch with light scattering
+    from gpctools.transfer import read_run_series
+
+    sheet = _write(tmp_path / "runs.csv", "run,monomer,[M] [mol/L],[A] [mol/L],Mn LS [g/mol],Mw LS [g/mol]\n"
+                   "R1,methyl methacrylate,9.0,0.0,200000,400000\nR2,methyl methacrylate,9.0,0.001,100000,200000\n"
+                   "R3,methyl methacrylate,9.0,0.002,66000,133000\n")
+    runs = read_run_series(sheet).runs
+    assert [r.Mn for r in runs] == [200000.0, 100000.0, 66000.0]
+    assert {r.scale for r in runs} == {C.LS_SCALE_LABEL}
+
+
+def test_diagnosis_reads_the_absolute_light_scattering_averages(tmp_path):
+    # the diagnosis takes Mn/Mw from a results table; with the LS columns present they are the scale
+    from gpctools.kinetics.checks import CheckInputs, molar_mass_scale
+    from gpctools.kinetics.inputs import measured_from_results
+
+    table = _write(tmp_path / "results.csv", "sample_id,Mn [g/mol],Mw [g/mol],molar-mass scale,"
+                   f"{C.MN_LS},{C.MW_LS}\nL1,50000,100000,polystyrene-equivalent (relative),55000,104000\n")
+    meas, _ = measured_from_results(table)
+    assert (meas.Mn, meas.Mw, meas.scale) == (55000.0, 104000.0, C.LS_SCALE_LABEL)
+    line = molar_mass_scale(CheckInputs({}, meas.scale, 1.0, "poly(methyl methacrylate)")).line
+    assert line.status == "ok" and "light scattering" in line.text
+
+
+def test_spec_limits_can_name_the_detector_columns(tmp_path):
+    # QC spec sheets name results columns as columns.py spells them (long form)
+    from gpctools.qc import read_specs
+
+    specs = read_specs(_write(tmp_path / "specs.csv", "product,quantity,min,max,target,unit,description\n"
+                              f"LM-40,{C.MW_LS},90000,120000,105000,,binder\nLM-40,{C.INTRINSIC_VISCOSITY},0.3,0.45,,,\n"))
+    cols = {lim.column for lim in specs.get("LM-40").limits}
+    assert cols == {C.MW_LS, C.INTRINSIC_VISCOSITY}
