@@ -332,3 +332,32 @@ def test_spec_limits_can_name_the_detector_columns(tmp_path):
                               f"LM-40,{C.MW_LS},90000,120000,105000,,binder\nLM-40,{C.INTRINSIC_VISCOSITY},0.3,0.45,,,\n"))
     cols = {lim.column for lim in specs.get("LM-40").limits}
     assert cols == {C.MW_LS, C.INTRINSIC_VISCOSITY}
+
+
+def test_composition_and_mass_from_uv_and_ri_channels():
+    # Two components with Gaussian profiles of known mass; RI and UV are the linear sums of
+    # docs/detectors.md, "Copolymer composition by UV and RI" (K1-K2 of the method brief);
+    # the overall mass fraction from the areas is exact: m_A/(m_A + m_B) (derived).
+    from gpctools.detectors import DetectorSetup
+    from gpctools.detectors.pipeline import DetectorMethod, analyse_injection
+
+    setup = DetectorSetup.from_mapping({
+        "ri": {"kind": "RI", "constant": 5.0e4, "dn_dc": 0.15},
+        "uv": {"kind": "UV", "response": 1.0},
+        "copolymer": {"names": ["styrene", "methyl acrylate"], "dn_dc": [0.185, 0.084],
+                      "uv_response": [2.0e3, 50.0]}})
+    V = np.linspace(10.0, 24.0, 1401)
+
+    def gauss(m, v0, s):
+        return m * np.exp(-0.5 * ((V - v0) / s) ** 2) / (s * math.sqrt(2 * math.pi))
+
+    m_A, m_B = 0.3e-4, 0.7e-4  # [g]
+    cA, cB = gauss(m_A, 16.8, 0.9), gauss(m_B, 17.2, 0.8)
+    channels = {"RI [mV]": 5.0e4 * (0.185 * cA + 0.084 * cB), "UV 254 [mAU]": 2.0e3 * cA + 50.0 * cB}
+    res = analyse_injection(V, channels, DetectorMethod(setup=setup), signal_column="RI [mV]",
+                            limits=(11.0, 23.0), baseline_windows=((10.0, 10.8), (23.2, 24.0)))
+    assert res.values[C.COMPOSITION_A] == pytest.approx(100.0 * m_A / (m_A + m_B), rel=1e-3)
+    assert "w styrene [-]" in res.slices
+    # mass eluted from the RI with its own dn/dc (0.15 here, so not the true mass: C3 of the brief)
+    area = 5.0e4 * (0.185 * m_A + 0.084 * m_B)
+    assert res.values[C.MASS_ELUTED] == pytest.approx(1e3 * area / (5.0e4 * 0.15), rel=1e-3)
