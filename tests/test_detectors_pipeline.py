@@ -361,3 +361,10 @@ def test_composition_and_mass_from_uv_and_ri_channels():
     # mass eluted from the RI with its own dn/dc (0.15 here, so not the true mass: C3 of the brief)
     area = 5.0e4 * (0.185 * m_A + 0.084 * m_B)
     assert res.values[C.MASS_ELUTED] == pytest.approx(1e3 * area / (5.0e4 * 0.15), rel=1e-3)
+
+
+def test_detectors_command_without_a_detectors_section_is_a_plain_error(line, cli_runner, tmp_path):
+    d, _, _ = line
+    plain = _write(tmp_path / "plain.toml", METHOD_HEAD)
+    res = cli_runner.invoke(app, ["detectors", str(d / "std.csv"), "-m", str(plain), "--mw", "96000"])
+    assert res.exit_code == 2 and "[detectors]" in res.output and "Traceback" not in res.output
