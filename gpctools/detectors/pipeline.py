@@ -665,7 +665,10 @@ def calibrate_with_standard(chromatogram: Any, volume: Any, result: Any, method:
     The channels are baseline-corrected like a sample's (:func:`for_injection`), then
     :func:`gpctools.detectors.calibrate_setup` fits each detector's peak and adds the
     polydispersity lead ℓ = exponent·ln Đ/(ln10·B) to the observed peak difference
-    (docs/detectors.md, "Calibrating the set-up from one narrow standard").
+    (docs/detectors.md, "Calibrating the set-up from one narrow standard"). Only the
+    slices from 0.5 mL before the standard's integration limits to 0.5 mL past them (plus
+    the largest offset the method already has) enter, so that the areas behind the
+    constants do not collect baseline error over the whole record.
 
     Parameters (duck-typed like :func:`for_injection`)
     ----------
@@ -695,12 +698,18 @@ def calibrate_with_standard(chromatogram: Any, volume: Any, result: Any, method:
     channels.setdefault(chromatogram.signal_column, chromatogram.signal)
     assigned = assign_columns(det_method, list(channels), chromatogram.signal_column)
     plain = dataclasses.replace(det_method, setup=_zero_offsets(det_method.setup))
-    traces = _traces(V, {k: np.asarray(v, dtype=float) for k, v in channels.items()}, plain, assigned,
-                     result.corrected.baseline.windows, result.sample_id or "standard")
+    full = _traces(V, {k: np.asarray(v, dtype=float) for k, v in channels.items()}, plain, assigned,
+                   result.corrected.baseline.windows, result.sample_id or "standard")
+    # areas over the standard's peak only: integrating the whole record would add the baseline's
+    # own error times the record length (1-2 % of the constants at ordinary noise)
+    lo, hi = result.corrected.limits
+    late = max([d.offset for d in det_method.setup.detectors] + [0.0]) + 0.5
+    sel = (V >= lo - 0.5) & (V <= hi + late)
+    traces = DetectorTraces(volume=V[sel], signals={k: v[sel] for k, v in full.signals.items()}, name=full.name)
     if standard.B is None:
         if B is None:
             c = traces[det_method.setup.concentration]
-            v_peak = float(V[int(np.argmax(c))])
+            v_peak = float(traces.volume[int(np.argmax(c))])
             B = -float(cal.dlogM_dV([v_peak])[0]) / cal.log_factor
         standard = dataclasses.replace(standard, B=B)
     with warnings.catch_warnings():
