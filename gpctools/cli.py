@@ -296,6 +296,13 @@ def batch_cmd(
             typer.echo(f"method {label}: molar-mass scale {used.calibration.scale_label()}")
     else:
         typer.echo(f"\nmolar-mass scale: {result.method.calibration.scale_label()}")
+    if any(used.detectors is not None for used in result.methods.values()):
+        from . import columns as C
+
+        typer.echo("")
+        shown = [c for c in (C.SAMPLE_ID, C.STATUS, C.MN_LS, C.MW_LS, C.MW_LS_AREAS, C.DISPERSITY_LS, C.RG_Z,
+                             C.INTRINSIC_VISCOSITY, C.MH_A, C.DETECTOR_SCALE) if c in result.table.columns]
+        _print_table(rows, shown)
     typer.echo(f"wrote {out}/results.csv, results.xlsx, calibration.csv, manifest.json, distributions/")
     if result.failed:
         for r in rows:
