@@ -891,7 +891,10 @@ def _demo_detectors(folder: Path, out: Path, echo: Callable[[str], None]) -> dic
         f"{d.name} {d.offset:.4f} (true {DETECTOR_LINE['offsets'][d.name]:.3f})"
         for d in cal.detectors if d.name in DETECTOR_LINE["offsets"]))
     echo(f"multi-detector results written to {out} (results.csv with the detector columns, distributions/)")
-    return {"worst deviation [%]": float(worst), "ok": bool(worst < 2.0),
+    off_err = max(abs(d.offset - DETECTOR_LINE["offsets"][d.name]) for d in cal.detectors
+                  if d.name in DETECTOR_LINE["offsets"])
+    return {"worst deviation [%]": float(worst), "worst offset error [mL]": float(off_err),
+            "ok": bool(worst < 2.0 and off_err < 0.01),
             "offsets [mL]": {d.name: float(d.offset) for d in cal.detectors}}
 
 

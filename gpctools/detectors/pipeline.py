@@ -659,7 +659,7 @@ def for_injection(chromatogram: Any, volume: Any, result: Any, method: Any) -> D
 
 
 def calibrate_with_standard(chromatogram: Any, volume: Any, result: Any, method: Any, standard: Any, *,
-                            B: float | None = None, normalise: bool = False, shape: str = "auto") -> Any:
+                            B: float | None = None, normalise: bool = False, shape: str = "gaussian") -> Any:
     """Offsets, broadening and constants from one narrow-standard injection.
 
     The channels are baseline-corrected like a sample's (:func:`for_injection`), then
@@ -678,7 +678,9 @@ def calibrate_with_standard(chromatogram: Any, volume: Any, result: Any, method:
     B : float, optional
         −d log10 M/dV at the standard's peak [1/mL].
     normalise, shape
-        As in :func:`gpctools.detectors.calibrate_setup`.
+        As in :func:`gpctools.detectors.calibrate_setup`; the peaks are Gaussian by default
+        (the lead is derived for Gaussian peaks; docs/detectors.md, "In the method file, the
+        batch and the command line").
 
     Returns
     -------
