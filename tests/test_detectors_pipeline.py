@@ -368,3 +368,16 @@ def test_detectors_command_without_a_detectors_section_is_a_plain_error(line, cl
     plain = _write(tmp_path / "plain.toml", METHOD_HEAD)
     res = cli_runner.invoke(app, ["detectors", str(d / "std.csv"), "-m", str(plain), "--mw", "96000"])
     assert res.exit_code == 2 and "[detectors]" in res.output and "Traceback" not in res.output
+
+
+def test_columns_found_by_kind_are_put_in_channel_order(tmp_path):
+    # an export that lists the angles out of order and the inlet pressure before the
+    # differential one: headers say which is which (common practice for exports)
+    from gpctools.detectors.pipeline import assign_columns
+
+    m = _method(tmp_path, DETECTORS_UNCALIBRATED)
+    heads = ["RI [mV]", "IP [kPa]", "DP [kPa]"] + [f"LS {a:g}° [mV]" for a in (90, 35, 145, 50, 130, 75, 105)]
+    got = assign_columns(m.detectors, heads, "RI [mV]")
+    assert got["ls"] == [f"LS {a:g}° [mV]" for a in ANGLES]
+    assert got["visc"] == ["DP [kPa]", "IP [kPa]"]
+    assert got["ri"] == ["RI [mV]"]

@@ -28,6 +28,7 @@ batch (they pass plain values), so it sits in the detectors layer.
 from __future__ import annotations
 
 import math
+import re
 from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass, field
 from typing import Any
@@ -272,8 +273,10 @@ def assign_columns(method: DetectorMethod, headers: Sequence[str], signal_column
     unit; a number is a 0-based column among ``headers``, which start after x). A
     detector without ``columns`` takes the columns whose headers say its kind
     (``gpctools.io.describe.column_kind``: ``LS 90°``, ``MALS``, ``DP``, ``IP``,
-    ``visc``, ``UV 254``...) in file order; the concentration detector takes the
-    reader's signal column when it is of its kind.
+    ``visc``, ``UV 254``...) in channel order (:func:`_channel_order`: light-scattering
+    headers by the angle they name, the viscometer's inlet/reference pressure second;
+    otherwise file order); the concentration detector takes the reader's signal column
+    when it is of its kind.
 
     Raises
     ------
@@ -316,8 +319,35 @@ def assign_columns(method: DetectorMethod, headers: Sequence[str], signal_column
                 f"{len(found)} column(s) look like {det.kind} ({', '.join(repr(h) for h in found) or 'none'}), "
                 f"it reads {need}; list them in detectors.{det.name}.columns",
                 key=f"detectors.{det.name}.columns")
-        out[det.name] = found
+        out[det.name] = _channel_order(det, found)
     return out
+
+
+_NUMBER = re.compile(r"(?<![\d.])(\d{1,3}(?:\.\d+)?)(?![\d.])")
+_REFERENCE_WORDS = re.compile(r"\b(ip|inlet|reference|ref|solvent)\b", re.IGNORECASE)
+
+
+def _channel_order(det: Any, headers: list[str]) -> list[str]:
+    """Headers found by kind, put in channel order.
+
+    Light scattering: when every header names exactly one of the detector's angles
+    (``LS 90°``, ``MALS 35 deg``), in the order of ``angles``; else file order.
+    Viscometer with two channels: the header that says inlet/reference pressure (``IP``,
+    ``inlet``, ``reference``, ``solvent``) goes second; else file order.
+    """
+    if isinstance(det, LightScatteringDetector) and len(headers) > 1:
+        def angle(h: str) -> float | None:
+            hits = [float(x) for x in _NUMBER.findall(h) if any(abs(float(x) - a) < 1e-6 for a in det.angles)]
+            return hits[0] if len(hits) == 1 else None
+        found = [angle(h) for h in headers]
+        if all(a is not None for a in found) and len(set(found)) == len(found):
+            rank = {a: i for i, a in enumerate(det.angles)}
+            return [h for _, h in sorted(zip(found, headers), key=lambda t: rank[t[0]])]
+    if isinstance(det, Viscometer) and len(headers) == 2:
+        ref = [bool(_REFERENCE_WORDS.search(h)) for h in headers]
+        if ref == [True, False]:
+            return [headers[1], headers[0]]
+    return headers
 
 
 @dataclass(frozen=True)
