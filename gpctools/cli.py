@@ -491,7 +491,7 @@ def inspect_cmd(
     sheet: Optional[str] = typer.Option(None, "--sheet", help="Workbook sheet (name or 0-based index)."),
 ) -> None:
     """Show how a slice export is read: dialect, every column and its kind, what is used."""
-    from .errors import InputFormatError
+    from .errors import GpcError, InputFormatError
     from .io.describe import describe_export
 
     m = None
@@ -505,6 +505,18 @@ def inspect_cmd(
         options["sheet"] = int(sheet) if sheet.isdigit() else sheet
     d = describe_export(file, **options)
     _print_description(d, m)
+    if m is not None and m.detectors is not None and d.problem is None and d.signal_column is not None:
+        from .detectors.pipeline import assign_columns
+
+        numeric = [c.header for c in d.columns if c.numeric and c.use != "x"]
+        try:
+            found = assign_columns(m.detectors, numeric, d.signal_column)
+        except GpcError as exc:
+            _err(f"detectors: {exc.message}")
+        else:
+            typer.echo("detectors ([detectors] of the method):")
+            for name, heads in found.items():
+                typer.echo(f"  {name} ({m.detectors.setup[name].kind}): " + ", ".join(repr(h) for h in heads))
     for w in d.warnings:
         _err(f"warning: {w}")
     if d.problem is not None:

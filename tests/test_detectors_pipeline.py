@@ -381,3 +381,11 @@ def test_columns_found_by_kind_are_put_in_channel_order(tmp_path):
     assert got["ls"] == [f"LS {a:g}° [mV]" for a in ANGLES]
     assert got["visc"] == ["DP [kPa]", "IP [kPa]"]
     assert got["ri"] == ["RI [mV]"]
+
+
+def test_inspect_shows_which_columns_each_detector_reads(sample_runs_dir, cli_runner):
+    d = sample_runs_dir / "detectors"
+    res = cli_runner.invoke(app, ["inspect", str(d / "LM-40-0312.csv"), "-m", str(d / "method.toml")])
+    assert res.exit_code == 0, res.output
+    assert "visc (viscometer): 'DP [kPa]', 'IP [kPa]'" in res.output
+    assert "ls (light scattering): 'LS 35 [mV]'" in res.output
