@@ -742,7 +742,7 @@ def run_demo_series(
 #: Larchmere's second line (invented): RI, a 7-angle light-scattering photometer and a bridge
 #: viscometer in series. The lab makes a methacrylate binder, LM-40, for which no same-polymer
 #: standards exist. Mark-Houwink pairs in THF [dL/g, -]: polystyrene and the binder's polymer.
-DETECTOR_LINE = {
+DETECTOR_LINE: dict[str, Any] = {
     "K_PS": 1.14e-4, "a_PS": 0.716, "K_LM": 9.44e-5, "a_LM": 0.719,
     "offsets": {"ls": 0.120, "visc": 0.250},  # [mL] the plumbing of the line
     "sigmas": {"ri": 0.10, "ls": 0.12, "visc": 0.15},  # [mL] Gaussian spreading per detector

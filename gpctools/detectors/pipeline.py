@@ -37,8 +37,8 @@ import numpy as np
 
 from gpctools import columns as C
 from gpctools.errors import DataError, MethodError
+from gpctools.sheets.cells import finite_or_none
 
-from ._common import finite_or_none
 from ._slices import widths
 from .broadening import correct_averages
 from .composition import Composition, analyse_composition
@@ -340,9 +340,10 @@ def _channel_order(det: Any, headers: list[str]) -> list[str]:
             hits = [float(x) for x in _NUMBER.findall(h) if any(abs(float(x) - a) < 1e-6 for a in det.angles)]
             return hits[0] if len(hits) == 1 else None
         found = [angle(h) for h in headers]
-        if all(a is not None for a in found) and len(set(found)) == len(found):
+        known = [a for a in found if a is not None]
+        if len(known) == len(found) and len(set(known)) == len(known):
             rank = {a: i for i, a in enumerate(det.angles)}
-            return [h for _, h in sorted(zip(found, headers), key=lambda t: rank[t[0]])]
+            return [h for _, h in sorted(zip(known, headers), key=lambda t: rank[t[0]])]
     if isinstance(det, Viscometer) and len(headers) == 2:
         ref = [bool(_REFERENCE_WORDS.search(h)) for h in headers]
         if ref == [True, False]:

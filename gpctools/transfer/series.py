@@ -363,8 +363,8 @@ def _scale(row: SheetRow, header: str | None, averages_header: str | None = None
     taken from the ``Mn LS [g/mol]`` / ``Mw LS [g/mol]`` columns of a batch with
     ``[detectors]`` when the cell is blank.
     """
-    scale = row.get("scale", "").lower()
-    from_ls = bool(averages_header) and " ls" in f" {averages_header.lower()}"
+    scale = str(row.get("scale") or "").lower()
+    from_ls = " ls" in f" {(averages_header or '').lower()}"
     if scale.startswith("abs"):
         return C.LS_SCALE_LABEL if "light scattering" in scale else "absolute"
     if not scale and from_ls and (math.isfinite(_num(row.get("Mn"))) or math.isfinite(_num(row.get("Mw")))):
