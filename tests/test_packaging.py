@@ -197,6 +197,7 @@ def test_wheel_in_a_fresh_venv_runs_the_whole_demo_from_an_empty_folder(tmp_path
         assert f"gpctools/templates/{t}" in names, t
     assert any(n.startswith("gpctools/report/templates/") for n in names)
     assert any(n.startswith("gpctools/data/") and n.endswith(".csv") for n in names)
+    assert "gpctools/py.typed" in names  # PEP 561 marker: the package ships its types
     assert not any("sample_runs" in n for n in names)  # the demo writes them (DEVELOPERS.md, Packaging)
 
     venv = tmp_path / "venv"

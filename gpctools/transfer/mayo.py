@@ -195,6 +195,9 @@ def check_design(
     (listed in ``warnings``) when a term's variance-inflation factor exceeds 10, or when a
     single-term line rests on only two distinct ratios.
 
+    The checks run in order on one normalised design matrix and each message names the
+    terms at fault, which is why they stay in one body (about 100 lines).
+
     Parameters
     ----------
     columns : mapping of str to array-like
