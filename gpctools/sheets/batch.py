@@ -1,24 +1,5 @@
 """The batch sheet: one row per injection (read by :func:`gpctools.batch.read_batch_sheet`).
 
-column                 meaning
-=====================  ==========================================================
-``sample_id``          required (also ``sample id``, ``sample``, ``id``); repeated
-                       ids are replicate injections
-``file``               required (also ``path``, ``file path``, ``filename``,
-                       ``data file``); slice export, relative to the sheet
-``role``               optional (also ``type``): ``sample`` (default),
-                       ``replicate`` (a repeat injection of a sample: same
-                       ``sample_id``), ``check_standard`` (also ``check
-                       standard``, ``check``), ``blank``,
-                       ``calibration_standard`` (also ``calibration``: narrow
-                       standards named in a ``standards`` column or a
-                       ``standards file``; used by ``gpctools qc``)
-``flow marker [mL]``   optional (also ``flow_marker``, ``marker``): observed
-                       marker position of that injection
-anything else          free metadata (``product``, ``batch``, ``sequence``,
-                       ``assigned Mw [g/mol]``, ...), copied to the results
-=====================  ==========================================================
-=======
 =========================  ======================================================
 column                     meaning
 =========================  ======================================================

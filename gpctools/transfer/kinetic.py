@@ -165,14 +165,19 @@ def kinetic_term(runs: Sequence[Any], mode: str, *, delta: float, T_C: float,
                        "a design that can separate it")
 
 
+def _tables(reference: Any) -> Any:
+    """The given reference tables, or the bundled ones (loaded on first need)."""
+    if reference is not None:
+        return reference
+    from gpctools import refdata
+
+    return refdata.default_reference()
+
+
 def _reference(runs: Sequence[Any], delta: float, T_C: float, reference: Any, label: str,
                span: float) -> KineticTerm:
     """K per run from bundled k_p, k_t (IUPAC) and the initiator's f·k_d."""
-    ref = reference
-    if ref is None:
-        from gpctools import refdata
-
-        ref = refdata.default_reference()
+    ref = _tables(reference)
     mono = next((r.monomer for r in runs if r.monomer), "")
     if not mono or not math.isfinite(T_C):
         raise DesignError(f"{label}: a kinetic term from reference data needs the monomer name "
@@ -228,11 +233,7 @@ def termination_mode(runs: Sequence[Any], delta: float | None, C_M: float | None
                        "combination (give delta)")
         if mono:
             try:
-                if ref is None:
-                    from gpctools import refdata
-
-                    ref = refdata.default_reference()
-                row = ref.termination(mono)
+                row = _tables(ref).termination(mono)
                 if row.delta is not None:
                     d, src = float(row.delta), f"bundled for {row.monomer}: {row.source}"
                 else:
@@ -246,11 +247,7 @@ def termination_mode(runs: Sequence[Any], delta: float | None, C_M: float | None
         cm, cm_src = float(C_M), "given (option C_M)"
     elif mono and d < 1.0:
         try:
-            if ref is None:
-                from gpctools import refdata
-
-                ref = refdata.default_reference()
-            m = ref.monomer(mono)
+            m = _tables(ref).monomer(mono)
             if m.C_M is not None:
                 cm, cm_src = float(m.C_M), f"bundled for {m.name}: {m.C_M_source}"
         except GpcError:
