@@ -9,8 +9,10 @@ column                     meaning
 ``sample_id``              required; repeated ids are replicate injections (a
                            warning names them)
 ``file``                   required; slice export, path relative to the sheet
-``role``                   optional: ``sample`` (default), ``check_standard``,
-                           ``blank``
+``role``                   optional: ``sample`` (default), ``replicate``,
+                           ``check_standard``, ``blank``, ``calibration_standard``;
+                           blanks and calibration standards get no averages
+                           (status ``not processed``: ``gpctools qc`` judges them)
 ``flow marker [mL]``       optional: observed marker position of that injection
 ``method file``            optional: the method of that injection (relative to the
                            sheet); blank = the method given to :func:`run_batch`
@@ -931,6 +933,22 @@ def _error_row(entry: BatchEntry, message: str, method: Method | None = None) ->
     return _ordered(row, entry)
 
 
+#: Status of the rows a batch leaves to ``gpctools qc`` (blanks, calibration standards).
+NOT_PROCESSED = "not processed"
+
+
+def _not_processed_row(entry: BatchEntry, method: Method | None) -> dict[str, Any]:
+    """The row of a blank or a calibration standard: no averages (a blank has no polymer
+    peak, a standards mixture is not one polymer); ``gpctools qc`` judges blanks against
+    the product peaks and builds the sequence's calibration from the standards."""
+    row = _error_row(entry, "", method)
+    row[C.STATUS] = NOT_PROCESSED
+    row[C.WARNINGS] = (f"{entry.role}: no averages; gpctools qc "
+                       + ("judges blanks against the product peaks" if entry.role == _sheet.ROLE_BLANK
+                          else "builds the sequence's calibration from these injections"))
+    return row
+
+
 def _ordered(row: dict[str, Any], entry: BatchEntry) -> dict[str, Any]:
     """The sheet's own columns, then :data:`RESULT_COLUMNS` in order (the mass-fraction
     columns of the row's method right after ``outside calibration``), then any others."""
@@ -978,6 +996,8 @@ def _run_entry(
     """
     if entry.problem:
         return _error_row(entry, entry.problem, method), None
+    if entry.role in (_sheet.ROLE_BLANK, _sheet.ROLE_CALIBRATION):
+        return _not_processed_row(entry, method), None
     if method is None:
         return _error_row(entry, "no method for this injection: fill its 'method file' cell or give "
                                  "a method for the whole batch"), None

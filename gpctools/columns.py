@@ -264,7 +264,8 @@ ASSIGNED_MN = _column("assigned Mn [g/mol]", "g/mol", "assigned Mn of a check st
 ASSIGNED_MW = _column("assigned Mw [g/mol]", "g/mol", "assigned Mw of a check standard")
 
 # -- batch results ----------------------------------------------------------------------
-STATUS = _column("status", "", "ok, or error when the injection could not be processed")
+STATUS = _column("status", "", "ok; error when the injection could not be processed; not processed "
+                 "for blanks and calibration standards, which gpctools qc judges")
 MN = _column("Mn [g/mol]", "g/mol", "number-average molar mass")
 MW = _column("Mw [g/mol]", "g/mol", "mass-average molar mass")
 MZ = _column("Mz [g/mol]", "g/mol", "z-average molar mass")

@@ -58,6 +58,28 @@ def test_bundled_sample_runs_are_what_the_generator_writes(tmp_path):
         assert (tmp_path / name).read_text() == (ROOT / "sample_runs" / name).read_text(), name
 
 
+def test_blanks_and_calibration_standards_are_left_to_qc_not_failed(demo_dir, tmp_path):
+    # common practice: a blank has no polymer peak and a standards cocktail is not one
+    # polymer, so neither gets averages; a batch that meets them does not fail on them
+    d = tmp_path / "b"
+    shutil.copytree(demo_dir, d)
+    rng = np.random.default_rng(3)
+    V = np.linspace(8.0, 26.0, 1800)
+    flat = "\n".join(f"{v:.4f},{h:.4f}" for v, h in zip(V, 0.02 * rng.standard_normal(V.size), strict=True))
+    (d / "exports" / "blank.csv").write_text("Volume (mL),RI (mV)\n" + flat + "\n", encoding="utf-8")
+    sheet = d / "batch.csv"
+    text = sheet.read_text()
+    text += "BLANK-1,exports/blank.csv,blank,,,,,\nCAL-1,exports/LC110-A1.csv,calibration_standard,,,,,\n"
+    sheet.write_text(text)
+    res = run_batch(sheet, load_method(d / "method.toml"))
+    t = res.table.set_index("sample_id")
+    assert res.failed == 0
+    for sid, word in (("BLANK-1", "blank"), ("CAL-1", "calibration")):
+        assert t.loc[sid, "status"] == "not processed"
+        assert np.isnan(t.loc[sid, "Mn [g/mol]"]) and word in t.loc[sid, "warnings"]
+    assert (t.drop(index=["BLANK-1", "CAL-1"])["status"] == "ok").all()
+
+
 def test_one_bad_injection_does_not_sink_the_batch(demo_dir, tmp_path):
     d = tmp_path / "b"
     shutil.copytree(demo_dir, d)
