@@ -249,16 +249,25 @@ def _print_table(rows: list[dict], columns: list[str]) -> None:
 
 
 def _run_batch_with_progress(sheet: Path, method: Method | None, out: Path, workers: int | None,
-                             sheet_name: str | None = None) -> BatchResult:
+                             sheet_name: str | None = None, *, review: bool = True,
+                             review_limit: int | None = 100) -> BatchResult:
     from .batch import run_batch
     from .report import DistributionWriter, write_batch
+    from .report.batch import Sinks
 
+    sink: Any = DistributionWriter(out / "distributions")
+    if review:
+        from .report.review import PARTS, ReviewSink, review_rows
+
+        rows = review_rows(sheet, review_limit, sheet_name=sheet_name)
+        sink = Sinks((sink, ReviewSink(out / PARTS, rows)))
     with _stage("injections") as advance:
-        result = run_batch(
-            sheet, method, sheet=sheet_name, workers=workers, progress=advance,
-            on_result=DistributionWriter(out / "distributions"),
-        )
+        result = run_batch(sheet, method, sheet=sheet_name, workers=workers, progress=advance, on_result=sink)
     write_batch(result, out, distributions=False)  # distributions were written while running
+    if review:
+        from .report.review import write_review
+
+        write_review(result, out, limit=review_limit)
     return result
 
 
@@ -276,6 +285,10 @@ def batch_cmd(
     out: Path = typer.Option(Path("gpctools-out"), "--out", "-o", help="Output folder."),
     workers: int = typer.Option(0, "--workers", "-j", min=0, help="Processes to use (0 = choose from batch size and cores)."),
     sheet_name: Optional[str] = typer.Option(None, "--sheet", help="Workbook sheet of the batch sheet."),
+    review: bool = typer.Option(True, "--review/--no-review", help="Write review.html: each injection's "
+                                "trace, baseline, limits and distribution, overlays and the calibration."),
+    review_all: bool = typer.Option(False, "--review-all", help="Draw every injection on review.html "
+                                    "(default: the first 100, the rest listed)."),
 ) -> None:
     """Process every injection of a batch sheet and write the results table.
 
@@ -287,7 +300,10 @@ def batch_cmd(
 
     _check_out(out)
     m = load_method(method) if method is not None else None
-    result = _run_batch_with_progress(sheet, m, out, workers or None, sheet_name)
+    from .report.review import DEFAULT_LIMIT
+
+    result = _run_batch_with_progress(sheet, m, out, workers or None, sheet_name, review=review,
+                                      review_limit=None if review_all else DEFAULT_LIMIT)
     rows = result.table.to_dict("records")
     _print_table(rows, SUMMARY_COLUMNS)
     if len(result.methods) > 1:
@@ -296,7 +312,8 @@ def batch_cmd(
             typer.echo(f"method {label}: molar-mass scale {used.calibration.scale_label()}")
     else:
         typer.echo(f"\nmolar-mass scale: {result.method.calibration.scale_label()}")
-    typer.echo(f"wrote {out}/results.csv, results.xlsx, calibration.csv, manifest.json, distributions/")
+    typer.echo(f"wrote {out}/results.csv, results.xlsx, calibration.csv, manifest.json, distributions/"
+               + (", review.html" if review else ""))
     if result.failed:
         for r in rows:
             if r["status"] == "error":

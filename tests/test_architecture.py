@@ -47,7 +47,7 @@ import pytest
 #: ``calibration``, because loading a method file fits its calibration.
 LAYERS: tuple[tuple[str, ...], ...] = (
     ("gpctools", "gpctools.errors", "gpctools.templates"),  # metadata; starter files (package data)
-    ("gpctools.columns",),
+    ("gpctools.columns", "gpctools.formatting", "gpctools.display"),  # vocabulary, number policy, repr mixin
     ("gpctools.io", "gpctools.sheets"),
     ("gpctools.signal", "gpctools.calibration"),
     ("gpctools.method", "gpctools.distribution", "gpctools.uncertainty"),

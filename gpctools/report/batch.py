@@ -36,7 +36,7 @@ if TYPE_CHECKING:  # pragma: no cover
     from gpctools.batch import BatchEntry, BatchResult, InjectionResult
     from gpctools.distribution import Distribution
 
-__all__ = ["write_batch", "write_distribution", "distribution_name", "DistributionWriter"]
+__all__ = ["write_batch", "write_distribution", "distribution_name", "DistributionWriter", "Sinks"]
 
 #: Sub-folder of the batch outputs that holds the distribution tables.
 DISTRIBUTIONS = "distributions"
@@ -108,6 +108,24 @@ class DistributionWriter:
     def __call__(self, entry: BatchEntry, result: InjectionResult) -> None:
         """Write ``result``'s distribution to ``folder/<sample_id>_row<n>.csv``."""
         write_distribution(Path(self.folder) / distribution_name(entry), result.distribution)
+
+
+@dataclass(frozen=True)
+class Sinks:
+    """Several ``on_result`` sinks as one (called in order; picklable when they are).
+
+    Examples
+    --------
+    >>> from gpctools.report.review import ReviewSink                  # doctest: +SKIP
+    >>> run_batch(sheet, method, on_result=Sinks((DistributionWriter("out/distributions"),
+    ...                                            ReviewSink("out/.review-parts"))))  # doctest: +SKIP
+    """
+
+    sinks: tuple
+
+    def __call__(self, entry: BatchEntry, result: InjectionResult) -> None:
+        for sink in self.sinks:
+            sink(entry, result)
 
 
 def write_batch(
