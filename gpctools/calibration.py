@@ -236,6 +236,39 @@ class Calibration:
         return tuple(float(math.sqrt(c)) if c >= 0 else float("nan")
                      for c in np.diag(np.asarray(self.covariance)))
 
+    def coefficients_mL(self) -> tuple[tuple[float, ...], tuple[float, ...]]:
+        """The curve in the user's units: log10 M = Σ b_k V^k with V in mL, and the
+        standard errors of the b_k, lowest order first.
+
+        The fit is made in the scaled variable t = (V − center)/scale for conditioning;
+        expanding (V − c)^k by the binomial theorem gives b = A·c with
+        A[j, k] = C(k, j)·(−c)^(k−j)/s^k (derived), so the covariance of b is A·Σ·Aᵀ.
+        A universal-calibration transform (log M = offset + factor·log M_standard) is
+        applied, so the b_k give the molar masses of the results' scale. Valid inside
+        the calibrated range (outside it :meth:`log_M` continues along the tangent).
+
+        Returns
+        -------
+        (coefficients, standard errors) : tuple of float, tuple of float
+            b_k [log10(g/mol)/mL^k]; standard errors NaN without degrees of freedom.
+        """
+        from math import comb
+
+        n = len(self.coefficients)
+        c, s = self.center, self.scale
+        A = np.zeros((n, n))
+        for k in range(n):
+            for j in range(k + 1):
+                A[j, k] = comb(k, j) * (-c) ** (k - j) / s**k
+        b = self.log_factor * (A @ np.asarray(self.coefficients, dtype=float))
+        b[0] += self.log_offset
+        if self.covariance:
+            cov = (self.log_factor**2) * (A @ np.asarray(self.covariance, dtype=float) @ A.T)
+            se = np.sqrt(np.clip(np.diag(cov), 0.0, None))
+        else:
+            se = np.full(n, np.nan)
+        return tuple(float(v) for v in b), tuple(float(v) for v in se)
+
     def log_M_stderr(self, V: Any) -> np.ndarray:
         """Standard error of the fitted log10 M at V [-], from the coefficient covariance.
 
@@ -403,6 +436,8 @@ class Calibration:
             "worst residual [%]": worst,
             "AICc [-]": self.aicc,
             "coefficient standard errors (scaled V, lowest first) [-]": list(self.coefficient_stderr),
+            "coefficients log10 M vs V [mL], lowest first": list(self.coefficients_mL()[0]),
+            "coefficient standard errors log10 M vs V [mL], lowest first": list(self.coefficients_mL()[1]),
             "largest standard error of M inside the range [%]": float(
                 100.0 * math.log(10.0) * np.nanmax(self.log_M_stderr(np.linspace(self.v_min, self.v_max, 201)))
             ) if self.covariance else float("nan"),

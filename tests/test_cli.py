@@ -92,8 +92,8 @@ def test_user_errors_exit_2_with_message(demo_dir, tmp_path, case, expect):
     _ok_no_traceback(r)
 
 
-def test_calibrate_prints_residuals(demo_dir):
-    r = runner.invoke(app, ["calibrate", str(demo_dir / "method.toml")])
+def test_calibrate_prints_residuals(demo_dir, tmp_path):
+    r = runner.invoke(app, ["calibrate", str(demo_dir / "method.toml"), "-o", str(tmp_path)])
     assert r.exit_code == 0, r.output
     assert "residual [%]" in r.output and "PS 96k" in r.output
 
