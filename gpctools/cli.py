@@ -449,8 +449,8 @@ def calibrate_cmd(
     for w in s["warnings"]:
         _err(f"warning: {w}")
     if plot:
-        from .report.plots import calibration_figure, png_bytes
         from .report.files import write_bytes
+        from .report.plots import calibration_figure, png_bytes
 
         _check_out(out)
         path = write_bytes(out / "calibration.png", png_bytes(calibration_figure(cal)))

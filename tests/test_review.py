@@ -8,12 +8,11 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from test_report import need_chromium, run_chromium  # the helpers of the QC report's browser test
 
 from gpctools.cli import app
 from gpctools.report.review import PARTS, REVIEW_PAGE, ReviewSink, review_rows, write_review
 from gpctools.report.svg import OKABE_ITO, SvgPlot, downsample, nice_ticks, style_of
-
-from test_report import need_chromium, run_chromium  # the helpers of the QC report's browser test
 
 
 @pytest.fixture(scope="module")
