@@ -28,6 +28,8 @@ from typing import Any
 
 import numpy as np
 
+from gpctools.display import Display
+
 from .errors import CalibrationError, CalibrationWarning
 
 __all__ = [
@@ -55,8 +57,8 @@ K_PLAUSIBLE_DL_G = (1e-6, 5e-3)
 K_RATIO_LIMIT = 10.0
 
 
-@dataclass(frozen=True)
-class Calibration:
+@dataclass(frozen=True, repr=False)
+class Calibration(Display):
     """A fitted calibration curve log10 M(V).
 
     Attributes

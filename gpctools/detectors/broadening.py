@@ -34,6 +34,7 @@ from typing import Any
 
 import numpy as np
 
+from gpctools.display import Display
 from gpctools.errors import DataError
 
 from ._common import LN10, finite_or_none, positive
@@ -55,8 +56,8 @@ __all__ = [
 ]
 
 
-@dataclass(frozen=True)
-class Spreading:
+@dataclass(frozen=True, repr=False)
+class Spreading(Display):
     """A band-spreading function G: Gaussian (tau = 0) or exponentially modified Gaussian.
 
     Attributes
@@ -248,8 +249,8 @@ def broadening_factors(spreading: Spreading, B: float, *, centred: bool = True) 
     }
 
 
-@dataclass(frozen=True)
-class BroadeningCorrection:
+@dataclass(frozen=True, repr=False)
+class BroadeningCorrection(Display):
     """Averages before and after the analytic broadening correction (B2-B4).
 
     Attributes
@@ -395,8 +396,8 @@ def spreading_from_dispersity(dispersity_observed: float, dispersity_true: float
     return Spreading(brentq(excess, 0.0, hi, xtol=1e-12), tau)
 
 
-@dataclass(frozen=True)
-class Deconvolution:
+@dataclass(frozen=True, repr=False)
+class Deconvolution(Display):
     """A trace corrected for band spreading by regularised non-negative least squares.
 
     Attributes
@@ -505,8 +506,8 @@ def deconvolve(volume: Any, signal: Any, spreading: Spreading, *, smoothing: flo
                          residual_rms=rms, spreading=spreading)
 
 
-@dataclass(frozen=True)
-class CLDBias:
+@dataclass(frozen=True, repr=False)
+class CLDBias(Display):
     """Bias of the chain-length-distribution slope Λ caused by band spreading.
 
     Attributes

@@ -26,6 +26,7 @@ from typing import Any
 
 import numpy as np
 
+from gpctools.display import Display
 from gpctools.errors import DataError
 
 from ._common import as_array, finite_or_none, positive
@@ -43,8 +44,8 @@ __all__ = [
 ]
 
 
-@dataclass(frozen=True)
-class Composition:
+@dataclass(frozen=True, repr=False)
+class Composition(Display):
     """Per-slice composition of a two-component copolymer.
 
     Attributes

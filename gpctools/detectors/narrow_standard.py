@@ -37,6 +37,7 @@ from typing import Any
 
 import numpy as np
 
+from gpctools.display import Display
 from gpctools.errors import CalibrationError, CalibrationWarning, DataError
 
 from ._common import LN10, finite_or_none, positive, warn_all
@@ -124,8 +125,8 @@ def polydispersity_lead(dispersity: float, B: float, exponent: float = 1.0) -> f
     return exponent * math.log(d) / (LN10 * positive(B, "calibration slope B [1/mL]"))
 
 
-@dataclass(frozen=True)
-class PeakFit:
+@dataclass(frozen=True, repr=False)
+class PeakFit(Display):
     """A fitted peak: amplitude·(N(μ, σ²) ⊗ Exp(τ)) [detector units, mL].
 
     Attributes
@@ -239,8 +240,8 @@ def fit_peak(volume: Any, signal: Any, *, shape: str = "auto", floor: float = 0.
                    shape=pick)
 
 
-@dataclass(frozen=True)
-class DetectorCalibration:
+@dataclass(frozen=True, repr=False)
+class DetectorCalibration(Display):
     """What the standard says about one detector.
 
     Attributes
@@ -289,8 +290,8 @@ class DetectorCalibration:
         }
 
 
-@dataclass(frozen=True)
-class SetupCalibration:
+@dataclass(frozen=True, repr=False)
+class SetupCalibration(Display):
     """Result of :func:`calibrate_setup`: per detector offsets, broadening and constants."""
 
     standard: NarrowStandard

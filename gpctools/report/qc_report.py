@@ -34,6 +34,7 @@ import numpy as np
 import pandas as pd
 
 from gpctools import columns as C
+from gpctools.display import Display
 from gpctools.errors import DataError, InputFormatError
 from gpctools.qc import (
     FAIL,
@@ -73,8 +74,8 @@ _INJECTION_COLUMNS = (
 _HTML_SAMPLE_HIDDEN = ("Mz [g/mol]", "Mz+1 [g/mol]", "Mp (dw/dlogM) [g/mol]", "usable injections [-]")
 
 
-@dataclass(frozen=True, eq=False)
-class QCReport:
+@dataclass(frozen=True, eq=False, repr=False)
+class QCReport(Display):
     """What :func:`run_qc` found and wrote.
 
     Attributes

@@ -31,6 +31,7 @@ from typing import Any
 
 import numpy as np
 
+from gpctools.display import Display
 from gpctools.errors import DataError
 from gpctools.transfer._fit import interval_parts
 from gpctools.transfer._stats import finite_or_none, t_quantile
@@ -45,8 +46,8 @@ DOSING_SAFETY = (
     "licensed practice.")
 
 
-@dataclass(frozen=True)
-class DosingAnswer:
+@dataclass(frozen=True, repr=False)
+class DosingAnswer(Display):
     """Agent charge for a target average at a final conversion.
 
     Attributes
