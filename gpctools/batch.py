@@ -117,12 +117,13 @@ RESULT_COLUMNS = (
     C.PEAKS,
     C.PEAK_SPLIT,
     *C.PEAK_COLUMNS,
-    C.BASELINE_WINDOWS,
-    C.LIMITS,
     C.INTEGRATION_START,
     C.INTEGRATION_END,
     C.M_AT_INTEGRATION_START,
     C.M_AT_INTEGRATION_END,
+    C.LIMITS_CHOICE,
+    *C.BASELINE_COLUMNS,
+    C.BASELINE_CHOICE,
     C.FLOW_MARKER,
     C.FLOW_MARKER_STATUS,
     C.FLOW_FACTOR,
@@ -333,11 +334,15 @@ class InjectionResult(Display):
                 value = math.nan if part is None else (part.area_pct if q == "area" else getattr(part, q))
                 row[C.peak_column(n, q)] = value
         row.update({
-            C.BASELINE_WINDOWS: (
-                f"{bw[0][0]:.3f}-{bw[0][1]:.3f}; {bw[1][0]:.3f}-{bw[1][1]:.3f}"
-                + (" (auto)" if self.corrected.baseline.automatic else "")
-            ),
-            C.LIMITS: f"{lim[0]:.3f}-{lim[1]:.3f}" + (" (auto)" if self.corrected.automatic_limits else ""),
+            # ranges as numbers (the limits' columns come from the batch, with M at each end)
+            C.INTEGRATION_START: float(lim[0]),
+            C.INTEGRATION_END: float(lim[1]),
+            C.LIMITS_CHOICE: "automatic" if self.corrected.automatic_limits else "set",
+            C.BASELINE_1_START: float(bw[0][0]),
+            C.BASELINE_1_END: float(bw[0][1]),
+            C.BASELINE_2_START: float(bw[1][0]),
+            C.BASELINE_2_END: float(bw[1][1]),
+            C.BASELINE_CHOICE: "automatic" if self.corrected.baseline.automatic else "set",
             C.FLOW_MARKER: _nan_if_none(self.marker_observed),
             C.FLOW_MARKER_STATUS: self.marker.status if self.marker is not None else (
                 MARKER_GIVEN if self.marker_observed is not None else MARKER_NOT_USED),

@@ -689,6 +689,10 @@ def fit_calibration(
         Fewer than order + 1 standards, non-positive values, duplicate volumes.
     """
     V, logM, names = _clean_standards(volume, Mp, names)
+    # the nominal Mp as given, in the same (volume) order: 10**log10(Mp) carries float noise
+    # (2519999.999999998 for 2,520,000)
+    Mp_nominal = np.asarray(Mp, dtype=float).ravel()[np.argsort(np.asarray(volume, dtype=float).ravel(),
+                                                                kind="stable")]
     if isinstance(order, str):
         if order.strip().lower() != "auto":
             raise CalibrationError(f"calibration order must be 1-{MAX_ORDER} or 'auto', got {order!r}")
@@ -728,7 +732,7 @@ def fit_calibration(
         v_max=float(V.max()),
         order=order,
         names=tuple(names),
-        Mp=tuple(float(m) for m in 10.0**logM),
+        Mp=tuple(float(m) for m in Mp_nominal),
         volume=tuple(float(v) for v in V),
         residuals_pct=tuple(float(r) for r in resid_pct),
         r_squared=float(r2),

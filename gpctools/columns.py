@@ -67,8 +67,13 @@ __all__ = [
     "MP_DWDLOGM",
     "DISPERSITY",
     "OUTSIDE_CALIBRATION",
-    "BASELINE_WINDOWS",
-    "LIMITS",
+    "BASELINE_1_START",
+    "BASELINE_1_END",
+    "BASELINE_2_START",
+    "BASELINE_2_END",
+    "BASELINE_COLUMNS",
+    "BASELINE_CHOICE",
+    "LIMITS_CHOICE",
     "INTEGRATION_START",
     "INTEGRATION_END",
     "M_AT_INTEGRATION_START",
@@ -273,9 +278,19 @@ MP_DWDLOGM = _column("Mp (dw/dlogM) [g/mol]", "g/mol",
 DISPERSITY = _column("dispersity [-]", "-", "Mw/Mn")
 OUTSIDE_CALIBRATION = _column("outside calibration [% mass]", "% mass",
                               "mass eluting outside the calibrated volume range")
-BASELINE_WINDOWS = _column("baseline windows [mL]", "mL",
-                           "the two baseline windows used ('auto' when chosen automatically)")
-LIMITS = _column("limits [mL]", "mL", "integration limits used ('auto' when chosen automatically)")
+BASELINE_1_START = _column("baseline window 1 start [mL]", "mL",
+                           "start of the first (early) baseline window used, flow-corrected volume")
+BASELINE_1_END = _column("baseline window 1 end [mL]", "mL", "end of the first baseline window used")
+BASELINE_2_START = _column("baseline window 2 start [mL]", "mL",
+                           "start of the second (late) baseline window used")
+BASELINE_2_END = _column("baseline window 2 end [mL]", "mL", "end of the second baseline window used")
+BASELINE_CHOICE = _column("baseline windows chosen", "",
+                          "automatic (found by gpctools) or set (method file or batch-sheet override)")
+LIMITS_CHOICE = _column("integration limits chosen", "",
+                        "automatic (found by gpctools) or set (method file or batch-sheet override); "
+                        "the limits are 'integration start [mL]' and 'integration end [mL]'")
+#: The baseline windows as numbers, in table order.
+BASELINE_COLUMNS = (BASELINE_1_START, BASELINE_1_END, BASELINE_2_START, BASELINE_2_END)
 INTEGRATION_START = _column("integration start [mL]", "mL",
                             "early (high-M) integration limit used, on the flow-corrected "
                             "volume axis")

@@ -34,6 +34,7 @@ __all__ = [
     "SCREEN_DIGITS",
     "clean",
     "clean_frame",
+    "clean_json",
     "significant",
     "molar_mass",
     "r_squared",
@@ -113,6 +114,16 @@ def clean_frame(frame: Any, digits: int = FILE_DIGITS) -> Any:
         elif s.dtype == object:
             out[col] = [clean(x, digits) for x in s]
     return out
+
+
+def clean_json(obj: Any, digits: int = FILE_DIGITS) -> Any:
+    """A JSON-ready structure with every float cleaned by :func:`clean` (dicts, lists and
+    tuples walked; other values unchanged)."""
+    if isinstance(obj, dict):
+        return {k: clean_json(v, digits) for k, v in obj.items()}
+    if isinstance(obj, (list, tuple)):
+        return [clean_json(v, digits) for v in obj]
+    return clean(obj, digits)
 
 
 def significant(x: Any, digits: int = 4, *, keep_zeros: bool = False) -> str:

@@ -29,6 +29,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from gpctools.distribution import TABLE_COLUMNS
+from gpctools.formatting import clean_json
 from gpctools.report.files import safe_name, write_csv, write_text
 from gpctools.report.xlsx import write_workbook
 
@@ -177,5 +178,5 @@ def write_batch(
         "warnings": list(getattr(result, "warnings", ())),
         "calibration": result.calibration.summary(),
     }
-    paths["manifest.json"] = write_text(out / "manifest.json", json.dumps(manifest, indent=2, default=str) + "\n")
+    paths["manifest.json"] = write_text(out / "manifest.json", json.dumps(clean_json(manifest), indent=2, default=str) + "\n")
     return paths

@@ -36,6 +36,7 @@ import pandas as pd
 from gpctools import columns as C
 from gpctools.display import Display
 from gpctools.errors import DataError, InputFormatError
+from gpctools.formatting import clean_json
 from gpctools.qc import (
     FAIL,
     NO_RESULT,
@@ -753,7 +754,7 @@ def _write_reports(ev: _Evaluated, sheets: dict[str, pd.DataFrame], out: Path, *
     written["qc_report.html"] = H.write_html(out / "qc_report.html", _html_context(ev, title, figs))
     written["qc_summary.json"] = write_text(
         out / "qc_summary.json",
-        json.dumps(ev.result.summary(), indent=2, ensure_ascii=False, default=str) + "\n")
+        json.dumps(clean_json(ev.result.summary()), indent=2, ensure_ascii=False, default=str) + "\n")
     written["audit.json"] = write_text(out / "audit.json", ev.audit.to_json())
     return written
 
