@@ -654,6 +654,7 @@ def transfer_cmd(
     monomer_conc: Optional[float] = typer.Option(None, "--monomer-conc", help="Dosing: [M]0 of the recipe [mol/L] (default: the series' mean)."),
 ) -> None:
     """Chain-transfer constants from a run series (Mayo, Mw/2, CLD; drift; impurity flags; ln C vs 1/T; dosing)."""
+    from . import formatting as F
     from .report import write_transfer
     from .transfer import TransferOptions, analyse_series
 
@@ -702,7 +703,8 @@ def transfer_cmd(
                    f"{w.value:.4g} mol per 100 g monomer ({100 * d.ratio.confidence:g} % interval; {d.model})")
     for lbl, fit in result.arrhenius:
         typer.echo(f"{lbl['agent']} {lbl['term']} ({lbl['estimator']}, {lbl['model']}): "
-                   f"E_tr - E_p = {fit.delta_E.value:.2f} ± {fit.delta_E.stderr:.2f} kJ/mol, "
+                   f"E_tr - E_p = {F.significant(fit.delta_E.value, 3)} kJ/mol ("
+                   f"{F.interval(fit.delta_E.ci_low, fit.delta_E.ci_high, unit='kJ/mol', level=fit.delta_E.confidence)}), "
                    f"A_tr/A_p = {fit.A_ratio.value:.3g}")
     listed = ", ".join(sorted(p for p in paths if "/" not in p))
     typer.echo(f"wrote {out}/ ({listed}{', plots/' if any('/' in p for p in paths) else ''})")

@@ -54,6 +54,7 @@ from typing import ClassVar, Protocol
 
 import numpy as np
 
+from gpctools.formatting import ratio
 from gpctools.kinetics.checks import FlowSensitivity
 from gpctools.kinetics.evidence import Tails, model_tails
 from gpctools.kinetics.predict import KineticParameters, KineticState, evaluate
@@ -193,14 +194,14 @@ class Evidence:
         """'R_p is 1.23× expected' or 'R_p was not measured'."""
         if self.rp_ratio is None:
             return "R_p was not measured"
-        return f"R_p is {_sig(self.rp_ratio, 3)}× expected"
+        return f"R_p is {ratio(self.rp_ratio)}× expected"
 
     @property
     def mn_text(self) -> str:
         """'Mn is 0.8× expected' or 'Mn was not measured'."""
         if self.mn_ratio is None:
             return "Mn was not measured"
-        return f"Mn is {_sig(self.mn_ratio, 3)}× expected"
+        return f"Mn is {ratio(self.mn_ratio)}× expected"
 
     def ratio_numbers(self) -> list[tuple[str, float]]:
         """The measured/expected ratios that were measured, unit-named."""

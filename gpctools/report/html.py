@@ -18,6 +18,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from gpctools.formatting import dispersity, r_squared
 from gpctools.report.files import write_text
 
 __all__ = ["TEMPLATE", "png_data_uri", "figure", "format_value", "table_context", "render_html", "write_html"]
@@ -36,9 +37,11 @@ def png_data_uri(png: bytes) -> str:
 def format_value(value: Any, column: str = "") -> tuple[str, bool]:
     """Text of one table cell and whether it is a number.
 
-    Molar masses ``[g/mol]`` are shown to the nearest 1 g/mol with thin-space thousands,
-    ``[%]`` to 2 decimals, ``[-]`` and ``[sigma]`` to 4 significant digits, ``[mL]`` to
-    3 decimals, other numbers to 6 significant digits. The workbook keeps full precision.
+    The policy of :mod:`gpctools.formatting`: molar masses ``[g/mol]`` to the nearest
+    1 g/mol with thin-space thousands, ``[%]`` to 2 decimals, R² with two digits past its
+    nines (``0.99987``), dispersity to 3 significant digits, other ``[-]`` and
+    ``[sigma]`` to 4 significant digits, ``[mL]`` to 3 decimals, other numbers to 6
+    significant digits. The workbook keeps full precision.
     """
     if value is None:
         return "", False
@@ -51,6 +54,10 @@ def format_value(value: Any, column: str = "") -> tuple[str, bool]:
         if not math.isfinite(f):
             return "", True
         c = column.strip()
+        if c.startswith(("R² [-]", "R^2 [-]", "calibration R²")):
+            return r_squared(f), True
+        if c.startswith(("dispersity", "Mw/Mn", "Mz/Mw")):
+            return dispersity(f), True
         if c.endswith("[g/mol]"):
             return f"{f:,.0f}".replace(",", "\u2009"), True
         if c.endswith("[%]") or c.endswith("[% mass]"):

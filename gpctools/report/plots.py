@@ -30,6 +30,8 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
+from gpctools.formatting import interval, significant
+
 if TYPE_CHECKING:  # pragma: no cover
     from matplotlib.axes import Axes
     from matplotlib.figure import Figure
@@ -602,7 +604,8 @@ def plot_mayo(fit: Any, *, title: str | None = None, ax: Axes | None = None) -> 
         cols = {t: (xs if j == 0 else np.full(xs.size, float(np.mean(design[:, j]))))
                 for j, t in enumerate(fit.terms)}
         c0 = fit.constants[0]
-        _mayo_line(ax, xs, fit.predict(cols), f"fit: {c0.name} = {c0.value:.4g} ± {c0.stderr:.2g}")
+        _mayo_line(ax, xs, fit.predict(cols), f"fit: {c0.name} = {significant(c0.value, 4)} "
+                   f"({interval(c0.ci_low, c0.ci_high, level=c0.confidence)})")
         xlabel = term_label(term)
     ax.plot(x, y, "o", color=PALETTE[0], markersize=5, label=label)
     _mayo_finish(ax, xlabel, "1/DPn [-]", title or "Mayo plot", 8)
@@ -681,7 +684,8 @@ def plot_mayo_panel(result: Any, group: Any, estimator: str, term: str, *,
     cols = {t2: (xs if t2 == term else np.zeros_like(xs)) for t2 in terms}
     c = fit.constant(term)
     _mayo_line(ax, xs, fit.predict(cols),
-               f"recommended ({how}): {term} = {c.value:.4g} ± {c.stderr:.2g}",
+               f"recommended ({how}): {term} = {significant(c.value, 4)} "
+               f"({interval(c.ci_low, c.ci_high, level=c.confidence)})",
                band=fit.band(cols), band_label=f"{100 * fit.confidence:g} % band")
     ax.plot(x[~mask], (y_rec - others)[~mask], "o", color=PALETTE[0], markersize=5,
             label="runs (on the recommended scale)")
@@ -879,7 +883,8 @@ def plot_arrhenius(label: Mapping[str, str], fit: Any, *, ax: Axes | None = None
     err = fit.C_stderr / fit.C
     xs = np.linspace(x.min(), x.max(), 50)
     ax.plot(xs * 1e3, np.log(fit.predict(1 / xs)), "-", color=PALETTE[1], linewidth=1.2,
-            label=f"E_tr − E_p = {fit.delta_E.value:.1f} ± {fit.delta_E.stderr:.1f} kJ/mol")
+            label=f"E_tr − E_p = {significant(fit.delta_E.value, 3)} kJ/mol\n"
+                  f"({interval(fit.delta_E.ci_low, fit.delta_E.ci_high, unit='kJ/mol', level=fit.delta_E.confidence)})")
     ax.errorbar(x * 1e3, y, yerr=np.where(np.isfinite(err), err, 0), fmt="o", color=PALETTE[0],
                 markersize=5, capsize=2, label="ln C ± its standard error")
     ax.set_xlabel("1000/T [1/K]")
