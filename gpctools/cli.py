@@ -256,8 +256,11 @@ def _run_batch_with_progress(sheet: Path, method: Method | None, out: Path, work
 
     sink: Any = DistributionWriter(out / "distributions")
     if review:
+        import shutil
+
         from .report.review import PARTS, ReviewSink, review_rows
 
+        shutil.rmtree(out / PARTS, ignore_errors=True)  # fragments of an interrupted earlier run
         rows = review_rows(sheet, review_limit, sheet_name=sheet_name)
         sink = Sinks((sink, ReviewSink(out / PARTS, rows)))
     with _stage("injections") as advance:

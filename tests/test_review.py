@@ -168,3 +168,17 @@ def test_review_page_in_headless_chromium(batch_out, tmp_path):
         colours = img.convert("RGB").getcolors(maxcolors=1 << 20)
     assert colours is not None and len(colours) > 50
     shutil.copy(shot, batch_out / "review-screenshot.png")
+
+
+def test_a_plot_that_fails_never_stops_the_batch(tmp_path, sample_runs_dir, demo_method):
+    # a result whose distribution cannot be drawn (no slices): the sink notes it on the page
+    from dataclasses import replace
+
+    from gpctools.batch import BatchEntry, process_injection
+
+    res = process_injection(sample_runs_dir / "exports" / "LC110-A1.csv", demo_method)
+    broken = replace(res, distribution=None)
+    entry = BatchEntry(2, "BROKEN", "x.csv", tmp_path / "x.csv", "sample", None, {})
+    ReviewSink(tmp_path / PARTS)(entry, broken)  # does not raise
+    text = (tmp_path / PARTS / "row2.json").read_text()
+    assert "could not be drawn" in text and "AttributeError" in text

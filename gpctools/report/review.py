@@ -193,7 +193,14 @@ class ReviewSink:
     def __call__(self, entry: BatchEntry, result: InjectionResult) -> None:
         if self.rows is not None and entry.row not in self.rows:
             return
-        frag = injection_fragment(entry, result)
+        try:
+            frag = injection_fragment(entry, result)
+        except Exception as exc:  # a plot must never stop the batch: the page says what failed
+            frag = {"row": entry.row, "sample_id": entry.sample_id, "file": entry.file, "role": entry.role,
+                    "product": str((entry.metadata or {}).get("product") or ""),
+                    "title": f"{entry.sample_id} (row {entry.row})", "trace_svg": "", "dist_svg": "",
+                    "logM": [], "dwdlogM": [], "numbers": [],
+                    "warnings": [f"the review plots could not be drawn: {type(exc).__name__}: {exc}"]}
         write_text(Path(self.folder) / _fragment_name(entry.row), json.dumps(frag, separators=(",", ":")))
 
 
@@ -338,7 +345,7 @@ def write_review(result: BatchResult, outdir: str | os.PathLike[str], *, limit: 
     for f in frags:
         groups.setdefault(f["product"] or "all injections", []).append(f)
     overlays = [{"title": f"product {name}" if name != "all injections" else name,
-                 "svg": overlay_svg([(f["title"], f["logM"], f["dwdlogM"]) for f in fs],
+                 "svg": overlay_svg([(f["title"], f["logM"], f["dwdlogM"]) for f in fs if f["logM"]],
                                     title=f"dw/dlogM, {name}" if name != "all injections" else "dw/dlogM, all",
                                     uid=f"ov{k}")}
                 for k, (name, fs) in enumerate(groups.items())]
