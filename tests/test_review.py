@@ -97,7 +97,7 @@ def test_batch_writes_review_page_by_default(batch_out, sample_runs_dir):
     # self-contained: no script, nothing loaded from outside (the SVG namespace is a name, not a load)
     assert "<script" not in html.lower()
     assert not re.search(r"(src|href)=['\"]https?:", html)
-    for what in ("baseline window", "fitted baseline", "limits ", "flow marker", "Mn ", "Mw ", "Mp "):
+    for what in ("baseline window", "fitted baseline", "integration limits", "flow marker", "Mn ", "Mw ", "Mp "):
         assert what in html
     assert "product LC-110" in html and "R² = 0.99999" in html
 

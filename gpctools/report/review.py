@@ -103,12 +103,12 @@ def trace_svg(res: InjectionResult, *, uid: str, title: str = "") -> str:
         p.area(x[inside], base_line(x[inside]), y[inside], colour=_TRACE, opacity=0.14)
     p.line(x, y, colour=_TRACE, width=1.1, label="raw signal")
     p.line(V[[0, -1]], base_line(V[[0, -1]]), colour=_BASE, dash="5 3", width=1.2, label="fitted baseline")
-    auto = " (auto)" if cs.automatic_limits else ""
-    p.vline(l0, colour=_LIMIT, width=1.4, label=f"limits {l0:.2f} to {l1:.2f} mL{auto}")
+    auto = " (automatic)" if cs.automatic_limits else ""
+    p.vline(l0, colour=_LIMIT, width=1.4, label=f"integration limits{auto}")
     p.vline(l1, colour=_LIMIT, width=1.4)
     if res.marker_observed is not None and math.isfinite(res.marker_observed):
         mk = res.marker_observed * res.flow_factor
-        p.vline(mk, colour=_MARKER, dash="2 2", width=1.4, label=f"flow marker {mk:.3f} mL")
+        p.vline(mk, colour=_MARKER, dash="2 2", width=1.4, label=f"flow marker (seen {res.marker_observed:.3f})")
     return p.render(label=f"{title}: chromatogram")
 
 
