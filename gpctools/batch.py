@@ -115,7 +115,7 @@ RESULT_COLUMNS = (
     *C.UNCERTAINTY_COLUMNS,
     C.OUTSIDE_CALIBRATION,
     C.PEAKS,
-    C.PEAK_SPLIT,
+    *C.PEAK_SPLIT_COLUMNS,
     *C.PEAK_COLUMNS,
     C.INTEGRATION_START,
     C.INTEGRATION_END,
@@ -327,7 +327,9 @@ class InjectionResult(Display):
         for frac in self.fractions:
             row[frac.column] = frac.percent
         row[C.PEAKS] = self.peaks.count if self.peaks is not None else math.nan
-        row[C.PEAK_SPLIT] = "; ".join(f"{p.M_lower:.5g}" for p in self.parts if p.M_lower is not None)
+        splits = [p.M_lower for p in self.parts if p.M_lower is not None]
+        for n, col in enumerate(C.PEAK_SPLIT_COLUMNS):
+            row[col] = float(splits[n]) if n < len(splits) else math.nan
         for n in range(1, C.MAX_PEAK_COLUMNS + 1):
             part = self.parts[n - 1] if n <= len(self.parts) else None
             for q in C.PEAK_QUANTITIES:

@@ -96,7 +96,8 @@ __all__ = [
     "uncertainty_column",
     "UNCERTAINTY_COLUMNS",
     "PEAKS",
-    "PEAK_SPLIT",
+    "PEAK_SPLIT_COLUMNS",
+    "peak_split_column",
     "MAX_PEAK_COLUMNS",
     "PEAK_QUANTITIES",
     "peak_column",
@@ -358,9 +359,6 @@ UNCERTAINTY_COLUMNS = tuple(
 
 # -- peaks ------------------------------------------------------------------------------
 PEAKS = _column("peaks [-]", "-", "number of peaks in the trace by the valley criterion of [peaks]")
-PEAK_SPLIT = _column("peak split [g/mol]", "g/mol",
-                     "molar masses at which the trace was split into peaks, joined by '; ' "
-                     "(empty when not split)")
 #: Peaks reported in columns (a constant, not a setting, so that headers never change);
 #: further parts are in the injection's summary.
 MAX_PEAK_COLUMNS = 3
@@ -383,6 +381,22 @@ def peak_column(number: int, quantity: str) -> str:
 PEAK_COLUMNS = tuple(
     _column(peak_column(n, q), unit, f"peak {n} (counted from high M): {meaning}")
     for n in range(1, MAX_PEAK_COLUMNS + 1) for q, (unit, meaning) in PEAK_QUANTITIES.items()
+)
+
+
+def peak_split_column(number: int) -> str:
+    """``peak split 1 [g/mol]``: the molar mass where peak ``number`` (counted from high M)
+    ends and the next one starts (numbers 1 to ``MAX_PEAK_COLUMNS - 1``)."""
+    if not 1 <= number < MAX_PEAK_COLUMNS:
+        raise ValueError(f"peak split columns are numbered 1 to {MAX_PEAK_COLUMNS - 1}, got {number}")
+    return f"peak split {number} [g/mol]"
+
+
+#: The split points as numbers (empty when the trace is not split), in table order.
+PEAK_SPLIT_COLUMNS = tuple(
+    _column(peak_split_column(n), "g/mol", f"molar mass at which the trace was split between peak {n} and "
+                                          f"peak {n + 1} (empty when not split there)")
+    for n in range(1, MAX_PEAK_COLUMNS)
 )
 
 # Earlier builds wrote the setting into the shift headers: "Mn shift, low-M limit -0.2 mL [%]".
