@@ -2,7 +2,7 @@
 
 Usage::
 
-    python bench/bench_review.py --repeat 200
+    python bench/bench_review.py --repeat 100 --n 1000
 
 Processes one demo export (6,000 slices) once, then times, best of five runs of
 ``--repeat`` calls each:
@@ -13,7 +13,9 @@ Processes one demo export (6,000 slices) once, then times, best of five runs of
   its JSON file written atomically (what a batch worker pays per injection drawn);
 * ``process``: :func:`gpctools.batch.process_injection` of the same export, for scale;
 
-and the time to assemble ``review.html`` from 100 fragments (once per batch). Prints
+and the time to assemble ``review.html`` for a batch of ``--n`` injections of which the
+first 100 are drawn (once per batch: reading the fragments, the calibration plot, the
+overlays, the list of the rest, the template). Prints
 milliseconds per injection and the ratio sink / process.
 """
 
@@ -41,6 +43,7 @@ def best(fn, repeat: int, runs: int = 5) -> float:
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--repeat", type=int, default=100)
+    ap.add_argument("--n", type=int, default=1000, help="injections of the batch whose page is assembled")
     args = ap.parse_args()
 
     from gpctools.batch import BatchEntry, process_injection, run_batch
@@ -63,33 +66,37 @@ def main() -> None:
         print(f"sink (fragment + JSON file written):            {1e3 * t_sink:.2f} ms per injection")
         print(f"process_injection of the same export:          {1e3 * t_proc:.2f} ms per injection")
         print(f"sink / process: {t_sink / t_proc:.3f}")
-        # assembling the page: 100 fragments of the demo batch's injections
-        batch = run_batch(samples / "batch.csv", method)
-        out = tmp / "out"
-        parts = out / ".review-parts"
-        sink = ReviewSink(parts)
-        for e, r in zip(batch.entries, batch.injections):
-            if r is not None:
-                sink(e, r)
-        fake = [e for e in batch.entries]
-        reps = max(1, 100 // len(fake))
+        # assembling the page: a batch of --n injections (the demo batch repeated), the
+        # first 100 drawn by the sink as in `gpctools batch`, the rest listed
+        import warnings
         from dataclasses import replace
 
-        entries = [replace(e, row=e.row + 1000 * k) for k in range(reps) for e in fake]
-        for e in entries:
-            r = batch.injections[fake.index(next(f for f in fake if f.row == e.row % 1000))]
-            if r is not None:
-                sink(e, r)
         import pandas as pd
 
+        from gpctools.report.review import DEFAULT_LIMIT
+
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            batch = run_batch(samples / "batch.csv", method)
+        reps = max(1, -(-args.n // len(batch.entries)))
+        entries, kept = [], []
+        for k in range(reps):
+            for e, r in zip(batch.entries, batch.injections):
+                entries.append(replace(e, row=e.row + 1000 * k))
+                kept.append(r)
+        entries, kept = entries[:args.n], kept[:args.n]
+        out = tmp / "out"
+        sink = ReviewSink(out / ".review-parts")
+        for e, r in zip(entries[:DEFAULT_LIMIT], kept[:DEFAULT_LIMIT]):
+            sink(e, r)
         batch.entries = entries
-        batch.table = pd.concat([batch.table] * reps, ignore_index=True)
+        batch.table = pd.concat([batch.table] * reps, ignore_index=True).iloc[:args.n]
         batch.injections = [None] * len(entries)
         t0 = time.perf_counter()
-        page = write_review(batch, out, parts=parts)
+        page = write_review(batch, out)
         t_page = time.perf_counter() - t0
-        print(f"page of {len(entries)} injections: {t_page:.3f} s to assemble, "
-              f"{page.stat().st_size / 1e6:.2f} MB")
+        print(f"page of {len(entries)} injections ({min(len(entries), DEFAULT_LIMIT)} drawn): "
+              f"{t_page:.3f} s to assemble, {page.stat().st_size / 1e6:.2f} MB")
     finally:
         shutil.rmtree(tmp, ignore_errors=True)
 

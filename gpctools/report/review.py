@@ -289,10 +289,9 @@ def _summary_rows(result: BatchResult, drawn: int, limit: int | None) -> list[tu
 
 def _listed(table: Any, rows: Iterable[int]) -> dict[str, Any]:
     cols = [c for c in (C.SAMPLE_ID, C.ROLE, "product", C.STATUS, C.MN, C.MW, C.MP, C.DISPERSITY) if c in table.columns]
-    out = []
-    for i in rows:
-        r = table.iloc[i]
-        out.append([F.number(r[c], c) if not isinstance(r[c], str) else r[c] for c in cols])
+    part = table.iloc[list(rows)][cols]  # one selection, not a row look-up per injection
+    out = [[v if isinstance(v, str) else F.number(v, c) for c, v in zip(cols, rec)]
+           for rec in part.itertuples(index=False, name=None)]
     return {"columns": cols, "rows": out}
 
 
@@ -326,9 +325,9 @@ def write_review(result: BatchResult, outdir: str | os.PathLike[str], *, limit: 
     frags: list[dict[str, Any]] = []
     not_shown: list[int] = []
     failed: list[int] = []
+    statuses = table[C.STATUS].tolist() if C.STATUS in table.columns else ["ok"] * len(result.entries)
     for i, entry in enumerate(result.entries):
-        status = table.iloc[i][C.STATUS] if C.STATUS in table.columns else "ok"
-        if status == "error":
+        if statuses[i] == "error":
             failed.append(i)
             continue
         path = folder / _fragment_name(entry.row)
@@ -350,8 +349,8 @@ def write_review(result: BatchResult, outdir: str | os.PathLike[str], *, limit: 
                                     uid=f"ov{k}")}
                 for k, (name, fs) in enumerate(groups.items())]
     cal_svg, res_svg = calibration_svg(result.calibration)
-    failed_rows = [[str(table.iloc[i][C.SAMPLE_ID]), str(result.entries[i].row), str(table.iloc[i].get(C.ERROR, ""))]
-                   for i in failed]
+    errors = table[C.ERROR].tolist() if C.ERROR in table.columns else [""] * len(result.entries)
+    failed_rows = [[result.entries[i].sample_id, str(result.entries[i].row), str(errors[i])] for i in failed]
     context = {
         "title": title or f"Batch review: {Path(str(result.sheet)).name}",
         "tool_version": __version__,
