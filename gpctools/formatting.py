@@ -209,6 +209,8 @@ def number(value: Any, column: str = "", *, separator: str = ",") -> str:
     """
     if isinstance(value, str):
         return value
+    if isinstance(value, int) and not isinstance(value, bool):  # counts stay counts
+        return f"{value:,}".replace(",", separator) if abs(value) >= 10_000 else str(value)
     f = _finite(value)
     if f is None:
         return "-"
@@ -224,7 +226,9 @@ def number(value: Any, column: str = "", *, separator: str = ",") -> str:
         return f"{f:.{n}f}"
     if abs(f) >= 10_000:
         return f"{f:,.0f}".replace(",", separator)
-    return significant(f, n)
+    # trailing zeros kept so that a column reads at one precision (11.60 beside 12.32);
+    # a whole number (a count stored as float) stays whole
+    return significant(f, n, keep_zeros=not f.is_integer())
 
 
 def interval(low: Any, high: Any, *, unit: str = "", level: float = 0.95, digits: int = 3) -> str:
