@@ -93,8 +93,8 @@ def table_context(
         Column -> unit-like suffix used for formatting when the header has no unit
         (e.g. ``{"value": "[-]"}``).
     unit_from : str, optional
-        A text column whose unit (``[...]`` at its end) formats the other cells of the
-        row (key/value tables such as ``item | value``).
+        A text column whose label (the quantity, ending in its unit ``[...]``) formats
+        the other cells of the row (key/value tables such as ``item | value``).
     """
     if frame is None or frame.empty:
         return {"columns": [] if frame is None else [str(c) for c in frame.columns], "rows": [], "empty": empty}
@@ -106,9 +106,8 @@ def table_context(
         cells = []
         row_fmt = fmt_cols
         if key is not None:
-            label = str(rec[key])
-            unit = label[label.rfind("["):] if label.endswith("]") and "[" in label else ""
-            row_fmt = [f if j == key else unit for j, f in enumerate(fmt_cols)]
+            label = str(rec[key])  # the label names the quantity and ends in its unit
+            row_fmt = [f if j == key else label for j, f in enumerate(fmt_cols)]
         for c, fc, v in zip(cols, row_fmt, rec, strict=False):
             text, num = format_value(v, fc)
             tag = text.replace(" ", "-") if c in _TAGGED and text in _TAG_VALUES else None

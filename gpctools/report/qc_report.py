@@ -770,8 +770,8 @@ def _suitability_context(result: QCResult) -> list[dict[str, Any]]:
                  for r in s.replicates if r.groups]
         suit.append({"sequence": s.sequence, "tag": "pass" if s.passed else "fail",
                      "text": "pass" if s.passed else "fail", "notes": notes,
-                     "table": H.table_context(df, formats={"value [unit as in check]": "[-]",
-                                                           "limit [unit as in check]": "[-]"})})
+                     # each row's value and limit formatted as the quantity its check names
+                     "table": H.table_context(df, unit_from="check")})
     return suit
 
 
