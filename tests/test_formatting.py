@@ -79,3 +79,11 @@ def test_results_files_carry_no_float_noise(tmp_path, sample_runs_dir, cli_runne
         assert results[c].dtype.kind == "f", c
     assert "baseline windows [mL]" not in results.columns and "limits [mL]" not in results.columns
     assert set(results["integration limits chosen"]) <= {"automatic", "set"}
+    # the workbook stores the same cleaned numbers (numeric cells, 12 significant digits)
+    import openpyxl
+
+    ws = openpyxl.load_workbook(out / "results.xlsx", read_only=True)["results"]
+    rows = list(ws.iter_rows(values_only=True))
+    col = rows[0].index("Mw [g/mol]")
+    assert [r[col] for r in rows[1:]] == pytest.approx(results["Mw [g/mol]"].tolist(), rel=1e-15)
+    assert all(F.clean(r[col]) == r[col] for r in rows[1:])
