@@ -9,6 +9,7 @@ Every result line is printed with the command that reproduces it. Subcommands:
     python bench/bench_transfer.py styrene    [--trials 200]    combination (delta = 0.1)
     python bench/bench_transfer.py timing                       100-run series, best of three
     python bench/bench_transfer.py calibrate  [--trials 2000]   false-flag rate per design
+    python bench/bench_transfer.py chain-power [--series 100]   two contaminated runs, whole chain
     python bench/bench_transfer.py all                          all of the above
 
 Truths come from the steady-state kinetic scheme with the bundled reference data
@@ -141,9 +142,12 @@ standards = "standards.csv"
 
 
 def chain_series(folder: Path, seed: int, *, scatter_mL: float = 0.02, runs: int = 6,
-                 x: float = 0.03, charge_noise: float = 0.01):
+                 x: float = 0.03, charge_noise: float = 0.01, impurity: dict[int, float] | None = None):
     """One styrene/1-dodecanethiol series through the whole chain: standards with scatter ->
-    calibration -> chromatograms (true calibration) -> sheet. Returns (sheet, method, truth C)."""
+    calibration -> chromatograms (true calibration) -> sheet. Returns (sheet, method, truth C).
+
+    ``impurity`` maps a run index to the relative excess of its 1/DPn (0.25: +25 %), added
+    as transfer to an unlisted species with the chain-length formulas of the agent."""
     import pandas as pd
 
     from gpctools import refdata, simulate
@@ -169,7 +173,8 @@ def chain_series(folder: Path, seed: int, *, scatter_mL: float = 0.02, runs: int
     rows = []
     for i, r in enumerate(np.linspace(0, 4e-4, runs)):
         r_true = r * (1 + charge_noise * rng.standard_normal())
-        f = cumulative_most_probable(x, K + mono.C_M, {"C_A": (C_DDM, r_true)}, M0_ST, beta=beta)
+        extra = (impurity or {}).get(i, 0.0) * (K + mono.C_M + C_DDM * r_true)
+        f = cumulative_most_probable(x, K + mono.C_M + extra, {"C_A": (C_DDM, r_true)}, M0_ST, beta=beta)
         vol, sig = simulate.chromatogram(f, true_cal, volume=np.linspace(8, 26, 2000), height=100.0,
                                          baseline_offset=0.3, baseline_drift=0.01, noise=0.03,
                                          seed=int(rng.integers(1 << 31)))
@@ -199,8 +204,26 @@ def coverage(series: int, seed0: int = 7000) -> tuple[int, int, int]:
             done += 1
     print(f"95 % intervals of C_A (Mw/2, drift, delta 0.1) cover the truth in {_rate(hits, done)} of "
           f"whole-chain series (standards ±0.02 mL, 6 runs, 1 % charge scatter); statistical part "
-          f"alone: {_rate(hits_stat, done)}  [{_cmd(f'coverage --series {series}')}, seeds {seed0}..]")
+          f"alone: {_rate(hits_stat, done)}  [{_cmd(f'coverage --series {series} --seed {seed0}')}]")
     return hits, hits_stat, done
+
+
+def chain_power(series: int, seed0: int = 11000) -> None:
+    """Six-run whole-chain series (chromatograms, defaults) with runs 2 and 5 at +25 %
+    excess 1/DPn: how often both are flagged, and how often a clean run is flagged."""
+    from gpctools.transfer import analyse_series
+
+    both = other = 0
+    with tempfile.TemporaryDirectory() as tmp:
+        for s in range(series):
+            sheet, method, _ = chain_series(Path(tmp) / f"s{s}", seed0 + s, impurity={1: 0.25, 4: 0.25})
+            f = analyse_series(sheet, method).group().impurity.flagged_ids
+            both += "R2" in f and "R5" in f
+            other += bool(set(f) - {"R2", "R5"})
+    print(f"whole chain, 6 runs (chromatograms, standards ±0.02 mL, 1 % charge scatter), runs 2 "
+          f"and 5 at +25 % excess 1/DPn, default options: both flagged in {_rate(both, series)}; "
+          f"a clean run flagged in {_rate(other, series)}  "
+          f"[{_cmd(f'chain-power --series {series} --seed {seed0}')}]")
 
 
 # ----------------------------------------------------------------------------- designs
@@ -354,9 +377,10 @@ def timing() -> None:
 def main(argv: list[str] | None = None) -> int:
     ap = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
     ap.add_argument("what", choices=("flags", "coverage", "solvent", "initiator", "styrene",
-                                     "timing", "calibrate", "all"))
+                                     "timing", "calibrate", "chain-power", "all"))
     ap.add_argument("--trials", type=int, default=None)
-    ap.add_argument("--series", type=int, default=200)
+    ap.add_argument("--series", type=int, default=None, help="series (coverage 200, chain-power 100)")
+    ap.add_argument("--seed", type=int, default=None, help="first seed of coverage / chain-power")
     a = ap.parse_args(argv)
     if a.what in ("flags", "all"):
         flags(a.trials or 1000)
@@ -369,7 +393,9 @@ def main(argv: list[str] | None = None) -> int:
     if a.what in ("timing", "all"):
         timing()
     if a.what in ("coverage", "all"):
-        coverage(a.series)
+        coverage(a.series or 200, *(() if a.seed is None else (a.seed,)))
+    if a.what in ("chain-power", "all"):
+        chain_power(a.series or 100, *(() if a.seed is None else (a.seed,)))
     if a.what == "calibrate":
         calibrate(a.trials or 2000)
     return 0

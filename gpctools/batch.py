@@ -253,6 +253,9 @@ class InjectionResult(Display):
         The trace split into peaks (empty unless ``[peaks] split`` asks for it).
     fractions : tuple of MassFraction
         Mass below/above the method's cut-offs.
+    detectors : gpctools.detectors.DetectorResult or None
+        Light scattering, viscometry, composition and broadening-corrected averages when
+        the method has ``[detectors]`` (columns :data:`gpctools.columns.DETECTOR_COLUMNS`).
     """
 
     sample_id: str
@@ -272,6 +275,7 @@ class InjectionResult(Display):
     peaks: Peaks | None = None
     parts: tuple[PeakPart, ...] = ()
     fractions: tuple[MassFraction, ...] = ()
+    detectors: Any = None
 
     # -- the uncertainties issue 11 consumes (relative, fractions [-]) ------------------
     @property
@@ -356,6 +360,8 @@ class InjectionResult(Display):
             C.WARNINGS: "; ".join(self.warnings),
             C.ERROR: "",
         })
+        if self.detectors is not None:
+            row.update(self.detectors.row())
         return row
 
     def _display_items(self) -> list[tuple[str, Any]]:
@@ -391,6 +397,7 @@ class InjectionResult(Display):
             "peak parts": [p.summary() for p in self.parts],
             "fractions": {f.column: finite_or_none(f.percent) for f in self.fractions},
             C.SCALE: self.scale,
+            "detectors": self.detectors.summary() if self.detectors is not None else None,
             C.WARNINGS: list(self.warnings),
         }
 
@@ -741,7 +748,8 @@ def process_injection(
     from .io.describe import response_note
 
     p = Path(path)
-    chrom = read_chromatogram(p, **method.import_options.as_kwargs())
+    extra = {"channels": "all"} if method.detectors is not None else {}
+    chrom = read_chromatogram(p, **method.import_options.as_kwargs(), **extra)
     V = chrom.to_volume(method.flow_rate)
     try:
         res = process_trace(
@@ -749,6 +757,11 @@ def process_injection(
             sample_id=sample_id if sample_id is not None else p.stem,
             file=str(path), marker_observed=marker_observed, metadata=chrom.metadata,
         )
+        if method.detectors is not None:  # [detectors]: gpctools.detectors.pipeline (issue 16)
+            from .detectors.pipeline import for_injection
+
+            found = for_injection(chrom, V, res, method)
+            res = replace(res, detectors=found, warnings=(*res.warnings, *found.warnings))
     except GpcError as exc:
         if exc.path is None:
             exc.path = str(path)

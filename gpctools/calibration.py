@@ -12,7 +12,7 @@ mass fraction eluting there is reported so that the analyst can judge it (warnin
 
 References
 ----------
-.. [1] Reviews of SEC calibration practice; see ../shared/SCIENCE.md section 2 of the
+.. [1] Reviews of SEC calibration practice; see docs/science.md, section 2 of the
    project notes ("published: SEC calibration practice reviews").
 .. [2] H. Benoit, Z. Grubisic, P. Rempp, "A universal calibration for gel permeation
    chromatography", J. Polym. Sci. B 5 (1967) 753.
@@ -470,7 +470,7 @@ def universal_log_M(
 
     Examples
     --------
-    Polystyrene 1e5 g/mol expressed as PMMA with the pairs of SCIENCE.md section 2
+    Polystyrene 1e5 g/mol expressed as PMMA with the pairs of docs/science.md, section 2
     (PS 1.14e-4 dL/g, 0.716; PMMA 9.44e-5 dL/g, 0.719):
 
     >>> round(float(universal_log_M(1e5, 1.14e-4, 0.716, 9.44e-5, 0.719)))
@@ -537,7 +537,7 @@ def flow_marker_factor(reference: float, observed: float) -> float:
     delivered less than nominal; scaling every volume of the injection by
     ``reference / observed`` puts it back on the calibration's volume axis. For
     log M = A - B·V, a relative flow error δ shifts log M by B·V·δ at volume V
-    (SCIENCE.md section 2, derived).
+    (docs/science.md, section 2, derived).
     """
     for name, value in (("reference", reference), ("observed", observed)):
         if value is None or not (math.isfinite(value) and value > 0):
@@ -580,7 +580,7 @@ def select_order(volume: Sequence[float], Mp: Sequence[float], orders: Sequence[
     An order is eligible when there are at least ``order + 4`` standards (AICc needs
     n > k + 1 with k = order + 2 fitted quantities), and its slope is monotonic
     (negative) over the calibrated range. Choosing by R² alone always picks the highest
-    order (SCIENCE.md section 2: "choose the order by an information criterion").
+    order (docs/science.md, section 2: "choose the order by an information criterion").
 
     For Gaussian residuals in log10 M, AICc = n·ln(RSS/n) + 2k + 2k(k+1)/(n - k - 1)
     with k = order + 2 (coefficients plus the variance) [3]_.

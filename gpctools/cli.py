@@ -314,6 +314,13 @@ def batch_cmd(
             typer.echo(f"method {label}: molar-mass scale {used.calibration.scale_label()}")
     else:
         typer.echo(f"\nmolar-mass scale: {result.method.calibration.scale_label()}")
+    if any(used.detectors is not None for used in result.methods.values()):
+        from . import columns as C
+
+        typer.echo("")
+        shown = [c for c in (C.SAMPLE_ID, C.STATUS, C.MN_LS, C.MW_LS, C.MW_LS_AREAS, C.DISPERSITY_LS, C.RG_Z,
+                             C.INTRINSIC_VISCOSITY, C.MH_A, C.DETECTOR_SCALE) if c in result.table.columns]
+        _print_table(rows, shown)
     typer.echo(f"wrote {out}/results.csv, results.xlsx, calibration.csv, manifest.json, distributions/"
                + (", review.html" if review else ""))
     if result.failed:
@@ -460,6 +467,66 @@ def calibrate_cmd(
         typer.echo(f"wrote {path}")
 
 
+@app.command("detectors")
+@_guard
+def detectors_cmd(
+    export: Path = typer.Argument(..., help="Slice export of a narrow-standard injection with every detector."),
+    method: Path = typer.Option(..., "--method", "-m", help="Method file (TOML) with a [detectors] section."),
+    mw: Optional[float] = typer.Option(None, "--mw", help="Certified Mw of the standard [g/mol] (light-scattering constant)."),
+    dispersity: float = typer.Option(1.0, "--dispersity", help="Certified dispersity of the standard [-] (polydispersity lead)."),
+    mass_mg: Optional[float] = typer.Option(None, "--mass-mg", help="Injected mass of the standard [mg] (RI constant)."),
+    intrinsic: Optional[float] = typer.Option(None, "--intrinsic-viscosity", help="[eta] of the standard [dL/g] (viscometer constant)."),
+    a: Optional[float] = typer.Option(None, "--a", help="Mark-Houwink a of the standard [-] (viscometer lead; default 0.7)."),
+    rg: Optional[float] = typer.Option(None, "--rg", help="Rg of the standard [nm] (P(theta) in the LS constant)."),
+    slope: Optional[float] = typer.Option(None, "--slope", help="-d log10 M/dV at the standard's peak [1/mL] "
+                                          "(default: from the method's calibration)."),
+    normalise: bool = typer.Option(False, "--normalise", help="Also derive the LS angle normalisation (small standards only)."),
+    peak_shape: str = typer.Option("gaussian", "--peak-shape", help="Peak model: gaussian (default; the lead "
+                                   "is derived for Gaussian peaks), emg (a line with a mixing-cell tail) or auto."),
+) -> None:
+    """Detector offsets, broadening and constants from a narrow standard, as method-file lines.
+
+    The offset of each detector is the difference of its peak centre from the
+    concentration detector's plus the polydispersity lead ln(D)/(ln10 B) (light
+    scattering; times a for a viscometer), docs/detectors.md.
+    """
+    from .batch import process_trace
+    from .detectors import NarrowStandard
+    from .detectors.pipeline import calibrate_with_standard, setup_toml
+    from .errors import MethodError
+    from .io import read_chromatogram
+    from .method import load_method
+
+    m = load_method(method)
+    if m.detectors is None:
+        raise MethodError("the method has no [detectors] section: describe the detectors first "
+                          "(gpctools template method.toml shows one)", path=str(method), key="detectors")
+    chrom = read_chromatogram(export, **m.import_options.as_kwargs(), channels="all")
+    V = chrom.to_volume(m.flow_rate)
+    res = process_trace(V, chrom.signal, m, sample_id=export.stem, file=str(export))
+    std = NarrowStandard(name=export.stem, Mw=mw, dispersity=dispersity,
+                         injected_mass=None if mass_mg is None else mass_mg * 1e-3,
+                         intrinsic_viscosity=intrinsic, a=a, rg=rg)
+    if peak_shape not in ("gaussian", "emg", "auto"):
+        raise MethodError(f"--peak-shape must be gaussian, emg or auto, got {peak_shape!r}")
+    cal = calibrate_with_standard(chrom, V, res, m, std, B=slope, normalise=normalise, shape=peak_shape)
+    rows = []
+    for d in cal.detectors:
+        rows.append({"detector": d.name, "kind": d.kind, "peak difference [mL]": d.observed_difference,
+                     "lead [mL]": d.lead, "offset [mL]": d.offset, "u(offset) [mL]": d.offset_stderr,
+                     "sigma [mL]": d.broadening.sigma, "tau [mL]": d.broadening.tau,
+                     "constant": d.constant if d.constant is not None else float("nan")})
+    _print_table(rows, list(rows[0]))
+    _say("\nconstant: RI [signal/RIU], UV [signal per g/mL], light scattering [1/cm per signal unit], "
+         "viscometer gain [-]")
+    _say(f"lead: ln(D)/(ln10 B) with D = {dispersity:g}, B = {cal.standard.B:.4g} 1/mL "
+         "(docs/detectors.md, calibrating the set-up from one narrow standard)")
+    for w in cal.warnings:
+        _err(f"warning: {w}")
+    _say("\n# paste into the method file (replaces its [detectors] tables; [detectors.analysis] stays):")
+    _say(setup_toml(cal.apply(m.detectors.setup), m.detectors.columns).rstrip())
+
+
 @app.command("inspect")
 @_guard
 def inspect_cmd(
@@ -469,7 +536,7 @@ def inspect_cmd(
     sheet: Optional[str] = typer.Option(None, "--sheet", help="Workbook sheet (name or 0-based index)."),
 ) -> None:
     """Show how a slice export is read: dialect, every column and its kind, what is used."""
-    from .errors import InputFormatError
+    from .errors import GpcError, InputFormatError
     from .io.describe import describe_export
 
     m = None
@@ -483,6 +550,18 @@ def inspect_cmd(
         options["sheet"] = int(sheet) if sheet.isdigit() else sheet
     d = describe_export(file, **options)
     _print_description(d, m)
+    if m is not None and m.detectors is not None and d.problem is None and d.signal_column is not None:
+        from .detectors.pipeline import assign_columns
+
+        numeric = [c.header for c in d.columns if c.numeric and c.use != "x"]
+        try:
+            found = assign_columns(m.detectors, numeric, d.signal_column)
+        except GpcError as exc:
+            _err(f"detectors: {exc.message}")
+        else:
+            typer.echo("detectors ([detectors] of the method):")
+            for name, heads in found.items():
+                typer.echo(f"  {name} ({m.detectors.setup[name].kind}): " + ", ".join(repr(h) for h in heads))
     for w in d.warnings:
         _err(f"warning: {w}")
     if d.problem is not None:

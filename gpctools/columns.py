@@ -102,6 +102,8 @@ __all__ = [
     "PEAK_QUANTITIES",
     "peak_column",
     "PEAK_COLUMNS",
+    "DETECTOR_COLUMNS",
+    "LS_SCALE_LABEL",
     "mass_fraction_column",
     "is_mass_fraction_column",
     "format_molar_mass",
@@ -398,6 +400,76 @@ PEAK_SPLIT_COLUMNS = tuple(
                                           f"peak {n + 1} (empty when not split there)")
     for n in range(1, MAX_PEAK_COLUMNS)
 )
+
+# -- more detectors (issue 16; docs/detectors.md) -------------------------------------------
+#: The molar-mass scale of the light-scattering columns (transfer and diagnosis read it).
+LS_SCALE_LABEL = "absolute, light scattering"
+MN_LS = _column("Mn LS [g/mol]", "g/mol",
+                "absolute number-average molar mass by light scattering: the concentration trace "
+                "through the log M(V) fit over the slices with good signal (shaped like the "
+                "calibration curve by default), corrected for band broadening (docs/detectors.md)")
+MW_LS = _column("Mw LS [g/mol]", "g/mol",
+                "absolute mass-average molar mass by light scattering from the fitted log M(V), "
+                "corrected for band broadening")
+MZ_LS = _column("Mz LS [g/mol]", "g/mol", "absolute z-average molar mass by light scattering")
+DISPERSITY_LS = _column("dispersity LS [-]", "-", "Mw LS / Mn LS")
+MW_LS_AREAS = _column("Mw LS from areas [g/mol]", "g/mol",
+                      "Mw from the light-scattering channel areas over the eluted mass, extrapolated "
+                      "to zero angle: free of offsets, broadening and calibration")
+U_MW_LS_AREAS = _column("u(Mw LS from areas) [%]", "%",
+                        "relative standard uncertainty of the angular extrapolation of Mw from areas "
+                        "(without the uncertainty of dn/dc and the detector constants)")
+MN_LS_OBSERVED = _column("Mn LS before broadening correction [g/mol]", "g/mol",
+                         "Mn by light scattering before the band-broadening correction")
+MW_LS_OBSERVED = _column("Mw LS before broadening correction [g/mol]", "g/mol",
+                         "Mw by light scattering before the band-broadening correction")
+LS_FIT_START = _column("LS fit start [mL]", "mL", "first slice of the log M(V) fit (good signal)")
+LS_FIT_END = _column("LS fit end [mL]", "mL", "last slice of the log M(V) fit (good signal)")
+RG_Z = _column("Rg z [nm]", "nm", "z-average radius of gyration over the slices where Rg is measurable")
+RG_W = _column("Rg w [nm]", "nm", "mass-average radius of gyration over the same slices")
+CONFORMATION_SLOPE = _column("conformation slope [-]", "-",
+                             "slope of log Rg against log M (about 0.58 for a coil in a good solvent)")
+MASS_ELUTED = _column("mass eluted [mg]", "mg",
+                      "mass seen by the concentration detector inside the limits (its constant and dn/dc)")
+INTRINSIC_VISCOSITY = _column("[eta] w [dL/g]", "dL/g",
+                              "weight-average intrinsic viscosity, sum of eta_sp dV over the eluted mass "
+                              "(offset- and broadening-free)")
+MV = _column("Mv [g/mol]", "g/mol",
+             "viscosity-average molar mass ([eta]w/K)^(1/a) with the Mark-Houwink pair of 'Mark-Houwink K "
+             "[dL/g]' and 'Mark-Houwink a [-]'")
+MH_K = _column("Mark-Houwink K [dL/g]", "dL/g",
+               "K of log[eta] = log K + a log M fitted over the good slices (light-scattering or "
+               "universal-calibration M), or the method's [mark_houwink] K_sample")
+MH_A = _column("Mark-Houwink a [-]", "-", "the exponent a of the same fit")
+MH_A_SE = _column("u(Mark-Houwink a) [-]", "-", "standard error of the fitted a (absolute)")
+MN_UNIVERSAL = _column("Mn universal [g/mol]", "g/mol",
+                       "Mn by universal calibration with the measured [eta] (M = J(V)/[eta] per slice, "
+                       "fitted log M(V), corrected for band broadening)")
+MW_UNIVERSAL = _column("Mw universal [g/mol]", "g/mol",
+                       "Mw by universal calibration with the measured [eta] (fitted log M(V))")
+G_PRIME = _column("g' [-]", "-",
+                  "branching ratio [eta]w over the linear reference's mass-average K M^a at the same "
+                  "molar masses (1 for a linear polymer)")
+COMPOSITION_A = _column("mass fraction A [%]", "%",
+                        "overall mass fraction of copolymer component A (the first of "
+                        "detectors.copolymer.names) from the UV and RI areas")
+MN_BROADENING = _column("Mn broadening-corrected [g/mol]", "g/mol",
+                        "conventional Mn divided by the band-broadening factor of the concentration "
+                        "detector's spreading at the calibration slope of the peak")
+MW_BROADENING = _column("Mw broadening-corrected [g/mol]", "g/mol",
+                        "conventional Mw corrected the same way")
+DISPERSITY_BROADENING = _column("dispersity broadening-corrected [-]", "-",
+                                "Mw/Mn after the band-broadening correction")
+DETECTOR_SCALE = _column("detector scale", "",
+                         "molar-mass scale of the detector columns: 'absolute, light scattering', "
+                         "'absolute, universal calibration with measured [eta]' or empty")
+
+#: Detector columns in table order (present when the method has [detectors]).
+DETECTOR_COLUMNS = (MN_LS, MW_LS, MZ_LS, DISPERSITY_LS, MW_LS_AREAS, U_MW_LS_AREAS, MN_LS_OBSERVED,
+                    MW_LS_OBSERVED, LS_FIT_START, LS_FIT_END, RG_Z, RG_W, CONFORMATION_SLOPE,
+                    MASS_ELUTED, INTRINSIC_VISCOSITY, MV, MH_K, MH_A, MH_A_SE, MN_UNIVERSAL,
+                    MW_UNIVERSAL, G_PRIME, COMPOSITION_A, MN_BROADENING, MW_BROADENING,
+                    DISPERSITY_BROADENING, DETECTOR_SCALE)
 
 # Earlier builds wrote the setting into the shift headers: "Mn shift, low-M limit -0.2 mL [%]".
 LEGACY_NAMES[r"Mn shift, low-M limit -\S+ mL \[%\]"] = MN_SHIFT_LOW_M

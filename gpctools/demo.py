@@ -55,6 +55,7 @@ __all__ = [
     "write_demo_series",
     "write_troubleshooting_case",
     "write_qc_sequence",
+    "write_detector_demo",
     "run_demo",
     "run_demo_series",
     "write_chromatogram",
@@ -353,6 +354,7 @@ def write_demo_folder(folder: str | Path) -> Path:
     write_demo_series(folder / "transfer_series")
     write_troubleshooting_case(folder / "troubleshooting")
     write_qc_sequence(folder / "qc_sequence")
+    write_detector_demo(folder / "detectors")
     return folder
 
 
@@ -471,7 +473,7 @@ def write_qc_sequence(folder: str | Path) -> dict[str, Any]:
         write_chromatogram(folder / "exports" / f"{sid}.csv", V, h)
         rows.append(f"{sid},exports/{sid}.csv,calibration_standard,,,SEQ-2612-A,2026-12-01,{'; '.join(stds)},,")
     for k, (sid, role, product, batch, mp, disp, flow_err, seed) in enumerate(QC_INJECTIONS):
-        if mp is None:
+        if mp is None or disp is None:
             h = 3.5 - 0.04 * (V - V[0]) + rng.normal(0.0, 0.04, V.size) + marker
             avg: dict[str, float] = {}
         else:
@@ -507,6 +509,8 @@ _DEMO_PARTS: tuple[tuple[str, tuple[str, ...], str], ...] = (
     ("QC sequence", ("qc_sequence/batch.csv", "qc_sequence/method.toml", "qc_sequence/spec_limits.csv",
                      "qc_sequence/qc_settings.toml"),
      "`gpctools qc SHEET --method METHOD.toml --specs SPECS.csv` runs on any sequence"),
+    ("detectors", ("detectors/batch.csv", "detectors/method.toml", "detectors/truth.csv"),
+     "`gpctools batch` runs any sheet with a method that has [detectors]"),
 )
 
 
@@ -577,6 +581,11 @@ def run_demo(
             with show("run series: chromatograms, Mayo fits, impurity flags, plots"):
                 report["transfer"] = run_demo_series(folder / "transfer_series", out / "transfer", echo=echo)
             if not report["transfer"].get("ok", False):
+                report["failed"] += 1
+        elif name == "detectors":
+            with show("more detectors: light scattering, viscometer, narrow-standard offsets"):
+                report["detectors"] = _demo_detectors(folder / "detectors", out / "detectors", echo)
+            if not report["detectors"].get("ok", False):
                 report["failed"] += 1
         elif name == "QC sequence":
             with show("QC sequence: own calibration, blank, verdicts, control charts, report"):
@@ -734,6 +743,166 @@ def run_demo_series(
         "E_tr - E_p true [kJ/mol]": truth["E_tr - E_p [kJ/mol]"],
         "ok": ok,
     }
+
+
+# -- more detectors: RI + multi-angle light scattering + viscometer -----------------------------
+#: Larchmere's second line (invented): RI, a 7-angle light-scattering photometer and a bridge
+#: viscometer in series. The lab makes a methacrylate binder, LM-40, for which no same-polymer
+#: standards exist. Mark-Houwink pairs in THF [dL/g, -]: polystyrene and the binder's polymer.
+DETECTOR_LINE: dict[str, Any] = {
+    "K_PS": 1.14e-4, "a_PS": 0.716, "K_LM": 9.44e-5, "a_LM": 0.719,
+    "offsets": {"ls": 0.120, "visc": 0.250},  # [mL] the plumbing of the line
+    "sigmas": {"ri": 0.10, "ls": 0.12, "visc": 0.15},  # [mL] Gaussian spreading per detector
+    "noise": {"ri": 0.002, "ls": 0.005, "visc": 0.003},  # fraction of each channel's maximum
+    "angles": (35.0, 50.0, 75.0, 90.0, 105.0, 130.0, 145.0),
+    "dn_dc_PS": 0.185, "dn_dc_LM": 0.084,  # [mL/g] in THF at the laser and the RI wavelength
+    "standard": ("PS 96k", 96_000.0, 1.02, 1.0e-4),  # name, Mp [g/mol], dispersity, mass [g]
+    # lots of LM-40: Schulz-Zimm Mn [g/mol], shape b (dispersity (b + 1)/b), injected mass [g]
+    "lots": (("LM-40-0312", 70_000.0, 2.0, 2.0e-4), ("LM-40-0319", 95_000.0, 1.5, 2.0e-4)),
+}
+DETECTOR_SLICES = 1801  # 0.01 mL slices from 8 to 26 mL
+
+_DETECTOR_METHOD = """# Larchmere's multi-detector line (invented): RI + 7-angle light scattering + bridge
+# viscometer in THF at 1.0 mL/min. The detector constants, offsets and broadening were set with
+#   gpctools detectors standard_PS96k.csv -m method.toml --mw 96960 --dispersity 1.02 --mass-mg 0.1
+# and pasted here; dn/dc is the binder's (the standard's is 0.185 mL/g).
+name = "Larchmere multi-detector line"
+sample_polymer = "LM-40 methacrylate binder"
+
+[flow]
+rate = 1.0
+
+[calibration]
+order = 3
+standard_polymer = "polystyrene"
+standards = "standards.csv"
+
+[detectors]
+concentration = "ri"
+
+[detectors.ri]
+kind = "RI"
+constant = 5.0e4          # signal per refractive-index unit
+dn_dc = 0.084             # [mL/g] at the RI wavelength
+broadening = 0.10         # Gaussian sigma [mL]
+
+[detectors.ls]
+kind = "light scattering"
+wavelength = 658          # [nm]
+dn_dc = 0.084             # [mL/g] at the laser wavelength
+solvent_refractive_index = 1.404
+angles = [35, 50, 75, 90, 105, 130, 145]
+constant = 1.0e-5         # [1/cm per signal unit]
+offset = 0.120            # [mL] downstream of the RI
+broadening = 0.12
+
+[detectors.visc]
+kind = "viscometer"
+design = "bridge"
+columns = ["DP", "IP"]
+offset = 0.250
+broadening = 0.15
+
+[detectors.analysis]
+standard_K = 1.14e-4      # polystyrene in THF [dL/g], for universal calibration with measured [eta]
+standard_a = 0.716
+"""
+
+
+def _ps_log_M(V: np.ndarray) -> np.ndarray:
+    return np.asarray(simulate.default_calibration().log_M(V))
+
+
+def _lm_log_M(V: np.ndarray) -> np.ndarray:
+    """The binder's true calibration: equal [η]M at equal V (universal calibration)."""
+    p = DETECTOR_LINE
+    return (math.log10(p["K_PS"] / p["K_LM"]) + (1.0 + p["a_PS"]) * _ps_log_M(V)) / (1.0 + p["a_LM"])
+
+
+def write_detector_demo(folder: str | Path) -> dict[str, Any]:
+    """The multi-detector part: a narrow-standard injection, two binder lots, method, truth.
+
+    Files: ``standard_PS96k.csv`` (the standard on every detector), ``LM-40-*.csv``,
+    ``batch.csv``, ``method.toml`` (the set-up as pasted from ``gpctools detectors``),
+    ``truth.csv`` (each lot's exact Schulz-Zimm Mn and Mw and the plumbing offsets),
+    ``standards.csv`` (the line's polystyrene standards).
+    """
+    folder = Path(folder)
+    p = DETECTOR_LINE
+    V = np.linspace(8.0, 26.0, DETECTOR_SLICES)
+    common = dict(volume=V, angles=p["angles"], offsets=p["offsets"], sigmas=p["sigmas"], noise=p["noise"])
+    name, Mp, D, mass = p["standard"]
+    _, ch = simulate.multi_detector_traces(simulate.lognormal(Mp, D), _ps_log_M, mass=mass, K=p["K_PS"],
+                                           a=p["a_PS"], dn_dc_ri=p["dn_dc_PS"], dn_dc_ls=p["dn_dc_PS"],
+                                           seed=4101, **common)
+    write_text(folder / "standard_PS96k.csv", simulate.multi_detector_export(
+        V, ch, metadata={"Sample": name, "Injected mass": "0.100 mg"}))
+    rows, truth = ["sample_id,file"], ["sample_id,file,Mn [g/mol],Mw [g/mol],LS offset [mL],viscometer offset [mL]"]
+    for i, (lot, Mn, b, m) in enumerate(p["lots"]):
+        _, ch = simulate.multi_detector_traces(simulate.schulz_zimm(Mn, b), _lm_log_M, mass=m, K=p["K_LM"],
+                                               a=p["a_LM"], dn_dc_ri=p["dn_dc_LM"], dn_dc_ls=p["dn_dc_LM"],
+                                               seed=4200 + i, **common)
+        write_text(folder / f"{lot}.csv", simulate.multi_detector_export(V, ch, metadata={"Sample": lot}))
+        rows.append(f"{lot},{lot}.csv")
+        truth.append(f"{lot},{lot}.csv,{Mn:.1f},{Mn * (b + 1) / b:.1f},{p['offsets']['ls']},{p['offsets']['visc']}")
+    write_text(folder / "batch.csv", "\n".join(rows) + "\n")
+    write_text(folder / "truth.csv", "\n".join(truth) + "\n")
+    write_text(folder / "method.toml", _DETECTOR_METHOD)
+    write_text(folder / "standards.csv", "\n".join(["name,Mp [g/mol],volume [mL]"] + [
+        f"{n},{m:.0f},{v:.2f}" for n, m, v in simulate.DEFAULT_STANDARDS]) + "\n")
+    return {"folder": str(folder), "lots": [lot for lot, *_ in p["lots"]]}
+
+
+def _demo_detectors(folder: Path, out: Path, echo: Callable[[str], None]) -> dict[str, Any]:
+    """The binder lots on the multi-detector line: absolute Mn, Mw beside the truth, and the
+    offsets the narrow standard gives (``gpctools detectors``) beside the method's."""
+    import pandas as pd
+
+    from . import columns as C
+    from .batch import process_trace, run_batch
+    from .detectors import NarrowStandard
+    from .detectors.pipeline import calibrate_with_standard
+    from .io import read_chromatogram
+    from .method import load_method
+    from .report import DistributionWriter, write_batch
+
+    method = load_method(folder / "method.toml")
+    res = run_batch(folder / "batch.csv", method, on_result=DistributionWriter(out / "distributions"))
+    write_batch(res, out, distributions=False)
+    truth = pd.read_csv(folder / "truth.csv").set_index("sample_id")
+    echo(f"\nMore detectors ({folder}): absolute molar mass by light scattering")
+    echo(f"{'sample':<13}{'Mn LS':>10}{'true Mn':>10}{'dev':>8}{'Mw LS':>10}{'true Mw':>10}{'dev':>8}"
+         f"{'Mn PS-eq.':>11}{'[eta]w [dL/g]':>15}{'a [-]':>7}")
+    worst = 0.0
+    for _, r in res.table.iterrows():
+        if r[C.STATUS] != "ok":
+            echo(f"{r[C.SAMPLE_ID]:<13}failed: {r[C.ERROR]}")
+            worst = math.inf
+            continue
+        t = truth.loc[r[C.SAMPLE_ID]]
+        dn = 100 * (r[C.MN_LS] / t["Mn [g/mol]"] - 1)
+        dw = 100 * (r[C.MW_LS] / t["Mw [g/mol]"] - 1)
+        worst = max(worst, abs(dn), abs(dw))
+        echo(f"{r[C.SAMPLE_ID]:<13}{r[C.MN_LS]:>10,.0f}{t['Mn [g/mol]']:>10,.0f}{dn:>+7.2f}%{r[C.MW_LS]:>10,.0f}"
+             f"{t['Mw [g/mol]']:>10,.0f}{dw:>+7.2f}%{r[C.MN]:>11,.0f}{r[C.INTRINSIC_VISCOSITY]:>15.4f}"
+             f"{r[C.MH_A]:>7.3f}")
+    std_path = folder / "standard_PS96k.csv"
+    _, Mp, D, mass = DETECTOR_LINE["standard"]
+    chrom = read_chromatogram(std_path, channels="all")
+    V = chrom.to_volume(method.flow_rate)
+    trace = process_trace(V, chrom.signal, method, sample_id="PS 96k", file=str(std_path))
+    std = NarrowStandard(name="PS 96k", Mw=Mp * math.sqrt(D), dispersity=D, injected_mass=mass,
+                         a=DETECTOR_LINE["a_PS"])
+    cal = calibrate_with_standard(chrom, V, trace, method, std)
+    echo("offsets from the narrow standard (polydispersity lead included) [mL]: " + ", ".join(
+        f"{d.name} {d.offset:.4f} (true {DETECTOR_LINE['offsets'][d.name]:.3f})"
+        for d in cal.detectors if d.name in DETECTOR_LINE["offsets"]))
+    echo(f"multi-detector results written to {out} (results.csv with the detector columns, distributions/)")
+    off_err = max(abs(d.offset - DETECTOR_LINE["offsets"][d.name]) for d in cal.detectors
+                  if d.name in DETECTOR_LINE["offsets"])
+    return {"worst deviation [%]": float(worst), "worst offset error [mL]": float(off_err),
+            "ok": bool(worst < 2.0 and off_err < 0.01),
+            "offsets [mL]": {d.name: float(d.offset) for d in cal.detectors}}
 
 
 def _demo_qc(folder: Path, out: Path, result, echo: Callable[[str], None]) -> dict[str, Any]:

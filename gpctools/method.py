@@ -83,6 +83,7 @@ from gpctools.display import Display
 
 from . import columns as C
 from .calibration import Calibration, fit_calibration
+from .detectors.pipeline import DetectorMethod
 from .errors import CalibrationError, MethodError
 
 if sys.version_info >= (3, 11):
@@ -98,7 +99,7 @@ Window = tuple[float, float]
 _SCHEMA: dict[str, set[str] | None] = {
     "": {"name", "sample_polymer", "import", "flow", "flow_marker", "baseline", "integration",
          "calibration", "mark_houwink", "thresholds", "description", "peaks", "fractions",
-         "qc"},  # [qc]: read by gpctools.qc (QC settings)
+         "qc", "detectors"},  # [qc]: read by gpctools.qc (QC settings); [detectors]: gpctools.detectors
     "import": {"x_column", "signal_column", "x_unit", "sheet", "decimal", "separator", "encoding"},
     "flow": {"rate"},
     "flow_marker": {"reference", "search", "min_signal_to_noise", "fwhm", "required"},
@@ -220,6 +221,10 @@ class Method(Display):
         "linear" or "exclude" (see :func:`gpctools.distribution.compute_distribution`).
     outside_warn_pct, residual_limit_pct, limit_shift : float
         Thresholds [% mass], [%], [mL].
+    detectors : DetectorMethod or None
+        The ``[detectors]`` section: light scattering, viscometer, UV and RI set-up, the
+        export column of each, offsets and broadening (docs/detectors.md); None for a
+        single-detector method.
     source : str or None
         Path of the method file; ``sha256`` its SHA-256 and ``text`` its content.
     """
@@ -241,6 +246,7 @@ class Method(Display):
     peaks: PeakOptions = field(default_factory=PeakOptions)
     fractions: FractionOptions = field(default_factory=FractionOptions)
     import_options: ImportOptions = field(default_factory=ImportOptions)
+    detectors: DetectorMethod | None = None
     source: str | None = None
     sha256: str | None = None
     text: str | None = None
@@ -498,6 +504,7 @@ def _build(data: dict[str, Any], base: Path, source: str | None) -> Method:
         raise _err("must be text, e.g. 'polystyrene'", "sample_polymer", source)
 
     calibration = _build_calibration(data, base, source, flow_rate, res_pct, sample_polymer, settings)
+    detectors = _detectors(data, source, flow_rate, calibration, settings)
 
     name = data.get("name", "")
     if not isinstance(name, str):
@@ -520,6 +527,7 @@ def _build(data: dict[str, Any], base: Path, source: str | None) -> Method:
         peaks=peak_options,
         fractions=fraction_options,
         import_options=import_options,
+        detectors=detectors,
         source=source,
         settings=settings,
     )
@@ -557,6 +565,23 @@ def _import_options(data: dict[str, Any], source: str | None, settings: dict[str
             opts[k] = v
     settings["import"] = dict(opts)
     return ImportOptions(**opts)
+
+
+def _detectors(data: dict[str, Any], source: str | None, flow_rate: float | None, calibration: Calibration,
+               settings: dict[str, Any]) -> DetectorMethod | None:
+    """``[detectors]``: the multi-detector set-up, checked by
+    :meth:`gpctools.detectors.DetectorMethod.from_mapping` (MethodError naming the dotted
+    key, e.g. ``detectors.ls.dn_dc``); the ``[mark_houwink]`` pairs fill in the
+    standards' and the sample's Mark-Houwink constants it does not give."""
+    if "detectors" not in data:
+        return None
+    mh = calibration.mark_houwink or {}
+    pairs = {k: float(mh[f"{k} [dL/g]" if k.startswith("K") else f"{k} [-]"])
+             for k in ("K_standard", "a_standard", "K_sample", "a_sample")
+             if (f"{k} [dL/g]" if k.startswith("K") else f"{k} [-]") in mh}
+    det = DetectorMethod.from_mapping(data["detectors"], flow_rate=flow_rate, source=source, mark_houwink=pairs)
+    settings["detectors"] = det.summary()
+    return det
 
 
 def _flow(data: dict[str, Any], source: str | None, settings: dict[str, Any]) -> float | None:

@@ -42,7 +42,7 @@ from collections.abc import Callable, Mapping, Sequence
 from typing import Any
 
 import numpy as np
-from scipy.special import gammaln  # type: ignore[import-untyped]
+from scipy.special import gammaln
 
 from .calibration import Calibration, fit_calibration
 from .chainlength import DistributionModel, cumulative_averages
@@ -58,6 +58,8 @@ __all__ = [
     "DEFAULT_STANDARDS",
     "export_text",
     "averages_from_dwdlogM",
+    "multi_detector_traces",
+    "multi_detector_export",
     "simulate_series",
     "kinetic_series",
 ]
@@ -299,6 +301,149 @@ def export_text(
     else:
         body = [separator.join(t) for t in zip(fmt_x, fmt_h)]
     return "\n".join(lines + body) + "\n"
+
+
+# ============================================================================ more detectors
+
+#: Avogadro constant [1/mol] (SI 2019 exact value).
+_N_A = 6.02214076e23
+
+
+def _spread(V: np.ndarray, y: np.ndarray, sigma: float) -> np.ndarray:
+    """y convolved with a unit-area Gaussian of s.d. ``sigma`` [mL] on an equally spaced axis."""
+    if sigma <= 0:
+        return y
+    step = float(np.median(np.diff(V)))
+    half = int(math.ceil(6.0 * sigma / step))
+    u = np.arange(-half, half + 1) * step
+    g = np.exp(-0.5 * (u / sigma) ** 2)
+    g /= g.sum()
+    pad = np.concatenate([np.full(half, y[0]), y, np.full(half, y[-1])])
+    return np.convolve(pad, g, mode="valid")
+
+
+def _moved(V: np.ndarray, y: np.ndarray, offset: float) -> np.ndarray:
+    """What a detector ``offset`` mL downstream shows at V: y at V − offset."""
+    return np.interp(V - offset, V, y) if offset else y
+
+
+def multi_detector_traces(
+    distribution: Callable[[np.ndarray], np.ndarray],
+    log_M: Callable[[np.ndarray], np.ndarray],
+    *,
+    mass: float,
+    volume: Any = None,
+    ri_constant: float = 5.0e4,
+    dn_dc_ri: float = 0.185,
+    dn_dc_ls: float = 0.185,
+    wavelength: float = 658.0,
+    solvent_refractive_index: float = 1.404,
+    angles: Sequence[float] = (35.0, 50.0, 75.0, 90.0, 105.0, 130.0, 145.0),
+    ls_constant: float = 1.0e-5,
+    rg_Q: float = 0.014,
+    rg_nu: float = 0.585,
+    K: float = 1.14e-4,
+    a: float = 0.716,
+    huggins: float = 0.35,
+    inlet_pressure: float = 100.0,
+    offsets: Mapping[str, float] | None = None,
+    sigmas: Mapping[str, float] | None = None,
+    noise: Mapping[str, float] | None = None,
+    seed: int | None = None,
+) -> tuple[np.ndarray, dict[str, np.ndarray]]:
+    """RI, multi-angle light-scattering and bridge-viscometer traces of one injection.
+
+    The separated profile is W(V) = mass · dw/dlog10 M(M(V)) · |d log10 M/dV| [g/mL]
+    (the same mapping as :func:`chromatogram`, with ``log_M`` the sample's own
+    calibration). Each detector sees its own response density, spread by a Gaussian of
+    its own σ and read ``offset`` mL downstream (shown at V what left the columns at
+    V − Δ). Standard definitions, written out here independently of
+    :mod:`gpctools.detectors`:
+
+    - RI: S = k_RI · dn/dc · W;
+    - light scattering at angle θ: R_θ = K*·W·M·P(θ), K* = 4π²n0²(dn/dc)²/(N_A λ⁴),
+      P(θ) = 2(e^−x + x − 1)/x² for a random coil (Debye), x = q²Rg²,
+      q = 4πn0 sin(θ/2)/λ, Rg = Q·M^ν [nm]; channel signal R_θ/``ls_constant``;
+      the second virial term is left out;
+    - bridge viscometer: u = G ⊗ (W·[η]), [η] = K·M^a (K in dL/g, ×100 for mL/g),
+      η_sp = u + k_H·u², differential pressure ΔP = η_sp·IP/(4 + 2η_sp) and the inlet
+      pressure IP.
+
+    Parameters
+    ----------
+    distribution : callable
+        dw/dlog10 M of the sample [-] (unit area over log10 M).
+    log_M : callable
+        V [mL] -> log10 M of the *sample* [g/mol] (its true calibration).
+    mass : float
+        Injected polymer mass [g].
+    offsets : mapping
+        ``"ls"``, ``"visc"`` -> Δ = V_detector − V_RI [mL].
+    sigmas : mapping
+        ``"ri"``, ``"ls"``, ``"visc"`` -> Gaussian spreading σ [mL].
+    noise : mapping
+        ``"ri"``, ``"ls"``, ``"visc"`` -> white-noise s.d. as a fraction of each channel's
+        maximum [-].
+
+    Returns
+    -------
+    volume : numpy.ndarray
+        [mL]
+    channels : dict
+        ``"RI"`` [RIU·k_RI], ``"LS <θ>"`` per angle, ``"DP"``, ``"IP"`` [kPa].
+    """
+    V = np.linspace(8.0, 26.0, 3601) if volume is None else np.asarray(volume, dtype=float)
+    off = {"ls": 0.0, "visc": 0.0, **(offsets or {})}
+    sig = {"ri": 0.0, "ls": 0.0, "visc": 0.0, **(sigmas or {})}
+    nz = {"ri": 0.0, "ls": 0.0, "visc": 0.0, **(noise or {})}
+    rng = np.random.default_rng(seed)
+    lg = np.asarray(log_M(V), dtype=float)
+    M = 10.0**lg
+    W = mass * np.asarray(distribution(M), dtype=float) * np.abs(np.gradient(lg, V))
+
+    def noisy(y: np.ndarray, key: str) -> np.ndarray:
+        sd = nz[key] * float(np.max(np.abs(y)))
+        return y + rng.normal(0.0, sd, y.size) if sd > 0 else y
+
+    out: dict[str, np.ndarray] = {"RI": noisy(_spread(V, ri_constant * dn_dc_ri * W, sig["ri"]), "ri")}
+    lam_cm = wavelength * 1e-7
+    K_star = 4.0 * math.pi**2 * solvent_refractive_index**2 * dn_dc_ls**2 / (_N_A * lam_cm**4)
+    rg = rg_Q * M**rg_nu  # [nm]
+    for theta in angles:
+        q = 4.0 * math.pi * solvent_refractive_index * math.sin(math.radians(theta) / 2.0) / wavelength  # [1/nm]
+        x = (q * rg) ** 2
+        with np.errstate(invalid="ignore", divide="ignore"):
+            P = np.where(x > 1e-8, 2.0 * (np.exp(-x) + x - 1.0) / np.where(x > 1e-8, x, 1.0) ** 2, 1.0 - x / 3.0)
+        R = _moved(V, _spread(V, K_star * W * M * P, sig["ls"]), off["ls"])
+        out[f"LS {theta:g}"] = noisy(R / ls_constant, "ls")
+    u = _moved(V, _spread(V, W * 100.0 * K * M**a, sig["visc"]), off["visc"])
+    eta_sp = u + huggins * u * u
+    out["DP"] = noisy(eta_sp * inlet_pressure / (4.0 + 2.0 * eta_sp), "visc")
+    out["IP"] = np.full(V.size, float(inlet_pressure))
+    return V, out
+
+
+def multi_detector_export(
+    volume: Any,
+    channels: Mapping[str, Any],
+    *,
+    units: Mapping[str, str] | None = None,
+    metadata: Mapping[str, str] | None = None,
+    separator: str = ",",
+) -> str:
+    """Several detector channels as the text of one slice export (nothing is written).
+
+    Headers are ``<channel> [<unit>]`` (default unit ``mV``; ``DP``/``IP`` in ``kPa``),
+    numbers with 8 significant digits.
+    """
+    V = np.asarray(volume, dtype=float)
+    names = list(channels)
+    u = {"DP": "kPa", "IP": "kPa", **(units or {})}
+    head = ["Elution volume [mL]"] + [f"{n} [{u.get(n, 'mV')}]" for n in names]
+    cols = np.column_stack([V] + [np.asarray(channels[n], dtype=float) for n in names])
+    line = separator.join(["%.8g"] * cols.shape[1]) + "\n"
+    lines = [f"{k}: {v}" for k, v in (metadata or {}).items()]
+    return "\n".join(lines + [separator.join(head)]) + "\n" + (line * cols.shape[0]) % tuple(cols.ravel().tolist())
 
 
 # ============================================================================ run series

@@ -117,7 +117,7 @@ class AverageUncertainty(Display):
         """The uncertainty of ``"Mn"``, ``"Mw"`` or ``"Mz"``."""
         if name not in UNCERTAIN_AVERAGES:
             raise KeyError(name)
-        return getattr(self, name)  # type: ignore[no-any-return]
+        return getattr(self, name)
 
     def summary(self) -> dict[str, Any]:
         return {

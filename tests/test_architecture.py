@@ -43,15 +43,17 @@ import pytest
 #: Layers, lowest first. A module belongs to the layer of the longest entry that names it
 #: or one of its parent packages (``gpctools.transfer`` claims ``gpctools.transfer.mayo``);
 #: the root package's entry claims only the root ``__init__``. The order follows the
-#: contributor guide's drawing with one change the code asked for: ``method`` sits above
-#: ``calibration``, because loading a method file fits its calibration.
+#: contributor guide's drawing with two changes the code asked for: ``method`` sits above
+#: ``calibration``, because loading a method file fits its calibration, and above
+#: ``detectors``, because it checks the ``[detectors]`` section with them.
 LAYERS: tuple[tuple[str, ...], ...] = (
     ("gpctools", "gpctools.errors", "gpctools.templates"),  # metadata; starter files (package data)
     ("gpctools.columns", "gpctools.formatting", "gpctools.display"),  # vocabulary, number policy, repr mixin
     ("gpctools.io", "gpctools.sheets"),
     ("gpctools.signal", "gpctools.calibration"),
-    ("gpctools.method", "gpctools.distribution", "gpctools.uncertainty"),
+    ("gpctools.distribution", "gpctools.uncertainty"),
     ("gpctools.detectors",),  # multi-detector numerics: above distribution, below batch
+    ("gpctools.method",),  # the method file checks its [detectors] section with gpctools.detectors
     ("gpctools.batch",),
     ("gpctools.chainlength", "gpctools.refdata"),
     ("gpctools.transfer", "gpctools.kinetics"),

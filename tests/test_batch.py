@@ -35,7 +35,7 @@ def _hashes(folder: Path) -> dict[str, str]:
 
 def test_demo_batch_matches_truth_within_1_percent(demo_dir, tmp_path):
     # The truth is analytic (Schulz-Zimm and log-normal averages, IUPAC Gold Book /
-    # SCIENCE.md section 8); 1 % is the acceptance stated for the demo.
+    # docs/science.md, section 8); 1 % is the acceptance stated for the demo.
     method = load_method(demo_dir / "method.toml")
     res = run_batch(demo_dir / "batch.csv", method, on_result=DistributionWriter(tmp_path / "out" / "distributions"))
     truth = pd.read_csv(demo_dir / "truth.csv").set_index("file")  # replicates share a sample_id
@@ -136,7 +136,7 @@ def test_batch_sheet_template_reads(tmp_path):
 
 
 def test_low_m_tail_raises_mn_sensitivity(tmp_path):
-    # A low-M tail moves Mn when the late limit moves, Mw hardly (SCIENCE.md section 9).
+    # A low-M tail moves Mn when the late limit moves, Mw hardly (docs/science.md, section 9).
     cal = simulate.default_calibration()
     main = simulate.schulz_zimm(80_000, 2.0)
     tail = simulate.lognormal(1_800, 1.3)

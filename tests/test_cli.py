@@ -139,14 +139,14 @@ def test_demo_writes_its_sample_runs_and_runs_every_part(tmp_path, monkeypatch):
         head = line.split("...")[0]
         assert any(p.startswith(head) for p in printed), f"README line not printed: {line!r}"
     assert "largest deviation from the true averages" in r.output
-    assert "demo parts run: batch, QC, transfer, diagnosis, QC sequence" in r.output
+    assert "demo parts run: batch, QC, transfer, diagnosis, QC sequence, detectors" in r.output
     assert "skipped" not in r.output
     for part in ("sample_runs/batch.csv", "batch/results.csv", "qc/qc_report.html", "transfer/constants.csv",
                  "troubleshooting/diagnosis.md"):
         assert (out / part).is_file(), part
     summary = json.loads((out / "demo_summary.json").read_text())
     assert summary["parts"] == {p: {"status": "ran"} for p in ("batch", "QC", "transfer", "diagnosis",
-                                                               "QC sequence")}
+                                                               "QC sequence", "detectors")}
     # The replicates share a sample id, so the replicate check is evaluated (issue 15).
     qc = json.loads((out / "qc" / "qc_summary.json").read_text())
     results = {c["check"]: c["result"] for s in qc["suitability"] for c in s["checks"]}
@@ -170,7 +170,7 @@ def test_demo_on_a_hand_made_folder_reports_each_skipped_part(demo_dir, tmp_path
     assert "QC skipped: no spec_limits.csv in" in r.output
     assert "transfer skipped: no transfer_series/run_series.csv and no transfer_series/truth.json" in r.output
     assert "diagnosis skipped: no troubleshooting/recipe.toml and no troubleshooting/batch.csv" in r.output
-    assert "demo parts run: batch; skipped: QC, transfer, diagnosis, QC sequence" in r.output
+    assert "demo parts run: batch; skipped: QC, transfer, diagnosis, QC sequence, detectors" in r.output
     # without truth.csv the averages are printed alone, and the note says why
     assert "no truth.csv in" in r.output and "largest deviation" not in r.output
     summary = json.loads((tmp_path / "o" / "demo_summary.json").read_text())

@@ -1,5 +1,5 @@
 """Band-broadening corrections: Hamielec factors, EMG factors, σ from a narrow standard,
-deconvolution, and the CLD-slope bias (../shared/DETECTORS.md §4, status tags beside each
+deconvolution, and the CLD-slope bias (docs/science.md, section 12, status tags beside each
 value). Numerical convolutions here are done with numpy/scipy in the test, not with the
 module under test, wherever they serve as the independent side of a check.
 """
@@ -23,14 +23,14 @@ from gpctools.detectors import (
 from gpctools.distribution import averages
 from gpctools.errors import DataError
 
-A, B, V0, SIG = 12.0, 0.3, 22.0, 0.8  # reference sample of DETECTORS.md §0
+A, B, V0, SIG = 12.0, 0.3, 22.0, 0.8  # reference sample of docs/detectors.md, units and names
 D2 = math.log(10) * B
 
 
 @pytest.mark.parametrize(
     ("sigma", "mw", "mn", "d"),
     [
-        # DETECTORS.md §4.2, DERIVED (verified there by numerical convolution of the reference sample)
+        # docs/science.md, section 12, DERIVED (verified there by numerical convolution of the reference sample)
         (0.1, 1.0024, 0.9976, 1.0048),
         (0.2, 1.0096, 0.9905, 1.0193),
         (0.3, 1.0217, 0.9788, 1.0439),
@@ -63,7 +63,7 @@ def test_hamielec_factors_against_numerical_convolution():
 
 
 def test_emg_factors_and_equal_variance_gaussian():
-    # DETECTORS.md §4.2, DERIVED: EMG σ 0.15, τ 0.10 (centred) → Mw ×1.00768, Mn ×0.99216;
+    # docs/science.md, section 12, DERIVED: EMG σ 0.15, τ 0.10 (centred) → Mw ×1.00768, Mn ×0.99216;
     # the Gaussian with the same variance: 1.00778, 0.99228
     f = broadening_factors(Spreading(0.15, 0.10), B)
     assert f["Mw"] == pytest.approx(1.00768, abs=5e-6)
@@ -101,7 +101,7 @@ def test_correct_averages_reports_both():
 
 @pytest.mark.parametrize(("sigma", "d_obs"), [(0.1, 1.0249), (0.2, 1.0397), (0.3, 1.0648)])
 def test_sigma_from_narrow_standard(sigma, d_obs):
-    # DETECTORS.md §4.3 (B5), DERIVED: Đ_true 1.02, B 0.3
+    # docs/science.md, section 12 (B5), DERIVED: Đ_true 1.02, B 0.3
     got = spreading_from_dispersity(d_obs, 1.02, B).sigma
     # tolerance: Đ_obs printed to 4 decimals; dσ/dĐ = 1/(2 D2² σ Đ) gives up to 0.002 mL at σ 0.1
     assert got == pytest.approx(sigma, abs=2.5e-3)
@@ -124,7 +124,7 @@ def test_sigma_from_standard_refuses_no_broadening():
 @pytest.mark.parametrize(
     ("s", "peak", "window"),
     [
-        # DETECTORS.md §4.4 table, DERIVED (numerical convolution in ln M of a Flory distribution)
+        # docs/science.md, section 12 table, DERIVED (numerical convolution in ln M of a Flory distribution)
         (0.10, 1.0049, 1.0021),
         (0.14, 1.0094, 1.0039),
         (0.20, 1.0186, 1.0072),
@@ -136,9 +136,9 @@ def test_cld_bias_table(s, peak, window):
     # tolerance: 4-decimal print plus grid differences between two independent numerical convolutions
     assert r.at_peak == pytest.approx(peak, abs=1.5e-4)
     assert r.in_window == pytest.approx(window, abs=1.5e-4)
-    # first-order rule of thumb (DETECTORS.md §4.4): peak bias ≈ σ²/2, window about half of it
+    # first-order rule of thumb (docs/science.md, section 12): peak bias ≈ σ²/2, window about half of it
     assert r.at_peak - 1 == pytest.approx(s * s / 2, rel=0.15)
-    # Đ of the broadened Flory distribution, closed form 2·exp(σ²) (B3 in ln M). The DETECTORS.md
+    # Đ of the broadened Flory distribution, closed form 2·exp(σ²) (B3 in ln M). The docs/detectors.md
     # table prints 2.016/2.035/2.077/2.183, about 0.2 % lower: its grid truncated the Flory tail.
     assert r.dispersity_observed == pytest.approx(2 * math.exp(s * s), rel=1e-12)
 

@@ -1,4 +1,4 @@
-"""UV + RI copolymer composition (../shared/DETECTORS.md §5; algebra K1-K7)."""
+"""UV + RI copolymer composition (docs/science.md, section 16; algebra K1-K7)."""
 
 from __future__ import annotations
 
@@ -10,7 +10,7 @@ import pytest
 from gpctools.detectors import Copolymer, composition, copolymer_dn_dc, copolymer_log_M
 from gpctools.errors import DataError
 
-# DETECTORS.md §5.1 check set-up, DERIVED: k_RI 1e4, dn/dc 0.185 / 0.084, f_UV 2000 / 50
+# docs/science.md, section 16 check set-up, DERIVED: k_RI 1e4, dn/dc 0.185 / 0.084, f_UV 2000 / 50
 CP = Copolymer(("styrene", "methyl acrylate"), (0.185, 0.084), (2000.0, 50.0))
 K_RI = 1e4
 
@@ -38,12 +38,12 @@ def test_inversion_against_numpy_solve_and_uv_error():
     ref = np.linalg.solve(F, S)  # independent: numpy's LU solve
     np.testing.assert_allclose(r.c_A, ref[0], rtol=1e-10)
     np.testing.assert_allclose(r.c_B, ref[1], rtol=1e-10)
-    # DETECTORS.md §5.1, DERIVED: a +1 % UV error gives w_A = 0.3046 on the check slice
+    # docs/science.md, section 16, DERIVED: a +1 % UV error gives w_A = 0.3046 on the check slice
     assert composition([0.2286], [0.127 * 1.01], CP, K_RI, threshold=0.0).w_A[0] == pytest.approx(0.3046, abs=5e-5)
 
 
 def test_single_dn_dc_error_size():
-    # DETECTORS.md §5.1, DERIVED: using A's dn/dc for the whole slice gives c ×0.618
+    # docs/science.md, section 16, DERIVED: using A's dn/dc for the whole slice gives c ×0.618
     c_wrong = 0.2286 / (K_RI * 0.185)
     assert c_wrong / 2.0e-4 == pytest.approx(0.618, abs=5e-4)
 
@@ -68,7 +68,7 @@ def test_indistinguishable_components_refused():
 
 
 def test_copolymer_calibration_and_dn_dc():
-    # DETECTORS.md K7 check (MEMORY method, DERIVED number): w_A 0.3, M_A 1.00e5, M_B 1.09e5 → 106 218
+    # docs/detectors.md, check values (MEMORY method, DERIVED number): w_A 0.3, M_A 1.00e5, M_B 1.09e5 → 106 218
     assert 10 ** copolymer_log_M(0.3, 5.0, math.log10(1.09e5)) == pytest.approx(106_218, abs=0.5)
     assert copolymer_dn_dc(1.0, 0.185, 0.084) == pytest.approx(0.185)
 

@@ -2,7 +2,7 @@
 
 Traces come from ``gpctools.detectors._synthetic`` (each detector's response density
 spread by its own band-spreading function and moved by its offset). Every check pairs
-that generator with a closed form from ../shared/DETECTORS.md (status tag beside it) or
+that generator with a closed form from docs/detectors.md (status tag beside it) or
 with scipy quadrature, so the generator is never the only judge.
 """
 
@@ -27,8 +27,8 @@ from gpctools.detectors import (
 from gpctools.detectors import _synthetic as syn
 from gpctools.errors import SignalWarning
 
-A, B, V0, SIG = 12.0, 0.3, 22.0, 0.8  # DETECTORS.md §0 reference sample
-MN_REF, MW_REF, MZ_REF = 215_618.0, 292_627.0, 397_140.0  # DETECTORS.md §0, DERIVED
+A, B, V0, SIG = 12.0, 0.3, 22.0, 0.8  # docs/detectors.md, units and names reference sample
+MN_REF, MW_REF, MZ_REF = 215_618.0, 292_627.0, 397_140.0  # docs/detectors.md, units and names, DERIVED
 D2 = math.log(10) * B
 ANGLES = [35, 50, 75, 90, 105, 130, 145]
 
@@ -52,8 +52,8 @@ def _reference(setup, *, step=0.01, noise=None, seed=0, polymer=None, mass=2e-4)
 
 
 def test_reference_sample_closed_forms_hold_for_the_generator():
-    # RI area = k_RI·dn/dc·m = 1.85 V·mL for 0.200 mg (DETECTORS.md §1.1, DERIVED);
-    # the peak slice c = 9.97e-5 g/mL and peak R_0 = K*·c·M = 6.89e-6 1/cm at 658 nm (§2.1, DERIVED)
+    # RI area = k_RI·dn/dc·m = 1.85 V·mL for 0.200 mg (docs/science.md, section 13, DERIVED);
+    # the peak slice c = 9.97e-5 g/mL and peak R_0 = K*·c·M = 6.89e-6 1/cm at 658 nm (docs/science.md, section 14, derived)
     s = _setup(ls_offset=0.0, constants=True)
     tr = _reference(s, polymer=syn.Polymer(rg_Q=1e-6), step=0.002)
     V = tr.volume
@@ -61,7 +61,7 @@ def test_reference_sample_closed_forms_hold_for_the_generator():
     assert float(np.max(tr["ri"])) / (5e4 * 0.185) == pytest.approx(9.97e-5, abs=5e-8)
     R0_peak = float(np.max(tr["ls"][:, 0])) * 1.2e-5  # Rg → 0 so P = 1 at every angle
     assert R0_peak == pytest.approx(6.89e-6, abs=5e-9)
-    # independent: the max of K*·c(V)·M(V) in closed form is at V0 − D2σ² (§1.2 mechanism)
+    # independent: the max of K*·c(V)·M(V) in closed form is at V0 − D2σ² (docs/science.md, section 13 mechanism)
     K = optical_constant(0.185, 658.0, 1.404)
     Vp = V0 - D2 * SIG**2
     c = 2e-4 * math.exp(-0.5 * ((Vp - V0) / SIG) ** 2) / (SIG * math.sqrt(2 * math.pi))
@@ -74,7 +74,7 @@ def test_reference_sample_closed_forms_hold_for_the_generator():
     [(0.12, 0.0), (0.17, 0.0), (0.12, 0.2), (0.07, {"sigma": 0.15, "tau": 0.1})],
 )
 def test_mw_from_areas_is_offset_and_broadening_free(declared_offset, broadening):
-    # L11 (DETECTORS.md §2.7, DERIVED): Mw = 292 627 for the reference sample, unchanged by a
+    # L11 (docs/science.md, section 14, DERIVED): Mw = 292 627 for the reference sample, unchanged by a
     # 0.05 mL offset error or by broadening
     truth = _setup(ls_offset=0.12, ri_b=broadening, ls_b=broadening)
     tr = _reference(truth, polymer=syn.Polymer(rg_Q=1e-4))  # Rg < 1 nm: no angular extrapolation error
@@ -101,18 +101,18 @@ def test_slice_molar_mass_and_averages_with_broadening(broadening):
     assert r.averages["Mz"] == pytest.approx(MZ_REF, rel=5e-4)
     assert r.log_M_fit.coef[1] == pytest.approx(-B, rel=2e-4)
     if broadening:
-        # before the correction the LS slope is flattened by σ_p²/σ_t² (DETECTORS.md §1.2, §2.7):
+        # before the correction the LS slope is flattened by σ_p²/σ_t² (docs/science.md, section 13, §2.7):
         # Đ from LS without it is biased low, as the IUPAC project summary states (FOUND)
         assert r.averages_observed["dispersity"] != pytest.approx(r.averages["dispersity"], rel=1e-3)
 
 
 def test_low_molar_mass_fit_beats_raw_slices():
-    # DETECTORS.md §2.8 (method MEMORY, numbers DERIVED, seeded): LS noise 1 % of peak, RI 0.2 %,
+    # docs/science.md, section 14 (method MEMORY, numbers DERIVED, seeded): LS noise 1 % of peak, RI 0.2 %,
     # window ±3.5σ; raw slices bias Mn by several %, the log M(V) fit by ~0.2 %.
     lo, hi = V0 - 3.5 * SIG, V0 + 3.5 * SIG
     c = lambda v: math.exp(-0.5 * ((v - V0) / SIG) ** 2)  # noqa: E731
     M = lambda v: 10 ** (A - B * v)  # noqa: E731
-    # exact window values by scipy quad (DETECTORS.md prints 215 875 / 292 280, within 0.003 %)
+    # exact window values by scipy quad (docs/detectors.md prints 215 875 / 292 280, within 0.003 %)
     mn_w = quad(c, lo, hi)[0] / quad(lambda v: c(v) / M(v), lo, hi)[0]
     mw_w = quad(lambda v: c(v) * M(v), lo, hi)[0] / quad(c, lo, hi)[0]
     assert mn_w == pytest.approx(215_875, rel=5e-5) and mw_w == pytest.approx(292_280, rel=5e-5)
@@ -127,12 +127,12 @@ def test_low_molar_mass_fit_beats_raw_slices():
         assert abs(r.averages["Mn"] / mn_w - 1) < 0.015
         assert abs(r.averages["Mw"] / mw_w - 1) < 0.01
     assert np.mean(np.abs(raw_err)) > 3 * np.mean(np.abs(fit_err))
-    assert np.mean(raw_err) < -0.01  # the raw bias is downward, as DETECTORS.md reports (−5.7 % at seed 1)
+    assert np.mean(raw_err) < -0.01  # the raw bias is downward, as docs/detectors.md reports (−5.7 % at seed 1)
 
 
 def _narrow(D=1.02, Mw=1e5, mass=1e-4):
     """A log-normal narrow standard through the linear calibration: Gaussian profile of σ_p."""
-    sp = math.sqrt(math.log(D)) / D2  # σ_p² = ln Đ/D2² (DETECTORS.md §1.2)
+    sp = math.sqrt(math.log(D)) / D2  # σ_p² = ln Đ/D2² (docs/science.md, section 13)
     Mp = Mw / math.sqrt(D)  # Mw = Mp·e^(s²/2) and Đ = e^(s²) for the log-normal
     Vc = (A - math.log10(Mp)) / B
     return syn.gaussian_profile(Vc, sp, mass), sp, Vc
@@ -140,7 +140,7 @@ def _narrow(D=1.02, Mw=1e5, mass=1e-4):
 
 @pytest.mark.parametrize(("D", "lead"), [(1.02, 0.0287), (1.01, 0.0144)])
 def test_polydispersity_lead_closed_form_and_simulation(D, lead):
-    # L0, DETECTORS.md §1.2, DERIVED: ℓ_LS = ln Đ/(ln10·B); simulation there 0.028 mL at 0.002 mL
+    # L0, docs/science.md, section 13, DERIVED: ℓ_LS = ln Đ/(ln10·B); simulation there 0.028 mL at 0.002 mL
     assert polydispersity_lead(D, B) == pytest.approx(lead, abs=5e-5)
     s = _setup(ls_offset=0.0, visc_offset=0.0, ri_b=0.2, ls_b=0.2, visc_b=0.2)
     prof, sp, Vc = _narrow(D)
@@ -158,9 +158,9 @@ def test_polydispersity_lead_closed_form_and_simulation(D, lead):
 
 @pytest.mark.parametrize(("offset_error", "slope"), [(0.0, -0.153), (-0.02, -0.046), (0.02, -0.259)])
 def test_apparent_slope_across_a_narrow_standard(offset_error, slope):
-    # DETECTORS.md §1.2, DERIVED and verified numerically there: Đ 1.02, σ_b 0.2, B 0.3 → apparent
+    # docs/science.md, section 13, DERIVED and verified numerically there: Đ 1.02, σ_b 0.2, B 0.3 → apparent
     # d log M/dV = −Bσ_p²/(σ_p² + σ_b²) = −0.153 (true −0.300); an offset error of 0.02 mL moves it
-    # by 0.02/(σ_t² ln10) = 0.107, to −0.046 (DETECTORS.md gives the magnitude; with our sign
+    # by 0.02/(σ_t² ln10) = 0.107, to −0.046 (docs/detectors.md gives the magnitude; with our sign
     # convention that is an offset declared 0.02 mL too small). The "flat M(V)" rule carries the bias.
     s = _setup(ls_offset=0.0, ri_b=0.2, ls_b=0.2)
     prof, sp, Vc = _narrow(1.02)

@@ -1,6 +1,6 @@
 """Light-scattering formulas: K*, P(θ), angular extrapolation, A2, dissymmetry, Flory-Fox.
 
-Check values come from ../shared/DETECTORS.md; its status tag (FOUND / MEMORY / DERIVED)
+Check values come from docs/detectors.md; its status tag (FOUND / MEMORY / DERIVED)
 is carried in each comment. DERIVED values are exact consequences of the published
 equations computed there with numpy, and most are paired here with an independent
 computation (scipy.constants, closed forms).
@@ -33,10 +33,10 @@ LAM, N0 = 658.0, 1.404
 @pytest.mark.parametrize(
     ("dn_dc", "lam", "n0", "expected"),
     [
-        (0.185, 632.8, 1.404, 2.758e-7),  # DETECTORS.md §2.1, DERIVED (PS/THF, 632.8 nm)
-        (0.185, 658.0, 1.404, 2.359e-7),  # DETECTORS.md §2.1 and §9 item 1, DERIVED (PS/THF, 658 nm)
-        (0.185, 690.0, 1.403, 1.948e-7),  # DETECTORS.md §2.1, DERIVED (690 nm, n0 1.403)
-        (0.087, 658.0, 1.404, 5.218e-8),  # DETECTORS.md §2.1, DERIVED (PMMA/THF, 658 nm)
+        (0.185, 632.8, 1.404, 2.758e-7),  # docs/science.md, section 14, DERIVED (PS/THF, 632.8 nm)
+        (0.185, 658.0, 1.404, 2.359e-7),  # docs/science.md, section 14 and §9 item 1, DERIVED (PS/THF, 658 nm)
+        (0.185, 690.0, 1.403, 1.948e-7),  # docs/science.md, section 14, DERIVED (690 nm, n0 1.403)
+        (0.087, 658.0, 1.404, 5.218e-8),  # docs/science.md, section 14, DERIVED (PMMA/THF, 658 nm)
     ],
 )
 def test_optical_constant_check_values(dn_dc, lam, n0, expected):
@@ -61,10 +61,10 @@ def test_scattering_vector_closed_form():
 @pytest.mark.parametrize(
     ("angle", "rg", "expected"),
     [
-        (90.0, 10.0, 0.988),   # DETECTORS.md §2.2, DERIVED: P(90°) = 0.988 at Rg 10 nm
-        (7.0, 30.0, 0.9992),   # DETECTORS.md §2.4, DERIVED: LALS at 7°
-        (15.0, 30.0, 0.9963),  # DETECTORS.md §2.4, DERIVED: LALS at 15°
-        (160.0, 3.0, 0.9979),  # DETECTORS.md §2.5 isotropy table, DERIVED
+        (90.0, 10.0, 0.988),   # docs/science.md, section 14, DERIVED: P(90°) = 0.988 at Rg 10 nm
+        (7.0, 30.0, 0.9992),   # docs/science.md, section 14, DERIVED: LALS at 7°
+        (15.0, 30.0, 0.9963),  # docs/science.md, section 14, DERIVED: LALS at 15°
+        (160.0, 3.0, 0.9979),  # docs/science.md, section 14 isotropy table, DERIVED
         (90.0, 5.0, 0.9970),   # same table
         (160.0, 10.0, 0.9772),  # same table
     ],
@@ -86,7 +86,7 @@ def test_coil_function_matches_its_taylor_series_at_small_x(rg):
 
 
 def _debye_coil_rayleigh(M, rg, c=1e-5, A2=0.0):
-    """R_θ of a random coil from L4 with the Debye function L6 (the DETECTORS.md test set-up)."""
+    """R_θ of a random coil from L4 with the Debye function L6 (the docs/detectors.md test set-up)."""
     K = optical_constant(0.185, LAM, N0)
     P = coil_scattering_function(ANGLES, rg, LAM, N0)
     return K * c / (1.0 / (M * P) + 2 * A2 * c), K
@@ -95,7 +95,7 @@ def _debye_coil_rayleigh(M, rg, c=1e-5, A2=0.0):
 @pytest.mark.parametrize(
     ("rg", "formalism", "order", "M_exp", "rg_exp"),
     [
-        # DETECTORS.md §2.2 test table, DERIVED: M = 1e6, 658 nm, n0 1.404, 7 angles
+        # docs/science.md, section 14 test table, DERIVED: M = 1e6, 658 nm, n0 1.404, 7 angles
         (50.0, "zimm", 1, 1.013e6, 53.6),
         (50.0, "debye", 1, 0.969e6, 41.4),
         (50.0, "berry", 1, 0.998e6, 49.6),
@@ -116,7 +116,7 @@ def test_angular_fit_table(rg, formalism, order, M_exp, rg_exp):
 
 
 def test_all_formalisms_agree_for_small_coils():
-    # DETECTORS.md §2.2: "all agree when x = q²Rg² ≪ 1" (DERIVED); Rg 12 nm gives x < 0.05
+    # docs/science.md, section 14: "all agree when x = q²Rg² ≪ 1" (DERIVED); Rg 12 nm gives x < 0.05
     R, K = _debye_coil_rayleigh(2e5, 12.0)
     Ms = [fit_angles(R[None, :], [1e-5], ANGLES, optical=K, wavelength=LAM, solvent_refractive_index=N0,
                      formalism=f).M[0] for f in ("zimm", "debye", "berry")]
@@ -124,7 +124,7 @@ def test_all_formalisms_agree_for_small_coils():
 
 
 def test_A2_correction_recovers_M_and_size_of_effect():
-    # L4 with A2 = 3e-4 mol mL/g², M 1e6, c 5e-5 g/mL: 2A2cM = 0.030 (DETECTORS.md §2.3, DERIVED)
+    # L4 with A2 = 3e-4 mol mL/g², M 1e6, c 5e-5 g/mL: 2A2cM = 0.030 (docs/science.md, section 14, DERIVED)
     A2, c, M = 3e-4, 5e-5, 1e6
     assert 2 * A2 * c * M == pytest.approx(0.030)
     R, K = _debye_coil_rayleigh(M, 15.0, c=c, A2=A2)
@@ -157,7 +157,7 @@ def test_angular_fit_refuses_bad_order_and_shapes():
 
 @pytest.mark.parametrize(("z", "rg"), [(1.0468, 20.0), (1.3072, 50.0)])
 def test_dissymmetry_check_values(z, rg):
-    # DETECTORS.md §2.4, DERIVED: coil, 658 nm, z(15°, 90°); tolerance from the 4-decimal print of z
+    # docs/science.md, section 14, DERIVED: coil, 658 nm, z(15°, 90°); tolerance from the 4-decimal print of z
     assert rg_from_dissymmetry(z, (15.0, 90.0), LAM, N0)[0] == pytest.approx(rg, abs=0.05)
     # and the forward direction with the closed-form coil function
     P = coil_scattering_function(np.array([15.0, 90.0]), rg, LAM, N0)
@@ -165,7 +165,7 @@ def test_dissymmetry_check_values(z, rg):
 
 
 def test_flory_fox_and_viscometric_radius():
-    # DETECTORS.md V14 check: PS 1e5 in THF, [η] 43.34 mL/g → Rg ≈ 10.6 nm, R_η ≈ 8.8 nm
+    # docs/detectors.md, check values: PS 1e5 in THF, [η] 43.34 mL/g → Rg ≈ 10.6 nm, R_η ≈ 8.8 nm
     # (Flory-Fox FOUND: IUPAC Gold Book 12265; good-solvent Φ MEMORY; numbers DERIVED)
     assert flory_fox_rg(0.43342, 1e5) == pytest.approx(10.6, abs=0.05)
     assert viscometric_radius(0.43342, 1e5) == pytest.approx(8.8, abs=0.05)
@@ -174,7 +174,7 @@ def test_flory_fox_and_viscometric_radius():
 def test_rals_plus_viscometer_iteration_recovers_M():
     # Build R90 from the closed forms (coil P with Flory-Fox Rg) and check the iteration inverts them
     M = np.array([5e4, 3e5, 2e6])
-    eta = 1.14e-4 * M**0.716  # PS Mark-Houwink pair of DETECTORS.md §3.4 (dL/g)
+    eta = 1.14e-4 * M**0.716  # PS Mark-Houwink pair of docs/science.md, section 15 (dL/g)
     rg = flory_fox_rg(eta, M)
     K = optical_constant(0.185, LAM, N0)
     c = np.full(3, 2e-5)

@@ -65,7 +65,7 @@ def test_setup_from_toml_mapping_and_round_trip():
     assert ls.kind == "light scattering" and ls.angles[3] == 90.0 and ls.normalisation == (1.0,) * 7
     assert ls.broadening == Spreading(0.12, 0.02)
     assert s["visc"].offset == pytest.approx(0.25)  # delay 0.25 min × 1.0 mL/min
-    assert s["uv"].offset == -0.05  # upstream of the RI: negative (DETECTORS.md §1.2 sign)
+    assert s["uv"].offset == -0.05  # upstream of the RI: negative (docs/science.md, section 13 sign)
     assert s.copolymer is not None and s.copolymer.uv_response == (2000.0, 50.0)
     again = DetectorSetup.from_mapping(s.to_mapping())
     assert again == s
@@ -148,7 +148,7 @@ def test_traces_sorted_and_checked():
 
 def test_align_follows_the_offset_sign():
     # Δ = V_X − V_conc > 0: the downstream detector's peak sits later; reading X at V + Δ
-    # puts it back on the concentration axis (DETECTORS.md §1.2)
+    # puts it back on the concentration axis (docs/science.md, section 13)
     V = np.arange(0, 10, 0.01)
     conc = np.exp(-0.5 * ((V - 5) / 0.3) ** 2)
     x = np.exp(-0.5 * ((V - 5.2) / 0.3) ** 2)
@@ -158,7 +158,7 @@ def test_align_follows_the_offset_sign():
 
 
 def test_matching_spreading_adds_variance():
-    # C6: σ²_extra = σ²_more − σ²_less (DETECTORS.md §1.3, DERIVED)
+    # C6: σ²_extra = σ²_more − σ²_less (docs/science.md, section 13, DERIVED)
     m = matching_spreading(Spreading(0.1), Spreading(0.2, 0.05))
     assert m.sigma**2 == pytest.approx(0.2**2 - 0.1**2)
     assert m.tau == 0.05

@@ -1,7 +1,7 @@
 """Viscometry and branching: η_sp from the detector designs, [η] per slice, universal
 calibration with measured [η], Mark-Houwink fit, Mv, Zimm-Stockmayer g and its inversion.
 
-Check values from ../shared/DETECTORS.md §3 with their status tags. Traces for the
+Check values from docs/science.md, section 15 with their status tags. Traces for the
 whole-injection checks are built by hand with numpy from closed forms (a Gaussian
 concentration profile through log M = A − B·V), so the module is not checked against the
 test-data generator alone.
@@ -37,17 +37,17 @@ from gpctools.detectors import (
 )
 from gpctools.errors import CalibrationWarning, DataError
 
-# Reference analytic sample of DETECTORS.md §0: A = 12, B = 0.3 1/mL, Gaussian c at 22 mL, σ 0.8 mL
+# Reference analytic sample of docs/detectors.md, units and names: A = 12, B = 0.3 1/mL, Gaussian c at 22 mL, σ 0.8 mL
 A, B, V0, SIG = 12.0, 0.3, 22.0, 0.8
-MN_REF, MW_REF = 215_618.0, 292_627.0  # DETECTORS.md §0, DERIVED (closed forms of a log-normal)
-K_PS, A_PS = 1.14e-4, 0.716  # PS in THF, dL/g (= 1.14e-2 mL/g), DETECTORS.md §3.2 (from docs/science.md)
+MN_REF, MW_REF = 215_618.0, 292_627.0  # docs/detectors.md, units and names, DERIVED (closed forms of a log-normal)
+K_PS, A_PS = 1.14e-4, 0.716  # PS in THF, dL/g (= 1.14e-2 mL/g), docs/science.md, section 15 (from docs/science.md)
 
 
 # -- detector designs ----------------------------------------------------------------------
 @pytest.mark.parametrize(
     ("eta_sp", "dp", "naive"),
     [
-        (0.01, 0.24876, 0.00995),  # DETECTORS.md §3.1, DERIVED (bridge balance), IP = 100
+        (0.01, 0.24876, 0.00995),  # docs/science.md, section 15, DERIVED (bridge balance), IP = 100
         (0.1, 2.38095, 0.0952),
         (0.5, 10.0000, 0.400),
     ],
@@ -63,7 +63,7 @@ def test_bridge_formula_round_trip(eta_sp, dp, naive):
 
 def test_capillary_designs_and_gain():
     ch = np.array([[0.5, 50.0], [1.0, 50.0]])
-    # V1: η_sp = (ΔP − ΔP0)/ΔP0 (DETECTORS.md §3.1, FOUND form of a single capillary)
+    # V1: η_sp = (ΔP − ΔP0)/ΔP0 (docs/science.md, section 15, FOUND form of a single capillary)
     np.testing.assert_allclose(specific_viscosity("single capillary", ch), [0.01, 0.02], rtol=1e-14)
     np.testing.assert_allclose(specific_viscosity("two capillaries", ch, constant=2.0), [0.02, 0.04], rtol=1e-14)
     np.testing.assert_allclose(specific_viscosity("specific viscosity", [0.01, 0.02], constant=1.5),
@@ -77,7 +77,7 @@ def test_capillary_designs_and_gain():
 @pytest.mark.parametrize(
     ("eta_true", "c", "eta_sp", "dilute", "sc"),
     [
-        # DETECTORS.md §3.2 table, DERIVED with Huggins k_H = 0.35; [η] in mL/g there
+        # docs/science.md, section 15 table, DERIVED with Huggins k_H = 0.35; [η] in mL/g there
         (100.0, 2e-3, 0.214000, 107.00, 100.20),
         (100.0, 1e-4, 0.010035, 100.35, 100.02),
         (300.0, 5e-4, 0.157875, 315.75, 300.51),
@@ -102,7 +102,7 @@ def test_solomon_ciuta_keeps_the_sign_of_noise():
 
 # -- universal calibration ---------------------------------------------------------------
 def test_universal_calibration_check_values():
-    # DETECTORS.md §3.3, DERIVED: PS-equivalent 1e5 → J = 4.3342e6 mL/mol = 4.3342e4 dL/mol
+    # docs/science.md, section 15, DERIVED: PS-equivalent 1e5 → J = 4.3342e6 mL/mol = 4.3342e4 dL/mol
     J = hydrodynamic_volume(5.0, K_PS, A_PS)
     assert J == pytest.approx(4.3342e4, rel=1e-4)  # printed to 5 figures
     # → PMMA (9.44e-5 dL/g, 0.719): M = 109 380, [η] = 39.63 mL/g (also in docs/science.md)
@@ -120,7 +120,7 @@ def test_universal_calibration_check_values():
 
 @pytest.mark.parametrize(("M", "eta_ml"), [(1e4, 8.335), (1e5, 43.342), (1e6, 225.375)])
 def test_mark_houwink_values_polystyrene(M, eta_ml):
-    # DETECTORS.md §3.4, DERIVED from the PS pair
+    # docs/science.md, section 15, DERIVED from the PS pair
     assert mark_houwink_viscosity(M, K_PS, A_PS) * 100 == pytest.approx(eta_ml, abs=5e-4)
 
 
@@ -138,14 +138,14 @@ def _reference_slices(step=0.005, huggins=0.0):
 
 
 def test_number_average_by_viscometry_equals_reference():
-    # DETECTORS.md V9 check, DERIVED: reference sample as PS → Mn = 215 618 exactly
+    # docs/detectors.md, check values, DERIVED: reference sample as PS → Mn = 215 618 exactly
     V, c, eta_sp, w, J, m = _reference_slices()
     mass = float(np.sum(c * w))
     assert number_average_universal(eta_sp, w, J, mass) == pytest.approx(MN_REF, rel=2e-6)  # 6-figure print
 
 
 def test_weight_average_intrinsic_viscosity_and_Mv():
-    # DETECTORS.md V10 check, DERIVED: [η]_w = 90.636 mL/g, = K·Mv^a with Mv = 280 208
+    # docs/detectors.md, check values, DERIVED: [η]_w = 90.636 mL/g, = K·Mv^a with Mv = 280 208
     V, c, eta_sp, w, J, m = _reference_slices()
     eta_w = weight_average_intrinsic_viscosity(eta_sp, w, float(np.sum(c * w)))
     assert eta_w * 100 == pytest.approx(90.636, abs=5e-4)
@@ -198,7 +198,7 @@ def test_viscometry_analysis_universal_calibration_end_to_end():
 
 
 def test_viscometry_weight_average_is_offset_free():
-    # V10 needs no alignment (DETECTORS.md §3.3): a wrong declared offset leaves [η]_w unchanged
+    # V10 needs no alignment (docs/science.md, section 15): a wrong declared offset leaves [η]_w unchanged
     tr = _hand_traces(_setup_ri_visc(), offset=0.25)
     right = analyse_viscometry(tr, _setup_ri_visc(offset=0.25)).intrinsic_w
     wrong = analyse_viscometry(tr, _setup_ri_visc(offset=0.30)).intrinsic_w
@@ -235,7 +235,7 @@ def test_mark_houwink_fit_flags_downward_bend():
 @pytest.mark.parametrize(
     ("model", "values"),
     [
-        # DETECTORS.md §3.5, DERIVED from the Zimm-Stockmayer formulas (formulas MEMORY), n = 1/2/5/10
+        # docs/science.md, section 15, DERIVED from the Zimm-Stockmayer formulas (formulas MEMORY), n = 1/2/5/10
         ("trifunctional", (0.9089, 0.8401, 0.7042, 0.5800)),
         ("tetrafunctional", (0.8153, 0.7065, 0.5364, 0.4125)),
         ("trifunctional polydisperse", (0.8431, 0.7394, 0.5591, 0.4151)),
@@ -250,14 +250,14 @@ def test_zimm_stockmayer_table(model, values):
 
 
 def test_star_contraction():
-    # DETECTORS.md V20, DERIVED: f = 3/4/6/12 → 0.7778/0.6250/0.4444/0.2361
+    # docs/detectors.md, check values, DERIVED: f = 3/4/6/12 → 0.7778/0.6250/0.4444/0.2361
     np.testing.assert_allclose(contraction_factor([3, 4, 6, 12], "star"), [0.7778, 0.6250, 0.4444, 0.2361], atol=5e-5)
 
 
 @pytest.mark.parametrize(
     ("eps", "model", "n"),
     [
-        (0.75, "trifunctional", 3.97),  # DETECTORS.md §3.5, DERIVED: g′ 0.80 → g 0.7427 → n3 3.97
+        (0.75, "trifunctional", 3.97),  # docs/science.md, section 15, DERIVED: g′ 0.80 → g 0.7427 → n3 3.97
         (0.75, "tetrafunctional", 1.62),
         (0.5, "trifunctional", 7.19),
         (1.5, "trifunctional", 1.66),

@@ -88,7 +88,7 @@ def zeta(h: float) -> float:
 
 
 FLOW_EPS = 0.005  # a pump 0.5 % slow, not corrected (our choice)
-FLOW_FACTOR = 10 ** (-BV * FLOW_EPS)  # every average × 10^(−B·V·ε) [derived, science §2.2]
+FLOW_FACTOR = 10 ** (-BV * FLOW_EPS)  # every average × 10^(−B·V·ε) [derived, docs/science.md, section 2]
 
 #: cause -> (perturbation of the lot, extra recipe keys); magnitudes are our choice, each a
 #: common size of that fault: 40 ppm of a thiol, a double initiator charge, 10 K, a

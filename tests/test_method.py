@@ -84,7 +84,7 @@ def test_standards_given_as_time_need_flow(tmp_path):
     with pytest.raises(MethodError) as e:
         load_method(write(tmp_path, body))
     assert e.value.key == "flow.rate"
-    # two standards for an order-1 fit leave no degrees of freedom: warned (SCIENCE.md section 2)
+    # two standards for an order-1 fit leave no degrees of freedom: warned (docs/science.md, section 2)
     with pytest.warns(CalibrationWarning, match="only 2 standards"):
         m = load_method(write(tmp_path, "[flow]\nrate = 0.5\n" + body))
     assert m.calibration.volume == (7.5, 9.0)
@@ -157,7 +157,7 @@ def test_mark_houwink_section_converts(tmp_path):
         """
     )
     m = load_method(write(tmp_path, body))
-    # PS-equivalent 1e5 -> PMMA 109 380 [derived from the IUPAC pairs, SCIENCE.md section 2]
+    # PS-equivalent 1e5 -> PMMA 109 380 [derived from the IUPAC pairs, docs/science.md, section 2]
     assert m.calibration.M(15.0) == pytest.approx(109_380, rel=1e-4)  # rounding of the check value
     assert m.calibration.is_absolute
     assert "universal" in m.calibration.scale_label()

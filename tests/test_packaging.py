@@ -197,6 +197,7 @@ def test_wheel_in_a_fresh_venv_runs_the_whole_demo_from_an_empty_folder(tmp_path
         assert f"gpctools/templates/{t}" in names, t
     assert any(n.startswith("gpctools/report/templates/") for n in names)
     assert any(n.startswith("gpctools/data/") and n.endswith(".csv") for n in names)
+    assert "gpctools/py.typed" in names  # PEP 561 marker: the package ships its types
     assert not any("sample_runs" in n for n in names)  # the demo writes them (DEVELOPERS.md, Packaging)
 
     venv = tmp_path / "venv"
@@ -218,7 +219,7 @@ def test_wheel_in_a_fresh_venv_runs_the_whole_demo_from_an_empty_folder(tmp_path
     out = empty / "gpctools-demo"
     summary = json.loads((out / "demo_summary.json").read_text(encoding="utf-8"))
     assert summary["parts"] == {p: {"status": "ran"} for p in ("batch", "QC", "transfer", "diagnosis",
-                                                               "QC sequence")}, demo.stdout
+                                                               "QC sequence", "detectors")}, demo.stdout
     assert summary["failed"] == 0
     assert summary["worst deviation [%]"] < 1.0  # the demo's stated acceptance (README)
     for part in ("sample_runs/batch.csv", "batch/results.csv", "batch/results.xlsx", "batch/review.html",
@@ -226,7 +227,7 @@ def test_wheel_in_a_fresh_venv_runs_the_whole_demo_from_an_empty_folder(tmp_path
                  "qc/qc_report.xlsx", "transfer/constants.csv", "troubleshooting/diagnosis.md",
                  "troubleshooting/diagnosis.xlsx"):
         assert (out / part).is_file(), part
-    assert "demo parts run: batch, QC, transfer, diagnosis, QC sequence" in demo.stdout
+    assert "demo parts run: batch, QC, transfer, diagnosis, QC sequence, detectors" in demo.stdout
     assert "Traceback" not in demo.stdout + demo.stderr
 
     _run([gpctools_exe, "template", "--all", "--out", "starters"], empty, env)

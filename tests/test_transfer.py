@@ -77,7 +77,7 @@ def test_mayo_weighted_fit_matches_numpy_reference():
     cov = np.linalg.inv((X * w[:, None]).T @ (X * w[:, None])) * (res @ res) / (RATIOS.size - 2)
     assert fit.constant("C_A").value == pytest.approx(beta[1], rel=1e-7)  # same linear problem
     assert fit.intercept.value == pytest.approx(beta[0], rel=1e-7)
-    # lmfit's covariance from the Jacobian equals the normal-equation one to rounding
+    # the covariance from the normal equations (reference: numpy lstsq + inverse above)
     assert fit.constant("C_A").stderr == pytest.approx(math.sqrt(cov[1, 1]), rel=1e-4)
     assert fit.intercept.stderr == pytest.approx(math.sqrt(cov[0, 0]), rel=1e-4)
 
@@ -292,10 +292,10 @@ def test_cld_curvature_positive_for_a_drifted_distribution():
 
 
 def test_apparent_constant_check_values():
-    # SCIENCE.md section 5 [derived]: C_A = 14.8 -> C_app 10.64 at x = 0.05, 7.90 at x = 0.10
+    # docs/science.md, section 5 [derived]: C_A = 14.8 -> C_app 10.64 at x = 0.05, 7.90 at x = 0.10
     assert float(apparent_constant(14.8, 0.05)) == pytest.approx(10.64, abs=0.005)
     assert float(apparent_constant(14.8, 0.10)) == pytest.approx(7.90, abs=0.005)
-    # for C_A < 1 the bias is small [derived, SCIENCE.md section 5]
+    # for C_A < 1 the bias is small [derived, docs/science.md, section 5]
     assert float(apparent_constant(0.5, 0.05)) == pytest.approx(0.5, rel=0.02)
 
 
@@ -362,7 +362,7 @@ def test_naive_fit_equals_analytic_C_app_at_fixed_conversion():
     x = 0.05
     y = cumulative_inv_dpn(np.full(RATIOS.size, x), INV_DPN0, {"C_A": (C_DDM_STYRENE_60, RATIOS)})
     naive = fit_mayo(y, {"C_A": RATIOS})
-    assert naive.constant("C_A").value == pytest.approx(10.64, abs=0.005)  # SCIENCE.md §5 [derived]
+    assert naive.constant("C_A").value == pytest.approx(10.64, abs=0.005)  # docs/science.md, section 5 [derived]
 
 
 def test_drift_identifiability_flag_when_agent_used_up():
@@ -444,7 +444,7 @@ def test_arrhenius_needs_two_temperatures():
 
 
 def test_impurity_level_check_value():
-    # SCIENCE.md section 9 [derived]: 10 ppm (mol) of a thiol with C = 15 adds 1.5e-4 to 1/DPn
+    # docs/science.md, section 9 [derived]: 10 ppm (mol) of a thiol with C = 15 adds 1.5e-4 to 1/DPn
     ppm, conc = impurity_level(1.5e-4, 15.0, 8.0)
     assert float(ppm) == pytest.approx(10.0)
     assert float(conc) == pytest.approx(8.0e-5)  # 10e-6 mol/mol × 8 mol/L [derived]
@@ -455,7 +455,7 @@ def test_contaminated_run_flagged_and_clean_runs_not():
     for seed in range(5):
         rng = np.random.default_rng(100 + seed)
         y = _lambda(ratios) * (1 + 0.015 * rng.standard_normal(ratios.size))
-        y[5] += 6.0e-4  # +40 ppm of a C = 15 impurity in run 6 [derived: SCIENCE.md §9]
+        y[5] += 6.0e-4  # +40 ppm of a C = 15 impurity in run 6 [derived: docs/science.md, section 9]
         chk = flag_runs(y, {"C_A": ratios}, C_X=15.0)
         assert chk.flagged_ids == ("6",)
         f = chk.flag("6")
@@ -500,7 +500,7 @@ def test_contaminated_run_flagged_under_conversion_drift():
 
 
 def test_intercept_check_against_a_control_value():
-    # every run carries 10 ppm of a C = 15 impurity: +1.5e-4 [derived: SCIENCE.md §9]
+    # every run carries 10 ppm of a C = 15 impurity: +1.5e-4 [derived: docs/science.md, section 9]
     rng = np.random.default_rng(10)
     y = (_lambda(RATIOS) + 1.5e-4) * (1 + 0.01 * rng.standard_normal(RATIOS.size))
     fit = fit_mayo(y, {"C_A": RATIOS})

@@ -73,7 +73,7 @@ def test_literature_constant_recovered_through_simulated_chromatograms(tmp_path)
     ct = res.constants_table()
     for est in ("Mn", "Mw/2", "CLD"):
         c = ct[ct["estimator"] == est]["C [-]"].iloc[0]
-        # issue 3: within 5 %; x = 0.2 % drift lowers C_app by 1.4 % [derived: SCIENCE.md §5]
+        # issue 3: within 5 %; x = 0.2 % drift lowers C_app by 1.4 % [derived: docs/science.md, section 5]
         assert c == pytest.approx(C_DDM_STYRENE_60, rel=0.05), est
     rt = res.runs_table()
     assert rt["CLD window low [g/mol]"].notna().all()

@@ -18,6 +18,7 @@ import numpy as np
 
 from gpctools.display import Display
 from gpctools.errors import DataError, GpcWarning
+from gpctools.sheets.cells import finite_or_none
 
 #: Avogadro constant [1/mol] (SI 2019 exact value, CODATA).
 N_A = 6.02214076e23
@@ -27,15 +28,6 @@ LN10 = math.log(10.0)
 ML_PER_DL = 100.0
 
 
-def finite_or_none(value: Any) -> Any:
-    """A float for JSON, or ``None`` where the value is NaN/inf/None."""
-    if value is None:
-        return None
-    try:
-        f = float(value)
-    except (TypeError, ValueError):
-        return value
-    return f if math.isfinite(f) else None
 
 
 def json_list(values: Any) -> list[Any]:

@@ -1,7 +1,7 @@
 """Slice bookkeeping shared by the light-scattering and viscometry analyses (private).
 
 The integration window, the "good signal" region, and the straight (or low-order) fit of
-log10 M against V that replaces noisy slice molar masses (DETECTORS.md §2.8).
+log10 M against V that replaces noisy slice molar masses (docs/science.md, section 14).
 """
 
 from __future__ import annotations
@@ -15,8 +15,9 @@ import numpy as np
 from gpctools.display import Display
 from gpctools.distribution import averages, slice_widths
 from gpctools.errors import DataError
+from gpctools.sheets.cells import finite_or_none
 
-from ._common import LineFit, finite_or_none, polyfit
+from ._common import LineFit, polyfit
 
 
 def window_mask(volume: np.ndarray, limits: tuple[float, float] | None) -> np.ndarray:
@@ -32,7 +33,7 @@ def window_mask(volume: np.ndarray, limits: tuple[float, float] | None) -> np.nd
 
 def good_signal_mask(conc: np.ndarray, other: np.ndarray, inside: np.ndarray, fraction: float) -> np.ndarray:
     """Slices where both traces exceed ``fraction`` of their maxima, contiguous around
-    the other detector's peak (DETECTORS.md §2.8: e.g. LS above 10 % of its maximum)."""
+    the other detector's peak (docs/science.md, section 14: e.g. LS above 10 % of its maximum)."""
     if not 0.0 < fraction < 1.0:
         raise DataError(f"the good-signal fraction must lie between 0 and 1, got {fraction}")
     c = np.where(inside, conc, -np.inf)

@@ -9,7 +9,7 @@ band spreading G_X and moved downstream by its offset Δ_X:
 with r_RI = k_RI·dn/dc, r_UV = response, r_LS(θ) = K*·M·P(θ, Rg(M)) (random coil,
 Rg = Q·M^ν; the A2 term is left out), and for the viscometer u = G ⊗ (W·[η]),
 η_sp = u + k_H·u² with [η] = K·M^a (dilute Huggins form). This is the exact model under
-which DETECTORS.md derives the lead, the matching rule and the area relations, so tests
+which docs/detectors.md derives the lead, the matching rule and the area relations, so tests
 pair its output with those closed forms; it is not a check of itself.
 """
 

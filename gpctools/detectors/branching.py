@@ -35,8 +35,9 @@ import numpy as np
 
 from gpctools.display import Display
 from gpctools.errors import DataError
+from gpctools.sheets.cells import finite_or_none
 
-from ._common import finite_or_none, json_list, positive
+from ._common import json_list, positive
 
 __all__ = ["MODELS", "contraction_factor", "branch_points", "Branching", "branching"]
 
@@ -49,7 +50,7 @@ def contraction_factor(n: Any, model: str = "trifunctional") -> np.ndarray:
 
     Examples
     --------
-    n = 5 (DETECTORS.md §3.5, derived from the formulas): g3 0.7042, g4 0.5364:
+    n = 5 (docs/science.md, section 15, derived from the formulas): g3 0.7042, g4 0.5364:
 
     >>> round(float(contraction_factor(5, "trifunctional")[0]), 4), round(float(contraction_factor(5, "tetrafunctional")[0]), 4)
     (0.7042, 0.5364)
@@ -92,7 +93,7 @@ def branch_points(g: Any, model: str = "trifunctional", *, n_max: float = 1e4) -
 
     Examples
     --------
-    g = 0.7427 (g′ 0.80 with ε 0.75): n3 = 3.97 (DETECTORS.md §3.5):
+    g = 0.7427 (g′ 0.80 with ε 0.75): n3 = 3.97 (docs/science.md, section 15):
 
     >>> round(float(branch_points(0.7427)[0]), 2)
     3.97

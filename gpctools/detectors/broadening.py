@@ -36,8 +36,9 @@ import numpy as np
 
 from gpctools.display import Display
 from gpctools.errors import DataError
+from gpctools.sheets.cells import finite_or_none
 
-from ._common import LN10, finite_or_none, positive
+from ._common import LN10, positive
 
 __all__ = [
     "Spreading",
@@ -230,7 +231,7 @@ def broadening_factors(spreading: Spreading, B: float, *, centred: bool = True) 
     Examples
     --------
     Gaussian σ = 0.2 mL, B = 0.3 1/mL: Mw ×1.0096, Mn ×0.9905, Đ ×1.0193
-    (DETECTORS.md §4.2, derived):
+    (docs/science.md, section 12, derived):
 
     >>> f = broadening_factors(Spreading(0.2), 0.3)
     >>> round(f["Mw"], 4), round(f["Mn"], 4), round(f["dispersity"], 4)
@@ -304,13 +305,13 @@ def correct_averages(averages: dict[str, float], spreading: Spreading, B: float)
         The concentration detector's total band spreading [mL].
     B : float
         −d log10 M/dV at the peak [1/mL]; for a non-linear calibration the local slope at
-        the peak is a first-order approximation (DETECTORS.md §4.2).
+        the peak is a first-order approximation (docs/science.md, section 12).
 
     Notes
     -----
     Do not apply this to averages from light scattering: with LS the slice molar mass is
     measured, Mw from areas is unaffected by broadening and Đ is biased low, not high
-    (DETECTORS.md §2.7).
+    (docs/science.md, section 14).
     """
     factors_all = broadening_factors(spreading, B)
     obs = {k: float(v) for k, v in averages.items() if k in factors_all and v is not None}
@@ -359,7 +360,7 @@ def spreading_from_dispersity(dispersity_observed: float, dispersity_true: float
 
     Examples
     --------
-    Đ_true 1.02, B 0.3: Đ_obs 1.0397 ↔ σ = 0.2 mL (DETECTORS.md §4.3, derived):
+    Đ_true 1.02, B 0.3: Đ_obs 1.0397 ↔ σ = 0.2 mL (docs/science.md, section 12, derived):
 
     >>> round(spreading_from_dispersity(1.0397, 1.02, 0.3).sigma, 3)
     0.2
@@ -441,7 +442,7 @@ def deconvolve(volume: Any, signal: Any, spreading: Spreading, *, smoothing: flo
     Minimises ||G·W − F||² + α·s²·||D₂W||² subject to W ≥ 0, where G is the (mean-free)
     spreading matrix, D₂ the second-difference operator and s² the mean squared column
     sum of G (so α is dimensionless). Unregularised inversion amplifies noise; the
-    penalty keeps W smooth (DETECTORS.md §4.4; the IUPAC project 2003-023-2-400 summary
+    penalty keeps W smooth (docs/science.md, section 12; the IUPAC project 2003-023-2-400 summary
     lists such regularised approaches).
 
     Parameters
@@ -569,7 +570,7 @@ def cld_broadening_bias(sigma_lnM: float, *, fraction: float = 0.5) -> CLDBias:
     References
     ----------
     van Berkel, Russell, Gilbert, Macromolecules 2005 (slope near the peak least
-    affected); the residual bias ≈ σ_lnM²/2 at the peak is derived (DETECTORS.md §4.4).
+    affected); the residual bias ≈ σ_lnM²/2 at the peak is derived (docs/science.md, section 12).
     """
     s = positive(sigma_lnM, "sigma lnM", allow_zero=True)
     if not 0.0 < fraction < 1.0:
@@ -624,7 +625,7 @@ def tilted_trace(V: np.ndarray, F: np.ndarray, g: Spreading, D2: float) -> np.nd
     F = G ⊗ W by undoing Exp(τ) (W′ = F + τ·dF/dV), applying Exp(τ′) and moving the result
     Dσ² to later volumes; the function returns M_G(D)·[G_t ⊗ W]. For a Gaussian G this is
     F read Dσ² earlier: the slice molar mass of a broadened trace leads the concentration
-    slice by the same mechanism as the narrow-standard lead (DETECTORS.md §1.2), with the
+    slice by the same mechanism as the narrow-standard lead (docs/science.md, section 13), with the
     broadening variance in place of the standard's own. Exact for a linear calibration
     (derived here; checked against closed-form averages in the tests).
     """

@@ -1,7 +1,7 @@
 """Copolymer composition per slice from a UV and an RI detector.
 
 Each component X contributes to each detector in proportion to its concentration, with
-response factors f_X^RI = k_RI·(dn/dc)_X and f_X^UV (signal per g/mL) (DETECTORS.md §5):
+response factors f_X^RI = k_RI·(dn/dc)_X and f_X^UV (signal per g/mL) (docs/science.md, section 16):
 
     S_RI = c_A f_A^RI + c_B f_B^RI                                                   (K1)
     S_UV = c_A f_A^UV + c_B f_B^UV                                                   (K2)
@@ -28,8 +28,9 @@ import numpy as np
 
 from gpctools.display import Display
 from gpctools.errors import DataError
+from gpctools.sheets.cells import finite_or_none
 
-from ._common import as_array, finite_or_none, positive
+from ._common import as_array, positive
 from ._slices import widths as slice_widths
 from ._slices import window_mask
 from .instrument import ConcentrationDetector, Copolymer, DetectorSetup
@@ -112,11 +113,11 @@ def composition(ri_signal: Any, uv_signal: Any, copolymer: Copolymer, ri_constan
         Slice widths ΔV [mL] for the overall composition (default: equal widths).
     threshold : float
         w_A is reported only where both signals exceed this fraction of their maxima
-        (DETECTORS.md §5.2 suggests 5-10 %).
+        (docs/science.md, section 16 suggests 5-10 %).
 
     Examples
     --------
-    The check slice of DETECTORS.md §5.1 (derived): k_RI 10⁴, dn/dc 0.185/0.084,
+    The check slice of docs/science.md, section 16 (derived): k_RI 10⁴, dn/dc 0.185/0.084,
     f^UV 2000/50, S_RI 0.2286, S_UV 0.127 → w_A = 0.300:
 
     >>> cp = Copolymer(("A", "B"), (0.185, 0.084), (2000.0, 50.0))
@@ -162,7 +163,7 @@ def copolymer_dn_dc(w_A: Any, dn_dc_A: float, dn_dc_B: float) -> np.ndarray:
 
     Examples
     --------
-    w_A 0.30 with 0.185 and 0.084 mL/g gives 0.1143 mL/g (DETECTORS.md §5.2, derived):
+    w_A 0.30 with 0.185 and 0.084 mL/g gives 0.1143 mL/g (docs/science.md, section 16, derived):
 
     >>> round(float(copolymer_dn_dc(0.3, 0.185, 0.084)), 4)
     0.1143
@@ -179,7 +180,7 @@ def copolymer_log_M(w_A: Any, log_M_A: Any, log_M_B: Any) -> np.ndarray:
 
     Examples
     --------
-    w_A 0.3, M_A 1.00×10⁵, M_B 1.09×10⁵ → 106 218 g/mol (DETECTORS.md §5.2):
+    w_A 0.3, M_A 1.00×10⁵, M_B 1.09×10⁵ → 106 218 g/mol (docs/science.md, section 16):
 
     >>> round(float(10 ** copolymer_log_M(0.3, 5.0, math.log10(1.09e5))))
     106218

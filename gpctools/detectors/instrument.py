@@ -46,7 +46,7 @@ Mapping layout (every detector is a sub-table with a name of the user's choosing
     dn_dc = [0.185, 0.084]            # per component, at the RI wavelength [mL/g]
     uv_response = [2.0e3, 50.0]       # per component [signal units per g/mL]
 
-Offset convention (DETECTORS.md §1.2): Δ_X = V_X − V_conc for the same fluid element,
+Offset convention (docs/science.md, section 13): Δ_X = V_X − V_conc for the same fluid element,
 positive when detector X is downstream of the concentration detector. To combine slices,
 X's trace is read at V + Δ_X for the concentration slice at V (X's axis shifted by −Δ_X).
 An offset given as a time delay [min] is converted with the flow rate.
@@ -156,7 +156,7 @@ class ConcentrationDetector(Detector, Display):
     ----------
     constant : float or None
         RI: k_RI, signal per refractive-index unit [signal units/RIU]; c = S/(k_RI·dn/dc)
-        (DETECTORS.md C1-C2).
+        (docs/detectors.md, check values).
     dn_dc : float or None
         RI: refractive-index increment at the RI detector's wavelength [mL/g].
     response : float or None
@@ -198,7 +198,7 @@ class LightScatteringDetector(Detector, Display):
     normalisation : tuple of float
         N_θ per channel, relative to the 90° channel [-].
     constant : float or None
-        k_cal: R_θ = k_cal·N_θ·(S_θ − S_θ,baseline) [cm⁻¹ per signal unit] (DETECTORS.md §2.1).
+        k_cal: R_θ = k_cal·N_θ·(S_θ − S_θ,baseline) [cm⁻¹ per signal unit] (docs/science.md, section 14).
     A2 : float
         Second virial coefficient of the sample [mol mL/g²] (0: no correction).
     """
@@ -254,7 +254,7 @@ class Viscometer(Detector, Display):
 
 @dataclass(frozen=True)
 class Copolymer:
-    """Two-component copolymer constants for UV + RI composition (DETECTORS.md §5).
+    """Two-component copolymer constants for UV + RI composition (docs/science.md, section 16).
 
     Attributes
     ----------

@@ -1,7 +1,7 @@
 """Absolute molar mass and size of one injection from light scattering + a concentration
 detector.
 
-Steps (DETECTORS.md §2.3, §2.7, §2.8):
+Steps (docs/science.md, section 14):
 
 1. c_i = S_conc,i/(k·dn/dc) from the concentration detector (C1-C2).
 2. The LS channels are read at V + Δ (offset) and the less broadened trace is spread to
@@ -12,7 +12,7 @@ Steps (DETECTORS.md §2.3, §2.7, §2.8):
    correction and no calibration enter, so this is the most robust LS number.
 5. **Low-M fix**: log10 M is fitted against V over the slices where both detectors have
    good signal (default: both above 10 % of their maxima) and the fitted M(V) is used for
-   every slice in the window; Mn, Mz and the distribution come from it (§2.8).
+   every slice in the window; Mn, Mz and the distribution come from it.
 6. Mass recovery: the mass seen by the concentration detector against the mass injected
    (< 95 % flags adsorption, filter loss, or a wrong dn/dc or k_RI).
 7. Conformation: log Rg against log M over the slices with measurable Rg (L14).
@@ -261,7 +261,7 @@ class LightScatteringResult(Display):
 
 def rayleigh_ratios(detector: LightScatteringDetector, signal: np.ndarray,
                     angles: tuple[float, ...] | None = None) -> tuple[np.ndarray, tuple[float, ...]]:
-    """R_θ = k_cal·N_θ·S_θ per slice and channel [cm⁻¹] (DETECTORS.md §2.1), for ``angles``."""
+    """R_θ = k_cal·N_θ·S_θ per slice and channel [cm⁻¹] (docs/science.md, section 14), for ``angles``."""
     if detector.constant is None:
         raise DataError(
             f"light-scattering detector {detector.name!r} has no calibration constant: give "
@@ -294,7 +294,7 @@ def _areas_fit(R_raw: np.ndarray, w: np.ndarray, inside: np.ndarray, mass: float
     The standard error is that of the angular extrapolation (the scatter of the channel
     areas about the fitted line in sin²(θ/2), propagated to M); it excludes the
     uncertainty of dn/dc and of the calibration constants, which enter M linearly or
-    quadratically (DETECTORS.md §2.9).
+    quadratically (docs/science.md, section 14).
     """
     assert det.wavelength is not None and det.solvent_refractive_index is not None
     areas = np.sum(R_raw[inside] * w[inside, None], axis=0)

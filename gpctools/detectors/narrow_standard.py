@@ -6,7 +6,7 @@ Gaussian (centre μ, s.d. σ, tail τ; scipy ``curve_fit``, which also gives the
 errors). Offsets are taken between the Gaussian centres, so a mixing-cell tail on one
 detector does not move its offset; the tail is kept as that detector's τ.
 
-**Offsets with the polydispersity lead** (DETECTORS.md §1.2, derived for a log-normal
+**Offsets with the polydispersity lead** (docs/science.md, section 13, derived for a log-normal
 standard, a locally linear calibration and the same broadening on both detectors). The
 light-scattering signal is ∝ c·M, so for a standard of dispersity Đ the LS peak comes
 earlier than the concentration peak by ℓ_LS = ln Đ/(ln10·B), even at zero offset; a
@@ -22,7 +22,7 @@ log-normal standard have the same width apart from the broadening.
 - RI: k_RI = ∫S_RI dV/((dn/dc)_RI·m_inj) (C3), from a known injected mass;
   UV: response = ∫S_UV dV/m_inj.
 - Light scattering: k_cal = K*·Mw·m/(N_θ·∫S_θ dV/P(θ)) per channel (the secondary
-  calibration of DETECTORS.md §2.5), m the mass seen by the concentration detector;
+  calibration of docs/science.md, section 14), m the mass seen by the concentration detector;
   P(θ) from the standard's Rg (random coil) when given, else 1 (use a standard with
   Rg ≲ 10 nm). With ``normalise`` the channel coefficients N_θ are set relative to
   the channel nearest 90° from the same areas.
@@ -39,8 +39,9 @@ import numpy as np
 
 from gpctools.display import Display
 from gpctools.errors import CalibrationError, CalibrationWarning, DataError
+from gpctools.sheets.cells import finite_or_none
 
-from ._common import LN10, finite_or_none, positive, warn_all
+from ._common import LN10, positive, warn_all
 from ._slices import widths
 from .broadening import Spreading
 from .instrument import (
@@ -114,7 +115,7 @@ def polydispersity_lead(dispersity: float, B: float, exponent: float = 1.0) -> f
 
     Examples
     --------
-    Đ 1.02, B 0.3 1/mL: ℓ_LS = 0.0287 mL (DETECTORS.md §1.2, derived):
+    Đ 1.02, B 0.3 1/mL: ℓ_LS = 0.0287 mL (docs/science.md, section 13, derived):
 
     >>> round(polydispersity_lead(1.02, 0.3), 4)
     0.0287

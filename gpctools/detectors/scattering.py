@@ -4,7 +4,7 @@ function, and the angular extrapolation of each slice (Zimm, Debye, Berry).
 Units: wavelength in nm at the API (cm inside the formulas), dn/dc in mL/g, R_θ in
 cm⁻¹, K* in mol cm² g⁻², c in g/mL, M in g/mol, Rg in nm, A2 in mol mL g⁻².
 
-Equations (numbers as in DETECTORS.md §2):
+Equations (docs/science.md, section 14):
 
     K* = 4π² n0² (dn/dc)² / (N_A λ0⁴)                                              (L2)
     q  = (4π n0/λ0) sin(θ/2)                                                        (L3)
@@ -56,7 +56,7 @@ FORMALISMS = ("zimm", "debye", "berry")
 
 #: Flory-Fox constant Φ′ = Φ·6^(3/2) for a coil in a good solvent, with [η] in dL/g and Rg
 #: in cm: 3.67×10²² (Φ = 2.5×10²³ with [η] in mL/g and ⟨r²⟩ = 6⟨s²⟩; from memory,
-#: DETECTORS.md V14).
+#: docs/detectors.md, check values).
 PHI_GOOD_SOLVENT = 2.5e23 * 6.0**1.5 / 100.0
 #: Flory-Fox Φ′ in theta conditions, 4.22×10²² with [η] in dL/g and s in cm
 #: (IUPAC Gold Book, doi:10.1351/goldbook.12265).
@@ -77,7 +77,7 @@ def optical_constant(dn_dc: float, wavelength: float, solvent_refractive_index: 
 
     Examples
     --------
-    Polystyrene in THF (dn/dc 0.185 mL/g, n0 1.404) at 658 nm (DETECTORS.md §2.1, derived):
+    Polystyrene in THF (dn/dc 0.185 mL/g, n0 1.404) at 658 nm (docs/science.md, section 14, derived):
 
     >>> f"{optical_constant(0.185, 658.0, 1.404):.4g}"
     '2.359e-07'
@@ -113,7 +113,7 @@ def coil_scattering_function(angle: Any, rg: Any, wavelength: float,
 
     Examples
     --------
-    Rg 10 nm at 90° and 658 nm in THF: P = 0.988 (DETECTORS.md §2.2, derived):
+    Rg 10 nm at 90° and 658 nm in THF: P = 0.988 (docs/science.md, section 14, derived):
 
     >>> round(float(coil_scattering_function(90.0, 10.0, 658.0, 1.404)), 3)
     0.988
@@ -199,7 +199,7 @@ def fit_angles(rayleigh: Any, concentration: Any, angles: Any, *, optical: float
     formalism : {"berry", "zimm", "debye"}
         Which quantity is regressed on sin²(θ/2). Berry is the most nearly linear for
         coils; first-order Zimm overestimates M and Rg, Debye underestimates them, all
-        agree while q²Rg² ≪ 1 (DETECTORS.md §2.2). With one angle the particle
+        agree while q²Rg² ≪ 1 (docs/science.md, section 14). With one angle the particle
         scattering function is taken as 1 (low-angle detector): M = R_θ/(K*c).
     order : {1, 2}
         Fit order in sin²(θ/2): 1 for Rg ≲ 50 nm, 2 above; higher orders are refused on
@@ -298,7 +298,7 @@ def rg_from_dissymmetry(ratio: Any, angles: tuple[float, float], wavelength: flo
 
     Examples
     --------
-    Coil, 658 nm, THF: z(15°, 90°) = 1.3072 ↔ Rg = 50 nm (DETECTORS.md §2.4, derived):
+    Coil, 658 nm, THF: z(15°, 90°) = 1.3072 ↔ Rg = 50 nm (docs/science.md, section 14, derived):
 
     >>> round(float(rg_from_dissymmetry(1.3072, (15.0, 90.0), 658.0, 1.404)[0]), 1)
     50.0
@@ -323,7 +323,7 @@ def rg_from_dissymmetry(ratio: Any, angles: tuple[float, float], wavelength: flo
 
 
 def flory_fox_rg(intrinsic_viscosity: Any, M: Any, *, phi: float = PHI_GOOD_SOLVENT) -> np.ndarray:
-    """Rg = ([η]M/Φ′)^(1/3) [nm] (Flory-Fox, DETECTORS.md V14).
+    """Rg = ([η]M/Φ′)^(1/3) [nm] (Flory-Fox, docs/detectors.md, check values).
 
     Parameters
     ----------
@@ -338,7 +338,7 @@ def flory_fox_rg(intrinsic_viscosity: Any, M: Any, *, phi: float = PHI_GOOD_SOLV
 
     Examples
     --------
-    Polystyrene 10⁵ g/mol in THF, [η] 0.4334 dL/g: Rg ≈ 10.6 nm (DETECTORS.md V14):
+    Polystyrene 10⁵ g/mol in THF, [η] 0.4334 dL/g: Rg ≈ 10.6 nm (docs/detectors.md, check values):
 
     >>> round(float(flory_fox_rg(0.43342, 1e5)), 1)
     10.6
@@ -350,7 +350,7 @@ def flory_fox_rg(intrinsic_viscosity: Any, M: Any, *, phi: float = PHI_GOOD_SOLV
 
 
 def viscometric_radius(intrinsic_viscosity: Any, M: Any) -> np.ndarray:
-    """R_η = (3[η]M/(10π N_A))^(1/3) [nm] (Einstein; DETECTORS.md V14, from memory).
+    """R_η = (3[η]M/(10π N_A))^(1/3) [nm] (Einstein; docs/detectors.md, check values, from memory).
 
     [η] in dL/g (converted to mL/g = cm³/g inside).
 
@@ -370,7 +370,7 @@ def molar_mass_with_viscometer(rayleigh: Any, concentration: Any, intrinsic_visc
     """M and Rg per slice from one (right-angle) channel and the viscometer.
 
     Iterates M → Rg (Flory-Fox, V14) → P(θ) (coil, L6) → M = R_θ/(K*c·P(θ)) to
-    convergence (DETECTORS.md §2.4; the iterative per-slice scheme is described in the
+    convergence (docs/science.md, section 14; the iterative per-slice scheme is described in the
     Handbook of Size Exclusion Chromatography and Related Techniques, ch. 3).
 
     Parameters

@@ -10,7 +10,7 @@ baseline-corrected signal:
 - viscometer: shape (n, 2) [differential, reference] for the pressure designs or (n,)
   for ``"specific viscosity"`` (see :func:`.viscometry.specific_viscosity`).
 
-Combining slices (DETECTORS.md §1.2-1.3):
+Combining slices (docs/science.md, section 13-1.3):
 
 1. **Offset.** Detector X sees the fluid element of concentration slice V at V + Δ_X,
    so its trace is read there (linear interpolation; beyond the ends the end value).
@@ -121,7 +121,7 @@ class DetectorTraces:
 
 
 def align(volume: np.ndarray, signal: np.ndarray, offset: float) -> np.ndarray:
-    """Read a trace at V + Δ for each concentration slice V (DETECTORS.md §1.2).
+    """Read a trace at V + Δ for each concentration slice V (docs/science.md, section 13).
 
     Parameters
     ----------

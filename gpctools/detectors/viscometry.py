@@ -4,7 +4,7 @@ with measured [η], the Mark-Houwink fit and the viscosity-average molar mass.
 Units: [η] and K in dL/g (the project's Mark-Houwink unit; 1 dL/g = 100 mL/g), c in
 g/mL, pressures in any one unit, hydrodynamic volume J = [η]·M in dL/mol.
 
-Equations (DETECTORS.md §3):
+Equations (docs/science.md, section 15):
 
     bridge            η_sp = 4ΔP/(IP − 2ΔP)                                          (V3)
     single capillary  η_sp = (ΔP − ΔP0)/ΔP0                                          (V1)
@@ -38,8 +38,9 @@ import numpy as np
 
 from gpctools.display import Display
 from gpctools.errors import DataError
+from gpctools.sheets.cells import finite_or_none
 
-from ._common import LN10, ML_PER_DL, as_array, finite_or_none, polyfit, positive
+from ._common import LN10, ML_PER_DL, as_array, polyfit, positive
 from ._slices import LogMFit, fit_log_M, good_signal_mask, slice_averages, widths, window_mask
 from .broadening import Spreading, shared_spreading, tilted_trace, unbroadened_averages
 from .instrument import VISCOMETER_DESIGNS, DetectorSetup, Viscometer
@@ -88,7 +89,7 @@ def specific_viscosity(design: str, channels: Any, *, constant: float = 1.0) -> 
 
     Examples
     --------
-    The bridge round trip of DETECTORS.md §3.1 (derived): IP = 100, η_sp = 0.1 gives
+    The bridge round trip of docs/science.md, section 15 (derived): IP = 100, η_sp = 0.1 gives
     ΔP = 2.38095 and back:
 
     >>> dp = bridge_pressure(0.1, 100.0)
@@ -155,7 +156,7 @@ def intrinsic_viscosity(eta_sp: Any, concentration: Any, *, method: str = "solom
     Examples
     --------
     [η] = 1.00 dL/g, c = 1×10⁻⁴ g/mL, η_sp = 0.010035 (Huggins k_H 0.35): Solomon-Ciuta
-    gives 1.0002 dL/g, V4 1.0035 (DETECTORS.md §3.2, derived):
+    gives 1.0002 dL/g, V4 1.0035 (docs/science.md, section 15, derived):
 
     >>> round(float(intrinsic_viscosity(0.010035, 1e-4)), 4)
     1.0002
@@ -197,7 +198,7 @@ def hydrodynamic_volume(log_M_standard: Any, K_standard: float, a_standard: floa
 
     Examples
     --------
-    Polystyrene 10⁵ g/mol (K 1.14×10⁻⁴ dL/g, a 0.716): J = 4.3342×10⁴ dL/mol (DETECTORS.md §3.3):
+    Polystyrene 10⁵ g/mol (K 1.14×10⁻⁴ dL/g, a 0.716): J = 4.3342×10⁴ dL/mol (docs/science.md, section 15):
 
     >>> f"{float(hydrodynamic_volume(5.0, 1.14e-4, 0.716)):.5g}"
     '43342'
@@ -219,7 +220,7 @@ def number_average_universal(eta_sp: Any, widths: Any, J: Any, mass: float) -> f
     """Mn = m / Σ(η_sp,i ΔV_i / J_i) [g/mol] (V9).
 
     Needs only the mass eluted, not the concentration profile: Σ c_i[η]_i ΔV_i/J_i =
-    Σ c_i ΔV_i/M_i. Derived in DETECTORS.md §3.3.
+    Σ c_i ΔV_i/M_i. Derived in docs/science.md, section 15.
 
     Parameters
     ----------
@@ -251,7 +252,7 @@ def viscosity_average_M(intrinsic_w: float, K: float, a: float) -> float:
     Examples
     --------
     [η]_w = 0.90636 dL/g with the polystyrene pair (1.14×10⁻⁴ dL/g, 0.716):
-    Mv = 280 208 (DETECTORS.md §3.3, derived):
+    Mv = 280 208 (docs/science.md, section 15, derived):
 
     >>> round(viscosity_average_M(0.90636, 1.14e-4, 0.716), -1)
     280210.0

@@ -129,6 +129,10 @@ class Chromatogram(Display):
         Sheet read, for workbooks.
     warnings : tuple of str
         Messages of the :class:`ReaderWarning` issued while reading.
+    channels : dict of str to numpy.ndarray
+        Further columns read on request (``channels=`` of :func:`read_chromatogram`:
+        light-scattering angles, viscometer pressures, a UV trace), by header, each
+        float64 in the order of ``x``; empty unless asked for.
 
     Raises
     ------
@@ -148,6 +152,7 @@ class Chromatogram(Display):
     header_row: int = 0
     sheet: str | None = None
     warnings: tuple[str, ...] = ()
+    channels: dict[str, np.ndarray] = field(default_factory=dict)
 
     def __post_init__(self) -> None:
         x = np.array(self.x, dtype=np.float64, copy=True)
@@ -170,6 +175,14 @@ class Chromatogram(Display):
                 "volume, 'min' or 's' for time",
                 **where,
             )
+        chans: dict[str, np.ndarray] = {}
+        for name, values in dict(self.channels).items():
+            c = np.array(values, dtype=np.float64, copy=True)
+            if c.shape != x.shape or not np.isfinite(c).all():
+                raise DataError(f"channel {name!r} must be finite numbers, one per slice", **where)
+            c.setflags(write=False)
+            chans[name] = c
+        object.__setattr__(self, "channels", chans)
         x.setflags(write=False)
         y.setflags(write=False)
         object.__setattr__(self, "x", x)
@@ -242,6 +255,7 @@ class Chromatogram(Display):
             "x_max": float(self.x[-1]),
             "header_row": self.header_row,
             "metadata": dict(self.metadata),
+            "channels": list(self.channels),
             "warnings": list(self.warnings),
         }
 
@@ -259,6 +273,7 @@ def read_chromatogram(
     decimal: str | None = None,
     separator: str | None = None,
     encoding: str | None = None,
+    channels: Any = None,
 ) -> Chromatogram:
     """Read one chromatogram export (CSV/TXT/TSV/DAT/ASC text or XLSX).
 
@@ -287,6 +302,11 @@ def read_chromatogram(
         is accepted for ``"\\t"``. Default: detected.
     encoding : str, optional
         Force the text encoding (default: detected).
+    channels : sequence of str or int, or "all", optional
+        Further columns to carry through as :attr:`Chromatogram.channels` (headers,
+        matched like ``signal_column``, or 0-based numbers), for multi-detector
+        exports; ``"all"`` takes every numeric column but x. Each must hold a finite
+        number in every data row (the same checks as the signal).
 
     Returns
     -------
@@ -308,9 +328,9 @@ def read_chromatogram(
     data = read_bytes(path, MAX_EXPORT_BYTES)
     kind = detect_kind(path, data)
     if kind == "xlsx":
-        return _read_xlsx(path, data, sheet, x_column, signal_column, unit_arg, dec)
+        return _read_xlsx(path, data, sheet, x_column, signal_column, unit_arg, dec, channels)
     text = decode_text(path, data, encoding)
-    return _read_text(path, text, x_column, signal_column, unit_arg, sep, dec)
+    return _read_text(path, text, x_column, signal_column, unit_arg, sep, dec, channels)
 
 
 # ============================================================================ arguments
@@ -421,6 +441,32 @@ def _resolve_column(
         column=spec,
         **err,
     )
+
+
+def _channel_columns(
+    channels: Any,
+    names: tuple[str, ...],
+    has_header: bool,
+    numeric_cols: set[int],
+    xi: int,
+    err: dict[str, Any],
+) -> list[int]:
+    """0-based indices of the extra channels asked for (x never; no repeats)."""
+    if channels is None:
+        return []
+    if isinstance(channels, str) and channels.strip().lower() == "all":
+        return [j for j in sorted(numeric_cols) if j != xi]
+    specs = [channels] if isinstance(channels, (str, int)) else list(channels)
+    out: list[int] = []
+    for spec in specs:
+        j = _resolve_column(spec, "channel", names, has_header, err)
+        if j == xi:
+            raise InputFormatError(
+                f"channel {spec!r} is the x column; name detector columns only", **err
+            )
+        if j not in out:
+            out.append(j)
+    return out
 
 
 _META_UNIT_KEY = re.compile(
@@ -713,6 +759,7 @@ def _read_text(
     unit_arg: str | None,
     sep: str | None,
     dec: str | None,
+    channels: Any = None,
 ) -> Chromatogram:
     """Read a decoded text export (steps in the module docstring)."""
     err: dict[str, Any] = {"path": path}
@@ -732,6 +779,8 @@ def _read_text(
     xi, yi, x_kind, x_unit, notes = _choose_columns(
         layout.names, has_header, numeric_cols, x_column, signal_column, unit_arg, metadata, err
     )
+    extra = _channel_columns(channels, layout.names, has_header, numeric_cols, xi, err)
+    cols = (xi, yi, *[j for j in extra if j not in (xi, yi)])
     offset = sum(len(ln) + 1 for ln in head[: layout.start])
     end = _footer_start(text, offset, d, layout.width)
     _note_footer(text, end, notes)
@@ -740,8 +789,10 @@ def _read_text(
     _refuse_long_cells(text, table_offset, end, table_start + 1, d, err)
     block = text[offset:end]
     first_line = layout.start + 1
-    x, y, lines_arr = _parse_block(block, first_line, d, xi, yi, layout.names,
-                                   layout.width, err)
+    table, lines_arr = _parse_block(block, first_line, d, cols, layout.names,
+                                    layout.width, err)
+    x, y = table[:, 0], table[:, 1]
+    chans = {_display(layout.names, j): (y if j == yi else table[:, cols.index(j)]) for j in extra}
 
     def line_of(k: int) -> int:
         """Line number of data row ``k``."""
@@ -763,6 +814,7 @@ def _read_text(
         notes,
         line_of,
         "line",
+        chans,
     )
 
 
@@ -776,19 +828,18 @@ def _parse_block(
     block: str,
     first_line: int,
     d: Dialect,
-    xi: int,
-    yi: int,
+    cols: tuple[int, ...],
     names: tuple[str, ...],
     width: int,
     err: dict[str, Any],
-) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """(x, signal, line number of each row) of the data block; raises at the first bad line.
+) -> tuple[np.ndarray, np.ndarray]:
+    """(values of ``cols`` per row (n, len(cols)), line number of each row) of the data
+    block; raises at the first bad line.
 
     Each piece (cut at a line end) is parsed by :func:`_parse_fast`; a piece that fails
     there goes through :func:`_parse_lines`, which names the offending line.
     """
-    xs: list[np.ndarray] = []
-    ys: list[np.ndarray] = []
+    ts: list[np.ndarray] = []
     ns: list[np.ndarray] = []
     pos, line, n = 0, first_line, len(block)
     while pos < n:
@@ -797,35 +848,33 @@ def _parse_block(
         part = block[pos:end]
         breaks = part.count("\n")
         count = breaks + (0 if part.endswith("\n") else 1)
-        x, y = _parse_fast(part, d, xi, yi, width)
+        t = _parse_fast(part, d, cols, width)
         nums: np.ndarray | None = None
-        if x is not None and y is not None:
-            if x.size == count:
+        if t is not None:
+            if t.shape[0] == count:
                 nums = np.arange(line, line + count)
             else:  # blank lines were skipped: number the rows by their lines
                 filled = [k for k, ln in enumerate(part.split("\n")) if ln.strip()]
-                if len(filled) == x.size:
+                if len(filled) == t.shape[0]:
                     nums = line + np.asarray(filled, dtype=np.int64)
-        if x is None or y is None or nums is None:
-            x, y, nums = _parse_lines(part, line, d, xi, yi, names, width, err)
-        xs.append(x)
-        ys.append(y)
+        if t is None or nums is None:
+            t, nums = _parse_lines(part, line, d, cols, names, width, err)
+        ts.append(t)
         ns.append(nums)
         line += breaks
         pos = end
-    if not xs:
-        empty = np.zeros(0)
-        return empty, empty, np.zeros(0, dtype=np.int64)
-    return np.concatenate(xs), np.concatenate(ys), np.concatenate(ns)
+    if not ts:
+        return np.zeros((0, len(cols))), np.zeros(0, dtype=np.int64)
+    return np.concatenate(ts), np.concatenate(ns)
 
 
 def _parse_fast(
-    block: str, d: Dialect, xi: int, yi: int, width: int
-) -> tuple[np.ndarray | None, np.ndarray | None]:
-    """The block by one :func:`pandas.read_csv` call, or ``(None, None)`` when anything
-    is off (then the line-by-line pass names the line).
+    block: str, d: Dialect, cols: tuple[int, ...], width: int
+) -> np.ndarray | None:
+    """The ``cols`` of the block (n, len(cols)) by one :func:`pandas.read_csv` call, or
+    None when anything is off (then the line-by-line pass names the line).
 
-    The table is accepted only if both used columns are finite numbers and no row has
+    The table is accepted only if every used column is finite numbers and no row has
     more fields than the table: the parser takes its column count from the first row, so
     a wider row there shows as extra columns that must be empty (a trailing separator).
     """
@@ -849,35 +898,32 @@ def _parse_fast(
         for j in range(width, frame.shape[1]):
             extra = frame[j]
             if extra.dtype.kind in "fiu" and not extra.isna().all():
-                return None, None
+                return None
             if extra.dtype.kind not in "fiu" and not (extra.astype(str) == "").all():
-                return None, None
-        cx, cy = frame[xi], frame[yi]
-        if cx.dtype.kind in "fiu" and cy.dtype.kind in "fiu":
-            x = cx.to_numpy(dtype=np.float64)
-            y = cy.to_numpy(dtype=np.float64)
-            if np.isfinite(x).all() and np.isfinite(y).all():
-                return x, y
+                return None
+        used = [frame[j] for j in cols]
+        if all(c.dtype.kind in "fiu" for c in used):
+            t = np.column_stack([c.to_numpy(dtype=np.float64) for c in used])
+            if np.isfinite(t).all():
+                return t
     except (ValueError, IndexError, KeyError, OverflowError, pd.errors.ParserError,
             pd.errors.EmptyDataError):
         pass
-    return None, None
+    return None
 
 
 def _parse_lines(
     block: str,
     first_line: int,
     d: Dialect,
-    xi: int,
-    yi: int,
+    cols: tuple[int, ...],
     names: tuple[str, ...],
     width: int,
     err: dict[str, Any],
-) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+) -> tuple[np.ndarray, np.ndarray]:
     """Line-by-line parse of the data block; raises at the first bad line."""
     pat = number_pattern(d.decimal)
-    xs: list[float] = []
-    ys: list[float] = []
+    rows: list[list[float]] = []
     nums: list[int] = []
     other = "decimal point" if d.decimal == "," else "decimal comma"
     mark = "comma" if d.decimal == "," else "point"
@@ -891,7 +937,7 @@ def _parse_lines(
         if len(cells) > width:
             raise _extra_fields_error(n, len(cells), width, d, err)
         vals = []
-        for j in (xi, yi):
+        for j in cols:
             cell = cells[j] if j < len(cells) else ""
             col = _display(names, j)
             if cell == "":
@@ -957,10 +1003,10 @@ def _parse_lines(
                     **err,
                 )
             vals.append(value)
-        xs.append(vals[0])
-        ys.append(vals[1])
+        rows.append(vals)
         nums.append(n)
-    return np.asarray(xs, dtype=np.float64), np.asarray(ys, dtype=np.float64), np.asarray(nums)
+    table = np.asarray(rows, dtype=np.float64).reshape(len(rows), len(cols))
+    return table, np.asarray(nums)
 
 
 def _extra_fields_error(
@@ -1038,8 +1084,10 @@ def _finish(
     notes: list[str],
     line_of: Any,
     word: str,
+    channels: dict[str, np.ndarray] | None = None,
 ) -> Chromatogram:
     err: dict[str, Any] = {"path": path, "sheet": sheet}
+    channels = dict(channels or {})
     xcol = _display(names, xi)
     if x.size < MIN_POINTS:
         raise InputFormatError(
@@ -1052,6 +1100,7 @@ def _finish(
         if (dx < 0).all():
             x = x[::-1]
             y = y[::-1]
+            channels = {k: v[::-1] for k, v in channels.items()}
         else:
             increasing = x[-1] >= x[0]
             bad = int(np.flatnonzero(dx <= 0 if increasing else dx >= 0)[0])
@@ -1086,6 +1135,7 @@ def _finish(
         header_row=header_row,
         sheet=sheet,
         warnings=tuple(notes),
+        channels=channels,
     )
 
 
@@ -1165,6 +1215,7 @@ def _read_xlsx(
     signal_column: str | int | None,
     unit_arg: str | None,
     dec: str | None,
+    channels: Any = None,
 ) -> Chromatogram:
     """Read a workbook; with no sheet chosen, the first sheet that holds a table of numbers.
 
@@ -1174,7 +1225,7 @@ def _read_xlsx(
     with _xlsx.open_workbook(path, data) as wb:
         try:
             return _read_xlsx_sheet(
-                path, data, wb, sheet, x_column, signal_column, unit_arg, dec
+                path, data, wb, sheet, x_column, signal_column, unit_arg, dec, channels
             )
         except _NoTableInSheet as first_error:
             if sheet is not None:
@@ -1183,7 +1234,7 @@ def _read_xlsx(
             for index in range(1, count):
                 try:
                     return _read_xlsx_sheet(
-                        path, data, wb, index, x_column, signal_column, unit_arg, dec
+                        path, data, wb, index, x_column, signal_column, unit_arg, dec, channels
                     )
                 except _NoTableInSheet:
                     continue
@@ -1200,6 +1251,7 @@ def _read_xlsx_sheet(
     signal_column: str | int | None,
     unit_arg: str | None,
     dec: str | None,
+    channels: Any = None,
 ) -> Chromatogram:
     name, raw = _xlsx.sheet_rows(path, wb, sheet)
     err: dict[str, Any] = {"path": path, "sheet": name}
@@ -1233,25 +1285,24 @@ def _read_xlsx_sheet(
     xi, yi, x_kind, x_unit, notes = _choose_columns(
         layout.names, has_header, numeric_cols, x_column, signal_column, unit_arg, metadata, err
     )
-    xs: list[float] = []
-    ys: list[float] = []
+    extra = _channel_columns(channels, layout.names, has_header, numeric_cols, xi, err)
+    cols = (xi, yi, *[j for j in extra if j not in (xi, yi)])
+    table: list[list[float]] = []
     rows: list[int] = []
     n_rows = len(raw)
     for i in range(layout.start, n_rows):
         r = raw[i]
         if not any(v is not None and v != "" for v in r):
             continue
-        xv = _cell_number(r[xi], dec) if xi < len(r) else None
-        yv = _cell_number(r[yi], dec) if yi < len(r) else None
-        if xv is not None and yv is not None:
-            xs.append(xv)
-            ys.append(yv)
+        vals = [_cell_number(r[j], dec) if j < len(r) else None for j in cols]
+        if all(v is not None for v in vals):
+            table.append([float(v) for v in vals])  # type: ignore[arg-type]
             rows.append(i + 1)
             continue
         # A bad row: the footer if no data row follows, else an error.
         if not any(_is_xy_row(raw[k], xi, yi, dec) for k in range(i + 1, n_rows)):
             break
-        j = xi if xv is None else yi
+        j = cols[next(k for k, v in enumerate(vals) if v is None)]
         value = r[j] if j < len(r) else None
         cell = _xlsx.cell_name(i + 1, j)
         col = _display(layout.names, j)
@@ -1281,10 +1332,12 @@ def _read_xlsx_sheet(
             )
         raise InputFormatError(msg, row=i + 1, column=col, **err)
     rows_arr = np.asarray(rows)
+    arr = np.asarray(table, dtype=np.float64).reshape(len(table), len(cols))
+    chans = {_display(layout.names, j): arr[:, cols.index(j)] for j in extra}
     return _finish(
         path,
-        np.asarray(xs, dtype=np.float64),
-        np.asarray(ys, dtype=np.float64),
+        arr[:, 0],
+        arr[:, 1],
         x_kind,
         x_unit,
         layout.names,
@@ -1297,6 +1350,7 @@ def _read_xlsx_sheet(
         notes,
         lambda k: int(rows_arr[k]),
         "row",
+        chans,
     )
 
 

@@ -188,9 +188,9 @@ class CheckReport:
 
 def molar_mass_scale(c: CheckInputs) -> CheckOutcome:
     """Whether Mn/Mw are absolute, converted by Mark-Houwink pairs, or used as if absolute."""
-    if c.scale == "absolute":
-        return CheckOutcome(CheckLine("molar-mass scale", "ok", "values entered as absolute",
-                                      (), ""))
+    if c.scale.startswith("absolute"):
+        how = "absolute, light scattering" if "light scattering" in c.scale else "entered as absolute"
+        return CheckOutcome(CheckLine("molar-mass scale", "ok", f"values {how}", (), ""))
     std = c.scale[len("relative to "):]
     fac = c.scale_factor
     if fac is None:

@@ -523,7 +523,7 @@ def _ps_to_absolute(
     for an average (the map is a power law with exponent close to 1).
     Returns (converted value, factor) or (M, None) if no pair is known.
     """
-    if M is None or scale == "absolute":
+    if M is None or scale.startswith("absolute"):
         return M, 1.0
     std = scale[len("relative to "):]
     try:

@@ -157,8 +157,13 @@ def measured_from_results(
     """
     df = _results_table(path)
     rows, role, status = _sample_rows(df, path, sample_id)
-    meas = Measured(Mn=_mean(rows, "Mn [g/mol]"), Mw=_mean(rows, "Mw [g/mol]"),
-                    scale=_scale(rows, path))
+    Mn_ls, Mw_ls = _mean(rows, columns.MN_LS), _mean(rows, columns.MW_LS)
+    if Mn_ls is not None and Mw_ls is not None:
+        # a batch with light scattering: its absolute averages are the molar-mass scale
+        meas = Measured(Mn=Mn_ls, Mw=Mw_ls, scale=columns.LS_SCALE_LABEL)
+    else:
+        meas = Measured(Mn=_mean(rows, "Mn [g/mol]"), Mw=_mean(rows, "Mw [g/mol]"),
+                        scale=_scale(rows, path))
     checks: dict[str, Any] = {}
     oc = _mean(rows, "outside calibration [% mass]")
     if oc is not None:

@@ -29,9 +29,9 @@ these relations are computed by :mod:`gpctools.chainlength` (``mayo_inv_dpn``,
 
 References
 ----------
-- IUPAC convention for k_t and the steady-state expressions: SCIENCE.md §3.
+- IUPAC convention for k_t and the steady-state expressions: docs/science.md, section 3.
 - Mayo, J. Am. Chem. Soc. 1943 (the Mayo equation).
-- Schulz-Zimm distribution, Đ = (b+1)/b: IUPAC Gold Book; SCIENCE.md §8.
+- Schulz-Zimm distribution, Đ = (b+1)/b: IUPAC Gold Book; docs/science.md, section 8.
 """
 
 from __future__ import annotations
@@ -962,7 +962,7 @@ def predict(
 
     References
     ----------
-    SCIENCE.md §3 (IUPAC convention, steady state, Mayo, J. Am. Chem. Soc. 1943);
+    docs/science.md, section 3 (IUPAC convention, steady state, Mayo, J. Am. Chem. Soc. 1943);
     dispersity: see the module docstring.
     """
     p = recipe if isinstance(recipe, KineticParameters) else resolve_parameters(recipe, ref)

@@ -101,11 +101,13 @@ def normalize_scale(text: str) -> str | None:
 
     Accepts the recipe forms and the batch-table forms ("absolute ... (universal
     calibration)", "polystyrene-equivalent (relative)"); None when not recognised.
+    Light scattering keeps its label, ``"absolute, light scattering"``
+    (:data:`gpctools.columns.LS_SCALE_LABEL`), which counts as absolute everywhere.
     """
     t = " ".join(str(text).strip().split())
     low = t.lower()
     if low.startswith("absolute"):
-        return "absolute"
+        return "absolute, light scattering" if "light scattering" in low else "absolute"
     if low.startswith("relative to ") and len(t) > len("relative to "):
         return "relative to " + t[len("relative to "):].strip()
     if "-equivalent" in low:

@@ -25,7 +25,7 @@ from gpctools.display import Display
 
 __all__ = ["InputFile", "AuditTrail", "sha256_file", "build_audit", "library_versions"]
 
-_LIBRARIES = ("numpy", "pandas", "scipy", "matplotlib", "openpyxl", "jinja2", "lmfit")
+_LIBRARIES = ("numpy", "pandas", "scipy", "matplotlib", "openpyxl", "jinja2")
 
 
 def sha256_file(path: str | os.PathLike[str]) -> str:

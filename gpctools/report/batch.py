@@ -22,9 +22,10 @@ from __future__ import annotations
 
 import json
 import os
+from collections.abc import Mapping
 from dataclasses import dataclass
 from pathlib import Path
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
@@ -36,6 +37,7 @@ from gpctools.report.xlsx import write_workbook
 if TYPE_CHECKING:  # pragma: no cover
     from gpctools.batch import BatchEntry, BatchResult, InjectionResult
     from gpctools.distribution import Distribution
+    from gpctools.qc.sequence import SequenceRun
 
 __all__ = ["write_batch", "write_distribution", "distribution_name", "DistributionWriter", "Sinks"]
 
@@ -59,7 +61,8 @@ def distribution_name(entry: BatchEntry) -> str:
     return f"{safe_name(entry.sample_id, default='sample')}_row{entry.row}.csv"
 
 
-def write_distribution(path: str | os.PathLike[str], dist: Distribution) -> Path:
+def write_distribution(path: str | os.PathLike[str], dist: Distribution,
+                       extra: Mapping[str, Any] | None = None) -> Path:
     """Write one distribution table as CSV (8 significant digits), atomically.
 
     Columns are :data:`gpctools.distribution.TABLE_COLUMNS`: volume [mL], M [g/mol],
@@ -74,6 +77,12 @@ def write_distribution(path: str | os.PathLike[str], dist: Distribution) -> Path
     path : str or os.PathLike
         Destination ``.csv`` (its folder is created).
     dist : gpctools.distribution.Distribution
+    extra : mapping, optional
+        Further per-slice columns on the same slices (header -> values), written after
+        the distribution's: the detector quantities of an injection whose method has
+        ``[detectors]`` (``M LS [g/mol]``, ``Rg [nm]``, ``[eta] [dL/g]``, composition;
+        :meth:`gpctools.detectors.DetectorResult.on_volume`), empty cells where a slice
+        has none.
 
     Returns
     -------
@@ -82,7 +91,14 @@ def write_distribution(path: str | os.PathLike[str], dist: Distribution) -> Path
     cols = np.column_stack([dist.volume, dist.M, np.log10(dist.M), dist.w, dist.dwdlogM, dist.cumulative])
     line = ",".join(["%.8g"] * cols.shape[1]) + "\n"
     body = (line * cols.shape[0]) % tuple(cols.ravel().tolist())
-    return write_text(path, ",".join(TABLE_COLUMNS) + "\n" + body)
+    if not extra:
+        return write_text(path, ",".join(TABLE_COLUMNS) + "\n" + body)
+    names = list(extra)
+    more = [np.char.mod("%.8g", np.asarray(extra[n], dtype=float)) for n in names]
+    more = [np.where(np.char.find(m, "nan") >= 0, "", m) for m in more]
+    rows = [a + "," + ",".join(t) for a, t in zip(body.splitlines(), zip(*more))]
+    header = ",".join([*TABLE_COLUMNS, *(f'"{n}"' if "," in n else n for n in names)])
+    return write_text(path, header + "\n" + "\n".join(rows) + "\n")
 
 
 @dataclass(frozen=True)
@@ -108,7 +124,9 @@ class DistributionWriter:
 
     def __call__(self, entry: BatchEntry, result: InjectionResult) -> None:
         """Write ``result``'s distribution to ``folder/<sample_id>_row<n>.csv``."""
-        write_distribution(Path(self.folder) / distribution_name(entry), result.distribution)
+        det = getattr(result, "detectors", None)
+        extra = det.on_volume(result.distribution.volume) if det is not None else None
+        write_distribution(Path(self.folder) / distribution_name(entry), result.distribution, extra)
 
 
 @dataclass(frozen=True)
@@ -130,13 +148,13 @@ class Sinks:
 
 
 def write_batch(
-    result: BatchResult, outdir: str | os.PathLike[str], *, distributions: bool = True
+    result: BatchResult | SequenceRun, outdir: str | os.PathLike[str], *, distributions: bool = True
 ) -> dict[str, Path]:
     """Write the outputs of a batch atomically (see the module docstring for the files).
 
     Parameters
     ----------
-    result : gpctools.batch.BatchResult
+    result : gpctools.batch.BatchResult or gpctools.qc.sequence.SequenceRun
     outdir : str or os.PathLike
         Output folder (created).
     distributions : bool
@@ -164,8 +182,10 @@ def write_batch(
         for entry, res in zip(result.entries, result.injections):
             if res is not None:
                 name = distribution_name(entry)  # unique per row: replicates keep their own key
+                det = getattr(res, "detectors", None)
+                extra = det.on_volume(res.distribution.volume) if det is not None else None
                 paths[f"{DISTRIBUTIONS}/{name}"] = write_distribution(out / DISTRIBUTIONS / name,
-                                                                      res.distribution)
+                                                                      res.distribution, extra)
     manifest = {
         "gpctools": __version__,
         "batch sheet": result.sheet,

@@ -82,15 +82,6 @@ def welch_dof(parts: Sequence[tuple[float, float]]) -> float:
     return float(num / den) if den > 0 else float("inf")
 
 
-def finite_or_none(value: Any) -> Any:
-    """A float for JSON, or ``None`` where the value is NaN/inf/None."""
-    if value is None:
-        return None
-    try:
-        f = float(value)
-    except (TypeError, ValueError):
-        return value
-    return f if math.isfinite(f) else None
 
 
 @dataclass(frozen=True)

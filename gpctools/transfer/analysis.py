@@ -144,7 +144,7 @@ class TransferResult(Display):
             pe, pm = g.preferred[term]
             estimator = estimator or pe
             model = model or pm
-        return g.fit(estimator, model).constant(term)  # type: ignore[union-attr]
+        return g.fit(estimator, model).constant(term)
 
     def constants_table(self):
         """One row per group, term, estimator and model (pandas DataFrame)."""
@@ -183,7 +183,7 @@ class TransferResult(Display):
         }
 
 
-#: Shown with every analysis (SCIENCE.md section 10).
+#: Shown with every analysis (docs/science.md, section 10).
 SAFETY_NOTE = (
     "Transfer agents and solvents are often toxic, malodorous or sensitizing (thiols, "
     "halogenated methanes); polymerizations are exothermic and can run away when initiator "
@@ -318,7 +318,7 @@ def analyse_series(
     ----------
     Mayo, J. Am. Chem. Soc. 1943; Heuts, Davis, Russell et al., Macromolecules 1999;
     Clay and Gilbert, Macromolecules 1995; van Berkel, Russell, Gilbert, Macromolecules
-    2005; SCIENCE.md sections 3 to 6.
+    2005; docs/science.md, sections 3 to 6.
     """
     opts = _options(options, overrides)
     warns: list[str] = []

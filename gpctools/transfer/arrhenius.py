@@ -6,7 +6,7 @@ pre-exponential ratio A_tr/A_p [-].
 
 References
 ----------
-SCIENCE.md section 6. Arrhenius form of both rate coefficients (IUPAC Gold Book,
+docs/science.md, section 6. Arrhenius form of both rate coefficients (IUPAC Gold Book,
 "Arrhenius equation"). Hutchinson, Paquet, McMinn, Macromolecules 1995 (ΔE ≈ 0 for some
 thiol/methacrylate pairs over 20–80 °C).
 """
@@ -22,7 +22,8 @@ import numpy as np
 
 from gpctools.display import Display
 from gpctools.errors import DataError, DesignError
-from gpctools.transfer._stats import finite_or_none, t_quantile, weighted_linear_fit
+from gpctools.sheets.cells import finite_or_none
+from gpctools.transfer._stats import t_quantile, weighted_linear_fit
 from gpctools.transfer.mayo import FittedValue
 
 #: Molar gas constant [J/mol/K] (CODATA 2018, exact; the value of gpctools.refdata.R_GAS,
@@ -142,7 +143,7 @@ def fit_arrhenius(
 
     References
     ----------
-    SCIENCE.md section 6. Birge, Phys. Rev. 1932 (scaling by the Birge ratio).
+    docs/science.md, section 6. Birge, Phys. Rev. 1932 (scaling by the Birge ratio).
     """
     T = np.asarray(T_K, dtype=float).ravel()
     Cv = np.asarray(C, dtype=float).ravel()

@@ -33,8 +33,9 @@ import numpy as np
 
 from gpctools.display import Display
 from gpctools.errors import DataError
+from gpctools.sheets.cells import finite_or_none
 from gpctools.transfer._fit import interval_parts
-from gpctools.transfer._stats import finite_or_none, t_quantile
+from gpctools.transfer._stats import t_quantile
 from gpctools.transfer.mayo import FittedValue
 from gpctools.transfer.model import SeriesModel
 

@@ -24,7 +24,7 @@ C_app) live in :mod:`gpctools.chainlength`; this module fits them to run series.
 
 References
 ----------
-SCIENCE.md section 5 [derived]: cumulative Mayo, C_app, cumulative Mw, identifiability.
+docs/science.md, section 5 [derived]: cumulative Mayo, C_app, cumulative Mw, identifiability.
 Mayo, F. R., J. Am. Chem. Soc. 1943. Walling, C., J. Am. Chem. Soc. 1948 (consumption
 method) [from memory].
 """
@@ -48,8 +48,9 @@ from gpctools.chainlength import (
 )
 from gpctools.display import Display
 from gpctools.errors import DataError, DesignError, EstimatorWarning
+from gpctools.sheets.cells import finite_or_none
 from gpctools.transfer._fit import solve
-from gpctools.transfer._stats import FittedConstants, as_str_tuple, finite_or_none, t_quantile
+from gpctools.transfer._stats import FittedConstants, as_str_tuple, t_quantile
 from gpctools.transfer.mayo import (
     FittedValue,
     MayoFit,
@@ -88,7 +89,7 @@ def cumulative_inv_dpw_half(
 
     References
     ----------
-    SCIENCE.md section 5 [derived].
+    docs/science.md, section 5 [derived].
     """
     return 2.0 / cumulative_dpw(np.atleast_1d(np.asarray(x, dtype=float)), inv_DPn0, terms)
 
@@ -110,7 +111,7 @@ def cumulative_cld_lambda(
 
     References
     ----------
-    SCIENCE.md sections 4 and 5 [derived]; Clay and Gilbert, Macromolecules 1995.
+    docs/science.md, sections 4 and 5 [derived]; Clay and Gilbert, Macromolecules 1995.
     """
     x = np.atleast_1d(np.asarray(x, dtype=float))
     out = np.empty(x.size)
@@ -521,7 +522,7 @@ def consumption_constant(
 
     References
     ----------
-    Walling, C., J. Am. Chem. Soc. 1948 [from memory: SCIENCE.md section 5] (the method);
+    Walling, C., J. Am. Chem. Soc. 1948 [from memory: docs/science.md, section 5] (the method);
     JCGM 100:2008 (GUM), first-order propagation of uncertainty; Birge, Phys. Rev. 1932
     (scaling by the Birge ratio when the scatter exceeds the stated uncertainties).
     """

@@ -11,7 +11,7 @@ References
 Heuts, Davis, Russell et al., Macromolecules 1999 (Mw/2 versus Mn; comparison of the Mayo
 and chain-length-distribution procedures). Clay and Gilbert, Macromolecules 1995; Moad and
 Moad, Macromolecules 1996 (the Λ method). van Berkel, Russell, Gilbert, Macromolecules
-2005 (take the slope near the peak of the SEC distribution). SCIENCE.md section 4.
+2005 (take the slope near the peak of the SEC distribution). docs/science.md, section 4.
 """
 
 from __future__ import annotations
@@ -24,7 +24,8 @@ import numpy as np
 
 from gpctools.display import Display
 from gpctools.errors import DataError
-from gpctools.transfer._stats import finite_or_none, ols_with_cov
+from gpctools.sheets.cells import finite_or_none
+from gpctools.transfer._stats import ols_with_cov
 
 __all__ = [
     "ESTIMATORS",
@@ -59,7 +60,7 @@ def dpn_from_Mn(Mn: Any, M0: Any) -> np.ndarray:
 
     References
     ----------
-    SCIENCE.md section 4 (absolute Mn; PS-equivalent values need universal calibration).
+    docs/science.md, section 4 (absolute Mn; PS-equivalent values need universal calibration).
     """
     return np.asarray(Mn, dtype=float) / np.asarray(M0, dtype=float)
 
@@ -86,7 +87,7 @@ def ln_number_distribution(M: Any, dwdlogM: Any) -> np.ndarray:
 
     References
     ----------
-    SCIENCE.md section 1: w(log M) = ln10 * M^2 * n(M).
+    docs/science.md, section 1: w(log M) = ln10 * M^2 * n(M).
     """
     M = np.asarray(M, dtype=float)
     h = np.asarray(dwdlogM, dtype=float)

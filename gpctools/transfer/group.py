@@ -32,7 +32,7 @@ import numpy as np
 from gpctools.chainlength import inv_dpn_from_dpw
 from gpctools.display import Display
 from gpctools.errors import DataError, DesignError, GpcError, GpcWarning
-from gpctools.transfer._stats import finite_or_none
+from gpctools.sheets.cells import finite_or_none
 from gpctools.transfer.drift import (
     ConsumptionResult,
     DriftFit,

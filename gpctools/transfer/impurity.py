@@ -58,10 +58,10 @@ import numpy as np
 from gpctools.chainlength import impurity_ratio, impurity_ratio_cumulative
 from gpctools.display import Display
 from gpctools.errors import DataError
+from gpctools.sheets.cells import finite_or_none
 from gpctools.transfer._fit import linear_solve, solve
 from gpctools.transfer._stats import (
     as_str_tuple,
-    finite_or_none,
     gauss_newton,
     t_quantile,
     t_sf,
@@ -862,7 +862,7 @@ def check_intercept(
 
     References
     ----------
-    SCIENCE.md section 3 (1/DPn0 = kinetic term + C_M + C_S[S]/[M] + C_I[I]/[M]).
+    docs/science.md, section 3 (1/DPn0 = kinetic term + C_M + C_S[S]/[M] + C_I[I]/[M]).
     """
     a, sa = fit.intercept.value, fit.intercept.stderr
     if getattr(fit, "intercept_fixed", False):  # a DriftFit always has a free intercept

@@ -16,7 +16,7 @@ weights are 1/(relative error * 1/DPn), the relative error being estimated from 
 References
 ----------
 Mayo, F. R., J. Am. Chem. Soc. 1943: the Mayo equation (dead chains per monomer consumed).
-SCIENCE.md section 3: weighting for constant relative error of 1/DPn.
+docs/science.md, section 3: weighting for constant relative error of 1/DPn.
 """
 
 from __future__ import annotations
@@ -30,8 +30,9 @@ import numpy as np
 
 from gpctools.display import Display
 from gpctools.errors import DataError, DesignError, EstimatorWarning
+from gpctools.sheets.cells import finite_or_none
 from gpctools.transfer._fit import Solution, solve
-from gpctools.transfer._stats import FittedConstants, as_str_tuple, finite_or_none, t_quantile
+from gpctools.transfer._stats import FittedConstants, as_str_tuple, t_quantile
 from gpctools.transfer.model import KINETIC_NAME, SeriesModel
 
 __all__ = [
@@ -194,6 +195,9 @@ def check_design(
     e.g. two agents varied in fixed proportion, or ``C_M`` with a free intercept). Warns
     (listed in ``warnings``) when a term's variance-inflation factor exceeds 10, or when a
     single-term line rests on only two distinct ratios.
+
+    The checks run in order on one normalised design matrix and each message names the
+    terms at fault, which is why they stay in one body (about 100 lines).
 
     Parameters
     ----------

@@ -22,6 +22,7 @@ from typing import Any
 
 import numpy as np
 
+from gpctools import columns as C
 from gpctools.errors import DataError, GpcError
 from gpctools.transfer.estimators import CLDSlope, cld_slope
 from gpctools.transfer.series import Run, RunSeries
@@ -157,15 +158,32 @@ def _measurement_of(inj: Any, calibration: Any) -> _Measurement:
     return _Measurement(u_n, u_w, g.get("Mn", zero), g.get("Mw", zero))
 
 
+def _light_scattering(inj: Any) -> tuple[float, float] | None:
+    """Absolute Mn, Mw [g/mol] of an injection whose method has [detectors] with light
+    scattering (gpctools.columns.MN_LS, MW_LS), or None."""
+    det = getattr(inj, "detectors", None)
+    if det is None:
+        return None
+    vals = det.row()
+    Mn, Mw = vals.get(C.MN_LS, math.nan), vals.get(C.MW_LS, math.nan)
+    return (float(Mn), float(Mw)) if math.isfinite(Mn) and math.isfinite(Mw) and Mn > 0 and Mw > 0 else None
+
+
 def _chromatogram_run(run: Run, method: Any, opts: Any, want_cld: bool) -> RunEstimate:
     """A run from its chromatogram(s): mean over replicate injections, their scatter or the
-    chromatogram's own uncertainty, and the calibration gradients."""
+    chromatogram's own uncertainty, and the calibration gradients.
+
+    With light scattering in the method ([detectors]) the run's Mn and Mw are the absolute
+    ones (scale "absolute, light scattering"), which do not move with the conventional
+    calibration's coefficients (zero gradient); the CLD slope still uses the
+    concentration trace through the calibration."""
     obs: dict[str, list[float]] = {"Mn": [], "Mw/2": [], "CLD": []}
     grads: dict[str, list[np.ndarray]] = {"Mn": [], "Mw/2": [], "CLD": []}
     u_chrom: dict[str, list[float]] = {"Mn": [], "Mw/2": []}
     notes: list[str] = []
     first = None
     Mn_l, Mw_l = [], []
+    scale = None
     for path in run.files or ((run.file,) if run.file else ()):
         try:
             inj, cld, nts, unc, g_cld = _one_injection(path, run, method, opts, want_cld)
@@ -175,12 +193,15 @@ def _chromatogram_run(run: Run, method: Any, opts: Any, want_cld: bool) -> RunEs
         d = inj.distribution
         first = first or (inj, cld)
         notes.extend(nts)
-        Mn_l.append(float(d.Mn))
-        Mw_l.append(float(d.Mw))
-        obs["Mn"].append(run.M0 / float(d.Mn))
-        obs["Mw/2"].append(2.0 * run.M0 / float(d.Mw))
-        grads["Mn"].append(-unc.grad_ln_Mn)
-        grads["Mw/2"].append(-unc.grad_ln_Mw)
+        ls = _light_scattering(inj)
+        Mn_i, Mw_i = ls if ls is not None else (float(d.Mn), float(d.Mw))
+        scale = C.LS_SCALE_LABEL if ls is not None else (scale or inj.scale)
+        Mn_l.append(Mn_i)
+        Mw_l.append(Mw_i)
+        obs["Mn"].append(run.M0 / Mn_i)
+        obs["Mw/2"].append(2.0 * run.M0 / Mw_i)
+        grads["Mn"].append(-unc.grad_ln_Mn * (ls is None))
+        grads["Mw/2"].append(-unc.grad_ln_Mw * (ls is None))
         u_chrom["Mn"].append(unc.u_Mn)
         u_chrom["Mw/2"].append(unc.u_Mw)
         if cld is not None and g_cld is not None:
@@ -190,7 +211,7 @@ def _chromatogram_run(run: Run, method: Any, opts: Any, want_cld: bool) -> RunEs
     n = len(Mn_l)
     rel_u, rel_dof, source = _replicate_noise(obs, u_chrom, n)
     return RunEstimate(
-        run, float(np.mean(Mn_l)), float(np.mean(Mw_l)), inj0.scale, cld0,
+        run, float(np.mean(Mn_l)), float(np.mean(Mw_l)), scale or inj0.scale, cld0,
         np.asarray(inj0.distribution.M), np.asarray(inj0.distribution.dwdlogM),
         float(inj0.Mn_shift_pct), "", tuple(dict.fromkeys(notes)),
         observations={k: v for k, v in obs.items() if v}, rel_u=rel_u, rel_u_dof=rel_dof,

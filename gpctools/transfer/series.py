@@ -307,7 +307,7 @@ def _run(row: SheetRow, table: CheckedSheet, terms: tuple[str, ...], base: Path,
     u_res = {k: v for k, v in row.family_values["u_residual"].items() if v is not None}
     return Run(
         run_id=row["run"], row=row.row, file=fpath, Mn=Mn, Mw=Mw,
-        scale=_scale(row, cols.header("scale")), monomer=mono,
+        scale=_scale(row, cols.header("scale"), cols.header("Mn") or cols.header("Mw")), monomer=mono,
         M0=m0.value(row, mono, cols), monomer_conc=Mc, ratios=ratios,
         conversion=_num(row.get("conversion")), T_C=_temperature(row, table),
         series=row.get("series", ""), agent=row.get("agent", ""), role=role,
@@ -356,11 +356,20 @@ def _averages(row: SheetRow, header: Any, has_other_source: bool) -> tuple[float
     return Mn, Mw
 
 
-def _scale(row: SheetRow, header: str | None) -> str:
-    """``absolute``, ``relative`` (standard-equivalent) or ``""`` from the ``Mn scale`` cell."""
-    scale = row.get("scale", "").lower()
+def _scale(row: SheetRow, header: str | None, averages_header: str | None = None) -> str:
+    """``absolute``, ``relative`` (standard-equivalent) or ``""`` from the ``Mn scale`` cell.
+
+    Light scattering keeps its own label, ``absolute, light scattering``
+    (:data:`gpctools.columns.LS_SCALE_LABEL`): from a cell that says so, or from averages
+    taken from the ``Mn LS [g/mol]`` / ``Mw LS [g/mol]`` columns of a batch with
+    ``[detectors]`` when the cell is blank.
+    """
+    scale = str(row.get("scale") or "").lower()
+    from_ls = " ls" in f" {(averages_header or '').lower()}"
     if scale.startswith("abs"):
-        return "absolute"
+        return C.LS_SCALE_LABEL if "light scattering" in scale else "absolute"
+    if not scale and from_ls and (math.isfinite(_num(row.get("Mn"))) or math.isfinite(_num(row.get("Mw")))):
+        return C.LS_SCALE_LABEL
     if scale.startswith("rel") or "equivalent" in scale:
         return "relative"
     if scale:

@@ -44,6 +44,14 @@ def _yes(v: bool) -> str:
 
 
 def constants_rows(res: TransferResult) -> list[dict[str, Any]]:
+    """One row per constant, estimator and model of every group (the constants table).
+
+    Columns: series, group, temperature, term and agent, estimator and model (Mayo fit,
+    drift-corrected, consumption), C with its standard error split into statistical and
+    calibration parts, the interval and its confidence, the degrees of freedom, 1/DPn0
+    and DPn0, the runs used and excluded, the kinetic term, and notes. The body is one flat list of row builders, one per
+    model family, kept together so that the table's column order reads in one place.
+    """
     rows = []
     for g in res.groups:
         for t in g.terms:
@@ -131,6 +139,11 @@ def constants_rows(res: TransferResult) -> list[dict[str, Any]]:
 
 
 def run_rows(res: TransferResult) -> list[dict[str, Any]]:
+    """One row per run: its ratios, averages, 1/DPn per estimator, flag and reason.
+
+    Kept as one function for the same reason as :func:`constants_rows`: the runs table's
+    columns, in order, are read off this body.
+    """
     est = {e.run.run_id: e for e in res.estimates}
     group_of: dict[str, GroupResult] = {i: gr for gr in res.groups for i in gr.run_ids}
     terms = list(res.series.terms)
@@ -225,6 +238,7 @@ def _dpn_from_mw(e: Any, g: GroupResult | None) -> float:
 
 
 def arrhenius_rows(res: TransferResult) -> list[dict[str, Any]]:
+    """One row per Arrhenius fit: E_tr − E_p and A_tr/A_p with their intervals."""
     rows = []
     for lbl, f in res.arrhenius:
         rows.append({
