@@ -58,6 +58,8 @@ from typing import Any
 
 import numpy as np
 
+from gpctools.display import Display
+
 from . import columns as C
 from .distribution import (
     Distribution,
@@ -115,14 +117,15 @@ RESULT_COLUMNS = (
     *C.UNCERTAINTY_COLUMNS,
     C.OUTSIDE_CALIBRATION,
     C.PEAKS,
-    C.PEAK_SPLIT,
+    *C.PEAK_SPLIT_COLUMNS,
     *C.PEAK_COLUMNS,
-    C.BASELINE_WINDOWS,
-    C.LIMITS,
     C.INTEGRATION_START,
     C.INTEGRATION_END,
     C.M_AT_INTEGRATION_START,
     C.M_AT_INTEGRATION_END,
+    C.LIMITS_CHOICE,
+    *C.BASELINE_COLUMNS,
+    C.BASELINE_CHOICE,
     C.FLOW_MARKER,
     C.FLOW_MARKER_STATUS,
     C.FLOW_FACTOR,
@@ -141,8 +144,8 @@ RESULT_COLUMNS = (
 MARKER_FOUND, MARKER_GIVEN, MARKER_NOT_FOUND, MARKER_NOT_USED = "found", "given", "not found", "not used"
 
 
-@dataclass(frozen=True)
-class MarkerSearch:
+@dataclass(frozen=True, repr=False)
+class MarkerSearch(Display):
     """The flow marker of one injection: where it is and how it was decided.
 
     Attributes
@@ -211,8 +214,8 @@ def _nan_if_none(x: float | None) -> float:
     return float("nan") if x is None else float(x)
 
 
-@dataclass(frozen=True)
-class InjectionResult:
+@dataclass(frozen=True, repr=False)
+class InjectionResult(Display):
     """Everything computed for one injection.
 
     Attributes
@@ -330,18 +333,24 @@ class InjectionResult:
         for frac in self.fractions:
             row[frac.column] = frac.percent
         row[C.PEAKS] = self.peaks.count if self.peaks is not None else math.nan
-        row[C.PEAK_SPLIT] = "; ".join(f"{p.M_lower:.5g}" for p in self.parts if p.M_lower is not None)
+        splits = [p.M_lower for p in self.parts if p.M_lower is not None]
+        for n, col in enumerate(C.PEAK_SPLIT_COLUMNS):
+            row[col] = float(splits[n]) if n < len(splits) else math.nan
         for n in range(1, C.MAX_PEAK_COLUMNS + 1):
             part = self.parts[n - 1] if n <= len(self.parts) else None
             for q in C.PEAK_QUANTITIES:
                 value = math.nan if part is None else (part.area_pct if q == "area" else getattr(part, q))
                 row[C.peak_column(n, q)] = value
         row.update({
-            C.BASELINE_WINDOWS: (
-                f"{bw[0][0]:.3f}-{bw[0][1]:.3f}; {bw[1][0]:.3f}-{bw[1][1]:.3f}"
-                + (" (auto)" if self.corrected.baseline.automatic else "")
-            ),
-            C.LIMITS: f"{lim[0]:.3f}-{lim[1]:.3f}" + (" (auto)" if self.corrected.automatic_limits else ""),
+            # ranges as numbers (the limits' columns come from the batch, with M at each end)
+            C.INTEGRATION_START: float(lim[0]),
+            C.INTEGRATION_END: float(lim[1]),
+            C.LIMITS_CHOICE: "automatic" if self.corrected.automatic_limits else "set",
+            C.BASELINE_1_START: float(bw[0][0]),
+            C.BASELINE_1_END: float(bw[0][1]),
+            C.BASELINE_2_START: float(bw[1][0]),
+            C.BASELINE_2_END: float(bw[1][1]),
+            C.BASELINE_CHOICE: "automatic" if self.corrected.baseline.automatic else "set",
             C.FLOW_MARKER: _nan_if_none(self.marker_observed),
             C.FLOW_MARKER_STATUS: self.marker.status if self.marker is not None else (
                 MARKER_GIVEN if self.marker_observed is not None else MARKER_NOT_USED),
@@ -356,6 +365,19 @@ class InjectionResult:
         if self.detectors is not None:
             row.update(self.detectors.row())
         return row
+
+    def _display_items(self) -> list[tuple[str, Any]]:
+        """Headline values of ``repr`` and the notebook table (:mod:`gpctools.display`)."""
+        d = self.distribution
+        items: list[tuple[str, Any]] = [(C.SAMPLE_ID, self.sample_id), (C.MN, d.Mn), (C.MW, d.Mw), (C.MZ, d.Mz),
+                                        (C.MP, d.Mp), (C.DISPERSITY, d.dispersity),
+                                        (C.uncertainty_column("Mn"), 100.0 * self.u_Mn),
+                                        (C.uncertainty_column("Mw"), 100.0 * self.u_Mw),
+                                        (C.OUTSIDE_CALIBRATION, 100.0 * d.outside_fraction),
+                                        (C.FLOW_MARKER, self.marker_observed), (C.SCALE, self.scale)]
+        if self.warnings:
+            items.append(("warnings", str(len(self.warnings))))
+        return [(k, v) for k, v in items if v is not None]
 
     def summary(self) -> dict[str, Any]:
         """Plain JSON-safe description of the injection and its results."""
@@ -1028,8 +1050,8 @@ def _worker(
         return _run_entry(entry, method, on_result, keep)
 
 
-@dataclass
-class BatchResult:
+@dataclass(repr=False)
+class BatchResult(Display):
     """Results of a batch: the table, the per-injection results and the inputs.
 
     Attributes
@@ -1067,6 +1089,43 @@ class BatchResult:
     @property
     def failed(self) -> int:
         return int((self.table[C.STATUS] == "error").sum())
+
+    def distributions(self) -> Any:
+        """Every kept injection's distribution in one tidy long table (pandas DataFrame).
+
+        One row per slice and injection: ``sample_id``, ``row`` (the sheet row, which
+        tells replicate injections apart), ``file``, ``role``, the sheet's ``product``
+        when it has one, then :data:`gpctools.distribution.TABLE_COLUMNS` (volume [mL],
+        M [g/mol], log10 M [-], w [-], dw/dlogM [-], cumulative [-]). Ready for
+        ``groupby("sample_id")`` or a plotting library's ``hue=``.
+
+        Raises
+        ------
+        DataError
+            No distribution was kept (``run_batch(..., keep_distributions=False)``: read
+            the ``distributions/*.csv`` tables written by the batch instead).
+        """
+        import pandas as pd
+
+        from .distribution import TABLE_COLUMNS
+
+        parts = []
+        for entry, res in zip(self.entries, self.injections):
+            if res is None:
+                continue
+            d = res.distribution
+            frame = pd.DataFrame(dict(zip(TABLE_COLUMNS, (d.volume, d.M, np.log10(d.M), d.w, d.dwdlogM,
+                                                          d.cumulative))))
+            meta = {C.SAMPLE_ID: entry.sample_id, "row": entry.row, C.FILE: entry.file, C.ROLE: entry.role}
+            if "product" in entry.metadata:
+                meta["product"] = entry.metadata["product"]
+            for k, (name, value) in enumerate(meta.items()):
+                frame.insert(k, name, value)
+            parts.append(frame)
+        if not parts:
+            raise DataError("no distribution was kept in this batch result: run_batch(..., "
+                            "keep_distributions=True), or read the distributions/*.csv tables the batch wrote")
+        return pd.concat(parts, ignore_index=True)
 
     def summary(self) -> dict[str, Any]:
         return {

@@ -28,6 +28,8 @@ from typing import Any
 
 import numpy as np
 
+from gpctools.display import Display
+
 from .errors import CalibrationError, CalibrationWarning
 
 __all__ = [
@@ -55,8 +57,8 @@ K_PLAUSIBLE_DL_G = (1e-6, 5e-3)
 K_RATIO_LIMIT = 10.0
 
 
-@dataclass(frozen=True)
-class Calibration:
+@dataclass(frozen=True, repr=False)
+class Calibration(Display):
     """A fitted calibration curve log10 M(V).
 
     Attributes
@@ -236,6 +238,39 @@ class Calibration:
         return tuple(float(math.sqrt(c)) if c >= 0 else float("nan")
                      for c in np.diag(np.asarray(self.covariance)))
 
+    def coefficients_mL(self) -> tuple[tuple[float, ...], tuple[float, ...]]:
+        """The curve in the user's units: log10 M = Σ b_k V^k with V in mL, and the
+        standard errors of the b_k, lowest order first.
+
+        The fit is made in the scaled variable t = (V − center)/scale for conditioning;
+        expanding (V − c)^k by the binomial theorem gives b = A·c with
+        A[j, k] = C(k, j)·(−c)^(k−j)/s^k (derived), so the covariance of b is A·Σ·Aᵀ.
+        A universal-calibration transform (log M = offset + factor·log M_standard) is
+        applied, so the b_k give the molar masses of the results' scale. Valid inside
+        the calibrated range (outside it :meth:`log_M` continues along the tangent).
+
+        Returns
+        -------
+        (coefficients, standard errors) : tuple of float, tuple of float
+            b_k [log10(g/mol)/mL^k]; standard errors NaN without degrees of freedom.
+        """
+        from math import comb
+
+        n = len(self.coefficients)
+        c, s = self.center, self.scale
+        A = np.zeros((n, n))
+        for k in range(n):
+            for j in range(k + 1):
+                A[j, k] = comb(k, j) * (-c) ** (k - j) / s**k
+        b = self.log_factor * (A @ np.asarray(self.coefficients, dtype=float))
+        b[0] += self.log_offset
+        if self.covariance:
+            cov = (self.log_factor**2) * (A @ np.asarray(self.covariance, dtype=float) @ A.T)
+            se = np.sqrt(np.clip(np.diag(cov), 0.0, None))
+        else:
+            se = np.full(n, np.nan)
+        return tuple(float(v) for v in b), tuple(float(v) for v in se)
+
     def log_M_stderr(self, V: Any) -> np.ndarray:
         """Standard error of the fitted log10 M at V [-], from the coefficient covariance.
 
@@ -403,6 +438,8 @@ class Calibration:
             "worst residual [%]": worst,
             "AICc [-]": self.aicc,
             "coefficient standard errors (scaled V, lowest first) [-]": list(self.coefficient_stderr),
+            "coefficients log10 M vs V [mL], lowest first": list(self.coefficients_mL()[0]),
+            "coefficient standard errors log10 M vs V [mL], lowest first": list(self.coefficients_mL()[1]),
             "largest standard error of M inside the range [%]": float(
                 100.0 * math.log(10.0) * np.nanmax(self.log_M_stderr(np.linspace(self.v_min, self.v_max, 201)))
             ) if self.covariance else float("nan"),
@@ -652,6 +689,10 @@ def fit_calibration(
         Fewer than order + 1 standards, non-positive values, duplicate volumes.
     """
     V, logM, names = _clean_standards(volume, Mp, names)
+    # the nominal Mp as given, in the same (volume) order: 10**log10(Mp) carries float noise
+    # (2519999.999999998 for 2,520,000)
+    Mp_nominal = np.asarray(Mp, dtype=float).ravel()[np.argsort(np.asarray(volume, dtype=float).ravel(),
+                                                                kind="stable")]
     if isinstance(order, str):
         if order.strip().lower() != "auto":
             raise CalibrationError(f"calibration order must be 1-{MAX_ORDER} or 'auto', got {order!r}")
@@ -691,7 +732,7 @@ def fit_calibration(
         v_max=float(V.max()),
         order=order,
         names=tuple(names),
-        Mp=tuple(float(m) for m in 10.0**logM),
+        Mp=tuple(float(m) for m in Mp_nominal),
         volume=tuple(float(v) for v in V),
         residuals_pct=tuple(float(r) for r in resid_pct),
         r_squared=float(r2),

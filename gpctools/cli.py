@@ -229,36 +229,47 @@ def _stage(label: str) -> Iterator[Callable[[int, int], None]]:
                 prog.stop()
 
 
-def _fmt(v) -> str:
-    try:
-        f = float(v)
-    except (TypeError, ValueError):
-        return str(v)
-    if f != f:
-        return "-"
-    if abs(f) >= 1000:
-        return f"{f:,.0f}"
-    return f"{f:.4g}"
+def _fmt(v, column: str = "") -> str:
+    """A table cell for the terminal, by the policy of :mod:`gpctools.formatting`
+    (digits per quantity from the column's name and unit; text stays text)."""
+    from .formatting import number
+
+    if isinstance(v, str):
+        return v
+    return number(v, column)
 
 
 def _print_table(rows: list[dict], columns: list[str]) -> None:
-    widths = {c: max(len(c), *(len(_fmt(r.get(c, ""))) for r in rows)) if rows else len(c) for c in columns}
+    widths = {c: max(len(c), *(len(_fmt(r.get(c, ""), c)) for r in rows)) if rows else len(c) for c in columns}
     typer.echo("  ".join(c.ljust(widths[c]) for c in columns))
     for r in rows:
-        typer.echo("  ".join(_fmt(r.get(c, "")).ljust(widths[c]) for c in columns))
+        typer.echo("  ".join(_fmt(r.get(c, ""), c).rjust(widths[c]) if not isinstance(r.get(c, ""), str)
+                             else _fmt(r.get(c, ""), c).ljust(widths[c]) for c in columns))
 
 
 def _run_batch_with_progress(sheet: Path, method: Method | None, out: Path, workers: int | None,
-                             sheet_name: str | None = None) -> BatchResult:
+                             sheet_name: str | None = None, *, review: bool = True,
+                             review_limit: int | None = 100) -> BatchResult:
     from .batch import run_batch
     from .report import DistributionWriter, write_batch
+    from .report.batch import Sinks
 
+    sink: Any = DistributionWriter(out / "distributions")
+    if review:
+        import shutil
+
+        from .report.review import PARTS, ReviewSink, review_rows
+
+        shutil.rmtree(out / PARTS, ignore_errors=True)  # fragments of an interrupted earlier run
+        rows = review_rows(sheet, review_limit, sheet_name=sheet_name)
+        sink = Sinks((sink, ReviewSink(out / PARTS, rows)))
     with _stage("injections") as advance:
-        result = run_batch(
-            sheet, method, sheet=sheet_name, workers=workers, progress=advance,
-            on_result=DistributionWriter(out / "distributions"),
-        )
+        result = run_batch(sheet, method, sheet=sheet_name, workers=workers, progress=advance, on_result=sink)
     write_batch(result, out, distributions=False)  # distributions were written while running
+    if review:
+        from .report.review import write_review
+
+        write_review(result, out, limit=review_limit)
     return result
 
 
@@ -276,6 +287,10 @@ def batch_cmd(
     out: Path = typer.Option(Path("gpctools-out"), "--out", "-o", help="Output folder."),
     workers: int = typer.Option(0, "--workers", "-j", min=0, help="Processes to use (0 = choose from batch size and cores)."),
     sheet_name: Optional[str] = typer.Option(None, "--sheet", help="Workbook sheet of the batch sheet."),
+    review: bool = typer.Option(True, "--review/--no-review", help="Write review.html: each injection's "
+                                "trace, baseline, limits and distribution, overlays and the calibration."),
+    review_all: bool = typer.Option(False, "--review-all", help="Draw every injection on review.html "
+                                    "(default: the first 100, the rest listed)."),
 ) -> None:
     """Process every injection of a batch sheet and write the results table.
 
@@ -287,7 +302,10 @@ def batch_cmd(
 
     _check_out(out)
     m = load_method(method) if method is not None else None
-    result = _run_batch_with_progress(sheet, m, out, workers or None, sheet_name)
+    from .report.review import DEFAULT_LIMIT
+
+    result = _run_batch_with_progress(sheet, m, out, workers or None, sheet_name, review=review,
+                                      review_limit=None if review_all else DEFAULT_LIMIT)
     rows = result.table.to_dict("records")
     _print_table(rows, SUMMARY_COLUMNS)
     if len(result.methods) > 1:
@@ -303,7 +321,8 @@ def batch_cmd(
         shown = [c for c in (C.SAMPLE_ID, C.STATUS, C.MN_LS, C.MW_LS, C.MW_LS_AREAS, C.DISPERSITY_LS, C.RG_Z,
                              C.INTRINSIC_VISCOSITY, C.MH_A, C.DETECTOR_SCALE) if c in result.table.columns]
         _print_table(rows, shown)
-    typer.echo(f"wrote {out}/results.csv, results.xlsx, calibration.csv, manifest.json, distributions/")
+    typer.echo(f"wrote {out}/results.csv, results.xlsx, calibration.csv, manifest.json, distributions/"
+               + (", review.html" if review else ""))
     if result.failed:
         for r in rows:
             if r["status"] == "error":
@@ -405,21 +424,47 @@ def _print_qc(res) -> None:
 @_guard
 def calibrate_cmd(
     method: Path = typer.Argument(..., help="Method file (TOML) with the narrow standards."),
+    out: Path = typer.Option(Path("gpctools-out"), "--out", "-o", help="Folder of calibration.png."),
+    plot: bool = typer.Option(True, "--plot/--no-plot", help="Write calibration.png (curve above residuals)."),
 ) -> None:
-    """Fit the method's calibration and show each standard's residual."""
+    """Fit the method's calibration: each standard's residual, the curve's coefficients
+    (log10 M against V in mL, with standard errors) and a plot of curve and residuals."""
+    from . import formatting as F
     from .method import load_method
 
     m = load_method(method)
-    s = m.calibration.summary()
+    cal = m.calibration
+    s = cal.summary()
     _print_table(s["standards_table"], ["standard", "Mp [g/mol]", "volume [mL]", "fitted M [g/mol]", "residual [%]"])
-    typer.echo(f"\norder {s['order']}, R^2 = {s['R^2 [-]']:.6f}, worst residual {s['worst residual [%]']:+.2f} %")
+    typer.echo(f"\norder {s['order']}, R^2 = {F.r_squared(s['R^2 [-]'])}, "
+               f"worst residual {F.percent(s['worst residual [%]'], sign=True)} %")
+    b, se = cal.coefficients_mL()
+    typer.echo("curve: log10 M = " + " ".join(
+        f"{'+' if k and v >= 0 else '-' if v < 0 else ''}{' ' if k else ''}{F.significant(abs(v) if k else v, 8, keep_zeros=True)}"
+        + ("" if k == 0 else " V" if k == 1 else f" V^{k}") for k, v in enumerate(b))
+        + "   (V in mL, M in g/mol)")
+    width = max(len(F.significant(v, 8, keep_zeros=True)) for v in b)
+    for k, (v, e) in enumerate(zip(b, se)):
+        unit = "log10(g/mol)" + ("" if k == 0 else "/mL" if k == 1 else f"/mL^{k}")
+        typer.echo(f"  b{k} = {F.significant(v, 8, keep_zeros=True):>{width}}  "
+                   f"standard error {F.significant(e, 2, keep_zeros=True)}  [{unit}]")
     lo, hi = s["calibrated range [mL]"]
-    typer.echo(f"calibrated range {lo:g}-{hi:g} mL; molar-mass scale: {s['molar-mass scale']}")
-    se = s["largest standard error of M inside the range [%]"]
-    if se == se:  # not NaN
-        typer.echo(f"largest standard error of the fitted M inside the range: {se:.2f} %")
+    typer.echo(f"calibrated range {lo:.3f} to {hi:.3f} mL "
+               f"({F.molar_mass(s['calibrated range [g/mol]'][0])} to "
+               f"{F.molar_mass(s['calibrated range [g/mol]'][1])} g/mol); "
+               f"molar-mass scale: {s['molar-mass scale']}")
+    top = s["largest standard error of M inside the range [%]"]
+    if top == top:  # not NaN
+        typer.echo(f"largest standard error of the fitted M inside the range: {F.percent(top)} %")
     for w in s["warnings"]:
         _err(f"warning: {w}")
+    if plot:
+        from .report.files import write_bytes
+        from .report.plots import calibration_figure, png_bytes
+
+        _check_out(out)
+        path = write_bytes(out / "calibration.png", png_bytes(calibration_figure(cal)))
+        typer.echo(f"wrote {path}")
 
 
 @app.command("detectors")
@@ -580,12 +625,12 @@ def _print_method_view(d: ExportDescription, m: Method, x0: float, x1: float) ->
         v0, v1 = x0, x1
     cal = m.calibration
     typer.echo(f"calibrated range: {cal.v_min:.4g} to {cal.v_max:.4g} mL "
-               f"({_fmt(float(cal.M(cal.v_max)))} to {_fmt(float(cal.M(cal.v_min)))} g/mol)")
+               f"({_fmt(float(cal.M(cal.v_max)), '[g/mol]')} to {_fmt(float(cal.M(cal.v_min)), '[g/mol]')} g/mol)")
     lim = m.volume_limits()
     if lim is None:
         typer.echo("integration limits: automatic")
     else:
-        given = (f" (from {_fmt(m.limits_M[0])} to {_fmt(m.limits_M[1])} g/mol)"
+        given = (f" (from {_fmt(m.limits_M[0], '[g/mol]')} to {_fmt(m.limits_M[1], '[g/mol]')} g/mol)"
                  if m.limits_M is not None else "")
         inside = "" if v0 <= lim[0] and lim[1] <= v1 else "; not all inside the recorded volumes"
         typer.echo(f"integration limits: {lim[0]:.4g} to {lim[1]:.4g} mL{given}{inside} "
@@ -691,6 +736,7 @@ def transfer_cmd(
     monomer_conc: Optional[float] = typer.Option(None, "--monomer-conc", help="Dosing: [M]0 of the recipe [mol/L] (default: the series' mean)."),
 ) -> None:
     """Chain-transfer constants from a run series (Mayo, Mw/2, CLD; drift; impurity flags; ln C vs 1/T; dosing)."""
+    from . import formatting as F
     from .report import write_transfer
     from .transfer import TransferOptions, analyse_series
 
@@ -739,7 +785,8 @@ def transfer_cmd(
                    f"{w.value:.4g} mol per 100 g monomer ({100 * d.ratio.confidence:g} % interval; {d.model})")
     for lbl, fit in result.arrhenius:
         typer.echo(f"{lbl['agent']} {lbl['term']} ({lbl['estimator']}, {lbl['model']}): "
-                   f"E_tr - E_p = {fit.delta_E.value:.2f} ± {fit.delta_E.stderr:.2f} kJ/mol, "
+                   f"E_tr - E_p = {F.significant(fit.delta_E.value, 3)} kJ/mol ("
+                   f"{F.interval(fit.delta_E.ci_low, fit.delta_E.ci_high, unit='kJ/mol', level=fit.delta_E.confidence)}), "
                    f"A_tr/A_p = {fit.A_ratio.value:.3g}")
     listed = ", ".join(sorted(p for p in paths if "/" not in p))
     typer.echo(f"wrote {out}/ ({listed}{', plots/' if any('/' in p for p in paths) else ''})")

@@ -67,8 +67,13 @@ __all__ = [
     "MP_DWDLOGM",
     "DISPERSITY",
     "OUTSIDE_CALIBRATION",
-    "BASELINE_WINDOWS",
-    "LIMITS",
+    "BASELINE_1_START",
+    "BASELINE_1_END",
+    "BASELINE_2_START",
+    "BASELINE_2_END",
+    "BASELINE_COLUMNS",
+    "BASELINE_CHOICE",
+    "LIMITS_CHOICE",
     "INTEGRATION_START",
     "INTEGRATION_END",
     "M_AT_INTEGRATION_START",
@@ -91,7 +96,8 @@ __all__ = [
     "uncertainty_column",
     "UNCERTAINTY_COLUMNS",
     "PEAKS",
-    "PEAK_SPLIT",
+    "PEAK_SPLIT_COLUMNS",
+    "peak_split_column",
     "MAX_PEAK_COLUMNS",
     "PEAK_QUANTITIES",
     "peak_column",
@@ -276,9 +282,19 @@ MP_DWDLOGM = _column("Mp (dw/dlogM) [g/mol]", "g/mol",
 DISPERSITY = _column("dispersity [-]", "-", "Mw/Mn")
 OUTSIDE_CALIBRATION = _column("outside calibration [% mass]", "% mass",
                               "mass eluting outside the calibrated volume range")
-BASELINE_WINDOWS = _column("baseline windows [mL]", "mL",
-                           "the two baseline windows used ('auto' when chosen automatically)")
-LIMITS = _column("limits [mL]", "mL", "integration limits used ('auto' when chosen automatically)")
+BASELINE_1_START = _column("baseline window 1 start [mL]", "mL",
+                           "start of the first (early) baseline window used, flow-corrected volume")
+BASELINE_1_END = _column("baseline window 1 end [mL]", "mL", "end of the first baseline window used")
+BASELINE_2_START = _column("baseline window 2 start [mL]", "mL",
+                           "start of the second (late) baseline window used")
+BASELINE_2_END = _column("baseline window 2 end [mL]", "mL", "end of the second baseline window used")
+BASELINE_CHOICE = _column("baseline windows chosen", "",
+                          "automatic (found by gpctools) or set (method file or batch-sheet override)")
+LIMITS_CHOICE = _column("integration limits chosen", "",
+                        "automatic (found by gpctools) or set (method file or batch-sheet override); "
+                        "the limits are 'integration start [mL]' and 'integration end [mL]'")
+#: The baseline windows as numbers, in table order.
+BASELINE_COLUMNS = (BASELINE_1_START, BASELINE_1_END, BASELINE_2_START, BASELINE_2_END)
 INTEGRATION_START = _column("integration start [mL]", "mL",
                             "early (high-M) integration limit used, on the flow-corrected "
                             "volume axis")
@@ -346,9 +362,6 @@ UNCERTAINTY_COLUMNS = tuple(
 
 # -- peaks ------------------------------------------------------------------------------
 PEAKS = _column("peaks [-]", "-", "number of peaks in the trace by the valley criterion of [peaks]")
-PEAK_SPLIT = _column("peak split [g/mol]", "g/mol",
-                     "molar masses at which the trace was split into peaks, joined by '; ' "
-                     "(empty when not split)")
 #: Peaks reported in columns (a constant, not a setting, so that headers never change);
 #: further parts are in the injection's summary.
 MAX_PEAK_COLUMNS = 3
@@ -371,6 +384,22 @@ def peak_column(number: int, quantity: str) -> str:
 PEAK_COLUMNS = tuple(
     _column(peak_column(n, q), unit, f"peak {n} (counted from high M): {meaning}")
     for n in range(1, MAX_PEAK_COLUMNS + 1) for q, (unit, meaning) in PEAK_QUANTITIES.items()
+)
+
+
+def peak_split_column(number: int) -> str:
+    """``peak split 1 [g/mol]``: the molar mass where peak ``number`` (counted from high M)
+    ends and the next one starts (numbers 1 to ``MAX_PEAK_COLUMNS - 1``)."""
+    if not 1 <= number < MAX_PEAK_COLUMNS:
+        raise ValueError(f"peak split columns are numbered 1 to {MAX_PEAK_COLUMNS - 1}, got {number}")
+    return f"peak split {number} [g/mol]"
+
+
+#: The split points as numbers (empty when the trace is not split), in table order.
+PEAK_SPLIT_COLUMNS = tuple(
+    _column(peak_split_column(n), "g/mol", f"molar mass at which the trace was split between peak {n} and "
+                                          f"peak {n + 1} (empty when not split there)")
+    for n in range(1, MAX_PEAK_COLUMNS)
 )
 
 # -- more detectors (issue 16; docs/detectors.md) -------------------------------------------

@@ -37,6 +37,8 @@ from typing import Any, NamedTuple
 
 import numpy as np
 
+from gpctools import formatting as F
+
 from . import simulate
 from .chainlength import (
     DistributionModel,
@@ -605,18 +607,21 @@ def _demo_batch(folder: Path, out: Path, echo: Callable[[str], None], show: Stag
     from .batch import run_batch
     from .method import load_method
     from .report import DistributionWriter, write_batch
+    from .report.batch import Sinks
+    from .report.review import PARTS, ReviewSink, write_review
 
     method = load_method(folder / "method.toml")
+    sink = Sinks((DistributionWriter(out / "batch" / "distributions"), ReviewSink(out / "batch" / PARTS)))
     with show("batch: injections") as advance:
-        result = run_batch(folder / "batch.csv", method, progress=advance,
-                           on_result=DistributionWriter(out / "batch" / "distributions"))
+        result = run_batch(folder / "batch.csv", method, progress=advance, on_result=sink)
     write_batch(result, out / "batch", distributions=False)
+    write_review(result, out / "batch", limit=None)
     echo(f"gpctools demo: {len(result.table)} injections from {folder}")
     echo(f"molar-mass scale: {method.calibration.scale_label()}\n")
     worst = _compare_with_truth(result.table, folder, echo)
     if worst is not None:
         echo(f"\nlargest deviation from the true averages: {worst:.2f} %")
-    echo(f"batch results written to {out / 'batch'} (results.csv, results.xlsx, distributions/)")
+    echo(f"batch results written to {out / 'batch'} (results.csv, results.xlsx, distributions/, review.html)")
     report["worst deviation [%]"] = worst
     report["failed"] += result.failed
     report["parts"]["batch"] = {"status": "ran"}
@@ -650,14 +655,14 @@ def _compare_with_truth(table: Any, folder: Path, echo: Callable[[str], None]) -
         key = r["file"] if truth is not None and truth.index.name == "file" else sid
         if truth is None or key not in truth.index:
             echo(f"{label:<13}{r['Mn [g/mol]']:>11,.0f}{'-':>10}{'':>8}{r['Mw [g/mol]']:>12,.0f}{'-':>10}{'':>8}"
-                 f"{r['dispersity [-]']:>7.3f}")
+                 f"{F.dispersity(r['dispersity [-]']):>7}")
             continue
         t = truth.loc[key]
         dn = 100 * (r["Mn [g/mol]"] / t["Mn [g/mol]"] - 1)
         dw = 100 * (r["Mw [g/mol]"] / t["Mw [g/mol]"] - 1)
         worst = max(worst or 0.0, abs(dn), abs(dw))
         echo(f"{label:<13}{r['Mn [g/mol]']:>11,.0f}{t['Mn [g/mol]']:>10,.0f}{dn:>+7.2f}%"
-             f"{r['Mw [g/mol]']:>12,.0f}{t['Mw [g/mol]']:>10,.0f}{dw:>+7.2f}%{r['dispersity [-]']:>7.3f}")
+             f"{r['Mw [g/mol]']:>12,.0f}{t['Mw [g/mol]']:>10,.0f}{dw:>+7.2f}%{F.dispersity(r['dispersity [-]']):>7}")
     if truth is None:
         echo(f"(no truth.csv in {folder}: the averages are not compared with true values)")
     return worst
@@ -714,7 +719,8 @@ def run_demo_series(
         worst = max(worst, abs(dev))
         recovered[key] = c.value
         naive = g.mayo[est].constant("C_A").value
-        say(f"  {g.label}: C_A = {c.value:.3f} ± {c.stderr:.2g} ({est}, {model}); true "
+        say(f"  {g.label}: C_A = {F.significant(c.value, 4)} ({F.interval(c.ci_low, c.ci_high, level=c.confidence)}; "
+            f"{est}, {model}); true "
             f"{true:.3f} ({dev:+.1f} %); naive fit {naive:.3f}")
     flagged = sorted(f.run_id for g in res.groups if g.impurity for f in g.impurity.flags if f.flagged)
     say(f"  flagged runs: {', '.join(flagged) or 'none'} (contaminated: {truth['contaminated run']})")
@@ -722,7 +728,8 @@ def run_demo_series(
     for lbl, fit in res.arrhenius:
         if lbl["estimator"] == next(iter(res.groups)).preferred["C_A"][0]:
             dE = fit.delta_E.value
-            say(f"  E_tr - E_p = {fit.delta_E.value:.2f} ± {fit.delta_E.stderr:.2f} kJ/mol "
+            say(f"  E_tr - E_p = {F.significant(fit.delta_E.value, 3)} kJ/mol ("
+                f"{F.interval(fit.delta_E.ci_low, fit.delta_E.ci_high, unit='kJ/mol', level=fit.delta_E.confidence)}) "
                 f"(true {truth['E_tr - E_p [kJ/mol]']:g})")
     ok = worst <= 5.0 and flagged == [truth["contaminated run"]]
     say(f"  transfer tables and plots written to {out}")

@@ -40,6 +40,8 @@ from typing import Any
 
 import numpy as np
 
+from gpctools.display import Display
+
 from .calibration import Calibration
 from .errors import DataError, RangeWarning, SignalWarning
 from .signal import _as_trace
@@ -441,8 +443,8 @@ def peak_position(x: np.ndarray, y: np.ndarray) -> float:
     return float(x[i])
 
 
-@dataclass(frozen=True)
-class Distribution:
+@dataclass(frozen=True, repr=False)
+class Distribution(Display):
     """Differential and cumulative molar-mass distribution with its averages.
 
     Arrays hold the slices inside the integration window (exclusions removed), in
@@ -705,8 +707,8 @@ def mass_fraction_below(dist: Distribution, M_cut: float) -> float:
 
 
 # -- several peaks ----------------------------------------------------------------------------
-@dataclass(frozen=True)
-class PeakPart:
+@dataclass(frozen=True, repr=False)
+class PeakPart(Display):
     """One part of a trace split at given molar masses (perpendicular drop).
 
     Attributes

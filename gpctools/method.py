@@ -79,6 +79,8 @@ from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Any
 
+from gpctools.display import Display
+
 from . import columns as C
 from .calibration import Calibration, fit_calibration
 from .detectors.pipeline import DetectorMethod
@@ -186,8 +188,8 @@ class FractionOptions:
     above: tuple[float, ...] = ()
 
 
-@dataclass(frozen=True)
-class Method:
+@dataclass(frozen=True, repr=False)
+class Method(Display):
     """All processing choices of an analysis, checked.
 
     Attributes
@@ -328,8 +330,8 @@ def _num(x: float) -> str:
     return f"{float(x):.10g}"
 
 
-@dataclass(frozen=True)
-class MethodOverrides:
+@dataclass(frozen=True, repr=False)
+class MethodOverrides(Display):
     """Settings one injection changes in its method (batch-sheet columns).
 
     Attributes

@@ -52,6 +52,7 @@ from typing import Any, cast
 
 import pandas as pd
 
+from gpctools.display import Display
 from gpctools.errors import DataError, InputFormatError, MethodError, RangeWarning
 
 __all__ = [
@@ -247,8 +248,8 @@ def _warn(note: str | None) -> None:
         warnings.warn(note, ReferenceWarning, stacklevel=3)
 
 
-@dataclass(frozen=True)
-class Monomer:
+@dataclass(frozen=True, repr=False)
+class Monomer(Display):
     """A monomer row: repeat-unit mass, density, propagation and transfer to monomer.
 
     Attributes
@@ -437,8 +438,8 @@ class Monomer:
         return d
 
 
-@dataclass(frozen=True)
-class Initiator:
+@dataclass(frozen=True, repr=False)
+class Initiator(Display):
     """A thermal initiator row.
 
     Attributes
@@ -529,8 +530,8 @@ def convert_kt(value: float, from_convention: str, to_convention: str = "IUPAC 2
     return float(value) * 2.0
 
 
-@dataclass(frozen=True)
-class Termination:
+@dataclass(frozen=True, repr=False)
+class Termination(Display):
     """Termination row: k_t with its convention and temperature dependence, and δ.
 
     Attributes
@@ -619,8 +620,8 @@ class Termination:
         return d
 
 
-@dataclass(frozen=True)
-class Agent:
+@dataclass(frozen=True, repr=False)
+class Agent(Display):
     """A chain-transfer agent or solvent in a given monomer.
 
     Attributes
@@ -686,8 +687,8 @@ class Agent:
         return d
 
 
-@dataclass(frozen=True)
-class MarkHouwinkPair:
+@dataclass(frozen=True, repr=False)
+class MarkHouwinkPair(Display):
     """Mark-Houwink constants [η] = K·M^a, K in dL/g, for a polymer in a solvent at T [°C]."""
 
     polymer: str

@@ -24,6 +24,8 @@ from typing import Any
 
 import numpy as np
 
+from gpctools.display import Display
+
 from .errors import DataError, SignalWarning
 
 __all__ = [
@@ -40,8 +42,8 @@ __all__ = [
 Window = tuple[float, float]
 
 
-@dataclass(frozen=True)
-class Baseline:
+@dataclass(frozen=True, repr=False)
+class Baseline(Display):
     """A straight baseline ``b(V) = intercept + slope * V``.
 
     Attributes
@@ -86,8 +88,8 @@ class Baseline:
         }
 
 
-@dataclass(frozen=True)
-class CorrectedSignal:
+@dataclass(frozen=True, repr=False)
+class CorrectedSignal(Display):
     """Baseline-corrected trace with the integration window and exclusions.
 
     ``mask`` selects the slices that enter the averages: inside ``limits`` and outside
@@ -698,8 +700,8 @@ def correct_signal(
 
 
 # -- several peaks ----------------------------------------------------------------------------
-@dataclass(frozen=True)
-class Peaks:
+@dataclass(frozen=True, repr=False)
+class Peaks(Display):
     """Maxima of a corrected trace and the valleys that separate them.
 
     Attributes

@@ -32,6 +32,8 @@ from typing import Any
 
 import numpy as np
 
+from gpctools.display import Display
+
 from .calibration import Calibration
 from .distribution import AVERAGE_MOMENTS, Distribution
 from .signal import Baseline
@@ -53,8 +55,8 @@ UNCERTAIN_AVERAGES = ("Mn", "Mw", "Mz")
 LN10 = math.log(10.0)
 
 
-@dataclass(frozen=True)
-class RelativeUncertainty:
+@dataclass(frozen=True, repr=False)
+class RelativeUncertainty(Display):
     """Relative standard uncertainty u(X)/X of one average, by source [-] (fractions, not %).
 
     Attributes
@@ -91,8 +93,8 @@ class RelativeUncertainty:
         }
 
 
-@dataclass(frozen=True)
-class AverageUncertainty:
+@dataclass(frozen=True, repr=False)
+class AverageUncertainty(Display):
     """Relative standard uncertainties of Mn, Mw and Mz of one injection.
 
     Attributes

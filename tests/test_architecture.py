@@ -48,7 +48,7 @@ import pytest
 #: ``detectors``, because it checks the ``[detectors]`` section with them.
 LAYERS: tuple[tuple[str, ...], ...] = (
     ("gpctools", "gpctools.errors", "gpctools.templates"),  # metadata; starter files (package data)
-    ("gpctools.columns",),
+    ("gpctools.columns", "gpctools.formatting", "gpctools.display"),  # vocabulary, number policy, repr mixin
     ("gpctools.io", "gpctools.sheets"),
     ("gpctools.signal", "gpctools.calibration"),
     ("gpctools.distribution", "gpctools.uncertainty"),

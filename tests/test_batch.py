@@ -300,12 +300,16 @@ def test_overrides_per_row(demo_dir, tmp_path):
     assert t.loc["ML", "integration start [mL]"] == pytest.approx(13.1234, abs=1e-12)
     assert t.loc["ML", "overrides"] == "limits 13.1234-20.4321 mL"
     assert t.loc["GMOL", "overrides"].startswith("limits ") and t.loc["GMOL", "overrides"].endswith(" g/mol")
-    assert t.loc["PLAIN", "overrides"] == "" and t.loc["PLAIN", "limits [mL]"].endswith("(auto)")
+    assert t.loc["PLAIN", "overrides"] == "" and t.loc["PLAIN", "integration limits chosen"] == "automatic"
+    assert t.loc["ML", "integration limits chosen"] == "set"
     # baseline windows of one row: the same as a method with those windows
     direct = process_injection(d / "exports" / "LC110-A1.csv",
                                replace(m, windows=((10.9, 11.8), (23.2, 24.1))), sample_id="WIN")
     assert t.loc["WIN", "Mn [g/mol]"] == direct.distribution.Mn  # same computation
-    assert t.loc["WIN", "baseline windows [mL]"] == "10.900-11.800; 23.200-24.100"
+    # ranges as numeric columns (issue 15): the windows as given, to float rounding
+    windows = [t.loc["WIN", f"baseline window {k} {end} [mL]"] for k in (1, 2) for end in ("start", "end")]
+    assert windows == pytest.approx([10.9, 11.8, 23.2, 24.1], abs=1e-12)
+    assert t.loc["WIN", "baseline windows chosen"] == "set" and t.loc["PLAIN", "baseline windows chosen"] == "automatic"
     assert t.loc["WIN", "overrides"] == "baseline windows 10.9-11.8, 23.2-24.1 mL"
     # faults of one row become error rows naming the file, row and column; the others run
     assert res.failed == 3

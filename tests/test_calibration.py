@@ -476,3 +476,18 @@ def test_mark_houwink_K_checks() -> None:
         conv = cal.converted(1.14e-4, 0.716, 9.44e-3, 0.719)
     assert len(conv.warnings) == len(cal.warnings) + 2
     assert any("mL/g" in w for w in conv.summary()["warnings"])
+
+
+def test_coefficients_in_mL_match_a_direct_fit_in_V(demo_method):
+    # numpy as the reference: a polynomial fit of log10 Mp against V in mL, unscaled, and
+    # its covariance s^2 (X^T X)^-1 with s^2 = SSR/(n - order - 1) (np.polyfit(cov=True))
+    cal = demo_method.calibration
+    V = np.asarray(cal.volume)
+    b, se = cal.coefficients_mL()
+    ref, cov = np.polyfit(V, np.log10(np.asarray(cal.Mp)), cal.order, cov=True)
+    # rtol 1e-6: the unscaled normal equations of np.polyfit are less well conditioned
+    np.testing.assert_allclose(b, ref[::-1], rtol=1e-6)
+    np.testing.assert_allclose(se, np.sqrt(np.diag(cov))[::-1], rtol=1e-6)
+    # and the curve they give is the calibration's own, inside the range
+    grid = np.linspace(cal.v_min, cal.v_max, 7)
+    np.testing.assert_allclose(np.polynomial.polynomial.polyval(grid, b), cal.log_M(grid), atol=1e-10)

@@ -92,10 +92,14 @@ def test_user_errors_exit_2_with_message(demo_dir, tmp_path, case, expect):
     _ok_no_traceback(r)
 
 
-def test_calibrate_prints_residuals(demo_dir):
-    r = runner.invoke(app, ["calibrate", str(demo_dir / "method.toml")])
+def test_calibrate_prints_residuals(demo_dir, tmp_path):
+    r = runner.invoke(app, ["calibrate", str(demo_dir / "method.toml"), "-o", str(tmp_path)])
     assert r.exit_code == 0, r.output
     assert "residual [%]" in r.output and "PS 96k" in r.output
+    # the curve in the user's units with standard errors, and R² never rounded to "1"
+    assert "log10 M = " in r.output and "b3 = " in r.output and "standard error" in r.output
+    assert "R^2 = 0.99999" in r.output
+    assert (tmp_path / "calibration.png").read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
 
 
 def test_inspect_reports_columns(demo_dir):

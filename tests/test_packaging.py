@@ -222,7 +222,8 @@ def test_wheel_in_a_fresh_venv_runs_the_whole_demo_from_an_empty_folder(tmp_path
                                                                "QC sequence", "detectors")}, demo.stdout
     assert summary["failed"] == 0
     assert summary["worst deviation [%]"] < 1.0  # the demo's stated acceptance (README)
-    for part in ("sample_runs/batch.csv", "batch/results.csv", "batch/results.xlsx", "qc/qc_report.html",
+    for part in ("sample_runs/batch.csv", "batch/results.csv", "batch/results.xlsx", "batch/review.html",
+                 "qc/qc_report.html",
                  "qc/qc_report.xlsx", "transfer/constants.csv", "troubleshooting/diagnosis.md",
                  "troubleshooting/diagnosis.xlsx"):
         assert (out / part).is_file(), part

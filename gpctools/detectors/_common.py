@@ -16,6 +16,7 @@ from typing import Any
 
 import numpy as np
 
+from gpctools.display import Display
 from gpctools.errors import DataError, GpcWarning
 from gpctools.sheets.cells import finite_or_none
 
@@ -79,8 +80,8 @@ def warn_all(messages: Sequence[str], category: type[GpcWarning]) -> None:
         warnings.warn(msg, category, stacklevel=3)
 
 
-@dataclass(frozen=True)
-class Estimate:
+@dataclass(frozen=True, repr=False)
+class Estimate(Display):
     """A derived number with its standard uncertainty.
 
     Attributes

@@ -12,6 +12,7 @@ from typing import Any
 
 import numpy as np
 
+from gpctools.display import Display
 from gpctools.distribution import averages, slice_widths
 from gpctools.errors import DataError
 from gpctools.sheets.cells import finite_or_none
@@ -53,8 +54,8 @@ def good_signal_mask(conc: np.ndarray, other: np.ndarray, inside: np.ndarray, fr
     return mask
 
 
-@dataclass(frozen=True)
-class LogMFit:
+@dataclass(frozen=True, repr=False)
+class LogMFit(Display):
     """log10 M = Σ b_k (V − V_c)^k fitted over the good-signal slices.
 
     Attributes

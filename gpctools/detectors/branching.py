@@ -33,6 +33,7 @@ from typing import Any
 
 import numpy as np
 
+from gpctools.display import Display
 from gpctools.errors import DataError
 from gpctools.sheets.cells import finite_or_none
 
@@ -114,8 +115,8 @@ def branch_points(g: Any, model: str = "trifunctional", *, n_max: float = 1e4) -
     return out
 
 
-@dataclass(frozen=True)
-class Branching:
+@dataclass(frozen=True, repr=False)
+class Branching(Display):
     """Branching per slice and its model.
 
     Attributes

@@ -34,6 +34,7 @@ from typing import Any
 
 import numpy as np
 
+from gpctools.display import Display
 from gpctools.errors import DataError
 from gpctools.sheets.cells import finite_or_none
 
@@ -56,8 +57,8 @@ __all__ = [
 ]
 
 
-@dataclass(frozen=True)
-class Spreading:
+@dataclass(frozen=True, repr=False)
+class Spreading(Display):
     """A band-spreading function G: Gaussian (tau = 0) or exponentially modified Gaussian.
 
     Attributes
@@ -249,8 +250,8 @@ def broadening_factors(spreading: Spreading, B: float, *, centred: bool = True) 
     }
 
 
-@dataclass(frozen=True)
-class BroadeningCorrection:
+@dataclass(frozen=True, repr=False)
+class BroadeningCorrection(Display):
     """Averages before and after the analytic broadening correction (B2-B4).
 
     Attributes
@@ -396,8 +397,8 @@ def spreading_from_dispersity(dispersity_observed: float, dispersity_true: float
     return Spreading(brentq(excess, 0.0, hi, xtol=1e-12), tau)
 
 
-@dataclass(frozen=True)
-class Deconvolution:
+@dataclass(frozen=True, repr=False)
+class Deconvolution(Display):
     """A trace corrected for band spreading by regularised non-negative least squares.
 
     Attributes
@@ -506,8 +507,8 @@ def deconvolve(volume: Any, signal: Any, spreading: Spreading, *, smoothing: flo
                          residual_rms=rms, spreading=spreading)
 
 
-@dataclass(frozen=True)
-class CLDBias:
+@dataclass(frozen=True, repr=False)
+class CLDBias(Display):
     """Bias of the chain-length-distribution slope Λ caused by band spreading.
 
     Attributes

@@ -26,6 +26,7 @@ from typing import Any
 
 import numpy as np
 
+from gpctools.display import Display
 from gpctools.errors import DataError
 from gpctools.sheets.cells import finite_or_none
 
@@ -44,8 +45,8 @@ __all__ = [
 ]
 
 
-@dataclass(frozen=True)
-class Composition:
+@dataclass(frozen=True, repr=False)
+class Composition(Display):
     """Per-slice composition of a two-component copolymer.
 
     Attributes

@@ -60,6 +60,7 @@ from collections.abc import Mapping
 from dataclasses import dataclass, field
 from typing import Any
 
+from gpctools.display import Display
 from gpctools.errors import MethodError
 
 from .broadening import Spreading
@@ -97,8 +98,8 @@ _TOP_KEYS = {"concentration", "copolymer", "description"}
 _COPOLYMER_KEYS = {"names", "dn_dc", "uv_response", "dn_dc_laser"}
 
 
-@dataclass(frozen=True)
-class Detector:
+@dataclass(frozen=True, repr=False)
+class Detector(Display):
     """What every detector has.
 
     Attributes
@@ -147,8 +148,8 @@ class Detector:
         return out
 
 
-@dataclass(frozen=True)
-class ConcentrationDetector(Detector):
+@dataclass(frozen=True, repr=False)
+class ConcentrationDetector(Detector, Display):
     """RI or UV detector: signal proportional to mass concentration.
 
     Attributes
@@ -182,8 +183,8 @@ class ConcentrationDetector(Detector):
         return {"response": self.response}
 
 
-@dataclass(frozen=True)
-class LightScatteringDetector(Detector):
+@dataclass(frozen=True, repr=False)
+class LightScatteringDetector(Detector, Display):
     """Static light-scattering detector with one or more angles.
 
     Attributes
@@ -220,8 +221,8 @@ class LightScatteringDetector(Detector):
         }
 
 
-@dataclass(frozen=True)
-class Viscometer(Detector):
+@dataclass(frozen=True, repr=False)
+class Viscometer(Detector, Display):
     """Online viscometer.
 
     Attributes
@@ -280,8 +281,8 @@ class Copolymer:
         return out
 
 
-@dataclass(frozen=True)
-class DetectorSetup:
+@dataclass(frozen=True, repr=False)
+class DetectorSetup(Display):
     """All detectors of an SEC line, with the concentration detector named.
 
     Attributes

@@ -29,6 +29,7 @@ from typing import Any
 
 import numpy as np
 
+from gpctools.display import Display
 from gpctools.errors import DataError, SignalWarning
 
 from ._common import (
@@ -111,8 +112,8 @@ class LightScatteringOptions:
     size_fraction: float = 0.5
 
 
-@dataclass(frozen=True)
-class ConformationFit:
+@dataclass(frozen=True, repr=False)
+class ConformationFit(Display):
     """log10 Rg = log10 Q + ν·log10 M over the slices with measurable Rg (L14).
 
     Attributes
@@ -143,8 +144,8 @@ class ConformationFit:
         }
 
 
-@dataclass(frozen=True)
-class LightScatteringResult:
+@dataclass(frozen=True, repr=False)
+class LightScatteringResult(Display):
     """Absolute molar mass of one injection by light scattering.
 
     Attributes

@@ -37,6 +37,7 @@ from typing import Any
 
 import numpy as np
 
+from gpctools.display import Display
 from gpctools.errors import CalibrationError, CalibrationWarning, DataError
 from gpctools.sheets.cells import finite_or_none
 
@@ -125,8 +126,8 @@ def polydispersity_lead(dispersity: float, B: float, exponent: float = 1.0) -> f
     return exponent * math.log(d) / (LN10 * positive(B, "calibration slope B [1/mL]"))
 
 
-@dataclass(frozen=True)
-class PeakFit:
+@dataclass(frozen=True, repr=False)
+class PeakFit(Display):
     """A fitted peak: amplitude·(N(μ, σ²) ⊗ Exp(τ)) [detector units, mL].
 
     Attributes
@@ -240,8 +241,8 @@ def fit_peak(volume: Any, signal: Any, *, shape: str = "auto", floor: float = 0.
                    shape=pick)
 
 
-@dataclass(frozen=True)
-class DetectorCalibration:
+@dataclass(frozen=True, repr=False)
+class DetectorCalibration(Display):
     """What the standard says about one detector.
 
     Attributes
@@ -290,8 +291,8 @@ class DetectorCalibration:
         }
 
 
-@dataclass(frozen=True)
-class SetupCalibration:
+@dataclass(frozen=True, repr=False)
+class SetupCalibration(Display):
     """Result of :func:`calibrate_setup`: per detector offsets, broadening and constants."""
 
     standard: NarrowStandard

@@ -36,6 +36,7 @@ from typing import Any
 import numpy as np
 
 from gpctools import columns as C
+from gpctools.display import Display
 from gpctools.errors import DataError, MethodError
 from gpctools.sheets.cells import finite_or_none
 
@@ -85,8 +86,8 @@ SLICE_COLUMNS = ("M LS [g/mol]", "M LS slice [g/mol]", "Rg [nm]", "[eta] [dL/g]"
                  "g' [-]")
 
 
-@dataclass(frozen=True)
-class DetectorMethod:
+@dataclass(frozen=True, repr=False)
+class DetectorMethod(Display):
     """The ``[detectors]`` section of a method, checked.
 
     Attributes
@@ -351,8 +352,8 @@ def _channel_order(det: Any, headers: list[str]) -> list[str]:
     return headers
 
 
-@dataclass(frozen=True)
-class ShapedFit:
+@dataclass(frozen=True, repr=False)
+class ShapedFit(Display):
     """log10 M = b0 + b1·log10 M_cal(V) fitted to the light-scattering slice molar masses.
 
     Attributes
@@ -417,8 +418,8 @@ def calibration_shaped_fit(ls: LightScatteringResult, calibration_log_M: Callabl
                      averages_observed=av_obs)
 
 
-@dataclass(frozen=True)
-class DetectorResult:
+@dataclass(frozen=True, repr=False)
+class DetectorResult(Display):
     """Everything the detectors give for one injection.
 
     Attributes

@@ -34,6 +34,7 @@ from typing import Any
 
 import numpy as np
 
+from gpctools.display import Display
 from gpctools.errors import DataError
 
 from ._common import N_A, as_array, json_list, positive
@@ -129,8 +130,8 @@ def coil_scattering_function(angle: Any, rg: Any, wavelength: float,
     return out
 
 
-@dataclass(frozen=True)
-class AngularFit:
+@dataclass(frozen=True, repr=False)
+class AngularFit(Display):
     """Molar mass and radius of gyration of each slice from its angular dependence.
 
     Attributes

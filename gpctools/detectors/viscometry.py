@@ -36,6 +36,7 @@ from typing import Any
 
 import numpy as np
 
+from gpctools.display import Display
 from gpctools.errors import DataError
 from gpctools.sheets.cells import finite_or_none
 
@@ -264,8 +265,8 @@ def mark_houwink_viscosity(M: Any, K: float, a: float) -> np.ndarray:
     return np.asarray(K * np.power(np.asarray(M, dtype=float), a))
 
 
-@dataclass(frozen=True)
-class MarkHouwinkFit:
+@dataclass(frozen=True, repr=False)
+class MarkHouwinkFit(Display):
     """Mark-Houwink constants fitted to slice data: log10[η] = log10 K + a·log10 M (V11).
 
     Attributes
@@ -405,8 +406,8 @@ class ViscometryOptions:
     match_broadening: bool = True
 
 
-@dataclass(frozen=True)
-class ViscometryResult:
+@dataclass(frozen=True, repr=False)
+class ViscometryResult(Display):
     """Viscometry of one injection.
 
     Attributes

@@ -39,6 +39,7 @@ from typing import Any
 
 import numpy as np
 
+from gpctools.display import Display
 from gpctools.errors import DataError, GpcWarning, InputFormatError, MethodError
 from gpctools.io import _xlsx
 from gpctools.io._columns import (
@@ -101,8 +102,8 @@ class ReaderWarning(GpcWarning):
     """A file was read, but something in it deserves a look (e.g. a unit overridden)."""
 
 
-@dataclass(frozen=True, eq=False)
-class Chromatogram:
+@dataclass(frozen=True, eq=False, repr=False)
+class Chromatogram(Display):
     """One detector trace as exported: x (volume or time) and signal, sorted by x.
 
     Parameters

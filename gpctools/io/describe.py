@@ -21,6 +21,7 @@ import warnings
 from dataclasses import dataclass, field
 from typing import Any
 
+from gpctools.display import Display
 from gpctools.errors import GpcError, GpcWarning
 from gpctools.io import _files, _xlsx
 from gpctools.io._columns import detector_rank, split_header, x_kind_of
@@ -174,8 +175,8 @@ class ColumnInfo:
     use: str = ""
 
 
-@dataclass(frozen=True)
-class ExportDescription:
+@dataclass(frozen=True, repr=False)
+class ExportDescription(Display):
     """What :func:`describe_export` found in one export.
 
     Attributes

@@ -54,6 +54,7 @@ from collections.abc import Callable
 from dataclasses import dataclass
 from typing import Any
 
+from gpctools.display import Display
 from gpctools.kinetics.recipe import Checks
 from gpctools.kinetics.scoring import Observation
 
@@ -87,8 +88,8 @@ BV_REL_GIVEN = 0.1
 FLOW_FINDING_THRESHOLD = 0.001
 
 
-@dataclass(frozen=True)
-class CheckLine:
+@dataclass(frozen=True, repr=False)
+class CheckLine(Display):
     """A measurement check: status ``ok``, ``flag`` or ``not recorded``, with its numbers."""
 
     check: str

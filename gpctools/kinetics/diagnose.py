@@ -77,6 +77,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from gpctools.display import Display
 from gpctools.errors import DataError, MethodError
 from gpctools.kinetics.checks import CheckInputs, CheckLine, flow_sensitivity, run_checks
 from gpctools.kinetics.evidence import (
@@ -153,8 +154,8 @@ _CURVES = 3
 # --------------------------------------------------------------------------- records
 
 
-@dataclass(frozen=True)
-class Cause:
+@dataclass(frozen=True, repr=False)
+class Cause(Display):
     """One ranked cause.
 
     Attributes
@@ -333,8 +334,8 @@ def rate_from_conversion(
 # --------------------------------------------------------------------------- the diagnosis
 
 
-@dataclass(frozen=True)
-class Diagnosis:
+@dataclass(frozen=True, repr=False)
+class Diagnosis(Display):
     """Measured against predicted, ranked causes, measurement checks and cautions.
 
     Attributes

@@ -38,6 +38,7 @@ from typing import Any
 
 import numpy as np
 
+from gpctools.display import Display
 from gpctools.errors import InputFormatError
 
 __all__ = [
@@ -100,8 +101,8 @@ class MeasuredDistribution:
         return tails_of_curve(self.M, self.dwdlogM)
 
 
-@dataclass(frozen=True)
-class DistributionCurve:
+@dataclass(frozen=True, repr=False)
+class DistributionCurve(Display):
     """A curve for the overlay plot: dw/dlog10 M [-] against M [g/mol].
 
     ``kind`` is ``measured``, ``expected`` or ``cause``.

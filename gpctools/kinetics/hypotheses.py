@@ -54,6 +54,7 @@ from typing import ClassVar, Protocol
 
 import numpy as np
 
+from gpctools.formatting import ratio
 from gpctools.kinetics.checks import FlowSensitivity
 from gpctools.kinetics.evidence import Tails, model_tails
 from gpctools.kinetics.predict import KineticParameters, KineticState, evaluate
@@ -193,14 +194,14 @@ class Evidence:
         """'R_p is 1.23× expected' or 'R_p was not measured'."""
         if self.rp_ratio is None:
             return "R_p was not measured"
-        return f"R_p is {_sig(self.rp_ratio, 3)}× expected"
+        return f"R_p is {ratio(self.rp_ratio)}× expected"
 
     @property
     def mn_text(self) -> str:
         """'Mn is 0.8× expected' or 'Mn was not measured'."""
         if self.mn_ratio is None:
             return "Mn was not measured"
-        return f"Mn is {_sig(self.mn_ratio, 3)}× expected"
+        return f"Mn is {ratio(self.mn_ratio)}× expected"
 
     def ratio_numbers(self) -> list[tuple[str, float]]:
         """The measured/expected ratios that were measured, unit-named."""
@@ -493,11 +494,11 @@ class ExcessInitiation(Hypothesis):
         if rp is not None and dp is not None:
             nums.append(("R_p·DPn measured/expected [-]", rp * dp))
         prod = (
-            f"; R_p·DPn is {rp * dp:.3g}× expected (about 1 for extra initiator)"
+            f"; R_p·DPn is {ratio(rp * dp)}× expected (about 1 for extra initiator)"
             if (rp is not None and dp is not None) else ""
         )
         from_rate = (
-            f" The rate corresponds to {rp**2:.3g}× the radical flux (R_p ∝ [I]^½)."
+            f" The rate corresponds to {ratio(rp**2)}× the radical flux (R_p ∝ [I]^½)."
             if rp is not None else ""
         )
         return Explanation(
@@ -772,7 +773,7 @@ class LimitArtefact(Hypothesis):
         if lim is not None:
             nums.append(("Mn shift, low-M limit -0.2 mL [%]", lim))
         return Explanation(
-            f"Mn is low by {shift:+.3g} % while Mw is {_sig(ev.mw_ratio, 3)}× expected: a "
+            f"Mn is low by {shift:+.3g} % while Mw is {ratio(ev.mw_ratio)}× expected: a "
             "low-M tail, system peak or baseline end inside the integration limits"
             + (f"; Mn moves {lim:+.3g} % when the limit moves 0.2 mL" if lim is not None else "")
             + ".",

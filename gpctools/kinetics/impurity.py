@@ -26,6 +26,7 @@ from dataclasses import dataclass
 from typing import Any
 
 from gpctools.chainlength import impurity_ratio, impurity_ratio_cumulative
+from gpctools.display import Display
 from gpctools.errors import MethodError
 from gpctools.kinetics.predict import KineticParameters
 from gpctools.kinetics.recipe import Recipe
@@ -38,8 +39,8 @@ GENERIC_C = (1.0, 10.0, 100.0)
 _MAX_IMPURITY_PPM = 1e4  # table candidates needing more than 1 mol % are not "hidden"
 
 
-@dataclass(frozen=True)
-class ExcessEstimate:
+@dataclass(frozen=True, repr=False)
+class ExcessEstimate(Display):
     """The excess 1/DPn [-]: value, 95 % interval, and the value from Mn alone.
 
     ``relation`` says which impurity relation applies ("instantaneous (low conversion)"

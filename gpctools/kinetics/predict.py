@@ -49,6 +49,7 @@ from gpctools.chainlength import (
     mayo_inv_dpn,
     mixed_termination,
 )
+from gpctools.display import Display
 from gpctools.errors import DataError, GpcWarning, MethodError
 from gpctools.kinetics.recipe import (
     Component,
@@ -145,8 +146,8 @@ class InhibitorTerm:
     source: str = "recipe"
 
 
-@dataclass(frozen=True)
-class KineticParameters:
+@dataclass(frozen=True, repr=False)
+class KineticParameters(Display):
     """Every number the prediction uses, with its source (all at the recipe temperature).
 
     Units: T [K], concentrations [mol/L], k_p and k_t [L/mol/s], k_d [1/s], energies
@@ -808,8 +809,8 @@ class BudgetTerm:
     share: float
 
 
-@dataclass(frozen=True)
-class Prediction:
+@dataclass(frozen=True, repr=False)
+class Prediction(Display):
     """Steady-state prediction for a recipe.
 
     Attributes

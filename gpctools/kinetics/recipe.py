@@ -62,6 +62,7 @@ from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Any
 
+from gpctools.display import Display
 from gpctools.errors import GpcError, InputFormatError, MethodError
 from gpctools.refdata import TABLE_NAMES, ReferenceData, celsius_to_kelvin
 
@@ -454,8 +455,8 @@ class NormalBatch:
     measured: Measured
 
 
-@dataclass(frozen=True)
-class Recipe:
+@dataclass(frozen=True, repr=False)
+class Recipe(Display):
     """A polymerization recipe with optional measurements and checks.
 
     Build it with :func:`load_recipe` or :meth:`Recipe.from_dict`; values are checked

@@ -58,6 +58,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from gpctools.display import Display
 from gpctools.errors import MethodError
 from gpctools.kinetics.predict import KineticParameters, evaluate
 from gpctools.kinetics.recipe import Recipe
@@ -282,8 +283,8 @@ def jacobian(
     return J
 
 
-@dataclass(frozen=True)
-class ModelUncertainty:
+@dataclass(frozen=True, repr=False)
+class ModelUncertainty(Display):
     """The model's expectation for a batch and how uncertain it is.
 
     Attributes

@@ -35,6 +35,7 @@ from typing import Any
 
 import numpy as np
 
+from gpctools.display import Display
 from gpctools.signal import fit_baseline
 
 __all__ = ["ProductWindow", "BlankFinding", "check_blank", "subtract_blank", "smooth"]
@@ -61,8 +62,8 @@ class ProductWindow:
     peak_height: float
 
 
-@dataclass(frozen=True)
-class BlankFinding:
+@dataclass(frozen=True, repr=False)
+class BlankFinding(Display):
     """The largest blank peak in one product's window.
 
     Attributes

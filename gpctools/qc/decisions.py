@@ -41,6 +41,7 @@ import numpy as np
 import pandas as pd
 
 from gpctools import columns as C
+from gpctools.display import Display
 from gpctools.errors import DataError
 from gpctools.qc import _table as T
 from gpctools.qc.specs import SPEC_QUANTITIES, ProductSpec, SpecSheet, find_column
@@ -91,8 +92,8 @@ def would_be(verdict: str, reasons: Sequence[str]) -> str:
         f"against spec: {verdict} ({'; '.join(reasons)})"
 
 
-@dataclass(frozen=True)
-class SampleDecision:
+@dataclass(frozen=True, repr=False)
+class SampleDecision(Display):
     """The decision on one sample.
 
     Attributes
@@ -147,8 +148,8 @@ class SampleDecision:
         }
 
 
-@dataclass(frozen=True)
-class BatchDecision:
+@dataclass(frozen=True, repr=False)
+class BatchDecision(Display):
     """The decision on one batch (production lot).
 
     Attributes
@@ -182,8 +183,8 @@ class BatchDecision:
         }
 
 
-@dataclass(frozen=True)
-class InjectionVerdict:
+@dataclass(frozen=True, repr=False)
+class InjectionVerdict(Display):
     """The verdict on one injection.
 
     Attributes
@@ -218,8 +219,8 @@ class InjectionVerdict:
                 C.SPEC_VERDICT: self.spec_verdict}
 
 
-@dataclass(frozen=True)
-class Decisions:
+@dataclass(frozen=True, repr=False)
+class Decisions(Display):
     """Sample, batch and injection verdicts of one QC run."""
 
     samples: tuple[SampleDecision, ...]

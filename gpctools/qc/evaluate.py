@@ -32,6 +32,7 @@ import numpy as np
 import pandas as pd
 
 from gpctools import columns as C
+from gpctools.display import Display
 from gpctools.errors import DataError
 from gpctools.qc import _table as T
 from gpctools.qc._table import QCWarning
@@ -44,8 +45,8 @@ from gpctools.sheets import cells
 
 __all__ = ["QCSettings", "QCResult", "QCWarning", "evaluate_qc", "trend_points", "TrendPoint"]
 
-@dataclass(frozen=True, eq=False)
-class QCResult:
+@dataclass(frozen=True, eq=False, repr=False)
+class QCResult(Display):
     """Everything a QC evaluation found.
 
     Attributes

@@ -31,6 +31,7 @@ from typing import Any
 
 import numpy as np
 
+from gpctools.display import Display
 from gpctools.errors import MethodError
 from gpctools.sheets.cells import finite_or_none
 
@@ -171,8 +172,8 @@ class ReplicateGroup:
         return float(100.0 * (max(self.values) - min(self.values)) / self.mean) if self.n > 1 else math.nan
 
 
-@dataclass(frozen=True)
-class ReplicatePrecision:
+@dataclass(frozen=True, repr=False)
+class ReplicatePrecision(Display):
     """Replicate precision of one quantity in one sequence, judged by one rule.
 
     Attributes

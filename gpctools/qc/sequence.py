@@ -53,6 +53,7 @@ from gpctools.batch import (
     read_batch_sheet,
 )
 from gpctools.calibration import Calibration
+from gpctools.display import Display
 from gpctools.errors import CalibrationError, GpcError, InputFormatError
 from gpctools.method import Method, MethodOverrides
 from gpctools.qc import _table as T
@@ -77,8 +78,8 @@ def method_label(method: Method) -> str:
     return f"{name} (SHA-256 {method.sha256[:12]})" if method.sha256 else name
 
 
-@dataclass
-class SequenceRun:
+@dataclass(repr=False)
+class SequenceRun(Display):
     """Everything :func:`run_sequence` computed (nothing written).
 
     Attributes

@@ -42,6 +42,7 @@ from typing import Any
 import pandas as pd
 
 from gpctools import columns as C
+from gpctools.display import Display
 from gpctools.errors import GpcError, MethodError
 from gpctools.qc.decisions import JUDGE_INJECTIONS, JUDGE_MEAN
 from gpctools.qc.suitability import SuitabilityLimits
@@ -64,8 +65,8 @@ _BASELINE_KINDS = ("auto", "all", "history", "count", "dates", "flag")
 _TREND_LIST_KEYS = ("columns", "rules", "baseline")
 
 
-@dataclass(frozen=True)
-class TrendBaseline:
+@dataclass(frozen=True, repr=False)
+class TrendBaseline(Display):
     """Which points of a control chart set its (frozen) limits.
 
     Attributes
@@ -108,8 +109,8 @@ class TrendBaseline:
         return {"kind": self.kind, "description": self.describe()}
 
 
-@dataclass(frozen=True)
-class ProductSettings:
+@dataclass(frozen=True, repr=False)
+class ProductSettings(Display):
     """How one product is processed and shown.
 
     Attributes
@@ -136,8 +137,8 @@ class ProductSettings:
                 "method": self.method, "reference": self.reference}
 
 
-@dataclass(frozen=True)
-class QCSettings:
+@dataclass(frozen=True, repr=False)
+class QCSettings(Display):
     """Settings of a QC evaluation (recorded in the audit trail).
 
     Attributes

@@ -33,6 +33,7 @@ from typing import Any
 import pandas as pd
 
 from gpctools import columns as C
+from gpctools.display import Display
 from gpctools.sheets import cells
 from gpctools.sheets.schema import CheckedSheet, SheetRow, read_table
 from gpctools.sheets.spec_limits import (
@@ -128,8 +129,8 @@ def _fmt(value: float, unit: str) -> str:
     return f"{text} {unit}" if unit != "-" else text
 
 
-@dataclass(frozen=True)
-class Limit:
+@dataclass(frozen=True, repr=False)
+class Limit(Display):
     """Limits on one results column for one product.
 
     Attributes
@@ -212,8 +213,8 @@ class Limit:
         }
 
 
-@dataclass(frozen=True)
-class ProductSpec:
+@dataclass(frozen=True, repr=False)
+class ProductSpec(Display):
     """All limits of one product (grade) or check standard.
 
     Attributes
@@ -266,8 +267,8 @@ class ProductSpec:
         }
 
 
-@dataclass(frozen=True)
-class SpecSheet:
+@dataclass(frozen=True, repr=False)
+class SpecSheet(Display):
     """The parsed spec-limits sheet.
 
     Attributes

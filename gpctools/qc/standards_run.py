@@ -39,6 +39,7 @@ from typing import Any
 import numpy as np
 
 from gpctools.calibration import Calibration, fit_calibration
+from gpctools.display import Display
 from gpctools.distribution import peak_position
 from gpctools.errors import DataError, InputFormatError
 from gpctools.sheets import cells
@@ -78,8 +79,8 @@ class PeakTop:
     window: tuple[float, float]
 
 
-@dataclass(frozen=True)
-class LocatedStandard:
+@dataclass(frozen=True, repr=False)
+class LocatedStandard(Display):
     """A narrow standard located in a calibration-standard injection.
 
     Attributes

@@ -37,6 +37,7 @@ import numpy as np
 import pandas as pd
 
 from gpctools import columns as C
+from gpctools.display import Display
 from gpctools.errors import DataError, MethodError
 from gpctools.qc import _table as T
 from gpctools.qc.replicates import (
@@ -67,8 +68,8 @@ AVERAGE = {"Mw": C.MW, "Mn": C.MN}
 FLOW_MARKER_COLUMNS = (C.FLOW_MARKER, "flow_marker [mL]")
 
 
-@dataclass(frozen=True)
-class SuitabilityLimits:
+@dataclass(frozen=True, repr=False)
+class SuitabilityLimits(Display):
     """Acceptance limits of the system-suitability checks.
 
     Attributes
@@ -151,8 +152,8 @@ class SuitabilityLimits:
         return asdict(self)
 
 
-@dataclass(frozen=True)
-class SuitabilityCheck:
+@dataclass(frozen=True, repr=False)
+class SuitabilityCheck(Display):
     """One suitability check.
 
     Attributes
@@ -199,8 +200,8 @@ class SuitabilityCheck:
         }
 
 
-@dataclass(frozen=True)
-class CheckInjection:
+@dataclass(frozen=True, repr=False)
+class CheckInjection(Display):
     """One check-standard injection judged against its assigned values.
 
     Attributes
@@ -233,8 +234,8 @@ class CheckInjection:
                 "deviations [%]": {k: finite_or_none(v) for k, v in self.deviations.items()}}
 
 
-@dataclass(frozen=True)
-class SuitabilityResult:
+@dataclass(frozen=True, repr=False)
+class SuitabilityResult(Display):
     """System suitability of one sequence.
 
     Attributes

@@ -45,6 +45,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from gpctools.display import Display
 from gpctools.errors import DataError, GpcWarning, MethodError
 from gpctools.sheets.cells import finite_or_none
 
@@ -203,8 +204,8 @@ def rule_set(choice: str | Sequence[str] | Sequence[RunRule]) -> tuple[str, tupl
     return "rules " + ", ".join(r.code for r in rules), tuple(rules)
 
 
-@dataclass(frozen=True)
-class Violation:
+@dataclass(frozen=True, repr=False)
+class Violation(Display):
     """A point that breaks a run rule."""
 
     index: int
@@ -318,8 +319,8 @@ def rule_violations(
     return out
 
 
-@dataclass(frozen=True)
-class FalseAlarmRate:
+@dataclass(frozen=True, repr=False)
+class FalseAlarmRate(Display):
     """Expected false alarms of a chart whose process is in control.
 
     Attributes
@@ -447,8 +448,8 @@ def _false_alarm_cached(key: tuple[tuple[bool, ...], tuple[RunRule, ...], int, i
                           f"simulation of {sims} in-control charts of this layout, seed {seed}")
 
 
-@dataclass(frozen=True, eq=False)
-class ControlChart:
+@dataclass(frozen=True, eq=False, repr=False)
+class ControlChart(Display):
     """An individuals control chart with its run-rule findings.
 
     Attributes

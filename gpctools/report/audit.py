@@ -21,6 +21,8 @@ from typing import Any
 
 import pandas as pd
 
+from gpctools.display import Display
+
 __all__ = ["InputFile", "AuditTrail", "sha256_file", "build_audit", "library_versions"]
 
 _LIBRARIES = ("numpy", "pandas", "scipy", "matplotlib", "openpyxl", "jinja2")
@@ -48,8 +50,8 @@ def library_versions() -> dict[str, str]:
     return out
 
 
-@dataclass(frozen=True)
-class InputFile:
+@dataclass(frozen=True, repr=False)
+class InputFile(Display):
     """One input file: what it is, where, its SHA-256 and size (``sha256`` is
     ``"missing"`` and ``size`` -1 for a file that could not be read)."""
 
@@ -63,8 +65,8 @@ class InputFile:
         return {"role": self.role, "path": self.path, "sha256": self.sha256, "size [bytes]": self.size}
 
 
-@dataclass(frozen=True)
-class AuditTrail:
+@dataclass(frozen=True, repr=False)
+class AuditTrail(Display):
     """The audit record of one report.
 
     Attributes

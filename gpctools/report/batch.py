@@ -30,6 +30,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from gpctools.distribution import TABLE_COLUMNS
+from gpctools.formatting import clean_json
 from gpctools.report.files import safe_name, write_csv, write_text
 from gpctools.report.xlsx import write_workbook
 
@@ -38,7 +39,7 @@ if TYPE_CHECKING:  # pragma: no cover
     from gpctools.distribution import Distribution
     from gpctools.qc.sequence import SequenceRun
 
-__all__ = ["write_batch", "write_distribution", "distribution_name", "DistributionWriter"]
+__all__ = ["write_batch", "write_distribution", "distribution_name", "DistributionWriter", "Sinks"]
 
 #: Sub-folder of the batch outputs that holds the distribution tables.
 DISTRIBUTIONS = "distributions"
@@ -128,6 +129,24 @@ class DistributionWriter:
         write_distribution(Path(self.folder) / distribution_name(entry), result.distribution, extra)
 
 
+@dataclass(frozen=True)
+class Sinks:
+    """Several ``on_result`` sinks as one (called in order; picklable when they are).
+
+    Examples
+    --------
+    >>> from gpctools.report.review import ReviewSink                  # doctest: +SKIP
+    >>> run_batch(sheet, method, on_result=Sinks((DistributionWriter("out/distributions"),
+    ...                                            ReviewSink("out/.review-parts"))))  # doctest: +SKIP
+    """
+
+    sinks: tuple
+
+    def __call__(self, entry: BatchEntry, result: InjectionResult) -> None:
+        for sink in self.sinks:
+            sink(entry, result)
+
+
 def write_batch(
     result: BatchResult | SequenceRun, outdir: str | os.PathLike[str], *, distributions: bool = True
 ) -> dict[str, Path]:
@@ -179,5 +198,5 @@ def write_batch(
         "warnings": list(getattr(result, "warnings", ())),
         "calibration": result.calibration.summary(),
     }
-    paths["manifest.json"] = write_text(out / "manifest.json", json.dumps(manifest, indent=2, default=str) + "\n")
+    paths["manifest.json"] = write_text(out / "manifest.json", json.dumps(clean_json(manifest), indent=2, default=str) + "\n")
     return paths

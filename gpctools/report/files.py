@@ -111,6 +111,10 @@ def write_bytes(destination: str | os.PathLike[str], data: bytes) -> Path:
 def write_csv(destination: str | os.PathLike[str], frame: Any, **kwargs: Any) -> Path:
     """Write a pandas DataFrame as UTF-8 CSV atomically (index off unless asked).
 
+    Floats are written to 12 significant digits (:func:`gpctools.formatting.clean_frame`):
+    every digit a measurement carries, none of the float noise (``2520000``, not
+    ``2519999.999999998``).
+
     Parameters
     ----------
     destination : str or os.PathLike
@@ -124,7 +128,10 @@ def write_csv(destination: str | os.PathLike[str], frame: Any, **kwargs: Any) ->
     -------
     pathlib.Path
     """
+    from gpctools.formatting import clean_frame
+
     kwargs.setdefault("index", False)
+    frame = clean_frame(frame)  # full precision without float noise (12 significant digits)
     with atomic_path(destination) as tmp:
         frame.to_csv(tmp, **kwargs)
     return Path(destination)

@@ -18,6 +18,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from gpctools.formatting import dispersity, r_squared
 from gpctools.report.files import write_text
 
 __all__ = ["TEMPLATE", "png_data_uri", "figure", "format_value", "table_context", "render_html", "write_html"]
@@ -36,9 +37,11 @@ def png_data_uri(png: bytes) -> str:
 def format_value(value: Any, column: str = "") -> tuple[str, bool]:
     """Text of one table cell and whether it is a number.
 
-    Molar masses ``[g/mol]`` are shown to the nearest 1 g/mol with thin-space thousands,
-    ``[%]`` to 2 decimals, ``[-]`` and ``[sigma]`` to 4 significant digits, ``[mL]`` to
-    3 decimals, other numbers to 6 significant digits. The workbook keeps full precision.
+    The policy of :mod:`gpctools.formatting`: molar masses ``[g/mol]`` to the nearest
+    1 g/mol with thin-space thousands, ``[%]`` to 2 decimals, R² with two digits past its
+    nines (``0.99987``), dispersity to 3 significant digits, other ``[-]`` and
+    ``[sigma]`` to 4 significant digits, ``[mL]`` to 3 decimals, other numbers to 6
+    significant digits. The workbook keeps full precision.
     """
     if value is None:
         return "", False
@@ -51,6 +54,10 @@ def format_value(value: Any, column: str = "") -> tuple[str, bool]:
         if not math.isfinite(f):
             return "", True
         c = column.strip()
+        if c.startswith(("R² [-]", "R^2 [-]", "calibration R²")):
+            return r_squared(f), True
+        if c.startswith(("dispersity", "Mw/Mn", "Mz/Mw")):
+            return dispersity(f), True
         if c.endswith("[g/mol]"):
             return f"{f:,.0f}".replace(",", "\u2009"), True
         if c.endswith("[%]") or c.endswith("[% mass]"):
@@ -86,8 +93,8 @@ def table_context(
         Column -> unit-like suffix used for formatting when the header has no unit
         (e.g. ``{"value": "[-]"}``).
     unit_from : str, optional
-        A text column whose unit (``[...]`` at its end) formats the other cells of the
-        row (key/value tables such as ``item | value``).
+        A text column whose label (the quantity, ending in its unit ``[...]``) formats
+        the other cells of the row (key/value tables such as ``item | value``).
     """
     if frame is None or frame.empty:
         return {"columns": [] if frame is None else [str(c) for c in frame.columns], "rows": [], "empty": empty}
@@ -99,9 +106,8 @@ def table_context(
         cells = []
         row_fmt = fmt_cols
         if key is not None:
-            label = str(rec[key])
-            unit = label[label.rfind("["):] if label.endswith("]") and "[" in label else ""
-            row_fmt = [f if j == key else unit for j, f in enumerate(fmt_cols)]
+            label = str(rec[key])  # the label names the quantity and ends in its unit
+            row_fmt = [f if j == key else label for j, f in enumerate(fmt_cols)]
         for c, fc, v in zip(cols, row_fmt, rec, strict=False):
             text, num = format_value(v, fc)
             tag = text.replace(" ", "-") if c in _TAGGED and text in _TAG_VALUES else None

@@ -30,12 +30,16 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
+from gpctools.formatting import interval, significant
+
 if TYPE_CHECKING:  # pragma: no cover
     from matplotlib.axes import Axes
     from matplotlib.figure import Figure
 
 __all__ = [
     "PALETTE",
+    "OVERLAY_COLOURS",
+    "overlay_style",
     "DPI",
     "new_figure",
     "png_bytes",
@@ -58,6 +62,16 @@ __all__ = [
 
 #: Line colours of every figure (our own plain palette).
 PALETTE = ("#1f3a5f", "#c26b1a", "#2e7d6b", "#8a2c4f", "#6b6b1f", "#4f5d8a", "#a34a28", "#3f7f3f")
+#: Colours of overlays (many curves on one Axes): the Okabe-Ito palette, distinguishable
+#: with the common colour-vision deficiencies (Okabe and Ito 2002, from memory), with the
+#: dash pattern changing every eight curves (the same as the review page's SVG overlays).
+OVERLAY_COLOURS = ("#0072B2", "#E69F00", "#009E73", "#D55E00", "#CC79A7", "#56B4E9", "#000000", "#F0E442")
+_OVERLAY_DASHES = ("-", "--", ":", "-.")
+
+
+def overlay_style(k: int) -> tuple[str, str]:
+    """(colour, matplotlib line style) of the k-th overlay curve: 8 colours x 4 styles."""
+    return OVERLAY_COLOURS[k % 8], _OVERLAY_DASHES[(k // 8) % 4]
 #: Resolution of the PNG files [dots per inch].
 DPI = 100
 _FAIL = "#b3261e"
@@ -174,8 +188,8 @@ def plot_distributions(
         y = np.asarray(y, dtype=float)
         keep = np.isfinite(M) & np.isfinite(y) & (M > 0)
         order = np.argsort(M[keep])
-        ax.plot(M[keep][order], y[keep][order], color=PALETTE[k % len(PALETTE)],
-                linewidth=1.3, label=str(label))
+        colour, dash = overlay_style(k)
+        ax.plot(M[keep][order], y[keep][order], color=colour, linestyle=dash, linewidth=1.3, label=str(label))
     ax.set_xscale("log")
     ax.set_xlabel("M [g/mol]")
     ax.set_ylabel("dw/dlogM [-]")
@@ -225,7 +239,7 @@ def plot_calibration(calibration: Any, *, ax: Axes | None = None) -> Axes:
         ax.semilogy(V[order], fitted[order], "-", color=PALETTE[1], linewidth=1.3, label="fit")
     ax.set_ylabel("Mp [g/mol]")
     _title(ax, "Calibration curve")
-    ax.legend(fontsize=8, frameon=False)
+    ax.legend(fontsize=8, frameon=False, loc="upper left", bbox_to_anchor=(1.01, 1.0), borderaxespad=0.0)  # outside the data
     return ax
 
 
@@ -401,7 +415,7 @@ def plot_trace_review(
     ax.set_xlabel("elution volume (flow-corrected) [mL]")
     ax.set_ylabel("detector signal [signal units]")
     _title(ax, title or "Chromatogram")
-    ax.legend(fontsize=7, frameon=False, loc="upper right")
+    ax.legend(fontsize=7, frameon=False, loc="upper left", bbox_to_anchor=(1.01, 1.0), borderaxespad=0.0)  # outside the data
     return ax
 
 
@@ -456,7 +470,7 @@ def plot_distribution_review(
     ax.set_xlabel("M [g/mol]")
     ax.set_ylabel("dw/dlogM [-]")
     _title(ax, title or "Molar-mass distribution")
-    ax.legend(fontsize=7, frameon=False, loc="upper left")
+    ax.legend(fontsize=7, frameon=False, loc="upper left", bbox_to_anchor=(1.01, 1.0), borderaxespad=0.0)  # outside the data
     return ax
 
 
@@ -590,7 +604,8 @@ def plot_mayo(fit: Any, *, title: str | None = None, ax: Axes | None = None) -> 
         cols = {t: (xs if j == 0 else np.full(xs.size, float(np.mean(design[:, j]))))
                 for j, t in enumerate(fit.terms)}
         c0 = fit.constants[0]
-        _mayo_line(ax, xs, fit.predict(cols), f"fit: {c0.name} = {c0.value:.4g} ± {c0.stderr:.2g}")
+        _mayo_line(ax, xs, fit.predict(cols), f"fit: {c0.name} = {significant(c0.value, 4)} "
+                   f"({interval(c0.ci_low, c0.ci_high, level=c0.confidence)})")
         xlabel = term_label(term)
     ax.plot(x, y, "o", color=PALETTE[0], markersize=5, label=label)
     _mayo_finish(ax, xlabel, "1/DPn [-]", title or "Mayo plot", 8)
@@ -669,7 +684,8 @@ def plot_mayo_panel(result: Any, group: Any, estimator: str, term: str, *,
     cols = {t2: (xs if t2 == term else np.zeros_like(xs)) for t2 in terms}
     c = fit.constant(term)
     _mayo_line(ax, xs, fit.predict(cols),
-               f"recommended ({how}): {term} = {c.value:.4g} ± {c.stderr:.2g}",
+               f"recommended ({how}): {term} = {significant(c.value, 4)} "
+               f"({interval(c.ci_low, c.ci_high, level=c.confidence)})",
                band=fit.band(cols), band_label=f"{100 * fit.confidence:g} % band")
     ax.plot(x[~mask], (y_rec - others)[~mask], "o", color=PALETTE[0], markersize=5,
             label="runs (on the recommended scale)")
@@ -836,7 +852,7 @@ def plot_lnP(result: Any, group: Any, *, ax: Axes | None = None) -> Axes | None:
     ax.set_xlabel("M [g/mol]")
     ax.set_ylabel("ln P(M) − ln P(window centre) [-]")
     _title(ax, f"{group.label}: ln P(M) with fitted CLD windows (thick)")
-    ax.legend(fontsize=7, ncol=2, frameon=False)
+    ax.legend(fontsize=7, frameon=False, loc="upper left", bbox_to_anchor=(1.01, 1.0), borderaxespad=0.0)  # outside the data
     return ax
 
 
@@ -867,13 +883,14 @@ def plot_arrhenius(label: Mapping[str, str], fit: Any, *, ax: Axes | None = None
     err = fit.C_stderr / fit.C
     xs = np.linspace(x.min(), x.max(), 50)
     ax.plot(xs * 1e3, np.log(fit.predict(1 / xs)), "-", color=PALETTE[1], linewidth=1.2,
-            label=f"E_tr − E_p = {fit.delta_E.value:.1f} ± {fit.delta_E.stderr:.1f} kJ/mol")
+            label=f"E_tr − E_p = {significant(fit.delta_E.value, 3)} kJ/mol\n"
+                  f"({interval(fit.delta_E.ci_low, fit.delta_E.ci_high, unit='kJ/mol', level=fit.delta_E.confidence)})")
     ax.errorbar(x * 1e3, y, yerr=np.where(np.isfinite(err), err, 0), fmt="o", color=PALETTE[0],
                 markersize=5, capsize=2, label="ln C ± its standard error")
     ax.set_xlabel("1000/T [1/K]")
     ax.set_ylabel(f"ln {label['term']} [-]")
     _title(ax, f"{label['agent']} ({label['estimator']}, {label['model']})")
-    ax.legend(fontsize=8, frameon=False)
+    ax.legend(fontsize=8, frameon=False, loc="upper left", bbox_to_anchor=(1.01, 1.0), borderaxespad=0.0)  # outside the data
     return ax
 
 
@@ -919,8 +936,70 @@ def plot_diagnosis_distributions(
     ax.set_xlabel("M [g/mol]")
     ax.set_ylabel("dw/dlogM [-]")
     _title(ax, title or "measured and predicted distributions (instantaneous model)")
-    ax.legend(fontsize=7, frameon=False)
+    ax.legend(fontsize=7, frameon=False, loc="upper left", bbox_to_anchor=(1.01, 1.0), borderaxespad=0.0)  # outside the data
     return ax
 
 
 __all__ += ["plot_diagnosis_distributions"]
+
+
+# ----------------------------------------------------------------------------- notebook helpers
+
+
+def plot_injection(result: Any, *, ax: Axes | None = None, title: str | None = None) -> Axes:
+    """One :class:`gpctools.batch.InjectionResult`'s raw trace with its baseline, windows,
+    limits, exclusions and flow marker (:func:`plot_trace_review` on the flow-corrected
+    volume axis, where limits and windows apply).
+
+    Parameters
+    ----------
+    result : gpctools.batch.InjectionResult
+    ax : matplotlib.axes.Axes, optional
+        Draw here (e.g. one Axes of ``plt.subplots``); default a new figure.
+    title : str, optional
+        Default: the sample id.
+
+    Returns
+    -------
+    matplotlib.axes.Axes
+    """
+    cs = result.corrected
+    V = np.asarray(cs.volume, dtype=float)
+    base = cs.baseline(V)
+    marker = result.marker_observed * result.flow_factor if result.marker_observed is not None else None
+    return plot_trace_review(V, np.asarray(cs.signal, dtype=float) + base, baseline=base,
+                             baseline_windows=tuple(cs.baseline.windows), limits=tuple(cs.limits),
+                             exclusions=tuple(cs.exclusions), marker=marker,
+                             title=title if title is not None else f"{result.sample_id}: chromatogram", ax=ax)
+
+
+def plot_injection_distribution(result: Any, *, ax: Axes | None = None, title: str | None = None) -> Axes:
+    """dw/dlogM of one :class:`gpctools.batch.InjectionResult` with Mn, Mw and Mp marked
+    (:func:`plot_distribution_review`); returns the Axes."""
+    d = result.distribution
+    return plot_distribution_review(d.M, d.dwdlogM, marks={"Mn": d.Mn, "Mw": d.Mw, "Mp": d.Mp},
+                                    title=title if title is not None else f"{result.sample_id}: dw/dlogM", ax=ax)
+
+
+def plot_batch_distributions(batch: Any, *, product: str | None = None, ax: Axes | None = None,
+                             title: str | None = None) -> Axes:
+    """Overlay of the dw/dlogM of a :class:`gpctools.batch.BatchResult`'s injections
+    (those kept in memory), optionally of one ``product`` (the sheet's ``product``
+    column), in the overlay palette (:func:`overlay_style`); legend outside the data.
+
+    Returns
+    -------
+    matplotlib.axes.Axes
+    """
+    curves = []
+    for entry, res in zip(batch.entries, batch.injections):
+        if res is None:
+            continue
+        if product is not None and str(entry.metadata.get("product")) != str(product):
+            continue
+        curves.append((f"{entry.sample_id} (row {entry.row})", res.distribution.M, res.distribution.dwdlogM))
+    name = title or (f"dw/dlogM, product {product}" if product is not None else "dw/dlogM")
+    return plot_distributions(curves, title=name, ax=ax)
+
+
+__all__ += ["plot_injection", "plot_injection_distribution", "plot_batch_distributions"]

@@ -34,7 +34,9 @@ import numpy as np
 import pandas as pd
 
 from gpctools import columns as C
+from gpctools.display import Display
 from gpctools.errors import DataError, InputFormatError
+from gpctools.formatting import clean_json
 from gpctools.qc import (
     FAIL,
     NO_RESULT,
@@ -73,8 +75,8 @@ _INJECTION_COLUMNS = (
 _HTML_SAMPLE_HIDDEN = ("Mz [g/mol]", "Mz+1 [g/mol]", "Mp (dw/dlogM) [g/mol]", "usable injections [-]")
 
 
-@dataclass(frozen=True, eq=False)
-class QCReport:
+@dataclass(frozen=True, eq=False, repr=False)
+class QCReport(Display):
     """What :func:`run_qc` found and wrote.
 
     Attributes
@@ -752,7 +754,7 @@ def _write_reports(ev: _Evaluated, sheets: dict[str, pd.DataFrame], out: Path, *
     written["qc_report.html"] = H.write_html(out / "qc_report.html", _html_context(ev, title, figs))
     written["qc_summary.json"] = write_text(
         out / "qc_summary.json",
-        json.dumps(ev.result.summary(), indent=2, ensure_ascii=False, default=str) + "\n")
+        json.dumps(clean_json(ev.result.summary()), indent=2, ensure_ascii=False, default=str) + "\n")
     written["audit.json"] = write_text(out / "audit.json", ev.audit.to_json())
     return written
 
@@ -768,8 +770,8 @@ def _suitability_context(result: QCResult) -> list[dict[str, Any]]:
                  for r in s.replicates if r.groups]
         suit.append({"sequence": s.sequence, "tag": "pass" if s.passed else "fail",
                      "text": "pass" if s.passed else "fail", "notes": notes,
-                     "table": H.table_context(df, formats={"value [unit as in check]": "[-]",
-                                                           "limit [unit as in check]": "[-]"})})
+                     # each row's value and limit formatted as the quantity its check names
+                     "table": H.table_context(df, unit_from="check")})
     return suit
 
 

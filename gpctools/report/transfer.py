@@ -26,6 +26,7 @@ from collections.abc import Sequence
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
+from gpctools.formatting import clean_json
 from gpctools.report.files import safe_name, unique_name, write_bytes, write_csv, write_text
 from gpctools.report.xlsx import write_workbook
 
@@ -82,7 +83,7 @@ def write_transfer(
         paths["dosing.csv"] = write_csv(out / "dosing.csv", dt)
         summary["dosing"] = [d.summary() for d in dosing]
     paths["summary.json"] = write_text(
-        out / "summary.json", json.dumps(summary, indent=2, default=str) + "\n")
+        out / "summary.json", json.dumps(clean_json(summary), indent=2, default=str) + "\n")
     if plots:
         paths.update(write_transfer_plots(result, out / "plots"))
     return paths

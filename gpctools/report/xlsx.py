@@ -133,7 +133,10 @@ def write_workbook(
     wb = Workbook()
     for blank in list(wb.worksheets):  # a new workbook starts with one empty sheet
         wb.remove(blank)
+    from gpctools.formatting import clean_frame
+
     for name, frame in sheets.items():
+        frame = clean_frame(frame)  # stored numbers without float noise (12 significant digits)
         title = re.sub(r"[\[\]:*?/\\]", "_", str(name))[:31]
         ws = wb.create_sheet(title=title)
         headers = [str(c) for c in frame.columns]

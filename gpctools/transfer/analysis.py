@@ -39,6 +39,7 @@ from typing import Any
 
 import numpy as np
 
+from gpctools.display import Display
 from gpctools.errors import (
     DataError,
     DesignError,
@@ -91,8 +92,8 @@ __all__ = [
 ]
 
 
-@dataclass(frozen=True)
-class TransferResult:
+@dataclass(frozen=True, repr=False)
+class TransferResult(Display):
     """Everything :func:`analyse_series` found.
 
     Attributes

@@ -20,6 +20,7 @@ from typing import Any
 
 import numpy as np
 
+from gpctools.display import Display
 from gpctools.errors import DataError, DesignError
 from gpctools.sheets.cells import finite_or_none
 from gpctools.transfer._stats import t_quantile, weighted_linear_fit
@@ -32,8 +33,8 @@ R_GAS = 8.314462618
 __all__ = ["ArrheniusFit", "fit_arrhenius", "R_GAS"]
 
 
-@dataclass(frozen=True)
-class ArrheniusFit:
+@dataclass(frozen=True, repr=False)
+class ArrheniusFit(Display):
     """ln C against 1/T.
 
     Attributes

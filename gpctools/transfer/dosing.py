@@ -31,6 +31,7 @@ from typing import Any
 
 import numpy as np
 
+from gpctools.display import Display
 from gpctools.errors import DataError
 from gpctools.sheets.cells import finite_or_none
 from gpctools.transfer._fit import interval_parts
@@ -46,8 +47,8 @@ DOSING_SAFETY = (
     "licensed practice.")
 
 
-@dataclass(frozen=True)
-class DosingAnswer:
+@dataclass(frozen=True, repr=False)
+class DosingAnswer(Display):
     """Agent charge for a target average at a final conversion.
 
     Attributes

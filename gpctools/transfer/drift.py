@@ -46,6 +46,7 @@ from gpctools.chainlength import (
     remaining_fraction,
     term_kind,
 )
+from gpctools.display import Display
 from gpctools.errors import DataError, DesignError, EstimatorWarning
 from gpctools.sheets.cells import finite_or_none
 from gpctools.transfer._fit import solve
@@ -152,8 +153,8 @@ def cumulative_model(
     return f
 
 
-@dataclass(frozen=True)
-class DriftFit(FittedConstants):
+@dataclass(frozen=True, repr=False)
+class DriftFit(FittedConstants, Display):
     """The cumulative Mayo model fitted to a series at finite conversion.
 
     Attributes
@@ -444,8 +445,8 @@ def _identifiability(consts: Sequence[FittedValue], xv: np.ndarray, ids: tuple[s
     return apparent, remaining, ident
 
 
-@dataclass(frozen=True)
-class ConsumptionResult:
+@dataclass(frozen=True, repr=False)
+class ConsumptionResult(Display):
     """Transfer constant from measured agent and monomer consumption.
 
     Attributes

@@ -22,6 +22,7 @@ from typing import Any
 
 import numpy as np
 
+from gpctools.display import Display
 from gpctools.errors import DataError
 from gpctools.sheets.cells import finite_or_none
 from gpctools.transfer._stats import ols_with_cov
@@ -95,8 +96,8 @@ def ln_number_distribution(M: Any, dwdlogM: Any) -> np.ndarray:
     return out
 
 
-@dataclass(frozen=True)
-class CLDSlope:
+@dataclass(frozen=True, repr=False)
+class CLDSlope(Display):
     """Slope Λ of ln P(M) in a window near the peak of one SEC distribution.
 
     Attributes

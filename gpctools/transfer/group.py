@@ -30,6 +30,7 @@ from typing import Any
 import numpy as np
 
 from gpctools.chainlength import inv_dpn_from_dpw
+from gpctools.display import Display
 from gpctools.errors import DataError, DesignError, GpcError, GpcWarning
 from gpctools.sheets.cells import finite_or_none
 from gpctools.transfer.drift import (
@@ -67,8 +68,8 @@ DISAGREE_Z = 2.576
 PREFERENCE = ("Mw/2", "Mn", "CLD")
 
 
-@dataclass(frozen=True)
-class GroupResult:
+@dataclass(frozen=True, repr=False)
+class GroupResult(Display):
     """The fits of one group of runs (series label, temperature).
 
     Attributes

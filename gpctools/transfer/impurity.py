@@ -56,6 +56,7 @@ from typing import Any
 import numpy as np
 
 from gpctools.chainlength import impurity_ratio, impurity_ratio_cumulative
+from gpctools.display import Display
 from gpctools.errors import DataError
 from gpctools.sheets.cells import finite_or_none
 from gpctools.transfer._fit import linear_solve, solve
@@ -209,8 +210,8 @@ def _irls(f: Any, jac: Any, y: np.ndarray, theta: np.ndarray, *, c: float = TUKE
     return th, u, scale
 
 
-@dataclass(frozen=True)
-class RunFlag:
+@dataclass(frozen=True, repr=False)
+class RunFlag(Display):
     """The outlier test of one run against the line of the other (clean) runs.
 
     Attributes
@@ -280,8 +281,8 @@ class RunFlag:
         }
 
 
-@dataclass(frozen=True)
-class ESDStep:
+@dataclass(frozen=True, repr=False)
+class ESDStep(Display):
     """One step of the generalized ESD procedure: the run removed, R_k and λ_k."""
 
     run_id: str
@@ -297,8 +298,8 @@ class ESDStep:
                 "degrees of freedom": finite_or_none(self.dof), "runs left": self.runs_left}
 
 
-@dataclass(frozen=True)
-class ImpurityCheck:
+@dataclass(frozen=True, repr=False)
+class ImpurityCheck(Display):
     """Outlier tests of all runs of a series for one estimator.
 
     Attributes
@@ -764,8 +765,8 @@ def flag_runs_cumulative(
                         M0=M0)
     return flag_runs(y, columns, model=model, theta0=start, estimator=estimator, **kwargs)
 
-@dataclass(frozen=True)
-class InterceptCheck:
+@dataclass(frozen=True, repr=False)
+class InterceptCheck(Display):
     """Is 1/DPn0 above what it should be?
 
     Attributes

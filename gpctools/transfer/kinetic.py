@@ -36,6 +36,7 @@ from typing import Any
 
 import numpy as np
 
+from gpctools.display import Display
 from gpctools.errors import DesignError, GpcError
 
 __all__ = ["KineticTerm", "Termination", "kinetic_term", "termination_mode", "KINETIC_SPAN",
@@ -51,8 +52,8 @@ RATIO_SPAN = 2.0
 KINETIC_CHOICES = ("auto", "regressor", "reference", "none")
 
 
-@dataclass(frozen=True)
-class KineticTerm:
+@dataclass(frozen=True, repr=False)
+class KineticTerm(Display):
     """How the kinetic term enters the fits of one group.
 
     Attributes
@@ -85,8 +86,8 @@ class KineticTerm:
                 "note": self.note}
 
 
-@dataclass(frozen=True)
-class Termination:
+@dataclass(frozen=True, repr=False)
+class Termination(Display):
     """δ of a group, where it came from, and the known C_M used to split the intercept."""
 
     delta: float

@@ -28,6 +28,7 @@ from typing import Any
 
 import numpy as np
 
+from gpctools.display import Display
 from gpctools.errors import DataError, DesignError, EstimatorWarning
 from gpctools.sheets.cells import finite_or_none
 from gpctools.transfer._fit import Solution, solve
@@ -65,8 +66,8 @@ def term_label(term: str) -> str:
     return f"ratio [{species}]/[M] [-]"
 
 
-@dataclass(frozen=True)
-class FittedValue:
+@dataclass(frozen=True, repr=False)
+class FittedValue(Display):
     """A fitted quantity with its standard error and confidence interval.
 
     Attributes
@@ -115,8 +116,8 @@ class FittedValue:
         }
 
 
-@dataclass(frozen=True)
-class DesignCheck:
+@dataclass(frozen=True, repr=False)
+class DesignCheck(Display):
     """What the design of a run series can separate.
 
     Attributes
@@ -358,8 +359,8 @@ def _most_correlated(T: np.ndarray, names: list[str]) -> str:
     return best if best_r > 0.999 else ""
 
 
-@dataclass(frozen=True)
-class MayoFit(FittedConstants):
+@dataclass(frozen=True, repr=False)
+class MayoFit(FittedConstants, Display):
     """A weighted fit of the Mayo model to one run series with one estimator of 1/DPn.
 
     Attributes

@@ -16,6 +16,7 @@ from dataclasses import dataclass, fields, replace
 from types import MappingProxyType
 from typing import Any
 
+from gpctools.display import Display
 from gpctools.errors import DataError
 from gpctools.transfer.estimators import DEFAULT_FRACTION, ESTIMATORS
 from gpctools.transfer.kinetic import KINETIC_CHOICES
@@ -30,8 +31,8 @@ ADJUST_CHOICES = ("series", "run")
 Window = tuple[float, float]
 
 
-@dataclass(frozen=True)
-class TransferOptions:
+@dataclass(frozen=True, repr=False)
+class TransferOptions(Display):
     """Settings of :func:`~gpctools.transfer.analysis.analyse_series`.
 
     Attributes

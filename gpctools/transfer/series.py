@@ -52,6 +52,7 @@ from pathlib import Path
 from typing import Any
 
 from gpctools import columns as C
+from gpctools.display import Display
 from gpctools.errors import EstimatorWarning, GpcError, InputFormatError
 from gpctools.sheets import cells
 from gpctools.sheets.run_series import RUN_SERIES, SHEET_COLUMNS
@@ -62,8 +63,8 @@ __all__ = ["Run", "RunSeries", "read_run_series", "run_series_from_rows", "SHEET
 _NAN = float("nan")
 
 
-@dataclass(frozen=True)
-class Run:
+@dataclass(frozen=True, repr=False)
+class Run(Display):
     """One polymerization run of a series.
 
     Attributes
@@ -174,8 +175,8 @@ class Run:
         }
 
 
-@dataclass(frozen=True)
-class RunSeries:
+@dataclass(frozen=True, repr=False)
+class RunSeries(Display):
     """All runs of a run-series sheet.
 
     Attributes
