@@ -1116,7 +1116,8 @@ class BatchResult(Display):
             d = res.distribution
             frame = pd.DataFrame(dict(zip(TABLE_COLUMNS, (d.volume, d.M, np.log10(d.M), d.w, d.dwdlogM,
                                                           d.cumulative))))
-            meta = {C.SAMPLE_ID: entry.sample_id, "row": entry.row, C.FILE: entry.file, C.ROLE: entry.role}
+            meta: dict[str, Any] = {C.SAMPLE_ID: entry.sample_id, "row": entry.row, C.FILE: entry.file,
+                                    C.ROLE: entry.role}
             if "product" in entry.metadata:
                 meta["product"] = entry.metadata["product"]
             for k, (name, value) in enumerate(meta.items()):

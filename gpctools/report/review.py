@@ -218,7 +218,7 @@ def review_rows(sheet: str | os.PathLike[str], limit: int | None = DEFAULT_LIMIT
         return None
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        entries = read_batch_sheet(sheet, sheet=sheet_name)
+        entries = read_batch_sheet(Path(sheet), sheet=sheet_name)
     return frozenset([e.row for e in entries if not e.problem][:limit])
 
 
@@ -334,8 +334,10 @@ def write_review(result: BatchResult, outdir: str | os.PathLike[str], *, limit: 
         frag = None
         if path.is_file():
             frag = json.loads(path.read_text(encoding="utf-8"))
-        elif (limit is None or len(frags) < limit) and i < len(result.injections) and result.injections[i] is not None:
-            frag = injection_fragment(entry, result.injections[i])
+        elif (limit is None or len(frags) < limit) and i < len(result.injections):
+            injection = result.injections[i]
+            if injection is not None:
+                frag = injection_fragment(entry, injection)
         if frag is None or (limit is not None and len(frags) >= limit):
             not_shown.append(i)
         else:

@@ -293,7 +293,7 @@ def padded(lo: float, hi: float, frac: float = 0.04) -> tuple[float, float]:
     return lo - frac * span, hi + frac * span
 
 
-def finite_range(*arrays: Sequence[float]) -> tuple[float, float]:
+def finite_range(*arrays: Sequence[float] | np.ndarray) -> tuple[float, float]:
     """Smallest and largest finite value over the arrays ((0, 1) when there is none)."""
     vals = [np.asarray(a, dtype=float) for a in arrays if len(a)]
     vals = [v[np.isfinite(v)] for v in vals]
