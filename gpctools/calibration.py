@@ -150,14 +150,14 @@ class Calibration(Display):
         return np.power(10.0, self.log_M(V))
 
     def volume_at(self, M: Any) -> np.ndarray:
-        """Elution volume [mL] at which the calibration gives molar mass(es) M [g/mol].
+        r"""Elution volume [mL] at which the calibration gives molar mass(es) M [g/mol].
 
         The inverse of :meth:`M`, on the same curve: inside the calibrated range the
         root of the fitted polynomial, outside it the tangent at the range end (as
         :meth:`log_M` continues the curve), so ``volume_at(M(V)) == V`` for every V. With
         y = (log10 M - log_offset) / log_factor the standard-polymer log M,
 
-        .. math:: V = v_{min} + (y - p(v_{min})) / p'(v_{min}) \\quad (y > p(v_{min}))
+        .. math:: V = v_{min} + (y - p(v_{min})) / p'(v_{min}) \quad (y > p(v_{min}))
 
         and likewise beyond ``v_max`` (docs/science.md, section 1.6: V_lim = V(M_lim)).
 
@@ -288,13 +288,13 @@ class Calibration(Display):
         return abs(self.log_factor) * np.sqrt(np.maximum(var, 0.0))
 
     def log_M_gradient(self, V: Any) -> np.ndarray:
-        """Derivative of log10 M(V) with respect to each coefficient, shape (len(V), order + 1) [-].
+        r"""Derivative of log10 M(V) with respect to each coefficient, shape (len(V), order + 1) [-].
 
         Inside the calibrated range log10 M = off + f·Σ c_k t^k with t = (V − center)/scale,
         so ∂ log10 M/∂c_k = f·t^k. Outside it the tangent at the range end V_e (t_e) is used,
         log10 M = off + f·[Σ c_k t_e^k + (Σ k c_k t_e^(k−1))·(V − V_e)/scale], so
 
-        .. math:: \\partial \\log_{10} M / \\partial c_k = f\\,[t_e^k + k\\,t_e^{k-1} (V - V_e)/s]
+        .. math:: \partial \log_{10} M / \partial c_k = f\,[t_e^k + k\,t_e^{k-1} (V - V_e)/s]
 
         (f = ``log_factor``; the universal-calibration offset does not depend on the
         coefficients). With the coefficient covariance C, the variance of a function g of
@@ -329,11 +329,11 @@ class Calibration(Display):
         sample_polymer: str = "sample polymer",
         source: str | None = None,
     ) -> Calibration:
-        """Universal calibration: the same curve expressed for another polymer.
+        r"""Universal calibration: the same curve expressed for another polymer.
 
         Equal hydrodynamic volume [η]·M at equal V with [η] = K·M^a gives [2]_
 
-        .. math:: \\log M_x = \\frac{\\log(K_s/K_x) + (1 + a_s)\\log M_s}{1 + a_x}
+        .. math:: \log M_x = \frac{\log(K_s/K_x) + (1 + a_s)\log M_s}{1 + a_x}
 
         Parameters
         ----------
@@ -652,9 +652,9 @@ def fit_calibration(
     sample_polymer: str | None = None,
     residual_limit_pct: float = 5.0,
 ) -> Calibration:
-    """Fit log10 Mp of narrow standards against peak elution volume.
+    r"""Fit log10 Mp of narrow standards against peak elution volume.
 
-    .. math:: \\log_{10} M(V) = \\sum_{k=0}^{n} c_k \\left(\\frac{V - V_c}{s}\\right)^k
+    .. math:: \log_{10} M(V) = \sum_{k=0}^{n} c_k \left(\frac{V - V_c}{s}\right)^k
 
     Parameters
     ----------

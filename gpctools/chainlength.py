@@ -188,6 +188,7 @@ class DistributionModel:
     label: str
 
     def __call__(self, M: Any) -> np.ndarray:
+        """dw/dlog10 M at molar masses ``M`` [g/mol]."""
         return self.func(np.asarray(M, dtype=float))
 
 

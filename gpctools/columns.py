@@ -389,7 +389,8 @@ PEAK_COLUMNS = tuple(
 
 def peak_split_column(number: int) -> str:
     """``peak split 1 [g/mol]``: the molar mass where peak ``number`` (counted from high M)
-    ends and the next one starts (numbers 1 to ``MAX_PEAK_COLUMNS - 1``)."""
+    ends and the next one starts (numbers 1 to ``MAX_PEAK_COLUMNS - 1``).
+    """
     if not 1 <= number < MAX_PEAK_COLUMNS:
         raise ValueError(f"peak split columns are numbered 1 to {MAX_PEAK_COLUMNS - 1}, got {number}")
     return f"peak split {number} [g/mol]"

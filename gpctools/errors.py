@@ -142,4 +142,5 @@ class EstimatorWarning(GpcWarning):
 
 class InputWarning(GpcWarning):
     """Valid but surprising input: repeated sample ids in a batch sheet, a concentration
-    trace from a UV or evaporative light-scattering detector."""
+    trace from a UV or evaporative light-scattering detector.
+    """

@@ -118,7 +118,8 @@ def clean_frame(frame: Any, digits: int = FILE_DIGITS) -> Any:
 
 def clean_json(obj: Any, digits: int = FILE_DIGITS) -> Any:
     """A JSON-ready structure with every float cleaned by :func:`clean` (dicts, lists and
-    tuples walked; other values unchanged)."""
+    tuples walked; other values unchanged).
+    """
     if isinstance(obj, dict):
         return {k: clean_json(v, digits) for k, v in obj.items()}
     if isinstance(obj, (list, tuple)):
@@ -142,7 +143,8 @@ def significant(x: Any, digits: int = 4, *, keep_zeros: bool = False) -> str:
 
 def molar_mass(M: Any, *, separator: str = ",") -> str:
     """A molar mass for people [g/mol]: whole numbers with thousands separators from
-    1000 g/mol on (``2,520,000``), 4 significant digits below (``162.2``)."""
+    1000 g/mol on (``2,520,000``), 4 significant digits below (``162.2``).
+    """
     f = _finite(M)
     if f is None:
         return "-"
@@ -249,7 +251,8 @@ def interval(low: Any, high: Any, *, unit: str = "", level: float = 0.95, digits
 
 def value_with_se(value: Any, se: Any, *, unit: str = "", digits: int = 2) -> str:
     """``value ± se`` for a symmetric standard uncertainty, the value to the decimal of
-    the uncertainty's ``digits`` significant digits (``15.2 ± 1.3 kJ/mol``)."""
+    the uncertainty's ``digits`` significant digits (``15.2 ± 1.3 kJ/mol``).
+    """
     v, s = _finite(value), _finite(se)
     if v is None:
         return "-"

@@ -126,6 +126,7 @@ class ImportOptions:
     encoding: str | None = None
 
     def as_kwargs(self) -> dict[str, Any]:
+        """The options that are set, as keyword arguments of :func:`gpctools.io.read_chromatogram`."""
         return {k: v for k, v in self.__dict__.items() if v is not None}
 
 
@@ -284,7 +285,7 @@ class Method(Display):
         return lo, hi
 
     def with_overrides(self, overrides: MethodOverrides) -> Method:
-        """This method with one injection's overrides applied (a new, derived Method).
+        """A copy of the method with one injection's overrides applied (a new, derived Method).
 
         Limits in mL replace any limits of the method (also limits in molar mass), and
         limits in molar mass replace limits in mL; baseline windows replace the method's.
@@ -572,7 +573,8 @@ def _detectors(data: dict[str, Any], source: str | None, flow_rate: float | None
     """``[detectors]``: the multi-detector set-up, checked by
     :meth:`gpctools.detectors.DetectorMethod.from_mapping` (MethodError naming the dotted
     key, e.g. ``detectors.ls.dn_dc``); the ``[mark_houwink]`` pairs fill in the
-    standards' and the sample's Mark-Houwink constants it does not give."""
+    standards' and the sample's Mark-Houwink constants it does not give.
+    """
     if "detectors" not in data:
         return None
     mh = calibration.mark_houwink or {}
@@ -600,7 +602,8 @@ def _flow_marker(
     data: dict[str, Any], source: str | None, settings: dict[str, Any]
 ) -> tuple[float | None, Window | None, FlowMarkerOptions]:
     """``[flow_marker]``: the reference position [mL], the search window [mL] and how the
-    marker is recognised there (``min_signal_to_noise`` [-], ``fwhm`` [mL], ``required``)."""
+    marker is recognised there (``min_signal_to_noise`` [-], ``fwhm`` [mL], ``required``).
+    """
     fm = _section(data, "flow_marker", source)
     marker_ref = _number(fm["reference"], "flow_marker.reference", source, positive=True) if "reference" in fm else None
     marker_search = _window(fm["search"], "flow_marker.search", source) if "search" in fm else None
@@ -725,7 +728,8 @@ def _molar_masses(value: Any, key: str, source: str | None) -> tuple[float, ...]
 
 def _peaks(data: dict[str, Any], source: str | None, settings: dict[str, Any]) -> PeakOptions:
     """``[peaks]``: how a trace is split into peaks (``split``, ``valley_depth_pct`` [%],
-    ``min_height_pct`` [%])."""
+    ``min_height_pct`` [%]).
+    """
     sec = _section(data, "peaks", source)
     split: str | tuple[float, ...] = "none"
     raw = sec.get("split", "none")

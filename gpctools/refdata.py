@@ -91,7 +91,8 @@ _STATUS_PREFIXES = ("published:", "from memory:", "derived:", "typical:", "user:
 
 class ReferenceWarning(RangeWarning):
     """A reference value is used outside the temperature range of the data behind it
-    (an Arrhenius extrapolation), or with a caution (e.g. acrylate backbiting)."""
+    (an Arrhenius extrapolation), or with a caution (e.g. acrylate backbiting).
+    """
 
 
 
@@ -595,14 +596,16 @@ class Termination(Display):
     @property
     def A(self) -> float | None:
         """Arrhenius pre-exponential factor of k_t (IUPAC convention) [L/mol/s]; None
-        without E or T."""
+        without E or T.
+        """
         if self.E is None or self.T is None:
             return None
         return self.k_t_iupac * math.exp(self.E * 1e3 / (R_GAS * celsius_to_kelvin(self.T)))
 
     def temperature_note(self, T: float) -> str | None:
         """A note when ``T`` [K] is more than 5 K from the tabulated temperature and no
-        activation energy is known; None otherwise."""
+        activation energy is known; None otherwise.
+        """
         if self.T is None or self.E is not None:
             return None
         if abs(float(T) - celsius_to_kelvin(self.T)) > 5.0:
@@ -669,7 +672,8 @@ class Agent(Display):
 
     def temperature_note(self, T: float) -> str | None:
         """A note when ``T`` [K] is more than 5 K from the tabulated temperature and no
-        temperature dependence is known; None otherwise."""
+        temperature dependence is known; None otherwise.
+        """
         if self.T_ref is None or self.dE is not None:
             return None
         dT = float(T) - celsius_to_kelvin(self.T_ref)

@@ -271,7 +271,7 @@ def export_text(
     Returns
     -------
     str
-        Lines ending in ``"\n"``; numbers with 6 decimals (4 for the extra column).
+        Lines ending in a newline (LF); numbers with 6 decimals (4 for the extra column).
     """
     V = np.asarray(volume, dtype=float)
     h = np.asarray(signal, dtype=float)

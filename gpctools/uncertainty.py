@@ -83,6 +83,7 @@ class RelativeUncertainty(Display):
         return math.sqrt(self.calibration**2 + self.noise**2 + self.limits**2)
 
     def summary(self) -> dict[str, float | None]:
+        """Plain JSON-safe dict of the result, units in the keys (NaN and inf as None)."""
         from .sheets.cells import finite_or_none
 
         return {
@@ -120,6 +121,7 @@ class AverageUncertainty(Display):
         return getattr(self, name)
 
     def summary(self) -> dict[str, Any]:
+        """Plain JSON-safe dict of the result, units in the keys (NaN and inf as None)."""
         return {
             **{f"u({k})": self.of(k).summary() for k in UNCERTAIN_AVERAGES},
             "noise SD [signal]": self.noise_sd,
@@ -137,11 +139,11 @@ def _moment_weights(dist: Distribution) -> tuple[np.ndarray, dict[int, np.ndarra
 
 
 def calibration_uncertainty(dist: Distribution, calibration: Calibration) -> dict[str, float]:
-    """u(X)/X of Mn, Mw, Mz from the calibration-coefficient covariance [-].
+    r"""u(X)/X of Mn, Mw, Mz from the calibration-coefficient covariance [-].
 
-    .. math:: \\frac{u_{cal}(X)}{X} = \\sqrt{g^T C g},\\quad
-              g = \\ln 10\\,(a\\,\\bar x_a - b\\,\\bar x_b),\\quad
-              \\bar x_k = \\frac{\\sum_i w_i M_i^k \\nabla_c \\log_{10} M_i}{\\sum_i w_i M_i^k}
+    .. math:: \frac{u_{cal}(X)}{X} = \sqrt{g^T C g},\quad
+              g = \ln 10\,(a\,\bar x_a - b\,\bar x_b),\quad
+              \bar x_k = \frac{\sum_i w_i M_i^k \nabla_c \log_{10} M_i}{\sum_i w_i M_i^k}
 
     for X = S_a/S_b (Mn: a = 0, b = −1; Mw: 1, 0; Mz: 2, 1), with ∇_c log10 M_i from
     :meth:`gpctools.calibration.Calibration.log_M_gradient` (tangent continuation
@@ -161,9 +163,9 @@ def calibration_uncertainty(dist: Distribution, calibration: Calibration) -> dic
 
 
 def calibration_gradients(dist: Distribution, calibration: Calibration) -> dict[str, np.ndarray]:
-    """∂ ln X/∂c of Mn, Mw and Mz with respect to the calibration coefficients c [-].
+    r"""∂ ln X/∂c of Mn, Mw and Mz with respect to the calibration coefficients c [-].
 
-    .. math:: \\nabla_c \\ln X = \\ln 10\\,(a\\,\\bar x_a - b\\,\\bar x_b)
+    .. math:: \nabla_c \ln X = \ln 10\,(a\,\bar x_a - b\,\bar x_b)
 
     with the moment-weighted mean gradients x̄_k of :func:`calibration_uncertainty`. A
     calibration error is common to every injection measured with it, so a run series
@@ -185,16 +187,16 @@ def calibration_gradients(dist: Distribution, calibration: Calibration) -> dict[
 
 
 def noise_uncertainty(dist: Distribution, noise_sd: float, baseline: Baseline | None = None) -> dict[str, float]:
-    """u(X)/X of Mn, Mw, Mz from white baseline noise of SD ``noise_sd`` [-].
+    r"""u(X)/X of Mn, Mw, Mz from white baseline noise of SD ``noise_sd`` [-].
 
     Slice i contributes h_i·ΔV_i·M_i^k to S_k. Its height carries white noise ε_i (SD σ)
     and the error of the baseline line, δb(V_i) = e1·(1 − λ_i) + e2·λ_i, where e_j is
     the error of window j's mean (variance σ²/n_j) and λ_i = (V_i − V̄1)/(V̄2 − V̄1)
     places the slice between the window centres. With a_ik = ΔV_i·M_i^k,
 
-    .. math:: \\mathrm{cov}(S_j, S_k) = \\sigma^2 \\Big[\\sum_i a_{ij} a_{ik}
-              + \\frac{(\\sum_i a_{ij}(1-\\lambda_i))(\\sum_i a_{ik}(1-\\lambda_i))}{n_1}
-              + \\frac{(\\sum_i a_{ij}\\lambda_i)(\\sum_i a_{ik}\\lambda_i)}{n_2}\\Big]
+    .. math:: \mathrm{cov}(S_j, S_k) = \sigma^2 \Big[\sum_i a_{ij} a_{ik}
+              + \frac{(\sum_i a_{ij}(1-\lambda_i))(\sum_i a_{ik}(1-\lambda_i))}{n_1}
+              + \frac{(\sum_i a_{ij}\lambda_i)(\sum_i a_{ik}\lambda_i)}{n_2}\Big]
 
     and for X = S_a/S_b, u²(ln X) = var S_a/S_a² + var S_b/S_b² − 2 cov(S_a, S_b)/(S_a S_b)
     (first order). Assumes the noise is white and the windows do not overlap the

@@ -33,7 +33,8 @@ def window_mask(volume: np.ndarray, limits: tuple[float, float] | None) -> np.nd
 
 def good_signal_mask(conc: np.ndarray, other: np.ndarray, inside: np.ndarray, fraction: float) -> np.ndarray:
     """Slices where both traces exceed ``fraction`` of their maxima, contiguous around
-    the other detector's peak (docs/science.md, section 14: e.g. LS above 10 % of its maximum)."""
+    the other detector's peak (docs/science.md, section 14: e.g. LS above 10 % of its maximum).
+    """
     if not 0.0 < fraction < 1.0:
         raise DataError(f"the good-signal fraction must lie between 0 and 1, got {fraction}")
     c = np.where(inside, conc, -np.inf)

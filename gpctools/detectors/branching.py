@@ -148,6 +148,7 @@ class Branching(Display):
     source: str
 
     def summary(self) -> dict[str, Any]:
+        """Plain JSON-safe dict of the result, units in the keys (NaN and inf as None)."""
         ok = np.isfinite(self.n)
         return {
             "model": f"Zimm-Stockmayer, {self.model}",

@@ -94,6 +94,7 @@ class Spreading(Display):
         return 2.0 * self.tau**3 / var**1.5 if var > 0 else 0.0
 
     def is_zero(self) -> bool:
+        """True when the spreading function is the identity (no broadening)."""
         return self.sigma == 0.0 and self.tau == 0.0
 
     def mgf(self, t: float, *, centred: bool = True) -> float:
@@ -141,6 +142,7 @@ class Spreading(Display):
         return np.asarray(g / s)
 
     def summary(self) -> dict[str, Any]:
+        """Plain JSON-safe dict of the result, units in the keys (NaN and inf as None)."""
         return {"sigma [mL]": self.sigma, "tau [mL]": self.tau}
 
 
@@ -278,6 +280,7 @@ class BroadeningCorrection(Display):
     warnings: tuple[str, ...] = field(default=())
 
     def summary(self) -> dict[str, Any]:
+        """Plain JSON-safe dict of the result, units in the keys (NaN and inf as None)."""
         unit = {"dispersity": "[-]"}
         out: dict[str, Any] = {
             "broadening": self.spreading.summary(),
@@ -426,6 +429,7 @@ class Deconvolution(Display):
     spreading: Spreading
 
     def summary(self) -> dict[str, Any]:
+        """Plain JSON-safe dict of the result, units in the keys (NaN and inf as None)."""
         return {
             "method": "non-negative least squares with a second-difference penalty",
             "grid points": int(self.volume.size),
@@ -535,6 +539,7 @@ class CLDBias(Display):
     dispersity_observed: float
 
     def summary(self) -> dict[str, Any]:
+        """Plain JSON-safe dict of the result, units in the keys (NaN and inf as None)."""
         return {
             "sigma lnM [-]": self.sigma_lnM,
             "window fraction [-]": self.fraction,

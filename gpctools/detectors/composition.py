@@ -78,6 +78,7 @@ class Composition(Display):
         return self.c_A + self.c_B
 
     def table(self) -> dict[str, np.ndarray]:
+        """Per-slice composition and concentrations, one array per column (units in the keys)."""
         a, b = self.names
         return {
             f"c {a} [g/mL]": self.c_A,
@@ -87,6 +88,7 @@ class Composition(Display):
         }
 
     def summary(self) -> dict[str, Any]:
+        """Plain JSON-safe dict of the result, units in the keys (NaN and inf as None)."""
         a, b = self.names
         return {
             "components": [a, b],

@@ -140,6 +140,7 @@ class Detector(Display):
         return out
 
     def summary(self) -> dict[str, Any]:
+        """Plain JSON-safe dict of the result, units in the keys (NaN and inf as None)."""
         out: dict[str, Any] = {"name": self.name}
         for k, v in self.to_mapping().items():
             out[k] = list(v) if isinstance(v, tuple) else v
@@ -274,6 +275,7 @@ class Copolymer:
     dn_dc_laser: tuple[float, float] | None = None
 
     def to_mapping(self) -> dict[str, Any]:
+        """The constants as the method file's ``[detectors]`` keys would hold them."""
         out: dict[str, Any] = {"names": list(self.names), "dn_dc": list(self.dn_dc),
                                "uv_response": list(self.uv_response)}
         if self.dn_dc_laser is not None:
@@ -328,10 +330,12 @@ class DetectorSetup(Display):
 
     @property
     def names(self) -> tuple[str, ...]:
+        """Names of the detectors, in the order of the set-up."""
         return tuple(d.name for d in self.detectors)
 
     @property
     def concentration_detector(self) -> ConcentrationDetector:
+        """The detector (RI or UV) whose signal gives the slice concentrations."""
         d = self[self.concentration]
         assert isinstance(d, ConcentrationDetector)
         return d
@@ -358,6 +362,7 @@ class DetectorSetup(Display):
         return out
 
     def summary(self) -> dict[str, Any]:
+        """Plain JSON-safe dict of the result, units in the keys (NaN and inf as None)."""
         return {
             "concentration detector": self.concentration,
             "offset convention": "offset = V_detector − V_concentration [mL], positive downstream",

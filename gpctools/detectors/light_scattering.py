@@ -135,6 +135,7 @@ class ConformationFit(Display):
     n_points: int
 
     def summary(self) -> dict[str, Any]:
+        """Plain JSON-safe dict of the result, units in the keys (NaN and inf as None)."""
         return {
             "slope nu [-]": finite_or_none(self.nu),
             "slope standard error [-]": finite_or_none(self.nu_stderr),
@@ -230,6 +231,7 @@ class LightScatteringResult(Display):
         return dict(zip(SLICE_COLUMNS, cols))
 
     def summary(self) -> dict[str, Any]:
+        """Plain JSON-safe dict of the result, units in the keys (NaN and inf as None)."""
         av = {f"{k} [g/mol]" if k != "dispersity" else "dispersity [-]": finite_or_none(v)
               for k, v in self.averages.items()}
         av_s = {f"{k} [g/mol]" if k != "dispersity" else "dispersity [-]": finite_or_none(v)

@@ -154,6 +154,7 @@ class PeakFit(Display):
     shape: str
 
     def summary(self) -> dict[str, Any]:
+        """Plain JSON-safe dict of the result, units in the keys (NaN and inf as None)."""
         return {k: (finite_or_none(v) if not isinstance(v, str) else v) for k, v in (
             ("center [mL]", self.center), ("center standard error [mL]", self.center_stderr),
             ("sigma [mL]", self.sigma), ("sigma standard error [mL]", self.sigma_stderr),
@@ -277,6 +278,7 @@ class DetectorCalibration(Display):
     normalisation: tuple[float, ...] | None = None
 
     def summary(self) -> dict[str, Any]:
+        """Plain JSON-safe dict of the result, units in the keys (NaN and inf as None)."""
         return {
             "detector": self.name,
             "kind": self.kind,
@@ -325,6 +327,7 @@ class SetupCalibration(Display):
         return out
 
     def summary(self) -> dict[str, Any]:
+        """Plain JSON-safe dict of the result, units in the keys (NaN and inf as None)."""
         s = self.standard
         return {
             "standard": {"name": s.name, "Mw [g/mol]": s.Mw, "dispersity [-]": s.dispersity,

@@ -125,6 +125,7 @@ class DetectorMethod(Display):
     fit_shape: str = "calibration"
 
     def summary(self) -> dict[str, Any]:
+        """Plain JSON-safe dict of the result, units in the keys (NaN and inf as None)."""
         return {
             "setup": self.setup.summary(),
             "columns": {k: list(v) for k, v in self.columns.items()},
@@ -375,6 +376,7 @@ class ShapedFit(Display):
     averages_observed: dict[str, float]
 
     def summary(self) -> dict[str, Any]:
+        """Plain JSON-safe dict of the result, units in the keys (NaN and inf as None)."""
         return {"form": "log10 M = b0 + b1 log10 M_calibration(V)", "b0 [-]": self.b0,
                 "b0 standard error [-]": self.b0_stderr, "b1 [-]": self.b1, "b1 standard error [-]": self.b1_stderr}
 
@@ -470,6 +472,7 @@ class DetectorResult(Display):
         return out
 
     def summary(self) -> dict[str, Any]:
+        """Plain JSON-safe dict of the result, units in the keys (NaN and inf as None)."""
         return {
             "values": {k: (finite_or_none(v) if not isinstance(v, str) else v) for k, v in self.values.items()},
             "light scattering": None if self.light_scattering is None else self.light_scattering.summary(),
@@ -483,7 +486,8 @@ class DetectorResult(Display):
 
 def _straight_baseline(V: np.ndarray, y: np.ndarray, windows: Sequence[tuple[float, float]], what: str) -> np.ndarray:
     """y minus the straight line through its means in the two windows (as the main trace's
-    baseline passes through its window means, gpctools.signal.Baseline)."""
+    baseline passes through its window means, gpctools.signal.Baseline).
+    """
     pts = []
     for a, b in windows:
         m = (V >= a) & (V <= b)

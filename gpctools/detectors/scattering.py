@@ -164,6 +164,7 @@ class AngularFit(Display):
     warnings: tuple[str, ...] = field(default=())
 
     def summary(self) -> dict[str, Any]:
+        """Plain JSON-safe dict of the result, units in the keys (NaN and inf as None)."""
         return {
             "formalism": self.formalism,
             "order": self.order,

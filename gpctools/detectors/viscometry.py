@@ -305,6 +305,7 @@ class MarkHouwinkFit(Display):
     warnings: tuple[str, ...] = field(default=())
 
     def summary(self) -> dict[str, Any]:
+        """Plain JSON-safe dict of the result, units in the keys (NaN and inf as None)."""
         return {
             "K [dL/g]": finite_or_none(self.K),
             "K standard error [dL/g]": finite_or_none(self.K_stderr),
@@ -471,6 +472,7 @@ class ViscometryResult(Display):
         return cols
 
     def summary(self) -> dict[str, Any]:
+        """Plain JSON-safe dict of the result, units in the keys (NaN and inf as None)."""
         return {
             "detector": self.detector,
             "intrinsic viscosity method": self.options.method,

@@ -176,11 +176,11 @@ def _utf16_without_bom(head: bytes) -> str | None:
 
 
 def decode_text(path: str | os.PathLike[str], data: bytes, encoding: str | None = None) -> str:
-    """Decode ``data`` to text.
+    r"""Decode ``data`` to text.
 
     Order: the explicit ``encoding``; a byte-order mark (UTF-8, UTF-16 LE/BE); UTF-16
     without a mark (recognised by its NUL bytes); strict UTF-8; cp1252; Latin-1
-    (which accepts any bytes). Newlines are normalised to ``"\\n"``.
+    (which accepts any bytes). Newlines are normalised to ``"\n"``.
     """
     text: str | None = None
     if encoding is not None:

@@ -167,7 +167,8 @@ class CheckInputs:
 @dataclass(frozen=True)
 class CheckOutcome:
     """What one check gives: a report line, an observation, a warning, an instrument
-    finding (each optional)."""
+    finding (each optional).
+    """
 
     line: CheckLine | None = None
     observation: Observation | None = None
@@ -178,7 +179,8 @@ class CheckOutcome:
 @dataclass(frozen=True)
 class CheckReport:
     """All checks: report lines, observations (name -> Observation), warnings and
-    instrument findings, in order."""
+    instrument findings, in order.
+    """
 
     lines: tuple[CheckLine, ...]
     observations: dict[str, Observation]

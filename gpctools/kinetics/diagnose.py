@@ -601,7 +601,8 @@ def _batch_values(
     dist: MeasuredDistribution | None = None,
 ) -> _BatchValues:
     """Measured values on the absolute scale; Mn/Mw from the distribution when the
-    recipe gives none; R_p and induction from conversion if needed."""
+    recipe gives none; R_p and induction from conversion if needed.
+    """
     if dist is not None and not meas.has_molar_mass:
         meas = replace(meas, Mn=dist.Mn, Mw=dist.Mw)
     Mn, Mw, fac = _absolute(meas, polymer, ref)
@@ -621,7 +622,8 @@ def _batch_values(
 
 def _measurement_sigmas(u: Uncertainty, rp_rel_se: float | None) -> dict[str, float]:
     """Relative σ of R_p, Mn, Mw: the recipe's, else the defaults; R_p from a conversion
-    fit uses its standard error (at least 5 %)."""
+    fit uses its standard error (at least 5 %).
+    """
     s = {k: (getattr(u, k) if getattr(u, k) is not None else DEFAULT_UNCERTAINTY[k]) / 100.0
          for k in OBSERVABLES}
     if u.R_p is None and rp_rel_se is not None and math.isfinite(rp_rel_se):
@@ -635,7 +637,8 @@ def _normal_observations(
 ) -> tuple[KineticParameters | None, dict[str, tuple[float, float]], MeasuredDistribution | None,
            str]:
     """The normal batch: its parameters, ln of its measured R_p, Mn, Mw with σ, its
-    distribution and its label (nothing when there is no normal batch)."""
+    distribution and its label (nothing when there is no normal batch).
+    """
     if normal is None or normal.measured.is_empty:
         return None, {}, None, ""
     nrec = normal.recipe if normal.recipe is not None else recipe
@@ -678,7 +681,8 @@ def _value_observations(
     u: Uncertainty, v: _BatchValues, e: _Expected
 ) -> dict[str, Observation]:
     """y = ln(measured/expected) of R_p, Mn, Mw with the measurement σ (and the recipe's
-    flat ``model [%]`` when given; the model's own uncertainty is a covariance)."""
+    flat ``model [%]`` when given; the model's own uncertainty is a covariance).
+    """
     sig = _measurement_sigmas(u, v.R_p_rel_se)
     flat = (u.model or 0.0) / 100.0
     obs: dict[str, Observation] = {}
@@ -694,7 +698,8 @@ def _shape_observations(
     dist: MeasuredDistribution | None, normal: MeasuredDistribution | None, model: AnchoredModel
 ) -> dict[str, Observation]:
     """Low-M tail and high-M shoulder: measured − expected mass fraction [-]; expected is
-    the normal batch's distribution, else the model's."""
+    the normal batch's distribution, else the model's.
+    """
     if dist is None:
         return {}
     t = dist.tails
@@ -840,7 +845,8 @@ def _closing_notes(
     obs: Mapping[str, Observation], causes: tuple[Cause, ...], mu: ModelUncertainty
 ) -> list[str]:
     """Notes on what cannot be told apart, on a poor or implausible best cause, and on
-    how uncertain the expected values are."""
+    how uncertain the expected values are.
+    """
     notes = list(mu.notes)
     if "R_p" not in obs and any(k in obs for k in ("Mn", "Mw")):
         notes.append(

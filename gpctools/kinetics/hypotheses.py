@@ -324,7 +324,8 @@ class Hypothesis(ABC):
 
     def perturbation(self, theta: float, model: AnchoredModel) -> dict[str, float] | None:
         """Keyword perturbation of :func:`~gpctools.kinetics.predict.evaluate` at θ for a
-        cause in the chemistry; None for a measurement cause."""
+        cause in the chemistry; None for a measurement cause.
+        """
         return None
 
     def predict(self, theta: float, model: AnchoredModel) -> dict[str, float]:

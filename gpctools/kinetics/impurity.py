@@ -55,6 +55,7 @@ class ExcessEstimate(Display):
 
     @property
     def relation(self) -> str:
+        """The relation used for the impurity level, in words (instantaneous or cumulative)."""
         x = self.final_conversion
         if x is None or x == 0:
             return ("instantaneous (low conversion): [X]/[M] = Δ(1/DPn)/C; give "
@@ -107,7 +108,8 @@ def _candidates(
     recipe: Recipe, ref: ReferenceData, p: KineticParameters
 ) -> list[tuple[str, float, float | None, str, bool]]:
     """(name, C [-], M [g/mol], source, from the recipe or generic): named, else generic;
-    then the table's agents."""
+    then the table's agents.
+    """
     out: list[tuple[str, float, float | None, str, bool]] = []
     for c in recipe.candidates:
         if c.C is not None:

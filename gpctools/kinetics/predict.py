@@ -306,7 +306,8 @@ class _Provenance:
 
     def table_value(self, method: Any, *args: float) -> float:
         """Call a reference-record method, collecting its ReferenceWarnings (validity
-        range, backbiting) in ``reference_warnings`` instead of letting them through."""
+        range, backbiting) in ``reference_warnings`` instead of letting them through.
+        """
         with _warnings.catch_warnings(record=True) as caught:
             _warnings.simplefilter("always")
             value = float(method(*args))

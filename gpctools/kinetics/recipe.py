@@ -295,7 +295,8 @@ class InitiatorSpec:
 @dataclass(frozen=True)
 class TerminationSpec:
     """Optional overrides of k_t [L/mol/s] (at ``k_t_T`` [°C], with its convention), its
-    activation energy ``k_t_E`` [kJ/mol], and δ [-]."""
+    activation energy ``k_t_E`` [kJ/mol], and δ [-].
+    """
 
     k_t: float | None = None
     convention: str = "IUPAC 2kt"
@@ -363,14 +364,17 @@ class Measured:
 
     @property
     def has_molar_mass(self) -> bool:
+        """True when the recipe gives a measured Mn or Mw."""
         return self.Mn is not None or self.Mw is not None
 
     @property
     def has_distribution(self) -> bool:
+        """True when the recipe gives a distribution table or a chromatogram."""
         return self.distribution is not None or self.chromatogram is not None
 
     @property
     def is_empty(self) -> bool:
+        """True when nothing was measured on this batch."""
         return (
             not self.has_molar_mass
             and self.R_p is None
@@ -932,7 +936,8 @@ def _data_files_section(
 
 def _parse(d: Mapping[str, Any], base: Path, path: Any, depth: int) -> Recipe:
     """Check every section of a parsed recipe, in file order, build the Recipe and
-    convert charges to concentrations."""
+    convert charges to concentrations.
+    """
     from gpctools.kinetics.charges import resolve_charges
 
     _check_keys(d, _TOP, "", path)

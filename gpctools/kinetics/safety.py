@@ -33,7 +33,8 @@ RUNAWAY_NOTE = (
 
 def safety_lines(*, runaway: bool = False, cautions: tuple[str, ...] = ()) -> tuple[str, ...]:
     """The safety lines for a report: the general note, the runaway note when asked,
-    and material-specific cautions from the tables (initiator, agents)."""
+    and material-specific cautions from the tables (initiator, agents).
+    """
     lines = []
     if runaway:
         lines.append(RUNAWAY_NOTE)

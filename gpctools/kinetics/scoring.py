@@ -182,7 +182,8 @@ def _objective(hypothesis: Hypothesis, theta: float, model: AnchoredModel,
 
 def _crossing(grid: np.ndarray, vals: np.ndarray, i: int, level: float, step: int) -> float:
     """θ where the profile first rises to ``level`` from index i going by ``step`` (±1);
-    the grid's end when it never does (linear interpolation between grid points)."""
+    the grid's end when it never does (linear interpolation between grid points).
+    """
     j = i
     while 0 <= j + step < len(grid):
         if vals[j + step] >= level:

@@ -47,7 +47,8 @@ __all__ = [
 
 class QCWarning(GpcWarning):
     """Something in the QC inputs deserves a look (conflicting assigned values, duplicate
-    trend labels)."""
+    trend labels).
+    """
 
 
 ROLE_SAMPLE = _batch_sheet.ROLE_SAMPLE
@@ -91,7 +92,8 @@ def check_roles(table: pd.DataFrame, what: str = "the results table") -> None:
 def sample_keys(table: pd.DataFrame) -> np.ndarray:
     """The sample each row belongs to: its ``sample_id``, except that a ``replicate`` row whose
     id no ``sample`` row shares joins the only sample of its batch (and product), when there
-    is exactly one (``B1`` and its replicate written ``B1-R``)."""
+    is exactly one (``B1`` and its replicate written ``B1-R``).
+    """
     sid = labels(table, C.SAMPLE_ID)
     role = roles(table)
     batch = labels(table, C.BATCH)
@@ -186,7 +188,8 @@ _DATE_NAME = re.compile(r"(?:.*\b)?(?:date|datetime|timestamp)(?:\b.*)?", re.IGN
 
 def date_column(table: pd.DataFrame) -> str | None:
     """The column holding the analysis date: ``date`` itself, else the first header whose
-    name (without its unit) contains the word ``date`` (``analysis date``, ``run date``)."""
+    name (without its unit) contains the word ``date`` (``analysis date``, ``run date``).
+    """
     names = [str(c) for c in table.columns]
     for c in names:
         if cells.split_header(c).key == "date":

@@ -1,4 +1,4 @@
-"""Blank injections: is there a peak inside a product's integration window?
+"""Blank injections: a peak inside a product's integration window or not.
 
 A blank (solvent only) run in the same sequence shows what the system adds to every
 injection: carry-over from the previous sample, an impurity of the solvent, a late

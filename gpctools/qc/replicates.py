@@ -49,7 +49,8 @@ def range_factor(n: int) -> float:
     """Critical range factor f(n): the range of n repeat results exceeds f(n)·σ_r with 5 %
     probability. f(2) = 2.8 (ISO 5725-6, r = 2.8·σ_r [from memory]); n > 2 the 0.95
     quantile of the range of n standard normal values (scipy's studentized range with
-    infinite degrees of freedom; 3.31, 3.63, 3.86 for n = 3, 4, 5)."""
+    infinite degrees of freedom; 3.31, 3.63, 3.86 for n = 3, 4, 5).
+    """
     if n < 2:
         return math.nan
     if n == 2:
@@ -107,7 +108,8 @@ def false_fail_simulated(rule: str, sizes: Sequence[int], limit_pct: float, sigm
                          *, simulations: int = SIMULATIONS, seed: int = 5725) -> float:
     """The same probability measured on ``simulations`` simulated sound sequences [-]:
     values ``100·(1 + σ·z)`` per injection, judged exactly as :func:`replicate_precision`
-    judges them."""
+    judges them.
+    """
     ns = tuple(int(n) for n in sizes if n >= 2)
     if not ns:
         return math.nan

@@ -131,7 +131,8 @@ class SequenceRun(Display):
     @property
     def failed(self) -> int:
         """Failed sample, replicate and check-standard injections (blanks and calibration
-        standards are judged, not counted here)."""
+        standards are judged, not counted here).
+        """
         role = T.roles(self.table)
         bad = ~T.ok_mask(self.table) & np.isin(role, (*T.SAMPLE_ROLES, T.ROLE_CHECK))
         return int(bad.sum())
@@ -260,7 +261,8 @@ def _standards(st: _State) -> None:
 def expand_products(entries: list[BatchEntry], settings: QCSettings) -> list[BatchEntry]:
     """Per-product settings as per-row overrides: a product's molar-mass window becomes the
     row's ``limits_M`` and its method file the row's ``method file``, unless the batch sheet
-    gives that row limits or a method file itself (the row wins)."""
+    gives that row limits or a method file itself (the row wins).
+    """
     out = []
     for e in entries:
         ps = settings.product(cells.text(e.metadata.get(C.PRODUCT)))
@@ -335,7 +337,8 @@ def _subtracted(st: _State, items: list[tuple[int, BatchEntry]], method: Method,
 def _process(st: _State, blanks: dict[str, list[tuple[np.ndarray, np.ndarray]]], *, workers: int | None,
              on_result: Any, progress: Callable[[int, int], None] | None) -> None:
     """Samples, replicates and check standards, sequence by sequence, each with its row's
-    method (per-product settings expanded into the rows' overrides and method files)."""
+    method (per-product settings expanded into the rows' overrides and method files).
+    """
     idx_all = st.positions(*T.SAMPLE_ROLES, T.ROLE_CHECK)
     rows = expand_products([st.entries[i] for i in idx_all], st.settings)
     rows, methods = load_batch_methods(rows, st.method, "the batch sheet")

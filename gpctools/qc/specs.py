@@ -483,7 +483,8 @@ def _long_products(frame: pd.DataFrame, path: str | None, sheet: str | None) -> 
 
 def _column_key(name: str) -> str:
     """A results-column name compared loosely: case, spacing, and numbers as values
-    (``1000``, ``1 000``, ``1e3`` and ``1,000`` match)."""
+    (``1000``, ``1 000``, ``1e3`` and ``1,000`` match).
+    """
     def num(m: re.Match[str]) -> str:
         v = cells.number_or_none(m.group(0).replace(" ", ""))
         return f"{v:.12g}" if v is not None else m.group(0)
@@ -494,7 +495,8 @@ def _column_key(name: str) -> str:
 
 def find_column(columns: Any, column: str) -> str | None:
     """The header of a results table that holds ``column`` (exact, legacy, or the same
-    name with numbers written differently), or None."""
+    name with numbers written differently), or None.
+    """
     heads = [str(c) for c in columns]
     if column in heads:
         return column

@@ -1,4 +1,4 @@
-"""System suitability per sequence: was the SEC system fit for use when the samples ran?
+"""System suitability per sequence: the SEC system fit for use when the samples ran, or not.
 
 Checks, each with its value, limit, pass/fail and a reason in words:
 
@@ -384,7 +384,8 @@ class _Rows:
 def _assigned(rows: _Rows, idx: list[int], q: str, key: str, spec: Any,
               warnings: list[str]) -> float | None:
     """Assigned value of ``q`` for one check standard: the batch-sheet column, else the
-    spec sheet's target. A text cell that is not a molar mass raises :class:`DataError`."""
+    spec sheet's target. A text cell that is not a molar mass raises :class:`DataError`.
+    """
     table = rows.table
     acol = ASSIGNED[q]
     values = T.numbers(table, acol)[idx]
@@ -535,7 +536,8 @@ def _flow_marker_check(rows: _Rows, limits: SuitabilityLimits,
 
 def replicate_groups(table: pd.DataFrame, column: str) -> list[ReplicateGroup]:
     """Usable injections of samples (roles sample and replicate) grouped by sample
-    (``sample_id``; a replicate with an id of its own joins the only sample of its batch)."""
+    (``sample_id``; a replicate with an id of its own joins the only sample of its batch).
+    """
     rows = _Rows.of(table)
     vals = T.numbers(table, column)
     keys = T.sample_keys(table)

@@ -53,7 +53,8 @@ def library_versions() -> dict[str, str]:
 @dataclass(frozen=True, repr=False)
 class InputFile(Display):
     """One input file: what it is, where, its SHA-256 and size (``sha256`` is
-    ``"missing"`` and ``size`` -1 for a file that could not be read)."""
+    ``"missing"`` and ``size`` -1 for a file that could not be read).
+    """
 
     role: str
     path: str

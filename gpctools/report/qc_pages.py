@@ -35,7 +35,8 @@ _U = re.compile(r"^u\((?P<q>[^)]+)\)\s*\[(?P<unit>[^\]]+)\]$")
 
 def uncertainty_columns(columns: Any) -> dict[str, str]:
     """Standard-uncertainty columns of a results table: quantity -> header
-    (``{"Mn": "u(Mn) [%]"}``); empty when the results carry none."""
+    (``{"Mn": "u(Mn) [%]"}``); empty when the results carry none.
+    """
     out = {}
     for c in columns:
         m = _U.match(str(c))
@@ -56,7 +57,8 @@ def injections_sheet(table: pd.DataFrame, decisions: Decisions) -> pd.DataFrame:
 
 def replicates_frame(result: QCResult) -> pd.DataFrame:
     """One row per sequence, quantity and replicate group, with the rule's verdict and its
-    false-fail rate."""
+    false-fail rate.
+    """
     rows = []
     for s in result.suitability:
         for r in s.replicates:
@@ -81,7 +83,8 @@ def replicates_frame(result: QCResult) -> pd.DataFrame:
 
 def standards_frame(run: Any) -> pd.DataFrame:
     """Every standard located in the sequence's calibration-standard injections, with its
-    residual in the sequence's calibration."""
+    residual in the sequence's calibration.
+    """
     cols = ["sequence", "injection", "standard", "Mp [g/mol]", "volume [mL]", "volume standard error [µL]",
             "points in top fit [-]", "fitted M [g/mol]", "residual [%]"]
     if run is None or not getattr(run, "standards", ()):
@@ -150,7 +153,8 @@ def review_inputs(res: Any, *, title: str = "", reference: tuple[np.ndarray, np.
                   reference_label: str = "reference") -> tuple[dict[str, Any], dict[str, Any]]:
     """Keyword arguments of :func:`gpctools.report.plots.review_figure` for one
     :class:`gpctools.batch.InjectionResult` (the raw trace is the corrected signal plus
-    its baseline, on the flow-corrected axis)."""
+    its baseline, on the flow-corrected axis).
+    """
     cs = res.corrected
     V = np.asarray(cs.volume, dtype=float)
     base = cs.baseline(V)

@@ -114,7 +114,8 @@ def trace_svg(res: InjectionResult, *, uid: str, title: str = "") -> str:
 
 def distribution_svg(res: InjectionResult, *, uid: str, title: str = "") -> tuple[str, list[float], list[float]]:
     """SVG of dw/dlogM against M with Mn, Mw and Mp marked; also the downsampled curve
-    (log10 M [-], dw/dlogM [-]) for the overlays."""
+    (log10 M [-], dw/dlogM [-]) for the overlays.
+    """
     d = res.distribution
     lm = np.log10(np.asarray(d.M, dtype=float))
     order = np.argsort(lm, kind="stable")
@@ -135,7 +136,8 @@ def distribution_svg(res: InjectionResult, *, uid: str, title: str = "") -> tupl
 
 def injection_fragment(entry: BatchEntry, res: InjectionResult) -> dict[str, Any]:
     """Everything the page shows of one injection (JSON-safe): two SVGs, the overlay
-    curve and the numbers as text."""
+    curve and the numbers as text.
+    """
     title = f"{entry.sample_id} (row {entry.row})"
     uid = f"r{entry.row}"
     d = res.distribution
@@ -191,6 +193,7 @@ class ReviewSink:
     rows: frozenset[int] | None = None
 
     def __call__(self, entry: BatchEntry, result: InjectionResult) -> None:
+        """Draw one processed injection's fragment of the review page (a sink of :func:`gpctools.batch.run_batch`)."""
         if self.rows is not None and entry.row not in self.rows:
             return
         try:
@@ -227,7 +230,8 @@ def review_rows(sheet: str | os.PathLike[str], limit: int | None = DEFAULT_LIMIT
 
 def calibration_svg(calibration: Any, *, uid: str = "cal") -> tuple[str, str]:
     """SVGs of the calibration curve (standards and fit, M on a log axis) and of the
-    standards' residuals [%] with the ±5 % band; a standard outside the band is a cross."""
+    standards' residuals [%] with the ±5 % band; a standard outside the band is a cross.
+    """
     table = calibration.standards_table()
     V = np.array([r["volume [mL]"] for r in table], dtype=float)
     Mp = np.array([r["Mp [g/mol]"] for r in table], dtype=float)
@@ -253,7 +257,8 @@ def calibration_svg(calibration: Any, *, uid: str = "cal") -> tuple[str, str]:
 
 def overlay_svg(curves: list[tuple[str, list[float], list[float]]], *, title: str, uid: str) -> str:
     """Overlay of dw/dlogM curves (label, log10 M, dw/dlogM) with the Okabe-Ito palette
-    and dash patterns past eight curves; legend to the right of the plot."""
+    and dash patterns past eight curves; legend to the right of the plot.
+    """
     xs = [c[1] for c in curves]
     ys = [c[2] for c in curves]
     x0, x1 = finite_range(*xs)

@@ -133,10 +133,12 @@ class SvgPlot:
 
     # -- coordinates ------------------------------------------------------------------
     def px(self, x: Any) -> np.ndarray:
+        """Pixel x coordinates of data values ``x``."""
         x0, x1 = self.xlim
         return self.left + (np.asarray(x, dtype=float) - x0) * (self.right - self.left) / (x1 - x0)
 
     def py(self, y: Any) -> np.ndarray:
+        """Pixel y coordinates of data values ``y``."""
         y0, y1 = self.ylim
         return self.bottom - (np.asarray(y, dtype=float) - y0) * (self.bottom - self.top) / (y1 - y0)
 
@@ -204,12 +206,14 @@ class SvgPlot:
             self._legend.append(("dot", colour, "", label))
 
     def hline(self, y: float, *, colour: str = _INK, dash: str = "", width: float = 0.8) -> None:
+        """Draw a horizontal line at data value ``y`` across the plot area."""
         Y = float(self.py(y))
         d = f" stroke-dasharray='{dash}'" if dash else ""
         self._back.append(f"<line x1='{self.left}' x2='{self.right}' y1='{Y:.1f}' y2='{Y:.1f}' stroke='{colour}' "
                           f"stroke-width='{width}'{d}/>")
 
     def hband(self, y0: float, y1: float, *, colour: str) -> None:
+        """Shade the horizontal band between data values ``y0`` and ``y1``."""
         a, b = sorted(float(v) for v in self.py([y0, y1]))
         a, b = max(a, self.top), min(b, self.bottom)
         if b > a:

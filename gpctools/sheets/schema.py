@@ -81,7 +81,8 @@ KINDS = ("number", "text", "id", "path", "choice", "bool")
 
 class HeaderError(ValueError):
     """Raised by :attr:`FieldFamily.make` for a malformed header; the reader adds the file,
-    sheet, header row and column and raises the sheet's ``column_error``."""
+    sheet, header row and column and raises the sheet's ``column_error``.
+    """
 
 
 @dataclass(frozen=True)

@@ -95,7 +95,8 @@ def interval_parts(var_stat: float, var_cal: float, dof: float,
 
 def _start(model: SeriesModel, y: np.ndarray) -> np.ndarray:
     """Start values: a linear fit of y on the instantaneous design, then each consumed
-    constant corrected for drift by inverting C_app = (1 − (1 − x)^C)/x at the mean x."""
+    constant corrected for drift by inverting C_app = (1 − (1 − x)^C)/x at the mean x.
+    """
     X = model.linear_design()
     target = y - (model.intercept or 0.0)
     if model.kinetic_known is not None:

@@ -379,7 +379,8 @@ def _check_inputs(yv: np.ndarray, xv: np.ndarray, R: Mapping[str, np.ndarray],
 def _drift_result(sol: Any, ids: tuple[str, ...], naive: MayoFit | None, confidence: float,
                   estimator: str, what: str) -> DriftFit:
     """Assemble a :class:`DriftFit`: values with both error parts, naive bias,
-    identifiability of each consumed constant and its warnings."""
+    identifiability of each consumed constant and its warnings.
+    """
     model = sol.model
     names = list(model.terms)
     xv = model.conversion

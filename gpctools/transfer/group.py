@@ -243,7 +243,8 @@ def _choose_terms(runs: Sequence[Run], all_terms: Sequence[str], terms: Sequence
 def _spans(vals: np.ndarray) -> bool:
     """A ratio enters automatically when it spans at least RATIO_SPAN (about 2-fold), or
     runs without the species stand beside runs with it; a few % of weighing scatter does
-    not (docs/science.md, section 3.3)."""
+    not (docs/science.md, section 3.3).
+    """
     v = np.round(vals, 15)
     if np.unique(v).size < 2:
         return False
@@ -507,7 +508,8 @@ class _Group:
 
     def model_kwargs(self, estimator: str, ids: Sequence[str]) -> dict[str, Any]:
         """Keyword arguments of the fits for the runs ``ids``: δ, kinetic term, CLD windows,
-        calibration covariance of the observations."""
+        calibration covariance of the observations.
+        """
         k = self.index(ids)
         kin = self.kinetic
         out: dict[str, Any] = {
@@ -522,7 +524,8 @@ class _Group:
 
     def calibration_part(self, estimator: str, ids: Sequence[str]) -> dict[str, Any]:
         """Cov_cal(y) = diag(y) G Σ_c Gᵀ diag(y) for the runs ``ids`` (G: d ln y/d c), or {}
-        when no run carries a calibration gradient."""
+        when no run carries a calibration gradient.
+        """
         C, dof = self.cal
         if C is None:
             return {}
@@ -595,7 +598,8 @@ def _test_model(g: _Group, opts: TransferOptions) -> SeriesModel:
 def _plot_points(g: _Group, fits: dict[str, Any], opts: TransferOptions,
                  drift: bool) -> dict[str, dict[str, float]]:
     """Every run's observation on the instantaneous 1/DPn scale with each estimator's
-    recommended fit (flagged runs included), for the Mayo plot: y·λ(0)/ŷ."""
+    recommended fit (flagged runs included), for the Mayo plot: y·λ(0)/ŷ.
+    """
     out: dict[str, dict[str, float]] = {}
     for e, f in fits.items():
         if f.theta is None:
@@ -611,7 +615,8 @@ def _plot_points(g: _Group, fits: dict[str, Any], opts: TransferOptions,
 def _impurity_test(g: _Group, opts: TransferOptions, warns: list[str]) -> ImpurityCheck | None:
     """Flag runs above the Mayo line of the others on the primary estimator (generalized
     ESD against the group's model, linearised at a robust fit; no run is refitted). A
-    design the test cannot handle skips it, with a warning."""
+    design the test cannot handle skips it, with a warning.
+    """
     y = g.y(g.primary, g.ids)
     u, dof, src = g.noise(g.primary)
     try:
@@ -661,7 +666,8 @@ def _control_inv_dpn(g: _Group, fit: Any) -> tuple[np.ndarray, float]:
     """The control runs' observations on the 1/DPn scale (Mw/2: the mixed-termination
     inversion with the fit's β; CLD: the model's ratio at zero agent), and the
     sensitivity d ln(1/DPn)/d ln(observation) that carries a relative error across
-    (with combination 2 M0/Mw moves less than 1/DPn, so its error is amplified)."""
+    (with combination 2 M0/Mw moves less than 1/DPn, so its error is amplified).
+    """
     ys = np.array([g.est[r.run_id].y(g.primary) for r in g.controls])
     model = getattr(fit, "model", None)
     if model is None or g.primary == "Mn":
@@ -682,7 +688,8 @@ def _intercept_check(fit: Any, g: _Group, opts: TransferOptions) -> InterceptChe
     """Check 1/DPn0 (on the 1/DPn scale for every estimator) against, in this order: a
     given value, control runs, C_M (+ kinetic term). With a kinetic regressor the intercept
     is only the constant part (C_M and any constant transfer): it is checked against a
-    given C_M alone."""
+    given C_M alone.
+    """
     conf, C_X = opts.impurity_confidence, opts.impurity_C
     mconc = float(np.nanmean(g.mconc)) if np.any(np.isfinite(g.mconc)) else None
     expected, C_M, kinetic_term = opts.expected_intercept, opts.C_M, opts.kinetic_term
@@ -736,7 +743,8 @@ def _dispersity_check(g: _Group, fits: dict[str, Any], opts: TransferOptions,
     """Do the runs' Mw/Mn agree with δ? Mn does not depend on δ, so the Mn fit's θ predicts
     each run's dispersity 2 ŷ_n/ŷ_w through the Mw/2 model; a median mismatch beyond
     DISPERSITY_TOLERANCE over the third of the runs with the longest chains is reported
-    with what to check."""
+    with what to check.
+    """
     if "Mn" not in fits or "Mw/2" not in fits or fits["Mn"].theta is None:
         return None
     try:
@@ -763,7 +771,8 @@ def _dispersity_check(g: _Group, fits: dict[str, Any], opts: TransferOptions,
 
 def _spread(fits: dict[str, Any], terms: Sequence[str]) -> dict[str, dict[str, Any]]:
     """Per term: each estimator's constant, min, max, and whether two disagree beyond
-    DISAGREE_Z of their statistical standard errors (the calibration is common to both)."""
+    DISAGREE_Z of their statistical standard errors (the calibration is common to both).
+    """
     out: dict[str, dict[str, Any]] = {}
     names = [e for e in ESTIMATORS if e in fits]
     for t in terms:

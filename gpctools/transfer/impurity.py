@@ -178,7 +178,8 @@ def _irls(f: Any, jac: Any, y: np.ndarray, theta: np.ndarray, *, c: float = TUKE
           max_iter: int = 30, lower: np.ndarray | None = None,
           linear: tuple[np.ndarray, np.ndarray] | None = None) -> tuple[np.ndarray, np.ndarray, float]:
     """Huber then bisquare iteratively reweighted least squares on relative residuals
-    (``linear`` = (X, offset) of a linear model: each step is one direct solve)."""
+    (``linear`` = (X, offset) of a linear model: each step is one direct solve).
+    """
     th = np.asarray(theta, dtype=float)
     p = th.size
     u = np.ones_like(y)
@@ -441,7 +442,8 @@ def _loo(lin: _Linear, ref: np.ndarray, noise: _Noise,
 def _pool(s2: np.ndarray, nu: np.ndarray, ref: np.ndarray,
           noise: _Noise) -> tuple[np.ndarray, np.ndarray]:
     """Pool the residual variance with measured noise where they agree (F test), or use a
-    known relative error; returns (variance, dof) per run (dof 0: known)."""
+    known relative error; returns (variance, dof) per run (dof 0: known).
+    """
     if noise.known is not None:
         return np.full_like(s2, noise.known**2), np.zeros_like(nu)
     s2 = np.maximum(s2, SCALE_FLOOR**2)
@@ -467,7 +469,8 @@ def _pool(s2: np.ndarray, nu: np.ndarray, ref: np.ndarray,
 def _alpha(confidence: float, adjust: str, runs: int, step: int = 1) -> float:
     """Per-run level of ESD step ``step`` with ``runs`` runs under test: Šidák for the
     series, times :data:`ESD_FIRST_FACTOR` at the first step and :data:`ESD_LEVEL_FACTOR`
-    from the second on."""
+    from the second on.
+    """
     a = (1.0 - confidence) * (ESD_LEVEL_FACTOR if step > 1 else ESD_FIRST_FACTOR)
     if adjust == "run":
         return a
@@ -477,7 +480,8 @@ def _alpha(confidence: float, adjust: str, runs: int, step: int = 1) -> float:
 def _esd(lin: _Linear, noise: _Noise, K: int, confidence: float, adjust: str,
          ids: tuple[str, ...]) -> tuple[set[int], list[ESDStep]]:
     """Generalized ESD (one-sided): remove the largest t K times; candidates = the runs
-    removed up to the last step whose statistic exceeds its critical value."""
+    removed up to the last step whose statistic exceeds its critical value.
+    """
     n = lin.X.shape[0]
     active = np.ones(n, dtype=bool)
     order: list[int] = []
@@ -501,7 +505,8 @@ def _final(lin: _Linear, noise: _Noise, cand: set[int], confidence: float,
            adjust: str) -> tuple[np.ndarray, tuple[np.ndarray, ...]]:
     """Test every run against the line of the runs not flagged; flagged := t > threshold,
     repeated until the set is stable (at most 10 rounds). Returns (flagged mask,
-    (e, se, t, dof, threshold))."""
+    (e, se, t, dof, threshold)).
+    """
     n, p = lin.X.shape
     flagged = np.zeros(n, dtype=bool)
     flagged[list(cand)] = True
@@ -527,7 +532,8 @@ def _final(lin: _Linear, noise: _Noise, cand: set[int], confidence: float,
 def _default_K(n: int, p: int, known: bool) -> int:
     """Most runs the procedure may remove: a third of the runs, and few enough that the
     last step keeps 2 degrees of freedom (1 reference run more than parameters with a
-    known scale)."""
+    known scale).
+    """
     return max(0, min(n // 3, n - p - (1 if known else 2)))
 
 
@@ -767,7 +773,7 @@ def flag_runs_cumulative(
 
 @dataclass(frozen=True, repr=False)
 class InterceptCheck(Display):
-    """Is 1/DPn0 above what it should be?
+    """Whether 1/DPn0 lies above what the kinetics explain.
 
     Attributes
     ----------

@@ -109,7 +109,8 @@ def _span(v: np.ndarray) -> float:
 
 def _candidates(runs: Sequence[Any]) -> tuple[str, np.ndarray | None]:
     """The regressor that can be formed: R_p/[M]² (every run has R_p and [M]), else
-    √[I]/[M] (every run has [I] and [M])."""
+    √[I]/[M] (every run has [I] and [M]).
+    """
     M = np.array([r.monomer_conc for r in runs], dtype=float)
     Rp = np.array([r.rate for r in runs], dtype=float)
     I0 = np.array([r.initiator_conc for r in runs], dtype=float)
@@ -218,7 +219,8 @@ def _reference(runs: Sequence[Any], delta: float, T_C: float, reference: Any, la
 def termination_mode(runs: Sequence[Any], delta: float | None, C_M: float | None,
                      reference: Any = None, label: str = "this series") -> Termination:
     """δ for the group (option, sheet, bundled table, else 1) and the C_M that splits the
-    intercept into its kinetic part (option, else the bundled C_M, else 0)."""
+    intercept into its kinetic part (option, else the bundled C_M, else 0).
+    """
     given = {r.delta for r in runs if math.isfinite(r.delta)}
     mono = next((r.monomer for r in runs if r.monomer), "")
     ref = reference

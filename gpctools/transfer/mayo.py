@@ -1,9 +1,9 @@
-"""The full Mayo model, fitted by weighted least squares, with a design check.
+r"""The full Mayo model, fitted by weighted least squares, with a design check.
 
 .. math::
 
-    \\frac{1}{DP_n} = \\frac{1}{DP_{n0}} + C_M + C_S\\frac{[S]}{[M]} + C_I\\frac{[I]}{[M]}
-    + \\sum_j C_{A,j}\\frac{[A_j]}{[M]}
+    \frac{1}{DP_n} = \frac{1}{DP_{n0}} + C_M + C_S\frac{[S]}{[M]} + C_I\frac{[I]}{[M]}
+    + \sum_j C_{A,j}\frac{[A_j]}{[M]}
 
 The user chooses the terms. Term names are the constants' names: ``"C_A"`` (the single
 agent), ``"C_A:<agent>"`` (one of several agents varied in the same design), ``"C_S"``,
@@ -490,7 +490,8 @@ class MayoFit(FittedConstants, Display):
 
     def inv_dpn_points(self) -> np.ndarray:
         """Each run's observation on the instantaneous 1/DPn scale (see
-        :meth:`SeriesModel.to_inv_dpn`) [-]; ``y`` itself for a linear Mn fit."""
+        :meth:`SeriesModel.to_inv_dpn`) [-]; ``y`` itself for a linear Mn fit.
+        """
         if self.model is None or self.theta is None:
             return self.y
         return self.model.to_inv_dpn(self.y, self.theta)

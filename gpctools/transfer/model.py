@@ -265,7 +265,8 @@ class SeriesModel:
 
     def jacobian(self, theta: np.ndarray) -> np.ndarray:
         """d observable/d θ, shape (n, p): analytic for Mn at low conversion, else forward
-        differences (each parameter stepped by 1e-6 of its size)."""
+        differences (each parameter stepped by 1e-6 of its size).
+        """
         th = np.asarray(theta, dtype=float)
         if self.is_linear:
             cols = [] if self.intercept is not None else [np.ones(self.n)]

@@ -87,7 +87,8 @@ class RunEstimate:
 
     def y(self, estimator: str) -> float:
         """The observation of ``estimator`` [-]: M0/Mn ("Mn"), 2 M0/Mw ("Mw/2") or Λ
-        ("CLD"); the mean over replicate injections; NaN when not available."""
+        ("CLD"); the mean over replicate injections; NaN when not available.
+        """
         if self.error:
             return float("nan")
         obs = self.observations.get(estimator)
@@ -144,7 +145,8 @@ class _Measurement:
 def _measurement_of(inj: Any, calibration: Any) -> _Measurement:
     """The injection's noise and limit uncertainty of Mn and Mw (combined in quadrature;
     the calibration part is carried separately, as gradients common to every run:
-    docs/science.md, sections 11.5 and 19.7)."""
+    docs/science.md, sections 11.5 and 19.7).
+    """
     from gpctools.uncertainty import calibration_gradients
 
     def part(x: float) -> float:
@@ -160,7 +162,8 @@ def _measurement_of(inj: Any, calibration: Any) -> _Measurement:
 
 def _light_scattering(inj: Any) -> tuple[float, float] | None:
     """Absolute Mn, Mw [g/mol] of an injection whose method has [detectors] with light
-    scattering (gpctools.columns.MN_LS, MW_LS), or None."""
+    scattering (gpctools.columns.MN_LS, MW_LS), or None.
+    """
     det = getattr(inj, "detectors", None)
     if det is None:
         return None
@@ -176,7 +179,8 @@ def _chromatogram_run(run: Run, method: Any, opts: Any, want_cld: bool) -> RunEs
     With light scattering in the method ([detectors]) the run's Mn and Mw are the absolute
     ones (scale "absolute, light scattering"), which do not move with the conventional
     calibration's coefficients (zero gradient); the CLD slope still uses the
-    concentration trace through the calibration."""
+    concentration trace through the calibration.
+    """
     obs: dict[str, list[float]] = {"Mn": [], "Mw/2": [], "CLD": []}
     grads: dict[str, list[np.ndarray]] = {"Mn": [], "Mw/2": [], "CLD": []}
     u_chrom: dict[str, list[float]] = {"Mn": [], "Mw/2": []}
@@ -222,7 +226,8 @@ def _chromatogram_run(run: Run, method: Any, opts: Any, want_cld: bool) -> RunEs
 def _replicate_noise(obs: Mapping[str, list[float]], u_chrom: Mapping[str, list[float]],
                      n: int) -> tuple[dict[str, float], dict[str, float], str]:
     """Relative uncertainty of each run mean: replicate scatter/√n (n − 1 dof) when n >= 2,
-    else the chromatogram's own (1 dof)."""
+    else the chromatogram's own (1 dof).
+    """
     rel_u: dict[str, float] = {}
     dof: dict[str, float] = {}
     if n >= 2:
@@ -284,7 +289,8 @@ def scale_warnings(estimates: Sequence[RunEstimate], reference: Any) -> list[str
 
 def calibration_covariance(method: Any) -> tuple[np.ndarray | None, float]:
     """The calibration's coefficient covariance [-] and its degrees of freedom (standards −
-    coefficients); (None, inf) without a method or a covariance."""
+    coefficients); (None, inf) without a method or a covariance.
+    """
     cal = getattr(method, "calibration", None) if method is not None else None
     if cal is None or not cal.covariance:
         return None, math.inf

@@ -327,7 +327,8 @@ def _num(value: float | None) -> float:
 
 def _chromatograms(row: SheetRow, table: CheckedSheet, base: Path) -> tuple[str, ...]:
     """The chromatogram paths (replicate injections separated by ``;``) resolved against
-    the sheet's folder (each must exist)."""
+    the sheet's folder (each must exist).
+    """
     cell = row.get("file", "")
     out = []
     for file in (f.strip() for f in str(cell or "").split(";")):

@@ -225,7 +225,8 @@ def run_rows(res: TransferResult) -> list[dict[str, Any]]:
 
 def _dpn_from_mw(e: Any, g: GroupResult | None) -> float:
     """DPn from Mw with the mixed-termination relation and the run's fitted β; without a
-    fit, the exact discrete most-probable DPn = (DPw + 1)/2 [-]."""
+    fit, the exact discrete most-probable DPn = (DPw + 1)/2 [-].
+    """
     y = e.y("Mw/2")
     if not math.isfinite(y):
         return float("nan")
