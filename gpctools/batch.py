@@ -58,10 +58,13 @@ import numpy as np
 
 from . import columns as C
 from .distribution import (
+    CURVE_STEP,
     Distribution,
+    DistributionCurve,
     PeakPart,
     averages_with_reasons,
     compute_distribution,
+    distribution_curve,
     mass_fraction_below,
     peak_top,
     split_distribution,
@@ -93,6 +96,7 @@ __all__ = [
     "iter_batch",
     "load_batch_methods",
     "ResultSink",
+    "CurveSink",
     "RESULT_COLUMNS",
 ]
 
@@ -903,6 +907,10 @@ def _replicate_note(entries: list[BatchEntry], rows: Any, path: Path) -> str | N
 #: a module-level function or an instance of a module-level class).
 ResultSink = Callable[[BatchEntry, InjectionResult], None]
 
+#: Receives each processed injection's binned distribution, ``on_curve(entry, curve)``,
+#: in the process that runs the batch (see :func:`run_batch`).
+CurveSink = Callable[[BatchEntry, DistributionCurve], None]
+
 
 def _error_row(entry: BatchEntry, message: str, method: Method | None = None) -> dict[str, Any]:
     row = {C.SAMPLE_ID: entry.sample_id, C.FILE: entry.file, C.ROLE: entry.role, **entry.metadata}
@@ -955,27 +963,32 @@ def _limit_columns(res: InjectionResult, method: Method) -> dict[str, float]:
 
 
 def _run_entry(
-    entry: BatchEntry, method: Method | None, on_result: ResultSink | None, keep: bool
-) -> tuple[dict[str, Any], InjectionResult | None]:
-    """Process one entry with its method; returns (row, result-or-None). Never raises for bad data.
+    entry: BatchEntry, method: Method | None, on_result: ResultSink | None, keep: bool,
+    curve_step: float | None = None,
+) -> tuple[dict[str, Any], InjectionResult | None, DistributionCurve | None]:
+    """Process one entry with its method; returns (row, result-or-None, curve-or-None).
+    Never raises for bad data.
 
     The row's overrides give a derived method (:meth:`~gpctools.method.Method.with_overrides`).
     ``on_result`` is called with each processed injection (not for failed rows); what it
-    raises (e.g. a full disk) stops the batch.
+    raises (e.g. a full disk) stops the batch. With ``curve_step`` the distribution is
+    also binned on a log10 M grid of that width (:func:`gpctools.distribution.distribution_curve`),
+    a few kB whatever the number of slices.
     """
     if entry.problem:
-        return _error_row(entry, entry.problem, method), None
+        return _error_row(entry, entry.problem, method), None, None
     if method is None:
         return _error_row(entry, "no method for this injection: fill its 'method file' cell or give "
-                                 "a method for the whole batch"), None
+                                 "a method for the whole batch"), None, None
     try:
         used = method.with_overrides(entry.overrides)
         res = process_injection(entry.path, used, sample_id=entry.sample_id, marker_observed=entry.marker_observed)
         limits = _limit_columns(res, used)
+        curve = distribution_curve(res.distribution, curve_step) if curve_step is not None else None
     except GpcError as exc:
-        return _error_row(entry, str(exc), method), None
+        return _error_row(entry, str(exc), method), None, None
     except Exception as exc:  # one bad injection must not sink the batch
-        return _error_row(entry, f"{entry.path}: unexpected {type(exc).__name__}: {exc}", method), None
+        return _error_row(entry, f"{entry.path}: unexpected {type(exc).__name__}: {exc}", method), None, None
     row = {C.SAMPLE_ID: entry.sample_id, C.FILE: entry.file, C.ROLE: entry.role, **entry.metadata}
     row.update(res.row())
     row.update(limits)
@@ -983,16 +996,15 @@ def _run_entry(
     row[C.FILE] = entry.file
     if on_result is not None:
         on_result(entry, res)
-    return _ordered(row, entry), (res if keep else None)
+    return _ordered(row, entry), (res if keep else None), curve
 
 
 def _worker(
-    args: tuple[BatchEntry, Method | None, ResultSink | None, bool],
-) -> tuple[dict[str, Any], InjectionResult | None]:
-    entry, method, on_result, keep = args
+    args: tuple[BatchEntry, Method | None, ResultSink | None, bool, float | None],
+) -> tuple[dict[str, Any], InjectionResult | None, DistributionCurve | None]:
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        return _run_entry(entry, method, on_result, keep)
+        return _run_entry(*args)
 
 
 @dataclass
@@ -1077,19 +1089,39 @@ def iter_batch(
     applied to that method.
 
     ``workers=None`` chooses: one process for fewer than 16 injections (starting worker
-    processes costs about a second), otherwise one per core, at most 4. ``on_result`` is
+    processes costs about a second), otherwise one per core. ``on_result`` is
     called as ``on_result(entry, result)`` for every processed injection, in the process
     that computed it (see :data:`ResultSink`); ``keep=False`` then yields ``None`` results
     so that nothing but the rows reaches this process.
+    """
+    for row, res, _ in _iter_entries(entries, method, methods=methods, workers=workers,
+                                     on_result=on_result, keep=keep):
+        yield row, res
+
+
+def _iter_entries(
+    entries: Iterable[BatchEntry],
+    method: Method | None,
+    *,
+    methods: Mapping[str, Method] | None = None,
+    workers: int | None = 1,
+    on_result: ResultSink | None = None,
+    keep: bool = True,
+    curve_step: float | None = None,
+) -> Iterator[tuple[dict[str, Any], InjectionResult | None, DistributionCurve | None]]:
+    """:func:`iter_batch` with the binned curve of each injection (``curve_step``) as a third item.
+
+    Results stream: ``pool.imap`` hands over each chunk as it is done and nothing is
+    kept here beyond what the caller keeps.
     """
     import os
 
     entries = list(entries)
     if methods is None and any(e.method_path is not None for e in entries):
         entries, methods = load_batch_methods(entries, method, "the batch sheet")
-    jobs = [(e, _method_of(e, method, methods), on_result, keep) for e in entries]
+    jobs = [(e, _method_of(e, method, methods), on_result, keep, curve_step) for e in entries]
     if workers is None:
-        workers = min(os.cpu_count() or 1, 4) if len(entries) >= 16 else 1
+        workers = (os.cpu_count() or 1) if len(entries) >= 16 else 1
     if workers <= 1 or len(entries) < 4:
         for job in jobs:
             yield _run_entry(*job)
@@ -1171,6 +1203,8 @@ def run_batch(
     keep_distributions: bool = True,
     progress: Callable[[int, int], None] | None = None,
     on_result: ResultSink | None = None,
+    on_curve: CurveSink | None = None,
+    curve_step: float = CURVE_STEP,
 ) -> BatchResult:
     """Process every injection of a batch sheet.
 
@@ -1196,6 +1230,13 @@ def run_batch(
         that computed it (see :data:`ResultSink`). Pass
         ``gpctools.report.DistributionWriter(folder)`` to write each distribution table
         while the batch runs; with ``keep_distributions=False`` memory then stays flat.
+    on_curve : callable, optional
+        Called as ``on_curve(entry, curve)`` in this process, in sheet order, with each
+        processed injection's distribution binned on a log10 M grid of width
+        ``curve_step`` (:class:`gpctools.distribution.DistributionCurve`, a few kB);
+        ``gpctools.report.DistributionsTable`` writes them as one long-form table.
+    curve_step : float
+        Bin width of those curves in log10 M [-].
 
     Returns
     -------
@@ -1227,10 +1268,14 @@ def run_batch(
                                path=str(sheet_path))
     rows, results = [], []
     total = len(entries)
-    for i, (row, res) in enumerate(iter_batch(entries, method, methods=loaded, workers=workers,
-                                              on_result=on_result, keep=keep_distributions), start=1):
+    step = curve_step if on_curve is not None else None
+    for i, (row, res, curve) in enumerate(_iter_entries(entries, method, methods=loaded, workers=workers,
+                                                        on_result=on_result, keep=keep_distributions,
+                                                        curve_step=step), start=1):
         rows.append(row)
         results.append(res)
+        if on_curve is not None and curve is not None:
+            on_curve(entries[i - 1], curve)
         if progress is not None:
             progress(i, total)
     meta_cols = list(entries[0].metadata) if entries else []

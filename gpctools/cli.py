@@ -249,16 +249,20 @@ def _print_table(rows: list[dict], columns: list[str]) -> None:
 
 
 def _run_batch_with_progress(sheet: Path, method: Method | None, out: Path, workers: int | None,
-                             sheet_name: str | None = None) -> BatchResult:
+                             sheet_name: str | None = None, injection_tables: bool = False) -> BatchResult:
+    """Run the batch streaming its outputs: the long-form distributions table is written
+    in this process as rows arrive, per-injection tables (opt-in) by the workers; no
+    injection's traces are kept, so memory does not grow with the batch."""
     from .batch import run_batch
-    from .report import DistributionWriter, write_batch
+    from .report import DistributionsTable, DistributionWriter, write_batch
 
-    with _stage("injections") as advance:
+    with _stage("injections") as advance, DistributionsTable(out / "distributions.csv") as curves:
         result = run_batch(
-            sheet, method, sheet=sheet_name, workers=workers, progress=advance,
-            on_result=DistributionWriter(out / "distributions"),
+            sheet, method, sheet=sheet_name, workers=workers, progress=advance, keep_distributions=False,
+            on_result=DistributionWriter(out / "distributions") if injection_tables else None,
+            on_curve=curves,
         )
-    write_batch(result, out, distributions=False)  # distributions were written while running
+    write_batch(result, out, distributions=False, curves=False)  # both were written while running
     return result
 
 
@@ -274,8 +278,11 @@ def batch_cmd(
     method: Optional[Path] = typer.Option(None, "--method", "-m", help="Method file (TOML) for the rows "
                                           "whose 'method file' cell is blank; optional when every row names one."),
     out: Path = typer.Option(Path("gpctools-out"), "--out", "-o", help="Output folder."),
-    workers: int = typer.Option(0, "--workers", "-j", min=0, help="Processes to use (0 = choose from batch size and cores)."),
+    workers: int = typer.Option(0, "--workers", "-j", min=0, help="Processes to use (0 = one per core for 16 or more injections)."),
     sheet_name: Optional[str] = typer.Option(None, "--sheet", help="Workbook sheet of the batch sheet."),
+    injection_tables: bool = typer.Option(False, "--injection-tables", help="Also write distributions/<sample>_row<n>.csv, "
+                                          "the slice-by-slice distribution table of every injection (distributions.csv, "
+                                          "one long-form table binned in log M, is always written)."),
 ) -> None:
     """Process every injection of a batch sheet and write the results table.
 
@@ -287,7 +294,7 @@ def batch_cmd(
 
     _check_out(out)
     m = load_method(method) if method is not None else None
-    result = _run_batch_with_progress(sheet, m, out, workers or None, sheet_name)
+    result = _run_batch_with_progress(sheet, m, out, workers or None, sheet_name, injection_tables)
     rows = result.table.to_dict("records")
     _print_table(rows, SUMMARY_COLUMNS)
     if len(result.methods) > 1:
@@ -296,7 +303,8 @@ def batch_cmd(
             typer.echo(f"method {label}: molar-mass scale {used.calibration.scale_label()}")
     else:
         typer.echo(f"\nmolar-mass scale: {result.method.calibration.scale_label()}")
-    typer.echo(f"wrote {out}/results.csv, results.xlsx, calibration.csv, manifest.json, distributions/")
+    typer.echo(f"wrote {out}/results.csv, results.xlsx, calibration.csv, manifest.json, distributions.csv"
+               + (", distributions/" if injection_tables else ""))
     if result.failed:
         for r in rows:
             if r["status"] == "error":

@@ -53,6 +53,9 @@ __all__ = [
     "averages_with_reasons",
     "moment_sums",
     "compute_distribution",
+    "CURVE_COLUMNS",
+    "DistributionCurve",
+    "distribution_curve",
     "mass_fraction_below",
     "peak_position",
     "peak_top",
@@ -70,6 +73,20 @@ TABLE_COLUMNS = (
     "dw/dlogM [-]",
     "cumulative mass fraction [-]",
 )
+
+
+#: Columns of a :class:`DistributionCurve` in the long-form distributions table.
+CURVE_COLUMNS = (
+    "log10 M [-]",
+    "M [g/mol]",
+    "dw/dlogM [-]",
+    "cumulative mass fraction [-]",
+)
+
+#: Bin width of :func:`distribution_curve` in log10 M [-]: 100 bins per decade, a
+#: tenth of the usual slice spacing of a 6,000-slice export (common practice for
+#: overlays of dw/dlogM curves).
+CURVE_STEP = 0.01
 
 
 def slice_widths(volume: Any) -> np.ndarray:
@@ -537,6 +554,69 @@ class Distribution:
 
         columns = (self.volume, self.M, np.log10(self.M), self.w, self.dwdlogM, self.cumulative)
         return pd.DataFrame(dict(zip(TABLE_COLUMNS, columns)))
+
+
+@dataclass(frozen=True)
+class DistributionCurve:
+    """A distribution on a regular log10 M grid: the compact form of one injection.
+
+    Attributes
+    ----------
+    log10_M : ndarray
+        Centres of the occupied bins, increasing [-].
+    dwdlogM : ndarray
+        Mean dw/dlog10 M of the slices in each bin [-].
+    cumulative : ndarray
+        Cumulative mass fraction at the bin centre [-] (interpolated linearly in log10 M
+        between slices; same convention as :attr:`Distribution.cumulative`).
+    step : float
+        Bin width in log10 M [-].
+    """
+
+    log10_M: np.ndarray
+    dwdlogM: np.ndarray
+    cumulative: np.ndarray
+    step: float
+
+    def columns(self) -> tuple[np.ndarray, ...]:
+        """The arrays in the order of :data:`CURVE_COLUMNS`."""
+        return (self.log10_M, 10.0 ** self.log10_M, self.dwdlogM, self.cumulative)
+
+
+def distribution_curve(dist: Distribution, step: float = CURVE_STEP) -> DistributionCurve:
+    """Bin a distribution on a regular log10 M grid (the long-form distributions table).
+
+    Each bin [k·step, (k+1)·step) of log10 M holds the mean of the slices' dw/dlog10 M
+    that fall in it; bins without a slice (excluded regions, gaps) are left out, so no
+    value is invented between slices. The averages are never computed from this curve:
+    they come from the slices (:func:`compute_distribution`).
+
+    Parameters
+    ----------
+    dist : Distribution
+    step : float
+        Bin width in log10 M [-] (default :data:`CURVE_STEP`).
+
+    Returns
+    -------
+    DistributionCurve
+    """
+    if not step > 0:
+        raise DataError(f"the bin width of a distribution curve must be positive, got {step!r}")
+    x = np.log10(np.asarray(dist.M, dtype=float))
+    if x.size == 0:
+        empty = np.empty(0)
+        return DistributionCurve(empty, empty, empty, float(step))
+    k = np.floor(x / step).astype(np.int64)
+    k0 = int(k.min())
+    idx = k - k0
+    counts = np.bincount(idx)
+    sums = np.bincount(idx, weights=np.asarray(dist.dwdlogM, dtype=float))
+    occupied = np.flatnonzero(counts)
+    centre = (occupied + k0 + 0.5) * step
+    order = np.argsort(x, kind="stable")
+    cumulative = np.interp(centre, x[order], np.asarray(dist.cumulative, dtype=float)[order])
+    return DistributionCurve(centre, sums[occupied] / counts[occupied], cumulative, float(step))
 
 
 def compute_distribution(

@@ -10,6 +10,7 @@ import subprocess
 import sys
 from pathlib import Path
 
+import pandas as pd
 import pytest
 from typer.testing import CliRunner
 
@@ -46,7 +47,14 @@ def test_batch_success(demo_dir, tmp_path):
     assert r.exit_code == 0, r.output
     assert "LC110-A" in r.output and "Mn [g/mol]" in r.output
     assert (tmp_path / "o" / "results.csv").exists()
-    assert len(list((tmp_path / "o" / "distributions").glob("*.csv"))) == 8
+    # default: one long-form distributions table, no per-injection tables (issue 14)
+    assert not (tmp_path / "o" / "distributions").exists()
+    curves = pd.read_csv(tmp_path / "o" / "distributions.csv")
+    assert len(curves.groupby(["sample_id", "sheet row [-]"])) == 8
+    r = runner.invoke(app, ["batch", str(demo_dir / "batch.csv"), "-m", str(demo_dir / "method.toml"),
+                            "-o", str(tmp_path / "t"), "--injection-tables"])
+    assert r.exit_code == 0, r.output
+    assert len(list((tmp_path / "t" / "distributions").glob("*.csv"))) == 8
 
 
 def test_batch_with_failed_injection_exits_1(demo_dir, tmp_path):

@@ -8,9 +8,13 @@ is written atomically (:mod:`gpctools.report.files`).
 
 Public API
 ----------
-write_batch(result, outdir, *, distributions=True) -> dict of paths
+write_batch(result, outdir, *, distributions=True, curves=True) -> dict of paths
     ``results.csv``, ``results.xlsx``, ``calibration.csv``, ``manifest.json``,
-    ``distributions/*.csv`` of a :class:`gpctools.batch.BatchResult`.
+    ``distributions.csv`` (long form) and ``distributions/*.csv`` of a
+    :class:`gpctools.batch.BatchResult`.
+DistributionsTable(path)
+    ``on_curve`` sink for :func:`gpctools.batch.run_batch`: the long-form
+    ``distributions.csv`` written while the batch runs (a context manager).
 DistributionWriter(folder)
     ``on_result`` sink for :func:`gpctools.batch.run_batch`: writes each distribution
     table while the batch runs.
@@ -36,7 +40,7 @@ inside the functions that draw or write.
 from __future__ import annotations
 
 from gpctools.report.audit import AuditTrail, InputFile, build_audit, sha256_file
-from gpctools.report.batch import DistributionWriter, write_batch
+from gpctools.report.batch import DistributionsTable, DistributionWriter, write_batch
 from gpctools.report.diagnosis import write_diagnosis
 from gpctools.report.qc_report import EXIT_FINDINGS, EXIT_OK, QCReport, run_qc
 from gpctools.report.transfer import write_transfer, write_transfer_plots
@@ -45,6 +49,7 @@ from gpctools.report.xlsx import FORMULA_START, inert_cell, write_workbook
 __all__ = [
     "write_batch",
     "DistributionWriter",
+    "DistributionsTable",
     "write_transfer",
     "write_transfer_plots",
     "write_diagnosis",
