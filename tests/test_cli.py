@@ -453,3 +453,34 @@ def test_inspect_still_describes_a_file_the_reader_refuses(tmp_path):
     assert "import.decimal" in r.output
     assert "error: " in r.output and "export.csv" in r.output
     _ok_no_traceback(r)
+
+
+# Modules that only plotting, fitting or HTML need (issue 14): a command that does not
+# plot must not pay for them at start-up.
+_HEAVY = ("matplotlib", "scipy.optimize", "lmfit", "jinja2")
+_MODULES_AFTER = """
+import sys
+from gpctools.cli import main
+sys.argv = ["gpctools", *sys.argv[1:]]
+try:
+    main()
+except SystemExit:
+    pass
+print("LOADED:" + ",".join(m for m in {heavy!r} if m in sys.modules), file=sys.stderr)
+"""
+
+
+@pytest.mark.parametrize("args", [
+    ["--help"],
+    ["batch", "{d}/batch.csv", "-m", "{d}/method.toml", "-o", "{o}"],
+    ["calibrate", "{d}/method.toml"],
+    ["inspect", "{d}/exports/LC110-A1.csv"],
+], ids=["help", "batch", "calibrate", "inspect"])
+def test_commands_that_do_not_plot_never_import_matplotlib(args, demo_dir, tmp_path):
+    # behavioural, not timed: the modules loaded by a real process, read from sys.modules
+    argv = [a.format(d=demo_dir, o=tmp_path / "o") for a in args]
+    proc = subprocess.run([sys.executable, "-c", _MODULES_AFTER.format(heavy=_HEAVY), *argv],
+                          capture_output=True, text=True, timeout=300)
+    line = [ln for ln in proc.stderr.splitlines() if ln.startswith("LOADED:")]
+    assert line, proc.stderr
+    assert line[-1] == "LOADED:", f"{' '.join(args)} imported {line[-1][7:]}"
