@@ -80,7 +80,7 @@ from .errors import (
 )
 from .method import FlowMarkerOptions, Method, MethodOverrides
 from .sheets import batch as _sheet
-from .signal import CorrectedSignal, Peaks, correct_signal, find_peaks, fit_baseline, noise_level
+from .signal import CorrectedSignal, Peaks, _median, correct_signal, find_peaks, fit_baseline, noise_level
 from .uncertainty import UNCERTAIN_AVERAGES, AverageUncertainty, average_uncertainty
 
 __all__ = [
@@ -437,7 +437,7 @@ def _marker_candidate(volume: np.ndarray, signal: np.ndarray, window: tuple[floa
     j0 = lo + int(np.argmax(narrow[lo: i0 + reach + 1]))
     fwhm, inside = _half_height_run(V, narrow, j0)
     top = peak_top(V, dev, fraction=0.5)
-    spacing = float(np.median(np.diff(V))) if V.size > 1 else 0.0
+    spacing = _median(np.diff(V)) if V.size > 1 else 0.0
     return _MarkerCandidate(float(sm[i0]), fwhm, inside, float(top.position), float(top.stderr),
                             bool(top.fitted and window[0] < top.position < window[1]), spacing)
 

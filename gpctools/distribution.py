@@ -42,7 +42,7 @@ import numpy as np
 
 from .calibration import Calibration
 from .errors import DataError, RangeWarning, SignalWarning
-from .signal import _as_trace
+from .signal import _as_trace, _median
 
 __all__ = [
     "Distribution",
@@ -270,7 +270,7 @@ def _noise_sd(y: np.ndarray) -> float:
     if y.size < 5:
         return 0.0
     d2 = np.diff(y, 2)
-    return 1.4826 * float(np.median(np.abs(d2 - np.median(d2)))) / math.sqrt(6.0)
+    return 1.4826 * _median(np.abs(d2 - _median(d2))) / math.sqrt(6.0)
 
 
 def _top_run(sm: np.ndarray, i0: int, threshold: float, min_points: int) -> tuple[int, int]:
