@@ -18,6 +18,9 @@ imports count on both sides):
 * the two are run interleaved (batch, floor, batch, floor, ...) and the best of
   ``--repeat`` (3) of each is kept: the machine may be shared, and the minimum is the
   least disturbed figure. The ratio is batch / floor at each N.
+* **CPU time**: user + system time of the batch and all its workers, and of the floor
+  (``getrusage(RUSAGE_CHILDREN)`` of a wrapper process), best of the runs: less
+  disturbed by other load on a shared machine than wall time;
 * **peak memory**: the largest sum of the resident set sizes of the batch process and
   all its worker processes, sampled every 20 ms from /proc (Linux), and the largest
   single process (``getrusage(RUSAGE_CHILDREN).ru_maxrss`` of a wrapper process);
@@ -58,11 +61,14 @@ for line in lines:
     pd.read_csv(sheet.parent / line.split(",")[1], skiprows=2)
 """
 
-# Runs a command and prints the peak RSS of its largest (waited-for) process [KiB].
+# Runs a command and prints the peak RSS of its largest (waited-for) process [KiB], the
+# CPU time (user + system) of the command and all its waited-for descendants [s], and
+# the exit code.
 _WRAP = """
 import resource, subprocess, sys
 rc = subprocess.run(sys.argv[1:], stdout=subprocess.DEVNULL).returncode
-print(resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss, rc)
+u = resource.getrusage(resource.RUSAGE_CHILDREN)
+print(u.ru_maxrss, u.ru_utime + u.ru_stime, rc)
 """
 
 
@@ -144,11 +150,12 @@ def run_measured(cmd: list[str], cwd: Path | None = None) -> dict[str, float]:
     wall = time.perf_counter() - t0
     done.set()
     th.join()
-    maxrss, rc = out.split()
+    maxrss, cpu, rc = out.split()
     if int(rc) not in (0, 1):  # 1: some injections failed (reported, not a crash)
         raise SystemExit(f"command failed ({rc}): {' '.join(cmd)}")
     # the wrapper (a bare interpreter) is part of the sampled tree: take it out
-    return {"wall": wall, "tree_mb": max(0, peak[0] - _BARE_KIB) / 1024.0, "largest_mb": int(maxrss) / 1024.0}
+    return {"wall": wall, "cpu": float(cpu), "tree_mb": max(0, peak[0] - _BARE_KIB) / 1024.0,
+            "largest_mb": int(maxrss) / 1024.0}
 
 
 _BARE_KIB = 0
@@ -189,6 +196,11 @@ def bench_batch(src: Path, root: Path, ns: list[int], repeat: int) -> list[dict]
             "pandas floor [s]": round(f, 2),
             "ratio [-]": round(b / f, 2),
             "injections/s": round(n / b, 1),
+            # CPU time (all processes) is less disturbed by other load than wall time
+            "batch CPU [s]": round(min(r["cpu"] for r in batch_runs), 2),
+            "floor CPU [s]": round(min(r["cpu"] for r in floor_runs), 2),
+            "CPU ratio [-]": round(min(r["cpu"] for r in batch_runs) / min(r["cpu"] for r in floor_runs), 2),
+            "CPU per injection [ms]": round(1e3 * min(r["cpu"] for r in batch_runs) / n, 2),
             "peak RSS main+workers [MB]": round(max(r["tree_mb"] for r in batch_runs), 1),
             "peak RSS largest process [MB]": round(max(r["largest_mb"] for r in batch_runs), 1),
             "floor peak RSS [MB]": round(max(r["tree_mb"] for r in floor_runs), 1),

@@ -80,7 +80,15 @@ from .errors import (
 )
 from .method import FlowMarkerOptions, Method, MethodOverrides
 from .sheets import batch as _sheet
-from .signal import CorrectedSignal, Peaks, _median, correct_signal, find_peaks, fit_baseline, noise_level
+from .signal import (
+    CorrectedSignal,
+    Peaks,
+    _median,
+    correct_signal,
+    find_peaks,
+    fit_baseline,
+    noise_level,
+)
 from .uncertainty import UNCERTAIN_AVERAGES, AverageUncertainty, average_uncertainty
 
 __all__ = [
