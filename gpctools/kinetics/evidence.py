@@ -204,9 +204,9 @@ def read_distributions(path: str | Path, sample_id: str | None = None) -> list[M
     """The distributions of one sample in a table: one per injection.
 
     A per-injection table (``distributions/<sample>_row<n>.csv``) gives one. The
-    long-form table of a batch (``distributions.csv``: ``sample_id``, ``sheet row [-]``,
-    ``M [g/mol]``, ``dw/dlogM [-]``, ...) gives one per sheet row of ``sample_id`` (the
-    only sample when None).
+    long-form table of a batch (``distributions.csv``: ``sample_id``, ``file``, ``sheet
+    row [-]``, ``M [g/mol]``, ``dw/dlogM [-]``, ...) gives one per injection (file and
+    sheet row) of ``sample_id`` (the only sample when None).
 
     Raises
     ------
@@ -232,10 +232,11 @@ def read_distributions(path: str | Path, sample_id: str | None = None) -> list[M
     if rows.empty:
         raise InputFormatError(f"the distributions table has no rows of sample {sample_id!r}",
                                path=path, column="sample_id")
-    rcol = cols.get("sheet row [-]")
-    if rcol is None:
+    keys = [cols[k] for k in ("file", "sheet row [-]") if k in cols]
+    if not keys:
         return [_measured(rows, path)]
-    return [_measured(part, f"{path} (sheet row {key})") for key, part in rows.groupby(rcol, sort=True)]
+    return [_measured(part, f"{path} ({', '.join(map(str, key))})")
+            for key, part in rows.groupby(keys, sort=False)]
 
 
 def average_distributions(parts: list[MeasuredDistribution]) -> MeasuredDistribution:

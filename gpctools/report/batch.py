@@ -8,7 +8,7 @@ Files written by :func:`write_batch` into the output folder (each atomically):
     the standards with their fitted molar mass and residual.
 ``distributions.csv``
     every processed injection's distribution in one long-form table: ``sample_id``,
-    ``sheet row [-]`` and :data:`gpctools.distribution.CURVE_COLUMNS` (log10 M, M,
+    ``file``, ``sheet row [-]`` and :data:`gpctools.distribution.CURVE_COLUMNS` (log10 M, M,
     dw/dlogM, cumulative mass fraction), binned on a log10 M grid of 0.01
     (:func:`gpctools.distribution.distribution_curve`); written by
     :class:`DistributionsTable` while the batch runs (the CLI default).
@@ -51,8 +51,9 @@ __all__ = ["write_batch", "write_distribution", "distribution_name", "Distributi
 DISTRIBUTIONS = "distributions"
 #: The long-form distributions table of a batch (one row per injection and log M bin).
 DISTRIBUTIONS_TABLE = "distributions.csv"
-#: Its columns: the injection (sample id, batch-sheet row), then the binned curve.
-CURVES_HEADER = ("sample_id", "sheet row [-]", *CURVE_COLUMNS)
+#: Its columns: the injection (sample id, export file as written in the batch sheet,
+#: batch-sheet row), then the binned curve.
+CURVES_HEADER = ("sample_id", "file", "sheet row [-]", *CURVE_COLUMNS)
 
 
 def distribution_name(entry: BatchEntry) -> str:
@@ -123,15 +124,22 @@ class DistributionWriter:
         write_distribution(Path(self.folder) / distribution_name(entry), result.distribution)
 
 
+def _csv_text(value: object) -> str:
+    """A CSV field (quoted when it holds a separator, quote or line break), ``%`` doubled
+    for the %-format it goes into."""
+    text = str(value)
+    if any(ch in text for ch in ',"\r\n') or text != text.strip():
+        text = '"' + text.replace('"', '""') + '"'
+    return text.replace("%", "%%")
+
+
 def _curve_lines(entry: BatchEntry, curve: DistributionCurve) -> str:
     """Rows of one injection in the long-form table (6 significant digits, CSV-quoted id)."""
     cols = np.column_stack(curve.columns())
     if cols.shape[0] == 0:
         return ""
-    sid = str(entry.sample_id)
-    if any(ch in sid for ch in ',"\r\n') or sid != sid.strip():
-        sid = '"' + sid.replace('"', '""') + '"'
-    line = f"{sid.replace('%', '%%')},{int(entry.row)}," + ",".join(["%.6g"] * cols.shape[1]) + "\n"
+    sid, file = _csv_text(entry.sample_id), _csv_text(entry.file)
+    line = f"{sid},{file},{int(entry.row)}," + ",".join(["%.6g"] * cols.shape[1]) + "\n"
     return (line * cols.shape[0]) % tuple(cols.ravel().tolist())
 
 
@@ -145,7 +153,8 @@ class DistributionsTable:
 
     Columns are :data:`CURVES_HEADER`. Tables of several runs (one per folder or
     machine) concatenate cleanly: same header, one row per injection and bin, the
-    sample id and sheet row on every row.
+    sample id, export file and sheet row on every row (the file, as in ``results.csv``,
+    tells injections of different sheets apart).
 
     Examples
     --------

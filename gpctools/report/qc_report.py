@@ -249,7 +249,7 @@ def _long_form_curves(path: Path) -> list[tuple[str, str, np.ndarray, np.ndarray
     try:
         d = pd.read_csv(path)
         curves = []
-        for (sid, row), part in d.groupby(["sample_id", "sheet row [-]"], sort=False):
+        for (sid, _, row), part in d.groupby(["sample_id", "file", "sheet row [-]"], sort=False):
             curves.append(("all injections", f"{sid}_row{int(row)}", part["M [g/mol]"].to_numpy(float),
                            part["dw/dlogM [-]"].to_numpy(float)))
         return curves
