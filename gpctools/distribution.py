@@ -314,6 +314,22 @@ def _real_roots(c: np.ndarray) -> np.ndarray:
     return r[np.abs(r.imag) <= 1e-9 * np.maximum(1.0, np.abs(r.real))].real
 
 
+def _derivative(c: np.ndarray) -> np.ndarray:
+    """Coefficients (lowest first) of the derivative of a polynomial of two or more
+    coefficients: the same products j·c_j as ``numpy.polynomial.polynomial.polyder``,
+    without its generic axis handling (issue 14)."""
+    return np.arange(1, c.size) * c[1:]
+
+
+def _horner(c: np.ndarray, x: Any) -> Any:
+    """The polynomial with coefficients ``c`` (lowest first) at ``x`` by Horner's rule: the
+    same operations, in the same order, as ``numpy.polynomial.polynomial.polyval``."""
+    c0 = c[-1] + x * 0
+    for i in range(2, c.size + 1):
+        c0 = c[-i] + c0 * x
+    return c0
+
+
 def _fit_log_poly(x: np.ndarray, y: np.ndarray, x0: float, degree: int) -> tuple[float, float, float] | None:
     """Maximum of a weighted polynomial fit to ln y: (position, height, stderr) or None.
 
@@ -337,15 +353,15 @@ def _fit_log_poly(x: np.ndarray, y: np.ndarray, x0: float, degree: int) -> tuple
         coef = np.linalg.solve(A, X.T @ (W * np.log(y)))
     except np.linalg.LinAlgError:
         return None
-    d1 = np.polynomial.polynomial.polyder(coef)
-    d2 = np.polynomial.polynomial.polyder(coef, 2)
+    d1 = _derivative(coef)
+    d2 = _derivative(d1)
     roots = _real_roots(d1)
     roots = roots[(roots >= t.min()) & (roots <= t.max())]
-    roots = roots[np.polynomial.polynomial.polyval(roots, d2) < 0]
+    roots = roots[_horner(d2, roots) < 0]
     if roots.size == 0:
         return None
-    r = float(roots[np.argmax(np.polynomial.polynomial.polyval(roots, coef))])
-    height = float(np.exp(np.polynomial.polynomial.polyval(r, coef)))
+    r = float(roots[np.argmax(_horner(coef, roots))])
+    height = float(np.exp(_horner(coef, r)))
     stderr = math.nan
     dof = x.size - p
     if dof > 0:
@@ -358,7 +374,7 @@ def _fit_log_poly(x: np.ndarray, y: np.ndarray, x0: float, degree: int) -> tuple
         if cov is not None:
             k = np.arange(p)
             g = np.zeros(p)
-            g[1:] = -k[1:] * r ** (k[1:] - 1) / float(np.polynomial.polynomial.polyval(r, d2))
+            g[1:] = -k[1:] * r ** (k[1:] - 1) / float(_horner(d2, r))
             stderr = sc * math.sqrt(max(float(g @ cov @ g), 0.0))
     return x0 + r * sc, height, stderr
 

@@ -62,6 +62,7 @@ from gpctools.io._text import (
     is_datalike,
     is_number_any_mark,
     locate_block,
+    longest_line_bytes,
     number_pattern,
     parse_metadata_line,
     split_cells,
@@ -715,7 +716,9 @@ def _read_text(
 ) -> Chromatogram:
     """Read a decoded text export (steps in the module docstring)."""
     err: dict[str, Any] = {"path": path}
-    _refuse_long_lines(text, err)
+    longest = longest_line_bytes(text)  # bytes >= characters: within a limit, nothing exceeds it
+    if longest > MAX_LINE_CHARS:
+        _refuse_long_lines(text, err)
     parts = text.split("\n", SCAN_LINES)
     head = parts[:SCAN_LINES]
     layout = locate_block(head, text, sep=sep, decimal=dec)
@@ -736,7 +739,8 @@ def _read_text(
     _note_footer(text, end, notes)
     table_start = layout.header if layout.header is not None else layout.start
     table_offset = sum(len(ln) + 1 for ln in head[:table_start])
-    _refuse_long_cells(text, table_offset, end, table_start + 1, d, err)
+    if longest > MAX_CELL_CHARS:
+        _refuse_long_cells(text, table_offset, end, table_start + 1, d, err)
     block = text[offset:end]
     first_line = layout.start + 1
     x, y, lines_arr = _parse_block(block, first_line, d, xi, yi, layout.names,
