@@ -137,11 +137,24 @@ def png_bytes(fig: Any) -> bytes:
     bytes
         PNG image at :data:`DPI`.
     """
+    import matplotlib.image
     from matplotlib.backends.backend_agg import FigureCanvasAgg
 
-    FigureCanvasAgg(fig)
-    buf = io.BytesIO()
-    fig.savefig(buf, format="png", dpi=DPI, metadata={"Software": None})
+    # What savefig does for a PNG at the figure's own DPI (draw, then write the RGBA
+    # buffer), less its extra pass: with a layout engine, savefig first draws the whole
+    # figure with drawing disabled to place the Axes and then draws it again. A plain
+    # draw runs the layout engine itself, once, so the bytes are the same for about
+    # 20 % less time (issue 14).
+    canvas = FigureCanvasAgg(fig)
+    dpi = fig.dpi
+    fig.dpi = DPI
+    try:
+        canvas.draw()
+        buf = io.BytesIO()
+        matplotlib.image.imsave(buf, canvas.buffer_rgba(), format="png", origin="upper", dpi=DPI,
+                                metadata={"Software": None})
+    finally:
+        fig.dpi = dpi
     return buf.getvalue()
 
 
