@@ -26,7 +26,9 @@ imports count on both sides):
   single process (``getrusage(RUSAGE_CHILDREN).ru_maxrss`` of a wrapper process);
 * **start-up**: ``gpctools --help`` against ``python -c "import typer"``, best of 5;
 * **series**: ``python bench/bench_transfer.py timing`` (100-run series, best of three);
-* **demo**: ``gpctools demo`` in an empty folder, best of ``--demo-repeat`` (3).
+* **demo**: ``gpctools demo`` in an empty folder, best of ``--demo-repeat`` (3), and the
+  time of each of its figures (``png_bytes``, timed in whichever process draws it;
+  ``--figures`` alone).
 
 Each synthetic export has 6,000 slices (comma CSV with two metadata lines, as
 instruments write them), simulated by gpctools.simulate, written once to ``--folder``.
@@ -248,6 +250,40 @@ def bench_demo(repeat: int) -> dict:
     return row
 
 
+# Runs the demo with png_bytes timed: every call appends its seconds to a file (the demo
+# draws in two processes, so the times go through the file system).
+_FIGURES = """
+import sys, time
+import gpctools.report.plots as P
+log = sys.argv[1]
+inner = P.png_bytes
+def timed(fig):
+    t0 = time.perf_counter()
+    out = inner(fig)
+    with open(log, "a") as fh:
+        fh.write(f"{time.perf_counter() - t0}\\n")
+    return out
+P.png_bytes = timed
+from gpctools.demo import run_demo
+run_demo(None, "out", echo=lambda line: None)
+"""
+
+
+def bench_figures() -> dict:
+    """Seconds per figure of the demo (PNG rendering, each figure timed where it is drawn)."""
+    d = Path(tempfile.mkdtemp(prefix="gpcbench-fig-"))
+    log = d / "times.txt"
+    subprocess.run([sys.executable, "-c", _FIGURES, str(log)], cwd=d, stdout=subprocess.DEVNULL,
+                   stderr=subprocess.DEVNULL, check=True)
+    t = np.sort(np.array([float(x) for x in log.read_text().split()]))
+    row = {"figures": int(t.size), "per figure median [s]": round(float(np.median(t)), 3),
+           "per figure 90th percentile [s]": round(float(np.quantile(t, 0.9)), 3),
+           "per figure max [s]": round(float(t[-1]), 3), "all figures [s]": round(float(t.sum()), 2)}
+    print(json.dumps(row), flush=True)
+    shutil.rmtree(d, ignore_errors=True)
+    return row
+
+
 def bench_xlsx(table_csv: Path, repeat: int = 3) -> None:
     """Write a results table to XLSX with openpyxl (write-only) and with write_workbook."""
     import pandas as pd
@@ -290,8 +326,12 @@ def main() -> None:
     ap.add_argument("--skip-demo", action="store_true")
     ap.add_argument("--skip-series", action="store_true")
     ap.add_argument("--xlsx", action="store_true", help="only compare the XLSX writers on a 1,000-row table")
+    ap.add_argument("--figures", action="store_true", help="only time the demo's figures")
     args = ap.parse_args()
 
+    if args.figures:
+        bench_figures()
+        return
     src = args.folder / "all"
     make_files(src, max(args.n))
     if args.xlsx:
@@ -309,6 +349,7 @@ def main() -> None:
         bench_series()
     if not args.skip_demo:
         bench_demo(args.demo_repeat)
+        bench_figures()
 
 
 if __name__ == "__main__":
