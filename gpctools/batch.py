@@ -62,10 +62,13 @@ from gpctools.display import Display
 
 from . import columns as C
 from .distribution import (
+    CURVE_STEP,
     Distribution,
+    DistributionCurve,
     PeakPart,
     averages_with_reasons,
     compute_distribution,
+    distribution_curve,
     mass_fraction_below,
     peak_top,
     split_distribution,
@@ -81,7 +84,15 @@ from .errors import (
 )
 from .method import FlowMarkerOptions, Method, MethodOverrides
 from .sheets import batch as _sheet
-from .signal import CorrectedSignal, Peaks, correct_signal, find_peaks, fit_baseline, noise_level
+from .signal import (
+    CorrectedSignal,
+    Peaks,
+    _median,
+    correct_signal,
+    find_peaks,
+    fit_baseline,
+    noise_level,
+)
 from .uncertainty import UNCERTAIN_AVERAGES, AverageUncertainty, average_uncertainty
 
 __all__ = [
@@ -97,6 +108,7 @@ __all__ = [
     "iter_batch",
     "load_batch_methods",
     "ResultSink",
+    "CurveSink",
     "RESULT_COLUMNS",
 ]
 
@@ -174,6 +186,7 @@ class MarkerSearch(Display):
     reason: str = ""
 
     def summary(self) -> dict[str, Any]:
+        """Plain JSON-safe dict of the result, units in the keys (NaN and inf as None)."""
         from .sheets.cells import finite_or_none
 
         return {
@@ -426,7 +439,8 @@ def _half_height_run(V: np.ndarray, sm: np.ndarray, i0: int) -> tuple[float, boo
 @dataclass(frozen=True)
 class _MarkerCandidate:
     """The largest excursion in the search window: its smoothed height [signal units],
-    width at half height [mL], whether it lies wholly inside the window, and the top fit."""
+    width at half height [mL], whether it lies wholly inside the window, and the top fit.
+    """
 
     height: float
     fwhm: float
@@ -464,7 +478,7 @@ def _marker_candidate(volume: np.ndarray, signal: np.ndarray, window: tuple[floa
     j0 = lo + int(np.argmax(narrow[lo: i0 + reach + 1]))
     fwhm, inside = _half_height_run(V, narrow, j0)
     top = peak_top(V, dev, fraction=0.5)
-    spacing = float(np.median(np.diff(V))) if V.size > 1 else 0.0
+    spacing = _median(np.diff(V)) if V.size > 1 else 0.0
     return _MarkerCandidate(float(sm[i0]), fwhm, inside, float(top.position), float(top.stderr),
                             bool(top.fitted and window[0] < top.position < window[1]), spacing)
 
@@ -591,7 +605,8 @@ def _flow_correction(
 # -- one trace ------------------------------------------------------------------------------
 def _low_m_shift(dist: Distribution, cs: CorrectedSignal, shift: float) -> dict[str, float]:
     """Averages [g/mol] with the low-M limit moved ``shift`` mL earlier, over the slices
-    the averages used (exclusions and the outside rule applied alike)."""
+    the averages used (exclusions and the outside rule applied alike).
+    """
     keep = dist.volume <= cs.limits[1] - shift
     try:
         with warnings.catch_warnings():
@@ -606,7 +621,8 @@ def _peaks_and_parts(
     V: np.ndarray, cs: CorrectedSignal, dist: Distribution, method: Method
 ) -> tuple[Peaks, tuple[PeakPart, ...]]:
     """Peaks by the valley criterion, and the split the method asks for (warns on several
-    peaks reported as one)."""
+    peaks reported as one).
+    """
     opts = method.peaks
     peaks = find_peaks(V, cs.signal, mask=cs.mask, valley_depth=opts.valley_depth, min_height=opts.min_height)
     parts: tuple[PeakPart, ...] = ()
@@ -632,7 +648,8 @@ def _peaks_and_parts(
 
 def _mass_fractions(dist: Distribution, method: Method) -> tuple[MassFraction, ...]:
     """Mass below/above the method's cut-offs [%], with a note for a cut-off outside the
-    molar masses integrated (where the answer is 0 or 100 % by the limits alone)."""
+    molar masses integrated (where the answer is 0 or 100 % by the limits alone).
+    """
     out = []
     lo, hi = float(dist.M.min()), float(dist.M.max())
     for side, cuts in (("below", method.fractions.below), ("above", method.fractions.above)):
@@ -940,6 +957,10 @@ def _replicate_note(entries: list[BatchEntry], rows: Any, path: Path) -> str | N
 #: a module-level function or an instance of a module-level class).
 ResultSink = Callable[[BatchEntry, InjectionResult], None]
 
+#: Receives each processed injection's binned distribution, ``on_curve(entry, curve)``,
+#: in the process that runs the batch (see :func:`run_batch`).
+CurveSink = Callable[[BatchEntry, DistributionCurve], None]
+
 
 def _error_row(entry: BatchEntry, message: str, method: Method | None = None) -> dict[str, Any]:
     row = {C.SAMPLE_ID: entry.sample_id, C.FILE: entry.file, C.ROLE: entry.role, **entry.metadata}
@@ -962,7 +983,8 @@ NOT_PROCESSED = "not processed"
 def _not_processed_row(entry: BatchEntry, method: Method | None) -> dict[str, Any]:
     """The row of a blank or a calibration standard: no averages (a blank has no polymer
     peak, a standards mixture is not one polymer); ``gpctools qc`` judges blanks against
-    the product peaks and builds the sequence's calibration from the standards."""
+    the product peaks and builds the sequence's calibration from the standards.
+    """
     row = _error_row(entry, "", method)
     row[C.STATUS] = NOT_PROCESSED
     row[C.WARNINGS] = (f"{entry.role}: no averages; gpctools qc "
@@ -973,7 +995,8 @@ def _not_processed_row(entry: BatchEntry, method: Method | None) -> dict[str, An
 
 def _ordered(row: dict[str, Any], entry: BatchEntry) -> dict[str, Any]:
     """The sheet's own columns, then :data:`RESULT_COLUMNS` in order (the mass-fraction
-    columns of the row's method right after ``outside calibration``), then any others."""
+    columns of the row's method right after ``outside calibration``), then any others.
+    """
     fractions = [k for k in row if C.is_mass_fraction_column(k)]
     i = RESULT_COLUMNS.index(C.OUTSIDE_CALIBRATION) + 1
     front = [C.SAMPLE_ID, C.FILE, C.ROLE, *entry.metadata, *RESULT_COLUMNS[:i], *fractions, *RESULT_COLUMNS[i:]]
@@ -1008,29 +1031,34 @@ def _limit_columns(res: InjectionResult, method: Method) -> dict[str, float]:
 
 
 def _run_entry(
-    entry: BatchEntry, method: Method | None, on_result: ResultSink | None, keep: bool
-) -> tuple[dict[str, Any], InjectionResult | None]:
-    """Process one entry with its method; returns (row, result-or-None). Never raises for bad data.
+    entry: BatchEntry, method: Method | None, on_result: ResultSink | None, keep: bool,
+    curve_step: float | None = None,
+) -> tuple[dict[str, Any], InjectionResult | None, DistributionCurve | None]:
+    """Process one entry with its method; returns (row, result-or-None, curve-or-None).
+    Never raises for bad data.
 
     The row's overrides give a derived method (:meth:`~gpctools.method.Method.with_overrides`).
     ``on_result`` is called with each processed injection (not for failed rows); what it
-    raises (e.g. a full disk) stops the batch.
+    raises (e.g. a full disk) stops the batch. With ``curve_step`` the distribution is
+    also binned on a log10 M grid of that width (:func:`gpctools.distribution.distribution_curve`),
+    a few kB whatever the number of slices.
     """
     if entry.problem:
-        return _error_row(entry, entry.problem, method), None
+        return _error_row(entry, entry.problem, method), None, None
     if entry.role in (_sheet.ROLE_BLANK, _sheet.ROLE_CALIBRATION):
-        return _not_processed_row(entry, method), None
+        return _not_processed_row(entry, method), None, None
     if method is None:
         return _error_row(entry, "no method for this injection: fill its 'method file' cell or give "
-                                 "a method for the whole batch"), None
+                                 "a method for the whole batch"), None, None
     try:
         used = method.with_overrides(entry.overrides)
         res = process_injection(entry.path, used, sample_id=entry.sample_id, marker_observed=entry.marker_observed)
         limits = _limit_columns(res, used)
+        curve = distribution_curve(res.distribution, curve_step) if curve_step is not None else None
     except GpcError as exc:
-        return _error_row(entry, str(exc), method), None
+        return _error_row(entry, str(exc), method), None, None
     except Exception as exc:  # one bad injection must not sink the batch
-        return _error_row(entry, f"{entry.path}: unexpected {type(exc).__name__}: {exc}", method), None
+        return _error_row(entry, f"{entry.path}: unexpected {type(exc).__name__}: {exc}", method), None, None
     row = {C.SAMPLE_ID: entry.sample_id, C.FILE: entry.file, C.ROLE: entry.role, **entry.metadata}
     row.update(res.row())
     row.update(limits)
@@ -1038,16 +1066,15 @@ def _run_entry(
     row[C.FILE] = entry.file
     if on_result is not None:
         on_result(entry, res)
-    return _ordered(row, entry), (res if keep else None)
+    return _ordered(row, entry), (res if keep else None), curve
 
 
 def _worker(
-    args: tuple[BatchEntry, Method | None, ResultSink | None, bool],
-) -> tuple[dict[str, Any], InjectionResult | None]:
-    entry, method, on_result, keep = args
+    args: tuple[BatchEntry, Method | None, ResultSink | None, bool, float | None],
+) -> tuple[dict[str, Any], InjectionResult | None, DistributionCurve | None]:
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        return _run_entry(entry, method, on_result, keep)
+        return _run_entry(*args)
 
 
 @dataclass(repr=False)
@@ -1084,10 +1111,12 @@ class BatchResult(Display):
 
     @property
     def calibration(self):
+        """The calibration of the batch's method."""
         return self.method.calibration
 
     @property
     def failed(self) -> int:
+        """Number of injections whose status is error."""
         return int((self.table[C.STATUS] == "error").sum())
 
     def distributions(self) -> Any:
@@ -1129,6 +1158,7 @@ class BatchResult(Display):
         return pd.concat(parts, ignore_index=True)
 
     def summary(self) -> dict[str, Any]:
+        """Plain JSON-safe dict of the result, units in the keys (NaN and inf as None)."""
         return {
             "sheet": self.sheet,
             "injections": len(self.entries),
@@ -1170,19 +1200,39 @@ def iter_batch(
     applied to that method.
 
     ``workers=None`` chooses: one process for fewer than 16 injections (starting worker
-    processes costs about a second), otherwise one per core, at most 4. ``on_result`` is
+    processes costs about a second), otherwise one per core. ``on_result`` is
     called as ``on_result(entry, result)`` for every processed injection, in the process
     that computed it (see :data:`ResultSink`); ``keep=False`` then yields ``None`` results
     so that nothing but the rows reaches this process.
+    """
+    for row, res, _ in _iter_entries(entries, method, methods=methods, workers=workers,
+                                     on_result=on_result, keep=keep):
+        yield row, res
+
+
+def _iter_entries(
+    entries: Iterable[BatchEntry],
+    method: Method | None,
+    *,
+    methods: Mapping[str, Method] | None = None,
+    workers: int | None = 1,
+    on_result: ResultSink | None = None,
+    keep: bool = True,
+    curve_step: float | None = None,
+) -> Iterator[tuple[dict[str, Any], InjectionResult | None, DistributionCurve | None]]:
+    """:func:`iter_batch` with the binned curve of each injection (``curve_step``) as a third item.
+
+    Results stream: ``pool.map`` yields each chunk in order as it is done and nothing is
+    kept here beyond what the caller keeps.
     """
     import os
 
     entries = list(entries)
     if methods is None and any(e.method_path is not None for e in entries):
         entries, methods = load_batch_methods(entries, method, "the batch sheet")
-    jobs = [(e, _method_of(e, method, methods), on_result, keep) for e in entries]
+    jobs = [(e, _method_of(e, method, methods), on_result, keep, curve_step) for e in entries]
     if workers is None:
-        workers = min(os.cpu_count() or 1, 4) if len(entries) >= 16 else 1
+        workers = (os.cpu_count() or 1) if len(entries) >= 16 else 1
     if workers <= 1 or len(entries) < 4:
         for job in jobs:
             yield _run_entry(*job)
@@ -1190,7 +1240,8 @@ def iter_batch(
     from concurrent.futures import ProcessPoolExecutor
 
     with ProcessPoolExecutor(max_workers=workers) as pool:
-        chunk = max(1, min(32, len(entries) // (workers * 4) or 1))
+        # small chunks: the last ones finish close together, so no core idles at the end
+        chunk = max(1, min(8, len(entries) // (workers * 4) or 1))
         yield from pool.map(_worker, jobs, chunksize=chunk)
 
 
@@ -1264,6 +1315,8 @@ def run_batch(
     keep_distributions: bool = True,
     progress: Callable[[int, int], None] | None = None,
     on_result: ResultSink | None = None,
+    on_curve: CurveSink | None = None,
+    curve_step: float = CURVE_STEP,
 ) -> BatchResult:
     """Process every injection of a batch sheet.
 
@@ -1289,6 +1342,13 @@ def run_batch(
         that computed it (see :data:`ResultSink`). Pass
         ``gpctools.report.DistributionWriter(folder)`` to write each distribution table
         while the batch runs; with ``keep_distributions=False`` memory then stays flat.
+    on_curve : callable, optional
+        Called as ``on_curve(entry, curve)`` in this process, in sheet order, with each
+        processed injection's distribution binned on a log10 M grid of width
+        ``curve_step`` (:class:`gpctools.distribution.DistributionCurve`, a few kB);
+        ``gpctools.report.DistributionsTable`` writes them as one long-form table.
+    curve_step : float
+        Bin width of those curves in log10 M [-].
 
     Returns
     -------
@@ -1320,10 +1380,14 @@ def run_batch(
                                path=str(sheet_path))
     rows, results = [], []
     total = len(entries)
-    for i, (row, res) in enumerate(iter_batch(entries, method, methods=loaded, workers=workers,
-                                              on_result=on_result, keep=keep_distributions), start=1):
+    step = curve_step if on_curve is not None else None
+    for i, (row, res, curve) in enumerate(_iter_entries(entries, method, methods=loaded, workers=workers,
+                                                        on_result=on_result, keep=keep_distributions,
+                                                        curve_step=step), start=1):
         rows.append(row)
         results.append(res)
+        if on_curve is not None and curve is not None:
+            on_curve(entries[i - 1], curve)
         if progress is not None:
             progress(i, total)
     meta_cols = list(entries[0].metadata) if entries else []

@@ -231,7 +231,8 @@ def _stage(label: str) -> Iterator[Callable[[int, int], None]]:
 
 def _fmt(v, column: str = "") -> str:
     """A table cell for the terminal, by the policy of :mod:`gpctools.formatting`
-    (digits per quantity from the column's name and unit; text stays text)."""
+    (digits per quantity from the column's name and unit; text stays text).
+    """
     from .formatting import number
 
     if isinstance(v, str):
@@ -248,24 +249,30 @@ def _print_table(rows: list[dict], columns: list[str]) -> None:
 
 
 def _run_batch_with_progress(sheet: Path, method: Method | None, out: Path, workers: int | None,
-                             sheet_name: str | None = None, *, review: bool = True,
-                             review_limit: int | None = 100) -> BatchResult:
+                             sheet_name: str | None = None, injection_tables: bool = False, *,
+                             review: bool = True, review_limit: int | None = 100) -> BatchResult:
+    """Run the batch streaming its outputs: the long-form distributions table is written
+    in this process as rows arrive, per-injection tables (opt-in) and the review page's
+    fragments by the workers; no injection's traces are kept, so memory does not grow
+    with the batch.
+    """
     from .batch import run_batch
-    from .report import DistributionWriter, write_batch
+    from .report import DistributionsTable, DistributionWriter, write_batch
     from .report.batch import Sinks
 
-    sink: Any = DistributionWriter(out / "distributions")
+    sinks: list[Any] = [DistributionWriter(out / "distributions")] if injection_tables else []
     if review:
         import shutil
 
         from .report.review import PARTS, ReviewSink, review_rows
 
         shutil.rmtree(out / PARTS, ignore_errors=True)  # fragments of an interrupted earlier run
-        rows = review_rows(sheet, review_limit, sheet_name=sheet_name)
-        sink = Sinks((sink, ReviewSink(out / PARTS, rows)))
-    with _stage("injections") as advance:
-        result = run_batch(sheet, method, sheet=sheet_name, workers=workers, progress=advance, on_result=sink)
-    write_batch(result, out, distributions=False)  # distributions were written while running
+        sinks.append(ReviewSink(out / PARTS, review_rows(sheet, review_limit, sheet_name=sheet_name)))
+    sink = None if not sinks else sinks[0] if len(sinks) == 1 else Sinks(tuple(sinks))
+    with _stage("injections") as advance, DistributionsTable(out / "distributions.csv") as curves:
+        result = run_batch(sheet, method, sheet=sheet_name, workers=workers, progress=advance,
+                           keep_distributions=False, on_result=sink, on_curve=curves)
+    write_batch(result, out, distributions=False, curves=False)  # both were written while running
     if review:
         from .report.review import write_review
 
@@ -285,12 +292,15 @@ def batch_cmd(
     method: Optional[Path] = typer.Option(None, "--method", "-m", help="Method file (TOML) for the rows "
                                           "whose 'method file' cell is blank; optional when every row names one."),
     out: Path = typer.Option(Path("gpctools-out"), "--out", "-o", help="Output folder."),
-    workers: int = typer.Option(0, "--workers", "-j", min=0, help="Processes to use (0 = choose from batch size and cores)."),
+    workers: int = typer.Option(0, "--workers", "-j", min=0, help="Processes to use (0 = one per core for 16 or more injections)."),
     sheet_name: Optional[str] = typer.Option(None, "--sheet", help="Workbook sheet of the batch sheet."),
     review: bool = typer.Option(True, "--review/--no-review", help="Write review.html: each injection's "
                                 "trace, baseline, limits and distribution, overlays and the calibration."),
     review_all: bool = typer.Option(False, "--review-all", help="Draw every injection on review.html "
                                     "(default: the first 100, the rest listed)."),
+    injection_tables: bool = typer.Option(False, "--injection-tables", help="Also write distributions/<sample>_row<n>.csv, "
+                                          "the slice-by-slice distribution table of every injection (distributions.csv, "
+                                          "one long-form table binned in log M, is always written)."),
 ) -> None:
     """Process every injection of a batch sheet and write the results table.
 
@@ -304,8 +314,8 @@ def batch_cmd(
     m = load_method(method) if method is not None else None
     from .report.review import DEFAULT_LIMIT
 
-    result = _run_batch_with_progress(sheet, m, out, workers or None, sheet_name, review=review,
-                                      review_limit=None if review_all else DEFAULT_LIMIT)
+    result = _run_batch_with_progress(sheet, m, out, workers or None, sheet_name, injection_tables,
+                                      review=review, review_limit=None if review_all else DEFAULT_LIMIT)
     rows = result.table.to_dict("records")
     _print_table(rows, SUMMARY_COLUMNS)
     if len(result.methods) > 1:
@@ -321,8 +331,8 @@ def batch_cmd(
         shown = [c for c in (C.SAMPLE_ID, C.STATUS, C.MN_LS, C.MW_LS, C.MW_LS_AREAS, C.DISPERSITY_LS, C.RG_Z,
                              C.INTRINSIC_VISCOSITY, C.MH_A, C.DETECTOR_SCALE) if c in result.table.columns]
         _print_table(rows, shown)
-    typer.echo(f"wrote {out}/results.csv, results.xlsx, calibration.csv, manifest.json, distributions/"
-               + (", review.html" if review else ""))
+    typer.echo(f"wrote {out}/results.csv, results.xlsx, calibration.csv, manifest.json, distributions.csv"
+               + (", distributions/" if injection_tables else "") + (", review.html" if review else ""))
     if result.failed:
         for r in rows:
             if r["status"] == "error":
@@ -428,7 +438,8 @@ def calibrate_cmd(
     plot: bool = typer.Option(True, "--plot/--no-plot", help="Write calibration.png (curve above residuals)."),
 ) -> None:
     """Fit the method's calibration: each standard's residual, the curve's coefficients
-    (log10 M against V in mL, with standard errors) and a plot of curve and residuals."""
+    (log10 M against V in mL, with standard errors) and a plot of curve and residuals.
+    """
     from . import formatting as F
     from .method import load_method
 
@@ -915,7 +926,8 @@ def template_cmd(
                 typer.echo(f"{t.name} reads {c}: write it too with gpctools template {c}")
 
 
-def main() -> None:  # console-script entry point
+def main() -> None:
+    """Console-script entry point: run the CLI, turning a closed output pipe into exit 141."""
     if os.environ.get("GPCTOOLS_DEBUG"):
         _STATE["debug"] = True
     try:

@@ -30,6 +30,8 @@ from __future__ import annotations
 
 import json
 import math
+import os
+import warnings
 from collections.abc import Callable, Sequence
 from contextlib import AbstractContextManager, nullcontext
 from pathlib import Path
@@ -565,40 +567,90 @@ def run_demo(
                                    "generated sample runs", path=folder)
     report: dict[str, Any] = {"worst deviation [%]": None, "failed": 0, "out": str(out),
                               "samples": str(folder), "parts": {}}
-    result = _demo_batch(folder, out, echo, show, report)
-    for name, needs, instead in _DEMO_PARTS:
-        missing = [n for n in needs if not (folder / n).is_file()]
-        if missing:
-            reason = f"no {' and no '.join(missing)} in {folder}"
-            report["parts"][name] = {"status": "skipped", "reason": f"{reason} ({instead})"}
-            echo(f"\n{name} skipped: {reason} ({instead})")
-            continue
-        if name == "QC":
-            with show("QC: spec limits, system suitability, control charts, report"):
-                report["qc"] = _demo_qc(folder, out, result, echo)
-        elif name == "transfer":
-            echo(f"\nChain-transfer constants from the run series ({folder / 'transfer_series'}):")
-            with show("run series: chromatograms, Mayo fits, impurity flags, plots"):
-                report["transfer"] = run_demo_series(folder / "transfer_series", out / "transfer", echo=echo)
-            if not report["transfer"].get("ok", False):
-                report["failed"] += 1
-        elif name == "detectors":
-            with show("more detectors: light scattering, viscometer, narrow-standard offsets"):
-                report["detectors"] = _demo_detectors(folder / "detectors", out / "detectors", echo)
-            if not report["detectors"].get("ok", False):
-                report["failed"] += 1
-        elif name == "QC sequence":
-            with show("QC sequence: own calibration, blank, verdicts, control charts, report"):
-                report["qc sequence"] = _demo_qc_sequence(folder / "qc_sequence", out / "qc_sequence", echo)
-        else:
-            with show("diagnosis: the low-Mn lot's exports, recipe prediction, ranked causes"):
-                report["diagnosis"] = _demo_diagnosis(folder, out, result.method, echo)
-        report["parts"][name] = {"status": "ran"}
+    missing = {name: [n for n in needs if not (folder / n).is_file()] for name, needs, _ in _DEMO_PARTS}
+    # The run series and the QC sequence need nothing from the batch: on a machine with
+    # more than one core they run in a second process while the batch, its QC report and
+    # the diagnosis run here (most of their time is drawing figures). Their printed
+    # lines and warnings are replayed in the usual order, so the output is the same.
+    offload = [name for name in _OFFLOADED if not missing[name]] if (os.cpu_count() or 1) > 1 else []
+    pool, futures = None, {}
+    if offload:
+        from concurrent.futures import ProcessPoolExecutor
+
+        pool = ProcessPoolExecutor(max_workers=1)
+        futures = {name: pool.submit(_offloaded_part, name, folder, out) for name in offload}
+    try:
+        result = _demo_batch(folder, out, echo, show, report)
+        for name, _, instead in _DEMO_PARTS:
+            if missing[name]:
+                reason = f"no {' and no '.join(missing[name])} in {folder}"
+                report["parts"][name] = {"status": "skipped", "reason": f"{reason} ({instead})"}
+                echo(f"\n{name} skipped: {reason} ({instead})")
+                continue
+            if name == "QC":
+                with show("QC: spec limits, system suitability, control charts, report"):
+                    report["qc"] = _demo_qc(folder, out, result, echo)
+            elif name == "transfer":
+                echo(f"\nChain-transfer constants from the run series ({folder / 'transfer_series'}):")
+                with show("run series: chromatograms, Mayo fits, impurity flags, plots"):
+                    report["transfer"] = _part_result(name, futures, folder, out, echo)
+                if not report["transfer"].get("ok", False):
+                    report["failed"] += 1
+            elif name == "detectors":
+                with show("more detectors: light scattering, viscometer, narrow-standard offsets"):
+                    report["detectors"] = _part_result(name, futures, folder, out, echo)
+                if not report["detectors"].get("ok", False):
+                    report["failed"] += 1
+            elif name == "QC sequence":
+                with show("QC sequence: own calibration, blank, verdicts, control charts, report"):
+                    report["qc sequence"] = _part_result(name, futures, folder, out, echo)
+            else:
+                with show("diagnosis: the low-Mn lot's exports, recipe prediction, ranked causes"):
+                    report["diagnosis"] = _demo_diagnosis(folder, out, result.method, echo)
+            report["parts"][name] = {"status": "ran"}
+    finally:
+        if pool is not None:
+            pool.shutdown(wait=True, cancel_futures=True)
     ran = [k for k, v in report["parts"].items() if v["status"] == "ran"]
     skipped = [k for k, v in report["parts"].items() if v["status"] == "skipped"]
     echo(f"\ndemo parts run: {', '.join(ran)}" + (f"; skipped: {', '.join(skipped)}" if skipped else ""))
     write_text(out / "demo_summary.json", json.dumps(report, indent=2, default=str) + "\n")
     return report
+
+
+#: Demo parts that may run in a second process (they read only their own folder).
+_OFFLOADED = ("transfer", "QC sequence", "detectors")
+
+
+def _run_part(name: str, folder: Path, out: Path, echo: Callable[[str], None]) -> dict[str, Any]:
+    """One of the :data:`_OFFLOADED` parts, printing through ``echo``."""
+    if name == "transfer":
+        return run_demo_series(folder / "transfer_series", out / "transfer", echo=echo)
+    if name == "detectors":
+        return _demo_detectors(folder / "detectors", out / "detectors", echo)
+    return _demo_qc_sequence(folder / "qc_sequence", out / "qc_sequence", echo)
+
+
+def _offloaded_part(name: str, folder: Path, out: Path) -> tuple[dict[str, Any], list[str], list[Any]]:
+    """Run a part in a worker process: (summary, printed lines, warnings raised)."""
+    lines: list[str] = []
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("default")
+        summary = _run_part(name, folder, out, lines.append)
+    return summary, lines, [(str(w.message), w.category) for w in caught]
+
+
+def _part_result(name: str, futures: dict[str, Any], folder: Path, out: Path,
+                 echo: Callable[[str], None]) -> dict[str, Any]:
+    """The part's summary: from its worker process (replaying lines and warnings) or run here."""
+    if name not in futures:
+        return _run_part(name, folder, out, echo)
+    summary, lines, caught = futures[name].result()
+    for message, category in caught:
+        warnings.warn(message, category, stacklevel=2)
+    for line in lines:
+        echo(line)
+    return summary
 
 
 def _demo_batch(folder: Path, out: Path, echo: Callable[[str], None], show: Stage,
@@ -855,7 +907,8 @@ def write_detector_demo(folder: str | Path) -> dict[str, Any]:
 
 def _demo_detectors(folder: Path, out: Path, echo: Callable[[str], None]) -> dict[str, Any]:
     """The binder lots on the multi-detector line: absolute Mn, Mw beside the truth, and the
-    offsets the narrow standard gives (``gpctools detectors``) beside the method's."""
+    offsets the narrow standard gives (``gpctools detectors``) beside the method's.
+    """
     import pandas as pd
 
     from . import columns as C

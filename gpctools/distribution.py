@@ -44,7 +44,7 @@ from gpctools.display import Display
 
 from .calibration import Calibration
 from .errors import DataError, RangeWarning, SignalWarning
-from .signal import _as_trace
+from .signal import _as_trace, _median
 
 __all__ = [
     "Distribution",
@@ -55,6 +55,9 @@ __all__ = [
     "averages_with_reasons",
     "moment_sums",
     "compute_distribution",
+    "CURVE_COLUMNS",
+    "DistributionCurve",
+    "distribution_curve",
     "mass_fraction_below",
     "peak_position",
     "peak_top",
@@ -72,6 +75,20 @@ TABLE_COLUMNS = (
     "dw/dlogM [-]",
     "cumulative mass fraction [-]",
 )
+
+
+#: Columns of a :class:`DistributionCurve` in the long-form distributions table.
+CURVE_COLUMNS = (
+    "log10 M [-]",
+    "M [g/mol]",
+    "dw/dlogM [-]",
+    "cumulative mass fraction [-]",
+)
+
+#: Bin width of :func:`distribution_curve` in log10 M [-]: 100 bins per decade, a
+#: tenth of the usual slice spacing of a 6,000-slice export (common practice for
+#: overlays of dw/dlogM curves).
+CURVE_STEP = 0.01
 
 
 def slice_widths(volume: Any) -> np.ndarray:
@@ -255,7 +272,7 @@ def _noise_sd(y: np.ndarray) -> float:
     if y.size < 5:
         return 0.0
     d2 = np.diff(y, 2)
-    return 1.4826 * float(np.median(np.abs(d2 - np.median(d2)))) / math.sqrt(6.0)
+    return 1.4826 * _median(np.abs(d2 - _median(d2))) / math.sqrt(6.0)
 
 
 def _top_run(sm: np.ndarray, i0: int, threshold: float, min_points: int) -> tuple[int, int]:
@@ -299,6 +316,24 @@ def _real_roots(c: np.ndarray) -> np.ndarray:
     return r[np.abs(r.imag) <= 1e-9 * np.maximum(1.0, np.abs(r.real))].real
 
 
+def _derivative(c: np.ndarray) -> np.ndarray:
+    """Coefficients (lowest first) of the derivative of a polynomial of two or more
+    coefficients: the same products j·c_j as ``numpy.polynomial.polynomial.polyder``,
+    without its generic axis handling (issue 14).
+    """
+    return np.arange(1, c.size) * c[1:]
+
+
+def _horner(c: np.ndarray, x: Any) -> Any:
+    """The polynomial with coefficients ``c`` (lowest first) at ``x`` by Horner's rule: the
+    same operations, in the same order, as ``numpy.polynomial.polynomial.polyval``.
+    """
+    c0 = c[-1] + x * 0
+    for i in range(2, c.size + 1):
+        c0 = c[-i] + c0 * x
+    return c0
+
+
 def _fit_log_poly(x: np.ndarray, y: np.ndarray, x0: float, degree: int) -> tuple[float, float, float] | None:
     """Maximum of a weighted polynomial fit to ln y: (position, height, stderr) or None.
 
@@ -322,15 +357,15 @@ def _fit_log_poly(x: np.ndarray, y: np.ndarray, x0: float, degree: int) -> tuple
         coef = np.linalg.solve(A, X.T @ (W * np.log(y)))
     except np.linalg.LinAlgError:
         return None
-    d1 = np.polynomial.polynomial.polyder(coef)
-    d2 = np.polynomial.polynomial.polyder(coef, 2)
+    d1 = _derivative(coef)
+    d2 = _derivative(d1)
     roots = _real_roots(d1)
     roots = roots[(roots >= t.min()) & (roots <= t.max())]
-    roots = roots[np.polynomial.polynomial.polyval(roots, d2) < 0]
+    roots = roots[_horner(d2, roots) < 0]
     if roots.size == 0:
         return None
-    r = float(roots[np.argmax(np.polynomial.polynomial.polyval(roots, coef))])
-    height = float(np.exp(np.polynomial.polynomial.polyval(r, coef)))
+    r = float(roots[np.argmax(_horner(coef, roots))])
+    height = float(np.exp(_horner(coef, r)))
     stderr = math.nan
     dof = x.size - p
     if dof > 0:
@@ -343,7 +378,7 @@ def _fit_log_poly(x: np.ndarray, y: np.ndarray, x0: float, degree: int) -> tuple
         if cov is not None:
             k = np.arange(p)
             g = np.zeros(p)
-            g[1:] = -k[1:] * r ** (k[1:] - 1) / float(np.polynomial.polynomial.polyval(r, d2))
+            g[1:] = -k[1:] * r ** (k[1:] - 1) / float(_horner(d2, r))
             stderr = sc * math.sqrt(max(float(g @ cov @ g), 0.0))
     return x0 + r * sc, height, stderr
 
@@ -517,6 +552,7 @@ class Distribution(Display):
         return float(getattr(self, name))
 
     def summary(self) -> dict[str, Any]:
+        """Plain JSON-safe dict of the result, units in the keys (NaN and inf as None)."""
         from .sheets.cells import finite_or_none
 
         return {
@@ -539,6 +575,69 @@ class Distribution(Display):
 
         columns = (self.volume, self.M, np.log10(self.M), self.w, self.dwdlogM, self.cumulative)
         return pd.DataFrame(dict(zip(TABLE_COLUMNS, columns)))
+
+
+@dataclass(frozen=True)
+class DistributionCurve:
+    """A distribution on a regular log10 M grid: the compact form of one injection.
+
+    Attributes
+    ----------
+    log10_M : ndarray
+        Centres of the occupied bins, increasing [-].
+    dwdlogM : ndarray
+        Mean dw/dlog10 M of the slices in each bin [-].
+    cumulative : ndarray
+        Cumulative mass fraction at the bin centre [-] (interpolated linearly in log10 M
+        between slices; same convention as :attr:`Distribution.cumulative`).
+    step : float
+        Bin width in log10 M [-].
+    """
+
+    log10_M: np.ndarray
+    dwdlogM: np.ndarray
+    cumulative: np.ndarray
+    step: float
+
+    def columns(self) -> tuple[np.ndarray, ...]:
+        """The arrays in the order of :data:`CURVE_COLUMNS`."""
+        return (self.log10_M, 10.0 ** self.log10_M, self.dwdlogM, self.cumulative)
+
+
+def distribution_curve(dist: Distribution, step: float = CURVE_STEP) -> DistributionCurve:
+    """Bin a distribution on a regular log10 M grid (the long-form distributions table).
+
+    Each bin [k·step, (k+1)·step) of log10 M holds the mean of the slices' dw/dlog10 M
+    that fall in it; bins without a slice (excluded regions, gaps) are left out, so no
+    value is invented between slices. The averages are never computed from this curve:
+    they come from the slices (:func:`compute_distribution`).
+
+    Parameters
+    ----------
+    dist : Distribution
+    step : float
+        Bin width in log10 M [-] (default :data:`CURVE_STEP`).
+
+    Returns
+    -------
+    DistributionCurve
+    """
+    if not step > 0:
+        raise DataError(f"the bin width of a distribution curve must be positive, got {step!r}")
+    x = np.log10(np.asarray(dist.M, dtype=float))
+    if x.size == 0:
+        empty = np.empty(0)
+        return DistributionCurve(empty, empty, empty, float(step))
+    k = np.floor(x / step).astype(np.int64)
+    k0 = int(k.min())
+    idx = k - k0
+    counts = np.bincount(idx)
+    sums = np.bincount(idx, weights=np.asarray(dist.dwdlogM, dtype=float))
+    occupied = np.flatnonzero(counts)
+    centre = (occupied + k0 + 0.5) * step
+    order = np.argsort(x, kind="stable")
+    cumulative = np.interp(centre, x[order], np.asarray(dist.cumulative, dtype=float)[order])
+    return DistributionCurve(centre, sums[occupied] / counts[occupied], cumulative, float(step))
 
 
 def compute_distribution(
@@ -659,9 +758,9 @@ def compute_distribution(
 
 # -- fractions ------------------------------------------------------------------------------
 def mass_fraction_below(dist: Distribution, M_cut: float) -> float:
-    """Mass fraction of the distribution with molar mass below ``M_cut`` [-].
+    r"""Mass fraction of the distribution with molar mass below ``M_cut`` [-].
 
-    .. math:: F(M_c) = \\sum_i w_i \\, \\mathrm{clip}\\left(\\frac{V_{i,hi} - V_c}{V_{i,hi} - V_{i,lo}}, 0, 1\\right)
+    .. math:: F(M_c) = \sum_i w_i \, \mathrm{clip}\left(\frac{V_{i,hi} - V_c}{V_{i,hi} - V_{i,lo}}, 0, 1\right)
 
     Each slice's mass is taken as spread evenly over its width [V_lo, V_hi] (the midpoint
     rule of :func:`slice_widths`), and V_c, the volume where M = M_c, is interpolated
@@ -739,6 +838,7 @@ class PeakPart(Display):
     missing: dict[str, str] = field(default_factory=dict)
 
     def summary(self) -> dict[str, Any]:
+        """Plain JSON-safe dict of the result, units in the keys (NaN and inf as None)."""
         from .sheets.cells import finite_or_none
 
         return {

@@ -450,3 +450,105 @@ def test_uv_or_elsd_concentration_trace_warns(tmp_path, header, says):
     ri = process_injection(tmp_path / "ri.csv", m)  # an RI trace: no such warning
     assert not any("mass concentration" in w for w in ri.warnings)
     assert r.distribution.Mn == ri.distribution.Mn  # the same numbers: only a warning
+
+
+# ------------------------------------------------------------ long-form distributions (issue 14)
+
+
+def test_distribution_curve_bins_a_known_density():
+    # dw/dlog10M a normal density in x = log10 M (mean 5, SD 0.3) sampled every 0.001:
+    # each 0.01-wide bin's mean of the samples is the density averaged over the bin, which
+    # differs from the density at the centre by (h^2/24) f'' (midpoint rule, derived); the
+    # cumulative mass fraction "at or below M" is the normal CDF (scipy, reference library).
+    from scipy.stats import norm
+
+    from gpctools.distribution import Distribution, distribution_curve
+
+    x = np.arange(3.5005, 6.5, 0.001)[::-1]  # decreasing M, as the slices of a trace
+    f = norm.pdf(x, 5.0, 0.3)
+    w = f / f.sum()
+    dist = Distribution(volume=np.arange(x.size, dtype=float), M=10.0**x, w=w, dwdlogM=f,
+                        cumulative=norm.cdf(x, 5.0, 0.3), Mn=np.nan, Mw=np.nan, Mz=np.nan, Mz1=np.nan,
+                        Mp=np.nan, Mp_dwdlogM=np.nan, dispersity=np.nan, outside_fraction=0.0)
+    c = distribution_curve(dist, 0.01)
+    assert np.allclose(np.diff(c.log10_M), 0.01) and c.log10_M[0] == pytest.approx(3.505)
+    assert c.log10_M.size == 300  # every sample falls in one of 300 bins (3.50 to 6.50)
+    # bin average of 10 samples vs density at the centre: within |f''| h^2/24 <= 3e-4 (derived)
+    assert np.allclose(c.dwdlogM, norm.pdf(c.log10_M, 5.0, 0.3), atol=3e-4)
+    # the curve integrates to one over log10 M (rectangle rule on the bins, derived)
+    assert float(c.dwdlogM.sum() * 0.01) == pytest.approx(1.0, abs=1e-3)
+    # linear interpolation of the CDF between samples 0.001 apart: error <= f' h^2/8 (derived)
+    assert np.allclose(c.cumulative, norm.cdf(c.log10_M, 5.0, 0.3), atol=1e-6)
+    # a gap (an excluded region) stays a gap: no bin is invented where no slice lies
+    keep = (x < 4.6) | (x > 4.8)
+    gap = Distribution(volume=dist.volume[keep], M=dist.M[keep], w=w[keep], dwdlogM=f[keep],
+                       cumulative=dist.cumulative[keep], Mn=np.nan, Mw=np.nan, Mz=np.nan, Mz1=np.nan,
+                       Mp=np.nan, Mp_dwdlogM=np.nan, dispersity=np.nan, outside_fraction=0.0)
+    g = distribution_curve(gap, 0.01)
+    assert not ((g.log10_M > 4.6) & (g.log10_M < 4.8)).any() and g.log10_M.size == 280
+
+
+def test_long_form_table_agrees_with_the_per_injection_tables(demo_dir, tmp_path):
+    # The long-form distributions.csv (the batch's default) against an independent
+    # computation: pandas groupby means of the slice tables written by --injection-tables.
+    from typer.testing import CliRunner
+
+    from gpctools.cli import app
+
+    r = CliRunner().invoke(app, ["batch", str(demo_dir / "batch.csv"), "-m", str(demo_dir / "method.toml"),
+                                 "-o", str(tmp_path / "o"), "--injection-tables"])
+    assert r.exit_code == 0, r.output
+    long = pd.read_csv(tmp_path / "o" / "distributions.csv")
+    assert list(long.columns) == ["sample_id", "file", "sheet row [-]", "log10 M [-]", "M [g/mol]",
+                                  "dw/dlogM [-]", "cumulative mass fraction [-]"]
+    for path in sorted((tmp_path / "o" / "distributions").glob("*.csv")):
+        sid, row = path.stem.rsplit("_row", 1)
+        mine = long[(long["sample_id"] == sid) & (long["sheet row [-]"] == int(row))]
+        table = pd.read_csv(path)
+        bins = np.floor(table["log10 M [-]"] / 0.01)
+        expected = table.groupby(bins)["dw/dlogM [-]"].mean()
+        # 8 significant digits in the slice tables, 6 in the long form (common practice)
+        assert np.allclose(mine["dw/dlogM [-]"].to_numpy(), expected.to_numpy(), rtol=1e-5, atol=1e-9)
+        assert np.allclose(mine["log10 M [-]"].to_numpy(), (expected.index.to_numpy() + 0.5) * 0.01)
+    # the diagnosis reads a sample's injections from the long form: one per replicate, with
+    # the averages of the slice tables (trapezoids in log M over 0.01-wide bins of a smooth
+    # curve: relative error well below 1e-4, derived from the O(h^2) rule error)
+    from gpctools.kinetics.evidence import read_distribution, read_distributions
+
+    from_long = read_distributions(tmp_path / "o" / "distributions.csv", "LC110-A")
+    from_slices = [read_distribution(tmp_path / "o" / "distributions" / f"LC110-A_row{n}.csv") for n in (2, 3)]
+    assert len(from_long) == 2
+    for a, b in zip(from_long, from_slices):
+        assert a.Mn == pytest.approx(b.Mn, rel=1e-4) and a.Mw == pytest.approx(b.Mw, rel=1e-4)
+
+
+def test_a_batch_split_over_folders_concatenates_to_the_whole(demo_dir, tmp_path):
+    # Several machines, no shared state: each runs part of the sheet; the results tables
+    # and the long-form distribution tables concatenate to those of one run (same
+    # numbers, same header), with the sheet row on every distribution row.
+    from typer.testing import CliRunner
+
+    from gpctools.cli import app
+
+    d = tmp_path / "runs"
+    shutil.copytree(demo_dir, d)
+    lines = (d / "batch.csv").read_text().splitlines()
+    (d / "part1.csv").write_text("\n".join(lines[:5]) + "\n")
+    (d / "part2.csv").write_text("\n".join([lines[0], *lines[5:]]) + "\n")
+    runner = CliRunner()
+    for sheet, out in (("batch.csv", "whole"), ("part1.csv", "p1"), ("part2.csv", "p2")):
+        r = runner.invoke(app, ["batch", str(d / sheet), "-m", str(d / "method.toml"), "-o", str(tmp_path / out)])
+        assert r.exit_code == 0, r.output
+    whole = pd.read_csv(tmp_path / "whole" / "results.csv")
+    parts = pd.concat([pd.read_csv(tmp_path / p / "results.csv") for p in ("p1", "p2")], ignore_index=True)
+    assert list(parts.columns) == list(whole.columns)
+    numeric = [c for c in whole.columns if pd.api.types.is_float_dtype(whole[c])]
+    assert np.array_equal(parts[numeric].to_numpy(), whole[numeric].to_numpy(), equal_nan=True)
+    curves = pd.concat([pd.read_csv(tmp_path / p / "distributions.csv") for p in ("p1", "p2")])
+    w = pd.read_csv(tmp_path / "whole" / "distributions.csv")
+    # sheet rows restart in each part's sheet; the export file names the injection
+    key = ["file", "log10 M [-]"]
+    a = w.sort_values(key).reset_index(drop=True)
+    b = curves.sort_values(key).reset_index(drop=True)
+    assert a.shape == b.shape and (a["sample_id"] == b["sample_id"]).all()
+    assert np.array_equal(a[["M [g/mol]", "dw/dlogM [-]"]].to_numpy(), b[["M [g/mol]", "dw/dlogM [-]"]].to_numpy())

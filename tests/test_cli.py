@@ -10,6 +10,7 @@ import subprocess
 import sys
 from pathlib import Path
 
+import pandas as pd
 import pytest
 from typer.testing import CliRunner
 
@@ -46,7 +47,14 @@ def test_batch_success(demo_dir, tmp_path):
     assert r.exit_code == 0, r.output
     assert "LC110-A" in r.output and "Mn [g/mol]" in r.output
     assert (tmp_path / "o" / "results.csv").exists()
-    assert len(list((tmp_path / "o" / "distributions").glob("*.csv"))) == 8
+    # default: one long-form distributions table, no per-injection tables (issue 14)
+    assert not (tmp_path / "o" / "distributions").exists()
+    curves = pd.read_csv(tmp_path / "o" / "distributions.csv")
+    assert len(curves.groupby(["sample_id", "sheet row [-]"])) == 8
+    r = runner.invoke(app, ["batch", str(demo_dir / "batch.csv"), "-m", str(demo_dir / "method.toml"),
+                            "-o", str(tmp_path / "t"), "--injection-tables"])
+    assert r.exit_code == 0, r.output
+    assert len(list((tmp_path / "t" / "distributions").glob("*.csv"))) == 8
 
 
 def test_batch_with_failed_injection_exits_1(demo_dir, tmp_path):
@@ -449,3 +457,38 @@ def test_inspect_still_describes_a_file_the_reader_refuses(tmp_path):
     assert "import.decimal" in r.output
     assert "error: " in r.output and "export.csv" in r.output
     _ok_no_traceback(r)
+
+
+# Modules that only plotting, fitting or HTML need (issue 14): a command that does not
+# plot must not pay for them at start-up. `batch` writes review.html (jinja2, inline SVG
+# drawn without matplotlib), so jinja2 is allowed there; `calibrate` writes its plot by
+# default, so it is checked with --no-plot.
+_HEAVY = ("matplotlib", "scipy.optimize", "lmfit", "jinja2")
+_MODULES_AFTER = """
+import sys
+from gpctools.cli import main
+sys.argv = ["gpctools", *sys.argv[1:]]
+try:
+    main()
+except SystemExit:
+    pass
+print("LOADED:" + ",".join(m for m in {heavy!r} if m in sys.modules), file=sys.stderr)
+"""
+
+
+@pytest.mark.parametrize(("args", "allowed"), [
+    (["--help"], ()),
+    (["batch", "{d}/batch.csv", "-m", "{d}/method.toml", "-o", "{o}"], ("jinja2",)),
+    (["batch", "{d}/batch.csv", "-m", "{d}/method.toml", "-o", "{o}", "--no-review"], ()),
+    (["calibrate", "{d}/method.toml", "--no-plot"], ()),
+    (["inspect", "{d}/exports/LC110-A1.csv"], ()),
+], ids=["help", "batch", "batch-no-review", "calibrate-no-plot", "inspect"])
+def test_commands_that_do_not_plot_never_import_matplotlib(args, allowed, demo_dir, tmp_path):
+    # behavioural, not timed: the modules loaded by a real process, read from sys.modules
+    argv = [a.format(d=demo_dir, o=tmp_path / "o") for a in args]
+    heavy = tuple(m for m in _HEAVY if m not in allowed)
+    proc = subprocess.run([sys.executable, "-c", _MODULES_AFTER.format(heavy=heavy), *argv],
+                          capture_output=True, text=True, timeout=300)
+    line = [ln for ln in proc.stderr.splitlines() if ln.startswith("LOADED:")]
+    assert line, proc.stderr
+    assert line[-1] == "LOADED:", f"{' '.join(args)} imported {line[-1][7:]}"

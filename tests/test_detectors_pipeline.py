@@ -240,7 +240,8 @@ def test_absolute_averages_within_two_percent_through_the_cli(line, cli_runner, 
     d, samples, _ = line
     method = _calibrated_method(line, cli_runner)
     out = tmp_path / "out"
-    res = cli_runner.invoke(app, ["batch", str(d / "batch.csv"), "-m", str(method), "-o", str(out)])
+    res = cli_runner.invoke(app, ["batch", str(d / "batch.csv"), "-m", str(method), "-o", str(out),
+                                      "--injection-tables"])  # per-slice detector columns
     assert res.exit_code == 0, res.output
     table = pd.read_csv(out / "results.csv")
     assert set(C.DETECTOR_COLUMNS) <= set(table.columns)

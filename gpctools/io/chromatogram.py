@@ -63,6 +63,7 @@ from gpctools.io._text import (
     is_datalike,
     is_number_any_mark,
     locate_block,
+    longest_line_bytes,
     number_pattern,
     parse_metadata_line,
     split_cells,
@@ -275,7 +276,7 @@ def read_chromatogram(
     encoding: str | None = None,
     channels: Any = None,
 ) -> Chromatogram:
-    """Read one chromatogram export (CSV/TXT/TSV/DAT/ASC text or XLSX).
+    r"""Read one chromatogram export (CSV/TXT/TSV/DAT/ASC text or XLSX).
 
     Parameters
     ----------
@@ -297,9 +298,9 @@ def read_chromatogram(
         has no unit.
     decimal : {".", ","}, optional
         Force the decimal mark (default: detected).
-    separator : {"\\t", ";", ",", " "}, optional
+    separator : {"\t", ";", ",", " "}, optional
         Force the separator; ``" "`` (or ``"whitespace"``) means runs of blanks; ``"tab"``
-        is accepted for ``"\\t"``. Default: detected.
+        is accepted for ``"\t"``. Default: detected.
     encoding : str, optional
         Force the text encoding (default: detected).
     channels : sequence of str or int, or "all", optional
@@ -763,7 +764,9 @@ def _read_text(
 ) -> Chromatogram:
     """Read a decoded text export (steps in the module docstring)."""
     err: dict[str, Any] = {"path": path}
-    _refuse_long_lines(text, err)
+    longest = longest_line_bytes(text)  # bytes >= characters: within a limit, nothing exceeds it
+    if longest > MAX_LINE_CHARS:
+        _refuse_long_lines(text, err)
     parts = text.split("\n", SCAN_LINES)
     head = parts[:SCAN_LINES]
     layout = locate_block(head, text, sep=sep, decimal=dec)
@@ -786,7 +789,8 @@ def _read_text(
     _note_footer(text, end, notes)
     table_start = layout.header if layout.header is not None else layout.start
     table_offset = sum(len(ln) + 1 for ln in head[:table_start])
-    _refuse_long_cells(text, table_offset, end, table_start + 1, d, err)
+    if longest > MAX_CELL_CHARS:
+        _refuse_long_cells(text, table_offset, end, table_start + 1, d, err)
     block = text[offset:end]
     first_line = layout.start + 1
     table, lines_arr = _parse_block(block, first_line, d, cols, layout.names,
@@ -1144,7 +1148,8 @@ def _finish(
 
 def _cell_number(v: Any, decimal: str | None) -> float | None:
     """Float of a numeric cell or numeric text, else None (also for a number too large
-    for a float, see :func:`_too_large`)."""
+    for a float, see :func:`_too_large`).
+    """
     if isinstance(v, bool) or v is None:
         return None
     try:

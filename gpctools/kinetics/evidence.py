@@ -52,6 +52,7 @@ __all__ = [
     "tails_of_curve",
     "model_tails",
     "read_distribution",
+    "read_distributions",
     "distribution_from_chromatogram",
     "average_distributions",
 ]
@@ -175,15 +176,20 @@ def model_tails(tau: float, beta: float, M0: float = 1.0) -> Tails:
 def read_distribution(path: str | Path) -> MeasuredDistribution:
     """A distribution table (``M [g/mol]`` and ``dw/dlogM [-]`` columns; CSV or XLSX)."""
     from gpctools.io import read_sheet
+
+    return _measured(read_sheet(path), path)
+
+
+def _measured(df: Any, path: str | Path) -> MeasuredDistribution:
+    """The distribution in the ``M [g/mol]`` and ``dw/dlogM [-]`` columns of a table."""
     from gpctools.sheets.cells import parse_number
 
-    df = read_sheet(path)
     cols = {str(c).strip().lower(): c for c in df.columns}
     mcol, wcol = cols.get("m [g/mol]"), cols.get("dw/dlogm [-]") or cols.get("dw/dlogm")
     if mcol is None or wcol is None:
         raise InputFormatError(
             "a distribution table needs 'M [g/mol]' and 'dw/dlogM [-]' columns (as gpctools "
-            f"batch writes them in distributions/); found {', '.join(map(str, df.columns))}",
+            f"batch writes them in distributions.csv and distributions/); found {', '.join(map(str, df.columns))}",
             path=path)
     M = np.array([parse_number(v) for v in df[mcol]], dtype=float)
     w = np.array([parse_number(v) for v in df[wcol]], dtype=float)
@@ -193,6 +199,45 @@ def read_distribution(path: str | Path) -> MeasuredDistribution:
     Ms, ws = _normalised(M[ok], w[ok])
     Mn, Mw = _averages(Ms, ws)
     return MeasuredDistribution(Ms, ws, Mn, Mw, str(path))
+
+
+def read_distributions(path: str | Path, sample_id: str | None = None) -> list[MeasuredDistribution]:
+    """The distributions of one sample in a table: one per injection.
+
+    A per-injection table (``distributions/<sample>_row<n>.csv``) gives one. The
+    long-form table of a batch (``distributions.csv``: ``sample_id``, ``file``, ``sheet
+    row [-]``, ``M [g/mol]``, ``dw/dlogM [-]``, ...) gives one per injection (file and
+    sheet row) of ``sample_id`` (the only sample when None).
+
+    Raises
+    ------
+    InputFormatError
+        Missing columns, too few rows, a sample the table does not hold, or several
+        samples and none chosen.
+    """
+    from gpctools.io import read_sheet
+
+    df = read_sheet(path)
+    cols = {str(c).strip().lower(): c for c in df.columns}
+    scol = cols.get("sample_id")
+    if scol is None:
+        return [_measured(df, path)]
+    ids = df[scol].astype(str).str.strip()
+    names = list(dict.fromkeys(ids))
+    if sample_id is None:
+        if len(names) != 1:
+            raise InputFormatError(f"the distributions table holds {len(names)} samples; name one "
+                                   "(--sample)", path=path, column="sample_id")
+        sample_id = names[0]
+    rows = df[ids == str(sample_id).strip()]
+    if rows.empty:
+        raise InputFormatError(f"the distributions table has no rows of sample {sample_id!r}",
+                               path=path, column="sample_id")
+    keys = [cols[k] for k in ("file", "sheet row [-]") if k in cols]
+    if not keys:
+        return [_measured(rows, path)]
+    return [_measured(part, f"{path} ({', '.join(map(str, key))})")
+            for key, part in rows.groupby(keys, sort=False)]
 
 
 def average_distributions(parts: list[MeasuredDistribution]) -> MeasuredDistribution:

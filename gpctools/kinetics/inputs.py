@@ -24,7 +24,7 @@ import pandas as pd
 from gpctools import columns
 from gpctools.errors import InputFormatError
 from gpctools.kinetics.diagnose import Diagnosis, diagnose
-from gpctools.kinetics.evidence import average_distributions, read_distribution
+from gpctools.kinetics.evidence import average_distributions, read_distributions
 from gpctools.kinetics.recipe import Measured, load_recipe, normalize_scale
 
 __all__ = ["measured_from_results", "results_sample", "diagnose_recipe"]
@@ -201,8 +201,9 @@ def diagnose_recipe(
     sample_id : str, optional
         Sample to take from ``measured_path``.
     distribution_paths : sequence of path
-        Distribution tables of this sample (replicates are averaged on a common log M
-        grid); they replace a distribution the recipe names.
+        Distribution tables of this sample, per injection or the batch's long-form
+        ``distributions.csv`` (whose rows of ``sample_id`` are taken); replicates are
+        averaged on a common log M grid. They replace a distribution the recipe names.
 
     Returns
     -------
@@ -229,5 +230,5 @@ def diagnose_recipe(
         recipe = replace(recipe, measured=measured, checks=replace(old, **new_checks))
     dist = None
     if distribution_paths:
-        dist = average_distributions([read_distribution(p) for p in distribution_paths])
+        dist = average_distributions([d for p in distribution_paths for d in read_distributions(p, sample_id)])
     return diagnose(recipe, distribution=dist)

@@ -8,9 +8,13 @@ is written atomically (:mod:`gpctools.report.files`).
 
 Public API
 ----------
-write_batch(result, outdir, *, distributions=True) -> dict of paths
+write_batch(result, outdir, *, distributions=True, curves=True) -> dict of paths
     ``results.csv``, ``results.xlsx``, ``calibration.csv``, ``manifest.json``,
-    ``distributions/*.csv`` of a :class:`gpctools.batch.BatchResult`.
+    ``distributions.csv`` (long form) and ``distributions/*.csv`` of a
+    :class:`gpctools.batch.BatchResult`.
+DistributionsTable(path)
+    ``on_curve`` sink for :func:`gpctools.batch.run_batch`: the long-form
+    ``distributions.csv`` written while the batch runs (a context manager).
 DistributionWriter(folder)
     ``on_result`` sink for :func:`gpctools.batch.run_batch`: writes each distribution
     table while the batch runs.
@@ -29,22 +33,55 @@ build_audit(*, inputs=(), method=None, settings=None, timestamp=None) -> AuditTr
 sha256_file(path) -> str
 
 Figures live in :mod:`gpctools.report.plots` (Figure + Agg canvas, never pyplot),
-markdown in :mod:`gpctools.report.markdown`. matplotlib and openpyxl are imported only
-inside the functions that draw or write.
+markdown in :mod:`gpctools.report.markdown`. matplotlib and xlsxwriter are imported only
+inside the functions that draw or write, and each public name here only on first use.
 """
 
 from __future__ import annotations
 
-from gpctools.report.audit import AuditTrail, InputFile, build_audit, sha256_file
-from gpctools.report.batch import DistributionWriter, write_batch
-from gpctools.report.diagnosis import write_diagnosis
-from gpctools.report.qc_report import EXIT_FINDINGS, EXIT_OK, QCReport, run_qc
-from gpctools.report.transfer import write_transfer, write_transfer_plots
-from gpctools.report.xlsx import FORMULA_START, inert_cell, write_workbook
+import importlib
+from typing import Any
+
+# Public names and the module that defines each. They are imported on first use (PEP 562),
+# so that `gpctools batch` does not load the QC, HTML and transfer writers it never calls.
+_WHERE = {
+    "write_batch": "batch",
+    "DistributionWriter": "batch",
+    "DistributionsTable": "batch",
+    "write_transfer": "transfer",
+    "write_transfer_plots": "transfer",
+    "write_diagnosis": "diagnosis",
+    "run_qc": "qc_report",
+    "QCReport": "qc_report",
+    "EXIT_OK": "qc_report",
+    "EXIT_FINDINGS": "qc_report",
+    "write_workbook": "xlsx",
+    "inert_cell": "xlsx",
+    "FORMULA_START": "xlsx",
+    "build_audit": "audit",
+    "AuditTrail": "audit",
+    "InputFile": "audit",
+    "sha256_file": "audit",
+}
+
+
+def __getattr__(name: str) -> Any:
+    module = _WHERE.get(name)
+    if module is None:
+        raise AttributeError(f"module 'gpctools.report' has no attribute {name!r}")
+    value = getattr(importlib.import_module(f"gpctools.report.{module}"), name)
+    globals()[name] = value
+    return value
+
+
+def __dir__() -> list[str]:
+    return sorted([*globals(), *_WHERE])
+
 
 __all__ = [
     "write_batch",
     "DistributionWriter",
+    "DistributionsTable",
     "write_transfer",
     "write_transfer_plots",
     "write_diagnosis",

@@ -6,16 +6,24 @@ Files written by :func:`write_batch` into the output folder (each atomically):
     one row per injection (:data:`gpctools.batch.RESULT_COLUMNS`, sheet metadata kept).
 ``calibration.csv``
     the standards with their fitted molar mass and residual.
+``distributions.csv``
+    every processed injection's distribution in one long-form table: ``sample_id``,
+    ``file``, ``sheet row [-]`` and :data:`gpctools.distribution.CURVE_COLUMNS` (log10 M, M,
+    dw/dlogM, cumulative mass fraction), binned on a log10 M grid of 0.01
+    (:func:`gpctools.distribution.distribution_curve`); written by
+    :class:`DistributionsTable` while the batch runs (the CLI default).
 ``distributions/<sample_id>_row<n>.csv``
     the slice table of each processed injection (:data:`gpctools.distribution.TABLE_COLUMNS`);
-    ``n`` is the batch-sheet row, so replicate injections keep their own file.
+    ``n`` is the batch-sheet row, so replicate injections keep their own file (opt-in on
+    the command line: ``gpctools batch --injection-tables``).
 ``manifest.json``
     gpctools version, batch sheet, counts, method settings and calibration summary (what
     ``gpctools qc`` reads back beside ``results.csv``).
 
 A long batch writes its distribution tables while it runs: pass a
-:class:`DistributionWriter` as ``on_result`` to :func:`gpctools.batch.run_batch` and call
-:func:`write_batch` with ``distributions=False`` afterwards.
+:class:`DistributionsTable` as ``on_curve`` (and, for the per-injection tables, a
+:class:`DistributionWriter` as ``on_result``) to :func:`gpctools.batch.run_batch` and call
+:func:`write_batch` with ``distributions=False, curves=False`` afterwards.
 """
 
 from __future__ import annotations
@@ -25,24 +33,30 @@ import os
 from collections.abc import Mapping
 from dataclasses import dataclass
 from pathlib import Path
-from typing import TYPE_CHECKING, Any
+from typing import TYPE_CHECKING, Any, TextIO
 
 import numpy as np
 
-from gpctools.distribution import TABLE_COLUMNS
+from gpctools.distribution import CURVE_COLUMNS, TABLE_COLUMNS, distribution_curve
 from gpctools.formatting import clean_json
-from gpctools.report.files import safe_name, write_csv, write_text
+from gpctools.report.files import atomic_path, safe_name, write_csv, write_text
 from gpctools.report.xlsx import write_workbook
 
 if TYPE_CHECKING:  # pragma: no cover
     from gpctools.batch import BatchEntry, BatchResult, InjectionResult
-    from gpctools.distribution import Distribution
+    from gpctools.distribution import Distribution, DistributionCurve
     from gpctools.qc.sequence import SequenceRun
 
-__all__ = ["write_batch", "write_distribution", "distribution_name", "DistributionWriter", "Sinks"]
+__all__ = ["write_batch", "write_distribution", "distribution_name", "DistributionWriter", "Sinks",
+           "DistributionsTable", "DISTRIBUTIONS_TABLE", "CURVES_HEADER"]
 
-#: Sub-folder of the batch outputs that holds the distribution tables.
+#: Sub-folder of the batch outputs that holds the per-injection distribution tables.
 DISTRIBUTIONS = "distributions"
+#: The long-form distributions table of a batch (one row per injection and log M bin).
+DISTRIBUTIONS_TABLE = "distributions.csv"
+#: Its columns: the injection (sample id, export file as written in the batch sheet,
+#: batch-sheet row), then the binned curve.
+CURVES_HEADER = ("sample_id", "file", "sheet row [-]", *CURVE_COLUMNS)
 
 
 def distribution_name(entry: BatchEntry) -> str:
@@ -143,12 +157,79 @@ class Sinks:
     sinks: tuple
 
     def __call__(self, entry: BatchEntry, result: InjectionResult) -> None:
+        """Call every sink in order with ``entry`` and ``result``."""
         for sink in self.sinks:
             sink(entry, result)
 
 
+def _csv_text(value: object) -> str:
+    """A CSV field (quoted when it holds a separator, quote or line break), ``%`` doubled
+    for the %-format it goes into.
+    """
+    text = str(value)
+    if any(ch in text for ch in ',"\r\n') or text != text.strip():
+        text = '"' + text.replace('"', '""') + '"'
+    return text.replace("%", "%%")
+
+
+def _curve_lines(entry: BatchEntry, curve: DistributionCurve) -> str:
+    """Rows of one injection in the long-form table (6 significant digits, CSV-quoted id)."""
+    cols = np.column_stack(curve.columns())
+    if cols.shape[0] == 0:
+        return ""
+    sid, file = _csv_text(entry.sample_id), _csv_text(entry.file)
+    line = f"{sid},{file},{int(entry.row)}," + ",".join(["%.6g"] * cols.shape[1]) + "\n"
+    return (line * cols.shape[0]) % tuple(cols.ravel().tolist())
+
+
+class DistributionsTable:
+    """Writes the long-form distributions table as the batch runs (an ``on_curve`` sink).
+
+    Use as a context manager around :func:`gpctools.batch.run_batch`: rows go to a
+    temporary file in the output folder as each injection arrives (in sheet order), and
+    the file is moved onto ``path`` only when the block ends without an exception, so a
+    reader never sees half a table. Memory does not grow with the batch.
+
+    Columns are :data:`CURVES_HEADER`. Tables of several runs (one per folder or
+    machine) concatenate cleanly: same header, one row per injection and bin, the
+    sample id, export file and sheet row on every row (the file, as in ``results.csv``,
+    tells injections of different sheets apart).
+
+    Examples
+    --------
+    >>> with DistributionsTable("out/distributions.csv") as table:    # doctest: +SKIP
+    ...     run_batch("batch.csv", method, on_curve=table)
+    """
+
+    def __init__(self, path: str | os.PathLike[str]) -> None:
+        self.path = Path(path)
+        self._context: Any = None
+        self._file: TextIO | None = None
+
+    def __enter__(self) -> DistributionsTable:
+        self._context = atomic_path(self.path)
+        tmp = self._context.__enter__()
+        self._file = open(tmp, "w", encoding="utf-8", newline="")  # noqa: SIM115 - closed in __exit__
+        self._file.write(",".join(CURVES_HEADER) + "\n")
+        return self
+
+    def __call__(self, entry: BatchEntry, curve: DistributionCurve) -> None:
+        """Append ``curve``'s rows for ``entry``."""
+        if self._file is None:
+            raise RuntimeError("DistributionsTable is written inside a 'with' block")
+        self._file.write(_curve_lines(entry, curve))
+
+    def __exit__(self, *exc: object) -> bool:
+        assert self._file is not None and self._context is not None
+        self._file.close()
+        self._file = None
+        context, self._context = self._context, None
+        return bool(context.__exit__(*exc))
+
+
 def write_batch(
-    result: BatchResult | SequenceRun, outdir: str | os.PathLike[str], *, distributions: bool = True
+    result: BatchResult | SequenceRun, outdir: str | os.PathLike[str], *, distributions: bool = True,
+    curves: bool = True,
 ) -> dict[str, Path]:
     """Write the outputs of a batch atomically (see the module docstring for the files).
 
@@ -160,6 +241,10 @@ def write_batch(
     distributions : bool
         Also write ``distributions/*.csv`` for the injections kept in ``result``; pass
         False when a :class:`DistributionWriter` already wrote them during the batch.
+    curves : bool
+        Also write the long-form ``distributions.csv`` for the injections kept in
+        ``result`` (when there are any); pass False when a :class:`DistributionsTable`
+        already wrote it during the batch.
 
     Returns
     -------
@@ -186,6 +271,12 @@ def write_batch(
                 extra = det.on_volume(res.distribution.volume) if det is not None else None
                 paths[f"{DISTRIBUTIONS}/{name}"] = write_distribution(out / DISTRIBUTIONS / name,
                                                                       res.distribution, extra)
+    kept = [(e, r) for e, r in zip(result.entries, result.injections) if r is not None]
+    if curves and kept:
+        with DistributionsTable(out / DISTRIBUTIONS_TABLE) as table:
+            for entry, res in kept:
+                table(entry, distribution_curve(res.distribution))
+        paths[DISTRIBUTIONS_TABLE] = out / DISTRIBUTIONS_TABLE
     manifest = {
         "gpctools": __version__,
         "batch sheet": result.sheet,

@@ -45,15 +45,20 @@ def distribution_tables(results: str | os.PathLike[str], sample_id: str) -> list
     Returns
     -------
     list of Path
-        ``<sample>_row<n>.csv`` files, one per injection (replicates), sorted; empty when
-        the folder or the files are not there.
+        ``<sample>_row<n>.csv`` files, one per injection (replicates), sorted; when there
+        are none, the batch's long-form ``distributions.csv`` if it is there (the reader
+        takes the sample's rows); empty otherwise.
     """
     folder = Path(results).parent / "distributions"
-    if not folder.is_dir():
-        return []
-    stem = safe_name(str(sample_id), default="sample")
-    return sorted(p for p in folder.glob(f"{stem}_row*.csv")
-                  if p.stem[len(stem):].startswith("_row") and p.stem[len(stem) + 4:].isdigit())
+    found: list[Path] = []
+    if folder.is_dir():
+        stem = safe_name(str(sample_id), default="sample")
+        found = sorted(p for p in folder.glob(f"{stem}_row*.csv")
+                       if p.stem[len(stem):].startswith("_row") and p.stem[len(stem) + 4:].isdigit())
+    long_form = Path(results).parent / "distributions.csv"
+    if not found and long_form.is_file():
+        found = [long_form]
+    return found
 
 
 def _curves_table(diagnosis: Diagnosis) -> pd.DataFrame:

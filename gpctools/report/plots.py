@@ -151,11 +151,24 @@ def png_bytes(fig: Any) -> bytes:
     bytes
         PNG image at :data:`DPI`.
     """
+    import matplotlib.image
     from matplotlib.backends.backend_agg import FigureCanvasAgg
 
-    FigureCanvasAgg(fig)
-    buf = io.BytesIO()
-    fig.savefig(buf, format="png", dpi=DPI, metadata={"Software": None})
+    # What savefig does for a PNG at the figure's own DPI (draw, then write the RGBA
+    # buffer), less its extra pass: with a layout engine, savefig first draws the whole
+    # figure with drawing disabled to place the Axes and then draws it again. A plain
+    # draw runs the layout engine itself, once, so the bytes are the same for about
+    # 20 % less time (issue 14).
+    canvas = FigureCanvasAgg(fig)
+    dpi = fig.dpi
+    fig.dpi = DPI
+    try:
+        canvas.draw()
+        buf = io.BytesIO()
+        matplotlib.image.imsave(buf, canvas.buffer_rgba(), format="png", origin="upper", dpi=DPI,
+                                metadata={"Software": None})  # type: ignore[dict-item]  # None drops the key
+    finally:
+        fig.dpi = dpi
     return buf.getvalue()
 
 
@@ -975,7 +988,8 @@ def plot_injection(result: Any, *, ax: Axes | None = None, title: str | None = N
 
 def plot_injection_distribution(result: Any, *, ax: Axes | None = None, title: str | None = None) -> Axes:
     """dw/dlogM of one :class:`gpctools.batch.InjectionResult` with Mn, Mw and Mp marked
-    (:func:`plot_distribution_review`); returns the Axes."""
+    (:func:`plot_distribution_review`); returns the Axes.
+    """
     d = result.distribution
     return plot_distribution_review(d.M, d.dwdlogM, marks={"Mn": d.Mn, "Mw": d.Mw, "Mp": d.Mp},
                                     title=title if title is not None else f"{result.sample_id}: dw/dlogM", ax=ax)

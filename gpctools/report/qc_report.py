@@ -244,6 +244,22 @@ def _folder_curves(folder: Path) -> list[tuple[str, str, np.ndarray, np.ndarray]
     return curves
 
 
+def _long_form_curves(path: Path) -> list[tuple[str, str, np.ndarray, np.ndarray]]:
+    """The curves of a batch's long-form ``distributions.csv`` (skipped when unreadable)."""
+    if not path.is_file():
+        return []
+    try:
+        d = pd.read_csv(path)
+        curves = []
+        for (sid, _, _), part in d.groupby(["sample_id", "file", "sheet row [-]"], sort=False):
+            row = int(part["sheet row [-]"].iloc[0])
+            curves.append(("all injections", f"{sid}_row{row}", part["M [g/mol]"].to_numpy(float),
+                           part["dw/dlogM [-]"].to_numpy(float)))
+        return curves
+    except (OSError, KeyError, ValueError, TypeError, pd.errors.ParserError):
+        return []
+
+
 def _from_file(path: Path, method: Any, calibration: Any) -> _Inputs:
     """Inputs from ``results.csv`` and what ``gpctools batch`` wrote beside it."""
     table = _read_results_table(path)
@@ -270,7 +286,8 @@ def _from_file(path: Path, method: Any, calibration: Any) -> _Inputs:
         inp.calibration = inp.method.calibration
     elif isinstance(info.get("calibration"), Mapping):
         inp.calibration = info["calibration"]
-    inp.curves.extend(_folder_curves(path.parent / "distributions"))
+    folder_curves = _folder_curves(path.parent / "distributions")
+    inp.curves.extend(folder_curves or _long_form_curves(path.parent / "distributions.csv"))
     return inp
 
 
