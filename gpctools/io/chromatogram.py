@@ -925,7 +925,12 @@ def _parse_lines(
     width: int,
     err: dict[str, Any],
 ) -> tuple[np.ndarray, np.ndarray]:
-    """Line-by-line parse of the data block; raises at the first bad line."""
+    """Line-by-line parse of the data block; raises at the first bad line.
+
+    The slow path, taken only when the fast parse refuses a piece: its length (about 85
+    lines) is the list of faults a line can have, each with its own message naming the
+    line and the field, checked in the order a reader would look for them.
+    """
     pat = number_pattern(d.decimal)
     rows: list[list[float]] = []
     nums: list[int] = []
@@ -1258,6 +1263,12 @@ def _read_xlsx_sheet(
     dec: str | None,
     channels: Any = None,
 ) -> Chromatogram:
+    """One worksheet as a chromatogram: header row, columns, cells, units and checks.
+
+    Long (about 100 lines) because it is the workbook twin of the text reader's steps in
+    one place, each with the message that names the sheet and cell; the steps share the
+    row list and the error context, and split apart they would only pass them around.
+    """
     name, raw = _xlsx.sheet_rows(path, wb, sheet)
     err: dict[str, Any] = {"path": path, "sheet": name}
     head_rows = raw[:SCAN_LINES]

@@ -159,6 +159,9 @@ def cld_slope(
 ) -> CLDSlope:
     """Chain-length-distribution slope Λ = −M0 d ln P(M)/dM near the distribution's peak.
 
+    About 80 lines: the window choice, the fit and its curvature check read as one
+    sequence, each step feeding the next and its warning.
+
     Parameters
     ----------
     M : array-like
