@@ -223,24 +223,12 @@ class SvgPlot:
     # -- axes -------------------------------------------------------------------------
     def _axes(self) -> list[str]:
         out = []
-        x0, x1 = self.xlim
-        if self.xlog:
-            xt = [float(e) for e in range(math.ceil(x0 - 1e-9), math.floor(x1 + 1e-9) + 1)]
-            labels = [_pow10(int(e)) for e in xt]
-        else:
-            xt = nice_ticks(x0, x1, 8)
-            labels = [escape(_tick_text(v)) for v in xt]
+        xt, labels = _ticks(*self.xlim, log=self.xlog, n=8)
         for v, lab in zip(xt, labels):
             X = float(self.px(v))
             out.append(f"<line x1='{X:.1f}' x2='{X:.1f}' y1='{self.top}' y2='{self.bottom}' stroke='{_GRID}'/>")
             out.append(f"<text x='{X:.1f}' y='{self.bottom + 14}' text-anchor='middle'>{lab}</text>")
-        y0, y1 = self.ylim
-        if self.ylog:
-            yt = [float(e) for e in range(math.ceil(y0 - 1e-9), math.floor(y1 + 1e-9) + 1)]
-            ylabels = [_pow10(int(e)) for e in yt]
-        else:
-            yt = nice_ticks(y0, y1, 4)
-            ylabels = [escape(_tick_text(v)) for v in yt]
+        yt, ylabels = _ticks(*self.ylim, log=self.ylog, n=4)
         for v, lab in zip(yt, ylabels):
             Y = float(self.py(v))
             out.append(f"<line x1='{self.left}' x2='{self.right}' y1='{Y:.1f}' y2='{Y:.1f}' stroke='{_GRID}'/>")
@@ -295,6 +283,17 @@ def padded(lo: float, hi: float, frac: float = 0.04) -> tuple[float, float]:
     """(lo, hi) widened by ``frac`` of the span on each side."""
     span = hi - lo if hi > lo else (abs(hi) or 1.0)
     return lo - frac * span, hi + frac * span
+
+
+def _ticks(lo: float, hi: float, *, log: bool, n: int) -> tuple[list[float], list[str]]:
+    """Tick positions and their labels: every decade on a log axis (values are log10),
+    else about ``n`` round numbers.
+    """
+    if log:
+        ticks = [float(e) for e in range(math.ceil(lo - 1e-9), math.floor(hi + 1e-9) + 1)]
+        return ticks, [_pow10(int(e)) for e in ticks]
+    ticks = nice_ticks(lo, hi, n)
+    return ticks, [escape(_tick_text(v)) for v in ticks]
 
 
 def finite_range(*arrays: Sequence[float] | np.ndarray) -> tuple[float, float]:
