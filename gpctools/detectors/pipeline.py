@@ -48,6 +48,7 @@ from .light_scattering import (
     LightScatteringOptions,
     LightScatteringResult,
     analyse_light_scattering,
+    recovery_warnings,
 )
 from .traces import DetectorTraces
 from .viscometry import (
@@ -522,6 +523,7 @@ def analyse_injection(volume: Any, channels: Mapping[str, Any], method: Detector
                       conventional: Mapping[str, float] | None = None,
                       calibration_log_M: Callable[[np.ndarray], np.ndarray] | None = None,
                       calibration_slope: Callable[[np.ndarray], np.ndarray] | None = None,
+                      injected_mass_mg: float | None = None,
                       name: str = "injection") -> DetectorResult:
     """All detector results of one injection.
 
@@ -549,6 +551,12 @@ def analyse_injection(volume: Any, channels: Mapping[str, Any], method: Detector
         light-scattering M(V) (:func:`calibration_shaped_fit`).
     calibration_slope : callable, optional
         V -> d log10 M/dV of the calibration the conventional averages used.
+    injected_mass_mg : float, optional
+        Polymer mass injected [mg] (the batch sheet's ``injected mass [mg]``). With the
+        concentration detector's constant known, ``mass recovery [%]`` =
+        100·m_eluted/m_injected, m_eluted = Σ c_i ΔV_i inside the limits (the trapezoid-free
+        sum of docs/detectors.md, section "Light scattering", step 7); below 95 % or above
+        105 % is a warning.
     name : str
         Sample id for messages.
     """
@@ -571,8 +579,20 @@ def analyse_injection(volume: Any, channels: Mapping[str, Any], method: Detector
         w = widths(V)
         c = traces[cdet.name] / cdet.factor
         vals[C.MASS_ELUTED] = 1e3 * float(np.sum(c[inside] * w[inside]))
+    if injected_mass_mg is not None:
+        vals[C.INJECTED_MASS] = float(injected_mass_mg)
+        if cdet.factor is None:
+            notes.append(f"{name}: no mass recovery: the concentration detector {cdet.name!r} has no "
+                         f"constant (give detectors.{cdet.name}.constant, or calibrate with a narrow standard "
+                         "of known injected mass)")
+        elif injected_mass_mg > 0:
+            rec = vals[C.MASS_ELUTED] / float(injected_mass_mg)
+            vals[C.MASS_RECOVERY] = 100.0 * rec
+            notes.extend(recovery_warnings(name, rec))
     if setup.of_kind("light scattering"):
-        ls = analyse_light_scattering(traces, setup, options=method.light_scattering, limits=(lo, hi))
+        ls = analyse_light_scattering(
+            traces, setup, options=method.light_scattering, limits=(lo, hi),
+            injected_mass=None if injected_mass_mg is None or cdet.factor is None else 1e-3 * injected_mass_mg)
         av, ob, M_ls = ls.averages, ls.averages_observed, ls.M_fit
         if method.fit_shape == "calibration" and calibration_log_M is not None and calibration_slope is not None:
             shaped = calibration_shaped_fit(ls, calibration_log_M, calibration_slope)
@@ -652,7 +672,8 @@ def analyse_injection(volume: Any, channels: Mapping[str, Any], method: Detector
                           warnings=tuple(dict.fromkeys(notes)))
 
 
-def for_injection(chromatogram: Any, volume: Any, result: Any, method: Any) -> DetectorResult:
+def for_injection(chromatogram: Any, volume: Any, result: Any, method: Any, *,
+                  injected_mass_mg: float | None = None) -> DetectorResult:
     """The detector results of one processed injection (the batch's one call).
 
     Parameters (duck-typed, so that this layer imports neither the reader's callers nor
@@ -667,6 +688,8 @@ def for_injection(chromatogram: Any, volume: Any, result: Any, method: Any) -> D
         windows, averages).
     method : gpctools.method.Method
         With ``detectors`` set.
+    injected_mass_mg : float, optional
+        Polymer mass injected [mg], for ``mass recovery [%]`` (:func:`analyse_injection`).
 
     The warnings of the analyses are returned in :attr:`DetectorResult.warnings` (and not
     issued again).
@@ -691,7 +714,8 @@ def for_injection(chromatogram: Any, volume: Any, result: Any, method: Any) -> D
             V, channels, method.detectors, signal_column=chromatogram.signal_column,
             limits=result.corrected.limits, baseline_windows=result.corrected.baseline.windows,
             conventional={"Mn": d.Mn, "Mw": d.Mw, "Mz": d.Mz}, calibration_log_M=standard_log_M,
-            calibration_slope=cal.dlogM_dV, name=result.sample_id or "injection")
+            calibration_slope=cal.dlogM_dV, injected_mass_mg=injected_mass_mg,
+            name=result.sample_id or "injection")
 
 
 def calibrate_with_standard(chromatogram: Any, volume: Any, result: Any, method: Any, standard: Any, *,
