@@ -60,7 +60,7 @@ from .viscometry import (
     viscosity_average_M,
 )
 
-__all__ = ["DetectorMethod", "DetectorResult", "ShapedFit", "calibration_shaped_fit", "analyse_injection", "assign_columns", "for_injection",
+__all__ = ["Alignment", "DetectorMethod", "DetectorResult", "ShapedFit", "calibration_shaped_fit", "analyse_injection", "assign_columns", "for_injection",
            "calibrate_with_standard", "setup_toml", "ANALYSIS_KEYS", "SLICE_COLUMNS"]
 
 #: Keys of ``[detectors.analysis]`` and what they mean (units in the docs and the template).
@@ -421,6 +421,59 @@ def calibration_shaped_fit(ls: LightScatteringResult, calibration_log_M: Callabl
                      averages_observed=av_obs)
 
 
+@dataclass(frozen=True)
+class Alignment:
+    """Every detector's trace on the concentration detector's volume axis, for plots.
+
+    Attributes
+    ----------
+    volume : numpy.ndarray
+        Flow-corrected volume of the concentration detector [mL] (the limits' axis, with
+        the baseline windows).
+    traces : dict
+        Detector name -> its baseline-corrected trace read at V + offset
+        (:func:`gpctools.detectors.traces.align`), one channel per detector: the
+        light-scattering angle nearest 90°, the viscometer's differential channel
+        [detector units].
+    offsets : dict
+        Detector name -> offset applied [mL] (0 for the concentration detector).
+    labels : dict
+        Detector name -> what the trace is (``"RI"``, ``"LS 90°"``, ``"viscometer DP"``).
+    concentration : str
+        Name of the concentration detector.
+    """
+
+    volume: np.ndarray
+    traces: dict[str, np.ndarray]
+    offsets: dict[str, float]
+    labels: dict[str, str]
+    concentration: str
+
+
+def _alignment(traces: DetectorTraces, setup: DetectorSetup) -> Alignment:
+    """One aligned channel per detector (see :class:`Alignment`)."""
+    from .traces import align
+
+    V = traces.volume
+    out: dict[str, np.ndarray] = {}
+    labels: dict[str, str] = {}
+    for det in setup.detectors:
+        y = np.asarray(traces[det.name], dtype=float)
+        label = det.kind
+        if y.ndim == 2:
+            j = 0
+            if isinstance(det, LightScatteringDetector):
+                j = int(np.argmin(np.abs(np.asarray(det.angles) - 90.0)))
+                label = f"LS {det.angles[j]:g}°"
+            elif isinstance(det, Viscometer):
+                label = "viscometer DP"
+            y = y[:, j]
+        out[det.name] = align(V, y, float(det.offset)) if det.name != setup.concentration else y
+        labels[det.name] = label
+    return Alignment(volume=V, traces=out, offsets={d.name: float(d.offset) for d in setup.detectors},
+                     labels=labels, concentration=setup.concentration)
+
+
 @dataclass(frozen=True, repr=False)
 class DetectorResult(Display):
     """Everything the detectors give for one injection.
@@ -437,6 +490,8 @@ class DetectorResult(Display):
     light_scattering, viscometry, composition, mark_houwink : the analyses' own results
         (None where not run), for summaries and plots.
     warnings : tuple of str
+    alignment : Alignment or None
+        Every detector's trace after the offsets, for the review page.
     """
 
     values: dict[str, Any]
@@ -448,6 +503,7 @@ class DetectorResult(Display):
     mark_houwink: MarkHouwinkFit | None = None
     shaped: ShapedFit | None = None
     warnings: tuple[str, ...] = ()
+    alignment: Alignment | None = None
 
     def row(self) -> dict[str, Any]:
         """The result-row values (every :data:`gpctools.columns.DETECTOR_COLUMNS`)."""
@@ -669,7 +725,7 @@ def analyse_injection(volume: Any, channels: Mapping[str, Any], method: Detector
             notes.extend(corr.warnings)
     return DetectorResult(values=vals, volume=Vin, slices=slices, light_scattering=ls, viscometry=visc,
                           composition=comp, mark_houwink=mhfit, shaped=shaped,
-                          warnings=tuple(dict.fromkeys(notes)))
+                          warnings=tuple(dict.fromkeys(notes)), alignment=_alignment(traces, setup))
 
 
 def for_injection(chromatogram: Any, volume: Any, result: Any, method: Any, *,

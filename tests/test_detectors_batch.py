@@ -1,5 +1,6 @@
-"""Mass recovery of injections processed with [detectors] (issue 16): the batch sheet gives
-the injected mass, the concentration detector gives the eluted mass.
+"""What `gpctools batch` adds for injections processed with [detectors] (issue 16): the mass
+recovery (the batch sheet gives the injected mass, the concentration detector the eluted
+mass) and the review page's plot of the aligned detector traces.
 
 Truth: the simulated concentration profile of an injection of mass m has area
 ∫c dV = m (gpctools.simulate.multi_detector_traces builds W(V) = m·dw/dlog M·|dlog M/dV|,
@@ -119,3 +120,38 @@ def test_mass_in_micrograms_is_converted(tmp_path):
     sheet.write_text("sample_id,file,injected mass [µg]\na,x.csv,150\n", encoding="utf-8")
     (entry,) = read_batch_sheet(sheet)
     assert entry.problem is None and entry.injected_mass == pytest.approx(0.15)  # 150 µg = 0.15 mg
+
+
+def test_review_page_shows_the_aligned_detector_traces(run, cli_runner, tmp_path):
+    import re
+
+    from gpctools.batch import process_injection
+    from gpctools.method import load_method
+    from gpctools.report.review import detectors_svg
+
+    out = tmp_path / "out"
+    res = cli_runner.invoke(app, ["batch", str(run / "batch.csv"), "-m", str(run / "m.toml"), "-o", str(out)])
+    assert res.exit_code == 0, res.output
+    page = (out / "review.html").read_text(encoding="utf-8")
+    # one aligned-traces panel per injection drawn, each with the light-scattering offset in its legend
+    assert len(re.findall(r"aria-label='[^']*: detector traces aligned'", page)) == 4
+    assert page.count("LS 90°, +0.100 mL") == 4
+    assert "ls (LS 90°) +0.1000 mL" in page  # the caption
+    assert "<th>mass recovery [%]</th>" in page  # and the numbers beside the plots
+    # what the panel draws: the LS trace read at V + 0.1 mL, i.e. its raw maximum moved 0.1 mL earlier
+    # (the simulated plumbing offset; one slice of 0.005 mL tolerance)
+    method = load_method(run / "m.toml")
+    inj = process_injection(run / "x.csv", method)
+    al = inj.detectors.alignment
+    V = al.volume
+    from gpctools.io import read_chromatogram
+    raw = read_chromatogram(run / "x.csv", channels="all").channels["LS 90 [mV]"]
+    shift = V[int(np.argmax(raw))] - V[int(np.argmax(al.traces["ls"]))]
+    assert abs(shift - 0.1) <= 0.0051
+    assert al.offsets == {"ri": 0.0, "ls": 0.1}
+    # a method without [detectors] draws no such panel
+    plain = load_method(run / "m.toml")
+    import dataclasses
+    plain = dataclasses.replace(plain, detectors=None)
+    conv = process_injection(run / "x.csv", plain)
+    assert conv.detectors is None and detectors_svg(conv, uid="x") == ("", "")
