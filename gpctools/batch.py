@@ -735,6 +735,7 @@ def process_injection(
     *,
     sample_id: str | None = None,
     marker_observed: float | None = None,
+    injected_mass: float | None = None,
 ) -> InjectionResult:
     """Read and process one slice export.
 
@@ -757,6 +758,9 @@ def process_injection(
     marker_observed : float, optional
         Observed flow-marker position [mL]; otherwise searched for when the method has
         ``flow_marker.search``.
+    injected_mass : float, optional
+        Polymer mass injected [mg]: ``mass recovery [%]`` with ``[detectors]``
+        (:func:`gpctools.detectors.pipeline.analyse_injection`).
 
     Raises
     ------
@@ -779,8 +783,12 @@ def process_injection(
         if method.detectors is not None:  # [detectors]: gpctools.detectors.pipeline (issue 16)
             from .detectors.pipeline import for_injection
 
-            found = for_injection(chrom, V, res, method)
+            found = for_injection(chrom, V, res, method, injected_mass_mg=injected_mass)
             res = replace(res, detectors=found, warnings=(*res.warnings, *found.warnings))
+        elif injected_mass is not None:
+            res = replace(res, warnings=(*res.warnings, "injected mass given but the method has no [detectors] "
+                                                        "with a constant for the concentration detector: no mass "
+                                                        "recovery"))
     except GpcError as exc:
         if exc.path is None:
             exc.path = str(path)
@@ -818,6 +826,9 @@ class BatchEntry:
         That method file, resolved against the sheet's folder.
     overrides : MethodOverrides
         Settings the row changes in its method (limits, baseline windows).
+    injected_mass : float or None
+        Polymer mass injected [mg] (``injected mass [mg]``, or ``concentration [mg/mL]``
+        × ``injection volume [µL]``/1000).
     """
 
     row: int
@@ -831,6 +842,7 @@ class BatchEntry:
     method_file: str = ""
     method_path: Path | None = None
     overrides: MethodOverrides = field(default_factory=MethodOverrides)
+    injected_mass: float | None = None
 
 
 def read_batch_sheet(path: str | Path, *, sheet: str | int | None = None) -> list[BatchEntry]:
@@ -881,12 +893,41 @@ def _read_sheet(path: str | Path, sheet: str | int | None) -> tuple[list[BatchEn
         f = row["file"]
         fp = (p.parent / f) if f else p.parent
         overrides, problem = _row_overrides(row, table.columns)
+        mass, mass_problem = _row_injected_mass(row, table.columns)
         mf = row.get("method_file") or ""
         entries.append(BatchEntry(row.row, sid, f, fp, row.get("role", _sheet.ROLE_SAMPLE),
-                                  row.get("flow_marker"), dict(row.metadata), row.problem or problem,
-                                  mf, (p.parent / mf) if mf else None, overrides))
+                                  row.get("flow_marker"), dict(row.metadata), row.problem or problem or mass_problem,
+                                  mf, (p.parent / mf) if mf else None, overrides, mass))
     note = _replicate_note(entries, table.rows, p)
     return entries, ([] if note is None else [note])
+
+
+def _row_injected_mass(row: Any, columns: Any) -> tuple[float | None, str | None]:
+    """The injected mass of a row [mg] and the problem with it, as one line (or None).
+
+    ``injected mass [mg]``, or ``concentration [mg/mL]`` × ``injection volume [µL]``/1000
+    (mg/mL × µL = µg); both pair cells or neither; with both ways given they must agree
+    within 1 %.
+    """
+    from .sheets import BATCH
+
+    def header(name: str) -> str:
+        return columns.header(name) or BATCH.field(name).header
+
+    given = row.get("injected_mass")
+    c_name, v_name = _sheet.INJECTED_MASS_PAIR
+    c, v = row.get(c_name), row.get(v_name)
+    if (c is None) != (v is None):
+        empty = c_name if c is None else v_name
+        return None, str(row.error(
+            f"the injected mass needs {header(c_name)!r} and {header(v_name)!r}; fill "
+            f"{header(empty)!r}, or give {header('injected_mass')!r} instead", header(empty)))
+    from_pair = None if c is None else float(c) * float(v) / 1000.0
+    if given is not None and from_pair is not None and abs(float(given) / from_pair - 1.0) > 0.01:
+        return None, str(row.error(
+            f"{header('injected_mass')!r} is {float(given):g} mg but {header(c_name)!r} x {header(v_name)!r} "
+            f"gives {from_pair:g} mg: correct one of them, or empty one way", header("injected_mass")))
+    return (float(given) if given is not None else from_pair), None
 
 
 def _row_overrides(row: Any, columns: Any) -> tuple[MethodOverrides, str | None]:
@@ -1052,7 +1093,8 @@ def _run_entry(
                                  "a method for the whole batch"), None, None
     try:
         used = method.with_overrides(entry.overrides)
-        res = process_injection(entry.path, used, sample_id=entry.sample_id, marker_observed=entry.marker_observed)
+        res = process_injection(entry.path, used, sample_id=entry.sample_id, marker_observed=entry.marker_observed,
+                                injected_mass=entry.injected_mass)
         limits = _limit_columns(res, used)
         curve = distribution_curve(res.distribution, curve_step) if curve_step is not None else None
     except GpcError as exc:

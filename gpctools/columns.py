@@ -415,6 +415,11 @@ MW_LS = _column("Mw LS [g/mol]", "g/mol",
                 "corrected for band broadening")
 MZ_LS = _column("Mz LS [g/mol]", "g/mol", "absolute z-average molar mass by light scattering")
 DISPERSITY_LS = _column("dispersity LS [-]", "-", "Mw LS / Mn LS")
+U_MN_LS = _column("u(Mn LS) [g/mol]", "g/mol",
+                  "standard uncertainty of Mn LS from the noise of the slice molar masses: the covariance "
+                  "of the log M(V) fit propagated to Mn (delta method; without dn/dc, constants and offsets)")
+U_MW_LS = _column("u(Mw LS) [g/mol]", "g/mol",
+                  "standard uncertainty of Mw LS from the same fit covariance (noise part only)")
 MW_LS_AREAS = _column("Mw LS from areas [g/mol]", "g/mol",
                       "Mw from the light-scattering channel areas over the eluted mass, extrapolated "
                       "to zero angle: free of offsets, broadening and calibration")
@@ -433,6 +438,12 @@ CONFORMATION_SLOPE = _column("conformation slope [-]", "-",
                              "slope of log Rg against log M (about 0.58 for a coil in a good solvent)")
 MASS_ELUTED = _column("mass eluted [mg]", "mg",
                       "mass seen by the concentration detector inside the limits (its constant and dn/dc)")
+INJECTED_MASS = _column("injected mass [mg]", "mg",
+                        "polymer mass injected, from the batch sheet ('injected mass [mg]', or "
+                        "'concentration [mg/mL]' x 'injection volume [uL]')")
+MASS_RECOVERY = _column("mass recovery [%]", "%",
+                        "100 x mass eluted / injected mass (docs/detectors.md, section \"Light scattering\", step 7); "
+                        "below 95 % or above 105 % is flagged")
 INTRINSIC_VISCOSITY = _column("[eta] w [dL/g]", "dL/g",
                               "weight-average intrinsic viscosity, sum of eta_sp dV over the eluted mass "
                               "(offset- and broadening-free)")
@@ -467,9 +478,9 @@ DETECTOR_SCALE = _column("detector scale", "",
                          "'absolute, universal calibration with measured [eta]' or empty")
 
 #: Detector columns in table order (present when the method has [detectors]).
-DETECTOR_COLUMNS = (MN_LS, MW_LS, MZ_LS, DISPERSITY_LS, MW_LS_AREAS, U_MW_LS_AREAS, MN_LS_OBSERVED,
+DETECTOR_COLUMNS = (MN_LS, MW_LS, MZ_LS, DISPERSITY_LS, U_MN_LS, U_MW_LS, MW_LS_AREAS, U_MW_LS_AREAS, MN_LS_OBSERVED,
                     MW_LS_OBSERVED, LS_FIT_START, LS_FIT_END, RG_Z, RG_W, CONFORMATION_SLOPE,
-                    MASS_ELUTED, INTRINSIC_VISCOSITY, MV, MH_K, MH_A, MH_A_SE, MN_UNIVERSAL,
+                    MASS_ELUTED, INJECTED_MASS, MASS_RECOVERY, INTRINSIC_VISCOSITY, MV, MH_K, MH_A, MH_A_SE, MN_UNIVERSAL,
                     MW_UNIVERSAL, G_PRIME, COMPOSITION_A, MN_BROADENING, MW_BROADENING,
                     DISPERSITY_BROADENING, DETECTOR_SCALE)
 

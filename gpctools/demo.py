@@ -889,13 +889,14 @@ def write_detector_demo(folder: str | Path) -> dict[str, Any]:
                                            seed=4101, **common)
     write_text(folder / "standard_PS96k.csv", simulate.multi_detector_export(
         V, ch, metadata={"Sample": name, "Injected mass": "0.100 mg"}))
-    rows, truth = ["sample_id,file"], ["sample_id,file,Mn [g/mol],Mw [g/mol],LS offset [mL],viscometer offset [mL]"]
+    rows = ["sample_id,file,injected mass [mg]"]  # the mass gives the mass recovery of each injection
+    truth = ["sample_id,file,Mn [g/mol],Mw [g/mol],LS offset [mL],viscometer offset [mL]"]
     for i, (lot, Mn, b, m) in enumerate(p["lots"]):
         _, ch = simulate.multi_detector_traces(simulate.schulz_zimm(Mn, b), _lm_log_M, mass=m, K=p["K_LM"],
                                                a=p["a_LM"], dn_dc_ri=p["dn_dc_LM"], dn_dc_ls=p["dn_dc_LM"],
                                                seed=4200 + i, **common)
         write_text(folder / f"{lot}.csv", simulate.multi_detector_export(V, ch, metadata={"Sample": lot}))
-        rows.append(f"{lot},{lot}.csv")
+        rows.append(f"{lot},{lot}.csv,{1e3 * m:.3f}")
         truth.append(f"{lot},{lot}.csv,{Mn:.1f},{Mn * (b + 1) / b:.1f},{p['offsets']['ls']},{p['offsets']['visc']}")
     write_text(folder / "batch.csv", "\n".join(rows) + "\n")
     write_text(folder / "truth.csv", "\n".join(truth) + "\n")

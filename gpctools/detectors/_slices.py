@@ -17,7 +17,7 @@ from gpctools.distribution import averages, slice_widths
 from gpctools.errors import DataError
 from gpctools.sheets.cells import finite_or_none
 
-from ._common import LineFit, polyfit
+from ._common import LN10, LineFit, polyfit
 
 
 def window_mask(volume: np.ndarray, limits: tuple[float, float] | None) -> np.ndarray:
@@ -75,6 +75,8 @@ class LogMFit(Display):
         Slices fitted.
     residual_sd : float
         Scatter of log10 M_i about the fit [-].
+    covariance : numpy.ndarray or None
+        Covariance of ``coef`` (widened like ``stderr``), for :func:`averages_uncertainty`.
     """
 
     coef: tuple[float, ...]
@@ -84,6 +86,11 @@ class LogMFit(Display):
     M_range: tuple[float, float]
     n_points: int
     residual_sd: float
+    covariance: np.ndarray | None = None
+
+    def basis(self, volume: Any) -> np.ndarray:
+        """The fit's basis functions (V − V_c)^k at ``volume``, shape (n, order + 1)."""
+        return np.vander(np.asarray(volume, dtype=float) - self.center, self.order + 1, increasing=True)
 
     @property
     def order(self) -> int:
@@ -141,7 +148,101 @@ def fit_log_M(volume: np.ndarray, M: np.ndarray, mask: np.ndarray, order: int, w
                   n_points=n, residual_sd=f.residual_sd)
     ends = 10.0 ** fit.log_M(np.array([lo, hi]))
     return LogMFit(coef=fit.coef, stderr=fit.stderr, center=center, volume_range=(lo, hi),
-                   M_range=(float(ends[0]), float(ends[1])), n_points=n, residual_sd=f.residual_sd)
+                   M_range=(float(ends[0]), float(ends[1])), n_points=n, residual_sd=f.residual_sd,
+                   covariance=np.array(f.covariance, dtype=float))
+
+
+def robust_covariance(basis: np.ndarray, residuals: np.ndarray) -> np.ndarray:
+    """Covariance of least-squares coefficients that allows unequal scatter per slice.
+
+    The slice molar masses of light scattering are ratios of two small signals at the ends
+    of the good-signal range, so their scatter grows towards the ends, where the points
+    also weigh most on the slope; the ordinary s²(XᵀX)⁻¹ then understates the slope's
+    uncertainty. The heteroscedasticity-consistent ("sandwich") form
+    (XᵀX)⁻¹ Xᵀ diag(r²) X (XᵀX)⁻¹ (White, Econometrica 48 (1980) 817, from memory), scaled by
+    n/(n − p) and widened by the lag-1 autocorrelation factor (1 + ρ)/(1 − ρ) of the
+    residuals (as :func:`gpctools.detectors._common.polyfit` does), is used instead.
+    """
+    X = np.asarray(basis, dtype=float)
+    r = np.asarray(residuals, dtype=float)
+    n, p = X.shape
+    inv = np.linalg.pinv(X.T @ X)
+    cov = inv @ (X.T * (r * r)) @ X @ inv * (n / max(n - p, 1))
+    denom = float(r @ r)
+    rho = float(r[1:] @ r[:-1]) / denom if n > 3 and denom > 0 else 0.0
+    if 0.0 < rho < 1.0:
+        cov = cov * (1.0 + rho) / (1.0 - rho)
+    return np.asarray(cov)
+
+
+def weights_noise_uncertainty(M: np.ndarray, c: np.ndarray, widths: np.ndarray, volume: np.ndarray,
+                              sigma: float, centres: tuple[float, float],
+                              counts: tuple[int, int]) -> dict[str, float]:
+    r"""Relative standard uncertainty [-] of Mn and Mw from white noise on the concentration trace.
+
+    With S_k = Σ c_i ΔV_i M_i^k, Mn = S_0/S_{-1} and Mw = S_1/S_0. Each c_i carries white
+    noise of SD σ and the error of the straight baseline through the two window means
+    (variance σ²/n_j each), e1·(1 − λ_i) + e2·λ_i with λ_i = (V_i − V̄_1)/(V̄_2 − V̄_1). With
+    a_ik = ΔV_i M_i^k, cov(S_j, S_k) = σ²[Σ a_ij a_ik + A_j(1−λ)A_k(1−λ)/n_1 + A_jλ A_kλ/n_2]
+    and u²(ln S_a/S_b) = var S_a/S_a² + var S_b/S_b² − 2cov/(S_a S_b) (first-order
+    propagation, JCGM 100:2008, section 5.1.2). The same propagation as the conventional
+    noise part (docs/science.md, section 19.7), here with the light-scattering M(V).
+    """
+    ok = np.isfinite(M) & (M > 0) & np.isfinite(c)
+    if ok.sum() < 3 or not (math.isfinite(sigma) and sigma >= 0):
+        return {"Mn": math.nan, "Mw": math.nan}
+    m = M[ok] / float(np.median(M[ok]))
+    A = np.stack([widths[ok] / m, widths[ok], widths[ok] * m])  # k = -1, 0, 1
+    S = A @ c[ok]
+    cov = A @ A.T
+    (c1, c2), (n1, n2) = centres, counts
+    if n1 > 0 and n2 > 0 and math.isfinite(c1) and math.isfinite(c2) and c2 != c1:
+        lam = (volume[ok] - c1) / (c2 - c1)
+        u1, u2 = A @ (1.0 - lam), A @ lam
+        cov = cov + np.outer(u1, u1) / n1 + np.outer(u2, u2) / n2
+    cov = cov * sigma * sigma
+    out = {}
+    for key, (a, b) in (("Mn", (1, 0)), ("Mw", (2, 1))):
+        if not (S[a] > 0 and S[b] > 0):
+            out[key] = math.nan
+            continue
+        var = cov[a, a] / S[a] ** 2 + cov[b, b] / S[b] ** 2 - 2.0 * cov[a, b] / (S[a] * S[b])
+        out[key] = math.sqrt(max(float(var), 0.0))
+    return out
+
+
+def averages_uncertainty(M: np.ndarray, c: np.ndarray, widths: np.ndarray, basis: np.ndarray,
+                         covariance: np.ndarray) -> dict[str, float]:
+    """Relative standard uncertainty [-] of Mn and Mw from the covariance of a log10 M fit.
+
+    The slices' molar masses are M_i = 10^(Σ_k b_k φ_k(V_i)) and the averages
+    Mn = Σw_i/Σ(w_i/M_i), Mw = Σw_i M_i/Σw_i (w_i = c_i ΔV_i). Their gradients in the
+    coefficients are, exactly,
+
+        ∂ln Mn/∂b_k = ln10 · Σ(w_i/M_i)φ_ik / Σ(w_i/M_i),
+        ∂ln Mw/∂b_k = ln10 · Σ(w_i M_i)φ_ik / Σ(w_i M_i),
+
+    and the delta method (first-order propagation, JCGM 100:2008 "GUM", section 5.1.2)
+    gives u²(ln M) = gᵀ C g with C the coefficients' covariance. This is the noise part of
+    the light-scattering averages (scatter of the slice M about the fit, widened for serial
+    correlation); it leaves out dn/dc, the detector constants, the offsets and the
+    concentration trace's own noise (docs/detectors.md, section "Light scattering").
+    """
+    ok = np.isfinite(M) & (M > 0) & np.isfinite(c)
+    if ok.sum() < 3 or covariance is None:
+        return {"Mn": math.nan, "Mw": math.nan}
+    w = c[ok] * widths[ok]
+    phi = np.asarray(basis, dtype=float)[ok]
+    C = np.asarray(covariance, dtype=float)
+    out = {}
+    for key, weight in (("Mn", w / M[ok]), ("Mw", w * M[ok])):
+        total = float(np.sum(weight))
+        if not total > 0:
+            out[key] = math.nan
+            continue
+        g = LN10 * (weight @ phi) / total
+        out[key] = math.sqrt(max(float(g @ C @ g), 0.0))
+    return out
 
 
 def slice_averages(M: np.ndarray, c: np.ndarray, widths: np.ndarray, mask: np.ndarray) -> dict[str, float]:

@@ -59,6 +59,7 @@ __all__ = [
     "LightScatteringResult",
     "analyse_light_scattering",
     "rayleigh_ratios",
+    "recovery_warnings",
     "SLICE_COLUMNS",
 ]
 
@@ -435,14 +436,26 @@ def _warnings(name: str, logfit: LogMFit, V: np.ndarray, inside: np.ndarray, av:
             out.append(f"{name}: Mw from the fitted M(V) differs from Mw from the areas by {100 * dev:+.1f} %: "
                        "check the offset, the broadening and the good-signal range")
     if injected:
-        rec = mass / injected
-        if rec < 0.95:
-            out.append(f"{name}: mass recovery {100 * rec:.1f} % is below 95 %: adsorption, filtration loss, "
-                       "or a wrong dn/dc or RI constant")
-        elif rec > 1.05:
-            out.append(f"{name}: mass recovery {100 * rec:.1f} % is above 105 %: check dn/dc, the RI constant "
-                       "and the injected mass")
+        out.extend(recovery_warnings(name, mass / injected))
     return out
+
+
+def recovery_warnings(name: str, recovery: float) -> list[str]:
+    """The warning for a mass recovery (eluted/injected [-]) outside 0.95-1.05, or none.
+
+    The band is the usual acceptance of a mass balance in SEC (common practice): below it
+    adsorption, filtration loss, or a wrong dn/dc or detector constant; above it a wrong
+    dn/dc, constant or injected mass.
+    """
+    if not math.isfinite(recovery):
+        return []
+    if recovery < 0.95:
+        return [f"{name}: mass recovery {100 * recovery:.1f} % is below 95 %: adsorption, filtration loss, "
+                "or a wrong dn/dc or RI constant"]
+    if recovery > 1.05:
+        return [f"{name}: mass recovery {100 * recovery:.1f} % is above 105 %: check dn/dc, the RI constant "
+                "and the injected mass"]
+    return []
 
 
 def _size(fit: AngularFit, M: np.ndarray, c: np.ndarray, mask: np.ndarray) -> tuple[dict[str, float], ConformationFit | None]:

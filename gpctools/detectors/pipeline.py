@@ -40,7 +40,7 @@ from gpctools.display import Display
 from gpctools.errors import DataError, MethodError
 from gpctools.sheets.cells import finite_or_none
 
-from ._slices import widths
+from ._slices import averages_uncertainty, widths
 from .broadening import correct_averages
 from .composition import Composition, analyse_composition
 from .instrument import ConcentrationDetector, DetectorSetup, LightScatteringDetector, Viscometer
@@ -48,6 +48,7 @@ from .light_scattering import (
     LightScatteringOptions,
     LightScatteringResult,
     analyse_light_scattering,
+    recovery_warnings,
 )
 from .traces import DetectorTraces
 from .viscometry import (
@@ -59,7 +60,7 @@ from .viscometry import (
     viscosity_average_M,
 )
 
-__all__ = ["DetectorMethod", "DetectorResult", "ShapedFit", "calibration_shaped_fit", "analyse_injection", "assign_columns", "for_injection",
+__all__ = ["Alignment", "DetectorMethod", "DetectorResult", "ShapedFit", "calibration_shaped_fit", "analyse_injection", "assign_columns", "for_injection",
            "calibrate_with_standard", "setup_toml", "ANALYSIS_KEYS", "SLICE_COLUMNS"]
 
 #: Keys of ``[detectors.analysis]`` and what they mean (units in the docs and the template).
@@ -374,6 +375,7 @@ class ShapedFit(Display):
     M: np.ndarray
     averages: dict[str, float]
     averages_observed: dict[str, float]
+    covariance: np.ndarray | None = None
 
     def summary(self) -> dict[str, Any]:
         """Plain JSON-safe dict of the result, units in the keys (NaN and inf as None)."""
@@ -417,7 +419,60 @@ def calibration_shaped_fit(ls: LightScatteringResult, calibration_log_M: Callabl
         if D2 > 0:
             av = unbroadened_averages(av_obs, ls.broadening, D2)
     return ShapedFit(b0=b0, b1=b1, b0_stderr=f.stderr(0), b1_stderr=f.stderr(1), M=M, averages=av,
-                     averages_observed=av_obs)
+                     averages_observed=av_obs, covariance=np.array(f.covariance, dtype=float))
+
+
+@dataclass(frozen=True)
+class Alignment:
+    """Every detector's trace on the concentration detector's volume axis, for plots.
+
+    Attributes
+    ----------
+    volume : numpy.ndarray
+        Flow-corrected volume of the concentration detector [mL] (the limits' axis, with
+        the baseline windows).
+    traces : dict
+        Detector name -> its baseline-corrected trace read at V + offset
+        (:func:`gpctools.detectors.traces.align`), one channel per detector: the
+        light-scattering angle nearest 90°, the viscometer's differential channel
+        [detector units].
+    offsets : dict
+        Detector name -> offset applied [mL] (0 for the concentration detector).
+    labels : dict
+        Detector name -> what the trace is (``"RI"``, ``"LS 90°"``, ``"viscometer DP"``).
+    concentration : str
+        Name of the concentration detector.
+    """
+
+    volume: np.ndarray
+    traces: dict[str, np.ndarray]
+    offsets: dict[str, float]
+    labels: dict[str, str]
+    concentration: str
+
+
+def _alignment(traces: DetectorTraces, setup: DetectorSetup) -> Alignment:
+    """One aligned channel per detector (see :class:`Alignment`)."""
+    from .traces import align
+
+    V = traces.volume
+    out: dict[str, np.ndarray] = {}
+    labels: dict[str, str] = {}
+    for det in setup.detectors:
+        y = np.asarray(traces[det.name], dtype=float)
+        label = det.kind
+        if y.ndim == 2:
+            j = 0
+            if isinstance(det, LightScatteringDetector):
+                j = int(np.argmin(np.abs(np.asarray(det.angles) - 90.0)))
+                label = f"LS {det.angles[j]:g}°"
+            elif isinstance(det, Viscometer):
+                label = "viscometer DP"
+            y = y[:, j]
+        out[det.name] = align(V, y, float(det.offset)) if det.name != setup.concentration else y
+        labels[det.name] = label
+    return Alignment(volume=V, traces=out, offsets={d.name: float(d.offset) for d in setup.detectors},
+                     labels=labels, concentration=setup.concentration)
 
 
 @dataclass(frozen=True, repr=False)
@@ -436,6 +491,8 @@ class DetectorResult(Display):
     light_scattering, viscometry, composition, mark_houwink : the analyses' own results
         (None where not run), for summaries and plots.
     warnings : tuple of str
+    alignment : Alignment or None
+        Every detector's trace after the offsets, for the review page.
     """
 
     values: dict[str, Any]
@@ -447,6 +504,7 @@ class DetectorResult(Display):
     mark_houwink: MarkHouwinkFit | None = None
     shaped: ShapedFit | None = None
     warnings: tuple[str, ...] = ()
+    alignment: Alignment | None = None
 
     def row(self) -> dict[str, Any]:
         """The result-row values (every :data:`gpctools.columns.DETECTOR_COLUMNS`)."""
@@ -522,6 +580,7 @@ def analyse_injection(volume: Any, channels: Mapping[str, Any], method: Detector
                       conventional: Mapping[str, float] | None = None,
                       calibration_log_M: Callable[[np.ndarray], np.ndarray] | None = None,
                       calibration_slope: Callable[[np.ndarray], np.ndarray] | None = None,
+                      injected_mass_mg: float | None = None,
                       name: str = "injection") -> DetectorResult:
     """All detector results of one injection.
 
@@ -549,6 +608,12 @@ def analyse_injection(volume: Any, channels: Mapping[str, Any], method: Detector
         light-scattering M(V) (:func:`calibration_shaped_fit`).
     calibration_slope : callable, optional
         V -> d log10 M/dV of the calibration the conventional averages used.
+    injected_mass_mg : float, optional
+        Polymer mass injected [mg] (the batch sheet's ``injected mass [mg]``). With the
+        concentration detector's constant known, ``mass recovery [%]`` =
+        100·m_eluted/m_injected, m_eluted = Σ c_i ΔV_i inside the limits (the trapezoid-free
+        sum of docs/detectors.md, section "Light scattering", step 7); below 95 % or above
+        105 % is a warning.
     name : str
         Sample id for messages.
     """
@@ -571,12 +636,30 @@ def analyse_injection(volume: Any, channels: Mapping[str, Any], method: Detector
         w = widths(V)
         c = traces[cdet.name] / cdet.factor
         vals[C.MASS_ELUTED] = 1e3 * float(np.sum(c[inside] * w[inside]))
+    if injected_mass_mg is not None:
+        vals[C.INJECTED_MASS] = float(injected_mass_mg)
+        if cdet.factor is None:
+            notes.append(f"{name}: no mass recovery: the concentration detector {cdet.name!r} has no "
+                         f"constant (give detectors.{cdet.name}.constant, or calibrate with a narrow standard "
+                         "of known injected mass)")
+        elif injected_mass_mg > 0:
+            rec = vals[C.MASS_ELUTED] / float(injected_mass_mg)
+            vals[C.MASS_RECOVERY] = 100.0 * rec
+            notes.extend(recovery_warnings(name, rec))
     if setup.of_kind("light scattering"):
-        ls = analyse_light_scattering(traces, setup, options=method.light_scattering, limits=(lo, hi))
+        ls = analyse_light_scattering(
+            traces, setup, options=method.light_scattering, limits=(lo, hi),
+            injected_mass=None if injected_mass_mg is None or cdet.factor is None else 1e-3 * injected_mass_mg)
         av, ob, M_ls = ls.averages, ls.averages_observed, ls.M_fit
+        basis = ls.log_M_fit.basis(ls.volume)
         if method.fit_shape == "calibration" and calibration_log_M is not None and calibration_slope is not None:
             shaped = calibration_shaped_fit(ls, calibration_log_M, calibration_slope)
             av, ob, M_ls = shaped.averages, shaped.averages_observed, shaped.M
+            x = np.asarray(calibration_log_M(ls.volume), dtype=float)
+            basis = np.column_stack([np.ones_like(x), x])
+        u_rel = _ls_noise_uncertainty(ls, M_ls, basis, traces[cdet.name] / float(cdet.factor or 1.0), V,
+                                      baseline_windows)
+        vals.update({C.U_MN_LS: av["Mn"] * u_rel["Mn"], C.U_MW_LS: av["Mw"] * u_rel["Mw"]})
         vals.update({C.MN_LS: av["Mn"], C.MW_LS: av["Mw"], C.MZ_LS: av["Mz"], C.DISPERSITY_LS: av["dispersity"],
                      C.MW_LS_AREAS: ls.Mw_areas.value,
                      C.U_MW_LS_AREAS: 100.0 * ls.Mw_areas.stderr / ls.Mw_areas.value
@@ -649,10 +732,52 @@ def analyse_injection(volume: Any, channels: Mapping[str, Any], method: Detector
             notes.extend(corr.warnings)
     return DetectorResult(values=vals, volume=Vin, slices=slices, light_scattering=ls, viscometry=visc,
                           composition=comp, mark_houwink=mhfit, shaped=shaped,
-                          warnings=tuple(dict.fromkeys(notes)))
+                          warnings=tuple(dict.fromkeys(notes)), alignment=_alignment(traces, setup))
 
 
-def for_injection(chromatogram: Any, volume: Any, result: Any, method: Any) -> DetectorResult:
+def _ls_noise_uncertainty(ls: LightScatteringResult, M: np.ndarray, basis: np.ndarray, c_all: np.ndarray,
+                          V: np.ndarray, windows: Sequence[tuple[float, float]]) -> dict[str, float]:
+    """Noise part of u(Mn LS)/Mn LS and u(Mw LS)/Mw LS [-] (docs/detectors.md, "Light scattering").
+
+    Two independent parts in quadrature: the scatter of the slice molar masses about the
+    log M(V) fit (:func:`~._slices.robust_covariance` of the fitted coefficients through
+    the averages, :func:`~._slices.averages_uncertainty`), and the white noise of the
+    concentration trace in the averages' weights, with its baseline
+    (:func:`~._slices.weights_noise_uncertainty`, σ from the trace in the baseline
+    windows). Applied as relative values to the reported, broadening-corrected averages.
+    """
+    from ._slices import robust_covariance, weights_noise_uncertainty
+
+    ok = ls.good & np.isfinite(ls.M_slice) & (ls.M_slice > 0)
+    out = {"Mn": math.nan, "Mw": math.nan}
+    if ok.sum() <= basis.shape[1] + 1:
+        return out
+    y = np.log10(ls.M_slice[ok])
+    X = basis[ok]
+    coef, *_ = np.linalg.lstsq(X, y, rcond=None)
+    w = widths(ls.volume)
+    # the larger of the ordinary (widened for serial correlation, as _common.polyfit) and the
+    # sandwich covariance: on simulated injections each alone understated Mn or Mw by up to 1.6x
+    r = y - X @ coef
+    rr = float(r @ r)
+    rho = float(r[1:] @ r[:-1]) / rr if rr > 0 else 0.0
+    ols = rr / max(len(y) - X.shape[1], 1) * np.linalg.pinv(X.T @ X) * ((1.0 + rho) / (1.0 - rho) if 0.0 < rho < 1.0 else 1.0)
+    parts = [averages_uncertainty(M, ls.concentration, w, basis, cov) for cov in (robust_covariance(X, r), ols)]
+    fit = {k: max(p[k] for p in parts) for k in ("Mn", "Mw")}
+    sel = [(V >= a) & (V <= b) for a, b in windows]
+    counts = tuple(int(m.sum()) for m in sel)
+    base = np.concatenate([c_all[m] for m in sel]) if all(counts) else np.array([])
+    sigma = float(np.std(base, ddof=2)) if base.size > 4 else math.nan
+    centres = tuple(float(V[m].mean()) if m.any() else math.nan for m in sel)
+    conc = weights_noise_uncertainty(M, ls.concentration, w, ls.volume, sigma, (centres[0], centres[1]),
+                                     (counts[0], counts[1]))
+    for k in out:
+        out[k] = math.sqrt(fit[k] ** 2 + conc[k] ** 2) if math.isfinite(conc[k]) else fit[k]
+    return out
+
+
+def for_injection(chromatogram: Any, volume: Any, result: Any, method: Any, *,
+                  injected_mass_mg: float | None = None) -> DetectorResult:
     """The detector results of one processed injection (the batch's one call).
 
     Parameters (duck-typed, so that this layer imports neither the reader's callers nor
@@ -667,6 +792,8 @@ def for_injection(chromatogram: Any, volume: Any, result: Any, method: Any) -> D
         windows, averages).
     method : gpctools.method.Method
         With ``detectors`` set.
+    injected_mass_mg : float, optional
+        Polymer mass injected [mg], for ``mass recovery [%]`` (:func:`analyse_injection`).
 
     The warnings of the analyses are returned in :attr:`DetectorResult.warnings` (and not
     issued again).
@@ -691,7 +818,8 @@ def for_injection(chromatogram: Any, volume: Any, result: Any, method: Any) -> D
             V, channels, method.detectors, signal_column=chromatogram.signal_column,
             limits=result.corrected.limits, baseline_windows=result.corrected.baseline.windows,
             conventional={"Mn": d.Mn, "Mw": d.Mw, "Mz": d.Mz}, calibration_log_M=standard_log_M,
-            calibration_slope=cal.dlogM_dV, name=result.sample_id or "injection")
+            calibration_slope=cal.dlogM_dV, injected_mass_mg=injected_mass_mg,
+            name=result.sample_id or "injection")
 
 
 def calibrate_with_standard(chromatogram: Any, volume: Any, result: Any, method: Any, standard: Any, *,

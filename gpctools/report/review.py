@@ -12,7 +12,10 @@ from outside):
 * **injections**: per injection the raw trace with the fitted baseline, the baseline
   windows, the integration limits (the integrated area shaded), excluded regions and
   the flow marker, and below it dw/dlogM with Mn, Mw and Mp marked, beside a small
-  table of its numbers and warnings;
+  table of its numbers and warnings; with ``[detectors]`` a third plot of every detector
+  trace, each normalised to its maximum, on the concentration detector's volume axis after
+  the inter-detector offsets (the offsets in the legend and a caption), so that the
+  alignment can be seen;
 * **not shown** and **failed**: injections past the cap (listed with their averages)
   and rows that failed (with their message).
 
@@ -48,7 +51,7 @@ if TYPE_CHECKING:  # pragma: no cover
     from gpctools.batch import BatchEntry, BatchResult, InjectionResult
 
 __all__ = ["DEFAULT_LIMIT", "PARTS", "REVIEW_PAGE", "ReviewSink", "injection_fragment", "review_rows",
-           "write_review", "calibration_svg", "overlay_svg"]
+           "write_review", "calibration_svg", "overlay_svg", "detectors_svg"]
 
 #: Injections drawn on the page by default (the rest are listed in a table).
 DEFAULT_LIMIT = 100
@@ -134,14 +137,61 @@ def distribution_svg(res: InjectionResult, *, uid: str, title: str = "") -> tupl
     return p.render(label=f"{title}: molar-mass distribution"), _round(x), _round(y)
 
 
+def detectors_svg(res: InjectionResult, *, uid: str, title: str = "") -> tuple[str, str]:
+    """SVG of every detector's trace on the concentration detector's volume axis after
+    the inter-detector offsets, each normalised to its own maximum inside the plotted
+    range, and a one-line caption with the offsets; ``("", "")`` without ``[detectors]``.
+
+    A trace read at V + Δ (docs/detectors.md, section "The detector set-up") lines up
+    with the concentration trace when the offset Δ is right; a peak that still leads or
+    trails shows a wrong offset (a light-scattering peak of a broad sample sits a little
+    earlier than the RI peak even when Δ is right: it weights by M).
+    """
+    found = getattr(res, "detectors", None)
+    al = getattr(found, "alignment", None)
+    if al is None or not al.traces:
+        return "", ""
+    V = np.asarray(al.volume, dtype=float)
+    l0, l1 = sorted(float(v) for v in res.corrected.limits)
+    span = l1 - l0
+    x0, x1 = max(float(V.min()), l0 - 0.4 * span), min(float(V.max()), l1 + 0.4 * span)
+    sel = (V >= x0) & (V <= x1)
+    p = SvgPlot(padded(x0, x1, 0.0), (-0.08, 1.08), uid=uid, title=title,
+                xlabel="elution volume of the concentration detector (flow-corrected) [mL]",
+                ylabel="signal / its maximum [-]")
+    p.vline(l0, colour=_LIMIT, width=1.0, label="integration limits")
+    p.vline(l1, colour=_LIMIT, width=1.0)
+    parts = []
+    names = [al.concentration] + [n for n in al.traces if n != al.concentration]
+    for k, name in enumerate(names):
+        y = np.asarray(al.traces[name], dtype=float)[sel]
+        top = float(np.nanmax(y)) if y.size and np.isfinite(y).any() else 0.0
+        if not top > 0:
+            continue
+        x, yy = downsample(V[sel], y / top, BUCKETS)
+        colour, dash = style_of(k)
+        off = al.offsets.get(name, 0.0)
+        label = (f"{al.labels[name]}, reference" if name == al.concentration
+                 else f"{al.labels[name]}, {off:+.3f} mL")
+        p.line(x, yy, colour=colour, dash=dash, width=1.3, label=label)
+        if name != al.concentration:
+            parts.append(f"{name} ({al.labels[name]}) {off:+.4f} mL")
+    caption = ("offsets applied (detector volume after the concentration detector " + al.concentration + "): "
+               + ("; ".join(parts) if parts else "none")
+               + ". Even with the right offsets a light-scattering peak of a broad sample comes earlier than "
+                 "the concentration peak (it weights each slice by M), a viscometer peak too (by M^a).")
+    return p.render(label=f"{title}: detector traces aligned"), caption
+
+
 def injection_fragment(entry: BatchEntry, res: InjectionResult) -> dict[str, Any]:
-    """Everything the page shows of one injection (JSON-safe): two SVGs, the overlay
-    curve and the numbers as text.
+    """Everything the page shows of one injection (JSON-safe): two SVGs (three with
+    ``[detectors]``), the overlay curve and the numbers as text.
     """
     title = f"{entry.sample_id} (row {entry.row})"
     uid = f"r{entry.row}"
     d = res.distribution
     dist_svg, lx, ly = distribution_svg(res, uid=uid + "d", title=title)
+    det_svg, det_caption = detectors_svg(res, uid=uid + "a", title=title)
     bw = res.corrected.baseline.windows
     lim = res.corrected.limits
     numbers = [
@@ -155,6 +205,12 @@ def injection_fragment(entry: BatchEntry, res: InjectionResult) -> dict[str, Any
         (C.FLOW_MARKER, "-" if res.marker_observed is None else f"{res.marker_observed:.3f}"),
         (C.MN_SHIFT_LOW_M, F.percent(res.Mn_shift_pct, sign=True)),
     ]
+    found = getattr(res, "detectors", None)
+    if found is not None:  # [detectors]: the absolute averages and the mass balance, where computed
+        for col in (C.MN_LS, C.MW_LS, C.MASS_RECOVERY):
+            v = found.values.get(col, math.nan)
+            if isinstance(v, float) and math.isfinite(v):
+                numbers.append((col, F.percent(v, decimals=1) if col == C.MASS_RECOVERY else F.molar_mass(v)))
     meta = entry.metadata or {}
     product = meta.get("product")
     return {
@@ -166,6 +222,8 @@ def injection_fragment(entry: BatchEntry, res: InjectionResult) -> dict[str, Any
         "title": title,
         "trace_svg": trace_svg(res, uid=uid + "t", title=title),
         "dist_svg": dist_svg,
+        "detectors_svg": det_svg,
+        "detectors_caption": det_caption,
         "logM": lx,
         "dwdlogM": ly,
         "numbers": numbers,
@@ -202,6 +260,7 @@ class ReviewSink:
             frag = {"row": entry.row, "sample_id": entry.sample_id, "file": entry.file, "role": entry.role,
                     "product": str((entry.metadata or {}).get("product") or ""),
                     "title": f"{entry.sample_id} (row {entry.row})", "trace_svg": "", "dist_svg": "",
+                    "detectors_svg": "", "detectors_caption": "",
                     "logM": [], "dwdlogM": [], "numbers": [],
                     "warnings": [f"the review plots could not be drawn: {type(exc).__name__}: {exc}"]}
         write_text(Path(self.folder) / _fragment_name(entry.row), json.dumps(frag, separators=(",", ":")))

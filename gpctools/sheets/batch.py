@@ -29,6 +29,13 @@ column                     meaning
 ``baseline 1 end [mL]``,   of that injection
 ``baseline 2 start [mL]``,
 ``baseline 2 end [mL]``
+``injected mass [mg]``     optional (also ``mass injected``; ``[µg]``, ``[g]``
+                           accepted): polymer mass injected, for ``mass
+                           recovery [%]`` of a method with ``[detectors]``
+``concentration [mg/mL]``  optional pair instead of the injected mass (also
+``injection volume [µL]``  ``sample concentration``, ``[g/L]``; ``injection
+                           volume`` also ``[mL]``): mass = c·V_inj; with both
+                           ways in one row they must agree within 1 %
 anything else              free metadata (``product``, ``batch``, ``sequence``,
                            ``assigned Mw [g/mol]``, ...), copied to the results
 =========================  ======================================================
@@ -50,7 +57,7 @@ from gpctools.sheets.cells import choice_key
 from gpctools.sheets.schema import Field, SheetSchema
 
 __all__ = ["ROLES", "ROLE_SAMPLE", "ROLE_CHECK", "ROLE_BLANK", "ROLE_CALIBRATION", "ROLE_REPLICATE",
-           "ROLE_CHOICES", "BATCH", "role_of", "OVERRIDE_PAIRS"]
+           "ROLE_CHOICES", "BATCH", "role_of", "OVERRIDE_PAIRS", "INJECTED_MASS_PAIR"]
 
 ROLE_SAMPLE = "sample"
 ROLE_CHECK = "check_standard"
@@ -128,6 +135,16 @@ BATCH = SheetSchema(
               unit="mL", minimum=0.0, example="21.0", meaning="second baseline window, start"),
         Field("baseline_2_end", "baseline 2 end [mL]", aliases=("baseline window 2 end",),
               unit="mL", minimum=0.0, example="22.0", meaning="second baseline window, end"),
+        Field("injected_mass", "injected mass [mg]", aliases=("mass injected", "injected mass"),
+              unit="mg", conversions={"µg": (1e-3, 0.0), "g": (1e3, 0.0)}, minimum=0.0, min_open=True,
+              example="0.2", meaning="polymer mass injected (for the mass recovery of [detectors])"),
+        Field("sample_concentration", "concentration [mg/mL]",
+              aliases=("sample concentration", "concentration"), unit="mg/mL",
+              conversions={"g/L": (1.0, 0.0)}, minimum=0.0, min_open=True, example="2.0",
+              meaning="polymer concentration of the injected solution (with the injection volume)"),
+        Field("injection_volume", "injection volume [µL]", aliases=("injection volume", "inj volume"),
+              unit="µL", conversions={"mL": (1e3, 0.0)}, minimum=0.0, min_open=True, example="100",
+              meaning="volume injected (with the concentration)"),
     ),
     template="batch.csv",
     column_error=InputFormatError,
@@ -142,3 +159,6 @@ OVERRIDE_PAIRS = (
     ("baseline windows", ("baseline_1_start", "baseline_1_end", "baseline_2_start",
                           "baseline_2_end")),
 )
+
+#: Columns that give the injected mass together (concentration [mg/mL] x volume [µL] / 1000 = mg).
+INJECTED_MASS_PAIR = ("sample_concentration", "injection_volume")
