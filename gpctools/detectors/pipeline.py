@@ -148,6 +148,9 @@ class DetectorMethod(Display):
                      mark_houwink: Mapping[str, float] | None = None) -> DetectorMethod:
         """Check a parsed ``[detectors]`` table (see ``docs/detectors.md`` and the template).
 
+        About 90 lines: one check per key, in the order of the template, each with the
+        message that names its dotted key.
+
         ``mark_houwink`` is the method's checked ``[mark_houwink]`` values (K_standard,
         a_standard, K_sample, a_sample), used where the analysis table gives none.
 
@@ -583,6 +586,11 @@ def analyse_injection(volume: Any, channels: Mapping[str, Any], method: Detector
                       injected_mass_mg: float | None = None,
                       name: str = "injection") -> DetectorResult:
     """All detector results of one injection.
+
+    Long (about 100 lines) because it is the order of the analysis itself: align the
+    channels, concentration, light scattering, viscometry, composition, broadening,
+    recovery; each step reads what the one before produced, and the warnings of all
+    steps are gathered in one place.
 
     Parameters
     ----------
