@@ -588,8 +588,8 @@ def analyse_injection(volume: Any, channels: Mapping[str, Any], method: Detector
     """All detector results of one injection.
 
     Long (about 100 lines) because it is the order of the analysis itself: align the
-    channels, concentration, light scattering, viscometry, composition, broadening,
-    recovery; each step reads what the one before produced, and the warnings of all
+    channels, concentration and mass recovery, light scattering, viscometry, composition,
+    broadening; each step reads what the one before produced, and the warnings of all
     steps are gathered in one place.
 
     Parameters
