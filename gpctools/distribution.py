@@ -299,7 +299,8 @@ def _real_roots(c: np.ndarray) -> np.ndarray:
     scale = float(np.max(np.abs(c))) if c.size else 0.0
     if scale == 0.0:
         return np.array([])
-    c = np.polynomial.polynomial.polytrim(c, 1e-12 * scale)
+    big = np.flatnonzero(np.abs(c) > 1e-12 * scale)  # numpy's polytrim, without its generic checks
+    c = c[: int(big[-1]) + 1]
     if c.size <= 1:
         return np.array([])
     if c.size == 2:
@@ -334,6 +335,20 @@ def _horner(c: np.ndarray, x: Any) -> Any:
     return c0
 
 
+def _vander(t: np.ndarray, degree: int) -> np.ndarray:
+    """Powers t^0 ... t^degree as columns, shape (n, degree + 1): the same products, in the
+    same memory layout, as ``numpy.polynomial.polynomial.polyvander`` for a 1-D ``t``,
+    without its generic argument handling (issue 14).
+    """
+    v = np.empty((degree + 1, t.size))
+    v[0] = t * 0 + 1
+    if degree > 0:
+        v[1] = t
+        for i in range(2, degree + 1):
+            v[i] = v[i - 1] * t
+    return v.T
+
+
 def _fit_log_poly(x: np.ndarray, y: np.ndarray, x0: float, degree: int) -> tuple[float, float, float] | None:
     """Maximum of a weighted polynomial fit to ln y: (position, height, stderr) or None.
 
@@ -350,7 +365,7 @@ def _fit_log_poly(x: np.ndarray, y: np.ndarray, x0: float, degree: int) -> tuple
         return None
     sc = float(np.max(np.abs(x - x0))) or 1.0
     t = (x - x0) / sc
-    X = np.polynomial.polynomial.polyvander(t, degree)
+    X = _vander(t, degree)
     W = y * y
     A = X.T @ (X * W[:, None])
     try:

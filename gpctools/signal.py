@@ -455,7 +455,18 @@ def fit_baseline(
     Baseline
     """
     V, h, order = _as_trace(volume, signal)
-    V, h = V[order], h[order]
+    return _fit_baseline_sorted(V[order], h[order], windows, exclusions, noise, search)
+
+
+def _fit_baseline_sorted(
+    V: np.ndarray,
+    h: np.ndarray,
+    windows: Sequence[Window] | None,
+    exclusions: Sequence[Window],
+    noise: float | None,
+    search: Window | None,
+) -> Baseline:
+    """:func:`fit_baseline` on a trace already checked and sorted by volume."""
     if windows is not None:
         windows = tuple((float(a), float(b)) for a, b in windows)
         if len(windows) != 2:
@@ -582,7 +593,13 @@ def find_limits(
     of running through it.
     """
     V, c, order = _as_trace(volume, corrected)
-    V, c = V[order], c[order]
+    return _find_limits_sorted(V[order], c[order], noise, exclusions, search)
+
+
+def _find_limits_sorted(
+    V: np.ndarray, c: np.ndarray, noise: float, exclusions: Sequence[Window], search: Window | None
+) -> Window:
+    """:func:`find_limits` on a trace already checked and sorted by volume."""
     valid = ~_window_mask(V, exclusions)
     start, _, end = _peak_region(V, c, valid, noise, searchable=_search_mask(V, valid, search),
                                  stop_at_outside_peaks=search is not None)
@@ -661,7 +678,7 @@ def correct_signal(
         if not a < b:
             raise DataError(f"excluded region {a:g}-{b:g} mL: start must be below end")
     sigma = noise_level(h[~_window_mask(V, exclusions)]) if (windows is None or limits is None) else None
-    base = fit_baseline(V, h, windows, exclusions=exclusions, noise=sigma, search=search)
+    base = _fit_baseline_sorted(V, h, windows, exclusions, sigma, search)
     corrected = h - base(V)
     notes: list[str] = []
     if search is not None and sigma is not None:
@@ -670,7 +687,10 @@ def correct_signal(
             notes.append(note)
     if limits is None:
         assert sigma is not None  # computed above whenever the limits are automatic
-        limits = find_limits(V, corrected, noise=sigma, exclusions=exclusions, search=search)
+        if float(np.abs(corrected).max()) <= HUGE_VALUE:  # finite and checked: no need to check again
+            limits = _find_limits_sorted(V, corrected, sigma, exclusions, search)
+        else:  # the public function names the bad slice
+            limits = find_limits(V, corrected, noise=sigma, exclusions=exclusions, search=search)
         # never integrate into the baseline windows themselves
         (_, before_end), (after_start, _) = base.windows
         lo = max(limits[0], before_end) if before_end < limits[1] else limits[0]
