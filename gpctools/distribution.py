@@ -296,10 +296,29 @@ def _real_roots(c: np.ndarray) -> np.ndarray:
     a top coefficient below 1e-12 of the largest is dropped first.
     """
     c = np.asarray(c, dtype=float)
+    cl = [float(v) for v in c] if c.size <= 3 else []
+    if cl and all(map(math.isfinite, cl)):  # the closed forms on Python floats (the same IEEE operations)
+        scale = max((abs(v) for v in cl), default=0.0)
+        if scale == 0.0:
+            return np.array([])
+        while abs(cl[-1]) <= 1e-12 * scale:  # numpy's polytrim
+            cl.pop()
+        if len(cl) <= 1:
+            return np.array([])
+        if len(cl) == 2:
+            return np.array([-cl[0] / cl[1]])
+        cc, b, a = cl
+        disc = b * b - 4 * a * cc
+        if disc < 0:
+            return np.array([])
+        q = -0.5 * (b + math.copysign(math.sqrt(disc), b))
+        return np.array([q / a] + ([cc / q] if q != 0 else []))
     scale = float(np.max(np.abs(c))) if c.size else 0.0
     if scale == 0.0:
         return np.array([])
     big = np.flatnonzero(np.abs(c) > 1e-12 * scale)  # numpy's polytrim, without its generic checks
+    if big.size == 0:  # NaN coefficients: polytrim leaves one (zeroed) coefficient
+        return np.array([])
     c = c[: int(big[-1]) + 1]
     if c.size <= 1:
         return np.array([])
