@@ -387,8 +387,9 @@ def _fit_log_poly(x: np.ndarray, y: np.ndarray, x0: float, degree: int) -> tuple
     X = _vander(t, degree)
     W = y * y
     A = X.T @ (X * W[:, None])
+    ln_y = np.log(y)
     try:
-        coef = np.linalg.solve(A, X.T @ (W * np.log(y)))
+        coef = np.linalg.solve(A, X.T @ (W * ln_y))
     except np.linalg.LinAlgError:
         return None
     d1 = _derivative(coef)
@@ -403,7 +404,7 @@ def _fit_log_poly(x: np.ndarray, y: np.ndarray, x0: float, degree: int) -> tuple
     stderr = math.nan
     dof = x.size - p
     if dof > 0:
-        resid = np.log(y) - X @ coef
+        resid = ln_y - X @ coef
         s2 = float((W * resid * resid).sum()) / dof
         try:
             cov = s2 * np.linalg.inv(A)

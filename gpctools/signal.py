@@ -830,8 +830,7 @@ def _maxima_with_dips(y: np.ndarray, delta: float) -> list[int]:
     maxima: list[int] = []
     hi, hi_i, lo = -math.inf, 0, math.inf
     looking_for_max = True
-    for i in points.tolist():
-        v = float(y[i])
+    for i, v in zip(points.tolist(), y[points].tolist()):
         if looking_for_max:
             if v > hi:
                 hi, hi_i = v, i
