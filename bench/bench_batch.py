@@ -6,6 +6,7 @@ Usage::
     python bench/bench_batch.py                       # everything, N = 100, 300, 1000
     python bench/bench_batch.py --n 1000 --skip-demo  # the batch ratio only (and start-up)
     python bench/bench_batch.py --xlsx                # results workbook: writers compared
+    python bench/bench_batch.py --per-injection       # one process: reading and measurement [ms]
 
 What is measured, each in a fresh process started from here (so interpreter start and
 imports count on both sides):
@@ -26,6 +27,11 @@ imports count on both sides):
   single process (``getrusage(RUSAGE_CHILDREN).ru_maxrss`` of a wrapper process);
 * **start-up**: ``gpctools --help`` against ``python -c "import typer"``, best of 5;
 * **series**: ``python bench/bench_transfer.py timing`` (100-run series, best of three);
+* **per injection** (``--per-injection`` alone): in this one process, the CPU time of
+  reading each of the first 200 exports (``read_chromatogram``, against pandas'
+  ``read_csv`` alone) and of the measurement on the trace read
+  (``gpctools.batch.process_trace``: flow marker, baseline, limits, distribution,
+  uncertainty, peaks), per injection, best of 7 passes;
 * **demo**: ``gpctools demo`` in an empty folder, best of ``--demo-repeat`` (3), and the
   time of each of its figures (``png_bytes``, timed in whichever process draws it;
   ``--figures`` alone).
@@ -284,6 +290,44 @@ def bench_figures() -> dict:
     return row
 
 
+def bench_per_injection(src: Path, n: int = 200, repeat: int = 7) -> dict:
+    """CPU time per injection in this process [ms]: reading, pandas' parser alone, measurement."""
+    import warnings
+
+    import pandas as pd
+
+    from gpctools.batch import process_trace, read_batch_sheet
+    from gpctools.io import read_chromatogram
+    from gpctools.method import load_method
+
+    entries = read_batch_sheet(src / "batch.csv")[:n]
+    method = load_method(src / "method.toml")
+    opts = method.import_options.as_kwargs()
+    traces = []
+    for e in entries:
+        c = read_chromatogram(e.path, **opts)
+        traces.append((c.to_volume(method.flow_rate), c.signal))
+
+    def best(fn) -> float:
+        times = []
+        for _ in range(repeat):
+            t0 = time.process_time()
+            fn()
+            times.append(time.process_time() - t0)
+        return 1e3 * min(times) / len(entries)
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        row = {
+            "injections": len(entries),
+            "read_chromatogram [ms]": round(best(lambda: [read_chromatogram(e.path, **opts) for e in entries]), 3),
+            "pandas read_csv alone [ms]": round(best(lambda: [pd.read_csv(e.path, skiprows=2) for e in entries]), 3),
+            "process_trace [ms]": round(best(lambda: [process_trace(V, h, method) for V, h in traces]), 3),
+        }
+    print(json.dumps(row), flush=True)
+    return row
+
+
 def bench_xlsx(table_csv: Path, repeat: int = 3) -> None:
     """Write a results table to XLSX with openpyxl (write-only) and with write_workbook."""
     import pandas as pd
@@ -327,6 +371,8 @@ def main() -> None:
     ap.add_argument("--skip-series", action="store_true")
     ap.add_argument("--xlsx", action="store_true", help="only compare the XLSX writers on a 1,000-row table")
     ap.add_argument("--figures", action="store_true", help="only time the demo's figures")
+    ap.add_argument("--per-injection", action="store_true",
+                    help="only time reading and measurement per injection in one process")
     args = ap.parse_args()
 
     if args.figures:
@@ -334,6 +380,9 @@ def main() -> None:
         return
     src = args.folder / "all"
     make_files(src, max(args.n))
+    if args.per_injection:
+        bench_per_injection(src)
+        return
     if args.xlsx:
         sheet = subset(src, args.folder / "n1000", 1000)
         out = Path(tempfile.mkdtemp(prefix="gpcbench-out-"))

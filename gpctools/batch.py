@@ -87,6 +87,7 @@ from .sheets import batch as _sheet
 from .signal import (
     CorrectedSignal,
     Peaks,
+    _mean,
     _median,
     correct_signal,
     find_peaks,
@@ -463,7 +464,7 @@ def _marker_candidate(volume: np.ndarray, signal: np.ndarray, window: tuple[floa
     V = volume[m][order]
     h = signal[m][order]
     k = max(1, V.size // 20)
-    line = np.interp(V, [V[:k].mean(), V[-k:].mean()], [h[:k].mean(), h[-k:].mean()])
+    line = np.interp(V, [_mean(V[:k]), _mean(V[-k:])], [_mean(h[:k]), _mean(h[-k:])])
     dev = h - line
     from .distribution import _smoothed
 

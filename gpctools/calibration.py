@@ -306,6 +306,8 @@ class Calibration(Display):
         Ve = np.clip(V, self.v_min, self.v_max)
         te = (Ve - self.center) / self.scale
         G = np.polynomial.polynomial.polyvander(te, self.order)
+        if np.array_equal(V, Ve):  # all inside: the tangent term below is exactly zero
+            return self.log_factor * np.ascontiguousarray(G)
         k = np.arange(self.order + 1)
         # derivative of t^k: k t^(k-1) (zero for k = 0)
         dG = np.zeros_like(G)

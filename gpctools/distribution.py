@@ -296,10 +296,30 @@ def _real_roots(c: np.ndarray) -> np.ndarray:
     a top coefficient below 1e-12 of the largest is dropped first.
     """
     c = np.asarray(c, dtype=float)
+    cl = [float(v) for v in c] if c.size <= 3 else []
+    if cl and all(map(math.isfinite, cl)):  # the closed forms on Python floats (the same IEEE operations)
+        scale = max((abs(v) for v in cl), default=0.0)
+        if scale == 0.0:
+            return np.array([])
+        while abs(cl[-1]) <= 1e-12 * scale:  # numpy's polytrim
+            cl.pop()
+        if len(cl) <= 1:
+            return np.array([])
+        if len(cl) == 2:
+            return np.array([-cl[0] / cl[1]])
+        cc, b, a = cl
+        disc = b * b - 4 * a * cc
+        if disc < 0:
+            return np.array([])
+        q = -0.5 * (b + math.copysign(math.sqrt(disc), b))
+        return np.array([q / a] + ([cc / q] if q != 0 else []))
     scale = float(np.max(np.abs(c))) if c.size else 0.0
     if scale == 0.0:
         return np.array([])
-    c = np.polynomial.polynomial.polytrim(c, 1e-12 * scale)
+    big = np.flatnonzero(np.abs(c) > 1e-12 * scale)  # numpy's polytrim, without its generic checks
+    if big.size == 0:  # NaN coefficients: polytrim leaves one (zeroed) coefficient
+        return np.array([])
+    c = c[: int(big[-1]) + 1]
     if c.size <= 1:
         return np.array([])
     if c.size == 2:
@@ -334,6 +354,20 @@ def _horner(c: np.ndarray, x: Any) -> Any:
     return c0
 
 
+def _vander(t: np.ndarray, degree: int) -> np.ndarray:
+    """Powers t^0 ... t^degree as columns, shape (n, degree + 1): the same products, in the
+    same memory layout, as ``numpy.polynomial.polynomial.polyvander`` for a 1-D ``t``,
+    without its generic argument handling (issue 14).
+    """
+    v = np.empty((degree + 1, t.size))
+    v[0] = t * 0 + 1
+    if degree > 0:
+        v[1] = t
+        for i in range(2, degree + 1):
+            v[i] = v[i - 1] * t
+    return v.T
+
+
 def _fit_log_poly(x: np.ndarray, y: np.ndarray, x0: float, degree: int) -> tuple[float, float, float] | None:
     """Maximum of a weighted polynomial fit to ln y: (position, height, stderr) or None.
 
@@ -350,11 +384,12 @@ def _fit_log_poly(x: np.ndarray, y: np.ndarray, x0: float, degree: int) -> tuple
         return None
     sc = float(np.max(np.abs(x - x0))) or 1.0
     t = (x - x0) / sc
-    X = np.polynomial.polynomial.polyvander(t, degree)
+    X = _vander(t, degree)
     W = y * y
     A = X.T @ (X * W[:, None])
+    ln_y = np.log(y)
     try:
-        coef = np.linalg.solve(A, X.T @ (W * np.log(y)))
+        coef = np.linalg.solve(A, X.T @ (W * ln_y))
     except np.linalg.LinAlgError:
         return None
     d1 = _derivative(coef)
@@ -369,7 +404,7 @@ def _fit_log_poly(x: np.ndarray, y: np.ndarray, x0: float, degree: int) -> tuple
     stderr = math.nan
     dof = x.size - p
     if dof > 0:
-        resid = np.log(y) - X @ coef
+        resid = ln_y - X @ coef
         s2 = float((W * resid * resid).sum()) / dof
         try:
             cov = s2 * np.linalg.inv(A)

@@ -219,6 +219,22 @@ def _median(values: np.ndarray) -> float:
     return float((p[k - 1] + p[k]) / 2.0)
 
 
+def _mean(x: np.ndarray) -> float:
+    """Mean of a 1-D float array, bit for bit ``x.mean()`` (numpy's pairwise sum divided
+    by the count) without the generic reduction wrapper (issue 14).
+    """
+    return float(np.add.reduce(x) / x.size)
+
+
+def _std1(x: np.ndarray) -> float:
+    """Sample SD (ddof = 1) of a 1-D float array of 2 or more values, bit for bit
+    ``x.std(ddof=1)``: the same operations in the same order (mean by pairwise sum,
+    squared deviations, pairwise sum, division by n - 1, square root).
+    """
+    d = x - np.add.reduce(x) / x.size
+    return math.sqrt(np.add.reduce(d * d) / (x.size - 1))
+
+
 def noise_level(signal: np.ndarray) -> float:
     """Robust white-noise SD from point-to-point differences [signal units].
 
@@ -265,7 +281,7 @@ def _line_through_windows(
                 "widen it or move it inside the recorded volume range "
                 f"({volume[0]:g}-{volume[-1]:g} mL)"
             )
-        pts.append((float(volume[sl].mean()), float(signal[sl].mean())))
+        pts.append((_mean(volume[sl]), _mean(signal[sl])))
         counts.append(int(count))
         resid_parts.append(sl)
     (v1, h1), (v2, h2) = pts
@@ -273,7 +289,7 @@ def _line_through_windows(
     intercept = h1 - slope * v1
     vv = np.concatenate([volume[sl] for sl in resid_parts])
     r = np.concatenate([signal[sl] for sl in resid_parts]) - (intercept + slope * vv)
-    noise = float(r.std(ddof=1)) if r.size > 2 else 0.0
+    noise = _std1(r) if r.size > 2 else 0.0
     return slope, intercept, noise, (v1, v2), (counts[0], counts[1])
 
 
@@ -300,6 +316,7 @@ def _peak_region(
     ref_scale: float | None = None,
     searchable: np.ndarray | None = None,
     stop_at_outside_peaks: bool = False,
+    sm: np.ndarray | None = None,
 ) -> tuple[int, int, int]:
     """Indices (start, peak, end) of the main peak where the smoothed signal exceeds a threshold.
 
@@ -308,11 +325,13 @@ def _peak_region(
     found by walking outwards over every non-excluded slice. With
     ``stop_at_outside_peaks`` a foot that lies beyond a separate peak outside the search
     range is moved back to the valley before that peak (:func:`_valley_before_outside_peak`):
-    a system peak touching the polymer's tail is then not integrated with it.
+    a system peak touching the polymer's tail is then not integrated with it. ``sm`` is
+    the moving average of ``corrected`` over max(3, n/200) slices when the caller has it.
     """
     n = corrected.size
     width = max(3, n // 200)
-    sm = _smooth(corrected, width)
+    if sm is None:
+        sm = _smooth(corrected, width)
     where = valid if searchable is None else searchable
     candidates = np.where(where, sm, -np.inf)
     ipk = int(np.argmax(candidates))
@@ -455,7 +474,18 @@ def fit_baseline(
     Baseline
     """
     V, h, order = _as_trace(volume, signal)
-    V, h = V[order], h[order]
+    return _fit_baseline_sorted(V[order], h[order], windows, exclusions, noise, search)
+
+
+def _fit_baseline_sorted(
+    V: np.ndarray,
+    h: np.ndarray,
+    windows: Sequence[Window] | None,
+    exclusions: Sequence[Window],
+    noise: float | None,
+    search: Window | None,
+) -> Baseline:
+    """:func:`fit_baseline` on a trace already checked and sorted by volume."""
     if windows is not None:
         windows = tuple((float(a), float(b)) for a, b in windows)
         if len(windows) != 2:
@@ -479,14 +509,14 @@ def fit_baseline(
     sigma = noise_level(h[valid]) if noise is None else float(noise)
     ref_scale = float(np.max(np.abs(h)))
     corrected = h - (intercept + slope * V)
-    start, ipk, end = _peak_region(V, corrected, valid, sigma, ref_scale, _search_mask(V, valid, search))
+    w_sm = max(3, V.size // 200)
+    sm = _smooth(corrected, w_sm)
+    start, ipk, end = _peak_region(V, corrected, valid, sigma, ref_scale, _search_mask(V, valid, search), sm=sm)
     gap = 0.1 * (V[end] - V[start])
     # Other peaks and dips (system, solvent, a marker) that are not excluded are no place
     # for a window: where the smoothed first-guess signal stands 5 noise SDs (and 0.1 % of
     # the peak) off the line, widened by a run of slices, windows are not placed when
     # there is room elsewhere.
-    w_sm = max(3, V.size // 200)
-    sm = _smooth(corrected, w_sm)
     free = valid & ~_busy(sm, valid, start, end, max(5.0 * sigma / math.sqrt(w_sm), 1e-3 * float(sm[ipk])),
                           max(5, V.size // 50))
     # Preferred: just outside the feet with a gap; else touching the feet; else the
@@ -582,14 +612,25 @@ def find_limits(
     of running through it.
     """
     V, c, order = _as_trace(volume, corrected)
-    V, c = V[order], c[order]
+    return _find_limits_sorted(V[order], c[order], noise, exclusions, search)
+
+
+def _find_limits_sorted(
+    V: np.ndarray, c: np.ndarray, noise: float, exclusions: Sequence[Window], search: Window | None,
+    sm: np.ndarray | None = None,
+) -> Window:
+    """:func:`find_limits` on a trace already checked and sorted by volume (``sm``: its
+    moving average over max(3, n/200) slices, when already computed).
+    """
     valid = ~_window_mask(V, exclusions)
     start, _, end = _peak_region(V, c, valid, noise, searchable=_search_mask(V, valid, search),
-                                 stop_at_outside_peaks=search is not None)
+                                 stop_at_outside_peaks=search is not None, sm=sm)
     return float(V[start]), float(V[end])
 
 
-def _larger_peak_outside(V: np.ndarray, corrected: np.ndarray, valid: np.ndarray, search: Window) -> str | None:
+def _larger_peak_outside(
+    V: np.ndarray, corrected: np.ndarray, valid: np.ndarray, search: Window, sm: np.ndarray | None = None
+) -> str | None:
     """A note when the smoothed signal peaks higher outside ``search`` than inside it.
 
     Excluded regions are the analyst's known peaks (flow marker, solvent) and are not
@@ -601,7 +642,8 @@ def _larger_peak_outside(V: np.ndarray, corrected: np.ndarray, valid: np.ndarray
     outside = valid & ~inside
     if not outside.any():
         return None
-    sm = _smooth(corrected, max(3, V.size // 200))
+    if sm is None:
+        sm = _smooth(corrected, max(3, V.size // 200))
     i_in = int(np.argmax(np.where(inside, sm, -np.inf)))
     i_out = int(np.argmax(np.where(outside, sm, -np.inf)))
     h_in, h_out = float(sm[i_in]), float(sm[i_out])
@@ -661,16 +703,21 @@ def correct_signal(
         if not a < b:
             raise DataError(f"excluded region {a:g}-{b:g} mL: start must be below end")
     sigma = noise_level(h[~_window_mask(V, exclusions)]) if (windows is None or limits is None) else None
-    base = fit_baseline(V, h, windows, exclusions=exclusions, noise=sigma, search=search)
+    base = _fit_baseline_sorted(V, h, windows, exclusions, sigma, search)
     corrected = h - base(V)
+    # the moving average of the limits' peak search, shared with the larger-peak check
+    sm = _smooth(corrected, max(3, V.size // 200)) if sigma is not None and (search is not None or limits is None) else None
     notes: list[str] = []
     if search is not None and sigma is not None:
-        note = _larger_peak_outside(V, corrected, ~_window_mask(V, exclusions), search)
+        note = _larger_peak_outside(V, corrected, ~_window_mask(V, exclusions), search, sm)
         if note:
             notes.append(note)
     if limits is None:
         assert sigma is not None  # computed above whenever the limits are automatic
-        limits = find_limits(V, corrected, noise=sigma, exclusions=exclusions, search=search)
+        if float(np.abs(corrected).max()) <= HUGE_VALUE:  # finite and checked: no need to check again
+            limits = _find_limits_sorted(V, corrected, sigma, exclusions, search, sm)
+        else:  # the public function names the bad slice
+            limits = find_limits(V, corrected, noise=sigma, exclusions=exclusions, search=search)
         # never integrate into the baseline windows themselves
         (_, before_end), (after_start, _) = base.windows
         lo = max(limits[0], before_end) if before_end < limits[1] else limits[0]
@@ -783,8 +830,7 @@ def _maxima_with_dips(y: np.ndarray, delta: float) -> list[int]:
     maxima: list[int] = []
     hi, hi_i, lo = -math.inf, 0, math.inf
     looking_for_max = True
-    for i in points.tolist():
-        v = float(y[i])
+    for i, v in zip(points.tolist(), y[points].tolist()):
         if looking_for_max:
             if v > hi:
                 hi, hi_i = v, i

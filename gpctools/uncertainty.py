@@ -36,7 +36,7 @@ from gpctools.display import Display
 
 from .calibration import Calibration
 from .distribution import AVERAGE_MOMENTS, Distribution
-from .signal import Baseline
+from .signal import Baseline, _median
 
 __all__ = [
     "UNCERTAIN_AVERAGES",
@@ -132,13 +132,17 @@ class AverageUncertainty(Display):
 
 
 def _moment_weights(dist: Distribution) -> tuple[np.ndarray, dict[int, np.ndarray]]:
-    """Scaled molar masses m = M/M_ref and m^k for k = -1 ... 3 (scale-free ratios)."""
-    m = dist.M / float(np.median(dist.M))
+    """Scaled molar masses m = M/M_ref and m^k for k = -1 ... 3 (scale-free ratios),
+    with M_ref the median of M (one partition, the same value as ``numpy.median``).
+    """
+    m = dist.M / _median(dist.M)
     m2 = m * m  # products, not float powers: several times faster on long arrays
     return m, {-1: 1.0 / m, 0: np.ones_like(m), 1: m, 2: m2, 3: m2 * m}
 
 
-def calibration_uncertainty(dist: Distribution, calibration: Calibration) -> dict[str, float]:
+def calibration_uncertainty(
+    dist: Distribution, calibration: Calibration, *, _weights: dict[int, np.ndarray] | None = None
+) -> dict[str, float]:
     r"""u(X)/X of Mn, Mw, Mz from the calibration-coefficient covariance [-].
 
     .. math:: \frac{u_{cal}(X)}{X} = \sqrt{g^T C g},\quad
@@ -157,12 +161,14 @@ def calibration_uncertainty(dist: Distribution, calibration: Calibration) -> dic
     C = np.asarray(calibration.covariance, dtype=float)
     if not np.all(np.isfinite(C)):
         return out
-    for name, g in calibration_gradients(dist, calibration).items():
+    for name, g in calibration_gradients(dist, calibration, _weights=_weights).items():
         out[name] = math.sqrt(max(float(g @ C @ g), 0.0))
     return out
 
 
-def calibration_gradients(dist: Distribution, calibration: Calibration) -> dict[str, np.ndarray]:
+def calibration_gradients(
+    dist: Distribution, calibration: Calibration, *, _weights: dict[int, np.ndarray] | None = None
+) -> dict[str, np.ndarray]:
     r"""∂ ln X/∂c of Mn, Mw and Mz with respect to the calibration coefficients c [-].
 
     .. math:: \nabla_c \ln X = \ln 10\,(a\,\bar x_a - b\,\bar x_b)
@@ -170,10 +176,11 @@ def calibration_gradients(dist: Distribution, calibration: Calibration) -> dict[
     with the moment-weighted mean gradients x̄_k of :func:`calibration_uncertainty`. A
     calibration error is common to every injection measured with it, so a run series
     carries these vectors to correlate its runs' errors (gpctools.transfer; docs/science.md,
-    section 11.5). Averages that are missing are left out of the mapping.
+    section 11.5). Averages that are missing are left out of the mapping. ``_weights``
+    (internal) are the powers m^k of :func:`_moment_weights` when already computed.
     """
     G = calibration.log_M_gradient(dist.volume)  # (n, p)
-    _, mk = _moment_weights(dist)
+    mk = _moment_weights(dist)[1] if _weights is None else _weights
     ks = sorted({k for name in UNCERTAIN_AVERAGES for k in AVERAGE_MOMENTS[name]})
     Wk = np.stack([dist.w * mk[k] for k in ks])  # (moments, n)
     xbar = dict(zip(ks, (Wk @ G) / Wk.sum(axis=1)[:, None]))  # weighted mean gradient per moment
@@ -186,7 +193,10 @@ def calibration_gradients(dist: Distribution, calibration: Calibration) -> dict[
     return out
 
 
-def noise_uncertainty(dist: Distribution, noise_sd: float, baseline: Baseline | None = None) -> dict[str, float]:
+def noise_uncertainty(
+    dist: Distribution, noise_sd: float, baseline: Baseline | None = None, *,
+    _weights: dict[int, np.ndarray] | None = None,
+) -> dict[str, float]:
     r"""u(X)/X of Mn, Mw, Mz from white baseline noise of SD ``noise_sd`` [-].
 
     Slice i contributes h_i·ΔV_i·M_i^k to S_k. Its height carries white noise ε_i (SD σ)
@@ -214,7 +224,7 @@ def noise_uncertainty(dist: Distribution, noise_sd: float, baseline: Baseline | 
     out = {k: math.nan for k in UNCERTAIN_AVERAGES}
     if dist.width is None or not math.isfinite(dist.area) or not (math.isfinite(noise_sd) and noise_sd >= 0):
         return out
-    _, mk = _moment_weights(dist)
+    mk = _moment_weights(dist)[1] if _weights is None else _weights
     ks = (-1, 0, 1, 2)
     A = np.stack([dist.width * mk[k] for k in ks])  # a_ik, (moments, n)
     S = dict(zip(ks, A @ dist.height))
@@ -261,9 +271,12 @@ def average_uncertainty(
     shifted: dict[str, float],
     limit_shift: float,
 ) -> AverageUncertainty:
-    """All three parts for Mn, Mw and Mz (see the module docstring)."""
-    cal = calibration_uncertainty(dist, calibration)
-    noise = noise_uncertainty(dist, noise_sd, baseline)
+    """All three parts for Mn, Mw and Mz (see the module docstring); the moment weights
+    m^k are computed once for the calibration and the noise parts.
+    """
+    mk = _moment_weights(dist)[1]
+    cal = calibration_uncertainty(dist, calibration, _weights=mk)
+    noise = noise_uncertainty(dist, noise_sd, baseline, _weights=mk)
     lim = limit_uncertainty(dist, shifted)
     parts = {k: RelativeUncertainty(cal[k], noise[k], lim[k]) for k in UNCERTAIN_AVERAGES}
     return AverageUncertainty(parts["Mn"], parts["Mw"], parts["Mz"], float(noise_sd), float(limit_shift))

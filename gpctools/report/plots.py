@@ -165,8 +165,11 @@ def png_bytes(fig: Any) -> bytes:
     try:
         canvas.draw()
         buf = io.BytesIO()
+        # zlib level 1: the same pixels, about 4 % larger files, encoded in about half the
+        # time of the default level 6 (measured on the demo's 46 figures, issue 14)
         matplotlib.image.imsave(buf, canvas.buffer_rgba(), format="png", origin="upper", dpi=DPI,
-                                metadata={"Software": None})  # type: ignore[dict-item]  # None drops the key
+                                metadata={"Software": None},  # type: ignore[dict-item]  # None drops the key
+                                pil_kwargs={"compress_level": 1})
     finally:
         fig.dpi = dpi
     return buf.getvalue()
