@@ -66,3 +66,38 @@ def cli_runner() -> CliRunner:
     from typer.testing import CliRunner
 
     return CliRunner()
+
+
+#: An RI + seven-angle light-scattering method (658 nm, PS-like dn/dc in THF, 0.1 mL LS
+#: offset); ``{standards}`` is the calibration's standards line.
+_RI_LS_METHOD = """
+name = "RI + LS"
+[flow]
+rate = 1.0
+[calibration]
+{standards}
+[detectors.ri]
+kind = "RI"
+constant = {ri}
+dn_dc = 0.185
+columns = "RI"
+[detectors.ls]
+kind = "light scattering"
+wavelength = 658
+dn_dc = 0.185
+solvent_refractive_index = 1.404
+angles = [35, 50, 75, 90, 105, 130, 145]
+constant = {ls}
+offset = 0.1
+"""
+
+
+@pytest.fixture(scope="session")
+def ri_ls_method_text():
+    """Text of an RI + light-scattering method file: ``ri_ls_method_text(standards,
+    ri=5.0e4, ls=1.0e-5)`` (detector constants as given)."""
+
+    def make(standards: str, ri: float = 5.0e4, ls: float = 1.0e-5) -> str:
+        return _RI_LS_METHOD.format(standards=standards, ri=ri, ls=ls)
+
+    return make

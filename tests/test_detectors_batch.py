@@ -28,26 +28,6 @@ MP, D = 80_000.0, 1.8  # log-normal sample: peak molar mass [g/mol], dispersity 
 MASS_G = 2.0e-4  # simulated injected polymer mass [g] = 0.200 mg
 RI_CONSTANT, LS_CONSTANT = 5.0e4, 1.0e-5
 
-METHOD = """
-name = "RI + LS"
-[flow]
-rate = 1.0
-[calibration]
-{standards}
-[detectors.ri]
-kind = "RI"
-constant = {ri}
-dn_dc = 0.185
-columns = "RI"
-[detectors.ls]
-kind = "light scattering"
-wavelength = 658
-dn_dc = 0.185
-solvent_refractive_index = 1.404
-angles = [35, 50, 75, 90, 105, 130, 145]
-constant = {ls}
-offset = 0.1
-"""
 
 
 def _log_M(V):
@@ -55,7 +35,7 @@ def _log_M(V):
 
 
 @pytest.fixture(scope="module")
-def run(tmp_path_factory):
+def run(tmp_path_factory, ri_ls_method_text):
     d = tmp_path_factory.mktemp("recovery")
     V, ch = S.multi_detector_traces(S.lognormal(MP, D), _log_M, mass=MASS_G, ri_constant=RI_CONSTANT,
                                     ls_constant=LS_CONSTANT, offsets={"ls": 0.1},
@@ -63,7 +43,7 @@ def run(tmp_path_factory):
     (d / "x.csv").write_text(S.multi_detector_export(V, ch), encoding="utf-8")
     standards = "\n".join(f'[[calibration.standard]]\nname = "{n}"\nMp = {m}\nvolume = {v}'
                           for n, m, v in S.DEFAULT_STANDARDS)
-    (d / "m.toml").write_text(METHOD.format(standards=standards, ri=RI_CONSTANT, ls=LS_CONSTANT), encoding="utf-8")
+    (d / "m.toml").write_text(ri_ls_method_text(standards, ri=RI_CONSTANT, ls=LS_CONSTANT), encoding="utf-8")
     # the same export four times: exact mass, 25 % more claimed (a loss), the concentration x volume
     # route (2.0 mg/mL x 100 uL = 0.200 mg), and no mass at all
     (d / "batch.csv").write_text(

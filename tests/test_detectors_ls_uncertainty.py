@@ -85,32 +85,12 @@ def test_concentration_noise_propagates_like_a_monte_carlo():
     assert stated["Mw"] == pytest.approx(np.std(np.log(Mw)), rel=0.03)
 
 
-METHOD = """
-name = "RI + LS"
-[flow]
-rate = 1.0
-[calibration]
-{standards}
-[detectors.ri]
-kind = "RI"
-constant = 5.0e4
-dn_dc = 0.185
-columns = "RI"
-[detectors.ls]
-kind = "light scattering"
-wavelength = 658
-dn_dc = 0.185
-solvent_refractive_index = 1.404
-angles = [35, 50, 75, 90, 105, 130, 145]
-constant = 1.0e-5
-offset = 0.1
-"""
 
 
-def test_stated_u_matches_the_scatter_of_simulated_injections(tmp_path):
+def test_stated_u_matches_the_scatter_of_simulated_injections(tmp_path, ri_ls_method_text):
     standards = "\n".join(f'[[calibration.standard]]\nname = "{n}"\nMp = {m}\nvolume = {v}'
                           for n, m, v in S.DEFAULT_STANDARDS)
-    (tmp_path / "m.toml").write_text(METHOD.format(standards=standards), encoding="utf-8")
+    (tmp_path / "m.toml").write_text(ri_ls_method_text(standards), encoding="utf-8")
     method = load_method(tmp_path / "m.toml")
     log_M = S.default_calibration().log_M
     rows = []
