@@ -319,8 +319,7 @@ class Hypothesis(ABC):
 
     @abstractmethod
     def grid(self) -> np.ndarray:
-        """Grid of θ searched before the bounded refinement."""
-        raise NotImplementedError
+        """Grid of θ searched before the bounded refinement (each cause defines its own)."""
 
     def perturbation(self, theta: float, model: AnchoredModel) -> dict[str, float] | None:
         """Keyword perturbation of :func:`~gpctools.kinetics.predict.evaluate` at θ for a
@@ -336,7 +335,8 @@ class Hypothesis(ABC):
         """
         pert = self.perturbation(theta, model)
         if pert is None:  # pragma: no cover - measurement causes override predict
-            raise NotImplementedError
+            raise TypeError(f"{type(self).__name__}: a cause without a perturbation of the "
+                            "chemistry (a measurement cause) must define predict()")
         return model.response(**pert)
 
     def molar_mass_shift(self, theta: float, model: AnchoredModel) -> float:
@@ -368,8 +368,7 @@ class Hypothesis(ABC):
 
     @abstractmethod
     def explain(self, value: float, ev: Evidence) -> Explanation:
-        """Text, numbers and next step for the best-fit ``value``."""
-        raise NotImplementedError
+        """Text, numbers and next step for the best-fit ``value`` (each cause its own)."""
 
     def __repr__(self) -> str:
         return f"<hypothesis {self.key}>"
