@@ -871,8 +871,11 @@ def _lm_log_M(V: np.ndarray) -> np.ndarray:
     return (math.log10(p["K_PS"] / p["K_LM"]) + (1.0 + p["a_PS"]) * _ps_log_M(V)) / (1.0 + p["a_LM"])
 
 
-def write_detector_demo(folder: str | Path) -> dict[str, Any]:
+def write_detector_demo(folder: str | Path, *, seed: int = 0) -> dict[str, Any]:
     """The multi-detector part: a narrow-standard injection, two binder lots, method, truth.
+
+    ``seed`` shifts the noise seeds (0: the bundled files; ``bench/bench_detectors.py``
+    draws other noise on the same line).
 
     Files: ``standard_PS96k.csv`` (the standard on every detector), ``LM-40-*.csv``,
     ``batch.csv``, ``method.toml`` (the set-up as pasted from ``gpctools detectors``),
@@ -886,7 +889,7 @@ def write_detector_demo(folder: str | Path) -> dict[str, Any]:
     name, Mp, D, mass = p["standard"]
     _, ch = simulate.multi_detector_traces(simulate.lognormal(Mp, D), _ps_log_M, mass=mass, K=p["K_PS"],
                                            a=p["a_PS"], dn_dc_ri=p["dn_dc_PS"], dn_dc_ls=p["dn_dc_PS"],
-                                           seed=4101, **common)
+                                           seed=4101 + seed, **common)
     write_text(folder / "standard_PS96k.csv", simulate.multi_detector_export(
         V, ch, metadata={"Sample": name, "Injected mass": "0.100 mg"}))
     rows = ["sample_id,file,injected mass [mg]"]  # the mass gives the mass recovery of each injection
@@ -894,7 +897,7 @@ def write_detector_demo(folder: str | Path) -> dict[str, Any]:
     for i, (lot, Mn, b, m) in enumerate(p["lots"]):
         _, ch = simulate.multi_detector_traces(simulate.schulz_zimm(Mn, b), _lm_log_M, mass=m, K=p["K_LM"],
                                                a=p["a_LM"], dn_dc_ri=p["dn_dc_LM"], dn_dc_ls=p["dn_dc_LM"],
-                                               seed=4200 + i, **common)
+                                               seed=4200 + i + seed, **common)
         write_text(folder / f"{lot}.csv", simulate.multi_detector_export(V, ch, metadata={"Sample": lot}))
         rows.append(f"{lot},{lot}.csv,{1e3 * m:.3f}")
         truth.append(f"{lot},{lot}.csv,{Mn:.1f},{Mn * (b + 1) / b:.1f},{p['offsets']['ls']},{p['offsets']['visc']}")
@@ -913,10 +916,7 @@ def _demo_detectors(folder: Path, out: Path, echo: Callable[[str], None]) -> dic
     import pandas as pd
 
     from . import columns as C
-    from .batch import process_trace, run_batch
-    from .detectors import NarrowStandard
-    from .detectors.pipeline import calibrate_with_standard
-    from .io import read_chromatogram
+    from .batch import run_batch
     from .method import load_method
     from .report import DistributionWriter, write_batch
 
@@ -940,14 +940,7 @@ def _demo_detectors(folder: Path, out: Path, echo: Callable[[str], None]) -> dic
         echo(f"{r[C.SAMPLE_ID]:<13}{r[C.MN_LS]:>10,.0f}{t['Mn [g/mol]']:>10,.0f}{dn:>+7.2f}%{r[C.MW_LS]:>10,.0f}"
              f"{t['Mw [g/mol]']:>10,.0f}{dw:>+7.2f}%{r[C.MN]:>11,.0f}{r[C.INTRINSIC_VISCOSITY]:>15.4f}"
              f"{r[C.MH_A]:>7.3f}")
-    std_path = folder / "standard_PS96k.csv"
-    _, Mp, D, mass = DETECTOR_LINE["standard"]
-    chrom = read_chromatogram(std_path, channels="all")
-    V = chrom.to_volume(method.flow_rate)
-    trace = process_trace(V, chrom.signal, method, sample_id="PS 96k", file=str(std_path))
-    std = NarrowStandard(name="PS 96k", Mw=Mp * math.sqrt(D), dispersity=D, injected_mass=mass,
-                         a=DETECTOR_LINE["a_PS"])
-    cal = calibrate_with_standard(chrom, V, trace, method, std)
+    cal = detector_line_calibration(folder, method)
     echo("offsets from the narrow standard (polydispersity lead included) [mL]: " + ", ".join(
         f"{d.name} {d.offset:.4f} (true {DETECTOR_LINE['offsets'][d.name]:.3f})"
         for d in cal.detectors if d.name in DETECTOR_LINE["offsets"]))
@@ -957,6 +950,25 @@ def _demo_detectors(folder: Path, out: Path, echo: Callable[[str], None]) -> dic
     return {"worst deviation [%]": float(worst), "worst offset error [mL]": float(off_err),
             "ok": bool(worst < 2.0 and off_err < 0.01),
             "offsets [mL]": {d.name: float(d.offset) for d in cal.detectors}}
+
+
+def detector_line_calibration(folder: Path, method: Any) -> Any:
+    """The set-up calibration of the multi-detector line from its narrow-standard
+    injection (``standard_PS96k.csv``), as ``gpctools detectors`` computes it.
+    """
+    from .batch import process_trace
+    from .detectors import NarrowStandard
+    from .detectors.pipeline import calibrate_with_standard
+    from .io import read_chromatogram
+
+    std_path = Path(folder) / "standard_PS96k.csv"
+    _, Mp, D, mass = DETECTOR_LINE["standard"]
+    chrom = read_chromatogram(std_path, channels="all")
+    V = chrom.to_volume(method.flow_rate)
+    trace = process_trace(V, chrom.signal, method, sample_id="PS 96k", file=str(std_path))
+    std = NarrowStandard(name="PS 96k", Mw=Mp * math.sqrt(D), dispersity=D, injected_mass=mass,
+                         a=DETECTOR_LINE["a_PS"])
+    return calibrate_with_standard(chrom, V, trace, method, std)
 
 
 def _demo_qc(folder: Path, out: Path, result, echo: Callable[[str], None]) -> dict[str, Any]:
